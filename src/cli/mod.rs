@@ -1,0 +1,175 @@
+//! Command-line flags (as typed) and their resolution into library options.
+
+use crate::cluster::{Beta, Mode};
+use crate::colour::Space;
+use crate::limits::Limits;
+use crate::reduce::ReduceOptions;
+use crate::render::Dither;
+use crate::rng::DEFAULT_SEED;
+use clap::{Args, Parser, Subcommand};
+use std::path::PathBuf;
+
+const REDUCE_EXAMPLES: &str = "\
+Examples:
+  chromasift reduce fixtures/demo/harbour-poster.png -k 6 -o out/
+  chromasift reduce field.jpg -k 6 --mode soft --beta auto -o out/ --seed 3
+  chromasift reduce scan.tif -k 12 --space oklab --dither floyd-steinberg --uncertainty-raw -o out/
+
+Writes STEM.reduced.png, STEM.palette.json, STEM.palette.csv and STEM.uncertainty.png
+(plus STEM.uncertainty.tif with --uncertainty-raw) into the output folder.
+
+Exit status: 0 success, 2 bad parameters or unreadable input (nothing is written).";
+
+/// Split images into a few colours or classes with perceptual k-means.
+#[derive(Debug, Parser)]
+#[command(name = "chromasift", version, about, propagate_version = true)]
+pub struct Cli {
+    #[command(subcommand)]
+    pub command: Command,
+}
+
+/// The workflows.
+#[derive(Debug, Subcommand)]
+pub enum Command {
+    /// Reduce an image to K colours chosen in CIELAB or OKLab, with ΔE2000 scores and an
+    /// uncertainty map.
+    #[command(after_help = REDUCE_EXAMPLES)]
+    Reduce(ReduceArgs),
+}
+
+/// Flags of `reduce`.
+#[derive(Debug, Args, Clone)]
+pub struct ReduceArgs {
+    /// Image to reduce (PNG, JPEG, TIFF, WebP, BMP, GIF; 8 or 16 bits per sample).
+    pub input: PathBuf,
+
+    /// Number of colours (at least 1). Fewer are returned if the image has fewer distinct colours.
+    #[arg(short = 'k', long = "k", default_value_t = 8, value_name = "K")]
+    pub k: usize,
+
+    /// Output folder (created if missing).
+    #[arg(short = 'o', long = "out", default_value = ".", value_name = "DIR")]
+    pub out: PathBuf,
+
+    /// hard: each pixel one colour; soft: each pixel a probability over colours,
+    /// r ∝ exp(−β·½ΔE²), started from the hard solution.
+    #[arg(long, default_value = "hard", value_name = "hard|soft")]
+    pub mode: Mode,
+
+    /// Sharpness of the soft assignment in 1/ΔE*ab² (CIELAB) or 1/OKLab-unit² (OKLab),
+    /// or `auto` for 1/σ² with σ² the pooled within-cluster variance of the hard solution.
+    #[arg(long, default_value = "auto", value_name = "NUMBER|auto")]
+    pub beta: Beta,
+
+    /// Space the colours are chosen in.
+    #[arg(long, default_value = "cielab", value_name = "cielab|oklab")]
+    pub space: Space,
+
+    /// Seed of the random generator (ChaCha8); same seed, same output.
+    #[arg(long, default_value_t = DEFAULT_SEED)]
+    pub seed: u64,
+
+    /// Independent k-means++ starts; the one with the lowest SSE is kept.
+    #[arg(long, default_value_t = 1, value_name = "N")]
+    pub restarts: usize,
+
+    /// Most iterations of each phase (hard, then soft).
+    #[arg(long = "max-iter", default_value_t = 300, value_name = "N")]
+    pub max_iter: usize,
+
+    /// Stop when an iteration changes the objective by at most this fraction.
+    #[arg(long, default_value_t = 1e-6, value_name = "FRACTION")]
+    pub tolerance: f64,
+
+    /// Dithering of the reduced image.
+    #[arg(long, default_value = "none", value_name = "none|floyd-steinberg")]
+    pub dither: Dither,
+
+    /// Refuse images with more pixels than this (checked from the header, before decoding).
+    #[arg(long = "max-pixels", default_value_t = Limits::default().max_pixels, value_name = "N")]
+    pub max_pixels: u64,
+
+    /// Also write STEM.uncertainty.tif (32-bit float, 0..1).
+    #[arg(long = "uncertainty-raw")]
+    pub uncertainty_raw: bool,
+
+    /// Print the palette document on standard output.
+    #[arg(long)]
+    pub json: bool,
+}
+
+impl ReduceArgs {
+    /// The library options these flags ask for.
+    pub fn options(&self) -> ReduceOptions {
+        ReduceOptions {
+            k: self.k,
+            mode: self.mode,
+            beta: self.beta,
+            space: self.space,
+            seed: self.seed,
+            restarts: self.restarts,
+            max_iter: self.max_iter,
+            tolerance: self.tolerance,
+            dither: self.dither,
+            limits: Limits::with_max_pixels(self.max_pixels),
+            uncertainty_raw: self.uncertainty_raw,
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn reduce(args: &[&str]) -> ReduceArgs {
+        let mut v = vec!["chromasift", "reduce", "in.png"];
+        v.extend_from_slice(args);
+        match Cli::try_parse_from(v).unwrap().command {
+            Command::Reduce(r) => r,
+        }
+    }
+
+    #[test]
+    fn defaults() {
+        let r = reduce(&[]);
+        let o = r.options();
+        assert_eq!(o, ReduceOptions::new(8));
+        assert_eq!(r.out, PathBuf::from("."));
+        assert!(!r.json);
+    }
+
+    #[test]
+    fn each_flag_parses() {
+        assert_eq!(reduce(&["-k", "5"]).k, 5);
+        assert_eq!(reduce(&["--k", "7"]).k, 7);
+        assert_eq!(reduce(&["-o", "x"]).out, PathBuf::from("x"));
+        assert_eq!(reduce(&["--out", "y"]).out, PathBuf::from("y"));
+        assert_eq!(reduce(&["--mode", "soft"]).mode, Mode::Soft);
+        assert_eq!(reduce(&["--beta", "0.02"]).beta, Beta::Fixed(0.02));
+        assert_eq!(reduce(&["--beta", "auto"]).beta, Beta::Auto);
+        assert_eq!(reduce(&["--space", "oklab"]).space, Space::Oklab);
+        assert_eq!(reduce(&["--seed", "3"]).seed, 3);
+        assert_eq!(reduce(&["--restarts", "4"]).restarts, 4);
+        assert_eq!(reduce(&["--max-iter", "9"]).max_iter, 9);
+        assert_eq!(reduce(&["--tolerance", "0.01"]).tolerance, 0.01);
+        assert_eq!(reduce(&["--dither", "floyd-steinberg"]).dither, Dither::FloydSteinberg);
+        assert_eq!(reduce(&["--max-pixels", "100"]).max_pixels, 100);
+        assert!(reduce(&["--uncertainty-raw"]).uncertainty_raw);
+        assert!(reduce(&["--json"]).json);
+    }
+
+    #[test]
+    fn bad_values_are_refused_by_the_parser() {
+        for bad in [
+            &["--mode", "fuzzy"][..],
+            &["--space", "rgb"],
+            &["--dither", "ordered"],
+            &["--beta", "sharp"],
+            &["-k", "-1"],
+        ] {
+            let mut v = vec!["chromasift", "reduce", "in.png"];
+            v.extend_from_slice(bad);
+            assert!(Cli::try_parse_from(v).is_err(), "{bad:?}");
+        }
+    }
+}

@@ -1,0 +1,410 @@
+//! Hard k-means: weighted Lloyd iterations, optionally accelerated with Hamerly (2010)
+//! distance bounds. Both paths make the same decisions and give the same result.
+
+use super::{dist2, nearest_two, Dataset, CHUNK};
+use rayon::prelude::*;
+
+/// Relative safety margin on bound tests, far above f32 rounding of distances, so a
+/// skipped row is one whose nearest mean is certain.
+const BOUND_MARGIN: f64 = 1e-5;
+
+/// Outcome of [`lloyd`].
+#[derive(Debug, Clone, PartialEq)]
+pub struct LloydResult {
+    /// Final means, `k × dim`.
+    pub means: Vec<f64>,
+    /// Nearest final mean of each row.
+    pub labels: Vec<u32>,
+    /// Weighted sum of squared distances to the nearest final mean.
+    pub sse: f64,
+    /// Lloyd iterations run (mean updates).
+    pub iterations: usize,
+    /// True when it stopped on no change or the tolerance, not the iteration cap.
+    pub converged: bool,
+}
+
+fn to_f32(means: &[f64]) -> Vec<f32> {
+    means.iter().map(|&v| v as f32).collect()
+}
+
+/// Nearest mean of every row and the weighted SSE (sum over chunks in chunk order).
+pub fn assign_nearest(data: &Dataset, means: &[f32]) -> (Vec<u32>, f64) {
+    let dim = data.dim();
+    let mut labels = vec![0u32; data.len()];
+    let partial: Vec<f64> = labels
+        .par_chunks_mut(CHUNK)
+        .enumerate()
+        .map(|(c, out)| {
+            let mut s = 0.0f64;
+            for (o, l) in out.iter_mut().enumerate() {
+                let i = c * CHUNK + o;
+                let (b, d1, _) = nearest_two(data.row(i), means, dim);
+                *l = b as u32;
+                s += data.weight(i) * d1 as f64;
+            }
+            s
+        })
+        .collect();
+    (labels, partial.iter().sum())
+}
+
+/// Per-cluster sufficient statistics: weight, Σw‖x‖², Σw·x.
+struct Stats {
+    k: usize,
+    dim: usize,
+    v: Vec<f64>,
+}
+
+impl Stats {
+    fn stride(&self) -> usize {
+        self.dim + 2
+    }
+    fn weight(&self, j: usize) -> f64 {
+        self.v[j * self.stride()]
+    }
+    fn sse(&self) -> f64 {
+        let s = self.stride();
+        (0..self.k)
+            .map(|j| {
+                let w = self.v[j * s];
+                if w <= 0.0 {
+                    return 0.0;
+                }
+                let q = self.v[j * s + 1];
+                let norm: f64 = self.v[j * s + 2..(j + 1) * s].iter().map(|x| x * x).sum();
+                (q - norm / w).max(0.0)
+            })
+            .sum()
+    }
+}
+
+fn accumulate(data: &Dataset, labels: &[u32], k: usize) -> Stats {
+    let dim = data.dim();
+    let stride = dim + 2;
+    let partial: Vec<Vec<f64>> = labels
+        .par_chunks(CHUNK)
+        .enumerate()
+        .map(|(c, ls)| {
+            let mut v = vec![0.0f64; k * stride];
+            for (o, &l) in ls.iter().enumerate() {
+                let i = c * CHUNK + o;
+                let w = data.weight(i);
+                if w == 0.0 {
+                    continue;
+                }
+                let x = data.row(i);
+                let base = l as usize * stride;
+                v[base] += w;
+                let mut q = 0.0f64;
+                for (d, &xv) in x.iter().enumerate() {
+                    let xv = xv as f64;
+                    q += xv * xv;
+                    v[base + 2 + d] += w * xv;
+                }
+                v[base + 1] += w * q;
+            }
+            v
+        })
+        .collect();
+    let mut v = vec![0.0f64; k * stride];
+    for p in partial {
+        for (a, b) in v.iter_mut().zip(p) {
+            *a += b;
+        }
+    }
+    Stats { k, dim, v }
+}
+
+/// Full assignment with bounds: labels, upper = distance to own mean, lower = to second.
+fn full_pass(data: &Dataset, means: &[f32], labels: &mut [u32], upper: &mut [f64], lower: &mut [f64]) -> usize {
+    let dim = data.dim();
+    labels
+        .par_chunks_mut(CHUNK)
+        .zip(upper.par_chunks_mut(CHUNK))
+        .zip(lower.par_chunks_mut(CHUNK))
+        .enumerate()
+        .map(|(c, ((ls, us), lo))| {
+            let mut changed = 0usize;
+            for o in 0..ls.len() {
+                let i = c * CHUNK + o;
+                let (b, d1, d2) = nearest_two(data.row(i), means, dim);
+                if b as u32 != ls[o] {
+                    changed += 1;
+                }
+                ls[o] = b as u32;
+                us[o] = (d1 as f64).sqrt();
+                lo[o] = (d2 as f64).sqrt();
+            }
+            changed
+        })
+        .sum()
+}
+
+/// Assignment pass that skips rows whose bounds prove the current mean is nearest.
+fn bounded_pass(
+    data: &Dataset,
+    means: &[f32],
+    half_gap: &[f64],
+    labels: &mut [u32],
+    upper: &mut [f64],
+    lower: &mut [f64],
+) -> usize {
+    let dim = data.dim();
+    labels
+        .par_chunks_mut(CHUNK)
+        .zip(upper.par_chunks_mut(CHUNK))
+        .zip(lower.par_chunks_mut(CHUNK))
+        .enumerate()
+        .map(|(c, ((ls, us), lo))| {
+            let mut changed = 0usize;
+            for o in 0..ls.len() {
+                let i = c * CHUNK + o;
+                let a = ls[o] as usize;
+                let m = half_gap[a].max(lo[o]) * (1.0 - BOUND_MARGIN);
+                if us[o] < m {
+                    continue;
+                }
+                let x = data.row(i);
+                us[o] = (dist2(x, &means[a * dim..(a + 1) * dim]) as f64).sqrt();
+                if us[o] < m {
+                    continue;
+                }
+                let (b, d1, d2) = nearest_two(x, means, dim);
+                if b != a {
+                    changed += 1;
+                }
+                ls[o] = b as u32;
+                us[o] = (d1 as f64).sqrt();
+                lo[o] = (d2 as f64).sqrt();
+            }
+            changed
+        })
+        .sum()
+}
+
+/// Replaces the mean of each empty cluster by the row worst served by the other
+/// means (largest squared distance to its nearest mean; lowest index on ties).
+fn reseed_empty(data: &Dataset, means: &mut [f64], empty: &[usize]) {
+    let dim = data.dim();
+    let k = means.len() / dim;
+    let mut live: Vec<bool> = vec![true; k];
+    for &e in empty {
+        live[e] = false;
+    }
+    for &e in empty {
+        let live_means: Vec<f32> = (0..k)
+            .filter(|&j| live[j])
+            .flat_map(|j| means[j * dim..(j + 1) * dim].iter().map(|&v| v as f32))
+            .collect();
+        let worst = (0..data.len())
+            .into_par_iter()
+            .with_min_len(CHUNK)
+            .filter(|&i| data.weight(i) > 0.0)
+            .map(|i| {
+                let d = if live_means.is_empty() { 0.0 } else { nearest_two(data.row(i), &live_means, dim).1 };
+                (d, i)
+            })
+            .reduce(|| (f32::NEG_INFINITY, usize::MAX), |a, b| {
+                if b.0 > a.0 || (b.0 == a.0 && b.1 < a.1) {
+                    b
+                } else {
+                    a
+                }
+            });
+        if worst.1 != usize::MAX {
+            for (d, v) in data.row(worst.1).iter().enumerate() {
+                means[e * dim + d] = *v as f64;
+            }
+        }
+        live[e] = true;
+    }
+}
+
+/// Weighted Lloyd iterations from `init` (`k × dim`) until no row changes cluster,
+/// the relative SSE decrease of an iteration is at most `tolerance`, or `max_iter`.
+/// With `accelerate`, Hamerly bounds skip distance work; the result is the same.
+pub fn lloyd(data: &Dataset, init: &[f32], max_iter: usize, tolerance: f64, accelerate: bool) -> LloydResult {
+    let dim = data.dim();
+    let n = data.len();
+    let k = init.len() / dim;
+    let mut means: Vec<f64> = init.iter().map(|&v| v as f64).collect();
+    let mut means32 = init.to_vec();
+    let mut labels = vec![u32::MAX; n];
+    let mut upper = vec![0.0f64; n];
+    let mut lower = vec![0.0f64; n];
+    full_pass(data, &means32, &mut labels, &mut upper, &mut lower);
+
+    let mut prev_sse = f64::INFINITY;
+    let mut iterations = 0;
+    let mut converged = false;
+    while iterations < max_iter {
+        iterations += 1;
+        let stats = accumulate(data, &labels, k);
+        let sse = stats.sse();
+        let old = means.clone();
+        let mut empty = Vec::new();
+        for j in 0..k {
+            let w = stats.weight(j);
+            if w > 0.0 {
+                let base = j * (dim + 2) + 2;
+                for d in 0..dim {
+                    means[j * dim + d] = stats.v[base + d] / w;
+                }
+            } else {
+                empty.push(j);
+            }
+        }
+        if !empty.is_empty() {
+            reseed_empty(data, &mut means, &empty);
+        }
+        if empty.is_empty() && prev_sse.is_finite() && prev_sse - sse <= tolerance * prev_sse {
+            converged = true;
+            break;
+        }
+        prev_sse = sse;
+        means32 = to_f32(&means);
+        let changed = if accelerate && empty.is_empty() && k > 1 {
+            // Shifts of each mean, and half the distance from each mean to its nearest other.
+            let shift: Vec<f64> = (0..k)
+                .map(|j| {
+                    (0..dim)
+                        .map(|d| (means[j * dim + d] - old[j * dim + d]).powi(2))
+                        .sum::<f64>()
+                        .sqrt()
+                })
+                .collect();
+            let (mut p1, mut p1j, mut p2) = (0.0f64, usize::MAX, 0.0f64);
+            for (j, &p) in shift.iter().enumerate() {
+                if p > p1 {
+                    p2 = p1;
+                    p1 = p;
+                    p1j = j;
+                } else if p > p2 {
+                    p2 = p;
+                }
+            }
+            upper
+                .par_chunks_mut(CHUNK)
+                .zip(lower.par_chunks_mut(CHUNK))
+                .zip(labels.par_chunks(CHUNK))
+                .for_each(|((us, lo), ls)| {
+                    for o in 0..ls.len() {
+                        let a = ls[o] as usize;
+                        us[o] += shift[a];
+                        lo[o] -= if a == p1j { p2 } else { p1 };
+                    }
+                });
+            let half_gap: Vec<f64> = (0..k)
+                .map(|j| {
+                    let mj = &means32[j * dim..(j + 1) * dim];
+                    (0..k)
+                        .filter(|&o| o != j)
+                        .map(|o| (dist2(mj, &means32[o * dim..(o + 1) * dim]) as f64).sqrt())
+                        .fold(f64::INFINITY, f64::min)
+                        * 0.5
+                })
+                .collect();
+            bounded_pass(data, &means32, &half_gap, &mut labels, &mut upper, &mut lower)
+        } else {
+            full_pass(data, &means32, &mut labels, &mut upper, &mut lower)
+        };
+        if changed == 0 && empty.is_empty() {
+            converged = true;
+            break;
+        }
+    }
+    means32 = to_f32(&means);
+    let (labels, sse) = assign_nearest(data, &means32);
+    LloydResult {
+        means,
+        labels,
+        sse,
+        iterations,
+        converged,
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::rng::Rng;
+
+    fn blobs(n_per: usize, centres: &[[f32; 2]], spread: f32, seed: u64) -> Vec<f32> {
+        let mut r = Rng::new(seed, 0);
+        let mut v = Vec::new();
+        for c in centres {
+            for _ in 0..n_per {
+                v.push(c[0] + spread * (r.uniform() as f32 - 0.5));
+                v.push(c[1] + spread * (r.uniform() as f32 - 0.5));
+            }
+        }
+        v
+    }
+
+    #[test]
+    fn hand_worked_one_dimension() {
+        // Rows 0, 2, 10, 12 with means started at 0 and 2: after one update the means
+        // are 0+2 → {0}, {2,10,12} = 8, then {0,2} = 1 and {10,12} = 11; SSE = 1+1+1+1 = 4.
+        let rows = [0.0f32, 2.0, 10.0, 12.0];
+        let data = Dataset::new(&rows, 1, None).unwrap();
+        let r = lloyd(&data, &[0.0, 2.0], 100, 0.0, false);
+        assert_eq!(r.means, vec![1.0, 11.0]);
+        assert_eq!(r.labels, vec![0, 0, 1, 1]);
+        assert_eq!(r.sse, 4.0);
+        assert!(r.converged);
+    }
+
+    #[test]
+    fn weights_equal_repeated_rows() {
+        let rows = [0.0f32, 1.0, 5.0, 9.0, 10.0];
+        let w = [3.0, 1.0, 2.0, 1.0, 4.0];
+        let mut expanded = Vec::new();
+        for (x, &c) in rows.iter().zip(&w) {
+            for _ in 0..c as usize {
+                expanded.push(*x);
+            }
+        }
+        let a = lloyd(&Dataset::new(&rows, 1, Some(&w)).unwrap(), &[0.0, 10.0], 100, 0.0, true);
+        let b = lloyd(&Dataset::new(&expanded, 1, None).unwrap(), &[0.0, 10.0], 100, 0.0, true);
+        assert_eq!(a.means, b.means);
+        assert!((a.sse - b.sse).abs() < 1e-9);
+    }
+
+    #[test]
+    fn bounds_give_the_same_result_as_plain_lloyd() {
+        let centres = [[0.0, 0.0], [4.0, 1.0], [1.0, 5.0], [6.0, 6.0], [9.0, 2.0], [3.0, 3.0]];
+        let rows = blobs(400, &centres, 5.0, 3);
+        let data = Dataset::new(&rows, 2, None).unwrap();
+        for seed in 0..5 {
+            let init = crate::cluster::kmeans_plus_plus(&data, 6, &mut Rng::new(seed, 0));
+            let a = lloyd(&data, &init, 300, 0.0, false);
+            let b = lloyd(&data, &init, 300, 0.0, true);
+            assert_eq!(a, b, "seed {seed}");
+        }
+    }
+
+    #[test]
+    fn empty_cluster_is_reseeded_from_the_worst_served_row() {
+        // Two means start on top of each other far from the data's second group.
+        let rows = [0.0f32, 0.1, 0.2, 50.0];
+        let data = Dataset::new(&rows, 1, None).unwrap();
+        let r = lloyd(&data, &[0.1, 0.1], 100, 0.0, true);
+        let mut m = r.means.clone();
+        m.sort_by(f64::total_cmp);
+        assert!((m[0] - 0.1).abs() < 1e-6 && (m[1] - 50.0).abs() < 1e-6, "{m:?}");
+    }
+
+    #[test]
+    fn sse_never_rises_between_iterations() {
+        let centres = [[0.0, 0.0], [3.0, 0.0], [0.0, 3.0]];
+        let rows = blobs(300, &centres, 4.0, 8);
+        let data = Dataset::new(&rows, 2, None).unwrap();
+        let init = crate::cluster::kmeans_plus_plus(&data, 5, &mut Rng::new(2, 0));
+        let mut last = f64::INFINITY;
+        for it in 1..15 {
+            let r = lloyd(&data, &init, it, 0.0, true);
+            assert!(r.sse <= last + 1e-9, "iteration {it}: {} > {last}", r.sse);
+            last = r.sse;
+        }
+    }
+}

@@ -1,0 +1,131 @@
+//! One clustering engine over plain weighted rows: k-means++ seeding, hard Lloyd
+//! iterations (optionally with Hamerly distance bounds) and soft k-means.
+//!
+//! The engine knows nothing about images or colour: it sees `n × d` f32 rows and
+//! a weight per row. Weighted rows are exact stand-ins for repeated rows, so a
+//! histogram of distinct values gives the same optimisation as every pixel.
+//!
+//! Determinism: work is split into fixed-size chunks whatever the thread count,
+//! and per-chunk partial sums are reduced in chunk order.
+
+mod hard;
+mod init;
+mod model;
+mod params;
+mod soft;
+
+pub use hard::{assign_nearest, lloyd, LloydResult};
+pub use init::kmeans_plus_plus;
+pub use model::{fit, fit_from, KMeansModel};
+pub use params::{Beta, KMeansParams, Mode, ValidParams, MAX_K};
+pub use soft::{auto_beta, responsibility_matrix, soft_assign, soft_kmeans, SoftAssignment, SoftResult};
+
+use crate::error::ParamsError;
+
+/// Rows per parallel work item. Fixed, so sums never depend on the thread count.
+pub(crate) const CHUNK: usize = 2048;
+
+/// Weighted rows: `rows.len() / dim` points of `dim` f32 features each.
+#[derive(Debug, Clone, Copy)]
+pub struct Dataset<'a> {
+    rows: &'a [f32],
+    dim: usize,
+    weights: Option<&'a [f64]>,
+}
+
+impl<'a> Dataset<'a> {
+    /// Checks shape, finiteness and weights.
+    pub fn new(rows: &'a [f32], dim: usize, weights: Option<&'a [f64]>) -> Result<Self, ParamsError> {
+        if dim == 0 {
+            return Err(ParamsError::ZeroDimension);
+        }
+        if rows.len() % dim != 0 {
+            return Err(ParamsError::RaggedRows { got: rows.len(), dim });
+        }
+        let n = rows.len() / dim;
+        if let Some(pos) = rows.iter().position(|v| !v.is_finite()) {
+            return Err(ParamsError::NonFinite { what: "feature", row: pos / dim });
+        }
+        if let Some(w) = weights {
+            if w.len() != n {
+                return Err(ParamsError::WeightCount { rows: n, weights: w.len() });
+            }
+            if let Some(i) = w.iter().position(|x| !(x.is_finite() && *x >= 0.0)) {
+                return Err(ParamsError::BadWeight(i));
+            }
+        }
+        Ok(Dataset { rows, dim, weights })
+    }
+
+    /// From an `n × d` ndarray view (must be in standard row-major layout).
+    pub fn from_array(view: &'a ndarray::ArrayView2<'a, f32>, weights: Option<&'a [f64]>) -> Result<Self, ParamsError> {
+        let dim = view.ncols();
+        let rows = view
+            .as_slice()
+            .ok_or_else(|| ParamsError::Other("the array must be contiguous and row-major".into()))?;
+        Dataset::new(rows, dim, weights)
+    }
+
+    /// Number of rows.
+    pub fn len(&self) -> usize {
+        self.rows.len() / self.dim
+    }
+    /// True when there are no rows.
+    pub fn is_empty(&self) -> bool {
+        self.rows.is_empty()
+    }
+    /// Features per row.
+    pub fn dim(&self) -> usize {
+        self.dim
+    }
+    /// Row `i`.
+    #[inline]
+    pub fn row(&self, i: usize) -> &'a [f32] {
+        &self.rows[i * self.dim..(i + 1) * self.dim]
+    }
+    /// All rows, flat.
+    pub fn rows(&self) -> &'a [f32] {
+        self.rows
+    }
+    /// Weight of row `i` (1 when unweighted).
+    #[inline]
+    pub fn weight(&self, i: usize) -> f64 {
+        self.weights.map_or(1.0, |w| w[i])
+    }
+    /// Sum of weights.
+    pub fn total_weight(&self) -> f64 {
+        self.weights.map_or(self.len() as f64, |w| w.iter().sum())
+    }
+}
+
+/// Squared Euclidean distance.
+#[inline]
+pub(crate) fn dist2(a: &[f32], b: &[f32]) -> f32 {
+    if a.len() == 3 {
+        let d0 = a[0] - b[0];
+        let d1 = a[1] - b[1];
+        let d2 = a[2] - b[2];
+        return d0 * d0 + d1 * d1 + d2 * d2;
+    }
+    a.iter().zip(b).map(|(x, y)| (x - y) * (x - y)).sum()
+}
+
+/// Index and squared distance of the nearest of `k` means (lowest index on ties),
+/// and the squared distance of the second nearest (infinite when k = 1).
+#[inline]
+pub fn nearest_two(x: &[f32], means: &[f32], dim: usize) -> (usize, f32, f32) {
+    let mut best = 0usize;
+    let mut d1 = f32::INFINITY;
+    let mut d2 = f32::INFINITY;
+    for (j, m) in means.chunks_exact(dim).enumerate() {
+        let d = dist2(x, m);
+        if d < d1 {
+            d2 = d1;
+            d1 = d;
+            best = j;
+        } else if d < d2 {
+            d2 = d;
+        }
+    }
+    (best, d1, d2)
+}

@@ -1,0 +1,190 @@
+//! Checked k-means parameters: a builder with documented defaults and `check()`.
+
+use crate::error::ParamsError;
+use crate::rng::DEFAULT_SEED;
+
+/// Largest K accepted.
+pub const MAX_K: usize = 65_535;
+
+/// Hard (each row one cluster) or soft (each row a probability over clusters).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize, serde::Deserialize)]
+#[serde(rename_all = "lowercase")]
+pub enum Mode {
+    /// Lloyd iterations to a fixed point.
+    Hard,
+    /// Soft k-means, r_ik ∝ exp(−β·½‖x_i − m_k‖²), started from the hard solution.
+    Soft,
+}
+
+impl std::str::FromStr for Mode {
+    type Err = String;
+    fn from_str(s: &str) -> Result<Self, String> {
+        match s.to_ascii_lowercase().as_str() {
+            "hard" => Ok(Mode::Hard),
+            "soft" => Ok(Mode::Soft),
+            _ => Err(format!("unknown mode '{s}' (use hard or soft)")),
+        }
+    }
+}
+
+impl Mode {
+    /// Lowercase name, as in documents.
+    pub fn name(self) -> &'static str {
+        match self {
+            Mode::Hard => "hard",
+            Mode::Soft => "soft",
+        }
+    }
+}
+
+/// Sharpness of the soft assignment.
+///
+/// β multiplies d = ½‖x − m‖², so it is in 1/(feature unit)²: 1/ΔE*ab² for CIELAB.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum Beta {
+    /// β = 1/σ², σ² the pooled within-cluster variance per dimension of the hard solution.
+    Auto,
+    /// A given positive, finite β.
+    Fixed(f64),
+}
+
+impl std::str::FromStr for Beta {
+    type Err = String;
+    fn from_str(s: &str) -> Result<Self, String> {
+        if s.eq_ignore_ascii_case("auto") {
+            return Ok(Beta::Auto);
+        }
+        s.trim()
+            .parse::<f64>()
+            .map(Beta::Fixed)
+            .map_err(|_| format!("beta must be a number or 'auto' (got '{s}')"))
+    }
+}
+
+/// Unchecked k-means settings; see each field for its default.
+#[derive(Debug, Clone, PartialEq)]
+pub struct KMeansParams {
+    /// Number of clusters (no default; at least 1).
+    pub k: usize,
+    /// Hard or soft. Default: hard.
+    pub mode: Mode,
+    /// Soft-assignment sharpness. Default: auto.
+    pub beta: Beta,
+    /// Seed of the ChaCha8 generator. Default: [`DEFAULT_SEED`].
+    pub seed: u64,
+    /// Independent k-means++ starts; the lowest SSE is kept. Default: 1.
+    pub restarts: usize,
+    /// Most iterations for each of the hard and soft phases. Default: 300.
+    pub max_iter: usize,
+    /// Stop when the relative objective change of one iteration is at most this. Default: 1e-6.
+    pub tolerance: f64,
+    /// Use distance bounds (Hamerly 2010) to skip work; same result as plain Lloyd. Default: true.
+    pub accelerate: bool,
+}
+
+impl KMeansParams {
+    /// Defaults for `k` clusters.
+    pub fn new(k: usize) -> Self {
+        KMeansParams {
+            k,
+            mode: Mode::Hard,
+            beta: Beta::Auto,
+            seed: DEFAULT_SEED,
+            restarts: 1,
+            max_iter: 300,
+            tolerance: 1e-6,
+            accelerate: true,
+        }
+    }
+    pub fn mode(mut self, mode: Mode) -> Self {
+        self.mode = mode;
+        self
+    }
+    pub fn beta(mut self, beta: Beta) -> Self {
+        self.beta = beta;
+        self
+    }
+    pub fn seed(mut self, seed: u64) -> Self {
+        self.seed = seed;
+        self
+    }
+    pub fn restarts(mut self, restarts: usize) -> Self {
+        self.restarts = restarts;
+        self
+    }
+    pub fn max_iter(mut self, max_iter: usize) -> Self {
+        self.max_iter = max_iter;
+        self
+    }
+    pub fn tolerance(mut self, tolerance: f64) -> Self {
+        self.tolerance = tolerance;
+        self
+    }
+    pub fn accelerate(mut self, accelerate: bool) -> Self {
+        self.accelerate = accelerate;
+        self
+    }
+
+    /// Validates every rule; only checked parameters can be fitted.
+    pub fn check(self) -> Result<ValidParams, ParamsError> {
+        if self.k == 0 {
+            return Err(ParamsError::KTooSmall(0));
+        }
+        if self.k > MAX_K {
+            return Err(ParamsError::KTooLarge { got: self.k, max: MAX_K });
+        }
+        if let Beta::Fixed(b) = self.beta {
+            if !(b.is_finite() && b > 0.0) {
+                return Err(ParamsError::BadBeta(b));
+            }
+        }
+        if !(self.tolerance.is_finite() && self.tolerance >= 0.0) {
+            return Err(ParamsError::BadTolerance(self.tolerance));
+        }
+        if self.max_iter == 0 {
+            return Err(ParamsError::BadMaxIter(0));
+        }
+        if self.restarts == 0 {
+            return Err(ParamsError::BadRestarts(0));
+        }
+        Ok(ValidParams(self))
+    }
+}
+
+/// Parameters that passed [`KMeansParams::check`].
+#[derive(Debug, Clone, PartialEq)]
+pub struct ValidParams(KMeansParams);
+
+impl std::ops::Deref for ValidParams {
+    type Target = KMeansParams;
+    fn deref(&self) -> &KMeansParams {
+        &self.0
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn each_rule_has_its_error() {
+        assert_eq!(KMeansParams::new(0).check().unwrap_err(), ParamsError::KTooSmall(0));
+        assert!(matches!(KMeansParams::new(70_000).check(), Err(ParamsError::KTooLarge { .. })));
+        for b in [0.0, -1.0, f64::NAN, f64::INFINITY] {
+            assert!(matches!(KMeansParams::new(3).beta(Beta::Fixed(b)).check(), Err(ParamsError::BadBeta(_))));
+        }
+        assert!(matches!(KMeansParams::new(3).tolerance(f64::NAN).check(), Err(ParamsError::BadTolerance(_))));
+        assert!(matches!(KMeansParams::new(3).max_iter(0).check(), Err(ParamsError::BadMaxIter(0))));
+        assert!(matches!(KMeansParams::new(3).restarts(0).check(), Err(ParamsError::BadRestarts(0))));
+        assert!(KMeansParams::new(3).beta(Beta::Fixed(0.5)).check().is_ok());
+    }
+
+    #[test]
+    fn beta_parses_auto_and_numbers() {
+        assert_eq!("auto".parse::<Beta>().unwrap(), Beta::Auto);
+        assert_eq!("0.25".parse::<Beta>().unwrap(), Beta::Fixed(0.25));
+        assert!("sharp".parse::<Beta>().is_err());
+        // NaN parses as a number and is refused by check().
+        assert!(matches!("nan".parse::<Beta>().unwrap(), Beta::Fixed(b) if b.is_nan()));
+    }
+}

@@ -1,0 +1,187 @@
+//! Exact weighted table of distinct colours, with the pixel → entry index used to render.
+
+use rayon::prelude::*;
+
+/// Entry index of a pixel that takes no part (alpha = 0).
+pub const TRANSPARENT: u32 = u32::MAX;
+
+/// Distinct colours of an image with their pixel counts.
+///
+/// Entries are sorted by colour value (R, then G, then B), so the table is the same
+/// whatever the pixel order or thread count.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Histogram {
+    /// Sample depth of `colours`: 8 or 16 bits.
+    pub depth: u8,
+    /// Distinct sRGB colours (at `depth` bits, stored as u16).
+    pub colours: Vec<[u16; 3]>,
+    /// Pixels of each colour.
+    pub counts: Vec<u64>,
+}
+
+/// A histogram plus, for every pixel, the index of its entry (or [`TRANSPARENT`]).
+#[derive(Debug, Clone, PartialEq)]
+pub struct IndexedHistogram {
+    pub histogram: Histogram,
+    pub pixel_entry: Vec<u32>,
+}
+
+impl Histogram {
+    /// Number of distinct colours.
+    pub fn len(&self) -> usize {
+        self.colours.len()
+    }
+    /// True when no pixel took part.
+    pub fn is_empty(&self) -> bool {
+        self.colours.is_empty()
+    }
+    /// Pixels counted.
+    pub fn total(&self) -> u64 {
+        self.counts.iter().sum()
+    }
+    /// Counts as f64 weights for clustering.
+    pub fn weights(&self) -> Vec<f64> {
+        self.counts.iter().map(|&c| c as f64).collect()
+    }
+
+    /// Merges histograms of the same depth (parts of one image, or several images).
+    pub fn merge(parts: &[Histogram]) -> Option<Histogram> {
+        let depth = parts.first()?.depth;
+        if parts.iter().any(|p| p.depth != depth) {
+            return None;
+        }
+        let mut all: Vec<([u16; 3], u64)> = parts
+            .iter()
+            .flat_map(|p| p.colours.iter().copied().zip(p.counts.iter().copied()))
+            .collect();
+        all.par_sort_unstable_by_key(|e| e.0);
+        let mut colours = Vec::new();
+        let mut counts: Vec<u64> = Vec::new();
+        for (c, n) in all {
+            if colours.last() == Some(&c) {
+                *counts.last_mut().unwrap() += n;
+            } else {
+                colours.push(c);
+                counts.push(n);
+            }
+        }
+        Some(Histogram { depth, colours, counts })
+    }
+}
+
+/// Histogram of 8-bit RGBA pixels (`rgba.len() = 4 × pixels`); alpha = 0 is left out.
+///
+/// Uses a dense 2²⁴ table (zero-initialised lazily by the OS, so only pages of colours
+/// present are touched) and a presence bitmap, so counting is one pass at memory speed.
+pub fn from_rgba8(rgba: &[u8]) -> IndexedHistogram {
+    let mut table = vec![0u32; 1 << 24];
+    let mut present = vec![0u64; 1 << 18];
+    for p in rgba.chunks_exact(4) {
+        if p[3] == 0 {
+            continue;
+        }
+        let key = (p[0] as usize) << 16 | (p[1] as usize) << 8 | p[2] as usize;
+        table[key] += 1;
+        present[key >> 6] |= 1 << (key & 63);
+    }
+    let mut colours = Vec::new();
+    let mut counts = Vec::new();
+    for (wi, &word) in present.iter().enumerate() {
+        let mut bits = word;
+        while bits != 0 {
+            let b = bits.trailing_zeros() as usize;
+            bits &= bits - 1;
+            let key = wi << 6 | b;
+            counts.push(table[key] as u64);
+            table[key] = colours.len() as u32;
+            colours.push([(key >> 16) as u16, ((key >> 8) & 255) as u16, (key & 255) as u16]);
+        }
+    }
+    let mut pixel_entry = vec![0u32; rgba.len() / 4];
+    pixel_entry
+        .par_chunks_mut(1 << 16)
+        .zip(rgba.par_chunks(4 << 16))
+        .for_each(|(out, px)| {
+            for (o, p) in out.iter_mut().zip(px.chunks_exact(4)) {
+                *o = if p[3] == 0 {
+                    TRANSPARENT
+                } else {
+                    table[(p[0] as usize) << 16 | (p[1] as usize) << 8 | p[2] as usize]
+                };
+            }
+        });
+    IndexedHistogram {
+        histogram: Histogram { depth: 8, colours, counts },
+        pixel_entry,
+    }
+}
+
+/// Histogram of 16-bit RGBA pixels (`rgba.len() = 4 × pixels`); alpha = 0 is left out.
+/// Exact (sort and count); distinct colours are often nearly as many as pixels.
+pub fn from_rgba16(rgba: &[u16]) -> IndexedHistogram {
+    let key = |p: &[u16]| (p[0] as u64) << 32 | (p[1] as u64) << 16 | p[2] as u64;
+    let mut keys: Vec<u64> = rgba.par_chunks_exact(4).filter(|p| p[3] != 0).map(key).collect();
+    keys.par_sort_unstable();
+    let mut uniq: Vec<u64> = Vec::new();
+    let mut counts: Vec<u64> = Vec::new();
+    for k in keys {
+        if uniq.last() == Some(&k) {
+            *counts.last_mut().unwrap() += 1;
+        } else {
+            uniq.push(k);
+            counts.push(1);
+        }
+    }
+    let pixel_entry: Vec<u32> = rgba
+        .par_chunks_exact(4)
+        .map(|p| {
+            if p[3] == 0 {
+                TRANSPARENT
+            } else {
+                uniq.binary_search(&key(p)).expect("every key was counted") as u32
+            }
+        })
+        .collect();
+    let colours = uniq
+        .iter()
+        .map(|&k| [(k >> 32) as u16, ((k >> 16) & 0xffff) as u16, (k & 0xffff) as u16])
+        .collect();
+    IndexedHistogram {
+        histogram: Histogram { depth: 16, colours, counts },
+        pixel_entry,
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn counts_and_index_by_hand() {
+        // Four pixels: red, blue, red, transparent green.
+        let px = [255, 0, 0, 255, 0, 0, 255, 255, 255, 0, 0, 128, 0, 255, 0, 0];
+        let h = from_rgba8(&px);
+        assert_eq!(h.histogram.colours, vec![[0, 0, 255], [255, 0, 0]]);
+        assert_eq!(h.histogram.counts, vec![1, 2]);
+        assert_eq!(h.pixel_entry, vec![1, 0, 1, TRANSPARENT]);
+        assert_eq!(h.histogram.total(), 3);
+    }
+
+    #[test]
+    fn sixteen_bit_counts() {
+        let px = [1u16, 2, 3, 65535, 1, 2, 3, 1, 9, 9, 9, 0];
+        let h = from_rgba16(&px);
+        assert_eq!(h.histogram.colours, vec![[1, 2, 3]]);
+        assert_eq!(h.histogram.counts, vec![2]);
+        assert_eq!(h.pixel_entry, vec![0, 0, TRANSPARENT]);
+    }
+
+    #[test]
+    fn merge_of_halves_equals_whole() {
+        let px: Vec<u8> = (0..4000u32).flat_map(|i| [(i % 7) as u8 * 30, (i % 5) as u8, 9, 255]).collect();
+        let whole = from_rgba8(&px).histogram;
+        let a = from_rgba8(&px[..1600]).histogram;
+        let b = from_rgba8(&px[1600..]).histogram;
+        assert_eq!(Histogram::merge(&[a, b]).unwrap(), whole);
+    }
+}

@@ -1,0 +1,25 @@
+//! chromasift: split images into a few colours or classes with perceptual k-means.
+//!
+//! The data path: decode ([`raster`]) → exact weighted histogram of distinct colours
+//! ([`histogram`]) → features in CIELAB or OKLab ([`colour`]) → weighted hard or soft
+//! k-means ([`cluster`]) → per-entry results → rendering ([`render`]) → outputs written
+//! to temporary files and renamed into place ([`output`]). The workflows ([`reduce`])
+//! tie these together; the binary is a thin layer over them.
+
+pub mod cli;
+pub mod cluster;
+pub mod colour;
+pub mod error;
+pub mod histogram;
+pub mod limits;
+pub mod output;
+pub mod raster;
+pub mod reduce;
+pub mod render;
+pub mod rng;
+
+pub use error::{Error, ParamsError, Result};
+pub use limits::Limits;
+
+/// The version written into every output document.
+pub const TOOL_VERSION: &str = env!("CARGO_PKG_VERSION");

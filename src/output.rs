@@ -1,0 +1,166 @@
+//! Outputs written safely: each to a temporary file in the target folder, all renamed
+//! into place only when every one of them was written; nothing partial is left behind.
+
+use crate::error::{Error, Result};
+use std::fs;
+use std::io::{BufWriter, Write};
+use std::path::{Path, PathBuf};
+use tempfile::NamedTempFile;
+
+/// Prefix of temporary files; a later run may remove stale ones.
+pub const TEMP_PREFIX: &str = ".chromasift-tmp-";
+
+/// A set of outputs in one folder, committed together.
+#[derive(Debug)]
+pub struct OutputSet {
+    dir: PathBuf,
+    created_dir: bool,
+    inputs: Vec<PathBuf>,
+    pending: Vec<(NamedTempFile, PathBuf)>,
+    committed: bool,
+}
+
+fn canonical(p: &Path) -> Option<PathBuf> {
+    fs::canonicalize(p).ok()
+}
+
+impl OutputSet {
+    /// Prepares `dir` for outputs: refuses a path that exists and is not a folder,
+    /// creates a missing folder (removed again if nothing is committed), and checks
+    /// that it is writable. `inputs` are files that must never be overwritten.
+    pub fn prepare(dir: &Path, inputs: &[&Path]) -> Result<Self> {
+        let dir = if dir.as_os_str().is_empty() { Path::new(".") } else { dir };
+        let mut created_dir = false;
+        match fs::metadata(dir) {
+            Ok(m) if m.is_dir() => {}
+            Ok(_) => return Err(Error::output(dir, "output path exists and is not a folder")),
+            Err(e) if e.kind() == std::io::ErrorKind::NotFound => {
+                fs::create_dir_all(dir)
+                    .map_err(|e| Error::output(dir, format!("cannot create output folder: {e}")))?;
+                created_dir = true;
+            }
+            Err(e) => return Err(Error::output(dir, format!("cannot use output folder: {e}"))),
+        }
+        let set = OutputSet {
+            dir: dir.to_path_buf(),
+            created_dir,
+            inputs: inputs.iter().filter_map(|p| canonical(p)).collect(),
+            pending: Vec::new(),
+            committed: false,
+        };
+        // Writability check: a temporary file that is removed at once.
+        NamedTempFile::with_prefix_in(TEMP_PREFIX, &set.dir)
+            .map_err(|e| Error::output(&set.dir, format!("output folder is not writable: {e}")))?;
+        Ok(set)
+    }
+
+    /// The output folder.
+    pub fn dir(&self) -> &Path {
+        &self.dir
+    }
+
+    /// Full path of an output named `name` in the folder.
+    pub fn path_of(&self, name: &str) -> PathBuf {
+        self.dir.join(name)
+    }
+
+    /// Checks that `name` may be written: not a folder, not one of the inputs.
+    pub fn check_target(&self, name: &str) -> Result<PathBuf> {
+        let target = self.path_of(name);
+        if let Ok(m) = fs::symlink_metadata(&target) {
+            if m.is_dir() {
+                return Err(Error::output(&target, "an output would replace a folder"));
+            }
+            if let Some(c) = canonical(&target) {
+                if self.inputs.contains(&c) {
+                    return Err(Error::output(&target, "this output would overwrite the input file"));
+                }
+            }
+        }
+        Ok(target)
+    }
+
+    /// Writes one output into a temporary file; it is renamed to `name` on commit.
+    pub fn write<F>(&mut self, name: &str, f: F) -> Result<PathBuf>
+    where
+        F: FnOnce(&mut BufWriter<&mut fs::File>) -> std::io::Result<()>,
+    {
+        let target = self.check_target(name)?;
+        let mut tmp = NamedTempFile::with_prefix_in(TEMP_PREFIX, &self.dir).map_err(|e| Error::io(&target, e))?;
+        {
+            let mut w = BufWriter::new(tmp.as_file_mut());
+            f(&mut w).map_err(|e| Error::io(&target, e))?;
+            w.flush().map_err(|e| Error::io(&target, e))?;
+        }
+        #[cfg(unix)]
+        {
+            use std::os::unix::fs::PermissionsExt;
+            // Temporary files are private (0600); outputs get ordinary file permissions.
+            tmp.as_file()
+                .set_permissions(fs::Permissions::from_mode(0o644))
+                .map_err(|e| Error::io(&target, e))?;
+        }
+        tmp.as_file().sync_data().map_err(|e| Error::io(&target, e))?;
+        self.pending.push((tmp, target.clone()));
+        Ok(target)
+    }
+
+    /// Writes a complete byte buffer as one output.
+    pub fn write_bytes(&mut self, name: &str, bytes: &[u8]) -> Result<PathBuf> {
+        self.write(name, |w| w.write_all(bytes))
+    }
+
+    /// Renames every pending output into place.
+    pub fn commit(mut self) -> Result<Vec<PathBuf>> {
+        let mut done = Vec::new();
+        for (tmp, target) in std::mem::take(&mut self.pending) {
+            tmp.persist(&target).map_err(|e| Error::io(&target, e.error))?;
+            done.push(target);
+        }
+        self.committed = true;
+        Ok(done)
+    }
+}
+
+impl Drop for OutputSet {
+    fn drop(&mut self) {
+        // Pending temporary files delete themselves; remove a folder we made for nothing.
+        self.pending.clear();
+        if self.created_dir && !self.committed {
+            let _ = fs::remove_dir(&self.dir);
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn nothing_lands_until_commit_and_nothing_stays_on_drop() {
+        let root = tempfile::tempdir().unwrap();
+        let dir = root.path().join("new");
+        {
+            let mut set = OutputSet::prepare(&dir, &[]).unwrap();
+            set.write_bytes("a.txt", b"hello").unwrap();
+            assert!(!dir.join("a.txt").exists());
+        }
+        assert!(!dir.exists(), "an uncommitted new folder is removed");
+        let mut set = OutputSet::prepare(&dir, &[]).unwrap();
+        set.write_bytes("a.txt", b"hello").unwrap();
+        set.commit().unwrap();
+        assert_eq!(fs::read(dir.join("a.txt")).unwrap(), b"hello");
+        assert_eq!(fs::read_dir(&dir).unwrap().count(), 1, "no temporary files remain");
+    }
+
+    #[test]
+    fn refuses_a_file_as_folder_and_the_input_as_output() {
+        let root = tempfile::tempdir().unwrap();
+        let file = root.path().join("f");
+        fs::write(&file, b"x").unwrap();
+        assert!(OutputSet::prepare(&file, &[]).is_err());
+        let set = OutputSet::prepare(root.path(), &[&file]).unwrap();
+        assert!(set.check_target("f").is_err());
+        assert!(set.check_target("g").is_ok());
+    }
+}

@@ -1,0 +1,261 @@
+//! Reading images through the decode limits, and writing PNG and TIFF outputs.
+
+use crate::error::{Error, Result};
+use crate::limits::Limits;
+use image::{ColorType, DynamicImage, ImageReader};
+use std::io::{Cursor, Read, Seek, Write};
+use std::path::Path;
+
+/// Decoded pixels, always RGBA.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Pixels {
+    /// 8 bits per sample, `4 × width × height` values.
+    Rgba8(Vec<u8>),
+    /// 16 bits per sample, `4 × width × height` values.
+    Rgba16(Vec<u16>),
+}
+
+/// A decoded image.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Decoded {
+    pub width: u32,
+    pub height: u32,
+    pub pixels: Pixels,
+    /// True when the source carried an alpha channel.
+    pub has_alpha: bool,
+}
+
+impl Decoded {
+    /// Number of pixels.
+    pub fn pixel_count(&self) -> usize {
+        self.width as usize * self.height as usize
+    }
+
+    /// Alpha of every pixel scaled to 8 bits.
+    pub fn alpha8(&self) -> Vec<u8> {
+        match &self.pixels {
+            Pixels::Rgba8(p) => p.chunks_exact(4).map(|c| c[3]).collect(),
+            Pixels::Rgba16(p) => p.chunks_exact(4).map(|c| ((c[3] as u32 + 128) / 257) as u8).collect(),
+        }
+    }
+
+    /// An 8-bit RGBA image from raw samples (for library callers and tests).
+    pub fn from_rgba8(width: u32, height: u32, rgba: Vec<u8>) -> Self {
+        assert_eq!(rgba.len(), width as usize * height as usize * 4, "RGBA buffer size");
+        let has_alpha = rgba.chunks_exact(4).any(|p| p[3] != 255);
+        Decoded {
+            width,
+            height,
+            pixels: Pixels::Rgba8(rgba),
+            has_alpha,
+        }
+    }
+}
+
+fn decode_error(path: &Path, e: image::ImageError) -> Error {
+    use image::ImageError as E;
+    let message = match e {
+        E::Limits(l) => {
+            return Error::LimitExceeded {
+                path: path.into(),
+                message: format!("refused before decoding: {l}"),
+            }
+        }
+        E::Unsupported(u) => format!("unsupported image: {u}"),
+        E::IoError(io) if io.kind() == std::io::ErrorKind::UnexpectedEof => {
+            "image data ends early (truncated file?)".to_string()
+        }
+        other => format!("cannot decode image: {other}"),
+    };
+    Error::Decode {
+        path: path.into(),
+        message,
+    }
+}
+
+/// Reads and decodes an image file, refusing over-limit images before any pixel
+/// buffer is allocated.
+pub fn decode(path: &Path, limits: &Limits) -> Result<Decoded> {
+    let mut file = std::fs::File::open(path).map_err(|source| Error::Open {
+        path: path.into(),
+        source,
+    })?;
+    let meta = file.metadata().map_err(|source| Error::Open {
+        path: path.into(),
+        source,
+    })?;
+    if meta.is_dir() {
+        return Err(Error::Decode {
+            path: path.into(),
+            message: "is a folder, not an image file".into(),
+        });
+    }
+    if meta.len() > limits.max_alloc {
+        return Err(Error::LimitExceeded {
+            path: path.into(),
+            message: format!("file is {} bytes, over the limit of {} bytes", meta.len(), limits.max_alloc),
+        });
+    }
+    let mut bytes = Vec::with_capacity(meta.len() as usize);
+    file.read_to_end(&mut bytes).map_err(|source| Error::Open {
+        path: path.into(),
+        source,
+    })?;
+    decode_bytes(&bytes, path, limits)
+}
+
+/// Decodes an image held in memory; `name` is used in messages.
+pub fn decode_bytes(bytes: &[u8], name: &Path, limits: &Limits) -> Result<Decoded> {
+    if bytes.is_empty() {
+        return Err(Error::Decode {
+            path: name.into(),
+            message: "file is empty".into(),
+        });
+    }
+    let reader = ImageReader::new(Cursor::new(bytes))
+        .with_guessed_format()
+        .map_err(|e| decode_error(name, e.into()))?;
+    if reader.format().is_none() {
+        return Err(Error::Decode {
+            path: name.into(),
+            message: "not an image in a format this tool reads (PNG, JPEG, TIFF, WebP, BMP, GIF)".into(),
+        });
+    }
+    // Header first: refuse over-limit images before the decoder allocates.
+    let (width, height) = reader.into_dimensions().map_err(|e| decode_error(name, e))?;
+    limits
+        .check_dimensions(width, height, 4, 1)
+        .map_err(|message| Error::LimitExceeded {
+            path: name.into(),
+            message,
+        })?;
+    let mut reader = ImageReader::new(Cursor::new(bytes))
+        .with_guessed_format()
+        .map_err(|e| decode_error(name, e.into()))?;
+    let mut il = image::Limits::default();
+    il.max_image_width = Some(width);
+    il.max_image_height = Some(height);
+    il.max_alloc = Some(limits.max_alloc);
+    reader.limits(il);
+    let img = reader.decode().map_err(|e| decode_error(name, e))?;
+    Ok(from_dynamic(img))
+}
+
+fn from_dynamic(img: DynamicImage) -> Decoded {
+    let (width, height) = (img.width(), img.height());
+    let colour = img.color();
+    let has_alpha = colour.has_alpha();
+    let deep = matches!(
+        colour,
+        ColorType::L16 | ColorType::La16 | ColorType::Rgb16 | ColorType::Rgba16 | ColorType::Rgb32F | ColorType::Rgba32F
+    );
+    let pixels = if deep {
+        Pixels::Rgba16(img.into_rgba16().into_raw())
+    } else {
+        Pixels::Rgba8(img.into_rgba8().into_raw())
+    };
+    Decoded {
+        width,
+        height,
+        pixels,
+        has_alpha,
+    }
+}
+
+fn png_error(e: png::EncodingError) -> std::io::Error {
+    match e {
+        png::EncodingError::IoError(io) => io,
+        other => std::io::Error::other(other.to_string()),
+    }
+}
+
+/// Writes an indexed (palette) PNG; `transparent` marks one palette index as fully
+/// transparent through a tRNS chunk.
+pub fn write_indexed_png<W: Write>(
+    w: W,
+    width: u32,
+    height: u32,
+    palette: &[[u8; 3]],
+    transparent: Option<u8>,
+    indices: &[u8],
+) -> std::io::Result<()> {
+    let mut enc = png::Encoder::new(w, width, height);
+    enc.set_color(png::ColorType::Indexed);
+    let bits = match palette.len() {
+        0..=2 => png::BitDepth::One,
+        3..=4 => png::BitDepth::Two,
+        5..=16 => png::BitDepth::Four,
+        _ => png::BitDepth::Eight,
+    };
+    enc.set_depth(bits);
+    enc.set_palette(palette.iter().flatten().copied().collect::<Vec<u8>>());
+    if let Some(t) = transparent {
+        let mut trns = vec![255u8; t as usize + 1];
+        trns[t as usize] = 0;
+        enc.set_trns(trns);
+    }
+    let mut writer = enc.write_header().map_err(png_error)?;
+    let per = match bits {
+        png::BitDepth::One => 8,
+        png::BitDepth::Two => 4,
+        png::BitDepth::Four => 2,
+        _ => 1,
+    };
+    let shift = 8 / per;
+    let row_bytes = (width as usize).div_ceil(per);
+    let mut packed = vec![0u8; row_bytes * height as usize];
+    for (y, row) in indices.chunks_exact(width as usize).enumerate() {
+        let out = &mut packed[y * row_bytes..(y + 1) * row_bytes];
+        for (x, &v) in row.iter().enumerate() {
+            let byte = x / per;
+            let pos = per - 1 - x % per;
+            out[byte] |= v << (pos * shift);
+        }
+    }
+    writer.write_image_data(&packed).map_err(png_error)?;
+    writer.finish().map_err(png_error)
+}
+
+/// Writes an 8-bit RGBA PNG.
+pub fn write_rgba_png<W: Write>(w: W, width: u32, height: u32, rgba: &[u8]) -> std::io::Result<()> {
+    let mut enc = png::Encoder::new(w, width, height);
+    enc.set_color(png::ColorType::Rgba);
+    enc.set_depth(png::BitDepth::Eight);
+    let mut writer = enc.write_header().map_err(png_error)?;
+    writer.write_image_data(rgba).map_err(png_error)?;
+    writer.finish().map_err(png_error)
+}
+
+/// Writes an 8-bit RGB PNG.
+pub fn write_rgb_png<W: Write>(w: W, width: u32, height: u32, rgb: &[u8]) -> std::io::Result<()> {
+    let mut enc = png::Encoder::new(w, width, height);
+    enc.set_color(png::ColorType::Rgb);
+    enc.set_depth(png::BitDepth::Eight);
+    let mut writer = enc.write_header().map_err(png_error)?;
+    writer.write_image_data(rgb).map_err(png_error)?;
+    writer.finish().map_err(png_error)
+}
+
+/// Writes an 8-bit greyscale PNG.
+pub fn write_grey_png<W: Write>(w: W, width: u32, height: u32, grey: &[u8]) -> std::io::Result<()> {
+    let mut enc = png::Encoder::new(w, width, height);
+    enc.set_color(png::ColorType::Grayscale);
+    enc.set_depth(png::BitDepth::Eight);
+    let mut writer = enc.write_header().map_err(png_error)?;
+    writer.write_image_data(grey).map_err(png_error)?;
+    writer.finish().map_err(png_error)
+}
+
+/// Writes a single-band 32-bit float TIFF.
+pub fn write_f32_tiff<W: Write + Seek>(w: W, width: u32, height: u32, data: &[f32]) -> std::io::Result<()> {
+    let mut enc = tiff::encoder::TiffEncoder::new(w).map_err(tiff_error)?;
+    enc.write_image::<tiff::encoder::colortype::Gray32Float>(width, height, data)
+        .map_err(tiff_error)
+}
+
+fn tiff_error(e: tiff::TiffError) -> std::io::Error {
+    match e {
+        tiff::TiffError::IoError(io) => io,
+        other => std::io::Error::other(other.to_string()),
+    }
+}

@@ -1,0 +1,495 @@
+//! The `reduce` workflow: an image to a K-colour palette chosen in CIELAB or OKLab,
+//! with CIEDE2000 scores and an uncertainty map.
+
+use crate::cluster::{fit, Beta, Dataset, KMeansParams, Mode};
+use crate::colour::{self, Space};
+use crate::error::{Error, Result};
+use crate::histogram::{self, IndexedHistogram};
+use crate::limits::Limits;
+use crate::output::OutputSet;
+use crate::raster::{self, Decoded, Pixels};
+use crate::render::{self, Dither, NO_INDEX};
+use rayon::prelude::*;
+use serde::{Deserialize, Serialize};
+use std::collections::HashMap;
+use std::path::{Path, PathBuf};
+use std::time::Instant;
+
+/// Settings of a reduction; defaults as documented on each field.
+#[derive(Debug, Clone, PartialEq)]
+pub struct ReduceOptions {
+    /// Colours wanted (at least 1). Default: 8.
+    pub k: usize,
+    /// Hard or soft k-means. Default: hard.
+    pub mode: Mode,
+    /// Soft sharpness, in 1/ΔE*ab² for CIELAB. Default: auto (1/σ² of the hard solution).
+    pub beta: Beta,
+    /// Clustering space. Default: CIELAB.
+    pub space: Space,
+    /// Seed. Default: [`crate::rng::DEFAULT_SEED`].
+    pub seed: u64,
+    /// k-means++ restarts, lowest SSE kept. Default: 1.
+    pub restarts: usize,
+    /// Iteration cap per phase. Default: 300.
+    pub max_iter: usize,
+    /// Relative objective change that ends the iterations. Default: 1e-6.
+    pub tolerance: f64,
+    /// Dithering of the reduced image. Default: none.
+    pub dither: Dither,
+    /// Decode limits.
+    pub limits: Limits,
+    /// Also write the float uncertainty TIFF. Default: false.
+    pub uncertainty_raw: bool,
+}
+
+impl ReduceOptions {
+    /// Defaults for `k` colours.
+    pub fn new(k: usize) -> Self {
+        let p = KMeansParams::new(k);
+        ReduceOptions {
+            k,
+            mode: p.mode,
+            beta: p.beta,
+            space: Space::Cielab,
+            seed: p.seed,
+            restarts: p.restarts,
+            max_iter: p.max_iter,
+            tolerance: p.tolerance,
+            dither: Dither::None,
+            limits: Limits::default(),
+            uncertainty_raw: false,
+        }
+    }
+
+    /// The clustering parameters these options imply.
+    pub fn kmeans_params(&self) -> KMeansParams {
+        KMeansParams::new(self.k)
+            .mode(self.mode)
+            .beta(self.beta)
+            .seed(self.seed)
+            .restarts(self.restarts)
+            .max_iter(self.max_iter)
+            .tolerance(self.tolerance)
+    }
+}
+
+/// One palette colour in the palette document.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct PaletteColour {
+    /// Position in the palette (also the index in the indexed PNG).
+    pub index: usize,
+    /// `#rrggbb`, the sRGB colour written to the reduced image.
+    pub hex: String,
+    /// CIELAB (D65) of that sRGB colour.
+    pub lab: [f64; 3],
+    /// Pixels that took this colour.
+    pub pixels: u64,
+    /// Fraction of the clustered (non-transparent) pixels.
+    pub share: f64,
+    /// Mean normalised entropy (0..1) of those pixels.
+    pub mean_uncertainty: f64,
+}
+
+/// Settings recorded so a result can be reproduced.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct ReduceSettings {
+    pub k_requested: usize,
+    pub beta_setting: String,
+    pub restarts: usize,
+    pub max_iter: usize,
+    pub tolerance: f64,
+    pub dither: String,
+}
+
+/// The palette document (`STEM.palette.json`).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct PaletteDocument {
+    pub tool_version: String,
+    /// Input file name, when there was one.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub input: Option<String>,
+    pub space: Space,
+    pub mode: Mode,
+    /// Colours actually returned.
+    pub k: usize,
+    /// β used (1/ΔE*ab² in CIELAB, 1/OKLab-unit² in OKLab); null when infinite
+    /// (every colour sits on a palette mean).
+    pub beta: Option<f64>,
+    pub seed: u64,
+    pub iterations: usize,
+    /// k-means objective: Σ over clustered pixels of the squared distance, in the
+    /// clustering space, to the nearest final mean (scikit-learn's `inertia_`).
+    pub sse: f64,
+    /// Mean CIE76 ΔE*ab between each source pixel and its reduced pixel.
+    pub mean_delta_e76: f64,
+    /// Mean CIEDE2000 between each source pixel and its reduced pixel.
+    pub mean_delta_e2000: f64,
+    pub colors: Vec<PaletteColour>,
+    pub settings: ReduceSettings,
+}
+
+/// An image reduced in memory, ready to be written.
+#[derive(Debug, Clone)]
+pub struct Reduction {
+    pub width: u32,
+    pub height: u32,
+    /// Palette colours, most used first.
+    pub palette: Vec<[u8; 3]>,
+    /// Palette index of every pixel ([`NO_INDEX`] where alpha = 0).
+    pub pixel_index: Vec<u16>,
+    /// Source alpha (8-bit), when the source had any alpha below 255.
+    pub alpha: Option<Vec<u8>>,
+    /// Histogram entry of every pixel, and each entry's normalised entropy.
+    pub pixel_entry: Vec<u32>,
+    pub entry_uncertainty: Vec<f32>,
+    pub document: PaletteDocument,
+    /// Remarks for the user (e.g. fewer distinct colours than K).
+    pub notes: Vec<String>,
+}
+
+/// Features of each histogram entry in `space` (f32 rows) and CIELAB (for ΔE).
+pub fn entry_features(h: &histogram::Histogram, space: Space) -> (Vec<f32>, Vec<[f64; 3]>) {
+    let per: Vec<([f32; 3], [f64; 3])> = h
+        .colours
+        .par_iter()
+        .with_min_len(4096)
+        .map(|c| {
+            let lin = if h.depth == 8 {
+                colour::srgb8_to_linear([c[0] as u8, c[1] as u8, c[2] as u8])
+            } else {
+                colour::srgb16_to_linear(*c)
+            };
+            let lab = colour::linear_to_lab(lin);
+            let f = match space {
+                Space::Cielab => lab,
+                Space::Oklab => colour::linear_to_oklab(lin),
+            };
+            ([f[0] as f32, f[1] as f32, f[2] as f32], lab)
+        })
+        .collect();
+    let mut rows = Vec::with_capacity(per.len() * 3);
+    let mut labs = Vec::with_capacity(per.len());
+    for (f, l) in per {
+        rows.extend_from_slice(&f);
+        labs.push(l);
+    }
+    (rows, labs)
+}
+
+/// Reduces a decoded image. Fails only on parameters or an image with no opaque pixel.
+pub fn reduce_image(img: &Decoded, opts: &ReduceOptions) -> Result<Reduction> {
+    let params = opts.kmeans_params().check()?;
+    let IndexedHistogram {
+        histogram: hist,
+        pixel_entry,
+    } = match &img.pixels {
+        Pixels::Rgba8(p) => histogram::from_rgba8(p),
+        Pixels::Rgba16(p) => histogram::from_rgba16(p),
+    };
+    if hist.is_empty() {
+        return Err(Error::Data("every pixel is fully transparent; there is nothing to reduce".into()));
+    }
+    let weights = hist.weights();
+    let (rows, labs) = entry_features(&hist, opts.space);
+    let data = Dataset::new(&rows, 3, Some(&weights))?;
+    let mut notes = Vec::new();
+
+    // Means in the clustering space, their β, SSE, iterations and per-entry results.
+    let (means, beta, sse, iterations, labels, entropy) = if hist.len() <= opts.k {
+        if hist.len() < opts.k {
+            notes.push(format!(
+                "the image has only {} distinct colours; returning them all instead of {}",
+                hist.len(),
+                opts.k
+            ));
+        }
+        let means: Vec<f64> = rows.iter().map(|&v| v as f64).collect();
+        let labels: Vec<u32> = (0..hist.len() as u32).collect();
+        (means, None, 0.0, 0, labels, vec![0.0f32; hist.len()])
+    } else {
+        let model = fit(&data, &params)?;
+        let a = model.assign(&data);
+        (model.means.clone(), model.beta, model.sse, model.iterations(), a.labels, a.entropy)
+    };
+
+    // Quantise the means to sRGB8; clusters that land on the same colour share a slot.
+    let k_means = means.len() / 3;
+    let mut slot_of_colour: HashMap<[u8; 3], u16> = HashMap::new();
+    let mut slots: Vec<[u8; 3]> = Vec::new();
+    let cluster_slot: Vec<u16> = (0..k_means)
+        .map(|j| {
+            let c = colour::space_to_srgb8([means[j * 3], means[j * 3 + 1], means[j * 3 + 2]], opts.space);
+            *slot_of_colour.entry(c).or_insert_with(|| {
+                slots.push(c);
+                (slots.len() - 1) as u16
+            })
+        })
+        .collect();
+    let slot_lab: Vec<[f64; 3]> = slots.iter().map(|&c| colour::srgb8_to_lab(c)).collect();
+    let slot_feat: Vec<f32> = slots
+        .iter()
+        .flat_map(|&c| {
+            let f = colour::linear_to_space(colour::srgb8_to_linear(c), opts.space);
+            [f[0] as f32, f[1] as f32, f[2] as f32]
+        })
+        .collect();
+    let entry_slot: Vec<u16> = labels.iter().map(|&l| cluster_slot[l as usize]).collect();
+
+    let pixel_slot = match opts.dither {
+        Dither::None => render::remap(&pixel_entry, &entry_slot),
+        Dither::FloydSteinberg => {
+            render::dither_floyd_steinberg(img.width as usize, &pixel_entry, &rows, &slot_feat, 3)
+        }
+    };
+
+    // Per-slot statistics, summed in a fixed order.
+    let n_slots = slots.len();
+    let mut pixels = vec![0u64; n_slots];
+    let mut unc_sum = vec![0.0f64; n_slots];
+    let (de76, de2000) = match opts.dither {
+        Dither::None => {
+            let per_entry: Vec<(f64, f64)> = (0..hist.len())
+                .into_par_iter()
+                .with_min_len(4096)
+                .map(|e| {
+                    let s = entry_slot[e] as usize;
+                    (colour::delta_e76(labs[e], slot_lab[s]), colour::delta_e2000(labs[e], slot_lab[s]))
+                })
+                .collect();
+            let (mut a, mut b) = (0.0, 0.0);
+            for (e, (d76, d00)) in per_entry.iter().enumerate() {
+                let w = weights[e];
+                let s = entry_slot[e] as usize;
+                pixels[s] += hist.counts[e];
+                unc_sum[s] += w * entropy[e] as f64;
+                a += w * d76;
+                b += w * d00;
+            }
+            (a, b)
+        }
+        Dither::FloydSteinberg => {
+            let parts: Vec<(Vec<u64>, Vec<f64>, f64, f64)> = pixel_entry
+                .par_chunks(1 << 16)
+                .zip(pixel_slot.par_chunks(1 << 16))
+                .map(|(es, ss)| {
+                    let mut px = vec![0u64; n_slots];
+                    let mut un = vec![0.0f64; n_slots];
+                    let (mut a, mut b) = (0.0, 0.0);
+                    for (&e, &s) in es.iter().zip(ss) {
+                        if s == NO_INDEX {
+                            continue;
+                        }
+                        let (e, s) = (e as usize, s as usize);
+                        px[s] += 1;
+                        un[s] += entropy[e] as f64;
+                        a += colour::delta_e76(labs[e], slot_lab[s]);
+                        b += colour::delta_e2000(labs[e], slot_lab[s]);
+                    }
+                    (px, un, a, b)
+                })
+                .collect();
+            let (mut a, mut b) = (0.0, 0.0);
+            for (px, un, pa, pb) in parts {
+                for s in 0..n_slots {
+                    pixels[s] += px[s];
+                    unc_sum[s] += un[s];
+                }
+                a += pa;
+                b += pb;
+            }
+            (a, b)
+        }
+    };
+    let total = hist.total() as f64;
+
+    // Order: most pixels first (ties: earlier slot); unused slots are dropped.
+    let mut order: Vec<usize> = (0..n_slots).filter(|&s| pixels[s] > 0).collect();
+    order.sort_by(|&a, &b| pixels[b].cmp(&pixels[a]).then(a.cmp(&b)));
+    let mut new_index = vec![NO_INDEX; n_slots];
+    for (i, &s) in order.iter().enumerate() {
+        new_index[s] = i as u16;
+    }
+    let pixel_index: Vec<u16> = pixel_slot
+        .par_iter()
+        .with_min_len(1 << 14)
+        .map(|&s| if s == NO_INDEX { NO_INDEX } else { new_index[s as usize] })
+        .collect();
+    let palette: Vec<[u8; 3]> = order.iter().map(|&s| slots[s]).collect();
+    let colors: Vec<PaletteColour> = order
+        .iter()
+        .enumerate()
+        .map(|(i, &s)| PaletteColour {
+            index: i,
+            hex: colour::hex(slots[s]),
+            lab: slot_lab[s],
+            pixels: pixels[s],
+            share: pixels[s] as f64 / total,
+            mean_uncertainty: unc_sum[s] / pixels[s] as f64,
+        })
+        .collect();
+
+    let alpha = if img.has_alpha {
+        let a = img.alpha8();
+        a.iter().any(|&v| v != 255).then_some(a)
+    } else {
+        None
+    };
+    let document = PaletteDocument {
+        tool_version: crate::TOOL_VERSION.to_string(),
+        input: None,
+        space: opts.space,
+        mode: opts.mode,
+        k: palette.len(),
+        beta,
+        seed: opts.seed,
+        iterations,
+        sse,
+        mean_delta_e76: de76 / total,
+        mean_delta_e2000: de2000 / total,
+        colors,
+        settings: ReduceSettings {
+            k_requested: opts.k,
+            beta_setting: match opts.beta {
+                Beta::Auto => "auto".into(),
+                Beta::Fixed(b) => b.to_string(),
+            },
+            restarts: opts.restarts,
+            max_iter: opts.max_iter,
+            tolerance: opts.tolerance,
+            dither: opts.dither.name().into(),
+        },
+    };
+    Ok(Reduction {
+        width: img.width,
+        height: img.height,
+        palette,
+        pixel_index,
+        alpha,
+        pixel_entry,
+        entry_uncertainty: entropy,
+        document,
+        notes,
+    })
+}
+
+/// Output file names for a given stem (exact names other tools read).
+pub fn output_names(stem: &str) -> [String; 5] {
+    [
+        format!("{stem}.reduced.png"),
+        format!("{stem}.palette.json"),
+        format!("{stem}.palette.csv"),
+        format!("{stem}.uncertainty.png"),
+        format!("{stem}.uncertainty.tif"),
+    ]
+}
+
+/// The palette rows as CSV with a header.
+pub fn palette_csv(doc: &PaletteDocument) -> String {
+    let mut s = String::from("index,hex,L,a,b,pixels,share,mean_uncertainty\n");
+    for c in &doc.colors {
+        s.push_str(&format!(
+            "{},{},{:.4},{:.4},{:.4},{},{:.6},{:.6}\n",
+            c.index, c.hex, c.lab[0], c.lab[1], c.lab[2], c.pixels, c.share, c.mean_uncertainty
+        ));
+    }
+    s
+}
+
+/// Encodes the reduced image: indexed PNG when the palette (plus one transparent entry
+/// if needed) fits in 256 entries and alpha is only 0 or 255; RGBA PNG otherwise.
+pub fn encode_reduced(red: &Reduction, w: &mut impl std::io::Write) -> std::io::Result<()> {
+    let binary_alpha = red.alpha.as_ref().is_none_or(|a| a.iter().all(|&v| v == 0 || v == 255));
+    let has_transparent = red.pixel_index.contains(&NO_INDEX);
+    let entries = red.palette.len() + has_transparent as usize;
+    if binary_alpha && entries <= 256 {
+        let t = red.palette.len() as u16;
+        let mut pal = red.palette.clone();
+        if has_transparent {
+            pal.push([0, 0, 0]);
+        }
+        let idx: Vec<u8> = red
+            .pixel_index
+            .iter()
+            .map(|&i| if i == NO_INDEX { t as u8 } else { i as u8 })
+            .collect();
+        raster::write_indexed_png(w, red.width, red.height, &pal, has_transparent.then_some(t as u8), &idx)
+    } else {
+        let mut rgba = vec![0u8; red.pixel_index.len() * 4];
+        rgba.par_chunks_mut(4).enumerate().for_each(|(p, px)| {
+            let i = red.pixel_index[p];
+            if i != NO_INDEX {
+                let c = red.palette[i as usize];
+                px[..3].copy_from_slice(&c);
+                px[3] = red.alpha.as_ref().map_or(255, |a| a[p]);
+            }
+        });
+        raster::write_rgba_png(w, red.width, red.height, &rgba)
+    }
+}
+
+/// Writes every output of a reduction into `set` (not yet committed).
+pub fn write_reduction(red: &Reduction, stem: &str, set: &mut OutputSet, uncertainty_raw: bool) -> Result<Vec<PathBuf>> {
+    let names = output_names(stem);
+    let mut written = Vec::new();
+    written.push(set.write(&names[0], |w| encode_reduced(red, w))?);
+    let json = serde_json::to_string_pretty(&red.document).expect("palette document serialises");
+    written.push(set.write_bytes(&names[1], format!("{json}\n").as_bytes())?);
+    written.push(set.write_bytes(&names[2], palette_csv(&red.document).as_bytes())?);
+    let grey = render::uncertainty_u8(&red.pixel_entry, &red.entry_uncertainty);
+    written.push(set.write(&names[3], |w| raster::write_grey_png(w, red.width, red.height, &grey))?);
+    if uncertainty_raw {
+        let f = render::uncertainty_f32(&red.pixel_entry, &red.entry_uncertainty);
+        written.push(set.write(&names[4], |w| raster::write_f32_tiff(w, red.width, red.height, &f))?);
+    }
+    Ok(written)
+}
+
+/// What [`reduce_file`] did.
+#[derive(Debug, Clone)]
+pub struct ReduceReport {
+    pub input: PathBuf,
+    pub outputs: Vec<PathBuf>,
+    pub document: PaletteDocument,
+    pub notes: Vec<String>,
+    pub seconds: f64,
+}
+
+/// The file name without its extension, used to name outputs.
+pub fn stem_of(input: &Path) -> Result<String> {
+    input
+        .file_stem()
+        .and_then(|s| s.to_str())
+        .filter(|s| !s.is_empty())
+        .map(str::to_string)
+        .ok_or_else(|| Error::output(input, "cannot derive an output name from this file name"))
+}
+
+/// Reads `input`, reduces it and writes all outputs into `out_dir` atomically.
+pub fn reduce_file(input: &Path, out_dir: &Path, opts: &ReduceOptions) -> Result<ReduceReport> {
+    let t0 = Instant::now();
+    opts.kmeans_params().check()?;
+    let stem = stem_of(input)?;
+    let img = raster::decode(input, &opts.limits)?;
+    let mut set = OutputSet::prepare(out_dir, &[input])?;
+    for name in output_names(&stem) {
+        set.check_target(&name)?;
+    }
+    let mut red = reduce_image(&img, opts).map_err(|e| match e {
+        Error::Data(message) => Error::InputData {
+            path: input.into(),
+            message,
+        },
+        other => other,
+    })?;
+    drop(img);
+    red.document.input = input.file_name().map(|n| n.to_string_lossy().into_owned());
+    write_reduction(&red, &stem, &mut set, opts.uncertainty_raw)?;
+    let outputs = set.commit()?;
+    Ok(ReduceReport {
+        input: input.into(),
+        outputs,
+        document: red.document,
+        notes: red.notes,
+        seconds: t0.elapsed().as_secs_f64(),
+    })
+}
