@@ -58,7 +58,7 @@ pub struct ReduceArgs {
 
     /// Sharpness of the soft assignment in 1/ΔE*ab² (CIELAB) or 1/OKLab-unit² (OKLab),
     /// or `auto` for 1/σ² with σ² the pooled within-cluster variance of the hard solution.
-    #[arg(long, default_value = "auto", value_name = "NUMBER|auto")]
+    #[arg(long, default_value = "auto", value_name = "NUMBER|auto", allow_hyphen_values = true)]
     pub beta: Beta,
 
     /// Space the colours are chosen in.
