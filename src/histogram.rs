@@ -65,7 +65,11 @@ impl Histogram {
                 counts.push(n);
             }
         }
-        Some(Histogram { depth, colours, counts })
+        Some(Histogram {
+            depth,
+            colours,
+            counts,
+        })
     }
 }
 
@@ -94,7 +98,11 @@ pub fn from_rgba8(rgba: &[u8]) -> IndexedHistogram {
             let key = wi << 6 | b;
             counts.push(table[key] as u64);
             table[key] = colours.len() as u32;
-            colours.push([(key >> 16) as u16, ((key >> 8) & 255) as u16, (key & 255) as u16]);
+            colours.push([
+                (key >> 16) as u16,
+                ((key >> 8) & 255) as u16,
+                (key & 255) as u16,
+            ]);
         }
     }
     let mut pixel_entry = vec![0u32; rgba.len() / 4];
@@ -111,7 +119,11 @@ pub fn from_rgba8(rgba: &[u8]) -> IndexedHistogram {
             }
         });
     IndexedHistogram {
-        histogram: Histogram { depth: 8, colours, counts },
+        histogram: Histogram {
+            depth: 8,
+            colours,
+            counts,
+        },
         pixel_entry,
     }
 }
@@ -120,7 +132,11 @@ pub fn from_rgba8(rgba: &[u8]) -> IndexedHistogram {
 /// Exact (sort and count); distinct colours are often nearly as many as pixels.
 pub fn from_rgba16(rgba: &[u16]) -> IndexedHistogram {
     let key = |p: &[u16]| (p[0] as u64) << 32 | (p[1] as u64) << 16 | p[2] as u64;
-    let mut keys: Vec<u64> = rgba.par_chunks_exact(4).filter(|p| p[3] != 0).map(key).collect();
+    let mut keys: Vec<u64> = rgba
+        .par_chunks_exact(4)
+        .filter(|p| p[3] != 0)
+        .map(key)
+        .collect();
     keys.par_sort_unstable();
     let mut uniq: Vec<u64> = Vec::new();
     let mut counts: Vec<u64> = Vec::new();
@@ -144,10 +160,20 @@ pub fn from_rgba16(rgba: &[u16]) -> IndexedHistogram {
         .collect();
     let colours = uniq
         .iter()
-        .map(|&k| [(k >> 32) as u16, ((k >> 16) & 0xffff) as u16, (k & 0xffff) as u16])
+        .map(|&k| {
+            [
+                (k >> 32) as u16,
+                ((k >> 16) & 0xffff) as u16,
+                (k & 0xffff) as u16,
+            ]
+        })
         .collect();
     IndexedHistogram {
-        histogram: Histogram { depth: 16, colours, counts },
+        histogram: Histogram {
+            depth: 16,
+            colours,
+            counts,
+        },
         pixel_entry,
     }
 }
@@ -178,7 +204,9 @@ mod tests {
 
     #[test]
     fn merge_of_halves_equals_whole() {
-        let px: Vec<u8> = (0..4000u32).flat_map(|i| [(i % 7) as u8 * 30, (i % 5) as u8, 9, 255]).collect();
+        let px: Vec<u8> = (0..4000u32)
+            .flat_map(|i| [(i % 7) as u8 * 30, (i % 5) as u8, 9, 255])
+            .collect();
         let whole = from_rgba8(&px).histogram;
         let a = from_rgba8(&px[..1600]).histogram;
         let b = from_rgba8(&px[1600..]).histogram;

@@ -39,7 +39,13 @@ impl Limits {
     }
 
     /// Checks a declared size; returns a message when it is over the limit.
-    pub fn check_dimensions(&self, width: u32, height: u32, channels: u32, bytes_per_sample: u32) -> Result<(), String> {
+    pub fn check_dimensions(
+        &self,
+        width: u32,
+        height: u32,
+        channels: u32,
+        bytes_per_sample: u32,
+    ) -> Result<(), String> {
         let pixels = width as u64 * height as u64;
         if width == 0 || height == 0 {
             return Err(format!("image has no pixels ({width} x {height})"));

@@ -27,7 +27,11 @@ fn main() -> ExitCode {
             }
             // One line: clap's first line without its own prefix.
             let text = e.to_string();
-            let first = text.lines().next().unwrap_or("").trim_start_matches("error: ");
+            let first = text
+                .lines()
+                .next()
+                .unwrap_or("")
+                .trim_start_matches("error: ");
             return fail(format!("{first} (see --help)"));
         }
     };
@@ -51,7 +55,11 @@ fn main() -> ExitCode {
                     );
                     if args.json {
                         let mut out = std::io::stdout().lock();
-                        let _ = writeln!(out, "{}", serde_json::to_string_pretty(d).expect("document serialises"));
+                        let _ = writeln!(
+                            out,
+                            "{}",
+                            serde_json::to_string_pretty(d).expect("document serialises")
+                        );
                     }
                     ExitCode::SUCCESS
                 }

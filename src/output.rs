@@ -29,7 +29,11 @@ impl OutputSet {
     /// creates a missing folder (removed again if nothing is committed), and checks
     /// that it is writable. `inputs` are files that must never be overwritten.
     pub fn prepare(dir: &Path, inputs: &[&Path]) -> Result<Self> {
-        let dir = if dir.as_os_str().is_empty() { Path::new(".") } else { dir };
+        let dir = if dir.as_os_str().is_empty() {
+            Path::new(".")
+        } else {
+            dir
+        };
         let mut created_dir = false;
         match fs::metadata(dir) {
             Ok(m) if m.is_dir() => {}
@@ -73,7 +77,10 @@ impl OutputSet {
             }
             if let Some(c) = canonical(&target) {
                 if self.inputs.contains(&c) {
-                    return Err(Error::output(&target, "this output would overwrite the input file"));
+                    return Err(Error::output(
+                        &target,
+                        "this output would overwrite the input file",
+                    ));
                 }
             }
         }
@@ -86,7 +93,8 @@ impl OutputSet {
         F: FnOnce(&mut BufWriter<&mut fs::File>) -> std::io::Result<()>,
     {
         let target = self.check_target(name)?;
-        let mut tmp = NamedTempFile::with_prefix_in(TEMP_PREFIX, &self.dir).map_err(|e| Error::io(&target, e))?;
+        let mut tmp = NamedTempFile::with_prefix_in(TEMP_PREFIX, &self.dir)
+            .map_err(|e| Error::io(&target, e))?;
         {
             let mut w = BufWriter::new(tmp.as_file_mut());
             f(&mut w).map_err(|e| Error::io(&target, e))?;
@@ -100,7 +108,9 @@ impl OutputSet {
                 .set_permissions(fs::Permissions::from_mode(0o644))
                 .map_err(|e| Error::io(&target, e))?;
         }
-        tmp.as_file().sync_data().map_err(|e| Error::io(&target, e))?;
+        tmp.as_file()
+            .sync_data()
+            .map_err(|e| Error::io(&target, e))?;
         self.pending.push((tmp, target.clone()));
         Ok(target)
     }
@@ -114,7 +124,8 @@ impl OutputSet {
     pub fn commit(mut self) -> Result<Vec<PathBuf>> {
         let mut done = Vec::new();
         for (tmp, target) in std::mem::take(&mut self.pending) {
-            tmp.persist(&target).map_err(|e| Error::io(&target, e.error))?;
+            tmp.persist(&target)
+                .map_err(|e| Error::io(&target, e.error))?;
             done.push(target);
         }
         self.committed = true;
@@ -150,7 +161,11 @@ mod tests {
         set.write_bytes("a.txt", b"hello").unwrap();
         set.commit().unwrap();
         assert_eq!(fs::read(dir.join("a.txt")).unwrap(), b"hello");
-        assert_eq!(fs::read_dir(&dir).unwrap().count(), 1, "no temporary files remain");
+        assert_eq!(
+            fs::read_dir(&dir).unwrap().count(),
+            1,
+            "no temporary files remain"
+        );
     }
 
     #[test]

@@ -35,13 +35,20 @@ impl Decoded {
     pub fn alpha8(&self) -> Vec<u8> {
         match &self.pixels {
             Pixels::Rgba8(p) => p.chunks_exact(4).map(|c| c[3]).collect(),
-            Pixels::Rgba16(p) => p.chunks_exact(4).map(|c| ((c[3] as u32 + 128) / 257) as u8).collect(),
+            Pixels::Rgba16(p) => p
+                .chunks_exact(4)
+                .map(|c| ((c[3] as u32 + 128) / 257) as u8)
+                .collect(),
         }
     }
 
     /// An 8-bit RGBA image from raw samples (for library callers and tests).
     pub fn from_rgba8(width: u32, height: u32, rgba: Vec<u8>) -> Self {
-        assert_eq!(rgba.len(), width as usize * height as usize * 4, "RGBA buffer size");
+        assert_eq!(
+            rgba.len(),
+            width as usize * height as usize * 4,
+            "RGBA buffer size"
+        );
         let has_alpha = rgba.chunks_exact(4).any(|p| p[3] != 255);
         Decoded {
             width,
@@ -93,7 +100,11 @@ pub fn decode(path: &Path, limits: &Limits) -> Result<Decoded> {
     if meta.len() > limits.max_alloc {
         return Err(Error::LimitExceeded {
             path: path.into(),
-            message: format!("file is {} bytes, over the limit of {} bytes", meta.len(), limits.max_alloc),
+            message: format!(
+                "file is {} bytes, over the limit of {} bytes",
+                meta.len(),
+                limits.max_alloc
+            ),
         });
     }
     let mut bytes = Vec::with_capacity(meta.len() as usize);
@@ -118,11 +129,14 @@ pub fn decode_bytes(bytes: &[u8], name: &Path, limits: &Limits) -> Result<Decode
     if reader.format().is_none() {
         return Err(Error::Decode {
             path: name.into(),
-            message: "not an image in a format this tool reads (PNG, JPEG, TIFF, WebP, BMP, GIF)".into(),
+            message: "not an image in a format this tool reads (PNG, JPEG, TIFF, WebP, BMP, GIF)"
+                .into(),
         });
     }
     // Header first: refuse over-limit images before the decoder allocates.
-    let (width, height) = reader.into_dimensions().map_err(|e| decode_error(name, e))?;
+    let (width, height) = reader
+        .into_dimensions()
+        .map_err(|e| decode_error(name, e))?;
     limits
         .check_dimensions(width, height, 4, 1)
         .map_err(|message| Error::LimitExceeded {
@@ -147,7 +161,12 @@ fn from_dynamic(img: DynamicImage) -> Decoded {
     let has_alpha = colour.has_alpha();
     let deep = matches!(
         colour,
-        ColorType::L16 | ColorType::La16 | ColorType::Rgb16 | ColorType::Rgba16 | ColorType::Rgb32F | ColorType::Rgba32F
+        ColorType::L16
+            | ColorType::La16
+            | ColorType::Rgb16
+            | ColorType::Rgba16
+            | ColorType::Rgb32F
+            | ColorType::Rgba32F
     );
     let pixels = if deep {
         Pixels::Rgba16(img.into_rgba16().into_raw())
@@ -247,7 +266,12 @@ pub fn write_grey_png<W: Write>(w: W, width: u32, height: u32, grey: &[u8]) -> s
 }
 
 /// Writes a single-band 32-bit float TIFF.
-pub fn write_f32_tiff<W: Write + Seek>(w: W, width: u32, height: u32, data: &[f32]) -> std::io::Result<()> {
+pub fn write_f32_tiff<W: Write + Seek>(
+    w: W,
+    width: u32,
+    height: u32,
+    data: &[f32],
+) -> std::io::Result<()> {
     let mut enc = tiff::encoder::TiffEncoder::new(w).map_err(tiff_error)?;
     enc.write_image::<tiff::encoder::colortype::Gray32Float>(width, height, data)
         .map_err(tiff_error)

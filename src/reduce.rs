@@ -187,7 +187,9 @@ pub fn reduce_image(img: &Decoded, opts: &ReduceOptions) -> Result<Reduction> {
         Pixels::Rgba16(p) => histogram::from_rgba16(p),
     };
     if hist.is_empty() {
-        return Err(Error::Data("every pixel is fully transparent; there is nothing to reduce".into()));
+        return Err(Error::Data(
+            "every pixel is fully transparent; there is nothing to reduce".into(),
+        ));
     }
     let weights = hist.weights();
     let (rows, labs) = entry_features(&hist, opts.space);
@@ -209,7 +211,14 @@ pub fn reduce_image(img: &Decoded, opts: &ReduceOptions) -> Result<Reduction> {
     } else {
         let model = fit(&data, &params)?;
         let a = model.assign(&data);
-        (model.means.clone(), model.beta, model.sse, model.iterations(), a.labels, a.entropy)
+        (
+            model.means.clone(),
+            model.beta,
+            model.sse,
+            model.iterations(),
+            a.labels,
+            a.entropy,
+        )
     };
 
     // Quantise the means to sRGB8; clusters that land on the same colour share a slot.
@@ -218,7 +227,10 @@ pub fn reduce_image(img: &Decoded, opts: &ReduceOptions) -> Result<Reduction> {
     let mut slots: Vec<[u8; 3]> = Vec::new();
     let cluster_slot: Vec<u16> = (0..k_means)
         .map(|j| {
-            let c = colour::space_to_srgb8([means[j * 3], means[j * 3 + 1], means[j * 3 + 2]], opts.space);
+            let c = colour::space_to_srgb8(
+                [means[j * 3], means[j * 3 + 1], means[j * 3 + 2]],
+                opts.space,
+            );
             *slot_of_colour.entry(c).or_insert_with(|| {
                 slots.push(c);
                 (slots.len() - 1) as u16
@@ -253,7 +265,10 @@ pub fn reduce_image(img: &Decoded, opts: &ReduceOptions) -> Result<Reduction> {
                 .with_min_len(4096)
                 .map(|e| {
                     let s = entry_slot[e] as usize;
-                    (colour::delta_e76(labs[e], slot_lab[s]), colour::delta_e2000(labs[e], slot_lab[s]))
+                    (
+                        colour::delta_e76(labs[e], slot_lab[s]),
+                        colour::delta_e2000(labs[e], slot_lab[s]),
+                    )
                 })
                 .collect();
             let (mut a, mut b) = (0.0, 0.0);
@@ -312,7 +327,13 @@ pub fn reduce_image(img: &Decoded, opts: &ReduceOptions) -> Result<Reduction> {
     let pixel_index: Vec<u16> = pixel_slot
         .par_iter()
         .with_min_len(1 << 14)
-        .map(|&s| if s == NO_INDEX { NO_INDEX } else { new_index[s as usize] })
+        .map(|&s| {
+            if s == NO_INDEX {
+                NO_INDEX
+            } else {
+                new_index[s as usize]
+            }
+        })
         .collect();
     let palette: Vec<[u8; 3]> = order.iter().map(|&s| slots[s]).collect();
     let colors: Vec<PaletteColour> = order
@@ -398,7 +419,10 @@ pub fn palette_csv(doc: &PaletteDocument) -> String {
 /// Encodes the reduced image: indexed PNG when the palette (plus one transparent entry
 /// if needed) fits in 256 entries and alpha is only 0 or 255; RGBA PNG otherwise.
 pub fn encode_reduced(red: &Reduction, w: &mut impl std::io::Write) -> std::io::Result<()> {
-    let binary_alpha = red.alpha.as_ref().is_none_or(|a| a.iter().all(|&v| v == 0 || v == 255));
+    let binary_alpha = red
+        .alpha
+        .as_ref()
+        .is_none_or(|a| a.iter().all(|&v| v == 0 || v == 255));
     let has_transparent = red.pixel_index.contains(&NO_INDEX);
     let entries = red.palette.len() + has_transparent as usize;
     if binary_alpha && entries <= 256 {
@@ -412,7 +436,14 @@ pub fn encode_reduced(red: &Reduction, w: &mut impl std::io::Write) -> std::io::
             .iter()
             .map(|&i| if i == NO_INDEX { t as u8 } else { i as u8 })
             .collect();
-        raster::write_indexed_png(w, red.width, red.height, &pal, has_transparent.then_some(t as u8), &idx)
+        raster::write_indexed_png(
+            w,
+            red.width,
+            red.height,
+            &pal,
+            has_transparent.then_some(t as u8),
+            &idx,
+        )
     } else {
         let mut rgba = vec![0u8; red.pixel_index.len() * 4];
         rgba.par_chunks_mut(4).enumerate().for_each(|(p, px)| {
@@ -428,7 +459,12 @@ pub fn encode_reduced(red: &Reduction, w: &mut impl std::io::Write) -> std::io::
 }
 
 /// Writes every output of a reduction into `set` (not yet committed).
-pub fn write_reduction(red: &Reduction, stem: &str, set: &mut OutputSet, uncertainty_raw: bool) -> Result<Vec<PathBuf>> {
+pub fn write_reduction(
+    red: &Reduction,
+    stem: &str,
+    set: &mut OutputSet,
+    uncertainty_raw: bool,
+) -> Result<Vec<PathBuf>> {
     let names = output_names(stem);
     let mut written = Vec::new();
     written.push(set.write(&names[0], |w| encode_reduced(red, w))?);
@@ -436,10 +472,14 @@ pub fn write_reduction(red: &Reduction, stem: &str, set: &mut OutputSet, uncerta
     written.push(set.write_bytes(&names[1], format!("{json}\n").as_bytes())?);
     written.push(set.write_bytes(&names[2], palette_csv(&red.document).as_bytes())?);
     let grey = render::uncertainty_u8(&red.pixel_entry, &red.entry_uncertainty);
-    written.push(set.write(&names[3], |w| raster::write_grey_png(w, red.width, red.height, &grey))?);
+    written.push(set.write(&names[3], |w| {
+        raster::write_grey_png(w, red.width, red.height, &grey)
+    })?);
     if uncertainty_raw {
         let f = render::uncertainty_f32(&red.pixel_entry, &red.entry_uncertainty);
-        written.push(set.write(&names[4], |w| raster::write_f32_tiff(w, red.width, red.height, &f))?);
+        written.push(set.write(&names[4], |w| {
+            raster::write_f32_tiff(w, red.width, red.height, &f)
+        })?);
     }
     Ok(written)
 }

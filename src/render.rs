@@ -24,7 +24,9 @@ impl std::str::FromStr for Dither {
         match s.to_ascii_lowercase().as_str() {
             "none" => Ok(Dither::None),
             "floyd-steinberg" | "fs" => Ok(Dither::FloydSteinberg),
-            _ => Err(format!("unknown dithering '{s}' (use none or floyd-steinberg)")),
+            _ => Err(format!(
+                "unknown dithering '{s}' (use none or floyd-steinberg)"
+            )),
         }
     }
 }
@@ -44,7 +46,13 @@ pub fn remap(pixel_entry: &[u32], entry_index: &[u16]) -> Vec<u16> {
     pixel_entry
         .par_iter()
         .with_min_len(1 << 14)
-        .map(|&e| if e == TRANSPARENT { NO_INDEX } else { entry_index[e as usize] })
+        .map(|&e| {
+            if e == TRANSPARENT {
+                NO_INDEX
+            } else {
+                entry_index[e as usize]
+            }
+        })
         .collect()
 }
 
@@ -97,7 +105,9 @@ pub fn uncertainty_u8(pixel_entry: &[u32], entry_uncertainty: &[f32]) -> Vec<u8>
             if e == TRANSPARENT {
                 0
             } else {
-                (entry_uncertainty[e as usize] * 255.0).round().clamp(0.0, 255.0) as u8
+                (entry_uncertainty[e as usize] * 255.0)
+                    .round()
+                    .clamp(0.0, 255.0) as u8
             }
         })
         .collect()
@@ -108,7 +118,13 @@ pub fn uncertainty_f32(pixel_entry: &[u32], entry_uncertainty: &[f32]) -> Vec<f3
     pixel_entry
         .par_iter()
         .with_min_len(1 << 14)
-        .map(|&e| if e == TRANSPARENT { 0.0 } else { entry_uncertainty[e as usize] })
+        .map(|&e| {
+            if e == TRANSPARENT {
+                0.0
+            } else {
+                entry_uncertainty[e as usize]
+            }
+        })
         .collect()
 }
 

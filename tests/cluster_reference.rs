@@ -3,12 +3,13 @@
 mod common;
 
 use chromasift::cluster::{
-    fit, fit_from, kmeans_plus_plus, lloyd, responsibility_matrix, Beta, Dataset, KMeansParams, Mode,
+    fit, fit_from, kmeans_plus_plus, lloyd, responsibility_matrix, Beta, Dataset, KMeansParams,
+    Mode,
 };
+use chromasift::colour::Space;
 use chromasift::histogram;
 use chromasift::reduce::entry_features;
 use chromasift::rng::Rng;
-use chromasift::colour::Space;
 
 fn iris() -> (Vec<f32>, serde_json::Value) {
     let text = std::fs::read_to_string(common::fixture("reference/iris_kmeans.json")).unwrap();
@@ -17,7 +18,13 @@ fn iris() -> (Vec<f32>, serde_json::Value) {
         .as_array()
         .unwrap()
         .iter()
-        .flat_map(|r| r.as_array().unwrap().iter().map(|v| v.as_f64().unwrap() as f32).collect::<Vec<_>>())
+        .flat_map(|r| {
+            r.as_array()
+                .unwrap()
+                .iter()
+                .map(|v| v.as_f64().unwrap() as f32)
+                .collect::<Vec<_>>()
+        })
         .collect();
     (rows, doc)
 }
@@ -30,9 +37,17 @@ fn iris_k3_matches_scikit_learn() {
     let (rows, doc) = iris();
     let data = Dataset::new(&rows, 4, None).unwrap();
     let want = doc["kmeans"]["inertia"].as_f64().unwrap();
-    let params = KMeansParams::new(3).restarts(10).tolerance(0.0).check().unwrap();
+    let params = KMeansParams::new(3)
+        .restarts(10)
+        .tolerance(0.0)
+        .check()
+        .unwrap();
     let model = fit(&data, &params).unwrap();
-    assert!((model.sse - want).abs() / want < 1e-5, "SSE {} vs scikit-learn {want}", model.sse);
+    assert!(
+        (model.sse - want).abs() / want < 1e-5,
+        "SSE {} vs scikit-learn {want}",
+        model.sse
+    );
     let mut centres: Vec<Vec<f64>> = model.means.chunks(4).map(|c| c.to_vec()).collect();
     centres.sort_by(|a, b| a[0].total_cmp(&b[0]));
     let want_c = doc["kmeans"]["centers"].as_array().unwrap();
@@ -44,8 +59,20 @@ fn iris_k3_matches_scikit_learn() {
     // Single starts never land in a worse optimum than scikit-learn's worst of 50 seeds.
     let worst = doc["worst_inertia_50_seeds"].as_f64().unwrap();
     for seed in 0..20 {
-        let m = fit(&data, &KMeansParams::new(3).seed(seed).tolerance(0.0).check().unwrap()).unwrap();
-        assert!(m.sse <= worst * (1.0 + 1e-5), "seed {seed}: {} > {worst}", m.sse);
+        let m = fit(
+            &data,
+            &KMeansParams::new(3)
+                .seed(seed)
+                .tolerance(0.0)
+                .check()
+                .unwrap(),
+        )
+        .unwrap();
+        assert!(
+            m.sse <= worst * (1.0 + 1e-5),
+            "seed {seed}: {} > {worst}",
+            m.sse
+        );
     }
 }
 
@@ -97,7 +124,11 @@ fn soft_responsibilities_at_beta_one_over_sigma2_are_the_gaussian_posterior() {
     }
 
     // Fitted: soft k-means at β = 1/σ² recovers means and posteriors from the data alone.
-    let params = KMeansParams::new(3).mode(Mode::Soft).beta(Beta::Fixed(1.0)).check().unwrap();
+    let params = KMeansParams::new(3)
+        .mode(Mode::Soft)
+        .beta(Beta::Fixed(1.0))
+        .check()
+        .unwrap();
     let model = fit(&data, &params).unwrap();
     let mut err = 0.0;
     let rf = responsibility_matrix(&data, &model.means, 1.0);
@@ -106,7 +137,10 @@ fn soft_responsibilities_at_beta_one_over_sigma2_are_the_gaussian_posterior() {
         .map(|k| {
             (0..3)
                 .min_by(|&a, &b| {
-                    let d = |j: usize| (model.means[j * 2] - true_means[k][0]).powi(2) + (model.means[j * 2 + 1] - true_means[k][1]).powi(2);
+                    let d = |j: usize| {
+                        (model.means[j * 2] - true_means[k][0]).powi(2)
+                            + (model.means[j * 2 + 1] - true_means[k][1]).powi(2)
+                    };
                     d(a).total_cmp(&d(b))
                 })
                 .unwrap()
@@ -125,10 +159,24 @@ fn soft_responsibilities_at_beta_one_over_sigma2_are_the_gaussian_posterior() {
 
 #[test]
 fn soft_at_very_large_beta_equals_hard() {
-    let rows = mixture(&[[0.0, 0.0], [4.0, 1.0], [1.0, 4.0], [5.0, 5.0]], 1.0, 500, 5);
+    let rows = mixture(
+        &[[0.0, 0.0], [4.0, 1.0], [1.0, 4.0], [5.0, 5.0]],
+        1.0,
+        500,
+        5,
+    );
     let data = Dataset::new(&rows, 2, None).unwrap();
     let hard = fit(&data, &KMeansParams::new(4).seed(2).check().unwrap()).unwrap();
-    let soft = fit(&data, &KMeansParams::new(4).seed(2).mode(Mode::Soft).beta(Beta::Fixed(1e9)).check().unwrap()).unwrap();
+    let soft = fit(
+        &data,
+        &KMeansParams::new(4)
+            .seed(2)
+            .mode(Mode::Soft)
+            .beta(Beta::Fixed(1e9))
+            .check()
+            .unwrap(),
+    )
+    .unwrap();
     for (a, b) in hard.means.iter().zip(&soft.means) {
         assert!((a - b).abs() < 1e-9, "{a} vs {b}");
     }
@@ -140,13 +188,24 @@ fn soft_at_very_large_beta_equals_hard() {
 /// colours repeat many times.
 fn test_picture(w: usize, h: usize) -> Vec<u8> {
     let mut r = Rng::new(4, 0);
-    let base = [[200u8, 40, 40], [40, 160, 60], [30, 60, 200], [230, 220, 90], [90, 90, 90]];
+    let base = [
+        [200u8, 40, 40],
+        [40, 160, 60],
+        [30, 60, 200],
+        [230, 220, 90],
+        [90, 90, 90],
+    ];
     let mut v = Vec::new();
     for y in 0..h {
         for x in 0..w {
             let b = base[(x / 13 + y / 17) % base.len()];
             let j = r.below(4) as u8;
-            v.extend_from_slice(&[b[0].saturating_add(j * 3), b[1].saturating_add(j), b[2].saturating_sub(j * 2), 255]);
+            v.extend_from_slice(&[
+                b[0].saturating_add(j * 3),
+                b[1].saturating_add(j),
+                b[2].saturating_sub(j * 2),
+                255,
+            ]);
         }
     }
     v
@@ -159,12 +218,19 @@ fn histogram_path_equals_all_pixels_path() {
     let (w, h) = (120, 90);
     let px = test_picture(w, h);
     let ih = histogram::from_rgba8(&px);
-    assert!(ih.histogram.len() < w * h / 10, "the picture repeats colours");
+    assert!(
+        ih.histogram.len() < w * h / 10,
+        "the picture repeats colours"
+    );
     let (entry_rows, _) = entry_features(&ih.histogram, Space::Cielab);
     let weights = ih.histogram.weights();
     let hist_data = Dataset::new(&entry_rows, 3, Some(&weights)).unwrap();
     // Every pixel's own row.
-    let pixel_rows: Vec<f32> = ih.pixel_entry.iter().flat_map(|&e| entry_rows[e as usize * 3..e as usize * 3 + 3].to_vec()).collect();
+    let pixel_rows: Vec<f32> = ih
+        .pixel_entry
+        .iter()
+        .flat_map(|&e| entry_rows[e as usize * 3..e as usize * 3 + 3].to_vec())
+        .collect();
     let all_data = Dataset::new(&pixel_rows, 3, None).unwrap();
 
     let params = KMeansParams::new(4).tolerance(0.0).check().unwrap();
@@ -193,7 +259,11 @@ fn accelerated_lloyd_equals_plain_lloyd_on_colour_data() {
     let data = Dataset::new(&rows, 3, Some(&weights)).unwrap();
     for k in [3, 7, 12] {
         let init = kmeans_plus_plus(&data, k, &mut Rng::new(k as u64, 0));
-        assert_eq!(lloyd(&data, &init, 300, 0.0, false), lloyd(&data, &init, 300, 0.0, true), "k = {k}");
+        assert_eq!(
+            lloyd(&data, &init, 300, 0.0, false),
+            lloyd(&data, &init, 300, 0.0, true),
+            "k = {k}"
+        );
     }
 }
 
@@ -202,9 +272,17 @@ fn accelerated_lloyd_equals_plain_lloyd_on_colour_data() {
 fn thread_count_does_not_change_the_model() {
     let rows = mixture(&[[0.0, 0.0], [4.0, 1.0], [1.0, 4.0]], 1.5, 20_000, 9);
     let data = Dataset::new(&rows, 2, None).unwrap();
-    let params = KMeansParams::new(5).mode(Mode::Soft).restarts(2).check().unwrap();
+    let params = KMeansParams::new(5)
+        .mode(Mode::Soft)
+        .restarts(2)
+        .check()
+        .unwrap();
     let run = |threads| {
-        rayon::ThreadPoolBuilder::new().num_threads(threads).build().unwrap().install(|| fit(&data, &params).unwrap())
+        rayon::ThreadPoolBuilder::new()
+            .num_threads(threads)
+            .build()
+            .unwrap()
+            .install(|| fit(&data, &params).unwrap())
     };
     assert_eq!(run(1), run(2));
     assert_eq!(run(1), run(3));

@@ -21,10 +21,18 @@ fn ciede2000_matches_all_34_sharma_pairs() {
         let b = [f(&r[4]), f(&r[5]), f(&r[6])];
         let want = f(&r[7]);
         let got = delta_e2000(a, b);
-        assert!((got - want).abs() <= 1e-4 + 1e-12, "pair {}: got {got:.6}, paper {want}", r[0]);
+        assert!(
+            (got - want).abs() <= 1e-4 + 1e-12,
+            "pair {}: got {got:.6}, paper {want}",
+            r[0]
+        );
         // The formula is symmetric (Sharma et al. 2005 list the pairs one way only).
         let back = delta_e2000(b, a);
-        assert!((back - want).abs() <= 1e-4 + 1e-12, "pair {} reversed: {back:.6}", r[0]);
+        assert!(
+            (back - want).abs() <= 1e-4 + 1e-12,
+            "pair {} reversed: {back:.6}",
+            r[0]
+        );
     }
 }
 
@@ -41,14 +49,24 @@ fn srgb_to_cielab_and_oklab_match_colour_science() {
     assert_eq!(rows.len(), 209);
     let (mut worst_lab, mut worst_ok) = (0.0f64, 0.0f64);
     for r in &rows {
-        let c = [r[1].parse::<u8>().unwrap(), r[2].parse().unwrap(), r[3].parse().unwrap()];
+        let c = [
+            r[1].parse::<u8>().unwrap(),
+            r[2].parse().unwrap(),
+            r[3].parse().unwrap(),
+        ];
         let lab = colour::srgb8_to_lab(c);
         let ok = colour::srgb8_to_oklab(c);
         worst_lab = worst_lab.max(delta_e76(lab, [f(&r[4]), f(&r[5]), f(&r[6])]));
         worst_ok = worst_ok.max(delta_e76(ok, [f(&r[7]), f(&r[8]), f(&r[9])]));
     }
-    assert!(worst_lab < 0.02, "CIELAB differs from colour-science by {worst_lab} ΔE*ab");
-    assert!(worst_ok < 2e-4, "OKLab differs from colour-science by {worst_ok}");
+    assert!(
+        worst_lab < 0.02,
+        "CIELAB differs from colour-science by {worst_lab} ΔE*ab"
+    );
+    assert!(
+        worst_ok < 2e-4,
+        "OKLab differs from colour-science by {worst_ok}"
+    );
 }
 
 /// White is L* = 100, a* = b* = 0 and black is 0 (CIE 15:2004 definition of CIELAB), up
@@ -56,7 +74,10 @@ fn srgb_to_cielab_and_oklab_match_colour_science() {
 #[test]
 fn white_and_black_are_the_ends_of_lightness() {
     let w = colour::srgb8_to_lab([255, 255, 255]);
-    assert!((w[0] - 100.0).abs() < 1e-4 && w[1].abs() < 1e-4 && w[2].abs() < 1e-4, "{w:?}");
+    assert!(
+        (w[0] - 100.0).abs() < 1e-4 && w[1].abs() < 1e-4 && w[2].abs() < 1e-4,
+        "{w:?}"
+    );
     assert_eq!(colour::srgb8_to_lab([0, 0, 0]), [0.0, 0.0, 0.0]);
 }
 
@@ -69,7 +90,10 @@ fn fast_path_agrees_with_palette_on_a_dense_lattice() {
         for g in (0..=255u32).step_by(4) {
             for b in (0..=255u32).step_by(4) {
                 let c = [r as u8, g as u8, b as u8];
-                worst = worst.max(delta_e76(colour::srgb8_to_lab(c), colour::reference_srgb8_to_lab(c)));
+                worst = worst.max(delta_e76(
+                    colour::srgb8_to_lab(c),
+                    colour::reference_srgb8_to_lab(c),
+                ));
             }
         }
     }

@@ -15,7 +15,8 @@ fn reduce_ok(args: &[&str]) -> std::process::Output {
 }
 
 fn palette_doc(dir: &Path, stem: &str) -> Value {
-    serde_json::from_slice(&std::fs::read(dir.join(format!("{stem}.palette.json"))).unwrap()).unwrap()
+    serde_json::from_slice(&std::fs::read(dir.join(format!("{stem}.palette.json"))).unwrap())
+        .unwrap()
 }
 
 fn hex_of(p: &image::Rgba<u8>) -> String {
@@ -26,7 +27,17 @@ fn hex_of(p: &image::Rgba<u8>) -> String {
 fn check_outputs(input: &Path, dir: &Path, stem: &str, k_expected: usize) -> Value {
     let doc = palette_doc(dir, stem);
     for field in [
-        "tool_version", "space", "mode", "k", "beta", "seed", "iterations", "sse", "mean_delta_e76", "mean_delta_e2000", "colors",
+        "tool_version",
+        "space",
+        "mode",
+        "k",
+        "beta",
+        "seed",
+        "iterations",
+        "sse",
+        "mean_delta_e76",
+        "mean_delta_e2000",
+        "colors",
     ] {
         assert!(doc.get(field).is_some(), "palette.json lacks {field}");
     }
@@ -48,7 +59,10 @@ fn check_outputs(input: &Path, dir: &Path, stem: &str, k_expected: usize) -> Val
         }
         assert_eq!(o[3], s[3], "alpha is kept");
         *counts.entry(hex_of(o)).or_insert(0u64) += 1;
-        de_sum += delta_e2000(colour::srgb8_to_lab([s[0], s[1], s[2]]), colour::srgb8_to_lab([o[0], o[1], o[2]]));
+        de_sum += delta_e2000(
+            colour::srgb8_to_lab([s[0], s[1], s[2]]),
+            colour::srgb8_to_lab([o[0], o[1], o[2]]),
+        );
     }
     let mut last = u64::MAX;
     let mut share_sum = 0.0;
@@ -68,12 +82,19 @@ fn check_outputs(input: &Path, dir: &Path, stem: &str, k_expected: usize) -> Val
         let u = c["mean_uncertainty"].as_f64().unwrap();
         assert!((0.0..=1.0).contains(&u));
     }
-    assert_eq!(counts.len(), k_expected, "the image uses exactly the palette colours");
+    assert_eq!(
+        counts.len(),
+        k_expected,
+        "the image uses exactly the palette colours"
+    );
     assert!((share_sum - 1.0).abs() < 1e-9);
     assert_eq!(counts.values().sum::<u64>(), opaque);
     let mean_de = de_sum / opaque as f64;
     let doc_de = doc["mean_delta_e2000"].as_f64().unwrap();
-    assert!((mean_de - doc_de).abs() < 1e-9 * mean_de.max(1.0), "ΔE2000 {mean_de} vs document {doc_de}");
+    assert!(
+        (mean_de - doc_de).abs() < 1e-9 * mean_de.max(1.0),
+        "ΔE2000 {mean_de} vs document {doc_de}"
+    );
 
     // CSV: header and the same rows.
     let csv = std::fs::read_to_string(dir.join(format!("{stem}.palette.csv"))).unwrap();
@@ -97,7 +118,14 @@ fn check_outputs(input: &Path, dir: &Path, stem: &str, k_expected: usize) -> Val
 fn poster_round_trip_checks_every_output() {
     let dir = tempfile::tempdir().unwrap();
     let input = fixture("demo/harbour-poster.png");
-    let o = reduce_ok(&["reduce", input.to_str().unwrap(), "-k", "6", "-o", dir.path().to_str().unwrap()]);
+    let o = reduce_ok(&[
+        "reduce",
+        input.to_str().unwrap(),
+        "-k",
+        "6",
+        "-o",
+        dir.path().to_str().unwrap(),
+    ]);
     assert_eq!(
         files_in(dir.path()),
         vec![
@@ -112,7 +140,9 @@ fn poster_round_trip_checks_every_output() {
     assert_eq!(doc["mode"], "hard");
     assert!(doc["beta"].as_f64().unwrap() > 0.0);
     // Indexed PNG.
-    let dec = png::Decoder::new(std::io::BufReader::new(std::fs::File::open(dir.path().join("harbour-poster.reduced.png")).unwrap()));
+    let dec = png::Decoder::new(std::io::BufReader::new(
+        std::fs::File::open(dir.path().join("harbour-poster.reduced.png")).unwrap(),
+    ));
     let reader = dec.read_info().unwrap();
     assert_eq!(reader.info().color_type, png::ColorType::Indexed);
     // One summary line on stderr.
@@ -126,8 +156,20 @@ fn aerial_with_transparent_strip_soft_oklab_and_raw_uncertainty() {
     let dir = tempfile::tempdir().unwrap();
     let input = fixture("demo/valley-aerial.png");
     let o = reduce_ok(&[
-        "reduce", input.to_str().unwrap(), "-k", "5", "--mode", "soft", "--beta", "auto", "--space", "oklab",
-        "--uncertainty-raw", "--json", "-o", dir.path().to_str().unwrap(),
+        "reduce",
+        input.to_str().unwrap(),
+        "-k",
+        "5",
+        "--mode",
+        "soft",
+        "--beta",
+        "auto",
+        "--space",
+        "oklab",
+        "--uncertainty-raw",
+        "--json",
+        "-o",
+        dir.path().to_str().unwrap(),
     ]);
     let doc = check_outputs(&input, dir.path(), "valley-aerial", 5);
     assert_eq!(doc["mode"], "soft");
@@ -136,11 +178,18 @@ fn aerial_with_transparent_strip_soft_oklab_and_raw_uncertainty() {
     let printed: Value = serde_json::from_slice(&o.stdout).unwrap();
     assert_eq!(printed, doc);
     // Float map agrees with the 8-bit map.
-    let grey = image::open(dir.path().join("valley-aerial.uncertainty.png")).unwrap().to_luma8();
-    let mut dec = tiff::decoder::Decoder::new(std::fs::File::open(dir.path().join("valley-aerial.uncertainty.tif")).unwrap()).unwrap();
+    let grey = image::open(dir.path().join("valley-aerial.uncertainty.png"))
+        .unwrap()
+        .to_luma8();
+    let mut dec = tiff::decoder::Decoder::new(
+        std::fs::File::open(dir.path().join("valley-aerial.uncertainty.tif")).unwrap(),
+    )
+    .unwrap();
     let (w, h) = dec.dimensions().unwrap();
     assert_eq!((w, h), grey.dimensions());
-    let tiff::decoder::DecodingResult::F32(vals) = dec.read_image().unwrap() else { panic!("32-bit float TIFF expected") };
+    let tiff::decoder::DecodingResult::F32(vals) = dec.read_image().unwrap() else {
+        panic!("32-bit float TIFF expected")
+    };
     for (v, g) in vals.iter().zip(grey.pixels()) {
         assert!((0.0..=1.0).contains(v));
         assert!((v * 255.0 - g[0] as f32).abs() <= 0.5 + 1e-3);
@@ -156,7 +205,21 @@ fn same_output_bytes_on_one_and_two_threads() {
     for threads in ["1", "2"] {
         let dir = tempfile::tempdir().unwrap();
         let o = run(
-            &["reduce", input.to_str().unwrap(), "-k", "7", "--mode", "soft", "--restarts", "2", "--uncertainty-raw", "--dither", "floyd-steinberg", "-o", dir.path().to_str().unwrap()],
+            &[
+                "reduce",
+                input.to_str().unwrap(),
+                "-k",
+                "7",
+                "--mode",
+                "soft",
+                "--restarts",
+                "2",
+                "--uncertainty-raw",
+                "--dither",
+                "floyd-steinberg",
+                "-o",
+                dir.path().to_str().unwrap(),
+            ],
             &[("RAYON_NUM_THREADS", threads)],
         );
         assert!(o.status.success(), "{}", stderr(&o));
@@ -175,45 +238,113 @@ fn uncertainty_peaks_at_the_boundary_of_a_two_colour_gradient() {
     let dir = tempfile::tempdir().unwrap();
     let input = dir.path().join("ramp.png");
     let (w, h) = (256u32, 8u32);
-    write_rgb(&input, w, h, &common::gradient(w, h, [20, 40, 160], [240, 200, 40]));
+    write_rgb(
+        &input,
+        w,
+        h,
+        &common::gradient(w, h, [20, 40, 160], [240, 200, 40]),
+    );
     let out = dir.path().join("out");
-    reduce_ok(&["reduce", input.to_str().unwrap(), "-k", "2", "-o", out.to_str().unwrap()]);
-    let u = image::open(out.join("ramp.uncertainty.png")).unwrap().to_luma8();
+    reduce_ok(&[
+        "reduce",
+        input.to_str().unwrap(),
+        "-k",
+        "2",
+        "-o",
+        out.to_str().unwrap(),
+    ]);
+    let u = image::open(out.join("ramp.uncertainty.png"))
+        .unwrap()
+        .to_luma8();
     let red = read_rgba(&out.join("ramp.reduced.png"));
     let row: Vec<u8> = (0..w).map(|x| u.get_pixel(x, 0)[0]).collect();
-    let peak = (0..w as usize).max_by_key(|&x| (row[x], std::cmp::Reverse(x))).unwrap();
+    let peak = (0..w as usize)
+        .max_by_key(|&x| (row[x], std::cmp::Reverse(x)))
+        .unwrap();
     // The boundary is where the reduced colour switches.
-    let switch = (1..w).find(|&x| red.get_pixel(x, 0) != red.get_pixel(x - 1, 0)).unwrap() as usize;
-    assert!((peak as i64 - switch as i64).abs() <= 2, "peak {peak}, boundary {switch}");
-    assert!(row[peak] >= 250, "near-even split at the boundary: {}", row[peak]);
-    assert!(row[0] < 60 && row[w as usize - 1] < 60, "ends are near certain: {} {}", row[0], row[w as usize - 1]);
+    let switch = (1..w)
+        .find(|&x| red.get_pixel(x, 0) != red.get_pixel(x - 1, 0))
+        .unwrap() as usize;
+    assert!(
+        (peak as i64 - switch as i64).abs() <= 2,
+        "peak {peak}, boundary {switch}"
+    );
+    assert!(
+        row[peak] >= 250,
+        "near-even split at the boundary: {}",
+        row[peak]
+    );
+    assert!(
+        row[0] < 60 && row[w as usize - 1] < 60,
+        "ends are near certain: {} {}",
+        row[0],
+        row[w as usize - 1]
+    );
     // Monotone rise towards the boundary from the left end.
-    assert!(row[..switch.saturating_sub(2)].windows(2).all(|p| p[0] <= p[1]));
+    assert!(row[..switch.saturating_sub(2)]
+        .windows(2)
+        .all(|p| p[0] <= p[1]));
 }
 
 #[test]
 fn dithering_uses_only_palette_colours_and_mixes_them() {
     let dir = tempfile::tempdir().unwrap();
     let input = dir.path().join("ramp.png");
-    write_rgb(&input, 128, 16, &common::gradient(128, 16, [0, 0, 0], [255, 255, 255]));
+    write_rgb(
+        &input,
+        128,
+        16,
+        &common::gradient(128, 16, [0, 0, 0], [255, 255, 255]),
+    );
     let out = dir.path().join("out");
-    reduce_ok(&["reduce", input.to_str().unwrap(), "-k", "2", "--dither", "floyd-steinberg", "-o", out.to_str().unwrap()]);
+    reduce_ok(&[
+        "reduce",
+        input.to_str().unwrap(),
+        "-k",
+        "2",
+        "--dither",
+        "floyd-steinberg",
+        "-o",
+        out.to_str().unwrap(),
+    ]);
     let doc = check_outputs(&input, &out, "ramp", 2);
     assert_eq!(doc["settings"]["dither"], "floyd-steinberg");
     let red = read_rgba(&out.join("ramp.reduced.png"));
-    let switches = (1..128).filter(|&x| red.get_pixel(x, 8) != red.get_pixel(x - 1, 8)).count();
-    assert!(switches > 10, "error diffusion mixes the two colours ({switches} switches)");
+    let switches = (1..128)
+        .filter(|&x| red.get_pixel(x, 8) != red.get_pixel(x - 1, 8))
+        .count();
+    assert!(
+        switches > 10,
+        "error diffusion mixes the two colours ({switches} switches)"
+    );
 }
 
 #[test]
 fn k_above_the_distinct_colours_returns_them_all_once() {
     let dir = tempfile::tempdir().unwrap();
     let input = dir.path().join("three.png");
-    let px: Vec<u8> = (0..60).flat_map(|i| match i % 3 { 0 => [255, 0, 0], 1 => [0, 128, 0], _ => [10, 10, 250] }).collect();
+    let px: Vec<u8> = (0..60)
+        .flat_map(|i| match i % 3 {
+            0 => [255, 0, 0],
+            1 => [0, 128, 0],
+            _ => [10, 10, 250],
+        })
+        .collect();
     write_rgb(&input, 10, 6, &px);
     let out = dir.path().join("out");
-    let o = reduce_ok(&["reduce", input.to_str().unwrap(), "-k", "8", "-o", out.to_str().unwrap()]);
-    assert!(stderr(&o).contains("only 3 distinct colours"), "{}", stderr(&o));
+    let o = reduce_ok(&[
+        "reduce",
+        input.to_str().unwrap(),
+        "-k",
+        "8",
+        "-o",
+        out.to_str().unwrap(),
+    ]);
+    assert!(
+        stderr(&o).contains("only 3 distinct colours"),
+        "{}",
+        stderr(&o)
+    );
     let doc = check_outputs(&input, &out, "three", 3);
     assert_eq!(doc["mean_delta_e2000"].as_f64().unwrap(), 0.0);
     assert_eq!(doc["sse"].as_f64().unwrap(), 0.0);
@@ -225,9 +356,18 @@ fn one_colour_image_gives_one_entry_and_a_zero_uncertainty_map() {
     let input = dir.path().join("flat.png");
     write_rgb(&input, 9, 7, &[77u8, 120, 33].repeat(63));
     let out = dir.path().join("out");
-    reduce_ok(&["reduce", input.to_str().unwrap(), "-k", "4", "-o", out.to_str().unwrap()]);
+    reduce_ok(&[
+        "reduce",
+        input.to_str().unwrap(),
+        "-k",
+        "4",
+        "-o",
+        out.to_str().unwrap(),
+    ]);
     check_outputs(&input, &out, "flat", 1);
-    let u = image::open(out.join("flat.uncertainty.png")).unwrap().to_luma8();
+    let u = image::open(out.join("flat.uncertainty.png"))
+        .unwrap()
+        .to_luma8();
     assert!(u.pixels().all(|p| p[0] == 0));
 }
 
@@ -245,10 +385,22 @@ fn sixteen_bit_input_is_reduced() {
     let bytes: Vec<u8> = px.iter().flat_map(|v| v.to_ne_bytes()).collect();
     image::save_buffer(&input, &bytes, w, h, image::ExtendedColorType::Rgb16).unwrap();
     let out = dir.path().join("out");
-    reduce_ok(&["reduce", input.to_str().unwrap(), "-k", "4", "-o", out.to_str().unwrap()]);
+    reduce_ok(&[
+        "reduce",
+        input.to_str().unwrap(),
+        "-k",
+        "4",
+        "-o",
+        out.to_str().unwrap(),
+    ]);
     let doc = palette_doc(&out, "deep");
     assert_eq!(doc["k"], 4);
-    let total: u64 = doc["colors"].as_array().unwrap().iter().map(|c| c["pixels"].as_u64().unwrap()).sum();
+    let total: u64 = doc["colors"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|c| c["pixels"].as_u64().unwrap())
+        .sum();
     assert_eq!(total, (w * h) as u64);
 }
 
@@ -256,10 +408,26 @@ fn sixteen_bit_input_is_reduced() {
 fn semi_transparent_pixels_keep_their_alpha() {
     let dir = tempfile::tempdir().unwrap();
     let input = dir.path().join("glass.png");
-    let px: Vec<u8> = (0..64u32).flat_map(|i| [(i * 4) as u8, 100, 200, if i < 8 { 0 } else { 128 + i as u8 }]).collect();
+    let px: Vec<u8> = (0..64u32)
+        .flat_map(|i| {
+            [
+                (i * 4) as u8,
+                100,
+                200,
+                if i < 8 { 0 } else { 128 + i as u8 },
+            ]
+        })
+        .collect();
     write_rgba(&input, 8, 8, &px);
     let out = dir.path().join("out");
-    reduce_ok(&["reduce", input.to_str().unwrap(), "-k", "3", "-o", out.to_str().unwrap()]);
+    reduce_ok(&[
+        "reduce",
+        input.to_str().unwrap(),
+        "-k",
+        "3",
+        "-o",
+        out.to_str().unwrap(),
+    ]);
     check_outputs(&input, &out, "glass", 3);
 }
 
@@ -291,7 +459,11 @@ fn bad_file(name: &str, bytes: &[u8]) -> (tempfile::TempDir, std::path::PathBuf)
 fn missing_file() {
     let dir = tempfile::tempdir().unwrap();
     let out = dir.path().join("out");
-    assert_refused(&["reduce", "no-such-file.png", "-o", out.to_str().unwrap()], &out, &["no-such-file.png", "cannot open"]);
+    assert_refused(
+        &["reduce", "no-such-file.png", "-o", out.to_str().unwrap()],
+        &out,
+        &["no-such-file.png", "cannot open"],
+    );
     assert!(!out.exists());
 }
 
@@ -299,15 +471,26 @@ fn missing_file() {
 fn not_an_image() {
     let (dir, p) = bad_file("notes.png", b"these are words, not pixels\n");
     let out = dir.path().join("out");
-    assert_refused(&["reduce", p.to_str().unwrap(), "-o", out.to_str().unwrap()], &out, &["notes.png"]);
-    assert!(!out.exists(), "an output folder made for a failed run is removed");
+    assert_refused(
+        &["reduce", p.to_str().unwrap(), "-o", out.to_str().unwrap()],
+        &out,
+        &["notes.png"],
+    );
+    assert!(
+        !out.exists(),
+        "an output folder made for a failed run is removed"
+    );
 }
 
 #[test]
 fn empty_file() {
     let (dir, p) = bad_file("empty.png", b"");
     let out = dir.path().join("out");
-    assert_refused(&["reduce", p.to_str().unwrap(), "-o", out.to_str().unwrap()], &out, &["empty.png", "empty"]);
+    assert_refused(
+        &["reduce", p.to_str().unwrap(), "-o", out.to_str().unwrap()],
+        &out,
+        &["empty.png", "empty"],
+    );
 }
 
 #[test]
@@ -315,7 +498,11 @@ fn truncated_image() {
     let full = std::fs::read(fixture("demo/harbour-poster.png")).unwrap();
     let (dir, p) = bad_file("cut.png", &full[..full.len() / 2]);
     let out = dir.path().join("out");
-    assert_refused(&["reduce", p.to_str().unwrap(), "-o", out.to_str().unwrap()], &out, &["cut.png"]);
+    assert_refused(
+        &["reduce", p.to_str().unwrap(), "-o", out.to_str().unwrap()],
+        &out,
+        &["cut.png"],
+    );
 }
 
 /// A PNG whose header claims 100 000 × 100 000 pixels (a decompression bomb): refused
@@ -337,12 +524,36 @@ fn huge_header_is_refused_before_decoding() {
     let (dir, p) = bad_file("bomb.png", &png);
     let out = dir.path().join("out");
     let t = std::time::Instant::now();
-    assert_refused(&["reduce", p.to_str().unwrap(), "-o", out.to_str().unwrap()], &out, &["bomb.png", "over the limit"]);
+    assert_refused(
+        &["reduce", p.to_str().unwrap(), "-o", out.to_str().unwrap()],
+        &out,
+        &["bomb.png", "over the limit"],
+    );
     assert!(t.elapsed().as_secs() < 10);
     // A tight --max-pixels refuses an ordinary image; a generous one accepts it.
     let poster = fixture("demo/harbour-poster.png");
-    assert_refused(&["reduce", poster.to_str().unwrap(), "--max-pixels", "1000", "-o", out.to_str().unwrap()], &out, &["over the limit"]);
-    reduce_ok(&["reduce", poster.to_str().unwrap(), "-k", "2", "--max-pixels", "76800", "-o", out.to_str().unwrap()]);
+    assert_refused(
+        &[
+            "reduce",
+            poster.to_str().unwrap(),
+            "--max-pixels",
+            "1000",
+            "-o",
+            out.to_str().unwrap(),
+        ],
+        &out,
+        &["over the limit"],
+    );
+    reduce_ok(&[
+        "reduce",
+        poster.to_str().unwrap(),
+        "-k",
+        "2",
+        "--max-pixels",
+        "76800",
+        "-o",
+        out.to_str().unwrap(),
+    ]);
 }
 
 fn crc32(bytes: &[u8]) -> u32 {
@@ -351,7 +562,11 @@ fn crc32(bytes: &[u8]) -> u32 {
     for &b in bytes {
         c ^= b as u32;
         for _ in 0..8 {
-            c = if c & 1 != 0 { 0xedb8_8320 ^ (c >> 1) } else { c >> 1 };
+            c = if c & 1 != 0 {
+                0xedb8_8320 ^ (c >> 1)
+            } else {
+                c >> 1
+            };
         }
     }
     !c
@@ -362,7 +577,18 @@ fn k_zero() {
     let dir = tempfile::tempdir().unwrap();
     let out = dir.path().join("out");
     let poster = fixture("demo/harbour-poster.png");
-    assert_refused(&["reduce", poster.to_str().unwrap(), "-k", "0", "-o", out.to_str().unwrap()], &out, &["k must be at least 1"]);
+    assert_refused(
+        &[
+            "reduce",
+            poster.to_str().unwrap(),
+            "-k",
+            "0",
+            "-o",
+            out.to_str().unwrap(),
+        ],
+        &out,
+        &["k must be at least 1"],
+    );
     assert!(!out.exists());
 }
 
@@ -372,7 +598,16 @@ fn bad_beta_values() {
     let out = dir.path().join("out");
     let poster = fixture("demo/harbour-poster.png");
     for b in ["0", "-1", "nan", "inf", "-inf"] {
-        let args = ["reduce", poster.to_str().unwrap(), "--mode", "soft", "--beta", b, "-o", out.to_str().unwrap()];
+        let args = [
+            "reduce",
+            poster.to_str().unwrap(),
+            "--mode",
+            "soft",
+            "--beta",
+            b,
+            "-o",
+            out.to_str().unwrap(),
+        ];
         assert_refused(&args, &out, &["beta must be a positive finite number"]);
     }
 }
@@ -381,7 +616,16 @@ fn bad_beta_values() {
 fn output_path_is_an_existing_file() {
     let (dir, file) = bad_file("taken", b"keep me");
     let poster = fixture("demo/harbour-poster.png");
-    assert_refused(&["reduce", poster.to_str().unwrap(), "-o", file.to_str().unwrap()], dir.path(), &["taken", "not a folder"]);
+    assert_refused(
+        &[
+            "reduce",
+            poster.to_str().unwrap(),
+            "-o",
+            file.to_str().unwrap(),
+        ],
+        dir.path(),
+        &["taken", "not a folder"],
+    );
     assert_eq!(std::fs::read(&file).unwrap(), b"keep me");
 }
 
@@ -390,7 +634,16 @@ fn output_not_writable() {
     let (dir, file) = bad_file("plain-file", b"x");
     let poster = fixture("demo/harbour-poster.png");
     let out = file.join("sub");
-    assert_refused(&["reduce", poster.to_str().unwrap(), "-o", out.to_str().unwrap()], dir.path(), &["plain-file", "cannot use output folder"]);
+    assert_refused(
+        &[
+            "reduce",
+            poster.to_str().unwrap(),
+            "-o",
+            out.to_str().unwrap(),
+        ],
+        dir.path(),
+        &["plain-file", "cannot use output folder"],
+    );
 }
 
 /// An output that would land on the input (here through a link named like the output)
@@ -404,7 +657,16 @@ fn output_would_overwrite_the_input() {
     let out = dir.path().join("out");
     std::fs::create_dir(&out).unwrap();
     std::os::unix::fs::symlink(&input, out.join("art.palette.json")).unwrap();
-    assert_refused(&["reduce", input.to_str().unwrap(), "-o", out.to_str().unwrap()], &out, &["art.palette.json", "overwrite the input"]);
+    assert_refused(
+        &[
+            "reduce",
+            input.to_str().unwrap(),
+            "-o",
+            out.to_str().unwrap(),
+        ],
+        &out,
+        &["art.palette.json", "overwrite the input"],
+    );
     assert_eq!(std::fs::read(&input).unwrap(), before);
 }
 
@@ -414,7 +676,16 @@ fn all_transparent_image() {
     let input = dir.path().join("clear.png");
     write_rgba(&input, 4, 4, &[0u8; 64]);
     let out = dir.path().join("out");
-    assert_refused(&["reduce", input.to_str().unwrap(), "-o", out.to_str().unwrap()], &out, &["clear.png", "transparent"]);
+    assert_refused(
+        &[
+            "reduce",
+            input.to_str().unwrap(),
+            "-o",
+            out.to_str().unwrap(),
+        ],
+        &out,
+        &["clear.png", "transparent"],
+    );
 }
 
 #[test]
@@ -422,7 +693,18 @@ fn unknown_option_value_is_one_line() {
     let dir = tempfile::tempdir().unwrap();
     let out = dir.path().join("out");
     let poster = fixture("demo/harbour-poster.png");
-    assert_refused(&["reduce", poster.to_str().unwrap(), "--space", "rgb", "-o", out.to_str().unwrap()], &out, &["rgb"]);
+    assert_refused(
+        &[
+            "reduce",
+            poster.to_str().unwrap(),
+            "--space",
+            "rgb",
+            "-o",
+            out.to_str().unwrap(),
+        ],
+        &out,
+        &["rgb"],
+    );
 }
 
 #[test]
@@ -430,5 +712,9 @@ fn help_shows_examples() {
     let o = run(&["reduce", "--help"], &[]);
     assert!(o.status.success());
     let text = String::from_utf8_lossy(&o.stdout);
-    assert!(text.contains("Examples:") && text.contains("chromasift reduce fixtures/demo/harbour-poster.png"), "{text}");
+    assert!(
+        text.contains("Examples:")
+            && text.contains("chromasift reduce fixtures/demo/harbour-poster.png"),
+        "{text}"
+    );
 }

@@ -58,7 +58,12 @@ pub struct ReduceArgs {
 
     /// Sharpness of the soft assignment in 1/ΔE*ab² (CIELAB) or 1/OKLab-unit² (OKLab),
     /// or `auto` for 1/σ² with σ² the pooled within-cluster variance of the hard solution.
-    #[arg(long, default_value = "auto", value_name = "NUMBER|auto", allow_hyphen_values = true)]
+    #[arg(
+        long,
+        default_value = "auto",
+        value_name = "NUMBER|auto",
+        allow_hyphen_values = true
+    )]
     pub beta: Beta,
 
     /// Space the colours are chosen in.
@@ -152,7 +157,10 @@ mod tests {
         assert_eq!(reduce(&["--restarts", "4"]).restarts, 4);
         assert_eq!(reduce(&["--max-iter", "9"]).max_iter, 9);
         assert_eq!(reduce(&["--tolerance", "0.01"]).tolerance, 0.01);
-        assert_eq!(reduce(&["--dither", "floyd-steinberg"]).dither, Dither::FloydSteinberg);
+        assert_eq!(
+            reduce(&["--dither", "floyd-steinberg"]).dither,
+            Dither::FloydSteinberg
+        );
         assert_eq!(reduce(&["--max-pixels", "100"]).max_pixels, 100);
         assert!(reduce(&["--uncertainty-raw"]).uncertainty_raw);
         assert!(reduce(&["--json"]).json);

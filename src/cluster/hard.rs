@@ -116,7 +116,13 @@ fn accumulate(data: &Dataset, labels: &[u32], k: usize) -> Stats {
 }
 
 /// Full assignment with bounds: labels, upper = distance to own mean, lower = to second.
-fn full_pass(data: &Dataset, means: &[f32], labels: &mut [u32], upper: &mut [f64], lower: &mut [f64]) -> usize {
+fn full_pass(
+    data: &Dataset,
+    means: &[f32],
+    labels: &mut [u32],
+    upper: &mut [f64],
+    lower: &mut [f64],
+) -> usize {
     let dim = data.dim();
     labels
         .par_chunks_mut(CHUNK)
@@ -201,16 +207,23 @@ fn reseed_empty(data: &Dataset, means: &mut [f64], empty: &[usize]) {
             .with_min_len(CHUNK)
             .filter(|&i| data.weight(i) > 0.0)
             .map(|i| {
-                let d = if live_means.is_empty() { 0.0 } else { nearest_two(data.row(i), &live_means, dim).1 };
+                let d = if live_means.is_empty() {
+                    0.0
+                } else {
+                    nearest_two(data.row(i), &live_means, dim).1
+                };
                 (d, i)
             })
-            .reduce(|| (f32::NEG_INFINITY, usize::MAX), |a, b| {
-                if b.0 > a.0 || (b.0 == a.0 && b.1 < a.1) {
-                    b
-                } else {
-                    a
-                }
-            });
+            .reduce(
+                || (f32::NEG_INFINITY, usize::MAX),
+                |a, b| {
+                    if b.0 > a.0 || (b.0 == a.0 && b.1 < a.1) {
+                        b
+                    } else {
+                        a
+                    }
+                },
+            );
         if worst.1 != usize::MAX {
             for (d, v) in data.row(worst.1).iter().enumerate() {
                 means[e * dim + d] = *v as f64;
@@ -223,7 +236,13 @@ fn reseed_empty(data: &Dataset, means: &mut [f64], empty: &[usize]) {
 /// Weighted Lloyd iterations from `init` (`k × dim`) until no row changes cluster,
 /// the relative SSE decrease of an iteration is at most `tolerance`, or `max_iter`.
 /// With `accelerate`, Hamerly bounds skip distance work; the result is the same.
-pub fn lloyd(data: &Dataset, init: &[f32], max_iter: usize, tolerance: f64, accelerate: bool) -> LloydResult {
+pub fn lloyd(
+    data: &Dataset,
+    init: &[f32],
+    max_iter: usize,
+    tolerance: f64,
+    accelerate: bool,
+) -> LloydResult {
     let dim = data.dim();
     let n = data.len();
     let k = init.len() / dim;
@@ -304,7 +323,14 @@ pub fn lloyd(data: &Dataset, init: &[f32], max_iter: usize, tolerance: f64, acce
                         * 0.5
                 })
                 .collect();
-            bounded_pass(data, &means32, &half_gap, &mut labels, &mut upper, &mut lower)
+            bounded_pass(
+                data,
+                &means32,
+                &half_gap,
+                &mut labels,
+                &mut upper,
+                &mut lower,
+            )
         } else {
             full_pass(data, &means32, &mut labels, &mut upper, &mut lower)
         };
@@ -364,15 +390,34 @@ mod tests {
                 expanded.push(*x);
             }
         }
-        let a = lloyd(&Dataset::new(&rows, 1, Some(&w)).unwrap(), &[0.0, 10.0], 100, 0.0, true);
-        let b = lloyd(&Dataset::new(&expanded, 1, None).unwrap(), &[0.0, 10.0], 100, 0.0, true);
+        let a = lloyd(
+            &Dataset::new(&rows, 1, Some(&w)).unwrap(),
+            &[0.0, 10.0],
+            100,
+            0.0,
+            true,
+        );
+        let b = lloyd(
+            &Dataset::new(&expanded, 1, None).unwrap(),
+            &[0.0, 10.0],
+            100,
+            0.0,
+            true,
+        );
         assert_eq!(a.means, b.means);
         assert!((a.sse - b.sse).abs() < 1e-9);
     }
 
     #[test]
     fn bounds_give_the_same_result_as_plain_lloyd() {
-        let centres = [[0.0, 0.0], [4.0, 1.0], [1.0, 5.0], [6.0, 6.0], [9.0, 2.0], [3.0, 3.0]];
+        let centres = [
+            [0.0, 0.0],
+            [4.0, 1.0],
+            [1.0, 5.0],
+            [6.0, 6.0],
+            [9.0, 2.0],
+            [3.0, 3.0],
+        ];
         let rows = blobs(400, &centres, 5.0, 3);
         let data = Dataset::new(&rows, 2, None).unwrap();
         for seed in 0..5 {
@@ -391,7 +436,10 @@ mod tests {
         let r = lloyd(&data, &[0.1, 0.1], 100, 0.0, true);
         let mut m = r.means.clone();
         m.sort_by(f64::total_cmp);
-        assert!((m[0] - 0.1).abs() < 1e-6 && (m[1] - 50.0).abs() < 1e-6, "{m:?}");
+        assert!(
+            (m[0] - 0.1).abs() < 1e-6 && (m[1] - 50.0).abs() < 1e-6,
+            "{m:?}"
+        );
     }
 
     #[test]

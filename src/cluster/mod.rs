@@ -18,7 +18,9 @@ pub use hard::{assign_nearest, lloyd, LloydResult};
 pub use init::kmeans_plus_plus;
 pub use model::{fit, fit_from, KMeansModel};
 pub use params::{Beta, KMeansParams, Mode, ValidParams, MAX_K};
-pub use soft::{auto_beta, responsibility_matrix, soft_assign, soft_kmeans, SoftAssignment, SoftResult};
+pub use soft::{
+    auto_beta, responsibility_matrix, soft_assign, soft_kmeans, SoftAssignment, SoftResult,
+};
 
 use crate::error::ParamsError;
 
@@ -35,20 +37,33 @@ pub struct Dataset<'a> {
 
 impl<'a> Dataset<'a> {
     /// Checks shape, finiteness and weights.
-    pub fn new(rows: &'a [f32], dim: usize, weights: Option<&'a [f64]>) -> Result<Self, ParamsError> {
+    pub fn new(
+        rows: &'a [f32],
+        dim: usize,
+        weights: Option<&'a [f64]>,
+    ) -> Result<Self, ParamsError> {
         if dim == 0 {
             return Err(ParamsError::ZeroDimension);
         }
         if rows.len() % dim != 0 {
-            return Err(ParamsError::RaggedRows { got: rows.len(), dim });
+            return Err(ParamsError::RaggedRows {
+                got: rows.len(),
+                dim,
+            });
         }
         let n = rows.len() / dim;
         if let Some(pos) = rows.iter().position(|v| !v.is_finite()) {
-            return Err(ParamsError::NonFinite { what: "feature", row: pos / dim });
+            return Err(ParamsError::NonFinite {
+                what: "feature",
+                row: pos / dim,
+            });
         }
         if let Some(w) = weights {
             if w.len() != n {
-                return Err(ParamsError::WeightCount { rows: n, weights: w.len() });
+                return Err(ParamsError::WeightCount {
+                    rows: n,
+                    weights: w.len(),
+                });
             }
             if let Some(i) = w.iter().position(|x| !(x.is_finite() && *x >= 0.0)) {
                 return Err(ParamsError::BadWeight(i));
@@ -58,11 +73,14 @@ impl<'a> Dataset<'a> {
     }
 
     /// From an `n × d` ndarray view (must be in standard row-major layout).
-    pub fn from_array(view: &'a ndarray::ArrayView2<'a, f32>, weights: Option<&'a [f64]>) -> Result<Self, ParamsError> {
+    pub fn from_array(
+        view: &'a ndarray::ArrayView2<'a, f32>,
+        weights: Option<&'a [f64]>,
+    ) -> Result<Self, ParamsError> {
         let dim = view.ncols();
-        let rows = view
-            .as_slice()
-            .ok_or_else(|| ParamsError::Other("the array must be contiguous and row-major".into()))?;
+        let rows = view.as_slice().ok_or_else(|| {
+            ParamsError::Other("the array must be contiguous and row-major".into())
+        })?;
         Dataset::new(rows, dim, weights)
     }
 

@@ -59,7 +59,9 @@ impl KMeansModel {
 
 fn check_data(data: &Dataset) -> Result<()> {
     if data.is_empty() || data.total_weight() <= 0.0 {
-        return Err(Error::Data("no rows with positive weight to cluster".into()));
+        return Err(Error::Data(
+            "no rows with positive weight to cluster".into(),
+        ));
     }
     Ok(())
 }
@@ -72,8 +74,17 @@ pub fn fit(data: &Dataset, params: &ValidParams) -> Result<KMeansModel> {
     for r in 0..params.restarts {
         let mut rng = Rng::new(params.seed, r as u64);
         let init = kmeans_plus_plus(data, params.k, &mut rng);
-        let res = lloyd(data, &init, params.max_iter, params.tolerance, params.accelerate);
-        if best.as_ref().is_none_or(|(_, b): &(usize, super::LloydResult)| res.sse < b.sse) {
+        let res = lloyd(
+            data,
+            &init,
+            params.max_iter,
+            params.tolerance,
+            params.accelerate,
+        );
+        if best
+            .as_ref()
+            .is_none_or(|(_, b): &(usize, super::LloydResult)| res.sse < b.sse)
+        {
             best = Some((r, res));
         }
     }
@@ -91,11 +102,22 @@ pub fn fit_from(data: &Dataset, init: &[f32], params: &ValidParams) -> Result<KM
         }
         .into());
     }
-    let hard = lloyd(data, init, params.max_iter, params.tolerance, params.accelerate);
+    let hard = lloyd(
+        data,
+        init,
+        params.max_iter,
+        params.tolerance,
+        params.accelerate,
+    );
     Ok(finish(data, params, 0, hard))
 }
 
-fn finish(data: &Dataset, params: &ValidParams, restart: usize, hard: super::LloydResult) -> KMeansModel {
+fn finish(
+    data: &Dataset,
+    params: &ValidParams,
+    restart: usize,
+    hard: super::LloydResult,
+) -> KMeansModel {
     let beta = match params.beta {
         Beta::Fixed(b) => Some(b),
         Beta::Auto => auto_beta(hard.sse, data.total_weight(), data.dim()),

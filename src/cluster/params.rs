@@ -131,7 +131,10 @@ impl KMeansParams {
             return Err(ParamsError::KTooSmall(0));
         }
         if self.k > MAX_K {
-            return Err(ParamsError::KTooLarge { got: self.k, max: MAX_K });
+            return Err(ParamsError::KTooLarge {
+                got: self.k,
+                max: MAX_K,
+            });
         }
         if let Beta::Fixed(b) = self.beta {
             if !(b.is_finite() && b > 0.0) {
@@ -168,14 +171,32 @@ mod tests {
 
     #[test]
     fn each_rule_has_its_error() {
-        assert_eq!(KMeansParams::new(0).check().unwrap_err(), ParamsError::KTooSmall(0));
-        assert!(matches!(KMeansParams::new(70_000).check(), Err(ParamsError::KTooLarge { .. })));
+        assert_eq!(
+            KMeansParams::new(0).check().unwrap_err(),
+            ParamsError::KTooSmall(0)
+        );
+        assert!(matches!(
+            KMeansParams::new(70_000).check(),
+            Err(ParamsError::KTooLarge { .. })
+        ));
         for b in [0.0, -1.0, f64::NAN, f64::INFINITY] {
-            assert!(matches!(KMeansParams::new(3).beta(Beta::Fixed(b)).check(), Err(ParamsError::BadBeta(_))));
+            assert!(matches!(
+                KMeansParams::new(3).beta(Beta::Fixed(b)).check(),
+                Err(ParamsError::BadBeta(_))
+            ));
         }
-        assert!(matches!(KMeansParams::new(3).tolerance(f64::NAN).check(), Err(ParamsError::BadTolerance(_))));
-        assert!(matches!(KMeansParams::new(3).max_iter(0).check(), Err(ParamsError::BadMaxIter(0))));
-        assert!(matches!(KMeansParams::new(3).restarts(0).check(), Err(ParamsError::BadRestarts(0))));
+        assert!(matches!(
+            KMeansParams::new(3).tolerance(f64::NAN).check(),
+            Err(ParamsError::BadTolerance(_))
+        ));
+        assert!(matches!(
+            KMeansParams::new(3).max_iter(0).check(),
+            Err(ParamsError::BadMaxIter(0))
+        ));
+        assert!(matches!(
+            KMeansParams::new(3).restarts(0).check(),
+            Err(ParamsError::BadRestarts(0))
+        ));
         assert!(KMeansParams::new(3).beta(Beta::Fixed(0.5)).check().is_ok());
     }
 

@@ -77,7 +77,13 @@ fn responsibilities(d: &[f64], best: usize, beta: f64, r: &mut [f64]) -> f64 {
 
 /// Soft k-means from `init` means at sharpness `beta` until the relative change of the
 /// free energy is at most `tolerance` or `max_iter` iterations.
-pub fn soft_kmeans(data: &Dataset, init: &[f64], beta: f64, max_iter: usize, tolerance: f64) -> SoftResult {
+pub fn soft_kmeans(
+    data: &Dataset,
+    init: &[f64],
+    beta: f64,
+    max_iter: usize,
+    tolerance: f64,
+) -> SoftResult {
     let dim = data.dim();
     let k = init.len() / dim;
     let mut means = init.to_vec();
@@ -192,13 +198,15 @@ pub fn responsibility_matrix(data: &Dataset, means: &[f64], beta: f64) -> Vec<f6
     let dim = data.dim();
     let k = means.len() / dim;
     let mut out = vec![0.0f64; data.len() * k];
-    out.par_chunks_mut(k * CHUNK).enumerate().for_each(|(c, block)| {
-        let mut d = vec![0.0f64; k];
-        for (o, r) in block.chunks_mut(k).enumerate() {
-            let best = half_d2(data.row(c * CHUNK + o), means, dim, &mut d);
-            responsibilities(&d, best, beta, r);
-        }
-    });
+    out.par_chunks_mut(k * CHUNK)
+        .enumerate()
+        .for_each(|(c, block)| {
+            let mut d = vec![0.0f64; k];
+            for (o, r) in block.chunks_mut(k).enumerate() {
+                let best = half_d2(data.row(c * CHUNK + o), means, dim, &mut d);
+                responsibilities(&d, best, beta, r);
+            }
+        });
     out
 }
 

@@ -71,7 +71,9 @@ pub fn delta_e2000(lab1: [f64; 3], lab2: [f64; 3]) -> f64 {
         0.5 * (h1p + h2p - 360.0)
     };
     let rad = |deg: f64| deg * PI / 180.0;
-    let t = 1.0 - 0.17 * rad(h_bar - 30.0).cos() + 0.24 * rad(2.0 * h_bar).cos() + 0.32 * rad(3.0 * h_bar + 6.0).cos()
+    let t = 1.0 - 0.17 * rad(h_bar - 30.0).cos()
+        + 0.24 * rad(2.0 * h_bar).cos()
+        + 0.32 * rad(3.0 * h_bar + 6.0).cos()
         - 0.20 * rad(4.0 * h_bar - 63.0).cos();
     let d_theta = 30.0 * (-((h_bar - 275.0) / 25.0).powi(2)).exp();
     let cp_bar7 = cp_bar.powi(7);
@@ -84,7 +86,9 @@ pub fn delta_e2000(lab1: [f64; 3], lab2: [f64; 3]) -> f64 {
     let tl = dl / s_l;
     let tc = dc / s_c;
     let th = d_big_h / s_h;
-    (tl * tl + tc * tc + th * th + r_t * tc * th).max(0.0).sqrt()
+    (tl * tl + tc * tc + th * th + r_t * tc * th)
+        .max(0.0)
+        .sqrt()
 }
 
 #[cfg(test)]

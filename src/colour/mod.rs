@@ -96,7 +96,8 @@ fn tables() -> &'static Tables {
         for j in 0..3 {
             let mut e = [0.0f64; 3];
             e[j] = 1.0;
-            let xyz: Xyz<palette::white_point::D65, f64> = LinSrgb::new(e[0], e[1], e[2]).into_color();
+            let xyz: Xyz<palette::white_point::D65, f64> =
+                LinSrgb::new(e[0], e[1], e[2]).into_color();
             rgb_to_xyz[0][j] = xyz.x;
             rgb_to_xyz[1][j] = xyz.y;
             rgb_to_xyz[2][j] = xyz.z;
@@ -149,19 +150,30 @@ pub fn linear_to_lab(rgb: [f64; 3]) -> [f64; 3] {
 pub fn linear_to_oklab(rgb: [f64; 3]) -> [f64; 3] {
     let t = tables();
     let lms = mul(&t.rgb_to_lms, rgb);
-    mul(&t.lms_to_oklab, [lms[0].cbrt(), lms[1].cbrt(), lms[2].cbrt()])
+    mul(
+        &t.lms_to_oklab,
+        [lms[0].cbrt(), lms[1].cbrt(), lms[2].cbrt()],
+    )
 }
 
 /// Decodes 8-bit sRGB to linear RGB through the lookup table.
 pub fn srgb8_to_linear(c: [u8; 3]) -> [f64; 3] {
     let t = tables();
-    [t.lin8[c[0] as usize], t.lin8[c[1] as usize], t.lin8[c[2] as usize]]
+    [
+        t.lin8[c[0] as usize],
+        t.lin8[c[1] as usize],
+        t.lin8[c[2] as usize],
+    ]
 }
 
 /// Decodes 16-bit sRGB to linear RGB through the lookup table.
 pub fn srgb16_to_linear(c: [u16; 3]) -> [f64; 3] {
     let t = tables();
-    [t.lin16[c[0] as usize], t.lin16[c[1] as usize], t.lin16[c[2] as usize]]
+    [
+        t.lin16[c[0] as usize],
+        t.lin16[c[1] as usize],
+        t.lin16[c[2] as usize],
+    ]
 }
 
 /// 8-bit sRGB to CIELAB (D65).
@@ -185,7 +197,9 @@ pub fn linear_to_space(rgb: [f64; 3], space: Space) -> [f64; 3] {
 /// A point of `space` back to linear sRGB (not clipped).
 pub fn space_to_linear(v: [f64; 3], space: Space) -> [f64; 3] {
     let lin: LinSrgb<f64> = match space {
-        Space::Cielab => LinSrgb::from_color(Lab::<palette::white_point::D65, f64>::new(v[0], v[1], v[2])),
+        Space::Cielab => {
+            LinSrgb::from_color(Lab::<palette::white_point::D65, f64>::new(v[0], v[1], v[2]))
+        }
         Space::Oklab => LinSrgb::from_color(Oklab::<f64>::new(v[0], v[1], v[2])),
     };
     [lin.red, lin.green, lin.blue]
@@ -194,7 +208,11 @@ pub fn space_to_linear(v: [f64; 3], space: Space) -> [f64; 3] {
 /// Linear sRGB to 8-bit sRGB, clipping each channel to the gamut.
 pub fn linear_to_srgb8(rgb: [f64; 3]) -> [u8; 3] {
     let enc = |v: f64| {
-        let v = if v.is_finite() { v.clamp(0.0, 1.0) } else { 0.0 };
+        let v = if v.is_finite() {
+            v.clamp(0.0, 1.0)
+        } else {
+            0.0
+        };
         (linear_to_srgb(v) * 255.0).round().clamp(0.0, 255.0) as u8
     };
     [enc(rgb[0]), enc(rgb[1]), enc(rgb[2])]
@@ -222,13 +240,17 @@ pub fn parse_hex(s: &str) -> Result<[u8; 3], String> {
 
 /// The `palette` crate's own CIELAB for an 8-bit sRGB colour (reference path, slow).
 pub fn reference_srgb8_to_lab(c: [u8; 3]) -> [f64; 3] {
-    let lab: Lab<palette::white_point::D65, f64> = Srgb::new(c[0], c[1], c[2]).into_format::<f64>().into_color();
+    let lab: Lab<palette::white_point::D65, f64> = Srgb::new(c[0], c[1], c[2])
+        .into_format::<f64>()
+        .into_color();
     [lab.l, lab.a, lab.b]
 }
 
 /// The `palette` crate's own OKLab for an 8-bit sRGB colour (reference path, slow).
 pub fn reference_srgb8_to_oklab(c: [u8; 3]) -> [f64; 3] {
-    let ok: Oklab<f64> = Srgb::new(c[0], c[1], c[2]).into_format::<f64>().into_color();
+    let ok: Oklab<f64> = Srgb::new(c[0], c[1], c[2])
+        .into_format::<f64>()
+        .into_color();
     [ok.l, ok.a, ok.b]
 }
 
@@ -262,8 +284,14 @@ mod tests {
                 }
             }
         }
-        assert!(worst < 0.001, "CIELAB fast path differs from palette by {worst} ΔE*ab");
-        assert!(worst_ok < 1e-5, "OKLab fast path differs from palette by {worst_ok}");
+        assert!(
+            worst < 0.001,
+            "CIELAB fast path differs from palette by {worst} ΔE*ab"
+        );
+        assert!(
+            worst_ok < 1e-5,
+            "OKLab fast path differs from palette by {worst_ok}"
+        );
     }
 
     #[test]
@@ -284,7 +312,10 @@ mod tests {
         // A CIELAB point far outside sRGB: saturated beyond the red primary.
         let c = space_to_srgb8([50.0, 120.0, 90.0], Space::Cielab);
         assert_eq!(c[0], 255);
-        assert_eq!(space_to_srgb8([150.0, 0.0, 0.0], Space::Cielab), [255, 255, 255]);
+        assert_eq!(
+            space_to_srgb8([150.0, 0.0, 0.0], Space::Cielab),
+            [255, 255, 255]
+        );
         assert_eq!(space_to_srgb8([-5.0, 0.0, 0.0], Space::Cielab), [0, 0, 0]);
     }
 

@@ -6,15 +6,26 @@ use std::process::{Command, Output};
 
 /// Path of a file under `fixtures/`.
 pub fn fixture(rel: &str) -> PathBuf {
-    Path::new(env!("CARGO_MANIFEST_DIR")).join("fixtures").join(rel)
+    Path::new(env!("CARGO_MANIFEST_DIR"))
+        .join("fixtures")
+        .join(rel)
 }
 
 /// Rows of a reference CSV: `#` comment lines skipped, header returned separately.
 pub fn read_csv(rel: &str) -> (Vec<String>, Vec<Vec<String>>) {
     let text = std::fs::read_to_string(fixture(rel)).unwrap();
-    let mut lines = text.lines().filter(|l| !l.starts_with('#') && !l.trim().is_empty());
-    let header = lines.next().unwrap().split(',').map(str::to_string).collect();
-    let rows = lines.map(|l| l.split(',').map(str::to_string).collect()).collect();
+    let mut lines = text
+        .lines()
+        .filter(|l| !l.starts_with('#') && !l.trim().is_empty());
+    let header = lines
+        .next()
+        .unwrap()
+        .split(',')
+        .map(str::to_string)
+        .collect();
+    let rows = lines
+        .map(|l| l.split(',').map(str::to_string).collect())
+        .collect();
     (header, rows)
 }
 
@@ -36,7 +47,11 @@ pub fn stderr(o: &Output) -> String {
 /// Files in a folder, sorted (empty when it does not exist).
 pub fn files_in(dir: &Path) -> Vec<String> {
     let mut v: Vec<String> = std::fs::read_dir(dir)
-        .map(|rd| rd.filter_map(|e| e.ok()).map(|e| e.file_name().to_string_lossy().into_owned()).collect())
+        .map(|rd| {
+            rd.filter_map(|e| e.ok())
+                .map(|e| e.file_name().to_string_lossy().into_owned())
+                .collect()
+        })
         .unwrap_or_default();
     v.sort();
     v
