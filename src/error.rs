@@ -46,6 +46,14 @@ pub enum Error {
     #[error("{path}: {message}")]
     InputData { path: PathBuf, message: String },
 
+    /// An ink library (or another table the user supplies) has a problem at a line.
+    #[error("{path}: {}{message}", line.map(|l| format!("line {l}: ")).unwrap_or_default())]
+    Table {
+        path: PathBuf,
+        line: Option<usize>,
+        message: String,
+    },
+
     /// The data gave the algorithm nothing to work with.
     #[error("{0}")]
     Data(String),

@@ -11,12 +11,16 @@ pub mod cluster;
 pub mod colour;
 pub mod error;
 pub mod histogram;
+pub mod inks;
 pub mod limits;
 pub mod output;
 pub mod raster;
 pub mod reduce;
+pub mod regions;
 pub mod render;
 pub mod rng;
+pub mod select;
+pub mod separate;
 
 pub use error::{Error, ParamsError, Result};
 pub use limits::Limits;

@@ -66,5 +66,30 @@ fn main() -> ExitCode {
                 Err(e) => fail(e),
             }
         }
+        Command::Separate(args) => {
+            let opts = args.options();
+            match chromasift::separate::separate_file(&args.input, &args.inks, &args.out, &opts) {
+                Ok(report) => {
+                    eprintln!("{}", chromasift::separate::summary_table(&report.document));
+                    eprintln!(
+                        "chromasift: {}: {} plates written in {:.2} s",
+                        args.input.display(),
+                        report.document.inks.len(),
+                        report.seconds
+                    );
+                    if args.json {
+                        let mut out = std::io::stdout().lock();
+                        let _ = writeln!(
+                            out,
+                            "{}",
+                            serde_json::to_string_pretty(&report.document)
+                                .expect("document serialises")
+                        );
+                    }
+                    ExitCode::SUCCESS
+                }
+                Err(e) => fail(e),
+            }
+        }
     }
 }

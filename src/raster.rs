@@ -23,6 +23,9 @@ pub struct Decoded {
     pub pixels: Pixels,
     /// True when the source carried an alpha channel.
     pub has_alpha: bool,
+    /// Print resolution recorded in the file (PNG pHYs in metres, JPEG JFIF density), in
+    /// dots per inch.
+    pub dpi: Option<f64>,
 }
 
 impl Decoded {
@@ -55,8 +58,48 @@ impl Decoded {
             height,
             pixels: Pixels::Rgba8(rgba),
             has_alpha,
+            dpi: None,
         }
     }
+}
+
+/// Reads the print resolution from a PNG pHYs chunk (unit: metre) or a JPEG JFIF header,
+/// in dots per inch. Returns `None` when the file records none.
+pub fn sniff_dpi(bytes: &[u8]) -> Option<f64> {
+    const PNG_SIG: &[u8] = b"\x89PNG\r\n\x1a\n";
+    if bytes.starts_with(PNG_SIG) {
+        let mut pos = 8usize;
+        while pos + 8 <= bytes.len() {
+            let len = u32::from_be_bytes(bytes[pos..pos + 4].try_into().ok()?) as usize;
+            let kind = &bytes[pos + 4..pos + 8];
+            let data = bytes.get(pos + 8..pos.checked_add(8)?.checked_add(len)?)?;
+            if kind == b"pHYs" && len == 9 {
+                let x = u32::from_be_bytes(data[0..4].try_into().ok()?) as f64;
+                return (data[8] == 1 && x > 0.0).then_some(x * 0.0254);
+            }
+            if kind == b"IDAT" || kind == b"IEND" {
+                return None;
+            }
+            pos = pos.checked_add(12)?.checked_add(len)?;
+        }
+        return None;
+    }
+    if bytes.len() >= 18
+        && bytes[0] == 0xff
+        && bytes[1] == 0xd8
+        && bytes[2] == 0xff
+        && bytes[3] == 0xe0
+        && &bytes[6..11] == b"JFIF\0"
+    {
+        let units = bytes[13];
+        let x = u16::from_be_bytes([bytes[14], bytes[15]]) as f64;
+        return match units {
+            1 if x > 0.0 => Some(x),
+            2 if x > 0.0 => Some(x * 2.54),
+            _ => None,
+        };
+    }
+    None
 }
 
 fn decode_error(path: &Path, e: image::ImageError) -> Error {
@@ -152,7 +195,9 @@ pub fn decode_bytes(bytes: &[u8], name: &Path, limits: &Limits) -> Result<Decode
     il.max_alloc = Some(limits.max_alloc);
     reader.limits(il);
     let img = reader.decode().map_err(|e| decode_error(name, e))?;
-    Ok(from_dynamic(img))
+    let mut d = from_dynamic(img);
+    d.dpi = sniff_dpi(bytes);
+    Ok(d)
 }
 
 fn from_dynamic(img: DynamicImage) -> Decoded {
@@ -178,6 +223,7 @@ fn from_dynamic(img: DynamicImage) -> Decoded {
         height,
         pixels,
         has_alpha,
+        dpi: None,
     }
 }
 

@@ -20,6 +20,20 @@ Writes STEM.reduced.png, STEM.palette.json, STEM.palette.csv and STEM.uncertaint
 
 Exit status: 0 success, 2 bad parameters or unreadable input (nothing is written).";
 
+const SEPARATE_EXAMPLES: &str = "\
+Examples:
+  chromasift separate fixtures/demo/harbour-poster.png --inks fixtures/demo/quayside-inks.csv -k 4 -o plates/
+  chromasift separate artwork.png --inks shop-inks.csv --use \"Night Black,Harbour Blue\" -k 3 \\
+      --substrate \"#ffffff\" --min-area 24 --trap 2 -o plates/
+
+Writes STEM.separation.json, one STEM.plate-NN-<ink>.png per ink (black = ink, lightest
+ink first), STEM.proof.png and STEM.swatches.svg into the output folder.
+
+Ink library: CSV with a header, name,L,a,b (measured CIELAB, D50) or name,hex (sRGB),
+or a JSON array of objects with the same fields.
+
+Exit status: 0 success, 2 bad parameters, library or input (nothing is written).";
+
 /// Split images into a few colours or classes with perceptual k-means.
 #[derive(Debug, Parser)]
 #[command(name = "chromasift", version, about, propagate_version = true)]
@@ -35,6 +49,93 @@ pub enum Command {
     /// uncertainty map.
     #[command(after_help = REDUCE_EXAMPLES)]
     Reduce(ReduceArgs),
+
+    /// Separate artwork into plates, one per ink, choosing the best K inks of a library.
+    #[command(after_help = SEPARATE_EXAMPLES)]
+    Separate(SeparateArgs),
+}
+
+/// Flags of `separate`.
+#[derive(Debug, Args, Clone)]
+pub struct SeparateArgs {
+    /// Artwork to separate (sRGB; PNG, JPEG, TIFF, WebP, BMP, GIF).
+    pub input: PathBuf,
+
+    /// Ink library: CSV (name,L,a,b in CIELAB D50, or name,hex) or JSON.
+    #[arg(long, value_name = "FILE")]
+    pub inks: PathBuf,
+
+    /// Number of inks to choose (inks named with --use count toward it).
+    #[arg(short = 'k', long = "k", default_value_t = 4, value_name = "K")]
+    pub k: usize,
+
+    /// Inks that must be used, by name, separated by commas.
+    #[arg(long = "use", value_name = "NAMES", value_delimiter = ',')]
+    pub use_inks: Vec<String>,
+
+    /// Use every ink in the library as given (no choice).
+    #[arg(long, conflicts_with = "k")]
+    pub all: bool,
+
+    /// Paper or garment colour (#rrggbb): pixels nearer to it than to any ink get no ink.
+    #[arg(long, value_name = "COLOUR", value_parser = parse_colour)]
+    pub substrate: Option<[u8; 3]>,
+
+    /// Smallest region (8-connected) any plate may hold, in pixels; smaller islands join
+    /// the neighbour they share the longest border with.
+    #[arg(long = "min-area", default_value_t = crate::separate::DEFAULT_MIN_AREA, value_name = "PX")]
+    pub min_area: usize,
+
+    /// Trap width in pixels: lighter inks spread under darker neighbours.
+    #[arg(long, default_value_t = 0, value_name = "PX")]
+    pub trap: u32,
+
+    /// Print resolution in dots per inch, for areas in cm² (default: from the file).
+    #[arg(long, value_name = "DPI")]
+    pub dpi: Option<f64>,
+
+    /// Seed of the k-means start of the ink search.
+    #[arg(long, default_value_t = DEFAULT_SEED)]
+    pub seed: u64,
+
+    /// Output folder (created if missing).
+    #[arg(short = 'o', long = "out", default_value = ".", value_name = "DIR")]
+    pub out: PathBuf,
+
+    /// Refuse images with more pixels than this (checked from the header).
+    #[arg(long = "max-pixels", default_value_t = Limits::default().max_pixels, value_name = "N")]
+    pub max_pixels: u64,
+
+    /// Print the separation document on standard output.
+    #[arg(long)]
+    pub json: bool,
+}
+
+/// Parses `#rrggbb`.
+pub fn parse_colour(s: &str) -> Result<[u8; 3], String> {
+    crate::colour::parse_hex(s)
+}
+
+impl SeparateArgs {
+    /// The library options these flags ask for.
+    pub fn options(&self) -> crate::separate::SeparateOptions {
+        crate::separate::SeparateOptions {
+            k: self.k,
+            use_inks: self
+                .use_inks
+                .iter()
+                .map(|s| s.trim().to_string())
+                .filter(|s| !s.is_empty())
+                .collect(),
+            all: self.all,
+            substrate: self.substrate,
+            min_area: self.min_area,
+            trap: self.trap,
+            dpi: self.dpi,
+            seed: self.seed,
+            limits: Limits::with_max_pixels(self.max_pixels),
+        }
+    }
 }
 
 /// Flags of `reduce`.
@@ -131,6 +232,7 @@ mod tests {
         v.extend_from_slice(args);
         match Cli::try_parse_from(v).unwrap().command {
             Command::Reduce(r) => r,
+            other => panic!("{other:?}"),
         }
     }
 
@@ -164,6 +266,51 @@ mod tests {
         assert_eq!(reduce(&["--max-pixels", "100"]).max_pixels, 100);
         assert!(reduce(&["--uncertainty-raw"]).uncertainty_raw);
         assert!(reduce(&["--json"]).json);
+    }
+
+    fn separate(args: &[&str]) -> SeparateArgs {
+        let mut v = vec!["chromasift", "separate", "art.png", "--inks", "inks.csv"];
+        v.extend_from_slice(args);
+        match Cli::try_parse_from(v).unwrap().command {
+            Command::Separate(s) => s,
+            other => panic!("{other:?}"),
+        }
+    }
+
+    #[test]
+    fn separate_flags_parse() {
+        let d = separate(&[]);
+        assert_eq!(d.options(), crate::separate::SeparateOptions::default());
+        assert_eq!(d.inks, PathBuf::from("inks.csv"));
+        assert_eq!(separate(&["-k", "3"]).k, 3);
+        assert_eq!(
+            separate(&["--use", "Night Black, Harbour Blue"])
+                .options()
+                .use_inks,
+            vec!["Night Black", "Harbour Blue"]
+        );
+        assert!(separate(&["--all"]).all);
+        assert_eq!(
+            separate(&["--substrate", "#ffeedd"]).substrate,
+            Some([0xff, 0xee, 0xdd])
+        );
+        assert_eq!(separate(&["--min-area", "24"]).min_area, 24);
+        assert_eq!(separate(&["--trap", "2"]).trap, 2);
+        assert_eq!(separate(&["--dpi", "300"]).dpi, Some(300.0));
+        assert_eq!(separate(&["--seed", "5"]).seed, 5);
+        assert_eq!(separate(&["-o", "plates"]).out, PathBuf::from("plates"));
+        assert_eq!(separate(&["--max-pixels", "9"]).max_pixels, 9);
+        assert!(separate(&["--json"]).json);
+        let bad = [
+            "chromasift",
+            "separate",
+            "a.png",
+            "--inks",
+            "i.csv",
+            "--substrate",
+            "white",
+        ];
+        assert!(Cli::try_parse_from(bad).is_err());
     }
 
     #[test]

@@ -5,6 +5,7 @@
 //! here are read from it once, and the fast path (transfer-function lookup tables,
 //! applied once per distinct colour) is tested to agree with it.
 
+pub mod adapt;
 pub mod delta_e;
 
 use palette::{FromColor, IntoColor, Lab, LinSrgb, Oklab, Srgb, Xyz};
@@ -44,7 +45,8 @@ impl std::str::FromStr for Space {
     }
 }
 
-type Mat3 = [[f64; 3]; 3];
+/// A 3 × 3 matrix, rows first.
+pub type Mat3 = [[f64; 3]; 3];
 
 struct Tables {
     lin8: [f64; 256],
@@ -73,7 +75,8 @@ pub fn linear_to_srgb(v: f64) -> f64 {
     }
 }
 
-fn mul(m: &Mat3, v: [f64; 3]) -> [f64; 3] {
+/// Matrix times column vector.
+pub fn mul(m: &Mat3, v: [f64; 3]) -> [f64; 3] {
     [
         m[0][0] * v[0] + m[0][1] * v[1] + m[0][2] * v[2],
         m[1][0] * v[0] + m[1][1] * v[1] + m[1][2] * v[2],
@@ -136,14 +139,55 @@ fn lab_f(t: f64) -> f64 {
     }
 }
 
+/// Linear sRGB (0..1) to CIE XYZ (D65, Y = 1 for white).
+pub fn linear_to_xyz(rgb: [f64; 3]) -> [f64; 3] {
+    mul(&tables().rgb_to_xyz, rgb)
+}
+
+/// The sRGB → XYZ (D65) matrix in use (read from `palette`).
+pub fn rgb_to_xyz_matrix() -> Mat3 {
+    tables().rgb_to_xyz
+}
+
+/// The D65 white used for CIELAB (CIE 15:2004 table values, as in `palette`).
+pub fn d65_white() -> [f64; 3] {
+    tables().white
+}
+
+/// CIE XYZ to CIELAB relative to `white` (CIE 15:2004).
+pub fn xyz_to_lab(xyz: [f64; 3], white: [f64; 3]) -> [f64; 3] {
+    let fx = lab_f(xyz[0] / white[0]);
+    let fy = lab_f(xyz[1] / white[1]);
+    let fz = lab_f(xyz[2] / white[2]);
+    [116.0 * fy - 16.0, 500.0 * (fx - fy), 200.0 * (fy - fz)]
+}
+
+/// CIELAB relative to `white` back to CIE XYZ (CIE 15:2004).
+pub fn lab_to_xyz(lab: [f64; 3], white: [f64; 3]) -> [f64; 3] {
+    const E: f64 = 216.0 / 24389.0;
+    const K: f64 = 24389.0 / 27.0;
+    let fy = (lab[0] + 16.0) / 116.0;
+    let fx = fy + lab[1] / 500.0;
+    let fz = fy - lab[2] / 200.0;
+    let inv = |f: f64| {
+        if f * f * f > E {
+            f * f * f
+        } else {
+            (116.0 * f - 16.0) / K
+        }
+    };
+    let yr = if lab[0] > K * E {
+        fy * fy * fy
+    } else {
+        lab[0] / K
+    };
+    [inv(fx) * white[0], yr * white[1], inv(fz) * white[2]]
+}
+
 /// Linear sRGB (0..1) to CIELAB (D65).
 pub fn linear_to_lab(rgb: [f64; 3]) -> [f64; 3] {
     let t = tables();
-    let xyz = mul(&t.rgb_to_xyz, rgb);
-    let fx = lab_f(xyz[0] / t.white[0]);
-    let fy = lab_f(xyz[1] / t.white[1]);
-    let fz = lab_f(xyz[2] / t.white[2]);
-    [116.0 * fy - 16.0, 500.0 * (fx - fy), 200.0 * (fy - fz)]
+    xyz_to_lab(mul(&t.rgb_to_xyz, rgb), t.white)
 }
 
 /// Linear sRGB (0..1) to OKLab.

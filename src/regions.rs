@@ -1,0 +1,1558 @@
+//! Regions of a label image, and the two clean-ups that ink separation for screen printing needs:
+//! merging regions too small to print into a neighbour, and trapping (each ink spreading a few
+//! pixels under its darker neighbours).
+//!
+//! A label image is `width × height` labels (`u16`) in raster order: row by row, top row first,
+//! so pixel `(x, y)` is at index `y * width + x`. Connectivity is 8-neighbour throughout. Pixels
+//! labelled [`FIXED`] take no part. Every size, area and distance here is in pixels.
+//!
+//! Nothing here recurses: regions are found by a two-pass union-find labelling and, while merging,
+//! by flood fills with an explicit stack. Trapping uses an exact Euclidean distance transform
+//! (a bounded column scan followed by the lower envelope of parabolas of Felzenszwalb &
+//! Huttenlocher 2012, evaluated with exact integer arithmetic), computed in bands of rows in
+//! parallel. Every result is a function of the input alone, whatever the thread count.
+
+use rayon::prelude::*;
+use std::ops::{Add, Mul, Sub};
+
+/// Label of a pixel that is fixed: never changed, never merged into, never trapped (e.g. transparent).
+pub const FIXED: u16 = u16::MAX;
+
+/// What [`merge_small_regions`] did.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
+pub struct MergeStats {
+    /// Number of merges: each one relabels a whole region (of fewer than `min_area` pixels) to
+    /// the label of a neighbour.
+    pub merged: usize,
+    /// Regions still smaller than `min_area` pixels at the end. Each of them touches only
+    /// [`FIXED`] pixels and the image edge, so there was nothing to merge it into.
+    pub kept_isolated: usize,
+    /// Passes run. Each pass labels the regions afresh and visits every region then smaller than
+    /// `min_area` pixels; the last pass is the one after which nothing below `min_area` can be
+    /// merged. 0 when nothing was examined (`min_area <= 1`, an empty image, or a label slice
+    /// whose length is not `width * height`).
+    pub passes: usize,
+}
+
+/// `Some(width * height)` when the label slice has exactly that many pixels.
+fn pixel_count(len: usize, width: usize, height: usize) -> Option<usize> {
+    width.checked_mul(height).filter(|&n| n == len)
+}
+
+/// Writes the in-bounds 8-neighbours of pixel `p` into `out` and returns how many there are.
+/// `width` and `height` are at least 1 and `p < width * height`.
+#[inline]
+fn neighbours8(p: usize, width: usize, height: usize, out: &mut [usize; 8]) -> usize {
+    let x = p % width;
+    let y = p / width;
+    let x0 = x.saturating_sub(1);
+    let x1 = (x + 1).min(width - 1);
+    let y0 = y.saturating_sub(1);
+    let y1 = (y + 1).min(height - 1);
+    let mut k = 0;
+    for yy in y0..=y1 {
+        for xx in x0..=x1 {
+            if xx != x || yy != y {
+                out[k] = yy * width + xx;
+                k += 1;
+            }
+        }
+    }
+    k
+}
+
+// ---------------------------------------------------------------------------------------------
+// Connected regions
+// ---------------------------------------------------------------------------------------------
+
+/// A pixel index type for the per-pixel arrays: `u32` for images up to 2³² − 1 pixels (4 bytes
+/// per pixel), `usize` above that.
+trait PixelIndex: Copy + Ord + Send + Sync {
+    fn from_usize(i: usize) -> Self;
+    fn get(self) -> usize;
+}
+
+impl PixelIndex for u32 {
+    #[inline]
+    fn from_usize(i: usize) -> Self {
+        i as u32
+    }
+    #[inline]
+    fn get(self) -> usize {
+        self as usize
+    }
+}
+
+impl PixelIndex for usize {
+    #[inline]
+    fn from_usize(i: usize) -> Self {
+        i
+    }
+    #[inline]
+    fn get(self) -> usize {
+        self
+    }
+}
+
+/// Root of `x` with path halving. Every parent index is at most its child's index, so a root is
+/// the smallest pixel index of its set.
+#[inline]
+fn find<I: PixelIndex>(parent: &mut [I], mut x: usize) -> usize {
+    loop {
+        let p = parent[x].get();
+        if p == x {
+            return x;
+        }
+        let gp = parent[p].get();
+        if gp == p {
+            return p;
+        }
+        parent[x] = I::from_usize(gp);
+        x = gp;
+    }
+}
+
+/// Joins the sets of `a` and `b`; the root with the smaller index becomes the root of both.
+#[inline]
+fn union<I: PixelIndex>(parent: &mut [I], a: usize, b: usize) {
+    let ra = find(parent, a);
+    let rb = find(parent, b);
+    if ra < rb {
+        parent[rb] = I::from_usize(ra);
+    } else if rb < ra {
+        parent[ra] = I::from_usize(rb);
+    }
+}
+
+/// Calls `visit(label, size, first)` for every 8-connected region ([`FIXED`] excluded), in
+/// raster order of the regions' first pixels. `labels.len() == width * height`.
+///
+/// Two-pass labelling with union-find (scan with the already-visited neighbours W, NW, N, NE,
+/// then a flattening pass that numbers the regions); uses one index per pixel.
+fn components<I: PixelIndex>(
+    labels: &[u16],
+    width: usize,
+    height: usize,
+    mut visit: impl FnMut(u16, usize, usize),
+) {
+    let n = labels.len();
+    let mut parent: Vec<I> = vec![I::from_usize(0); n];
+    for y in 0..height {
+        let row = y * width;
+        for x in 0..width {
+            let p = row + x;
+            let l = labels[p];
+            if l == FIXED {
+                continue;
+            }
+            parent[p] = I::from_usize(p);
+            if y > 0 && labels[p - width] == l {
+                // N touches NW, NE and W, so any of them with this label is already in N's set.
+                let r = find(&mut parent, p - width);
+                parent[p] = I::from_usize(r);
+            } else {
+                if x > 0 && labels[p - 1] == l {
+                    let r = find(&mut parent, p - 1);
+                    parent[p] = I::from_usize(r);
+                } else if x > 0 && y > 0 && labels[p - width - 1] == l {
+                    let r = find(&mut parent, p - width - 1);
+                    parent[p] = I::from_usize(r);
+                }
+                if y > 0 && x + 1 < width && labels[p - width + 1] == l {
+                    union(&mut parent, p, p - width + 1);
+                }
+            }
+        }
+    }
+    // Flatten in raster order, replacing each entry by its region's number. An entry points to a
+    // smaller index, whose entry already holds the region number; a root is a region's first pixel.
+    let mut first: Vec<I> = Vec::new();
+    let mut size: Vec<I> = Vec::new();
+    for p in 0..n {
+        if labels[p] == FIXED {
+            continue;
+        }
+        let q = parent[p].get();
+        let id = if q == p {
+            first.push(I::from_usize(p));
+            size.push(I::from_usize(0));
+            first.len() - 1
+        } else {
+            parent[q].get()
+        };
+        parent[p] = I::from_usize(id);
+        size[id] = I::from_usize(size[id].get() + 1);
+    }
+    drop(parent);
+    for (f, s) in first.iter().zip(&size) {
+        visit(labels[f.get()], s.get(), f.get());
+    }
+}
+
+/// Runs [`components`] with the narrowest index type that fits.
+fn for_each_region(
+    labels: &[u16],
+    width: usize,
+    height: usize,
+    visit: impl FnMut(u16, usize, usize),
+) {
+    if labels.len() <= u32::MAX as usize {
+        components::<u32>(labels, width, height, visit)
+    } else {
+        components::<usize>(labels, width, height, visit)
+    }
+}
+
+/// All 8-connected regions: (label, size in pixels, index of first pixel in raster order), FIXED excluded.
+///
+/// Regions are listed in raster order of their first pixels. Returns an empty list for an empty
+/// image or when `labels.len() != width * height`. Memory: 4 bytes per pixel plus the list.
+pub fn regions(labels: &[u16], width: usize, height: usize) -> Vec<(u16, usize, usize)> {
+    let mut out = Vec::new();
+    if pixel_count(labels.len(), width, height).is_none() {
+        return out;
+    }
+    for_each_region(labels, width, height, |l, s, f| out.push((l, s, f)));
+    out
+}
+
+// ---------------------------------------------------------------------------------------------
+// Merging small regions
+// ---------------------------------------------------------------------------------------------
+
+/// Flood-fill state reused across regions: a generation stamp per pixel (so nothing needs
+/// clearing between fills), the explicit stack, the region's pixels and its border counts.
+struct Flood {
+    stamp: Vec<u32>,
+    generation: u32,
+    stack: Vec<usize>,
+    pixels: Vec<usize>,
+    /// (neighbouring label, number of 8-neighbour pixel pairs between the region and it).
+    borders: Vec<(u16, usize)>,
+}
+
+impl Flood {
+    fn new(n: usize) -> Self {
+        Flood {
+            stamp: vec![0; n],
+            generation: 0,
+            stack: Vec::new(),
+            pixels: Vec::new(),
+            borders: Vec::new(),
+        }
+    }
+
+    fn next_generation(&mut self) -> u32 {
+        if self.generation == u32::MAX {
+            self.stamp.fill(0);
+            self.generation = 0;
+        }
+        self.generation += 1;
+        self.generation
+    }
+
+    /// Fills the current region (pixels of the current label of `seed`, 8-connected) from
+    /// `seed`. If it has fewer than `min_area` pixels, returns true with its pixels in
+    /// `self.pixels` and its border counts in `self.borders`; as soon as it reaches `min_area`
+    /// pixels, stops and returns false. `labels[seed] != FIXED`.
+    fn small_region(
+        &mut self,
+        labels: &[u16],
+        width: usize,
+        height: usize,
+        seed: usize,
+        min_area: usize,
+    ) -> bool {
+        let g = self.next_generation();
+        let l = labels[seed];
+        let mut nb = [0usize; 8];
+        self.stack.clear();
+        self.pixels.clear();
+        self.stamp[seed] = g;
+        self.stack.push(seed);
+        self.pixels.push(seed);
+        if self.pixels.len() >= min_area {
+            return false;
+        }
+        while let Some(p) = self.stack.pop() {
+            let k = neighbours8(p, width, height, &mut nb);
+            for &q in &nb[..k] {
+                if self.stamp[q] != g && labels[q] == l {
+                    self.stamp[q] = g;
+                    self.pixels.push(q);
+                    if self.pixels.len() >= min_area {
+                        return false;
+                    }
+                    self.stack.push(q);
+                }
+            }
+        }
+        // Every pixel pair (p inside, q outside) is seen once, from p.
+        self.borders.clear();
+        for &p in &self.pixels {
+            let k = neighbours8(p, width, height, &mut nb);
+            for &q in &nb[..k] {
+                let m = labels[q];
+                if self.stamp[q] != g && m != FIXED {
+                    match self.borders.iter_mut().find(|(lab, _)| *lab == m) {
+                        Some(entry) => entry.1 += 1,
+                        None => self.borders.push((m, 1)),
+                    }
+                }
+            }
+        }
+        true
+    }
+
+    /// The neighbouring label with the longest border (ties → the lower label), if any.
+    fn best_neighbour(&self) -> Option<u16> {
+        self.borders
+            .iter()
+            .max_by(|a, b| a.1.cmp(&b.1).then(b.0.cmp(&a.0)))
+            .map(|&(l, _)| l)
+    }
+}
+
+/// Merges every 8-connected region (pixels of one label, FIXED excluded) smaller than `min_area`
+/// pixels into the neighbouring label it shares the longest border with (border = number of
+/// 8-neighbour pixel pairs between the region and pixels of that label; ties → the lower label value).
+/// Regions are processed smallest first (ties: first pixel in raster order), sequentially, using the
+/// current labels at the time each is processed; passes repeat until no region below min_area
+/// can be merged. A small region whose only neighbours are FIXED pixels or the image edge is kept
+/// (counted in kept_isolated). min_area <= 1 does nothing. `labels.len() == width*height`.
+///
+/// Details: a pass lists the regions of fewer than `min_area` pixels, ordered by (size, first
+/// pixel) as they are at the start of the pass. Each is then handled in turn as the region that
+/// now contains its first pixel (earlier merges may have grown it): if that region has reached
+/// `min_area` pixels it is left alone, otherwise all of it takes the winning neighbour's label.
+/// When `labels.len() != width * height` nothing is done and the stats are all zero.
+///
+/// Cost: one union-find labelling per pass (4 bytes per pixel), a 4-byte stamp per pixel, and
+/// flood fills that stop at `min_area` pixels.
+pub fn merge_small_regions(
+    labels: &mut [u16],
+    width: usize,
+    height: usize,
+    min_area: usize,
+) -> MergeStats {
+    if min_area <= 1 {
+        return MergeStats::default();
+    }
+    match pixel_count(labels.len(), width, height) {
+        Some(0) | None => MergeStats::default(),
+        Some(n) if n <= u32::MAX as usize => merge_impl::<u32>(labels, width, height, min_area),
+        Some(_) => merge_impl::<usize>(labels, width, height, min_area),
+    }
+}
+
+fn merge_impl<I: PixelIndex>(
+    labels: &mut [u16],
+    width: usize,
+    height: usize,
+    min_area: usize,
+) -> MergeStats {
+    let mut stats = MergeStats::default();
+    let mut flood: Option<Flood> = None;
+    loop {
+        stats.passes += 1;
+        // (size, first pixel) of every region below min_area, smallest first.
+        let mut small: Vec<(I, I)> = Vec::new();
+        components::<I>(labels, width, height, |_, size, first| {
+            if size < min_area {
+                small.push((I::from_usize(size), I::from_usize(first)));
+            }
+        });
+        if small.is_empty() {
+            stats.kept_isolated = 0;
+            return stats;
+        }
+        small.sort_unstable();
+        let flood = flood.get_or_insert_with(|| Flood::new(labels.len()));
+
+        let mut merged_now = 0;
+        for &(_, seed) in &small {
+            let seed = seed.get();
+            if !flood.small_region(labels, width, height, seed, min_area) {
+                continue;
+            }
+            if let Some(target) = flood.best_neighbour() {
+                for &p in &flood.pixels {
+                    labels[p] = target;
+                }
+                merged_now += 1;
+            }
+        }
+        stats.merged += merged_now;
+
+        // Which regions are still small now, and could any of them be merged? Every region
+        // below min_area is made only of regions that were below it at the start of the pass,
+        // so it contains one of the listed first pixels.
+        let (kept, mergeable) = still_small(flood, labels, width, height, &small, min_area);
+        if merged_now == 0 || !mergeable {
+            stats.kept_isolated = kept;
+            return stats;
+        }
+    }
+}
+
+/// Counts the distinct regions below `min_area` that contain one of the `small` first pixels,
+/// and says whether any of them has a neighbouring label (so could still be merged).
+fn still_small<I: PixelIndex>(
+    flood: &mut Flood,
+    labels: &[u16],
+    width: usize,
+    height: usize,
+    small: &[(I, I)],
+    min_area: usize,
+) -> (usize, bool) {
+    // Seeds already covered by an earlier fill of this check are skipped; that needs stamps that
+    // are not reset part-way, so make room for all the generations up front.
+    let room = u32::MAX - flood.generation;
+    let skip_covered = (small.len() as u64) < u32::MAX as u64 - 1;
+    if skip_covered && (room as u64) <= small.len() as u64 {
+        flood.stamp.fill(0);
+        flood.generation = 0;
+    }
+    let start = flood.generation + 1;
+    let mut firsts: Vec<usize> = Vec::new();
+    let mut mergeable = false;
+    for &(_, seed) in small {
+        let seed = seed.get();
+        if skip_covered && flood.stamp[seed] >= start {
+            continue;
+        }
+        if flood.small_region(labels, width, height, seed, min_area) {
+            firsts.push(flood.pixels.iter().copied().min().unwrap_or(seed));
+            mergeable |= !flood.borders.is_empty();
+        }
+    }
+    firsts.sort_unstable();
+    firsts.dedup();
+    (firsts.len(), mergeable)
+}
+
+// ---------------------------------------------------------------------------------------------
+// Trapping
+// ---------------------------------------------------------------------------------------------
+
+/// Integer type for the lower-envelope arithmetic: `i64` while both image sides are at most
+/// 2¹⁶ pixels (all products stay below 2⁵³), `i128` beyond.
+trait EnvelopeInt:
+    Copy + PartialOrd + From<i64> + Add<Output = Self> + Sub<Output = Self> + Mul<Output = Self>
+{
+}
+impl EnvelopeInt for i64 {}
+impl EnvelopeInt for i128 {}
+
+/// Largest image side (pixels) for which the `i64` envelope arithmetic cannot overflow.
+const I64_MAX_SIDE: usize = 1 << 16;
+
+/// Default number of pixels per band of rows in [`trap`].
+const BAND_PIXELS: usize = 1 << 18;
+
+/// Trapping for print: each ink spreads by `px` pixels (Euclidean distance between pixel centres
+/// <= px) into neighbouring regions of DARKER inks only. `lightness[l]` is the CIELAB L* of label l;
+/// `is_ink[l]` is false for labels that are not inks (e.g. the bare substrate), which neither spread
+/// nor receive spread. FIXED pixels never receive. Returns one coverage mask per label
+/// (`masks[l][p] == true` where plate l prints pixel p): its own pixels (if is_ink[l]) plus spread
+/// pixels. Equal lightness: neither spreads into the other. px = 0 → masks are exactly the own pixels
+/// (mutually exclusive). Use an exact Euclidean distance transform (Felzenszwalb & Huttenlocher) per
+/// ink, or another exact method; must be O(pixels) per ink, fast on 24-megapixel images.
+///
+/// Details:
+/// - There are `is_ink.len()` masks, each of `labels.len()` pixels. Labels at or beyond
+///   `is_ink.len()`, and [`FIXED`], are treated as non-inks. A non-ink's mask is all false.
+/// - An ink with no `lightness` entry, or a NaN one, neither spreads nor receives.
+/// - Ink `l` adds pixel `p` when `p`'s label is an ink strictly darker than `l` and some pixel of
+///   `l` lies within `px` pixels of `p` (straight-line distance between centres, whatever lies in
+///   between).
+/// - When `labels.len() != width * height` the geometry is unknown: the masks are the own pixels.
+///
+/// Cost: per spreading ink, two bounded column scans and one lower-envelope pass per row, so
+/// O(pixels) per ink whatever `px`; bands of rows run in parallel. Memory: the masks plus, per
+/// thread, 4 bytes per pixel of one band.
+pub fn trap(
+    labels: &[u16],
+    width: usize,
+    height: usize,
+    lightness: &[f64],
+    is_ink: &[bool],
+    px: u32,
+) -> Vec<Vec<bool>> {
+    trap_impl(labels, width, height, lightness, is_ink, px, None, false)
+}
+
+/// What one ink spreads into.
+struct Spread {
+    /// The spreading label.
+    ink: u16,
+    /// `into[m]`: label `m` receives from this ink.
+    into: Vec<bool>,
+}
+
+/// [`trap`] with test hooks: `band_rows` overrides the band height, `force_wide` uses `i128`.
+#[allow(clippy::too_many_arguments)]
+fn trap_impl(
+    labels: &[u16],
+    width: usize,
+    height: usize,
+    lightness: &[f64],
+    is_ink: &[bool],
+    px: u32,
+    band_rows: Option<usize>,
+    force_wide: bool,
+) -> Vec<Vec<bool>> {
+    let n = labels.len();
+    // FIXED is never an ink, even when is_ink is long enough to have an entry for it.
+    let ink: Vec<bool> = is_ink
+        .iter()
+        .enumerate()
+        .map(|(l, &b)| b && l != FIXED as usize)
+        .collect();
+    let nl = ink.len();
+    let mut masks: Vec<Vec<bool>> = (0..nl).map(|_| vec![false; n]).collect();
+    if n == 0 || nl == 0 {
+        return masks;
+    }
+    let (w, h, px) = match pixel_count(n, width, height) {
+        Some(_) => (width, height, px),
+        None => (n, 1, 0),
+    };
+
+    // No two pixel centres are farther apart than (w - 1) + (h - 1), so a larger px changes
+    // nothing; the cap keeps the capped column distances (px + 1) inside u32.
+    let reach = ((w - 1) as u64 + (h - 1) as u64).min(u32::MAX as u64 - 2);
+    let px = (px as u64).min(reach) as u32;
+
+    let lum = |l: usize| lightness.get(l).copied().unwrap_or(f64::NAN);
+    let spreads: Vec<Spread> = if px == 0 {
+        Vec::new()
+    } else {
+        (0..nl)
+            .filter(|&l| ink[l])
+            .filter_map(|l| {
+                let into: Vec<bool> = (0..nl).map(|m| ink[m] && lum(m) < lum(l)).collect();
+                into.iter().any(|&b| b).then_some(Spread {
+                    ink: l as u16,
+                    into,
+                })
+            })
+            .collect()
+    };
+
+    let rows = band_rows
+        .unwrap_or_else(|| (BAND_PIXELS / w).max(2 * px as usize))
+        .clamp(1, h);
+    let band_len = rows * w;
+    let bands = h.div_ceil(rows);
+    let mut per_band: Vec<Vec<&mut [bool]>> = (0..bands).map(|_| Vec::with_capacity(nl)).collect();
+    for mask in masks.iter_mut() {
+        for (b, chunk) in mask.chunks_mut(band_len).enumerate() {
+            per_band[b].push(chunk);
+        }
+    }
+    let job = Job {
+        labels,
+        w,
+        h,
+        rows,
+        px,
+        ink: &ink,
+        spreads: &spreads,
+    };
+    if force_wide || w.max(h) > I64_MAX_SIDE {
+        job.run::<i128>(per_band);
+    } else {
+        job.run::<i64>(per_band);
+    }
+    masks
+}
+
+/// The shared, read-only part of one [`trap`] call.
+struct Job<'a> {
+    labels: &'a [u16],
+    w: usize,
+    h: usize,
+    /// Rows per band.
+    rows: usize,
+    /// Spread distance (pixels), already capped to the image's extent.
+    px: u32,
+    ink: &'a [bool],
+    spreads: &'a [Spread],
+}
+
+/// Per-thread buffers for [`Job::band`].
+#[derive(Default)]
+struct Scratch {
+    /// Column distance (pixels, capped at px + 1) to the spreading ink, for the band's rows.
+    g: Vec<u32>,
+    /// The running column distances of one scan.
+    cur: Vec<u32>,
+}
+
+impl Job<'_> {
+    fn run<T: EnvelopeInt>(&self, per_band: Vec<Vec<&mut [bool]>>) {
+        per_band.into_par_iter().enumerate().for_each_init(
+            || (Scratch::default(), Envelope::<T>::new()),
+            |(scratch, env), (b, mut chunks)| self.band(b, &mut chunks, scratch, env),
+        );
+    }
+
+    /// Fills band `b` (rows `b * rows ..`) of every mask; `chunks[l]` is that part of mask `l`.
+    fn band<T: EnvelopeInt>(
+        &self,
+        b: usize,
+        chunks: &mut [&mut [bool]],
+        scratch: &mut Scratch,
+        env: &mut Envelope<T>,
+    ) {
+        let (w, h) = (self.w, self.h);
+        let nl = self.ink.len();
+        let r0 = b * self.rows;
+        let r1 = (r0 + self.rows).min(h);
+        let band_labels = &self.labels[r0 * w..r1 * w];
+        for (i, &l) in band_labels.iter().enumerate() {
+            let l = l as usize;
+            if l < nl && self.ink[l] {
+                chunks[l][i] = true;
+            }
+        }
+        if self.spreads.is_empty() {
+            return;
+        }
+
+        // Pixels of an ink more than px rows away cannot reach this band.
+        let reach = self.px as usize;
+        let h0 = r0.saturating_sub(reach);
+        let h1 = (r1 + reach).min(h);
+        let mut near = vec![false; nl];
+        let mut inside = vec![false; nl];
+        for (i, &l) in self.labels[h0 * w..h1 * w].iter().enumerate() {
+            let l = l as usize;
+            if l < nl {
+                near[l] = true;
+                if (r0 - h0) * w <= i && i < (r1 - h0) * w {
+                    inside[l] = true;
+                }
+            }
+        }
+
+        let cap = self.px + 1;
+        let px2 = T::from(self.px as i64 * self.px as i64);
+        for spread in self.spreads {
+            let l = spread.ink;
+            let any_target = spread.into.iter().zip(&inside).any(|(&a, &b)| a && b);
+            if !near[l as usize] || !any_target {
+                continue;
+            }
+            // Column distance to the nearest pixel of l, capped at px + 1 ("too far"): a scan
+            // down from px rows above the band, then a scan up from px rows below it.
+            let g = &mut scratch.g;
+            g.clear();
+            g.resize((r1 - r0) * w, cap);
+            let cur = &mut scratch.cur;
+            cur.clear();
+            cur.resize(w, cap);
+            for y in h0..r1 {
+                let lab = &self.labels[y * w..(y + 1) * w];
+                for (c, &m) in cur.iter_mut().zip(lab) {
+                    *c = if m == l { 0 } else { (*c + 1).min(cap) };
+                }
+                if y >= r0 {
+                    g[(y - r0) * w..(y - r0 + 1) * w].copy_from_slice(cur);
+                }
+            }
+            cur.fill(cap);
+            for y in (r0..h1).rev() {
+                let lab = &self.labels[y * w..(y + 1) * w];
+                for (c, &m) in cur.iter_mut().zip(lab) {
+                    *c = if m == l { 0 } else { (*c + 1).min(cap) };
+                }
+                if y < r1 {
+                    for (d, &c) in g[(y - r0) * w..(y - r0 + 1) * w].iter_mut().zip(cur.iter()) {
+                        *d = (*d).min(c);
+                    }
+                }
+            }
+            let mask = &mut *chunks[l as usize];
+            for i in 0..r1 - r0 {
+                env.spread_row(
+                    &g[i * w..(i + 1) * w],
+                    cap,
+                    &band_labels[i * w..(i + 1) * w],
+                    &spread.into,
+                    px2,
+                    &mut mask[i * w..(i + 1) * w],
+                );
+            }
+        }
+    }
+}
+
+/// Lower envelope of the parabolas `(x - q)² + g[q]²` of one row (Felzenszwalb & Huttenlocher
+/// 2012), in exact integer arithmetic: boundaries are kept as fractions and compared by
+/// cross-multiplication.
+struct Envelope<T> {
+    /// Positions q of the parabolas in the envelope, left to right.
+    v: Vec<usize>,
+    /// g[q]² + q² for each.
+    f: Vec<T>,
+    /// The boundary from which parabola k is the lowest: zn[k] / zd[k] (zd[k] > 0; unused for k = 0).
+    zn: Vec<T>,
+    zd: Vec<T>,
+}
+
+impl<T: EnvelopeInt> Envelope<T> {
+    fn new() -> Self {
+        Envelope {
+            v: Vec::new(),
+            f: Vec::new(),
+            zn: Vec::new(),
+            zd: Vec::new(),
+        }
+    }
+
+    /// Sets `out[x]` for every `x` whose label `m` has `into[m]` and whose squared distance to the
+    /// nearest pixel of the spreading ink, `min over q of (x - q)² + g[q]²`, is at most `px2`.
+    /// `g[q] >= cap` means no pixel of the ink within reach in column q.
+    fn spread_row(
+        &mut self,
+        g: &[u32],
+        cap: u32,
+        lab: &[u16],
+        into: &[bool],
+        px2: T,
+        out: &mut [bool],
+    ) {
+        self.v.clear();
+        self.f.clear();
+        self.zn.clear();
+        self.zd.clear();
+        let zero = T::from(0);
+        for (q, &gq) in g.iter().enumerate() {
+            if gq >= cap {
+                continue;
+            }
+            let qt = T::from(q as i64);
+            let gt = T::from(gq as i64);
+            let fq = gt * gt + qt * qt;
+            loop {
+                let k = match self.v.len() {
+                    0 => {
+                        self.v.push(q);
+                        self.f.push(fq);
+                        self.zn.push(zero);
+                        self.zd.push(T::from(1));
+                        break;
+                    }
+                    len => len - 1,
+                };
+                // Where parabola q starts to be lower than the last one: num / den.
+                let num = fq - self.f[k];
+                let den = T::from(2 * (q - self.v[k]) as i64);
+                if k > 0 && num * self.zd[k] <= self.zn[k] * den {
+                    // The last parabola is nowhere the lowest.
+                    self.v.pop();
+                    self.f.pop();
+                    self.zn.pop();
+                    self.zd.pop();
+                    continue;
+                }
+                self.v.push(q);
+                self.f.push(fq);
+                self.zn.push(num);
+                self.zd.push(den);
+                break;
+            }
+        }
+        if self.v.is_empty() {
+            return;
+        }
+        let mut k = 0;
+        for (x, (&m, o)) in lab.iter().zip(out.iter_mut()).enumerate() {
+            if !into.get(m as usize).copied().unwrap_or(false) {
+                continue;
+            }
+            let xt = T::from(x as i64);
+            while k + 1 < self.v.len() && self.zn[k + 1] < xt * self.zd[k + 1] {
+                k += 1;
+            }
+            let q = self.v[k];
+            let dx = T::from(x as i64 - q as i64);
+            let gq = T::from(g[q] as i64);
+            if dx * dx + gq * gq <= px2 {
+                *o = true;
+            }
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use std::collections::BTreeMap;
+
+    /// xorshift64* (Vigna 2016): a small seeded generator for the random label images.
+    struct XorShift(u64);
+
+    impl XorShift {
+        fn new(seed: u64) -> Self {
+            XorShift(seed.wrapping_mul(0x9E37_79B9_7F4A_7C15) | 1)
+        }
+        fn next(&mut self) -> u64 {
+            self.0 ^= self.0 >> 12;
+            self.0 ^= self.0 << 25;
+            self.0 ^= self.0 >> 27;
+            self.0.wrapping_mul(0x2545_F491_4F6C_DD1D)
+        }
+        fn below(&mut self, n: u64) -> u64 {
+            self.next() % n
+        }
+    }
+
+    /// Random blobs: a coarse grid of random labels, blurred edges from per-pixel noise, some
+    /// single-pixel specks, and (if `fixed`) some FIXED pixels.
+    fn blobs(seed: u64, w: usize, h: usize, n_labels: u16, fixed: bool) -> Vec<u16> {
+        let mut rng = XorShift::new(seed);
+        let cell = 1 + rng.below(6) as usize;
+        let gw = w / cell + 2;
+        let gh = h / cell + 2;
+        let grid: Vec<u16> = (0..gw * gh)
+            .map(|_| rng.below(n_labels as u64) as u16)
+            .collect();
+        let mut out = vec![0u16; w * h];
+        for y in 0..h {
+            for x in 0..w {
+                let jx = (x + rng.below(2) as usize) / cell;
+                let jy = (y + rng.below(2) as usize) / cell;
+                let r = rng.below(100);
+                out[y * w + x] = if fixed && r < 6 {
+                    FIXED
+                } else if r < 14 {
+                    rng.below(n_labels as u64) as u16
+                } else {
+                    grid[jy * gw + jx]
+                };
+            }
+        }
+        out
+    }
+
+    fn neighbours(p: usize, w: usize, h: usize) -> Vec<usize> {
+        let (x, y) = ((p % w) as i64, (p / w) as i64);
+        let mut v = Vec::new();
+        for dy in -1..=1i64 {
+            for dx in -1..=1i64 {
+                let (nx, ny) = (x + dx, y + dy);
+                if (dx, dy) != (0, 0) && nx >= 0 && ny >= 0 && nx < w as i64 && ny < h as i64 {
+                    v.push(ny as usize * w + nx as usize);
+                }
+            }
+        }
+        v
+    }
+
+    /// Plain breadth-first search: the pixels of the region containing `seed`, sorted.
+    fn region_of(labels: &[u16], w: usize, h: usize, seed: usize) -> Vec<usize> {
+        let l = labels[seed];
+        let mut seen = vec![false; labels.len()];
+        let mut queue = std::collections::VecDeque::from([seed]);
+        seen[seed] = true;
+        let mut out = Vec::new();
+        while let Some(p) = queue.pop_front() {
+            out.push(p);
+            for q in neighbours(p, w, h) {
+                if !seen[q] && labels[q] == l {
+                    seen[q] = true;
+                    queue.push_back(q);
+                }
+            }
+        }
+        out.sort_unstable();
+        out
+    }
+
+    /// Reference regions: (label, size, first pixel) by repeated breadth-first search.
+    fn reference_regions(labels: &[u16], w: usize, h: usize) -> Vec<(u16, usize, usize)> {
+        let mut done = vec![false; labels.len()];
+        let mut out = Vec::new();
+        for p in 0..labels.len() {
+            if labels[p] == FIXED || done[p] {
+                continue;
+            }
+            let r = region_of(labels, w, h, p);
+            for &q in &r {
+                done[q] = true;
+            }
+            out.push((labels[p], r.len(), p));
+        }
+        out
+    }
+
+    /// Border counts of a region: label → number of 8-neighbour pixel pairs.
+    fn borders(labels: &[u16], w: usize, h: usize, region: &[usize]) -> BTreeMap<u16, usize> {
+        let mut map = BTreeMap::new();
+        for &p in region {
+            for q in neighbours(p, w, h) {
+                if region.binary_search(&q).is_err() && labels[q] != FIXED {
+                    *map.entry(labels[q]).or_insert(0) += 1;
+                }
+            }
+        }
+        map
+    }
+
+    /// The merge rule written out literally, slowly: returns the number of merges.
+    fn reference_merge(labels: &mut [u16], w: usize, h: usize, min_area: usize) -> usize {
+        if min_area <= 1 {
+            return 0;
+        }
+        let mut merged = 0;
+        loop {
+            let mut small: Vec<(usize, usize)> = reference_regions(labels, w, h)
+                .into_iter()
+                .filter(|r| r.1 < min_area)
+                .map(|r| (r.1, r.2))
+                .collect();
+            small.sort();
+            let mut merged_now = 0;
+            for (_, seed) in small {
+                let region = region_of(labels, w, h, seed);
+                if region.len() >= min_area {
+                    continue;
+                }
+                let mut best: Option<(u16, usize)> = None;
+                for (l, c) in borders(labels, w, h, &region) {
+                    if best.is_none_or(|(_, bc)| c > bc) {
+                        best = Some((l, c));
+                    }
+                }
+                if let Some((l, _)) = best {
+                    for &p in &region {
+                        labels[p] = l;
+                    }
+                    merged_now += 1;
+                }
+            }
+            merged += merged_now;
+            if merged_now == 0 {
+                return merged;
+            }
+        }
+    }
+
+    fn grid(rows: &[&[u16]]) -> (Vec<u16>, usize, usize) {
+        let w = rows[0].len();
+        (rows.concat(), w, rows.len())
+    }
+
+    // ---- regions -----------------------------------------------------------------------------
+
+    #[test]
+    fn regions_use_8_connectivity_and_skip_fixed() {
+        let (l, w, h) = grid(&[&[1, 2, 1], &[2, 1, 2], &[1, 2, 1]]);
+        assert_eq!(regions(&l, w, h), vec![(1, 5, 0), (2, 4, 1)]);
+        let (l, w, h) = grid(&[&[1, 2, 1], &[2, FIXED, 2], &[1, 2, 1]]);
+        assert_eq!(
+            regions(&l, w, h),
+            vec![(1, 1, 0), (2, 4, 1), (1, 1, 2), (1, 1, 6), (1, 1, 8)]
+        );
+    }
+
+    #[test]
+    fn regions_join_branches_that_meet_late() {
+        // A U shape and a W shape: branches first seen apart are joined by a later row.
+        let (l, w, h) = grid(&[
+            &[3, 0, 3, 0, 3, 0, 0],
+            &[3, 0, 3, 0, 0, 3, 0],
+            &[3, 0, 3, 0, 0, 0, 3],
+            &[0, 3, 0, 3, 0, 3, 0],
+            &[0, 0, 0, 0, 3, 0, 0],
+        ]);
+        assert_eq!(regions(&l, w, h), reference_regions(&l, w, h));
+        let threes: Vec<_> = regions(&l, w, h).into_iter().filter(|r| r.0 == 3).collect();
+        assert_eq!(threes, vec![(3, 13, 0)]);
+    }
+
+    #[test]
+    fn regions_match_breadth_first_search_on_random_images() {
+        for seed in 0..40 {
+            let mut rng = XorShift::new(seed + 1000);
+            let w = 1 + rng.below(40) as usize;
+            let h = 1 + rng.below(30) as usize;
+            let l = blobs(seed, w, h, 1 + rng.below(6) as u16, seed % 2 == 0);
+            let r = regions(&l, w, h);
+            assert_eq!(r, reference_regions(&l, w, h), "seed {seed}");
+            let total: usize = r.iter().map(|x| x.1).sum();
+            assert_eq!(total, l.iter().filter(|&&x| x != FIXED).count());
+        }
+    }
+
+    #[test]
+    fn regions_of_degenerate_input() {
+        assert!(regions(&[], 0, 0).is_empty());
+        assert!(regions(&[], 0, 5).is_empty());
+        assert!(regions(&[], 5, 0).is_empty());
+        assert!(regions(&[1, 2, 3], 2, 2).is_empty());
+        assert!(regions(&[1, 2, 3], usize::MAX, 2).is_empty());
+        assert!(regions(&[FIXED; 4], 2, 2).is_empty());
+        assert_eq!(regions(&[7], 1, 1), vec![(7, 1, 0)]);
+        assert_eq!(
+            regions(&[7, 7, 8, 7], 4, 1),
+            vec![(7, 2, 0), (8, 1, 2), (7, 1, 3)]
+        );
+        assert_eq!(
+            regions(&[7, 7, 8, 7], 1, 4),
+            vec![(7, 2, 0), (8, 1, 2), (7, 1, 3)]
+        );
+    }
+
+    // ---- merge_small_regions -----------------------------------------------------------------
+
+    #[test]
+    fn speck_is_absorbed() {
+        let mut l = vec![4u16; 25];
+        l[12] = 9;
+        let s = merge_small_regions(&mut l, 5, 5, 2);
+        assert_eq!(l, vec![4u16; 25]);
+        assert_eq!(
+            s,
+            MergeStats {
+                merged: 1,
+                kept_isolated: 0,
+                passes: 1
+            }
+        );
+    }
+
+    #[test]
+    fn small_region_goes_to_longer_border() {
+        // The 3-block shares 14 pixel pairs with label 1 and 6 with label 2.
+        let (mut l, w, h) = grid(&[
+            &[1, 1, 1, 2, 2, 2],
+            &[1, 3, 3, 2, 2, 2],
+            &[1, 3, 3, 2, 2, 2],
+            &[1, 1, 1, 2, 2, 2],
+        ]);
+        let block = region_of(&l, w, h, 7);
+        assert_eq!(borders(&l, w, h, &block), BTreeMap::from([(1, 14), (2, 6)]));
+        let s = merge_small_regions(&mut l, w, h, 5);
+        let (want, _, _) = grid(&[
+            &[1, 1, 1, 2, 2, 2],
+            &[1, 1, 1, 2, 2, 2],
+            &[1, 1, 1, 2, 2, 2],
+            &[1, 1, 1, 2, 2, 2],
+        ]);
+        assert_eq!(l, want);
+        assert_eq!((s.merged, s.kept_isolated), (1, 0));
+    }
+
+    #[test]
+    fn border_tie_goes_to_lower_label() {
+        // The 9-pair shares 7 pixel pairs with label 7 (left) and 7 with label 4 (right).
+        let (mut l, w, h) = grid(&[&[7, 7, 4, 4], &[7, 9, 9, 4], &[7, 7, 4, 4]]);
+        let pair = region_of(&l, w, h, 5);
+        assert_eq!(borders(&l, w, h, &pair), BTreeMap::from([(4, 7), (7, 7)]));
+        merge_small_regions(&mut l, w, h, 3);
+        let (want, _, _) = grid(&[&[7, 7, 4, 4], &[7, 4, 4, 4], &[7, 7, 4, 4]]);
+        assert_eq!(l, want);
+    }
+
+    #[test]
+    fn regions_are_handled_smallest_first_with_current_labels() {
+        let f = FIXED;
+        // The single 1 goes first and joins the pair of 2s, which then has 3 pixels.
+        let (start, w, h) = grid(&[&[f, f, f, f, f], &[f, 1, 2, 2, f], &[f, f, f, f, f]]);
+        let mut l = start.clone();
+        let s = merge_small_regions(&mut l, w, h, 3);
+        let (want, _, _) = grid(&[&[f, f, f, f, f], &[f, 2, 2, 2, f], &[f, f, f, f, f]]);
+        assert_eq!(l, want);
+        assert_eq!(
+            s,
+            MergeStats {
+                merged: 1,
+                kept_isolated: 0,
+                passes: 1
+            }
+        );
+        // With min_area 4 the grown region (3 pixels) has nowhere to go: kept.
+        let mut l = start.clone();
+        let s = merge_small_regions(&mut l, w, h, 4);
+        assert_eq!(l, want);
+        assert_eq!((s.merged, s.kept_isolated), (1, 1));
+        // Equal sizes: the first pixel in raster order goes first.
+        let (mut l, w, h) = grid(&[
+            &[f, f, f, f, f, f],
+            &[f, 5, 5, 6, 6, f],
+            &[f, f, f, f, f, f],
+        ]);
+        merge_small_regions(&mut l, w, h, 3);
+        assert_eq!(&l[7..11], &[6, 6, 6, 6]);
+    }
+
+    #[test]
+    fn region_enclosed_by_fixed_is_kept_and_counted() {
+        let f = FIXED;
+        let (start, w, h) = grid(&[
+            &[1, 1, 1, 1, 1, 1],
+            &[1, f, f, f, f, 1],
+            &[1, f, 3, 3, f, 1],
+            &[1, f, f, f, f, 1],
+            &[1, 1, 1, 1, 1, 1],
+        ]);
+        let mut l = start.clone();
+        let s = merge_small_regions(&mut l, w, h, 5);
+        assert_eq!(l, start);
+        assert_eq!(
+            s,
+            MergeStats {
+                merged: 0,
+                kept_isolated: 1,
+                passes: 1
+            }
+        );
+        // A whole image smaller than min_area has only the edge around it.
+        let mut l = vec![5u16, 5];
+        let s = merge_small_regions(&mut l, 2, 1, 3);
+        assert_eq!(l, vec![5, 5]);
+        assert_eq!((s.merged, s.kept_isolated), (0, 1));
+        // Regions touching only FIXED pixels and the image edge.
+        let (start, w, h) = grid(&[&[2, f, 3], &[f, f, f], &[4, f, 4]]);
+        let mut l = start.clone();
+        let s = merge_small_regions(&mut l, w, h, 2);
+        assert_eq!(l, start);
+        assert_eq!((s.merged, s.kept_isolated), (0, 4));
+    }
+
+    #[test]
+    fn min_area_one_or_less_and_degenerate_input_do_nothing() {
+        let start = blobs(3, 9, 7, 4, true);
+        for min_area in [0, 1] {
+            let mut l = start.clone();
+            assert_eq!(
+                merge_small_regions(&mut l, 9, 7, min_area),
+                MergeStats::default()
+            );
+            assert_eq!(l, start);
+        }
+        assert_eq!(
+            merge_small_regions(&mut [], 0, 0, 50),
+            MergeStats::default()
+        );
+        assert_eq!(
+            merge_small_regions(&mut [], 0, 9, 50),
+            MergeStats::default()
+        );
+        assert_eq!(
+            merge_small_regions(&mut [], 9, 0, 50),
+            MergeStats::default()
+        );
+        let mut l = vec![1u16, 2, 3];
+        assert_eq!(merge_small_regions(&mut l, 2, 2, 50), MergeStats::default());
+        assert_eq!(
+            merge_small_regions(&mut l, usize::MAX, 3, 50),
+            MergeStats::default()
+        );
+        assert_eq!(l, vec![1, 2, 3]);
+        let mut l = vec![FIXED; 6];
+        let s = merge_small_regions(&mut l, 3, 2, usize::MAX);
+        assert_eq!((s.merged, s.kept_isolated), (0, 0));
+        // A min_area larger than the image: everything ends in one label.
+        let mut l = blobs(5, 13, 11, 5, false);
+        let s = merge_small_regions(&mut l, 13, 11, usize::MAX);
+        assert!(l.iter().all(|&x| x == l[0]));
+        assert_eq!(s.kept_isolated, 1);
+    }
+
+    #[test]
+    fn merge_properties_on_random_images() {
+        let sizes = [
+            (1, 1),
+            (1, 17),
+            (23, 1),
+            (2, 2),
+            (7, 5),
+            (31, 19),
+            (40, 40),
+            (64, 33),
+        ];
+        let mut case = 0u64;
+        for &(w, h) in &sizes {
+            for seed in 0..6u64 {
+                for &min_area in &[2usize, 3, 5, 12, 50] {
+                    case += 1;
+                    let n_labels = 2 + (seed % 6) as u16;
+                    let start = blobs(case * 7 + seed, w, h, n_labels, seed % 3 != 0);
+                    let mut l = start.clone();
+                    let s = merge_small_regions(&mut l, w, h, min_area);
+                    let what = format!("{w}x{h} seed {seed} min_area {min_area}");
+
+                    // FIXED pixels unchanged, and nothing else becomes FIXED.
+                    for (a, b) in start.iter().zip(&l) {
+                        assert_eq!(*a == FIXED, *b == FIXED, "{what}");
+                    }
+                    // No region below min_area except the kept ones, which touch no label.
+                    let small: Vec<_> = regions(&l, w, h)
+                        .into_iter()
+                        .filter(|r| r.1 < min_area)
+                        .collect();
+                    assert_eq!(small.len(), s.kept_isolated, "{what}");
+                    for r in &small {
+                        let region = region_of(&l, w, h, r.2);
+                        assert!(borders(&l, w, h, &region).is_empty(), "{what}");
+                    }
+                    // The rule written out literally gives the same labels and merge count.
+                    let mut reference = start.clone();
+                    let merged = reference_merge(&mut reference, w, h, min_area);
+                    assert_eq!(l, reference, "{what}");
+                    assert_eq!(s.merged, merged, "{what}");
+                    assert!(s.passes >= 1, "{what}");
+                    // A second run has nothing left to do.
+                    let mut again = l.clone();
+                    let s2 = merge_small_regions(&mut again, w, h, min_area);
+                    assert_eq!(again, l, "{what}");
+                    assert_eq!(
+                        (s2.merged, s2.kept_isolated),
+                        (0, s.kept_isolated),
+                        "{what}"
+                    );
+                }
+            }
+        }
+    }
+
+    #[test]
+    fn merge_handles_large_regions_without_recursion() {
+        // One 600×500 region with specks; flood fills are bounded by min_area, and the
+        // labelling is iterative, so nothing here depends on the stack size.
+        let (w, h) = (600, 500);
+        let mut l = vec![2u16; w * h];
+        for p in (0..w * h).step_by(997) {
+            l[p] = 5;
+        }
+        let s = merge_small_regions(&mut l, w, h, 50);
+        assert!(l.iter().all(|&x| x == 2));
+        assert_eq!(s.merged, (w * h).div_ceil(997));
+        // min_area above the image size: the fill walks the whole image.
+        let mut l = vec![2u16; w * h];
+        l[w * h / 2] = 5;
+        let s = merge_small_regions(&mut l, w, h, w * h + 1);
+        assert!(l.iter().all(|&x| x == 2));
+        assert_eq!((s.merged, s.kept_isolated), (1, 1));
+    }
+
+    // ---- trap --------------------------------------------------------------------------------
+
+    /// Trap rule by direct search of the (2px + 1)² window around every pixel.
+    fn reference_trap(
+        labels: &[u16],
+        w: usize,
+        h: usize,
+        lightness: &[f64],
+        is_ink: &[bool],
+        px: u32,
+    ) -> Vec<Vec<bool>> {
+        let nl = is_ink.len();
+        let ink = |l: usize| l < nl && is_ink[l] && l != FIXED as usize;
+        let lum = |l: usize| lightness.get(l).copied().unwrap_or(f64::NAN);
+        let r = px as i64;
+        (0..nl)
+            .map(|l| {
+                (0..labels.len())
+                    .map(|p| {
+                        let m = labels[p] as usize;
+                        if m == l {
+                            return ink(l);
+                        }
+                        if !(ink(l) && ink(m) && lum(m) < lum(l)) {
+                            return false;
+                        }
+                        let (x, y) = ((p % w) as i64, (p / w) as i64);
+                        for dy in -r..=r {
+                            for dx in -r..=r {
+                                let (nx, ny) = (x + dx, y + dy);
+                                if dx * dx + dy * dy <= r * r
+                                    && nx >= 0
+                                    && ny >= 0
+                                    && nx < w as i64
+                                    && ny < h as i64
+                                    && labels[ny as usize * w + nx as usize] as usize == l
+                                {
+                                    return true;
+                                }
+                            }
+                        }
+                        false
+                    })
+                    .collect()
+            })
+            .collect()
+    }
+
+    fn own_masks(labels: &[u16], is_ink: &[bool]) -> Vec<Vec<bool>> {
+        (0..is_ink.len())
+            .map(|l| {
+                labels
+                    .iter()
+                    .map(|&m| m as usize == l && is_ink[l] && m != FIXED)
+                    .collect()
+            })
+            .collect()
+    }
+
+    fn mask_of(rows: &[&str]) -> Vec<bool> {
+        rows.iter()
+            .flat_map(|r| r.chars().map(|c| c == '#'))
+            .collect()
+    }
+
+    /// A random trap problem: labels, lightness (with ties and a NaN), is_ink.
+    fn trap_case(seed: u64) -> (Vec<u16>, usize, usize, Vec<f64>, Vec<bool>) {
+        let mut rng = XorShift::new(seed + 77);
+        let w = 1 + rng.below(30) as usize;
+        let h = 1 + rng.below(24) as usize;
+        let nl = 1 + rng.below(7) as usize;
+        let labels = blobs(seed, w, h, nl as u16 + 1, seed % 2 == 1);
+        let levels = [15.0, 40.0, 40.0, 62.5, 90.0, f64::NAN];
+        let lightness: Vec<f64> = (0..nl - (seed % 3 == 0) as usize)
+            .map(|_| levels[rng.below(levels.len() as u64) as usize])
+            .collect();
+        let is_ink: Vec<bool> = (0..nl).map(|_| rng.below(5) != 0).collect();
+        (labels, w, h, lightness, is_ink)
+    }
+
+    #[test]
+    fn px_zero_gives_exclusive_own_pixels() {
+        for seed in 0..30 {
+            let (labels, w, h, lightness, is_ink) = trap_case(seed);
+            let masks = trap(&labels, w, h, &lightness, &is_ink, 0);
+            assert_eq!(masks, own_masks(&labels, &is_ink), "seed {seed}");
+            for p in 0..labels.len() {
+                let count = masks.iter().filter(|m| m[p]).count();
+                let l = labels[p] as usize;
+                let expected = usize::from(l < is_ink.len() && is_ink[l]);
+                assert_eq!(count, expected, "seed {seed} pixel {p}");
+            }
+        }
+    }
+
+    #[test]
+    fn light_pixel_in_dark_field_spreads_as_a_disc() {
+        let mut labels = vec![1u16; 25];
+        labels[12] = 0;
+        let light = [90.0, 20.0];
+        let ink = [true, true];
+        let m = trap(&labels, 5, 5, &light, &ink, 1);
+        assert_eq!(
+            m[0],
+            mask_of(&[".....", "..#..", ".###.", "..#..", "....."])
+        );
+        assert_eq!(m[1], labels.iter().map(|&l| l == 1).collect::<Vec<_>>());
+        let m = trap(&labels, 5, 5, &light, &ink, 2);
+        assert_eq!(
+            m[0],
+            mask_of(&["..#..", ".###.", "#####", ".###.", "..#.."])
+        );
+        let m = trap(&labels, 5, 5, &light, &ink, 3);
+        assert_eq!(
+            m[0],
+            mask_of(&[".###.", "#####", "#####", "#####", ".###."])
+        );
+        // The dark ink never spreads into the lighter one.
+        assert!(!m[1][12]);
+    }
+
+    #[test]
+    fn lighter_ink_spreads_under_darker_only() {
+        let (labels, w, h) = grid(&[&[0, 0, 0, 1, 1, 1], &[0, 0, 0, 1, 1, 1]]);
+        let m = trap(&labels, w, h, &[80.0, 30.0], &[true, true], 2);
+        assert_eq!(m[0], mask_of(&["#####.", "#####."]));
+        assert_eq!(m[1], mask_of(&["...###", "...###"]));
+        // Swap the lightness: now ink 1 spreads.
+        let m = trap(&labels, w, h, &[30.0, 80.0], &[true, true], 2);
+        assert_eq!(m[0], mask_of(&["###...", "###..."]));
+        assert_eq!(m[1], mask_of(&[".#####", ".#####"]));
+    }
+
+    #[test]
+    fn equal_lightness_neither_spreads() {
+        let (labels, w, h) = grid(&[&[0, 0, 1, 1], &[0, 0, 1, 1]]);
+        let m = trap(&labels, w, h, &[50.0, 50.0], &[true, true], 3);
+        assert_eq!(m, own_masks(&labels, &[true, true]));
+        // NaN or missing lightness: no spread either way.
+        let m = trap(&labels, w, h, &[f64::NAN, 10.0], &[true, true], 3);
+        assert_eq!(m, own_masks(&labels, &[true, true]));
+        let m = trap(&labels, w, h, &[90.0], &[true, true], 3);
+        assert_eq!(m, own_masks(&labels, &[true, true]));
+    }
+
+    #[test]
+    fn substrate_and_fixed_neither_spread_nor_receive() {
+        // 0 = light ink, 1 = dark ink, 2 = substrate (darkest, but not an ink).
+        let labels = [0u16, 0, 2, 1, 1, 1, 1];
+        let m = trap(&labels, 7, 1, &[90.0, 30.0, 5.0], &[true, true, false], 2);
+        // The spread reaches across the substrate by straight-line distance, never onto it.
+        assert_eq!(m[0], mask_of(&["##.#..."]));
+        assert_eq!(m[1], mask_of(&["...####"]));
+        assert_eq!(m[2], vec![false; 7]);
+        // A substrate lighter than every ink does not spread either.
+        let labels = [2u16, 2, 1, 1];
+        let m = trap(&labels, 4, 1, &[90.0, 30.0, 100.0], &[true, true, false], 2);
+        assert_eq!(m, own_masks(&labels, &[true, true, false]));
+        // FIXED pixels never receive.
+        let labels = [0u16, FIXED, 1, FIXED];
+        let m = trap(&labels, 2, 2, &[90.0, 30.0], &[true, true], 5);
+        assert_eq!(m[0], vec![true, false, true, false]);
+        // FIXED is never an ink, even with an is_ink entry for it.
+        let mut ink = vec![true; FIXED as usize + 1];
+        ink[2] = false;
+        let mut light = vec![50.0; FIXED as usize + 1];
+        light[FIXED as usize] = 99.0;
+        let m = trap(&labels, 2, 2, &light, &ink, 5);
+        assert_eq!(m.len(), FIXED as usize + 1);
+        assert!(m[FIXED as usize].iter().all(|&b| !b));
+    }
+
+    #[test]
+    fn trap_matches_window_search_on_random_images() {
+        for seed in 0..60 {
+            let (labels, w, h, lightness, is_ink) = trap_case(seed);
+            for px in [1u32, 2, 3, 5] {
+                let want = reference_trap(&labels, w, h, &lightness, &is_ink, px);
+                let got = trap(&labels, w, h, &lightness, &is_ink, px);
+                assert_eq!(got, want, "seed {seed} px {px} ({w}x{h})");
+            }
+        }
+    }
+
+    #[test]
+    fn trap_is_exact_by_brute_force_distances() {
+        for seed in 100..140 {
+            let (labels, w, h, lightness, is_ink) = trap_case(seed);
+            let n = labels.len();
+            let lum = |l: usize| lightness.get(l).copied().unwrap_or(f64::NAN);
+            let ink = |l: usize| l < is_ink.len() && is_ink[l];
+            for px in [1u32, 2, 4] {
+                let masks = trap(&labels, w, h, &lightness, &is_ink, px);
+                for (l, mask) in masks.iter().enumerate() {
+                    let pixels_of_l: Vec<usize> =
+                        (0..n).filter(|&q| labels[q] as usize == l).collect();
+                    // Squared distance from p to the nearest pixel of l, over all pixels.
+                    let nearest = |p: usize| {
+                        let (x, y) = ((p % w) as i64, (p / w) as i64);
+                        pixels_of_l
+                            .iter()
+                            .map(|&q| {
+                                let (qx, qy) = ((q % w) as i64, (q / w) as i64);
+                                (x - qx).pow(2) + (y - qy).pow(2)
+                            })
+                            .min()
+                    };
+                    for p in 0..n {
+                        let m = labels[p] as usize;
+                        if m == l {
+                            assert_eq!(mask[p], ink(l), "own pixel, seed {seed}");
+                            continue;
+                        }
+                        let within = nearest(p).is_some_and(|d| d <= (px * px) as i64);
+                        let darker_ink = labels[p] != FIXED && ink(m) && lum(m) < lum(l);
+                        if mask[p] {
+                            // (a) a darker ink's pixel, (b) within px of a pixel of l.
+                            assert!(darker_ink && ink(l), "seed {seed} px {px} l {l} p {p}");
+                            assert!(within, "seed {seed} px {px} l {l} p {p}");
+                        } else {
+                            // (c) nothing within reach is missed.
+                            assert!(
+                                !(ink(l) && darker_ink && within),
+                                "seed {seed} px {px} l {l} p {p}"
+                            );
+                        }
+                    }
+                }
+            }
+        }
+    }
+
+    #[test]
+    fn trap_bands_and_wide_arithmetic_agree() {
+        for seed in 200..230 {
+            let (labels, w, h, lightness, is_ink) = trap_case(seed);
+            for px in [1u32, 2, 3, 7] {
+                let want = reference_trap(&labels, w, h, &lightness, &is_ink, px);
+                for rows in [1, 2, 3, 5, 8] {
+                    for wide in [false, true] {
+                        let got =
+                            trap_impl(&labels, w, h, &lightness, &is_ink, px, Some(rows), wide);
+                        assert_eq!(got, want, "seed {seed} px {px} rows {rows} wide {wide}");
+                    }
+                }
+            }
+        }
+    }
+
+    #[test]
+    fn trap_with_huge_px_covers_every_darker_pixel() {
+        let (labels, w, h, lightness, is_ink) = trap_case(9);
+        let diagonal = ((w * w + h * h) as f64).sqrt().ceil() as u32;
+        let want = reference_trap(&labels, w, h, &lightness, &is_ink, diagonal);
+        assert_eq!(trap(&labels, w, h, &lightness, &is_ink, u32::MAX), want);
+        assert_eq!(trap(&labels, w, h, &lightness, &is_ink, diagonal), want);
+    }
+
+    #[test]
+    fn trap_of_degenerate_input() {
+        let light = [90.0, 20.0];
+        let ink = [true, true];
+        assert_eq!(
+            trap(&[], 0, 0, &light, &ink, 3),
+            vec![Vec::<bool>::new(); 2]
+        );
+        assert_eq!(
+            trap(&[], 0, 7, &light, &ink, 3),
+            vec![Vec::<bool>::new(); 2]
+        );
+        assert!(trap(&[0, 1], 2, 1, &light, &[], 3).is_empty());
+        // Length not width × height: own pixels only.
+        let labels = [0u16, 1, 1, 0, 1];
+        let m = trap(&labels, 2, 2, &light, &ink, 3);
+        assert_eq!(m, own_masks(&labels, &ink));
+        let m = trap(&labels, usize::MAX, 2, &light, &ink, 3);
+        assert_eq!(m, own_masks(&labels, &ink));
+        // Labels beyond is_ink are not inks.
+        let labels = [0u16, 5, 5, 1];
+        let m = trap(&labels, 4, 1, &light, &ink, 3);
+        assert_eq!(m[0], vec![true, false, false, true]);
+        assert_eq!(m[1], vec![false, false, false, true]);
+        // Single pixel and single row or column.
+        assert_eq!(
+            trap(&[1], 1, 1, &light, &ink, 4),
+            vec![vec![false], vec![true]]
+        );
+        let m = trap(&[0, 1, 1, 1, 1, 1], 1, 6, &light, &ink, 4);
+        assert_eq!(m[0], vec![true, true, true, true, true, false]);
+    }
+
+    #[test]
+    fn results_do_not_depend_on_thread_count() {
+        let (w, h) = (301, 257);
+        let labels = blobs(42, w, h, 6, true);
+        let light = [95.0, 70.0, 55.0, 55.0, 30.0, 10.0];
+        let ink = [true, true, true, true, false, true];
+        let run = |threads: usize| {
+            let pool = rayon::ThreadPoolBuilder::new()
+                .num_threads(threads)
+                .build()
+                .unwrap();
+            pool.install(|| {
+                let mut l = labels.clone();
+                let s = merge_small_regions(&mut l, w, h, 20);
+                let m = trap_impl(&l, w, h, &light, &ink, 3, Some(4), false);
+                (l, s, m)
+            })
+        };
+        let one = run(1);
+        assert_eq!(one, run(2));
+        assert_eq!(one, run(3));
+        assert_eq!(one.2, reference_trap(&one.0, w, h, &light, &ink, 3));
+    }
+}

@@ -1,0 +1,442 @@
+//! Choosing K inks from a library: minimise the total CIEDE2000 between every artwork
+//! pixel (weighted histogram entry) and its nearest chosen ink (or the substrate).
+//!
+//! Exhaustive search when the number of subsets is small; otherwise swap descent over
+//! the library (k-medoids style, with the FastPAM1 trick of Schubert & Rousseeuw 2019 so
+//! that one round costs O(entries × candidates)), started from k-means centres matched to
+//! inks and from greedy forward selection, keeping the better.
+
+use crate::cluster::{fit, Dataset, KMeansParams};
+use crate::colour::delta_e2000;
+use crate::inks::Ink;
+use rayon::prelude::*;
+
+const CHUNK: usize = 4096;
+
+/// ΔE2000 from every entry to every ink (and to the substrate, when there is one).
+#[derive(Debug, Clone)]
+pub struct CostTable {
+    /// Entries.
+    pub n: usize,
+    /// Inks in the library.
+    pub m: usize,
+    /// `n × m`, row-major.
+    pub cost: Vec<f32>,
+    /// Pixels per entry.
+    pub weights: Vec<f64>,
+    /// ΔE2000 to the substrate per entry (none: every pixel must take an ink).
+    pub substrate: Option<Vec<f32>>,
+}
+
+impl CostTable {
+    /// Computes the table (in parallel, deterministic).
+    pub fn new(
+        entry_labs: &[[f64; 3]],
+        weights: &[f64],
+        inks: &[Ink],
+        substrate_lab: Option<[f64; 3]>,
+    ) -> Self {
+        let m = inks.len();
+        let mut cost = vec![0.0f32; entry_labs.len() * m];
+        cost.par_chunks_mut(m * 1024)
+            .enumerate()
+            .for_each(|(c, block)| {
+                for (o, row) in block.chunks_mut(m).enumerate() {
+                    let lab = entry_labs[c * 1024 + o];
+                    for (slot, ink) in row.iter_mut().zip(inks) {
+                        *slot = delta_e2000(lab, ink.lab_d50) as f32;
+                    }
+                }
+            });
+        let substrate = substrate_lab.map(|s| {
+            entry_labs
+                .par_iter()
+                .map(|&l| delta_e2000(l, s) as f32)
+                .collect()
+        });
+        CostTable {
+            n: entry_labs.len(),
+            m,
+            cost,
+            weights: weights.to_vec(),
+            substrate,
+        }
+    }
+
+    #[inline]
+    fn row(&self, e: usize) -> &[f32] {
+        &self.cost[e * self.m..(e + 1) * self.m]
+    }
+
+    #[inline]
+    fn floor(&self, e: usize) -> f32 {
+        self.substrate.as_ref().map_or(f32::INFINITY, |s| s[e])
+    }
+
+    /// Total weighted ΔE2000 of a set of inks (each entry to its nearest choice).
+    pub fn objective(&self, set: &[usize]) -> f64 {
+        let parts: Vec<f64> = (0..self.n.div_ceil(CHUNK))
+            .into_par_iter()
+            .map(|c| {
+                let mut s = 0.0f64;
+                for e in c * CHUNK..((c + 1) * CHUNK).min(self.n) {
+                    let row = self.row(e);
+                    let best = set.iter().map(|&i| row[i]).fold(self.floor(e), f32::min);
+                    s += self.weights[e] * best as f64;
+                }
+                s
+            })
+            .collect();
+        parts.iter().sum()
+    }
+}
+
+/// How the set was found.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Method {
+    /// Every subset evaluated: the best set.
+    Exhaustive,
+    /// Swap descent from two starts: a local optimum.
+    Swaps,
+    /// Every ink in the library (`--all`).
+    All,
+}
+
+/// The chosen inks (library indices, ascending) and the objective.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Selection {
+    pub chosen: Vec<usize>,
+    pub total_delta_e: f64,
+    pub method: Method,
+}
+
+fn binomial(n: usize, k: usize) -> f64 {
+    (0..k).fold(1.0, |acc, i| acc * (n - i) as f64 / (i + 1) as f64)
+}
+
+/// Evaluations (subsets × entries) up to which the exhaustive search is used.
+pub const EXHAUSTIVE_BUDGET: f64 = 2e8;
+
+/// All r-subsets of 0..n in lexicographic order.
+fn combinations(n: usize, r: usize) -> Vec<Vec<usize>> {
+    let mut out = Vec::new();
+    if r > n {
+        return out;
+    }
+    let mut idx: Vec<usize> = (0..r).collect();
+    loop {
+        out.push(idx.clone());
+        let mut i = r;
+        while i > 0 && idx[i - 1] == i - 1 + n - r {
+            i -= 1;
+        }
+        if i == 0 {
+            break;
+        }
+        idx[i - 1] += 1;
+        for j in i..r {
+            idx[j] = idx[j - 1] + 1;
+        }
+    }
+    out
+}
+
+/// Best subset by trying all of them (forced inks always in).
+pub fn choose_exhaustive(t: &CostTable, k: usize, forced: &[usize]) -> Selection {
+    let free: Vec<usize> = (0..t.m).filter(|i| !forced.contains(i)).collect();
+    let r = k - forced.len();
+    let combos: Vec<Vec<usize>> = combinations(free.len(), r)
+        .into_iter()
+        .map(|c| c.iter().map(|&i| free[i]).collect())
+        .collect();
+    let best = combos
+        .par_iter()
+        .enumerate()
+        .map(|(ci, c)| {
+            let mut set = forced.to_vec();
+            set.extend_from_slice(c);
+            // Sequential sum per subset: independent of the thread count.
+            let mut s = 0.0f64;
+            for e in 0..t.n {
+                let row = t.row(e);
+                let b = set.iter().map(|&i| row[i]).fold(t.floor(e), f32::min);
+                s += t.weights[e] * b as f64;
+            }
+            (s, ci)
+        })
+        .reduce(
+            || (f64::INFINITY, usize::MAX),
+            |a, b| {
+                if b.0 < a.0 || (b.0 == a.0 && b.1 < a.1) {
+                    b
+                } else {
+                    a
+                }
+            },
+        );
+    let mut chosen = forced.to_vec();
+    chosen.extend_from_slice(&combos[best.1]);
+    chosen.sort_unstable();
+    Selection {
+        chosen,
+        total_delta_e: best.0,
+        method: Method::Exhaustive,
+    }
+}
+
+/// Nearest and second-nearest cost per entry (the substrate counts as a permanent member
+/// with index `usize::MAX`).
+fn nearest_two(t: &CostTable, set: &[usize]) -> (Vec<f32>, Vec<usize>, Vec<f32>) {
+    let mut d1 = vec![0.0f32; t.n];
+    let mut n1 = vec![0usize; t.n];
+    let mut d2 = vec![0.0f32; t.n];
+    d1.par_chunks_mut(CHUNK)
+        .zip(n1.par_chunks_mut(CHUNK))
+        .zip(d2.par_chunks_mut(CHUNK))
+        .enumerate()
+        .for_each(|(c, ((a, b), d))| {
+            for o in 0..a.len() {
+                let e = c * CHUNK + o;
+                let row = t.row(e);
+                let (mut best, mut bi, mut second) = (t.floor(e), usize::MAX, f32::INFINITY);
+                for &i in set {
+                    let v = row[i];
+                    if v < best {
+                        second = best;
+                        best = v;
+                        bi = i;
+                    } else if v < second {
+                        second = v;
+                    }
+                }
+                a[o] = best;
+                b[o] = bi;
+                d[o] = second;
+            }
+        });
+    (d1, n1, d2)
+}
+
+/// Swap descent: repeatedly applies the best improving (remove one free chosen ink, add
+/// one unchosen ink) exchange until none improves.
+pub fn swap_descent(t: &CostTable, start: &[usize], forced: &[usize]) -> Selection {
+    let mut set = start.to_vec();
+    let mut total = t.objective(&set);
+    loop {
+        let (d1, n1, d2) = nearest_two(t, &set);
+        let cands: Vec<usize> = (0..t.m).filter(|j| !set.contains(j)).collect();
+        let removable: Vec<usize> = set
+            .iter()
+            .copied()
+            .filter(|i| !forced.contains(i))
+            .collect();
+        if cands.is_empty() || removable.is_empty() {
+            break;
+        }
+        let nc = cands.len();
+        // base[j]: change for entries whose nearest is not removed;
+        // corr[i][j]: correction for entries whose nearest is i (FastPAM1).
+        let pos = |i: usize| removable.iter().position(|&r| r == i);
+        let parts: Vec<Vec<f64>> = (0..t.n.div_ceil(CHUNK))
+            .into_par_iter()
+            .map(|c| {
+                let mut acc = vec![0.0f64; nc * (1 + removable.len())];
+                for e in c * CHUNK..((c + 1) * CHUNK).min(t.n) {
+                    let w = t.weights[e];
+                    let row = t.row(e);
+                    let slot = if n1[e] == usize::MAX {
+                        None
+                    } else {
+                        pos(n1[e])
+                    };
+                    for (jj, &j) in cands.iter().enumerate() {
+                        let cj = row[j];
+                        let shared = (cj - d1[e]).min(0.0) as f64;
+                        acc[jj] += w * shared;
+                        if let Some(s) = slot {
+                            let own = (cj.min(d2[e]) - d1[e]) as f64;
+                            acc[nc * (1 + s) + jj] += w * (own - shared);
+                        }
+                    }
+                }
+                acc
+            })
+            .collect();
+        let mut acc = vec![0.0f64; nc * (1 + removable.len())];
+        for p in parts {
+            for (a, b) in acc.iter_mut().zip(p) {
+                *a += b;
+            }
+        }
+        let mut best = (0.0f64, usize::MAX, usize::MAX);
+        for (s, &i) in removable.iter().enumerate() {
+            for (jj, &j) in cands.iter().enumerate() {
+                let delta = acc[jj] + acc[nc * (1 + s) + jj];
+                if delta < best.0 {
+                    best = (delta, i, j);
+                }
+            }
+        }
+        if best.1 == usize::MAX || best.0 > -1e-9 * total.max(1.0) {
+            break;
+        }
+        let p = set.iter().position(|&x| x == best.1).unwrap();
+        set[p] = best.2;
+        let new_total = t.objective(&set);
+        if new_total >= total {
+            // Rounding made the predicted gain vanish: undo and stop.
+            set[p] = best.1;
+            break;
+        }
+        total = new_total;
+    }
+    set.sort_unstable();
+    Selection {
+        chosen: set,
+        total_delta_e: total,
+        method: Method::Swaps,
+    }
+}
+
+/// Greedy forward selection from the forced inks.
+pub fn greedy_start(t: &CostTable, k: usize, forced: &[usize]) -> Vec<usize> {
+    let mut set = forced.to_vec();
+    while set.len() < k {
+        let best = (0..t.m)
+            .filter(|j| !set.contains(j))
+            .map(|j| {
+                let mut s = set.clone();
+                s.push(j);
+                (t.objective(&s), j)
+            })
+            .fold(
+                (f64::INFINITY, usize::MAX),
+                |a, b| if b.0 < a.0 { b } else { a },
+            );
+        set.push(best.1);
+    }
+    set
+}
+
+/// k-means centres (weighted, CIELAB D50) matched to their nearest unchosen inks, heaviest
+/// cluster first, after the forced inks.
+pub fn kmeans_start(
+    entry_labs: &[[f64; 3]],
+    weights: &[f64],
+    inks: &[Ink],
+    k: usize,
+    forced: &[usize],
+    seed: u64,
+) -> Vec<usize> {
+    let mut set = forced.to_vec();
+    let rows: Vec<f32> = entry_labs
+        .iter()
+        .flat_map(|l| l.map(|v| v as f32))
+        .collect();
+    if let Ok(data) = Dataset::new(&rows, 3, Some(weights)) {
+        if let Ok(params) = KMeansParams::new(k).seed(seed).check() {
+            if let Ok(model) = fit(&data, &params) {
+                let labels = model.predict(&data);
+                let mut mass = vec![0.0f64; model.k()];
+                for (l, w) in labels.iter().zip(weights) {
+                    mass[*l as usize] += w;
+                }
+                let mut order: Vec<usize> = (0..model.k()).collect();
+                order.sort_by(|&a, &b| mass[b].total_cmp(&mass[a]).then(a.cmp(&b)));
+                for c in order {
+                    if set.len() >= k {
+                        break;
+                    }
+                    let centre = [
+                        model.means[c * 3],
+                        model.means[c * 3 + 1],
+                        model.means[c * 3 + 2],
+                    ];
+                    let pick = (0..inks.len())
+                        .filter(|j| !set.contains(j))
+                        .map(|j| (delta_e2000(centre, inks[j].lab_d50), j))
+                        .fold(
+                            (f64::INFINITY, usize::MAX),
+                            |a, b| if b.0 < a.0 { b } else { a },
+                        );
+                    if pick.1 != usize::MAX {
+                        set.push(pick.1);
+                    }
+                }
+            }
+        }
+    }
+    // Fill up (fewer clusters than K) with the inks that help most.
+    for j in 0..inks.len() {
+        if set.len() >= k {
+            break;
+        }
+        if !set.contains(&j) {
+            set.push(j);
+        }
+    }
+    set
+}
+
+/// Chooses `k` inks (forced ones included): exhaustive when affordable, else swaps from
+/// two starts.
+pub fn choose(
+    t: &CostTable,
+    entry_labs: &[[f64; 3]],
+    inks: &[Ink],
+    k: usize,
+    forced: &[usize],
+    seed: u64,
+) -> Selection {
+    let subsets = binomial(t.m - forced.len(), k - forced.len());
+    if subsets * t.n as f64 <= EXHAUSTIVE_BUDGET {
+        return choose_exhaustive(t, k, forced);
+    }
+    choose_by_swaps(t, entry_labs, inks, k, forced, seed)
+}
+
+/// Swap descent from the k-means start and from the greedy start; the better is kept.
+pub fn choose_by_swaps(
+    t: &CostTable,
+    entry_labs: &[[f64; 3]],
+    inks: &[Ink],
+    k: usize,
+    forced: &[usize],
+    seed: u64,
+) -> Selection {
+    let a = swap_descent(
+        t,
+        &kmeans_start(entry_labs, &t.weights, inks, k, forced, seed),
+        forced,
+    );
+    let b = swap_descent(t, &greedy_start(t, k, forced), forced);
+    if b.total_delta_e < a.total_delta_e {
+        b
+    } else {
+        a
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn combinations_in_order() {
+        assert_eq!(
+            combinations(4, 2),
+            vec![
+                vec![0, 1],
+                vec![0, 2],
+                vec![0, 3],
+                vec![1, 2],
+                vec![1, 3],
+                vec![2, 3]
+            ]
+        );
+        assert_eq!(combinations(3, 0), vec![Vec::<usize>::new()]);
+        assert_eq!(combinations(3, 3), vec![vec![0, 1, 2]]);
+        assert!(combinations(2, 3).is_empty());
+        assert_eq!(combinations(10, 4).len(), 210);
+    }
+}

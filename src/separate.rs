@@ -1,0 +1,581 @@
+//! The `separate` workflow: artwork to one plate per ink, with the inks chosen from a
+//! shop's library to minimise CIEDE2000, small specks merged away, optional trapping,
+//! a proof and a swatch sheet.
+
+use crate::colour::{self, adapt, delta_e2000};
+use crate::error::{Error, Result};
+use crate::histogram::{self, TRANSPARENT};
+use crate::inks::{self, Ink};
+use crate::limits::Limits;
+use crate::output::OutputSet;
+use crate::raster::{self, Decoded, Pixels};
+use crate::regions::{self, FIXED};
+use crate::select::{self, CostTable, Method};
+use rayon::prelude::*;
+use serde::{Deserialize, Serialize};
+use std::path::{Path, PathBuf};
+use std::time::Instant;
+
+/// Default smallest region a plate may hold, in pixels: a 4 × 4 speck (about 0.34 mm
+/// at 300 dpi). Our choice for ordinary screen meshes; raise it for coarse ones.
+pub const DEFAULT_MIN_AREA: usize = 16;
+
+/// Settings of a separation.
+#[derive(Debug, Clone, PartialEq)]
+pub struct SeparateOptions {
+    /// Inks to choose (forced inks count toward it). Ignored with `all`. Default: 4.
+    pub k: usize,
+    /// Inks that must be in the set, by name (case-insensitive).
+    pub use_inks: Vec<String>,
+    /// Use every ink in the library as given.
+    pub all: bool,
+    /// Paper or garment colour: pixels nearer to it than to any chosen ink get no ink.
+    pub substrate: Option<[u8; 3]>,
+    /// Smallest 8-connected region of any plate, in pixels. Default: [`DEFAULT_MIN_AREA`].
+    pub min_area: usize,
+    /// Trap width in pixels: lighter inks spread this far under darker neighbours. Default: 0.
+    pub trap: u32,
+    /// Print resolution in dots per inch; default: from the file, if it records one.
+    pub dpi: Option<f64>,
+    /// Seed of the k-means start of the ink search.
+    pub seed: u64,
+    /// Decode limits.
+    pub limits: Limits,
+}
+
+impl Default for SeparateOptions {
+    fn default() -> Self {
+        SeparateOptions {
+            k: 4,
+            use_inks: Vec::new(),
+            all: false,
+            substrate: None,
+            min_area: DEFAULT_MIN_AREA,
+            trap: 0,
+            dpi: None,
+            seed: crate::rng::DEFAULT_SEED,
+            limits: Limits::default(),
+        }
+    }
+}
+
+/// One ink of the separation document.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct InkReport {
+    pub name: String,
+    /// CIELAB D50 of the ink, as in the library.
+    pub lab_d50: [f64; 3],
+    /// Display colour (sRGB).
+    pub hex: String,
+    /// Pixels this plate prints, before trapping.
+    pub pixels: u64,
+    /// Share of the printed (inked) area, before trapping.
+    pub coverage: f64,
+    /// Printed area in cm² (needs a resolution), before trapping.
+    pub area_cm2: Option<f64>,
+    /// Mean CIEDE2000 between the artwork pixels of this plate and the ink.
+    pub mean_delta_e2000: f64,
+    /// File name of the plate.
+    pub plate: String,
+}
+
+/// The separation document (`STEM.separation.json`).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct SeparationDocument {
+    pub tool_version: String,
+    pub input: Option<String>,
+    pub ink_library: Option<String>,
+    pub seed: u64,
+    /// How the inks were chosen: exhaustive (best subset), swaps (local optimum) or all.
+    pub selection: String,
+    /// `#rrggbb` of the substrate, or null.
+    pub substrate: Option<String>,
+    pub min_area: usize,
+    pub trap: u32,
+    pub dpi: Option<f64>,
+    /// Mean CIEDE2000 over all non-transparent pixels between the artwork and its
+    /// reproduction (ink or substrate).
+    pub mean_delta_e2000: f64,
+    /// Regions merged away by `min_area`, and small ones kept (nothing to merge into).
+    pub regions_merged: usize,
+    pub regions_kept_isolated: usize,
+    /// Inks in print order (lightest first).
+    pub inks: Vec<InkReport>,
+}
+
+/// A separation in memory.
+#[derive(Debug, Clone)]
+pub struct Separation {
+    pub width: u32,
+    pub height: u32,
+    /// Chosen inks in plate (print) order, lightest first.
+    pub inks: Vec<Ink>,
+    /// Per pixel: plate index, `inks.len()` for substrate (no ink), or [`FIXED`] (transparent).
+    pub labels: Vec<u16>,
+    /// Per plate, per pixel: prints here (after trapping).
+    pub masks: Vec<Vec<bool>>,
+    pub document: SeparationDocument,
+}
+
+fn table_error(path: &Path, message: String) -> Error {
+    Error::Table {
+        path: path.into(),
+        line: None,
+        message,
+    }
+}
+
+/// Resolves `--use` names and checks K against the library.
+pub fn resolve_inks(
+    library: &[Ink],
+    opts: &SeparateOptions,
+    library_path: &Path,
+) -> Result<(usize, Vec<usize>)> {
+    let mut forced = Vec::new();
+    for name in &opts.use_inks {
+        let name = name.trim();
+        let i = library
+            .iter()
+            .position(|ink| ink.name.eq_ignore_ascii_case(name))
+            .ok_or_else(|| {
+                table_error(
+                    library_path,
+                    format!("no ink named '{name}' (asked for with --use)"),
+                )
+            })?;
+        if !forced.contains(&i) {
+            forced.push(i);
+        }
+    }
+    if opts.all {
+        return Ok(((0..library.len()).count(), (0..library.len()).collect()));
+    }
+    if opts.k == 0 {
+        return Err(crate::error::ParamsError::KTooSmall(0).into());
+    }
+    if opts.k > library.len() {
+        return Err(table_error(
+            library_path,
+            format!(
+                "-k {} asks for more inks than the {} in the library",
+                opts.k,
+                library.len()
+            ),
+        ));
+    }
+    if forced.len() > opts.k {
+        return Err(table_error(
+            library_path,
+            format!("--use names {} inks but -k is {}", forced.len(), opts.k),
+        ));
+    }
+    Ok((opts.k, forced))
+}
+
+/// A file-safe form of an ink name: lowercase letters and digits, other runs as '-'.
+pub fn file_safe(name: &str) -> String {
+    let mut s = String::new();
+    for c in name.chars() {
+        if c.is_alphanumeric() {
+            s.extend(c.to_lowercase());
+        } else if !s.ends_with('-') {
+            s.push('-');
+        }
+    }
+    let s = s.trim_matches('-').to_string();
+    if s.is_empty() {
+        "ink".into()
+    } else {
+        s
+    }
+}
+
+/// Plate file name.
+pub fn plate_name(stem: &str, number: usize, ink: &str) -> String {
+    format!("{stem}.plate-{number:02}-{}.png", file_safe(ink))
+}
+
+/// Separates decoded artwork with a library (in memory).
+pub fn separate_image(
+    img: &Decoded,
+    library: &[Ink],
+    opts: &SeparateOptions,
+    library_path: &Path,
+    stem: &str,
+) -> Result<Separation> {
+    let (k, forced) = resolve_inks(library, opts, library_path)?;
+    let ih = match &img.pixels {
+        Pixels::Rgba8(p) => histogram::from_rgba8(p),
+        Pixels::Rgba16(p) => histogram::from_rgba16(p),
+    };
+    let hist = &ih.histogram;
+    if hist.is_empty() {
+        return Err(Error::Data(
+            "every pixel is fully transparent; there is nothing to separate".into(),
+        ));
+    }
+    let labs: Vec<[f64; 3]> = hist
+        .colours
+        .par_iter()
+        .with_min_len(4096)
+        .map(|c| {
+            let lin = if hist.depth == 8 {
+                colour::srgb8_to_linear([c[0] as u8, c[1] as u8, c[2] as u8])
+            } else {
+                colour::srgb16_to_linear(*c)
+            };
+            adapt::linear_to_lab_d50(lin)
+        })
+        .collect();
+    let weights = hist.weights();
+    let substrate_lab = opts.substrate.map(adapt::srgb8_to_lab_d50);
+    let table = CostTable::new(&labs, &weights, library, substrate_lab);
+    let selection = if opts.all {
+        select::Selection {
+            chosen: (0..library.len()).collect(),
+            total_delta_e: table.objective(&(0..library.len()).collect::<Vec<_>>()),
+            method: Method::All,
+        }
+    } else {
+        select::choose(&table, &labs, library, k, &forced, opts.seed)
+    };
+
+    // Print order: lightest first (ties by name).
+    let mut order = selection.chosen.clone();
+    order.sort_by(|&a, &b| {
+        library[b].lab_d50[0]
+            .total_cmp(&library[a].lab_d50[0])
+            .then(library[a].name.cmp(&library[b].name))
+    });
+    let chosen: Vec<Ink> = order.iter().map(|&i| library[i].clone()).collect();
+    let n_inks = chosen.len();
+    let substrate_label = n_inks as u16;
+
+    // Each entry to its nearest ink; the substrate only where strictly nearer.
+    let entry_label: Vec<u16> = (0..hist.len())
+        .into_par_iter()
+        .with_min_len(4096)
+        .map(|e| {
+            let mut best = (f32::INFINITY, 0u16);
+            for (p, &i) in order.iter().enumerate() {
+                let c = table.cost[e * table.m + i];
+                if c < best.0 {
+                    best = (c, p as u16);
+                }
+            }
+            match &table.substrate {
+                Some(s) if s[e] < best.0 => substrate_label,
+                _ => best.1,
+            }
+        })
+        .collect();
+    let mut labels: Vec<u16> = ih
+        .pixel_entry
+        .par_iter()
+        .with_min_len(1 << 14)
+        .map(|&e| {
+            if e == TRANSPARENT {
+                FIXED
+            } else {
+                entry_label[e as usize]
+            }
+        })
+        .collect();
+    let (w, h) = (img.width as usize, img.height as usize);
+    let merge = regions::merge_small_regions(&mut labels, w, h, opts.min_area);
+    let mut lightness: Vec<f64> = chosen.iter().map(|i| i.lab_d50[0]).collect();
+    lightness.push(substrate_lab.map_or(100.0, |l| l[0]));
+    let mut is_ink = vec![true; n_inks];
+    is_ink.push(false);
+    let mut masks = regions::trap(&labels, w, h, &lightness, &is_ink, opts.trap);
+    masks.truncate(n_inks);
+
+    // Statistics per plate from the final labels (after merging, before trapping).
+    let mut reproduction: Vec<[f64; 3]> = chosen.iter().map(|i| i.lab_d50).collect();
+    reproduction.push(substrate_lab.unwrap_or([100.0, 0.0, 0.0]));
+    let parts: Vec<(Vec<u64>, Vec<f64>)> = labels
+        .par_chunks(1 << 16)
+        .zip(ih.pixel_entry.par_chunks(1 << 16))
+        .map(|(ls, es)| {
+            let mut px = vec![0u64; n_inks + 1];
+            let mut de = vec![0.0f64; n_inks + 1];
+            for (&l, &e) in ls.iter().zip(es) {
+                if l == FIXED {
+                    continue;
+                }
+                px[l as usize] += 1;
+                de[l as usize] += delta_e2000(labs[e as usize], reproduction[l as usize]);
+            }
+            (px, de)
+        })
+        .collect();
+    let mut px = vec![0u64; n_inks + 1];
+    let mut de = vec![0.0f64; n_inks + 1];
+    for (p, d) in parts {
+        for l in 0..=n_inks {
+            px[l] += p[l];
+            de[l] += d[l];
+        }
+    }
+    let inked: u64 = px[..n_inks].iter().sum();
+    let total: u64 = px.iter().sum();
+    let dpi = opts.dpi.or(img.dpi);
+    let cm2_per_px = dpi.map(|d| (2.54 / d) * (2.54 / d));
+    let inks_report: Vec<InkReport> = chosen
+        .iter()
+        .enumerate()
+        .map(|(p, ink)| InkReport {
+            name: ink.name.clone(),
+            lab_d50: ink.lab_d50,
+            hex: ink.hex.clone(),
+            pixels: px[p],
+            coverage: if inked > 0 {
+                px[p] as f64 / inked as f64
+            } else {
+                0.0
+            },
+            area_cm2: cm2_per_px.map(|a| a * px[p] as f64),
+            mean_delta_e2000: if px[p] > 0 { de[p] / px[p] as f64 } else { 0.0 },
+            plate: plate_name(stem, p + 1, &ink.name),
+        })
+        .collect();
+    let document = SeparationDocument {
+        tool_version: crate::TOOL_VERSION.into(),
+        input: None,
+        ink_library: library_path
+            .file_name()
+            .map(|n| n.to_string_lossy().into_owned()),
+        seed: opts.seed,
+        selection: match selection.method {
+            Method::Exhaustive => "exhaustive",
+            Method::Swaps => "swaps",
+            Method::All => "all",
+        }
+        .into(),
+        substrate: opts.substrate.map(colour::hex),
+        min_area: opts.min_area,
+        trap: opts.trap,
+        dpi,
+        mean_delta_e2000: de.iter().sum::<f64>() / total as f64,
+        regions_merged: merge.merged,
+        regions_kept_isolated: merge.kept_isolated,
+        inks: inks_report,
+    };
+    Ok(Separation {
+        width: img.width,
+        height: img.height,
+        inks: chosen,
+        labels,
+        masks,
+        document,
+    })
+}
+
+/// Writes a 1-bit plate: 0 (black) = ink, 1 (white) = no ink.
+fn write_plate<W: std::io::Write>(
+    w: W,
+    width: u32,
+    height: u32,
+    mask: &[bool],
+) -> std::io::Result<()> {
+    let mut enc = png::Encoder::new(w, width, height);
+    enc.set_color(png::ColorType::Grayscale);
+    enc.set_depth(png::BitDepth::One);
+    let mut writer = enc.write_header().map_err(std::io::Error::other)?;
+    let row_bytes = (width as usize).div_ceil(8);
+    let mut packed = vec![0u8; row_bytes * height as usize];
+    packed
+        .par_chunks_mut(row_bytes)
+        .enumerate()
+        .for_each(|(y, out)| {
+            let row = &mask[y * width as usize..(y + 1) * width as usize];
+            for (x, &ink) in row.iter().enumerate() {
+                if !ink {
+                    out[x / 8] |= 0x80 >> (x % 8);
+                }
+            }
+        });
+    writer
+        .write_image_data(&packed)
+        .map_err(std::io::Error::other)?;
+    writer.finish().map_err(std::io::Error::other)
+}
+
+/// The proof: inks laid lightest first on the substrate (white when none is given);
+/// transparent artwork stays transparent.
+pub fn proof_rgba(sep: &Separation, substrate: Option<[u8; 3]>) -> Vec<u8> {
+    let paper = substrate.unwrap_or([255, 255, 255]);
+    let ink_rgb: Vec<[u8; 3]> = sep
+        .inks
+        .iter()
+        .map(|i| colour::parse_hex(&i.hex).unwrap_or([0, 0, 0]))
+        .collect();
+    let mut out = vec![0u8; sep.labels.len() * 4];
+    out.par_chunks_mut(4).enumerate().for_each(|(p, px)| {
+        if sep.labels[p] == FIXED {
+            return;
+        }
+        let mut c = paper;
+        for (i, m) in sep.masks.iter().enumerate() {
+            if m[p] {
+                c = ink_rgb[i];
+            }
+        }
+        px[..3].copy_from_slice(&c);
+        px[3] = 255;
+    });
+    out
+}
+
+fn xml_escape(s: &str) -> String {
+    s.replace('&', "&amp;")
+        .replace('<', "&lt;")
+        .replace('>', "&gt;")
+        .replace('"', "&quot;")
+}
+
+/// The swatch sheet: one card per ink with its patch, name, Lab, coverage and ΔE2000.
+pub fn swatches_svg(doc: &SeparationDocument) -> String {
+    let card_w = 220;
+    let card_h = 150;
+    let cols = doc.inks.len().clamp(1, 4);
+    let rows = doc.inks.len().div_ceil(cols).max(1);
+    let (w, h) = (cols * card_w + 20, rows * card_h + 60);
+    let mut s = format!(
+        "<svg xmlns=\"http://www.w3.org/2000/svg\" width=\"{w}\" height=\"{h}\" viewBox=\"0 0 {w} {h}\" font-family=\"sans-serif\">\n\
+         <rect width=\"100%\" height=\"100%\" fill=\"#fafafa\"/>\n\
+         <text x=\"10\" y=\"24\" font-size=\"16\">{} — {} inks, mean ΔE2000 {:.2}</text>\n\
+         <text x=\"10\" y=\"44\" font-size=\"11\" fill=\"#555\">substrate {}, min area {} px, trap {} px</text>\n",
+        xml_escape(doc.input.as_deref().unwrap_or("artwork")),
+        doc.inks.len(),
+        doc.mean_delta_e2000,
+        doc.substrate.as_deref().unwrap_or("none"),
+        doc.min_area,
+        doc.trap
+    );
+    for (i, ink) in doc.inks.iter().enumerate() {
+        let x = 10 + (i % cols) * card_w;
+        let y = 56 + (i / cols) * card_h;
+        s.push_str(&format!(
+            "<g transform=\"translate({x},{y})\">\n\
+             <rect x=\"0\" y=\"0\" width=\"{}\" height=\"{}\" fill=\"#fff\" stroke=\"#ccc\"/>\n\
+             <rect x=\"8\" y=\"8\" width=\"64\" height=\"64\" fill=\"{}\" stroke=\"#333\"/>\n\
+             <text x=\"80\" y=\"22\" font-size=\"13\" font-weight=\"bold\">{:02} {}</text>\n\
+             <text x=\"80\" y=\"40\" font-size=\"11\">L* {:.1}  a* {:.1}  b* {:.1}</text>\n\
+             <text x=\"80\" y=\"56\" font-size=\"11\">{}</text>\n\
+             <text x=\"8\" y=\"94\" font-size=\"11\">coverage {:.1} %{}</text>\n\
+             <text x=\"8\" y=\"112\" font-size=\"11\">mean ΔE2000 {:.2}</text>\n\
+             <text x=\"8\" y=\"130\" font-size=\"9\" fill=\"#555\">{}</text>\n\
+             </g>\n",
+            card_w - 10,
+            card_h - 10,
+            ink.hex,
+            i + 1,
+            xml_escape(&ink.name),
+            ink.lab_d50[0],
+            ink.lab_d50[1],
+            ink.lab_d50[2],
+            ink.hex,
+            ink.coverage * 100.0,
+            ink.area_cm2
+                .map(|a| format!(", {a:.1} cm²"))
+                .unwrap_or_default(),
+            ink.mean_delta_e2000,
+            xml_escape(&ink.plate),
+        ));
+    }
+    s.push_str("</svg>\n");
+    s
+}
+
+/// The summary table printed on standard error.
+pub fn summary_table(doc: &SeparationDocument) -> String {
+    let mut s = format!(
+        "{:<5} {:<24} {:>6} {:>6} {:>6} {:>9} {:>9} {:>9}\n",
+        "plate", "ink", "L*", "a*", "b*", "coverage", "area cm²", "ΔE2000"
+    );
+    for (i, ink) in doc.inks.iter().enumerate() {
+        s.push_str(&format!(
+            "{:<5} {:<24} {:>6.1} {:>6.1} {:>6.1} {:>8.1}% {:>9} {:>9.2}\n",
+            format!("{:02}", i + 1),
+            ink.name,
+            ink.lab_d50[0],
+            ink.lab_d50[1],
+            ink.lab_d50[2],
+            ink.coverage * 100.0,
+            ink.area_cm2
+                .map(|a| format!("{a:.1}"))
+                .unwrap_or_else(|| "-".into()),
+            ink.mean_delta_e2000
+        ));
+    }
+    s.push_str(&format!(
+        "mean ΔE2000 {:.2} over the artwork; selection: {}; {} small regions merged",
+        doc.mean_delta_e2000, doc.selection, doc.regions_merged
+    ));
+    s
+}
+
+/// What [`separate_file`] did.
+#[derive(Debug, Clone)]
+pub struct SeparateReport {
+    pub outputs: Vec<PathBuf>,
+    pub document: SeparationDocument,
+    pub seconds: f64,
+}
+
+/// Reads artwork and library, separates, and writes every output atomically.
+pub fn separate_file(
+    input: &Path,
+    library_path: &Path,
+    out_dir: &Path,
+    opts: &SeparateOptions,
+) -> Result<SeparateReport> {
+    let t0 = Instant::now();
+    if let Some(d) = opts.dpi {
+        if !(d.is_finite() && d > 0.0) {
+            return Err(crate::error::ParamsError::Other(format!(
+                "dpi must be a positive number (got {d})"
+            ))
+            .into());
+        }
+    }
+    let library = inks::read_library(library_path)?;
+    resolve_inks(&library, opts, library_path)?;
+    let stem = crate::reduce::stem_of(input)?;
+    let img = raster::decode(input, &opts.limits)?;
+    let mut set = OutputSet::prepare(out_dir, &[input, library_path])?;
+    let mut sep =
+        separate_image(&img, &library, opts, library_path, &stem).map_err(|e| match e {
+            Error::Data(message) => Error::InputData {
+                path: input.into(),
+                message,
+            },
+            other => other,
+        })?;
+    drop(img);
+    sep.document.input = input.file_name().map(|n| n.to_string_lossy().into_owned());
+    let json = serde_json::to_string_pretty(&sep.document).expect("document serialises");
+    set.write_bytes(
+        &format!("{stem}.separation.json"),
+        format!("{json}\n").as_bytes(),
+    )?;
+    for (i, ink) in sep.document.inks.iter().enumerate() {
+        let mask = &sep.masks[i];
+        set.write(&ink.plate, |w| write_plate(w, sep.width, sep.height, mask))?;
+    }
+    let proof = proof_rgba(&sep, opts.substrate);
+    set.write(&format!("{stem}.proof.png"), |w| {
+        raster::write_rgba_png(w, sep.width, sep.height, &proof)
+    })?;
+    set.write_bytes(
+        &format!("{stem}.swatches.svg"),
+        swatches_svg(&sep.document).as_bytes(),
+    )?;
+    let outputs = set.commit()?;
+    Ok(SeparateReport {
+        outputs,
+        document: sep.document,
+        seconds: t0.elapsed().as_secs_f64(),
+    })
+}
