@@ -91,5 +91,33 @@ fn main() -> ExitCode {
                 Err(e) => fail(e),
             }
         }
+        Command::Landcover(args) => {
+            let opts = args.options();
+            match chromasift::landcover::landcover_file(&args.input, &args.out, &opts) {
+                Ok(report) => {
+                    let d = &report.document;
+                    eprintln!(
+                        "chromasift: {}: {} classes over {} valid pixels ({} nodata), SSE {:.6e}, {:.2} s",
+                        args.input.display(),
+                        d.k,
+                        d.valid_pixels,
+                        d.nodata_pixels,
+                        d.sse,
+                        report.seconds
+                    );
+                    eprintln!("chromasift: caution: {}", chromasift::landcover::CAUTION);
+                    if args.json {
+                        let mut out = std::io::stdout().lock();
+                        let _ = writeln!(
+                            out,
+                            "{}",
+                            serde_json::to_string_pretty(d).expect("document serialises")
+                        );
+                    }
+                    ExitCode::SUCCESS
+                }
+                Err(e) => fail(e),
+            }
+        }
     }
 }

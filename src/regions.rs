@@ -6,11 +6,13 @@
 //! so pixel `(x, y)` is at index `y * width + x`. Connectivity is 8-neighbour throughout. Pixels
 //! labelled [`FIXED`] take no part. Every size, area and distance here is in pixels.
 //!
-//! Nothing here recurses: regions are found by a two-pass union-find labelling and, while merging,
-//! by flood fills with an explicit stack. Trapping uses an exact Euclidean distance transform
-//! (a bounded column scan followed by the lower envelope of parabolas of Felzenszwalb &
-//! Huttenlocher 2012, evaluated with exact integer arithmetic), computed in bands of rows in
-//! parallel. Every result is a function of the input alone, whatever the thread count.
+//! Nothing here recurses. Regions are found by run-based union-find labelling, and merging uses
+//! flood fills with an explicit stack. Trapping is exact: for spreads up to [`BITS_MAX_PX`] pixels
+//! it dilates bit-packed rows of each ink by a digital disc (64 pixels per word operation); beyond
+//! that it uses the Euclidean distance transform of Felzenszwalb & Huttenlocher 2012 (a capped
+//! column scan, then the lower envelope of parabolas along each row, in exact integer arithmetic).
+//! Trapping runs in bands of rows in parallel; every result depends on the input alone, not on the
+//! thread count.
 
 use rayon::prelude::*;
 use std::ops::{Add, Mul, Sub};
@@ -27,10 +29,9 @@ pub struct MergeStats {
     /// Regions still smaller than `min_area` pixels at the end. Each of them touches only
     /// [`FIXED`] pixels and the image edge, so there was nothing to merge it into.
     pub kept_isolated: usize,
-    /// Passes run. Each pass labels the regions afresh and visits every region then smaller than
-    /// `min_area` pixels; the last pass is the one after which nothing below `min_area` can be
-    /// merged. 0 when nothing was examined (`min_area <= 1`, an empty image, or a label slice
-    /// whose length is not `width * height`).
+    /// Passes over the image's regions: 1 whenever anything was examined (one pass always
+    /// suffices; see [`merge_small_regions`]), 0 when nothing was (`min_area <= 1`, an empty
+    /// image, or a label slice whose length is not `width * height`).
     pub passes: usize,
 }
 
@@ -45,6 +46,19 @@ fn pixel_count(len: usize, width: usize, height: usize) -> Option<usize> {
 fn neighbours8(p: usize, width: usize, height: usize, out: &mut [usize; 8]) -> usize {
     let x = p % width;
     let y = p / width;
+    if x > 0 && x + 1 < width && y > 0 && y + 1 < height {
+        *out = [
+            p - width - 1,
+            p - width,
+            p - width + 1,
+            p - 1,
+            p + 1,
+            p + width - 1,
+            p + width,
+            p + width + 1,
+        ];
+        return 8;
+    }
     let x0 = x.saturating_sub(1);
     let x1 = (x + 1).min(width - 1);
     let y0 = y.saturating_sub(1);
@@ -65,8 +79,7 @@ fn neighbours8(p: usize, width: usize, height: usize, out: &mut [usize; 8]) -> u
 // Connected regions
 // ---------------------------------------------------------------------------------------------
 
-/// A pixel index type for the per-pixel arrays: `u32` for images up to 2³² − 1 pixels (4 bytes
-/// per pixel), `usize` above that.
+/// An index type for the per-run arrays: `u32` for images up to 2³² − 1 pixels, `usize` above.
 trait PixelIndex: Copy + Ord + Send + Sync {
     fn from_usize(i: usize) -> Self;
     fn get(self) -> usize;
@@ -95,7 +108,7 @@ impl PixelIndex for usize {
 }
 
 /// Root of `x` with path halving. Every parent index is at most its child's index, so a root is
-/// the smallest pixel index of its set.
+/// the smallest index of its set.
 #[inline]
 fn find<I: PixelIndex>(parent: &mut [I], mut x: usize) -> usize {
     loop {
@@ -124,66 +137,176 @@ fn union<I: PixelIndex>(parent: &mut [I], a: usize, b: usize) {
     }
 }
 
+/// Rows per band when labelling in parallel (about 2¹⁸ pixels per band). The result does not
+/// depend on it.
+fn label_band_rows(width: usize) -> usize {
+    ((1 << 18) / width.max(1)).max(1)
+}
+
+/// Number of runs (maximal stretches of one label, FIXED ones included) in `rows`.
+fn count_runs(rows: &[u16], width: usize) -> usize {
+    rows.chunks(width)
+        .map(|row| 1 + row.windows(2).filter(|p| p[0] != p[1]).count())
+        .sum()
+}
+
+/// Joins each run of row `y` (runs `here`) to the runs of its label in row `y - 1` (runs
+/// `above`, just before `here`) that touch it: overlapping, or meeting at a corner. Indices are
+/// into `start` and `parent`, which may be a band's part of the whole arrays; `start[r]` is the
+/// pixel index where run `r` begins.
+fn join_rows<I: PixelIndex>(
+    labels: &[u16],
+    width: usize,
+    y: usize,
+    start: &[I],
+    above: std::ops::Range<usize>,
+    here: std::ops::Range<usize>,
+    parent: &mut [I],
+) {
+    let (above_base, base) = ((y - 1) * width, y * width);
+    // End of run r (exclusive, as a column), which is the start of the next run in its row.
+    let end = |r: usize, last: usize, row_base: usize| {
+        if r + 1 < last {
+            start[r + 1].get() - row_base
+        } else {
+            width
+        }
+    };
+    let mut j = above.start;
+    for c in here.clone() {
+        let l = labels[start[c].get()];
+        if l == FIXED {
+            continue;
+        }
+        let cs = start[c].get() - base;
+        let ce = end(c, here.end, base);
+        // Runs above ending before column cs - 1 touch neither this run nor any later one.
+        while j < above.end && end(j, above.end, above_base) < cs {
+            j += 1;
+        }
+        let mut k = j;
+        while k < above.end && start[k].get() - above_base <= ce {
+            if labels[start[k].get()] == l {
+                union(parent, c, k);
+            }
+            k += 1;
+        }
+    }
+}
+
 /// Calls `visit(label, size, first)` for every 8-connected region ([`FIXED`] excluded), in
-/// raster order of the regions' first pixels. `labels.len() == width * height`.
+/// raster order of the regions' first pixels. `labels.len() == width * height`. `band_rows`
+/// rows are labelled together (see [`label_band_rows`]).
 ///
-/// Two-pass labelling with union-find (scan with the already-visited neighbours W, NW, N, NE,
-/// then a flattening pass that numbers the regions); uses one index per pixel.
+/// Run-based labelling: every row is cut into runs of one label, and each run is joined
+/// (union-find) to the runs of its label in the row above that touch it. Bands of rows are cut
+/// and joined in parallel, then joined to each other; a final pass in raster order numbers the
+/// regions. Memory: two indices per run (at most 8 bytes per pixel).
 fn components<I: PixelIndex>(
     labels: &[u16],
     width: usize,
     height: usize,
+    band_rows: usize,
     mut visit: impl FnMut(u16, usize, usize),
 ) {
     let n = labels.len();
-    let mut parent: Vec<I> = vec![I::from_usize(0); n];
-    for y in 0..height {
-        let row = y * width;
-        for x in 0..width {
-            let p = row + x;
-            let l = labels[p];
-            if l == FIXED {
-                continue;
-            }
-            parent[p] = I::from_usize(p);
-            if y > 0 && labels[p - width] == l {
-                // N touches NW, NE and W, so any of them with this label is already in N's set.
-                let r = find(&mut parent, p - width);
-                parent[p] = I::from_usize(r);
-            } else {
-                if x > 0 && labels[p - 1] == l {
-                    let r = find(&mut parent, p - 1);
-                    parent[p] = I::from_usize(r);
-                } else if x > 0 && y > 0 && labels[p - width - 1] == l {
-                    let r = find(&mut parent, p - width - 1);
-                    parent[p] = I::from_usize(r);
-                }
-                if y > 0 && x + 1 < width && labels[p - width + 1] == l {
-                    union(&mut parent, p, p - width + 1);
-                }
-            }
-        }
+    if n == 0 {
+        return;
     }
-    // Flatten in raster order, replacing each entry by its region's number. An entry points to a
-    // smaller index, whose entry already holds the region number; a root is a region's first pixel.
+    let band_rows = band_rows.clamp(1, height);
+    let band_len = band_rows * width;
+    let counts: Vec<usize> = labels
+        .par_chunks(band_len)
+        .map(|rows| count_runs(rows, width))
+        .collect();
+    let runs: usize = counts.iter().sum();
+
+    // Runs cover every row completely (FIXED runs included, skipped later), so a run ends where
+    // the next one starts; `start[runs] == n`. `row_first[y]` is the first run of row y.
+    let mut start: Vec<I> = vec![I::from_usize(0); runs + 1];
+    let mut parent: Vec<I> = vec![I::from_usize(0); runs];
+    let mut row_first: Vec<usize> = vec![0; height + 1];
+    {
+        let mut parts = Vec::with_capacity(counts.len());
+        let (mut start_rest, mut parent_rest) = (&mut start[..runs], &mut parent[..]);
+        let mut offset = 0;
+        for (&count, rows) in counts.iter().zip(row_first[..height].chunks_mut(band_rows)) {
+            let (s, s_rest) = std::mem::take(&mut start_rest).split_at_mut(count);
+            let (p, p_rest) = std::mem::take(&mut parent_rest).split_at_mut(count);
+            start_rest = s_rest;
+            parent_rest = p_rest;
+            parts.push((offset, s, p, rows));
+            offset += count;
+        }
+        parts
+            .into_par_iter()
+            .enumerate()
+            .for_each(|(b, (offset, start, parent, row_first))| {
+                let y0 = b * band_rows;
+                let mut r = 0;
+                for (i, first) in row_first.iter_mut().enumerate() {
+                    *first = r;
+                    let base = (y0 + i) * width;
+                    let row = &labels[base..base + width];
+                    let mut x = 0;
+                    while x < width {
+                        let l = row[x];
+                        start[r] = I::from_usize(base + x);
+                        r += 1;
+                        x += 1;
+                        while x < width && row[x] == l {
+                            x += 1;
+                        }
+                    }
+                }
+                for (i, p) in parent.iter_mut().enumerate() {
+                    *p = I::from_usize(i);
+                }
+                for i in 1..row_first.len() {
+                    let next = row_first.get(i + 1).copied().unwrap_or(r);
+                    let (above, here) = (row_first[i - 1]..row_first[i], row_first[i]..next);
+                    join_rows(labels, width, y0 + i, start, above, here, parent);
+                }
+                for p in parent.iter_mut() {
+                    *p = I::from_usize(p.get() + offset);
+                }
+                for first in row_first.iter_mut() {
+                    *first += offset;
+                }
+            });
+    }
+    start[runs] = I::from_usize(n);
+    row_first[height] = runs;
+    for y in (band_rows..height).step_by(band_rows) {
+        let (above, here) = (
+            row_first[y - 1]..row_first[y],
+            row_first[y]..row_first[y + 1],
+        );
+        join_rows(labels, width, y, &start, above, here, &mut parent);
+    }
+
+    // Number the regions in raster order. An entry points to a smaller index, whose entry
+    // already holds its region's number; a root is the region's first run.
+    let label = |r: usize| labels[start[r].get()];
     let mut first: Vec<I> = Vec::new();
     let mut size: Vec<I> = Vec::new();
-    for p in 0..n {
-        if labels[p] == FIXED {
+    for r in 0..runs {
+        if label(r) == FIXED {
             continue;
         }
-        let q = parent[p].get();
-        let id = if q == p {
-            first.push(I::from_usize(p));
+        let q = parent[r].get();
+        let id = if q == r {
+            first.push(start[r]);
             size.push(I::from_usize(0));
             first.len() - 1
         } else {
             parent[q].get()
         };
-        parent[p] = I::from_usize(id);
-        size[id] = I::from_usize(size[id].get() + 1);
+        parent[r] = I::from_usize(id);
+        size[id] = I::from_usize(size[id].get() + start[r + 1].get() - start[r].get());
     }
     drop(parent);
+    drop(start);
     for (f, s) in first.iter().zip(&size) {
         visit(labels[f.get()], s.get(), f.get());
     }
@@ -196,17 +319,19 @@ fn for_each_region(
     height: usize,
     visit: impl FnMut(u16, usize, usize),
 ) {
-    if labels.len() <= u32::MAX as usize {
-        components::<u32>(labels, width, height, visit)
+    let band_rows = label_band_rows(width);
+    if labels.len() < u32::MAX as usize {
+        components::<u32>(labels, width, height, band_rows, visit)
     } else {
-        components::<usize>(labels, width, height, visit)
+        components::<usize>(labels, width, height, band_rows, visit)
     }
 }
 
 /// All 8-connected regions: (label, size in pixels, index of first pixel in raster order), FIXED excluded.
 ///
 /// Regions are listed in raster order of their first pixels. Returns an empty list for an empty
-/// image or when `labels.len() != width * height`. Memory: 4 bytes per pixel plus the list.
+/// image or when `labels.len() != width * height`. Working memory: 8 bytes per run of equal
+/// labels along a row (at most 8 bytes per pixel), plus the list.
 pub fn regions(labels: &[u16], width: usize, height: usize) -> Vec<(u16, usize, usize)> {
     let mut out = Vec::new();
     if pixel_count(labels.len(), width, height).is_none() {
@@ -220,11 +345,11 @@ pub fn regions(labels: &[u16], width: usize, height: usize) -> Vec<(u16, usize, 
 // Merging small regions
 // ---------------------------------------------------------------------------------------------
 
-/// Flood-fill state reused across regions: a generation stamp per pixel (so nothing needs
-/// clearing between fills), the explicit stack, the region's pixels and its border counts.
+/// Flood-fill state reused across regions: a visited bit per pixel (3 MB for 24 megapixels, so
+/// it mostly stays in cache; each fill clears its own bits afterwards), the explicit stack, the
+/// region's pixels and its border counts.
 struct Flood {
-    stamp: Vec<u32>,
-    generation: u32,
+    visited: Vec<u64>,
     stack: Vec<usize>,
     pixels: Vec<usize>,
     /// (neighbouring label, number of 8-neighbour pixel pairs between the region and it).
@@ -234,21 +359,21 @@ struct Flood {
 impl Flood {
     fn new(n: usize) -> Self {
         Flood {
-            stamp: vec![0; n],
-            generation: 0,
+            visited: vec![0; n.div_ceil(64)],
             stack: Vec::new(),
             pixels: Vec::new(),
             borders: Vec::new(),
         }
     }
 
-    fn next_generation(&mut self) -> u32 {
-        if self.generation == u32::MAX {
-            self.stamp.fill(0);
-            self.generation = 0;
-        }
-        self.generation += 1;
-        self.generation
+    #[inline]
+    fn seen(&self, p: usize) -> bool {
+        self.visited[p / 64] >> (p % 64) & 1 != 0
+    }
+
+    #[inline]
+    fn mark(&mut self, p: usize) {
+        self.visited[p / 64] |= 1 << (p % 64);
     }
 
     /// Fills the current region (pixels of the current label of `seed`, 8-connected) from
@@ -263,12 +388,44 @@ impl Flood {
         seed: usize,
         min_area: usize,
     ) -> bool {
-        let g = self.next_generation();
+        let small = self.fill(labels, width, height, seed, min_area);
+        if small {
+            // Every pixel pair (p inside, q outside) is seen once, from p.
+            let mut nb = [0usize; 8];
+            self.borders.clear();
+            for &p in &self.pixels {
+                let k = neighbours8(p, width, height, &mut nb);
+                for &q in &nb[..k] {
+                    let m = labels[q];
+                    if m != FIXED && !self.seen(q) {
+                        match self.borders.iter_mut().find(|(lab, _)| *lab == m) {
+                            Some(entry) => entry.1 += 1,
+                            None => self.borders.push((m, 1)),
+                        }
+                    }
+                }
+            }
+        }
+        for &p in &self.pixels {
+            self.visited[p / 64] = 0;
+        }
+        small
+    }
+
+    /// The fill of [`Flood::small_region`]: every pixel it marks is in `self.pixels`.
+    fn fill(
+        &mut self,
+        labels: &[u16],
+        width: usize,
+        height: usize,
+        seed: usize,
+        min_area: usize,
+    ) -> bool {
         let l = labels[seed];
         let mut nb = [0usize; 8];
         self.stack.clear();
         self.pixels.clear();
-        self.stamp[seed] = g;
+        self.mark(seed);
         self.stack.push(seed);
         self.pixels.push(seed);
         if self.pixels.len() >= min_area {
@@ -277,27 +434,13 @@ impl Flood {
         while let Some(p) = self.stack.pop() {
             let k = neighbours8(p, width, height, &mut nb);
             for &q in &nb[..k] {
-                if self.stamp[q] != g && labels[q] == l {
-                    self.stamp[q] = g;
+                if labels[q] == l && !self.seen(q) {
+                    self.mark(q);
                     self.pixels.push(q);
                     if self.pixels.len() >= min_area {
                         return false;
                     }
                     self.stack.push(q);
-                }
-            }
-        }
-        // Every pixel pair (p inside, q outside) is seen once, from p.
-        self.borders.clear();
-        for &p in &self.pixels {
-            let k = neighbours8(p, width, height, &mut nb);
-            for &q in &nb[..k] {
-                let m = labels[q];
-                if self.stamp[q] != g && m != FIXED {
-                    match self.borders.iter_mut().find(|(lab, _)| *lab == m) {
-                        Some(entry) => entry.1 += 1,
-                        None => self.borders.push((m, 1)),
-                    }
                 }
             }
         }
@@ -321,14 +464,23 @@ impl Flood {
 /// can be merged. A small region whose only neighbours are FIXED pixels or the image edge is kept
 /// (counted in kept_isolated). min_area <= 1 does nothing. `labels.len() == width*height`.
 ///
-/// Details: a pass lists the regions of fewer than `min_area` pixels, ordered by (size, first
-/// pixel) as they are at the start of the pass. Each is then handled in turn as the region that
-/// now contains its first pixel (earlier merges may have grown it): if that region has reached
-/// `min_area` pixels it is left alone, otherwise all of it takes the winning neighbour's label.
-/// When `labels.len() != width * height` nothing is done and the stats are all zero.
+/// Details:
+/// - A pass lists the regions of fewer than `min_area` pixels, ordered by (size, first pixel) as
+///   they are when the pass starts. Each is then handled in turn as the region that *now*
+///   contains its first pixel (earlier merges may have grown it): if that region has reached
+///   `min_area` pixels it is left alone; otherwise all of it takes the winning neighbour's label.
+/// - One pass always suffices, so `passes` is 1. Regions only ever grow by union, and a region
+///   that holds a region of `min_area` pixels or more is never relabelled, so a region left below
+///   `min_area` is made of listed regions, the last of which was handled after the others. That
+///   last one was either found isolated (and an isolated region never changes again), or merged
+///   into a label X and joined X-regions that already existed; tracing those X-regions back
+///   through the merges that made them never ends, which cannot be. So every region below
+///   `min_area` after the pass is isolated, and a second pass would merge nothing (the tests
+///   check this against the rule applied pass after pass).
+/// - When `labels.len() != width * height` nothing is done and the stats are all zero.
 ///
-/// Cost: one union-find labelling per pass (4 bytes per pixel), a 4-byte stamp per pixel, and
-/// flood fills that stop at `min_area` pixels.
+/// Cost: one run-based labelling (see [`regions`]), a 4-byte stamp per pixel, and one flood fill
+/// per small region that stops at `min_area` pixels.
 pub fn merge_small_regions(
     labels: &mut [u16],
     width: usize,
@@ -340,7 +492,7 @@ pub fn merge_small_regions(
     }
     match pixel_count(labels.len(), width, height) {
         Some(0) | None => MergeStats::default(),
-        Some(n) if n <= u32::MAX as usize => merge_impl::<u32>(labels, width, height, min_area),
+        Some(n) if n < u32::MAX as usize => merge_impl::<u32>(labels, width, height, min_area),
         Some(_) => merge_impl::<usize>(labels, width, height, min_area),
     }
 }
@@ -351,100 +503,61 @@ fn merge_impl<I: PixelIndex>(
     height: usize,
     min_area: usize,
 ) -> MergeStats {
-    let mut stats = MergeStats::default();
-    let mut flood: Option<Flood> = None;
-    loop {
-        stats.passes += 1;
-        // (size, first pixel) of every region below min_area, smallest first.
-        let mut small: Vec<(I, I)> = Vec::new();
-        components::<I>(labels, width, height, |_, size, first| {
+    // (size, first pixel) of every region below min_area, smallest first.
+    let mut small: Vec<(I, I)> = Vec::new();
+    components::<I>(
+        labels,
+        width,
+        height,
+        label_band_rows(width),
+        |_, size, first| {
             if size < min_area {
                 small.push((I::from_usize(size), I::from_usize(first)));
             }
-        });
-        if small.is_empty() {
-            stats.kept_isolated = 0;
-            return stats;
-        }
-        small.sort_unstable();
-        let flood = flood.get_or_insert_with(|| Flood::new(labels.len()));
+        },
+    );
+    let mut stats = MergeStats {
+        passes: 1,
+        ..MergeStats::default()
+    };
+    if small.is_empty() {
+        return stats;
+    }
+    small.sort_unstable();
 
-        let mut merged_now = 0;
-        for &(_, seed) in &small {
-            let seed = seed.get();
-            if !flood.small_region(labels, width, height, seed, min_area) {
-                continue;
-            }
-            if let Some(target) = flood.best_neighbour() {
+    let mut flood = Flood::new(labels.len());
+    // First pixels of the regions found isolated; one region may be found from several seeds.
+    let mut isolated: Vec<usize> = Vec::new();
+    for &(_, seed) in &small {
+        if !flood.small_region(labels, width, height, seed.get(), min_area) {
+            continue;
+        }
+        match flood.best_neighbour() {
+            Some(target) => {
                 for &p in &flood.pixels {
                     labels[p] = target;
                 }
-                merged_now += 1;
+                stats.merged += 1;
             }
-        }
-        stats.merged += merged_now;
-
-        // Which regions are still small now, and could any of them be merged? Every region
-        // below min_area is made only of regions that were below it at the start of the pass,
-        // so it contains one of the listed first pixels.
-        let (kept, mergeable) = still_small(flood, labels, width, height, &small, min_area);
-        if merged_now == 0 || !mergeable {
-            stats.kept_isolated = kept;
-            return stats;
+            None => isolated.push(flood.pixels.iter().copied().min().unwrap_or(seed.get())),
         }
     }
-}
-
-/// Counts the distinct regions below `min_area` that contain one of the `small` first pixels,
-/// and says whether any of them has a neighbouring label (so could still be merged).
-fn still_small<I: PixelIndex>(
-    flood: &mut Flood,
-    labels: &[u16],
-    width: usize,
-    height: usize,
-    small: &[(I, I)],
-    min_area: usize,
-) -> (usize, bool) {
-    // Seeds already covered by an earlier fill of this check are skipped; that needs stamps that
-    // are not reset part-way, so make room for all the generations up front.
-    let room = u32::MAX - flood.generation;
-    let skip_covered = (small.len() as u64) < u32::MAX as u64 - 1;
-    if skip_covered && (room as u64) <= small.len() as u64 {
-        flood.stamp.fill(0);
-        flood.generation = 0;
-    }
-    let start = flood.generation + 1;
-    let mut firsts: Vec<usize> = Vec::new();
-    let mut mergeable = false;
-    for &(_, seed) in small {
-        let seed = seed.get();
-        if skip_covered && flood.stamp[seed] >= start {
-            continue;
-        }
-        if flood.small_region(labels, width, height, seed, min_area) {
-            firsts.push(flood.pixels.iter().copied().min().unwrap_or(seed));
-            mergeable |= !flood.borders.is_empty();
-        }
-    }
-    firsts.sort_unstable();
-    firsts.dedup();
-    (firsts.len(), mergeable)
+    isolated.sort_unstable();
+    isolated.dedup();
+    stats.kept_isolated = isolated.len();
+    stats
 }
 
 // ---------------------------------------------------------------------------------------------
 // Trapping
 // ---------------------------------------------------------------------------------------------
 
-/// Integer type for the lower-envelope arithmetic: `i64` while both image sides are at most
-/// 2¹⁶ pixels (all products stay below 2⁵³), `i128` beyond.
-trait EnvelopeInt:
-    Copy + PartialOrd + From<i64> + Add<Output = Self> + Sub<Output = Self> + Mul<Output = Self>
-{
-}
-impl EnvelopeInt for i64 {}
-impl EnvelopeInt for i128 {}
+/// Largest spread (pixels) done by dilating bit-packed rows; larger ones use the distance
+/// transform. Both are exact; the dilation costs about px/32 word operations per pixel.
+pub const BITS_MAX_PX: u32 = 32;
 
-/// Largest image side (pixels) for which the `i64` envelope arithmetic cannot overflow.
+/// Largest image side (pixels) for which the `i64` envelope arithmetic cannot overflow (all
+/// products stay below 2⁵³); larger images use `i128`.
 const I64_MAX_SIDE: usize = 1 << 16;
 
 /// Default number of pixels per band of rows in [`trap`].
@@ -464,13 +577,15 @@ const BAND_PIXELS: usize = 1 << 18;
 ///   `is_ink.len()`, and [`FIXED`], are treated as non-inks. A non-ink's mask is all false.
 /// - An ink with no `lightness` entry, or a NaN one, neither spreads nor receives.
 /// - Ink `l` adds pixel `p` when `p`'s label is an ink strictly darker than `l` and some pixel of
-///   `l` lies within `px` pixels of `p` (straight-line distance between centres, whatever lies in
-///   between).
+///   `l` lies within `px` pixels of `p`: straight-line distance between centres, whatever lies in
+///   between (so a spread can reach across a gap of substrate narrower than `px`).
 /// - When `labels.len() != width * height` the geometry is unknown: the masks are the own pixels.
 ///
-/// Cost: per spreading ink, two bounded column scans and one lower-envelope pass per row, so
-/// O(pixels) per ink whatever `px`; bands of rows run in parallel. Memory: the masks plus, per
-/// thread, 4 bytes per pixel of one band.
+/// Method and cost: both exact, O(pixels) per spreading ink, in parallel bands of rows. Up to
+/// [`BITS_MAX_PX`]: each row of the ink is bit-packed and dilated by the digital disc (row offset
+/// dy gets a run of ±⌊√(px² − dy²)⌋ pixels). Beyond: the Felzenszwalb & Huttenlocher 2012
+/// distance transform, with the column distances capped at px + 1. Memory: the masks, plus per
+/// thread a few bytes per pixel of one band.
 pub fn trap(
     labels: &[u16],
     width: usize,
@@ -479,7 +594,28 @@ pub fn trap(
     is_ink: &[bool],
     px: u32,
 ) -> Vec<Vec<bool>> {
-    trap_impl(labels, width, height, lightness, is_ink, px, None, false)
+    trap_impl(
+        labels,
+        width,
+        height,
+        lightness,
+        is_ink,
+        px,
+        None,
+        Method::Auto,
+    )
+}
+
+/// How [`trap_impl`] finds the pixels within reach (every choice gives the same masks).
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+enum Method {
+    /// Bit-packed dilation up to [`BITS_MAX_PX`], the distance transform beyond.
+    Auto,
+    Bits,
+    /// The distance transform with `i128` arithmetic when `wide`, else `i64`.
+    Envelope {
+        wide: bool,
+    },
 }
 
 /// What one ink spreads into.
@@ -488,9 +624,11 @@ struct Spread {
     ink: u16,
     /// `into[m]`: label `m` receives from this ink.
     into: Vec<bool>,
+    /// The labels it spreads into, as a list.
+    targets: Vec<usize>,
 }
 
-/// [`trap`] with test hooks: `band_rows` overrides the band height, `force_wide` uses `i128`.
+/// [`trap`] with test hooks: `band_rows` overrides the band height, `method` the method.
 #[allow(clippy::too_many_arguments)]
 fn trap_impl(
     labels: &[u16],
@@ -500,7 +638,7 @@ fn trap_impl(
     is_ink: &[bool],
     px: u32,
     band_rows: Option<usize>,
-    force_wide: bool,
+    method: Method,
 ) -> Vec<Vec<bool>> {
     let n = labels.len();
     // FIXED is never an ink, even when is_ink is long enough to have an entry for it.
@@ -520,7 +658,7 @@ fn trap_impl(
     };
 
     // No two pixel centres are farther apart than (w - 1) + (h - 1), so a larger px changes
-    // nothing; the cap keeps the capped column distances (px + 1) inside u32.
+    // nothing; the cap also keeps px + 1 inside u32.
     let reach = ((w - 1) as u64 + (h - 1) as u64).min(u32::MAX as u64 - 2);
     let px = (px as u64).min(reach) as u32;
 
@@ -532,12 +670,21 @@ fn trap_impl(
             .filter(|&l| ink[l])
             .filter_map(|l| {
                 let into: Vec<bool> = (0..nl).map(|m| ink[m] && lum(m) < lum(l)).collect();
-                into.iter().any(|&b| b).then_some(Spread {
+                let targets: Vec<usize> = (0..nl).filter(|&m| into[m]).collect();
+                (!targets.is_empty()).then_some(Spread {
                     ink: l as u16,
                     into,
+                    targets,
                 })
             })
             .collect()
+    };
+    let method = match method {
+        Method::Auto if px <= BITS_MAX_PX => Method::Bits,
+        Method::Auto => Method::Envelope {
+            wide: w.max(h) > I64_MAX_SIDE,
+        },
+        m => m,
     };
 
     let rows = band_rows
@@ -551,6 +698,38 @@ fn trap_impl(
             per_band[b].push(chunk);
         }
     }
+
+    // Bit planes are kept for inks only.
+    let mut plane = vec![usize::MAX; nl];
+    let mut planes = 0;
+    for l in 0..nl {
+        if ink[l] {
+            plane[l] = planes;
+            planes += 1;
+        }
+    }
+    // Half-width of the digital disc at row offset d: the largest r with r² + d² <= px².
+    let p2 = px as u64 * px as u64;
+    let half: Vec<u32> = (0..=px as u64)
+        .map(|d| {
+            let mut r = ((p2 - d * d) as f64).sqrt() as u64;
+            while r * r + d * d > p2 {
+                r -= 1;
+            }
+            while (r + 1) * (r + 1) + d * d <= p2 {
+                r += 1;
+            }
+            r as u32
+        })
+        .collect();
+    let mut radii = half.clone();
+    radii.sort_unstable();
+    radii.dedup();
+    let slot: Vec<usize> = half
+        .iter()
+        .map(|r| radii.binary_search(r).unwrap_or(0))
+        .collect();
+
     let job = Job {
         labels,
         w,
@@ -559,12 +738,18 @@ fn trap_impl(
         px,
         ink: &ink,
         spreads: &spreads,
+        method,
+        plane: &plane,
+        planes,
+        radii: &radii,
+        slot: &slot,
     };
-    if force_wide || w.max(h) > I64_MAX_SIDE {
-        job.run::<i128>(per_band);
-    } else {
-        job.run::<i64>(per_band);
-    }
+    per_band
+        .into_par_iter()
+        .enumerate()
+        .for_each_init(Scratch::default, |scratch, (b, mut chunks)| {
+            job.band(b, &mut chunks, scratch)
+        });
     masks
 }
 
@@ -579,115 +764,307 @@ struct Job<'a> {
     px: u32,
     ink: &'a [bool],
     spreads: &'a [Spread],
+    /// `Bits` or `Envelope`, never `Auto`.
+    method: Method,
+    /// Bit plane of each ink label (`usize::MAX` for non-inks), and the number of planes.
+    plane: &'a [usize],
+    planes: usize,
+    /// The distinct disc half-widths, ascending, and the index in it for each row offset 0..=px.
+    radii: &'a [u32],
+    slot: &'a [usize],
 }
 
 /// Per-thread buffers for [`Job::band`].
 #[derive(Default)]
 struct Scratch {
+    /// Labels seen (indexed by label).
+    seen: Vec<bool>,
+    /// Bit planes of the inks for the band and its margins: `[plane][row][word]`.
+    bits: Vec<u64>,
+    /// Dilations of one ink's plane by each disc half-width: `[radius][row][word]`.
+    dilated: Vec<u64>,
+    /// Row buffers (words).
+    a: Vec<u64>,
+    b: Vec<u64>,
+    reach: Vec<u64>,
+    target: Vec<u64>,
     /// Column distance (pixels, capped at px + 1) to the spreading ink, for the band's rows.
     g: Vec<u32>,
     /// The running column distances of one scan.
     cur: Vec<u32>,
+    env64: Envelope<i64>,
+    env128: Envelope<i128>,
+}
+
+/// Bit i set where `labels[i] == l` (at most 64 labels).
+#[inline]
+fn pack(labels: &[u16], l: u16) -> u64 {
+    if let Ok(block) = <&[u16; 64]>::try_from(labels) {
+        let mut word = 0u64;
+        for (i, &m) in block.iter().enumerate() {
+            word |= ((m == l) as u64) << i;
+        }
+        word
+    } else {
+        labels
+            .iter()
+            .enumerate()
+            .fold(0, |word, (i, &m)| word | ((m == l) as u64) << i)
+    }
+}
+
+/// `dst` = `src` dilated by one pixel left and right (bit i of word k is pixel 64k + i).
+fn dilate_row(src: &[u64], dst: &mut [u64]) {
+    let n = src.len();
+    for k in 0..n {
+        let x = src[k];
+        let from_left = if k > 0 { src[k - 1] >> 63 } else { 0 };
+        let from_right = if k + 1 < n { src[k + 1] << 63 } else { 0 };
+        dst[k] = x | (x << 1) | from_left | (x >> 1) | from_right;
+    }
 }
 
 impl Job<'_> {
-    fn run<T: EnvelopeInt>(&self, per_band: Vec<Vec<&mut [bool]>>) {
-        per_band.into_par_iter().enumerate().for_each_init(
-            || (Scratch::default(), Envelope::<T>::new()),
-            |(scratch, env), (b, mut chunks)| self.band(b, &mut chunks, scratch, env),
-        );
-    }
-
     /// Fills band `b` (rows `b * rows ..`) of every mask; `chunks[l]` is that part of mask `l`.
-    fn band<T: EnvelopeInt>(
-        &self,
-        b: usize,
-        chunks: &mut [&mut [bool]],
-        scratch: &mut Scratch,
-        env: &mut Envelope<T>,
-    ) {
+    fn band(&self, b: usize, chunks: &mut [&mut [bool]], s: &mut Scratch) {
         let (w, h) = (self.w, self.h);
         let nl = self.ink.len();
         let r0 = b * self.rows;
         let r1 = (r0 + self.rows).min(h);
         let band_labels = &self.labels[r0 * w..r1 * w];
-        for (i, &l) in band_labels.iter().enumerate() {
-            let l = l as usize;
-            if l < nl && self.ink[l] {
-                chunks[l][i] = true;
+        // Own pixels: one compare per pixel and ink, which vectorises.
+        for (l, chunk) in chunks.iter_mut().enumerate() {
+            if self.ink[l] {
+                let l = l as u16;
+                for (o, &m) in chunk.iter_mut().zip(band_labels) {
+                    *o = m == l;
+                }
             }
         }
         if self.spreads.is_empty() {
             return;
         }
 
-        // Pixels of an ink more than px rows away cannot reach this band.
-        let reach = self.px as usize;
-        let h0 = r0.saturating_sub(reach);
-        let h1 = (r1 + reach).min(h);
-        let mut near = vec![false; nl];
-        let mut inside = vec![false; nl];
-        for (i, &l) in self.labels[h0 * w..h1 * w].iter().enumerate() {
-            let l = l as usize;
-            if l < nl {
-                near[l] = true;
-                if (r0 - h0) * w <= i && i < (r1 - h0) * w {
-                    inside[l] = true;
+        // Which labels occur in the band, and within px rows of it (pixels farther away cannot
+        // reach the band).
+        let margin = self.px as usize;
+        let h0 = r0.saturating_sub(margin);
+        let h1 = (r1 + margin).min(h);
+        s.seen.clear();
+        s.seen.resize(1 << 16, false);
+        for &l in band_labels {
+            s.seen[l as usize] = true;
+        }
+        let inside: Vec<bool> = s.seen[..nl].to_vec();
+        for &l in self.labels[h0 * w..r0 * w]
+            .iter()
+            .chain(&self.labels[r1 * w..h1 * w])
+        {
+            s.seen[l as usize] = true;
+        }
+        let near = &s.seen[..nl];
+        let active: Vec<&Spread> = self
+            .spreads
+            .iter()
+            .filter(|sp| near[sp.ink as usize] && sp.targets.iter().any(|&m| inside[m]))
+            .collect();
+        if active.is_empty() {
+            return;
+        }
+        match self.method {
+            Method::Envelope { wide: false } => {
+                for sp in active {
+                    self.spread_envelope(
+                        r0,
+                        r1,
+                        h0,
+                        h1,
+                        sp,
+                        chunks,
+                        &mut s.g,
+                        &mut s.cur,
+                        &mut s.env64,
+                    );
+                }
+            }
+            Method::Envelope { wide: true } => {
+                for sp in active {
+                    self.spread_envelope(
+                        r0,
+                        r1,
+                        h0,
+                        h1,
+                        sp,
+                        chunks,
+                        &mut s.g,
+                        &mut s.cur,
+                        &mut s.env128,
+                    );
+                }
+            }
+            Method::Bits | Method::Auto => self.spread_bits(r0, r1, h0, h1, &active, chunks, s),
+        }
+    }
+
+    /// Bit-packed spreading for the band rows `r0..r1`, with margin rows `h0..h1`.
+    #[allow(clippy::too_many_arguments)]
+    fn spread_bits(
+        &self,
+        r0: usize,
+        r1: usize,
+        h0: usize,
+        h1: usize,
+        active: &[&Spread],
+        chunks: &mut [&mut [bool]],
+        s: &mut Scratch,
+    ) {
+        let w = self.w;
+        let words = w.div_ceil(64);
+        let rows = h1 - h0;
+        let px = self.px as usize;
+        let row_at = |plane: usize, row: usize| (plane * rows + row) * words;
+
+        s.bits.clear();
+        s.bits.resize(self.planes * rows * words, 0);
+        for j in 0..rows {
+            let lab = &self.labels[(h0 + j) * w..(h0 + j + 1) * w];
+            for (l, &p) in self.plane.iter().enumerate() {
+                if p == usize::MAX {
+                    continue;
+                }
+                let l = l as u16;
+                let dst = &mut s.bits[row_at(p, j)..row_at(p, j) + words];
+                for (word, chunk) in dst.iter_mut().zip(lab.chunks(64)) {
+                    *word = pack(chunk, l);
                 }
             }
         }
+        s.a.resize(words, 0);
+        s.b.resize(words, 0);
+        s.reach.resize(words, 0);
+        s.target.resize(words, 0);
 
-        let cap = self.px + 1;
-        let px2 = T::from(self.px as i64 * self.px as i64);
-        for spread in self.spreads {
-            let l = spread.ink;
-            let any_target = spread.into.iter().zip(&inside).any(|(&a, &b)| a && b);
-            if !near[l as usize] || !any_target {
-                continue;
-            }
-            // Column distance to the nearest pixel of l, capped at px + 1 ("too far"): a scan
-            // down from px rows above the band, then a scan up from px rows below it.
-            let g = &mut scratch.g;
-            g.clear();
-            g.resize((r1 - r0) * w, cap);
-            let cur = &mut scratch.cur;
-            cur.clear();
-            cur.resize(w, cap);
-            for y in h0..r1 {
-                let lab = &self.labels[y * w..(y + 1) * w];
-                for (c, &m) in cur.iter_mut().zip(lab) {
-                    *c = if m == l { 0 } else { (*c + 1).min(cap) };
+        for sp in active {
+            let own = self.plane[sp.ink as usize];
+            // Each row of the ink dilated by every disc half-width.
+            s.dilated.clear();
+            s.dilated.resize(self.radii.len() * rows * words, 0);
+            for j in 0..rows {
+                let src = &s.bits[row_at(own, j)..row_at(own, j) + words];
+                if src.iter().all(|&x| x == 0) {
+                    continue;
                 }
-                if y >= r0 {
-                    g[(y - r0) * w..(y - r0 + 1) * w].copy_from_slice(cur);
+                s.a.copy_from_slice(src);
+                let mut radius = 0;
+                for (k, &r) in self.radii.iter().enumerate() {
+                    while radius < r {
+                        dilate_row(&s.a, &mut s.b);
+                        std::mem::swap(&mut s.a, &mut s.b);
+                        radius += 1;
+                    }
+                    s.dilated[row_at(k, j)..row_at(k, j) + words].copy_from_slice(&s.a);
                 }
             }
-            cur.fill(cap);
-            for y in (r0..h1).rev() {
-                let lab = &self.labels[y * w..(y + 1) * w];
-                for (c, &m) in cur.iter_mut().zip(lab) {
-                    *c = if m == l { 0 } else { (*c + 1).min(cap) };
+            let mask = &mut *chunks[sp.ink as usize];
+            for y in r0..r1 {
+                let j = y - h0;
+                s.target.fill(0);
+                for &m in &sp.targets {
+                    let p = row_at(self.plane[m], j);
+                    for (t, &x) in s.target.iter_mut().zip(&s.bits[p..p + words]) {
+                        *t |= x;
+                    }
                 }
-                if y < r1 {
-                    for (d, &c) in g[(y - r0) * w..(y - r0 + 1) * w].iter_mut().zip(cur.iter()) {
-                        *d = (*d).min(c);
+                if s.target.iter().all(|&x| x == 0) {
+                    continue;
+                }
+                // Rows y - px ..= y + px within the margins, each dilated by its half-width.
+                s.reach.fill(0);
+                for yy in y.saturating_sub(px).max(h0)..(y + px + 1).min(h1) {
+                    let p = row_at(self.slot[y.abs_diff(yy)], yy - h0);
+                    for (t, &x) in s.reach.iter_mut().zip(&s.dilated[p..p + words]) {
+                        *t |= x;
+                    }
+                }
+                let out = &mut mask[(y - r0) * w..(y - r0 + 1) * w];
+                for (k, (&t, &r)) in s.target.iter().zip(&s.reach).enumerate() {
+                    let mut hit = t & r;
+                    while hit != 0 {
+                        out[k * 64 + hit.trailing_zeros() as usize] = true;
+                        hit &= hit - 1;
                     }
                 }
             }
-            let mask = &mut *chunks[l as usize];
-            for i in 0..r1 - r0 {
-                env.spread_row(
-                    &g[i * w..(i + 1) * w],
-                    cap,
-                    &band_labels[i * w..(i + 1) * w],
-                    &spread.into,
-                    px2,
-                    &mut mask[i * w..(i + 1) * w],
-                );
+        }
+    }
+
+    /// Distance-transform spreading of one ink for the band rows `r0..r1` (margins `h0..h1`).
+    #[allow(clippy::too_many_arguments)]
+    fn spread_envelope<T: EnvelopeInt>(
+        &self,
+        r0: usize,
+        r1: usize,
+        h0: usize,
+        h1: usize,
+        sp: &Spread,
+        chunks: &mut [&mut [bool]],
+        g: &mut Vec<u32>,
+        cur: &mut Vec<u32>,
+        env: &mut Envelope<T>,
+    ) {
+        let w = self.w;
+        let l = sp.ink;
+        let cap = self.px + 1;
+        let px2 = T::from(self.px as i64 * self.px as i64);
+        // Column distance to the nearest pixel of l, capped at px + 1 ("too far"): a scan down
+        // from px rows above the band, then a scan up from px rows below it.
+        g.clear();
+        g.resize((r1 - r0) * w, cap);
+        cur.clear();
+        cur.resize(w, cap);
+        for y in h0..r1 {
+            let lab = &self.labels[y * w..(y + 1) * w];
+            for (c, &m) in cur.iter_mut().zip(lab) {
+                *c = if m == l { 0 } else { (*c + 1).min(cap) };
             }
+            if y >= r0 {
+                g[(y - r0) * w..(y - r0 + 1) * w].copy_from_slice(cur);
+            }
+        }
+        cur.fill(cap);
+        for y in (r0..h1).rev() {
+            let lab = &self.labels[y * w..(y + 1) * w];
+            for (c, &m) in cur.iter_mut().zip(lab) {
+                *c = if m == l { 0 } else { (*c + 1).min(cap) };
+            }
+            if y < r1 {
+                for (d, &c) in g[(y - r0) * w..(y - r0 + 1) * w].iter_mut().zip(cur.iter()) {
+                    *d = (*d).min(c);
+                }
+            }
+        }
+        let mask = &mut *chunks[l as usize];
+        let band_labels = &self.labels[r0 * w..r1 * w];
+        for i in 0..r1 - r0 {
+            env.spread_row(
+                &g[i * w..(i + 1) * w],
+                cap,
+                &band_labels[i * w..(i + 1) * w],
+                &sp.into,
+                px2,
+                &mut mask[i * w..(i + 1) * w],
+            );
         }
     }
 }
+
+/// Integer type for the lower-envelope arithmetic (`i64` or `i128`).
+trait EnvelopeInt:
+    Copy + PartialOrd + From<i64> + Add<Output = Self> + Sub<Output = Self> + Mul<Output = Self>
+{
+}
+impl EnvelopeInt for i64 {}
+impl EnvelopeInt for i128 {}
 
 /// Lower envelope of the parabolas `(x - q)² + g[q]²` of one row (Felzenszwalb & Huttenlocher
 /// 2012), in exact integer arithmetic: boundaries are kept as fractions and compared by
@@ -702,8 +1079,8 @@ struct Envelope<T> {
     zd: Vec<T>,
 }
 
-impl<T: EnvelopeInt> Envelope<T> {
-    fn new() -> Self {
+impl<T> Default for Envelope<T> {
+    fn default() -> Self {
         Envelope {
             v: Vec::new(),
             f: Vec::new(),
@@ -711,7 +1088,9 @@ impl<T: EnvelopeInt> Envelope<T> {
             zd: Vec::new(),
         }
     }
+}
 
+impl<T: EnvelopeInt> Envelope<T> {
     /// Sets `out[x]` for every `x` whose label `m` has `into[m]` and whose squared distance to the
     /// nearest pixel of the spreading ink, `min over q of (x - q)² + g[q]²`, is at most `px2`.
     /// `g[q] >= cap` means no pixel of the ink within reach in column q.
@@ -728,7 +1107,6 @@ impl<T: EnvelopeInt> Envelope<T> {
         self.f.clear();
         self.zn.clear();
         self.zd.clear();
-        let zero = T::from(0);
         for (q, &gq) in g.iter().enumerate() {
             if gq >= cap {
                 continue;
@@ -737,15 +1115,12 @@ impl<T: EnvelopeInt> Envelope<T> {
             let gt = T::from(gq as i64);
             let fq = gt * gt + qt * qt;
             loop {
-                let k = match self.v.len() {
-                    0 => {
-                        self.v.push(q);
-                        self.f.push(fq);
-                        self.zn.push(zero);
-                        self.zd.push(T::from(1));
-                        break;
-                    }
-                    len => len - 1,
+                let Some(k) = self.v.len().checked_sub(1) else {
+                    self.v.push(q);
+                    self.f.push(fq);
+                    self.zn.push(T::from(0));
+                    self.zd.push(T::from(1));
+                    break;
                 };
                 // Where parabola q starts to be lower than the last one: num / den.
                 let num = fq - self.f[k];
@@ -985,6 +1360,25 @@ mod tests {
             assert_eq!(r, reference_regions(&l, w, h), "seed {seed}");
             let total: usize = r.iter().map(|x| x.1).sum();
             assert_eq!(total, l.iter().filter(|&&x| x != FIXED).count());
+        }
+    }
+
+    #[test]
+    fn labelling_does_not_depend_on_bands() {
+        for seed in 0..30 {
+            let mut rng = XorShift::new(seed + 3000);
+            let w = 1 + rng.below(50) as usize;
+            let h = 1 + rng.below(40) as usize;
+            let l = blobs(seed + 50, w, h, 1 + rng.below(5) as u16, seed % 3 != 0);
+            let want = reference_regions(&l, w, h);
+            for band_rows in [1, 2, 3, 7, h] {
+                let mut got = Vec::new();
+                components::<u32>(&l, w, h, band_rows, |a, b, c| got.push((a, b, c)));
+                assert_eq!(got, want, "seed {seed} band_rows {band_rows}");
+                let mut got = Vec::new();
+                components::<usize>(&l, w, h, band_rows, |a, b, c| got.push((a, b, c)));
+                assert_eq!(got, want, "seed {seed} band_rows {band_rows}");
+            }
         }
     }
 
@@ -1243,6 +1637,14 @@ mod tests {
 
     // ---- trap --------------------------------------------------------------------------------
 
+    const ENVELOPE: Method = Method::Envelope { wide: false };
+    const METHODS: [Method; 4] = [
+        Method::Auto,
+        Method::Bits,
+        Method::Envelope { wide: false },
+        Method::Envelope { wide: true },
+    ];
+
     /// Trap rule by direct search of the (2px + 1)² window around every pixel.
     fn reference_trap(
         labels: &[u16],
@@ -1353,13 +1755,19 @@ mod tests {
             m[0],
             mask_of(&["..#..", ".###.", "#####", ".###.", "..#.."])
         );
-        let m = trap(&labels, 5, 5, &light, &ink, 3);
+        // (±2, ±2) is √8 ≤ 3 away; (±3, ±1) is √10 > 3 away.
+        let mut labels = vec![1u16; 49];
+        labels[24] = 0;
+        let m = trap(&labels, 7, 7, &light, &ink, 3);
         assert_eq!(
             m[0],
-            mask_of(&[".###.", "#####", "#####", "#####", ".###."])
+            mask_of(&[
+                "...#...", ".#####.", ".#####.", "#######", ".#####.", ".#####.", "...#...",
+            ])
         );
+        assert_eq!(m[0].iter().filter(|&&b| b).count(), 29);
         // The dark ink never spreads into the lighter one.
-        assert!(!m[1][12]);
+        assert!(!m[1][24]);
     }
 
     #[test]
@@ -1477,13 +1885,12 @@ mod tests {
     fn trap_bands_and_wide_arithmetic_agree() {
         for seed in 200..230 {
             let (labels, w, h, lightness, is_ink) = trap_case(seed);
-            for px in [1u32, 2, 3, 7] {
+            for px in [1u32, 2, 3, 7, 33] {
                 let want = reference_trap(&labels, w, h, &lightness, &is_ink, px);
-                for rows in [1, 2, 3, 5, 8] {
-                    for wide in [false, true] {
-                        let got =
-                            trap_impl(&labels, w, h, &lightness, &is_ink, px, Some(rows), wide);
-                        assert_eq!(got, want, "seed {seed} px {px} rows {rows} wide {wide}");
+                for rows in [None, Some(1), Some(2), Some(3), Some(5), Some(8)] {
+                    for method in METHODS {
+                        let got = trap_impl(&labels, w, h, &lightness, &is_ink, px, rows, method);
+                        assert_eq!(got, want, "seed {seed} px {px} rows {rows:?} {method:?}");
                     }
                 }
             }
@@ -1546,8 +1953,10 @@ mod tests {
             pool.install(|| {
                 let mut l = labels.clone();
                 let s = merge_small_regions(&mut l, w, h, 20);
-                let m = trap_impl(&l, w, h, &light, &ink, 3, Some(4), false);
-                (l, s, m)
+                let bits = trap_impl(&l, w, h, &light, &ink, 3, Some(4), Method::Bits);
+                let envelope = trap_impl(&l, w, h, &light, &ink, 3, Some(4), ENVELOPE);
+                assert_eq!(bits, envelope);
+                (l, s, bits)
             })
         };
         let one = run(1);

@@ -34,6 +34,21 @@ or a JSON array of objects with the same fields.
 
 Exit status: 0 success, 2 bad parameters, library or input (nothing is written).";
 
+const LANDCOVER_EXAMPLES: &str = "\
+Examples:
+  chromasift landcover scene.tif -k 6 -o classes/
+  chromasift landcover scene.tif -k 8 --bands 2,3,4,8 --index ndvi:3,4 --nodata 0 --mode soft -o classes/
+
+Writes STEM.classes.tif (class 1..K, 0 = nodata) and STEM.uncertainty.tif (0..1, -1 =
+nodata), both with the input's georeferencing, plus STEM.classes.png (preview and legend),
+STEM.classes.json and STEM.classes.csv.
+
+Caution: this is an unsupervised split, not a validated land-cover classification. Class
+numbers carry no meaning until someone labels them; check against ground truth before any
+decision, and defer to local rules and licensed practice.
+
+Exit status: 0 success, 2 bad parameters or unreadable input (nothing is written).";
+
 /// Split images into a few colours or classes with perceptual k-means.
 #[derive(Debug, Parser)]
 #[command(name = "chromasift", version, about, propagate_version = true)]
@@ -53,6 +68,119 @@ pub enum Command {
     /// Separate artwork into plates, one per ink, choosing the best K inks of a library.
     #[command(after_help = SEPARATE_EXAMPLES)]
     Separate(SeparateArgs),
+
+    /// Split a multi-band raster (GeoTIFF, or an RGB photo) into K unsupervised classes
+    /// aligned to the map, with an uncertainty map. Not a validated classification.
+    #[command(after_help = LANDCOVER_EXAMPLES)]
+    Landcover(LandcoverArgs),
+}
+
+/// Flags of `landcover`.
+#[derive(Debug, Args, Clone)]
+pub struct LandcoverArgs {
+    /// Raster: TIFF/GeoTIFF with 1-16 bands (8/16-bit, 16-bit signed, 32-bit float), or PNG/JPEG (R, G, B).
+    pub input: PathBuf,
+
+    /// Number of classes.
+    #[arg(short = 'k', long = "k", default_value_t = 6, value_name = "K")]
+    pub k: usize,
+
+    /// Bands to use, 1-based, separated by commas (default: all).
+    #[arg(long, value_name = "LIST")]
+    pub bands: Option<BandList>,
+
+    /// Add a normalised difference as a feature: ndvi:RED,NIR gives (NIR - Red)/(NIR + Red);
+    /// nd:A,B gives (B - A)/(B + A). Repeat for several.
+    #[arg(long = "index", value_name = "ndvi:RED,NIR|nd:A,B")]
+    pub index: Vec<crate::landcover::IndexSpec>,
+
+    /// Feature scaling: zscore (each feature to mean 0, standard deviation 1) or none.
+    #[arg(long, default_value = "zscore", value_name = "zscore|none")]
+    pub scale: crate::landcover::Scale,
+
+    /// Nodata value (default: the file's GDAL_NODATA tag, if any); such pixels become class 0.
+    #[arg(long, value_name = "VALUE", allow_hyphen_values = true)]
+    pub nodata: Option<f64>,
+
+    /// hard or soft k-means.
+    #[arg(long, default_value = "hard", value_name = "hard|soft")]
+    pub mode: Mode,
+
+    /// Soft sharpness in 1/(scaled feature unit)², or auto (1/σ² of the hard solution).
+    #[arg(
+        long,
+        default_value = "auto",
+        value_name = "NUMBER|auto",
+        allow_hyphen_values = true
+    )]
+    pub beta: Beta,
+
+    /// Seed of the sample and of k-means++.
+    #[arg(long, default_value_t = DEFAULT_SEED)]
+    pub seed: u64,
+
+    /// Independent k-means++ starts; the lowest SSE is kept.
+    #[arg(long, default_value_t = 1, value_name = "N")]
+    pub restarts: usize,
+
+    /// Most iterations of each phase.
+    #[arg(long = "max-iter", default_value_t = 300, value_name = "N")]
+    pub max_iter: usize,
+
+    /// Stop when an iteration changes the objective by at most this fraction.
+    #[arg(long, default_value_t = 1e-6, value_name = "FRACTION")]
+    pub tolerance: f64,
+
+    /// Pixels in the seeded, spatially spread fitting sample (all pixels when the scene is smaller).
+    #[arg(long, default_value_t = 2_000_000, value_name = "N")]
+    pub sample: usize,
+
+    /// Output folder (created if missing).
+    #[arg(short = 'o', long = "out", default_value = ".", value_name = "DIR")]
+    pub out: PathBuf,
+
+    /// Refuse rasters with more pixels than this (checked from the header).
+    #[arg(long = "max-pixels", default_value_t = 1_000_000_000, value_name = "N")]
+    pub max_pixels: u64,
+
+    /// Print the classes document on standard output.
+    #[arg(long)]
+    pub json: bool,
+}
+
+/// A band list such as `2,3,4,8` (1-based).
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct BandList(pub Vec<usize>);
+
+impl std::str::FromStr for BandList {
+    type Err = String;
+    fn from_str(s: &str) -> Result<Self, String> {
+        crate::landcover::parse_bands(s).map(BandList)
+    }
+}
+
+impl LandcoverArgs {
+    /// The library options these flags ask for.
+    pub fn options(&self) -> crate::landcover::LandcoverOptions {
+        crate::landcover::LandcoverOptions {
+            k: self.k,
+            bands: self.bands.as_ref().map(|b| b.0.clone()),
+            indices: self.index.clone(),
+            scale: self.scale,
+            nodata: self.nodata,
+            mode: self.mode,
+            beta: self.beta,
+            seed: self.seed,
+            restarts: self.restarts,
+            max_iter: self.max_iter,
+            tolerance: self.tolerance,
+            sample: self.sample,
+            limits: Limits {
+                max_pixels: self.max_pixels,
+                ..Limits::default()
+            },
+        }
+    }
 }
 
 /// Flags of `separate`.
@@ -311,6 +439,49 @@ mod tests {
             "white",
         ];
         assert!(Cli::try_parse_from(bad).is_err());
+    }
+
+    #[test]
+    fn landcover_flags_parse() {
+        let parse = |args: &[&str]| {
+            let mut v = vec!["chromasift", "landcover", "scene.tif"];
+            v.extend_from_slice(args);
+            match Cli::try_parse_from(v).unwrap().command {
+                Command::Landcover(l) => l,
+                other => panic!("{other:?}"),
+            }
+        };
+        let d = parse(&[]).options();
+        assert_eq!(d.k, 6);
+        assert_eq!(d.scale, crate::landcover::Scale::Zscore);
+        assert_eq!(parse(&["-k", "8"]).k, 8);
+        assert_eq!(
+            parse(&["--bands", "2,3,4,8"]).options().bands,
+            Some(vec![2, 3, 4, 8])
+        );
+        let ix = parse(&["--index", "ndvi:3,4", "--index", "nd:2,4"]).index;
+        assert_eq!(ix.len(), 2);
+        assert_eq!(ix[1].name(), "nd:2,4");
+        assert_eq!(
+            parse(&["--scale", "none"]).scale,
+            crate::landcover::Scale::None
+        );
+        assert_eq!(parse(&["--nodata", "-9999"]).nodata, Some(-9999.0));
+        assert_eq!(parse(&["--mode", "soft"]).mode, Mode::Soft);
+        assert_eq!(parse(&["--beta", "2"]).beta, Beta::Fixed(2.0));
+        assert_eq!(parse(&["--seed", "4"]).seed, 4);
+        assert_eq!(parse(&["--restarts", "3"]).restarts, 3);
+        assert_eq!(parse(&["--max-iter", "7"]).max_iter, 7);
+        assert_eq!(parse(&["--tolerance", "0.5"]).tolerance, 0.5);
+        assert_eq!(parse(&["--sample", "1000"]).sample, 1000);
+        assert_eq!(parse(&["-o", "c"]).out, PathBuf::from("c"));
+        assert_eq!(parse(&["--max-pixels", "10"]).max_pixels, 10);
+        assert!(parse(&["--json"]).json);
+        assert!(Cli::try_parse_from(["chromasift", "landcover", "s.tif", "--bands", "0"]).is_err());
+        assert!(
+            Cli::try_parse_from(["chromasift", "landcover", "s.tif", "--index", "evi:1,2"])
+                .is_err()
+        );
     }
 
     #[test]
