@@ -116,22 +116,56 @@ impl<'a> Dataset<'a> {
     }
 }
 
-/// Squared Euclidean distance.
+/// Squared Euclidean distance (summed left to right, whatever the dimension).
 #[inline]
 pub(crate) fn dist2(a: &[f32], b: &[f32]) -> f32 {
-    if a.len() == 3 {
-        let d0 = a[0] - b[0];
-        let d1 = a[1] - b[1];
-        let d2 = a[2] - b[2];
-        return d0 * d0 + d1 * d1 + d2 * d2;
+    let mut s = 0.0f32;
+    for (x, y) in a.iter().zip(b) {
+        let d = x - y;
+        s += d * d;
     }
-    a.iter().zip(b).map(|(x, y)| (x - y) * (x - y)).sum()
+    s
+}
+
+#[inline(always)]
+fn nearest_two_fixed<const D: usize>(x: &[f32], means: &[f32]) -> (usize, f32, f32) {
+    let x: &[f32; D] = x.try_into().expect("row of D values");
+    let mut best = 0usize;
+    let mut d1 = f32::INFINITY;
+    let mut d2 = f32::INFINITY;
+    for (j, m) in means.chunks_exact(D).enumerate() {
+        let mut d = 0.0f32;
+        for t in 0..D {
+            let v = x[t] - m[t];
+            d += v * v;
+        }
+        if d < d1 {
+            d2 = d1;
+            d1 = d;
+            best = j;
+        } else if d < d2 {
+            d2 = d;
+        }
+    }
+    (best, d1, d2)
 }
 
 /// Index and squared distance of the nearest of `k` means (lowest index on ties),
 /// and the squared distance of the second nearest (infinite when k = 1).
 #[inline]
 pub fn nearest_two(x: &[f32], means: &[f32], dim: usize) -> (usize, f32, f32) {
+    // Fixed-size loops for the common dimensions (same arithmetic, unrolled).
+    match dim {
+        1 => return nearest_two_fixed::<1>(x, means),
+        2 => return nearest_two_fixed::<2>(x, means),
+        3 => return nearest_two_fixed::<3>(x, means),
+        4 => return nearest_two_fixed::<4>(x, means),
+        5 => return nearest_two_fixed::<5>(x, means),
+        6 => return nearest_two_fixed::<6>(x, means),
+        7 => return nearest_two_fixed::<7>(x, means),
+        8 => return nearest_two_fixed::<8>(x, means),
+        _ => {}
+    }
     let mut best = 0usize;
     let mut d1 = f32::INFINITY;
     let mut d2 = f32::INFINITY;

@@ -40,9 +40,36 @@ pub fn auto_beta(sse: f64, total_weight: f64, dim: usize) -> Option<f64> {
     }
 }
 
+#[inline(always)]
+fn half_d2_fixed<const D: usize>(x: &[f32], means: &[f64], out: &mut [f64]) -> usize {
+    let x: &[f32; D] = x.try_into().expect("row of D values");
+    let mut best = 0;
+    for (j, m) in means.chunks_exact(D).enumerate() {
+        let mut s = 0.0f64;
+        for t in 0..D {
+            let d = x[t] as f64 - m[t];
+            s += d * d;
+        }
+        out[j] = 0.5 * s;
+        if out[j] < out[best] {
+            best = j;
+        }
+    }
+    best
+}
+
 /// Half squared distances from `x` to each mean, into `out`; returns the minimum's index.
 #[inline]
 fn half_d2(x: &[f32], means: &[f64], dim: usize, out: &mut [f64]) -> usize {
+    match dim {
+        1 => return half_d2_fixed::<1>(x, means, out),
+        2 => return half_d2_fixed::<2>(x, means, out),
+        3 => return half_d2_fixed::<3>(x, means, out),
+        4 => return half_d2_fixed::<4>(x, means, out),
+        5 => return half_d2_fixed::<5>(x, means, out),
+        6 => return half_d2_fixed::<6>(x, means, out),
+        _ => {}
+    }
     let mut best = 0;
     for (j, m) in means.chunks_exact(dim).enumerate() {
         let mut s = 0.0f64;
@@ -182,9 +209,12 @@ pub fn soft_assign(data: &Dataset, means: &[f64], beta: Option<f64>) -> SoftAssi
                 ls[o] = best as u32;
                 es[o] = match beta {
                     Some(b) if k > 1 => {
-                        responsibilities(&d, best, b, &mut r);
-                        let h: f64 = r.iter().filter(|&&p| p > 0.0).map(|&p| -p * p.ln()).sum();
-                        (h / ln_k).clamp(0.0, 1.0) as f32
+                        // H = ln z + β Σ_j r_j (d_j − d_min), with r_j = exp(−β(d_j − d_min)) / z:
+                        // one logarithm per row instead of one per cluster.
+                        let lz = responsibilities(&d, best, b, &mut r);
+                        let dmin = d[best];
+                        let spread: f64 = r.iter().zip(&d).filter(|(p, _)| **p > 0.0).map(|(p, dj)| p * (dj - dmin)).sum();
+                        ((lz + b * spread) / ln_k).clamp(0.0, 1.0) as f32
                     }
                     _ => 0.0,
                 };
