@@ -472,6 +472,7 @@ pub fn landcover_file(
     opts: &LandcoverOptions,
 ) -> Result<LandcoverReport> {
     let t0 = Instant::now();
+    let mut phases = crate::trace::Phases::start("landcover");
     let params = opts.params().check()?;
     let stem = crate::reduce::stem_of(input)?;
     let mut raster = GeoRaster::open(input, &opts.limits)?;
@@ -554,8 +555,10 @@ pub fn landcover_file(
         }
     };
     sample.par_chunks_mut(dim).for_each(|f| scale_row(f));
+    phases.mark("pass 1 (statistics, sample)");
     let data = Dataset::new(&sample, dim, None)?;
     let model = fit(&data, &params)?;
+    phases.mark("fit");
     let k = model.k();
     // Class numbers: largest share of the sample first.
     let sample_labels = model.predict(&data);
@@ -632,31 +635,52 @@ pub fn landcover_file(
         let mut next = |y0: u32, rows: u32| -> Result<Vec<u8>> {
             let raw = reader.rows(y0, rows)?;
             let (classes, unc, feat) = assign_rows(&raw);
-            for r in 0..rows {
-                let y = y0 + r;
-                for x in 0..w {
-                    let p = (r * w + x) as usize;
-                    let c = classes[p] as usize;
-                    if y % preview_step == 0 && x % preview_step == 0 {
-                        preview[((y / preview_step) * pw + x / preview_step) as usize] = c as u8;
-                    }
-                    if c == 0 {
-                        continue;
-                    }
-                    class_pixels[c] += 1;
-                    class_unc[c] += unc[p] as f64;
-                    let px = &raw[p * info.bands..(p + 1) * info.bands];
-                    let mut f = vec![0.0f32; dim];
-                    feats.extract(px, &mut f);
-                    for (m, &v) in class_moments[c].iter_mut().zip(&f) {
-                        m.push(v as f64);
-                    }
-                    let j = order[c - 1];
-                    let fe = &feat[p * dim..(p + 1) * dim];
-                    sse += (0..dim)
-                        .map(|d| (fe[d] as f64 - means[j * dim + d]).powi(2))
-                        .sum::<f64>();
+            for y in (y0..y0 + rows).filter(|y| y % preview_step == 0) {
+                for x in (0..w).step_by(preview_step as usize) {
+                    let p = ((y - y0) * w + x) as usize;
+                    preview[((y / preview_step) * pw + x / preview_step) as usize] = classes[p];
                 }
+            }
+            // Statistics per row in parallel, merged in row order (deterministic).
+            type RowStats = (Vec<Vec<Moments>>, Vec<u64>, Vec<f64>, f64);
+            let per_row: Vec<RowStats> = (0..rows as usize)
+                .into_par_iter()
+                .map(|r| {
+                    let mut cm = vec![vec![Moments::default(); dim]; k + 1];
+                    let mut cp = vec![0u64; k + 1];
+                    let mut cu = vec![0.0f64; k + 1];
+                    let mut s = 0.0f64;
+                    let mut f = vec![0.0f32; dim];
+                    for x in 0..w as usize {
+                        let p = r * w as usize + x;
+                        let c = classes[p] as usize;
+                        if c == 0 {
+                            continue;
+                        }
+                        cp[c] += 1;
+                        cu[c] += unc[p] as f64;
+                        feats.extract(&raw[p * info.bands..(p + 1) * info.bands], &mut f);
+                        for (m, &v) in cm[c].iter_mut().zip(&f) {
+                            m.push(v as f64);
+                        }
+                        let j = order[c - 1];
+                        let fe = &feat[p * dim..(p + 1) * dim];
+                        s += (0..dim)
+                            .map(|d| (fe[d] as f64 - means[j * dim + d]).powi(2))
+                            .sum::<f64>();
+                    }
+                    (cm, cp, cu, s)
+                })
+                .collect();
+            for (cm, cp, cu, s) in per_row {
+                for c in 1..=k {
+                    class_pixels[c] += cp[c];
+                    class_unc[c] += cu[c];
+                    for (a, b) in class_moments[c].iter_mut().zip(&cm[c]) {
+                        a.merge(b);
+                    }
+                }
+                sse += s;
             }
             Ok(classes)
         };
@@ -665,6 +689,7 @@ pub fn landcover_file(
                 .map_err(std::io::Error::other)
         })?;
     }
+    phases.mark("pass 2 (classes, statistics)");
     // Pass 3: uncertainty raster.
     raster = GeoRaster::open(input, &opts.limits)?;
     {
@@ -680,6 +705,7 @@ pub fn landcover_file(
         })?;
     }
 
+    phases.mark("pass 3 (uncertainty)");
     let colours = class_colours(k);
     let pixel_area = info.geo.pixel_area_m2();
     let classes: Vec<ClassReport> = (1..=k)
@@ -747,7 +773,13 @@ pub fn classes_csv(doc: &ClassesDocument) -> String {
     let mut s = String::from("class,pixels,share,area_m2,hectares,mean_uncertainty");
     if let Some(c) = doc.classes.first() {
         for f in &c.bands {
-            s.push_str(&format!(",mean_{0},std_{0}", f.feature));
+            // Column names stay CSV-safe: `ndvi:3,4` becomes `ndvi_3_4`.
+            let n: String = f
+                .feature
+                .chars()
+                .map(|ch| if ch.is_alphanumeric() { ch } else { '_' })
+                .collect();
+            s.push_str(&format!(",mean_{n},std_{n}"));
         }
     }
     s.push('\n');

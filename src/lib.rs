@@ -23,6 +23,7 @@ pub mod render;
 pub mod rng;
 pub mod select;
 pub mod separate;
+pub mod trace;
 
 pub use error::{Error, ParamsError, Result};
 pub use limits::Limits;

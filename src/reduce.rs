@@ -179,6 +179,7 @@ pub fn entry_features(h: &histogram::Histogram, space: Space) -> (Vec<f32>, Vec<
 /// Reduces a decoded image. Fails only on parameters or an image with no opaque pixel.
 pub fn reduce_image(img: &Decoded, opts: &ReduceOptions) -> Result<Reduction> {
     let params = opts.kmeans_params().check()?;
+    let mut ph = crate::trace::Phases::start("reduce");
     let IndexedHistogram {
         histogram: hist,
         pixel_entry,
@@ -191,8 +192,10 @@ pub fn reduce_image(img: &Decoded, opts: &ReduceOptions) -> Result<Reduction> {
             "every pixel is fully transparent; there is nothing to reduce".into(),
         ));
     }
+    ph.mark("histogram");
     let weights = hist.weights();
     let (rows, labs) = entry_features(&hist, opts.space);
+    ph.mark("features");
     let data = Dataset::new(&rows, 3, Some(&weights))?;
     let mut notes = Vec::new();
 
@@ -221,6 +224,7 @@ pub fn reduce_image(img: &Decoded, opts: &ReduceOptions) -> Result<Reduction> {
         )
     };
 
+    ph.mark("fit and assign");
     // Quantise the means to sRGB8; clusters that land on the same colour share a slot.
     let k_means = means.len() / 3;
     let mut slot_of_colour: HashMap<[u8; 3], u16> = HashMap::new();
@@ -316,6 +320,7 @@ pub fn reduce_image(img: &Decoded, opts: &ReduceOptions) -> Result<Reduction> {
         }
     };
     let total = hist.total() as f64;
+    ph.mark("render and scores");
 
     // Order: most pixels first (ties: earlier slot); unused slots are dropped.
     let mut order: Vec<usize> = (0..n_slots).filter(|&s| pixels[s] > 0).collect();

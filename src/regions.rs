@@ -6,13 +6,13 @@
 //! so pixel `(x, y)` is at index `y * width + x`. Connectivity is 8-neighbour throughout. Pixels
 //! labelled [`FIXED`] take no part. Every size, area and distance here is in pixels.
 //!
-//! Nothing here recurses. Regions are found by run-based union-find labelling, and merging uses
-//! flood fills with an explicit stack. Trapping is exact: for spreads up to [`BITS_MAX_PX`] pixels
-//! it dilates bit-packed rows of each ink by a digital disc (64 pixels per word operation); beyond
-//! that it uses the Euclidean distance transform of Felzenszwalb & Huttenlocher 2012 (a capped
-//! column scan, then the lower envelope of parabolas along each row, in exact integer arithmetic).
-//! Trapping runs in bands of rows in parallel; every result depends on the input alone, not on the
-//! thread count.
+//! Nothing here recurses. Regions are found by run-based union-find labelling (bands of rows in
+//! parallel), and merging uses flood fills with an explicit stack. Trapping is exact: for spreads
+//! up to 32 pixels it dilates bit-packed rows of each ink by a digital disc (64 pixels per word
+//! operation); beyond that it uses the Euclidean distance transform of Felzenszwalb & Huttenlocher
+//! 2012 (a capped column scan, then the lower envelope of parabolas along each row, in exact
+//! integer arithmetic), in bands of rows in parallel. Every result depends on the input alone, not
+//! on the thread count.
 
 use rayon::prelude::*;
 use std::ops::{Add, Mul, Sub};
@@ -389,30 +389,16 @@ impl Flood {
         min_area: usize,
     ) -> bool {
         let small = self.fill(labels, width, height, seed, min_area);
-        if small {
-            // Every pixel pair (p inside, q outside) is seen once, from p.
-            let mut nb = [0usize; 8];
-            self.borders.clear();
-            for &p in &self.pixels {
-                let k = neighbours8(p, width, height, &mut nb);
-                for &q in &nb[..k] {
-                    let m = labels[q];
-                    if m != FIXED && !self.seen(q) {
-                        match self.borders.iter_mut().find(|(lab, _)| *lab == m) {
-                            Some(entry) => entry.1 += 1,
-                            None => self.borders.push((m, 1)),
-                        }
-                    }
-                }
-            }
-        }
         for &p in &self.pixels {
             self.visited[p / 64] = 0;
         }
         small
     }
 
-    /// The fill of [`Flood::small_region`]: every pixel it marks is in `self.pixels`.
+    /// The fill of [`Flood::small_region`]; every pixel it marks is in `self.pixels`. A
+    /// neighbour with the region's label is inside the region and one with another label is
+    /// outside, so each border pair (inside, outside) is counted once, when its inside pixel is
+    /// taken off the stack.
     fn fill(
         &mut self,
         labels: &[u16],
@@ -425,6 +411,7 @@ impl Flood {
         let mut nb = [0usize; 8];
         self.stack.clear();
         self.pixels.clear();
+        self.borders.clear();
         self.mark(seed);
         self.stack.push(seed);
         self.pixels.push(seed);
@@ -434,13 +421,21 @@ impl Flood {
         while let Some(p) = self.stack.pop() {
             let k = neighbours8(p, width, height, &mut nb);
             for &q in &nb[..k] {
-                if labels[q] == l && !self.seen(q) {
-                    self.mark(q);
-                    self.pixels.push(q);
-                    if self.pixels.len() >= min_area {
-                        return false;
+                let m = labels[q];
+                if m == l {
+                    if !self.seen(q) {
+                        self.mark(q);
+                        self.pixels.push(q);
+                        if self.pixels.len() >= min_area {
+                            return false;
+                        }
+                        self.stack.push(q);
                     }
-                    self.stack.push(q);
+                } else if m != FIXED {
+                    match self.borders.iter_mut().find(|(lab, _)| *lab == m) {
+                        Some(entry) => entry.1 += 1,
+                        None => self.borders.push((m, 1)),
+                    }
                 }
             }
         }
@@ -469,17 +464,19 @@ impl Flood {
 ///   they are when the pass starts. Each is then handled in turn as the region that *now*
 ///   contains its first pixel (earlier merges may have grown it): if that region has reached
 ///   `min_area` pixels it is left alone; otherwise all of it takes the winning neighbour's label.
-/// - One pass always suffices, so `passes` is 1. Regions only ever grow by union, and a region
-///   that holds a region of `min_area` pixels or more is never relabelled, so a region left below
-///   `min_area` is made of listed regions, the last of which was handled after the others. That
-///   last one was either found isolated (and an isolated region never changes again), or merged
-///   into a label X and joined X-regions that already existed; tracing those X-regions back
-///   through the merges that made them never ends, which cannot be. So every region below
-///   `min_area` after the pass is isolated, and a second pass would merge nothing (the tests
-///   check this against the rule applied pass after pass).
+/// - One pass always suffices, so `passes` is 1. Regions only grow (a merged region joins the
+///   regions of its new label that it touches), and pixels of a region that starts with
+///   `min_area` pixels or more are never relabelled. So a region R still below `min_area` after
+///   the pass is made of listed regions, all handled; take the one handled last. It cannot have
+///   been found large. If it was found isolated, it never changed again, so R is isolated.
+///   Otherwise it took a label X and joined the X-regions it touched; each of those is part of
+///   R, so was handled earlier, and can only have label X by an earlier merge into X that joined
+///   still earlier X-regions, which cannot go on for ever. So every region below `min_area`
+///   after one pass is isolated, and a second pass would merge nothing (the tests check this,
+///   and compare with the rule applied pass after pass until nothing changes).
 /// - When `labels.len() != width * height` nothing is done and the stats are all zero.
 ///
-/// Cost: one run-based labelling (see [`regions`]), a 4-byte stamp per pixel, and one flood fill
+/// Cost: one run-based labelling (see [`regions`]), a visited bit per pixel, and one flood fill
 /// per small region that stops at `min_area` pixels.
 pub fn merge_small_regions(
     labels: &mut [u16],
@@ -528,7 +525,16 @@ fn merge_impl<I: PixelIndex>(
     let mut flood = Flood::new(labels.len());
     // First pixels of the regions found isolated; one region may be found from several seeds.
     let mut isolated: Vec<usize> = Vec::new();
-    for &(_, seed) in &small {
+    // Reading the labels around a seed a few places ahead starts those cache misses early; it
+    // changes nothing else.
+    const AHEAD: usize = 8;
+    let mut touched = 0u16;
+    for (i, &(_, seed)) in small.iter().enumerate() {
+        if let Some(&(_, next)) = small.get(i + AHEAD) {
+            let p = next.get();
+            let below = (p + width).min(labels.len() - 1);
+            touched ^= labels[p] ^ labels[p.saturating_sub(width)] ^ labels[below];
+        }
         if !flood.small_region(labels, width, height, seed.get(), min_area) {
             continue;
         }
@@ -542,6 +548,7 @@ fn merge_impl<I: PixelIndex>(
             None => isolated.push(flood.pixels.iter().copied().min().unwrap_or(seed.get())),
         }
     }
+    std::hint::black_box(touched);
     isolated.sort_unstable();
     isolated.dedup();
     stats.kept_isolated = isolated.len();
@@ -553,8 +560,9 @@ fn merge_impl<I: PixelIndex>(
 // ---------------------------------------------------------------------------------------------
 
 /// Largest spread (pixels) done by dilating bit-packed rows; larger ones use the distance
-/// transform. Both are exact; the dilation costs about px/32 word operations per pixel.
-pub const BITS_MAX_PX: u32 = 32;
+/// transform. Both are exact; the dilation costs about px/32 word operations per pixel, the
+/// distance transform a few dozen operations per pixel whatever px.
+const BITS_MAX_PX: u32 = 32;
 
 /// Largest image side (pixels) for which the `i64` envelope arithmetic cannot overflow (all
 /// products stay below 2⁵³); larger images use `i128`.
@@ -562,6 +570,9 @@ const I64_MAX_SIDE: usize = 1 << 16;
 
 /// Default number of pixels per band of rows in [`trap`].
 const BAND_PIXELS: usize = 1 << 18;
+
+/// Rank of a label that neither spreads nor receives.
+const NO_RANK: u16 = u16::MAX;
 
 /// Trapping for print: each ink spreads by `px` pixels (Euclidean distance between pixel centres
 /// <= px) into neighbouring regions of DARKER inks only. `lightness[l]` is the CIELAB L* of label l;
@@ -581,11 +592,11 @@ const BAND_PIXELS: usize = 1 << 18;
 ///   between (so a spread can reach across a gap of substrate narrower than `px`).
 /// - When `labels.len() != width * height` the geometry is unknown: the masks are the own pixels.
 ///
-/// Method and cost: both exact, O(pixels) per spreading ink, in parallel bands of rows. Up to
-/// [`BITS_MAX_PX`]: each row of the ink is bit-packed and dilated by the digital disc (row offset
-/// dy gets a run of ±⌊√(px² − dy²)⌋ pixels). Beyond: the Felzenszwalb & Huttenlocher 2012
-/// distance transform, with the column distances capped at px + 1. Memory: the masks, plus per
-/// thread a few bytes per pixel of one band.
+/// Method and cost: both exact, O(pixels) per ink present, in parallel bands of rows. Up to
+/// px = 32: each row of the ink is bit-packed and dilated by the digital disc (row offset dy gets
+/// a run of ±⌊√(px² − dy²)⌋ pixels). Beyond: the Felzenszwalb & Huttenlocher 2012 distance
+/// transform, with the column distances capped at px + 1. Memory: the masks, plus per thread a
+/// few bytes per pixel of one band.
 pub fn trap(
     labels: &[u16],
     width: usize,
@@ -609,23 +620,13 @@ pub fn trap(
 /// How [`trap_impl`] finds the pixels within reach (every choice gives the same masks).
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 enum Method {
-    /// Bit-packed dilation up to [`BITS_MAX_PX`], the distance transform beyond.
+    /// Bit-packed dilation up to [`BITS_MAX_PX`] pixels, the distance transform beyond.
     Auto,
     Bits,
     /// The distance transform with `i128` arithmetic when `wide`, else `i64`.
     Envelope {
         wide: bool,
     },
-}
-
-/// What one ink spreads into.
-struct Spread {
-    /// The spreading label.
-    ink: u16,
-    /// `into[m]`: label `m` receives from this ink.
-    into: Vec<bool>,
-    /// The labels it spreads into, as a list.
-    targets: Vec<usize>,
 }
 
 /// [`trap`] with test hooks: `band_rows` overrides the band height, `method` the method.
@@ -641,13 +642,7 @@ fn trap_impl(
     method: Method,
 ) -> Vec<Vec<bool>> {
     let n = labels.len();
-    // FIXED is never an ink, even when is_ink is long enough to have an entry for it.
-    let ink: Vec<bool> = is_ink
-        .iter()
-        .enumerate()
-        .map(|(l, &b)| b && l != FIXED as usize)
-        .collect();
-    let nl = ink.len();
+    let nl = is_ink.len();
     let mut masks: Vec<Vec<bool>> = (0..nl).map(|_| vec![false; n]).collect();
     if n == 0 || nl == 0 {
         return masks;
@@ -656,29 +651,34 @@ fn trap_impl(
         Some(_) => (width, height, px),
         None => (n, 1, 0),
     };
-
     // No two pixel centres are farther apart than (w - 1) + (h - 1), so a larger px changes
     // nothing; the cap also keeps px + 1 inside u32.
     let reach = ((w - 1) as u64 + (h - 1) as u64).min(u32::MAX as u64 - 2);
     let px = (px as u64).min(reach) as u32;
 
-    let lum = |l: usize| lightness.get(l).copied().unwrap_or(f64::NAN);
-    let spreads: Vec<Spread> = if px == 0 {
-        Vec::new()
-    } else {
-        (0..nl)
-            .filter(|&l| ink[l])
-            .filter_map(|l| {
-                let into: Vec<bool> = (0..nl).map(|m| ink[m] && lum(m) < lum(l)).collect();
-                let targets: Vec<usize> = (0..nl).filter(|&m| into[m]).collect();
-                (!targets.is_empty()).then_some(Spread {
-                    ink: l as u16,
-                    into,
-                    targets,
-                })
-            })
-            .collect()
-    };
+    // `own[m]`: label m is an ink (has its own pixels). FIXED never is.
+    let mut own = vec![false; 1 << 16];
+    for (m, &b) in is_ink.iter().enumerate().take(FIXED as usize) {
+        own[m] = b;
+    }
+    // `rank[m]`: position of ink m in order of lightness (equal lightness, equal rank), so that
+    // ink l spreads into label m exactly when rank[m] < rank[l]. NO_RANK for everything else.
+    let mut rank = vec![NO_RANK; 1 << 16];
+    let mut by_lightness: Vec<(f64, usize)> = (0..nl.min(FIXED as usize))
+        .filter(|&m| own[m])
+        .filter_map(|m| lightness.get(m).map(|&v| (v, m)))
+        .filter(|(v, _)| !v.is_nan())
+        .collect();
+    by_lightness.sort_by(|a, b| a.0.total_cmp(&b.0).then(a.1.cmp(&b.1)));
+    let mut r = 0u16;
+    for (i, &(v, m)) in by_lightness.iter().enumerate() {
+        if i > 0 && v > by_lightness[i - 1].0 {
+            r += 1;
+        }
+        rank[m] = r;
+    }
+    let spreading = px > 0 && r > 0;
+
     let method = match method {
         Method::Auto if px <= BITS_MAX_PX => Method::Bits,
         Method::Auto => Method::Envelope {
@@ -686,31 +686,15 @@ fn trap_impl(
         },
         m => m,
     };
-
-    let rows = band_rows
-        .unwrap_or_else(|| (BAND_PIXELS / w).max(2 * px as usize))
-        .clamp(1, h);
-    let band_len = rows * w;
-    let bands = h.div_ceil(rows);
-    let mut per_band: Vec<Vec<&mut [bool]>> = (0..bands).map(|_| Vec::with_capacity(nl)).collect();
-    for mask in masks.iter_mut() {
-        for (b, chunk) in mask.chunks_mut(band_len).enumerate() {
-            per_band[b].push(chunk);
-        }
-    }
-
-    // Bit planes are kept for inks only.
-    let mut plane = vec![usize::MAX; nl];
-    let mut planes = 0;
-    for l in 0..nl {
-        if ink[l] {
-            plane[l] = planes;
-            planes += 1;
-        }
-    }
-    // Half-width of the digital disc at row offset d: the largest r with r² + d² <= px².
+    // Half-width of the digital disc at row offset d: the largest r with r² + d² <= px². Only
+    // the bit-packed method uses it, and there px <= BITS_MAX_PX.
     let p2 = px as u64 * px as u64;
-    let half: Vec<u32> = (0..=px as u64)
+    let disc_rows = if method == Method::Bits {
+        px as u64 + 1
+    } else {
+        0
+    };
+    let half: Vec<u32> = (0..disc_rows)
         .map(|d| {
             let mut r = ((p2 - d * d) as f64).sqrt() as u64;
             while r * r + d * d > p2 {
@@ -730,17 +714,28 @@ fn trap_impl(
         .map(|r| radii.binary_search(r).unwrap_or(0))
         .collect();
 
+    let rows = band_rows
+        .unwrap_or_else(|| (BAND_PIXELS / w).max(2 * px as usize))
+        .clamp(1, h);
+    let band_len = rows * w;
+    let bands = h.div_ceil(rows);
+    let mut per_band: Vec<Vec<&mut [bool]>> = (0..bands).map(|_| Vec::with_capacity(nl)).collect();
+    for mask in masks.iter_mut() {
+        for (b, chunk) in mask.chunks_mut(band_len).enumerate() {
+            per_band[b].push(chunk);
+        }
+    }
     let job = Job {
         labels,
         w,
         h,
         rows,
         px,
-        ink: &ink,
-        spreads: &spreads,
+        nl,
+        own: &own,
+        rank: &rank,
+        spreading,
         method,
-        plane: &plane,
-        planes,
         radii: &radii,
         slot: &slot,
     };
@@ -762,13 +757,15 @@ struct Job<'a> {
     rows: usize,
     /// Spread distance (pixels), already capped to the image's extent.
     px: u32,
-    ink: &'a [bool],
-    spreads: &'a [Spread],
+    /// Number of masks.
+    nl: usize,
+    /// Indexed by label (2¹⁶ entries): is an ink, and lightness rank (see [`trap_impl`]).
+    own: &'a [bool],
+    rank: &'a [u16],
+    /// Whether any ink can spread at all.
+    spreading: bool,
     /// `Bits` or `Envelope`, never `Auto`.
     method: Method,
-    /// Bit plane of each ink label (`usize::MAX` for non-inks), and the number of planes.
-    plane: &'a [usize],
-    planes: usize,
     /// The distinct disc half-widths, ascending, and the index in it for each row offset 0..=px.
     radii: &'a [u32],
     slot: &'a [usize],
@@ -779,9 +776,11 @@ struct Job<'a> {
 struct Scratch {
     /// Labels seen (indexed by label).
     seen: Vec<bool>,
-    /// Bit planes of the inks for the band and its margins: `[plane][row][word]`.
+    /// Lightness ranks of the band's pixels.
+    ranks: Vec<u16>,
+    /// The spreading ink's rows (band and margins), bit-packed: `[row][word]`.
     bits: Vec<u64>,
-    /// Dilations of one ink's plane by each disc half-width: `[radius][row][word]`.
+    /// Those rows dilated by each disc half-width: `[radius][row][word]`.
     dilated: Vec<u64>,
     /// Row buffers (words).
     a: Vec<u64>,
@@ -796,21 +795,38 @@ struct Scratch {
     env128: Envelope<i128>,
 }
 
-/// Bit i set where `labels[i] == l` (at most 64 labels).
+/// Packs a predicate over one row: bit `i % 64` of `dst[i / 64]` is `keep(src[i])`, and bits
+/// past the end of `src` are 0. Each block of 64 is compared into bytes (which vectorises) and
+/// every 8 bytes of 0/1 become 8 bits with one multiplication. Returns whether any bit is set.
 #[inline]
-fn pack(labels: &[u16], l: u16) -> u64 {
-    if let Ok(block) = <&[u16; 64]>::try_from(labels) {
-        let mut word = 0u64;
-        for (i, &m) in block.iter().enumerate() {
-            word |= ((m == l) as u64) << i;
+fn pack_with<T: Copy>(src: &[T], dst: &mut [u64], keep: impl Fn(T) -> bool) -> bool {
+    let mut any = 0;
+    let mut blocks = src.chunks_exact(64);
+    let mut words = dst.iter_mut();
+    for (block, word) in (&mut blocks).zip(&mut words) {
+        let mut bytes = [0u8; 64];
+        for (b, &v) in bytes.iter_mut().zip(block) {
+            *b = u8::from(keep(v));
         }
-        word
-    } else {
-        labels
-            .iter()
-            .enumerate()
-            .fold(0, |word, (i, &m)| word | ((m == l) as u64) << i)
+        let mut bits = 0u64;
+        for (k, eight) in bytes.chunks_exact(8).enumerate() {
+            let v = u64::from_le_bytes(eight.try_into().unwrap_or([0; 8]));
+            // Byte i (0 or 1) lands on bit 56 + i; no two partial products overlap.
+            bits |= (v.wrapping_mul(0x0102_0408_1020_4080) >> 56) << (8 * k);
+        }
+        *word = bits;
+        any |= bits;
     }
+    let mut tail = 0u64;
+    for (i, &v) in blocks.remainder().iter().enumerate() {
+        tail |= u64::from(keep(v)) << i;
+    }
+    for word in words {
+        *word = tail;
+        any |= tail;
+        tail = 0;
+    }
+    any != 0
 }
 
 /// `dst` = `src` dilated by one pixel left and right (bit i of word k is pixel 64k + i).
@@ -828,58 +844,65 @@ impl Job<'_> {
     /// Fills band `b` (rows `b * rows ..`) of every mask; `chunks[l]` is that part of mask `l`.
     fn band(&self, b: usize, chunks: &mut [&mut [bool]], s: &mut Scratch) {
         let (w, h) = (self.w, self.h);
-        let nl = self.ink.len();
         let r0 = b * self.rows;
         let r1 = (r0 + self.rows).min(h);
         let band_labels = &self.labels[r0 * w..r1 * w];
-        // Own pixels: one compare per pixel and ink, which vectorises.
-        for (l, chunk) in chunks.iter_mut().enumerate() {
-            if self.ink[l] {
-                let l = l as u16;
-                for (o, &m) in chunk.iter_mut().zip(band_labels) {
-                    *o = m == l;
+        s.seen.clear();
+        s.seen.resize(1 << 16, false);
+        for &m in band_labels {
+            s.seen[m as usize] = true;
+        }
+        // Own pixels: a vectorised compare per ink present, or one pass when there are many.
+        let present: Vec<usize> = (0..self.nl).filter(|&m| s.seen[m] && self.own[m]).collect();
+        if present.len() <= 16 {
+            for &m in &present {
+                for (o, &v) in chunks[m].iter_mut().zip(band_labels) {
+                    *o = v as usize == m;
+                }
+            }
+        } else {
+            for (i, &m) in band_labels.iter().enumerate() {
+                if self.own[m as usize] {
+                    chunks[m as usize][i] = true;
                 }
             }
         }
-        if self.spreads.is_empty() {
+        if !self.spreading {
             return;
         }
 
-        // Which labels occur in the band, and within px rows of it (pixels farther away cannot
-        // reach the band).
+        // The inks that can spread here: present in the band or within px rows of it (farther
+        // pixels cannot reach it), and lighter than some ink present in the band.
         let margin = self.px as usize;
         let h0 = r0.saturating_sub(margin);
         let h1 = (r1 + margin).min(h);
-        s.seen.clear();
-        s.seen.resize(1 << 16, false);
-        for &l in band_labels {
-            s.seen[l as usize] = true;
-        }
-        let inside: Vec<bool> = s.seen[..nl].to_vec();
-        for &l in self.labels[h0 * w..r0 * w]
+        let darkest = (0..self.nl)
+            .filter(|&m| s.seen[m])
+            .map(|m| self.rank[m])
+            .min()
+            .unwrap_or(NO_RANK);
+        for &m in self.labels[h0 * w..r0 * w]
             .iter()
             .chain(&self.labels[r1 * w..h1 * w])
         {
-            s.seen[l as usize] = true;
+            s.seen[m as usize] = true;
         }
-        let near = &s.seen[..nl];
-        let active: Vec<&Spread> = self
-            .spreads
-            .iter()
-            .filter(|sp| near[sp.ink as usize] && sp.targets.iter().any(|&m| inside[m]))
+        let active: Vec<u16> = (0..self.nl)
+            .filter(|&l| s.seen[l] && self.rank[l] != NO_RANK && darkest < self.rank[l])
+            .map(|l| l as u16)
             .collect();
         if active.is_empty() {
             return;
         }
         match self.method {
             Method::Envelope { wide: false } => {
-                for sp in active {
+                for &l in &active {
                     self.spread_envelope(
                         r0,
                         r1,
                         h0,
                         h1,
-                        sp,
+                        l,
                         chunks,
                         &mut s.g,
                         &mut s.cur,
@@ -888,13 +911,13 @@ impl Job<'_> {
                 }
             }
             Method::Envelope { wide: true } => {
-                for sp in active {
+                for &l in &active {
                     self.spread_envelope(
                         r0,
                         r1,
                         h0,
                         h1,
-                        sp,
+                        l,
                         chunks,
                         &mut s.g,
                         &mut s.cur,
@@ -906,7 +929,8 @@ impl Job<'_> {
         }
     }
 
-    /// Bit-packed spreading for the band rows `r0..r1`, with margin rows `h0..h1`.
+    /// Bit-packed spreading of the `active` inks for the band rows `r0..r1`, with margin rows
+    /// `h0..h1`.
     #[allow(clippy::too_many_arguments)]
     fn spread_bits(
         &self,
@@ -914,7 +938,7 @@ impl Job<'_> {
         r1: usize,
         h0: usize,
         h1: usize,
-        active: &[&Spread],
+        active: &[u16],
         chunks: &mut [&mut [bool]],
         s: &mut Scratch,
     ) {
@@ -922,39 +946,31 @@ impl Job<'_> {
         let words = w.div_ceil(64);
         let rows = h1 - h0;
         let px = self.px as usize;
-        let row_at = |plane: usize, row: usize| (plane * rows + row) * words;
-
-        s.bits.clear();
-        s.bits.resize(self.planes * rows * words, 0);
-        for j in 0..rows {
-            let lab = &self.labels[(h0 + j) * w..(h0 + j + 1) * w];
-            for (l, &p) in self.plane.iter().enumerate() {
-                if p == usize::MAX {
-                    continue;
-                }
-                let l = l as u16;
-                let dst = &mut s.bits[row_at(p, j)..row_at(p, j) + words];
-                for (word, chunk) in dst.iter_mut().zip(lab.chunks(64)) {
-                    *word = pack(chunk, l);
-                }
-            }
-        }
+        let row_at = |k: usize, row: usize| (k * rows + row) * words;
+        s.ranks.clear();
+        s.ranks.extend(
+            self.labels[r0 * w..r1 * w]
+                .iter()
+                .map(|&m| self.rank[m as usize]),
+        );
         s.a.resize(words, 0);
         s.b.resize(words, 0);
         s.reach.resize(words, 0);
         s.target.resize(words, 0);
 
-        for sp in active {
-            let own = self.plane[sp.ink as usize];
-            // Each row of the ink dilated by every disc half-width.
+        for &l in active {
+            let rank = self.rank[l as usize];
+            // The ink's rows, bit-packed, then dilated by every disc half-width.
+            s.bits.clear();
+            s.bits.resize(rows * words, 0);
             s.dilated.clear();
             s.dilated.resize(self.radii.len() * rows * words, 0);
             for j in 0..rows {
-                let src = &s.bits[row_at(own, j)..row_at(own, j) + words];
-                if src.iter().all(|&x| x == 0) {
+                let lab = &self.labels[(h0 + j) * w..(h0 + j + 1) * w];
+                if !pack_with(lab, &mut s.bits[j * words..(j + 1) * words], |m| m == l) {
                     continue;
                 }
-                s.a.copy_from_slice(src);
+                s.a.copy_from_slice(&s.bits[j * words..(j + 1) * words]);
                 let mut radius = 0;
                 for (k, &r) in self.radii.iter().enumerate() {
                     while radius < r {
@@ -965,19 +981,8 @@ impl Job<'_> {
                     s.dilated[row_at(k, j)..row_at(k, j) + words].copy_from_slice(&s.a);
                 }
             }
-            let mask = &mut *chunks[sp.ink as usize];
+            let mask = &mut *chunks[l as usize];
             for y in r0..r1 {
-                let j = y - h0;
-                s.target.fill(0);
-                for &m in &sp.targets {
-                    let p = row_at(self.plane[m], j);
-                    for (t, &x) in s.target.iter_mut().zip(&s.bits[p..p + words]) {
-                        *t |= x;
-                    }
-                }
-                if s.target.iter().all(|&x| x == 0) {
-                    continue;
-                }
                 // Rows y - px ..= y + px within the margins, each dilated by its half-width.
                 s.reach.fill(0);
                 for yy in y.saturating_sub(px).max(h0)..(y + px + 1).min(h1) {
@@ -985,6 +990,14 @@ impl Job<'_> {
                     for (t, &x) in s.reach.iter_mut().zip(&s.dilated[p..p + words]) {
                         *t |= x;
                     }
+                }
+                if s.reach.iter().all(|&x| x == 0) {
+                    continue;
+                }
+                // Pixels of darker inks.
+                let ranks = &s.ranks[(y - r0) * w..(y - r0 + 1) * w];
+                if !pack_with(ranks, &mut s.target, |r| r < rank) {
+                    continue;
                 }
                 let out = &mut mask[(y - r0) * w..(y - r0 + 1) * w];
                 for (k, (&t, &r)) in s.target.iter().zip(&s.reach).enumerate() {
@@ -998,7 +1011,7 @@ impl Job<'_> {
         }
     }
 
-    /// Distance-transform spreading of one ink for the band rows `r0..r1` (margins `h0..h1`).
+    /// Distance-transform spreading of ink `l` for the band rows `r0..r1` (margins `h0..h1`).
     #[allow(clippy::too_many_arguments)]
     fn spread_envelope<T: EnvelopeInt>(
         &self,
@@ -1006,14 +1019,13 @@ impl Job<'_> {
         r1: usize,
         h0: usize,
         h1: usize,
-        sp: &Spread,
+        l: u16,
         chunks: &mut [&mut [bool]],
         g: &mut Vec<u32>,
         cur: &mut Vec<u32>,
         env: &mut Envelope<T>,
     ) {
         let w = self.w;
-        let l = sp.ink;
         let cap = self.px + 1;
         let px2 = T::from(self.px as i64 * self.px as i64);
         // Column distance to the nearest pixel of l, capped at px + 1 ("too far"): a scan down
@@ -1044,13 +1056,14 @@ impl Job<'_> {
             }
         }
         let mask = &mut *chunks[l as usize];
-        let band_labels = &self.labels[r0 * w..r1 * w];
+        let rank = self.rank[l as usize];
         for i in 0..r1 - r0 {
+            let row = (r0 + i) * w;
             env.spread_row(
                 &g[i * w..(i + 1) * w],
                 cap,
-                &band_labels[i * w..(i + 1) * w],
-                &sp.into,
+                &self.labels[row..row + w],
+                |m| self.rank[m as usize] < rank,
                 px2,
                 &mut mask[i * w..(i + 1) * w],
             );
@@ -1091,15 +1104,15 @@ impl<T> Default for Envelope<T> {
 }
 
 impl<T: EnvelopeInt> Envelope<T> {
-    /// Sets `out[x]` for every `x` whose label `m` has `into[m]` and whose squared distance to the
-    /// nearest pixel of the spreading ink, `min over q of (x - q)² + g[q]²`, is at most `px2`.
-    /// `g[q] >= cap` means no pixel of the ink within reach in column q.
+    /// Sets `out[x]` for every `x` whose label `m` has `receives(m)` and whose squared distance
+    /// to the nearest pixel of the spreading ink, `min over q of (x - q)² + g[q]²`, is at most
+    /// `px2`. `g[q] >= cap` means no pixel of the ink within reach in column q.
     fn spread_row(
         &mut self,
         g: &[u32],
         cap: u32,
         lab: &[u16],
-        into: &[bool],
+        receives: impl Fn(u16) -> bool,
         px2: T,
         out: &mut [bool],
     ) {
@@ -1145,7 +1158,7 @@ impl<T: EnvelopeInt> Envelope<T> {
         }
         let mut k = 0;
         for (x, (&m, o)) in lab.iter().zip(out.iter_mut()).enumerate() {
-            if !into.get(m as usize).copied().unwrap_or(false) {
+            if !receives(m) {
                 continue;
             }
             let xt = T::from(x as i64);

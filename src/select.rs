@@ -298,22 +298,57 @@ pub fn swap_descent(t: &CostTable, start: &[usize], forced: &[usize]) -> Selecti
     }
 }
 
-/// Greedy forward selection from the forced inks.
+/// Greedy forward selection from the forced inks: each step adds the ink that lowers the
+/// objective most (one pass over the entries per candidate).
 pub fn greedy_start(t: &CostTable, k: usize, forced: &[usize]) -> Vec<usize> {
     let mut set = forced.to_vec();
+    // Current cost of each entry: nearest chosen ink or the substrate.
+    let mut current: Vec<f32> = (0..t.n)
+        .map(|e| {
+            let row = t.row(e);
+            set.iter().map(|&i| row[i]).fold(t.floor(e), f32::min)
+        })
+        .collect();
     while set.len() < k {
-        let best = (0..t.m)
-            .filter(|j| !set.contains(j))
-            .map(|j| {
-                let mut s = set.clone();
-                s.push(j);
-                (t.objective(&s), j)
+        let cands: Vec<usize> = (0..t.m).filter(|j| !set.contains(j)).collect();
+        let parts: Vec<Vec<f64>> = (0..t.n.div_ceil(CHUNK))
+            .into_par_iter()
+            .map(|c| {
+                let mut acc = vec![0.0f64; cands.len()];
+                for e in c * CHUNK..((c + 1) * CHUNK).min(t.n) {
+                    let row = t.row(e);
+                    let cur = current[e];
+                    let w = t.weights[e];
+                    for (a, &j) in acc.iter_mut().zip(&cands) {
+                        *a += w * cur.min(row[j]) as f64;
+                    }
+                }
+                acc
             })
-            .fold(
-                (f64::INFINITY, usize::MAX),
-                |a, b| if b.0 < a.0 { b } else { a },
-            );
-        set.push(best.1);
+            .collect();
+        let mut totals = vec![0.0f64; cands.len()];
+        for p in parts {
+            for (a, b) in totals.iter_mut().zip(p) {
+                *a += b;
+            }
+        }
+        let (best, _) =
+            totals
+                .iter()
+                .enumerate()
+                .fold((usize::MAX, f64::INFINITY), |a, (i, &v)| {
+                    if v < a.1 {
+                        (i, v)
+                    } else {
+                        a
+                    }
+                });
+        let j = cands[best];
+        set.push(j);
+        current
+            .par_iter_mut()
+            .enumerate()
+            .for_each(|(e, c)| *c = c.min(t.cost[e * t.m + j]));
     }
     set
 }

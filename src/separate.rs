@@ -204,6 +204,7 @@ pub fn separate_image(
     stem: &str,
 ) -> Result<Separation> {
     let (k, forced) = resolve_inks(library, opts, library_path)?;
+    let mut ph = crate::trace::Phases::start("separate");
     let ih = match &img.pixels {
         Pixels::Rgba8(p) => histogram::from_rgba8(p),
         Pixels::Rgba16(p) => histogram::from_rgba16(p),
@@ -229,7 +230,9 @@ pub fn separate_image(
         .collect();
     let weights = hist.weights();
     let substrate_lab = opts.substrate.map(adapt::srgb8_to_lab_d50);
+    ph.mark("histogram and CIELAB D50");
     let table = CostTable::new(&labs, &weights, library, substrate_lab);
+    ph.mark("cost table");
     let selection = if opts.all {
         select::Selection {
             chosen: (0..library.len()).collect(),
@@ -240,6 +243,7 @@ pub fn separate_image(
         select::choose(&table, &labs, library, k, &forced, opts.seed)
     };
 
+    ph.mark("ink choice");
     // Print order: lightest first (ties by name).
     let mut order = selection.chosen.clone();
     order.sort_by(|&a, &b| {
@@ -282,17 +286,25 @@ pub fn separate_image(
         })
         .collect();
     let (w, h) = (img.width as usize, img.height as usize);
+    ph.mark("labels");
     let merge = regions::merge_small_regions(&mut labels, w, h, opts.min_area);
+    ph.mark("min-area merge");
     let mut lightness: Vec<f64> = chosen.iter().map(|i| i.lab_d50[0]).collect();
     lightness.push(substrate_lab.map_or(100.0, |l| l[0]));
     let mut is_ink = vec![true; n_inks];
     is_ink.push(false);
     let mut masks = regions::trap(&labels, w, h, &lightness, &is_ink, opts.trap);
     masks.truncate(n_inks);
+    ph.mark("trapping");
 
-    // Statistics per plate from the final labels (after merging, before trapping).
-    let mut reproduction: Vec<[f64; 3]> = chosen.iter().map(|i| i.lab_d50).collect();
-    reproduction.push(substrate_lab.unwrap_or([100.0, 0.0, 0.0]));
+    // Statistics per plate from the final labels (after merging, before trapping). The
+    // ΔE2000 of each (entry, ink) pair is already in the cost table.
+    let substrate_cost = |e: usize| -> f64 {
+        match &table.substrate {
+            Some(s) => s[e] as f64,
+            None => delta_e2000(labs[e], [100.0, 0.0, 0.0]),
+        }
+    };
     let parts: Vec<(Vec<u64>, Vec<f64>)> = labels
         .par_chunks(1 << 16)
         .zip(ih.pixel_entry.par_chunks(1 << 16))
@@ -303,8 +315,13 @@ pub fn separate_image(
                 if l == FIXED {
                     continue;
                 }
-                px[l as usize] += 1;
-                de[l as usize] += delta_e2000(labs[e as usize], reproduction[l as usize]);
+                let (l, e) = (l as usize, e as usize);
+                px[l] += 1;
+                de[l] += if l < n_inks {
+                    table.cost[e * table.m + order[l]] as f64
+                } else {
+                    substrate_cost(e)
+                };
             }
             (px, de)
         })
@@ -339,6 +356,7 @@ pub fn separate_image(
             plate: plate_name(stem, p + 1, &ink.name),
         })
         .collect();
+    ph.mark("statistics");
     let document = SeparationDocument {
         tool_version: crate::TOOL_VERSION.into(),
         input: None,

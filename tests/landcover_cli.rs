@@ -247,6 +247,12 @@ fn river_valley_is_recovered_and_stays_on_the_map() {
     let csv = std::fs::read_to_string(out.join("valley.classes.csv")).unwrap();
     assert!(csv.starts_with("class,pixels,share,area_m2,hectares,mean_uncertainty,mean_1,std_1"));
     assert_eq!(csv.lines().count(), 6);
+    assert!(csv
+        .lines()
+        .next()
+        .unwrap()
+        .ends_with(",mean_ndvi_3_4,std_ndvi_3_4"));
+    assert!(csv.lines().all(|l| l.split(',').count() == 6 + 2 * 5));
 
     // Uncertainty: higher on class boundaries than inside classes; nodata written as -1.
     let unc = read_f32_tiff(&out.join("valley.uncertainty.tif"));

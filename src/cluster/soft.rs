@@ -213,7 +213,12 @@ pub fn soft_assign(data: &Dataset, means: &[f64], beta: Option<f64>) -> SoftAssi
                         // one logarithm per row instead of one per cluster.
                         let lz = responsibilities(&d, best, b, &mut r);
                         let dmin = d[best];
-                        let spread: f64 = r.iter().zip(&d).filter(|(p, _)| **p > 0.0).map(|(p, dj)| p * (dj - dmin)).sum();
+                        let spread: f64 = r
+                            .iter()
+                            .zip(&d)
+                            .filter(|(p, _)| **p > 0.0)
+                            .map(|(p, dj)| p * (dj - dmin))
+                            .sum();
                         ((lz + b * spread) / ln_k).clamp(0.0, 1.0) as f32
                     }
                     _ => 0.0,

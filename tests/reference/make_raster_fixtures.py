@@ -39,6 +39,10 @@ utm_u8_rgbn_photometric_rgb.tif
     uint8, 4 bands written the way 4-band aerial images often are:
     PhotometricInterpretation RGB plus one ExtraSamples entry "unspecified";
     UTM tags with 0.5 m pixels.
+utm_u16_rgbn_bigtiff_be.tif
+    The base uint16 values again, as a big-endian BigTIFF with
+    PhotometricInterpretation RGB plus one unspecified extra sample, LZW with
+    the horizontal predictor, 5 rows per strip, same tags and nodata.
 geographic_u8_rgb.tif
     uint8 RGB, geographic CRS (EPSG 4326, degrees): GTModelType 2,
     GeographicType 4326, pixel scale 0.0001 degrees.
@@ -230,7 +234,7 @@ def exact_pixels(bands_first: np.ndarray) -> list[dict]:
 
 def write(name: str, bands_first: np.ndarray, *, planar: bool, tile=None, rows=None,
           compression=None, predictor=None, photometric="minisblack",
-          extrasamples=None, geo=None, nodata=None) -> dict:
+          extrasamples=None, geo=None, nodata=None, bigtiff=False, byteorder="<") -> dict:
     path = OUT / name
     if planar:
         data = bands_first
@@ -256,7 +260,7 @@ def write(name: str, bands_first: np.ndarray, *, planar: bool, tile=None, rows=N
         kwargs["rowsperstrip"] = rows
     if extrasamples is not None:
         kwargs["extrasamples"] = extrasamples
-    tifffile.imwrite(path, data, **kwargs)
+    tifffile.imwrite(path, data, bigtiff=bigtiff, byteorder=byteorder, **kwargs)
 
     # Read back with tifffile and compare, so a writer surprise cannot slip into the fixtures.
     back = tifffile.imread(path)
@@ -289,6 +293,8 @@ def write(name: str, bands_first: np.ndarray, *, planar: bool, tile=None, rows=N
         "tiled": tile is not None,
         "compression": compression or "none",
         "predictor": predictor or "none",
+        "bigtiff": bool(bigtiff),
+        "byteorder": "big" if byteorder == ">" else "little",
         "rows_per_strip": rows,
         "tile": list(tile) if tile is not None else None,
         "nodata": nodata,
@@ -322,6 +328,11 @@ def main() -> None:
     rgbn = (u16 % 251).astype(np.uint8)
     files.append(write("utm_u8_rgbn_photometric_rgb.tif", rgbn, planar=False, rows=10,
                        photometric="rgb", extrasamples=["unspecified"], geo=utm_geo(0.5)))
+
+    files.append(write("utm_u16_rgbn_bigtiff_be.tif", u16, planar=False, rows=5,
+                       compression="lzw", predictor="horizontal", photometric="rgb",
+                       extrasamples=["unspecified"], geo=utm_geo(), nodata="0",
+                       bigtiff=True, byteorder=">"))
 
     files.append(write("geographic_u8_rgb.tif", rgbn[:3], planar=False, rows=30,
                        photometric="rgb", geo=geographic_geo()))
