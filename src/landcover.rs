@@ -5,15 +5,16 @@
 //!
 //! Streaming: pass 1 reads the raster block by block for feature statistics and a seeded,
 //! spatially spread sample; k-means is fitted on the sample; pass 2 assigns every pixel
-//! strip by strip while the class raster is written; pass 3 does the same for the
-//! uncertainty raster. Memory is bounded by the sample and one block, not by the scene.
+//! strip by strip while the class raster is written, and hands the uncertainty rows to a
+//! second thread that writes the uncertainty raster. Memory is bounded by the sample and a
+//! few strips, not by the scene.
 
 use crate::cluster::{fit, soft_assign, Beta, Dataset, KMeansParams, Mode};
 use crate::colour::{self, Space};
 use crate::error::{Error, ParamsError, Result};
 use crate::geotiff::{self, GeoRaster, RasterInfo};
 use crate::limits::Limits;
-use crate::output::OutputSet;
+use crate::output::{OutputSet, PendingOutput};
 use crate::raster;
 use rayon::prelude::*;
 use serde::{Deserialize, Serialize};
@@ -630,9 +631,10 @@ pub fn landcover_file(
     let mut class_pixels = vec![0u64; k + 1];
     let mut class_unc = vec![0.0f64; k + 1];
     let mut sse = 0.0f64;
+    let mut unc_out_slot: Option<PendingOutput> = None;
     {
         let mut reader = RowReader::new(&mut raster);
-        let mut next = |y0: u32, rows: u32| -> Result<Vec<u8>> {
+        let mut next = |y0: u32, rows: u32| -> Result<(Vec<u8>, Vec<f32>)> {
             let raw = reader.rows(y0, rows)?;
             let (classes, unc, feat) = assign_rows(&raw);
             for y in (y0..y0 + rows).filter(|y| y % preview_step == 0) {
@@ -682,30 +684,55 @@ pub fn landcover_file(
                 }
                 sse += s;
             }
-            Ok(classes)
+            Ok((classes, unc))
         };
-        set.write(&names[0], |wr| {
-            geotiff::write_u8_band(wr, w, h, &info.geo, Some("0"), &mut next)
-                .map_err(std::io::Error::other)
-        })?;
+        // The uncertainty raster is written on a second thread from rows this pass sends
+        // over a bounded channel, so the scene is read and assigned once.
+        let (tx, rx) = std::sync::mpsc::sync_channel::<Vec<f32>>(4);
+        let mut unc_out = set.begin(&names[1])?;
+        let mut cls_out = set.begin(&names[0])?;
+        let geo = &info.geo;
+        let unc_result = std::thread::scope(|scope| -> Result<()> {
+            let writer = scope.spawn(move || -> Result<PendingOutput> {
+                let mut buf: Vec<f32> = Vec::new();
+                let mut pull = |_y0: u32, rows: u32| -> Result<Vec<f32>> {
+                    let need = rows as usize * w as usize;
+                    while buf.len() < need {
+                        let more = rx.recv().map_err(|_| Error::Data("the class pass stopped early".into()))?;
+                        buf.extend_from_slice(&more);
+                    }
+                    Ok(buf.drain(..need).collect())
+                };
+                let nodata = format!("{UNCERTAINTY_NODATA}");
+                let mut result = Ok(());
+                unc_out.write_with(|wr| {
+                    result = geotiff::write_f32_band(wr, w, h, geo, Some(&nodata), &mut pull);
+                    Ok(())
+                })?;
+                result.map(|_| unc_out)
+            });
+            let mut send = |y0: u32, rows: u32| -> Result<Vec<u8>> {
+                let (classes, unc) = next(y0, rows)?;
+                tx.send(unc).map_err(|_| Error::Data("the uncertainty writer stopped early".into()))?;
+                Ok(classes)
+            };
+            let mut result = Ok(());
+            cls_out.write_with(|wr| {
+                result = geotiff::write_u8_band(wr, w, h, geo, Some("0"), &mut send);
+                Ok(())
+            })?;
+            drop(send);
+            drop(tx);
+            let unc_done = writer.join().expect("uncertainty writer thread");
+            result?;
+            unc_out_slot = Some(unc_done?);
+            Ok(())
+        });
+        unc_result?;
+        set.finish(cls_out)?;
+        set.finish(unc_out_slot.take().expect("uncertainty written"))?;
     }
     phases.mark("pass 2 (classes, statistics)");
-    // Pass 3: uncertainty raster.
-    raster = GeoRaster::open(input, &opts.limits)?;
-    {
-        let mut reader = RowReader::new(&mut raster);
-        let mut next = |y0: u32, rows: u32| -> Result<Vec<f32>> {
-            let raw = reader.rows(y0, rows)?;
-            Ok(assign_rows(&raw).1)
-        };
-        let nodata = format!("{UNCERTAINTY_NODATA}");
-        set.write(&names[1], |wr| {
-            geotiff::write_f32_band(wr, w, h, &info.geo, Some(&nodata), &mut next)
-                .map_err(std::io::Error::other)
-        })?;
-    }
-
-    phases.mark("pass 3 (uncertainty)");
     let colours = class_colours(k);
     let pixel_area = info.geo.pixel_area_m2();
     let classes: Vec<ClassReport> = (1..=k)

@@ -87,19 +87,17 @@ impl OutputSet {
         Ok(target)
     }
 
-    /// Writes one output into a temporary file; it is renamed to `name` on commit.
-    pub fn write<F>(&mut self, name: &str, f: F) -> Result<PathBuf>
-    where
-        F: FnOnce(&mut BufWriter<&mut fs::File>) -> std::io::Result<()>,
-    {
+    /// Starts one output: a temporary file in the folder that [`OutputSet::finish`] adds
+    /// to the set. A started output may be written on another thread.
+    pub fn begin(&self, name: &str) -> Result<PendingOutput> {
         let target = self.check_target(name)?;
-        let mut tmp = NamedTempFile::with_prefix_in(TEMP_PREFIX, &self.dir)
-            .map_err(|e| Error::io(&target, e))?;
-        {
-            let mut w = BufWriter::new(tmp.as_file_mut());
-            f(&mut w).map_err(|e| Error::io(&target, e))?;
-            w.flush().map_err(|e| Error::io(&target, e))?;
-        }
+        let tmp = NamedTempFile::with_prefix_in(TEMP_PREFIX, &self.dir).map_err(|e| Error::io(&target, e))?;
+        Ok(PendingOutput { tmp, target })
+    }
+
+    /// Completes a started output: ordinary permissions, data on disk, renamed on commit.
+    pub fn finish(&mut self, out: PendingOutput) -> Result<PathBuf> {
+        let PendingOutput { tmp, target } = out;
         #[cfg(unix)]
         {
             use std::os::unix::fs::PermissionsExt;
@@ -108,11 +106,19 @@ impl OutputSet {
                 .set_permissions(fs::Permissions::from_mode(0o644))
                 .map_err(|e| Error::io(&target, e))?;
         }
-        tmp.as_file()
-            .sync_data()
-            .map_err(|e| Error::io(&target, e))?;
+        tmp.as_file().sync_data().map_err(|e| Error::io(&target, e))?;
         self.pending.push((tmp, target.clone()));
         Ok(target)
+    }
+
+    /// Writes one output into a temporary file; it is renamed to `name` on commit.
+    pub fn write<F>(&mut self, name: &str, f: F) -> Result<PathBuf>
+    where
+        F: FnOnce(&mut BufWriter<&mut fs::File>) -> std::io::Result<()>,
+    {
+        let mut out = self.begin(name)?;
+        out.write_with(f)?;
+        self.finish(out)
     }
 
     /// Writes a complete byte buffer as one output.
@@ -130,6 +136,30 @@ impl OutputSet {
         }
         self.committed = true;
         Ok(done)
+    }
+}
+
+/// One output being written (see [`OutputSet::begin`]).
+#[derive(Debug)]
+pub struct PendingOutput {
+    tmp: NamedTempFile,
+    target: PathBuf,
+}
+
+impl PendingOutput {
+    /// The final path.
+    pub fn target(&self) -> &Path {
+        &self.target
+    }
+
+    /// Writes through a buffered writer and flushes it.
+    pub fn write_with<F>(&mut self, f: F) -> Result<()>
+    where
+        F: FnOnce(&mut BufWriter<&mut fs::File>) -> std::io::Result<()>,
+    {
+        let mut w = BufWriter::new(self.tmp.as_file_mut());
+        f(&mut w).map_err(|e| Error::io(&self.target, e))?;
+        w.flush().map_err(|e| Error::io(&self.target, e))
     }
 }
 

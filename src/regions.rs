@@ -574,6 +574,10 @@ const BAND_PIXELS: usize = 1 << 18;
 /// Rank of a label that neither spreads nor receives.
 const NO_RANK: u16 = u16::MAX;
 
+/// Up to this many inks, [`trap`] handles every ink in every band (cheap when absent); beyond,
+/// it first finds which labels occur near each band.
+const FEW_INKS: usize = 16;
+
 /// Trapping for print: each ink spreads by `px` pixels (Euclidean distance between pixel centres
 /// <= px) into neighbouring regions of DARKER inks only. `lightness[l]` is the CIELAB L* of label l;
 /// `is_ink[l]` is false for labels that are not inks (e.g. the bare substrate), which neither spread
@@ -677,7 +681,15 @@ fn trap_impl(
         }
         rank[m] = r;
     }
-    let spreading = px > 0 && r > 0;
+    let inks: Vec<u16> = (0..nl).filter(|&m| own[m]).map(|m| m as u16).collect();
+    let spreaders: Vec<u16> = if px == 0 {
+        Vec::new()
+    } else {
+        inks.iter()
+            .copied()
+            .filter(|&l| rank[l as usize] != NO_RANK && rank[l as usize] > 0)
+            .collect()
+    };
 
     let method = match method {
         Method::Auto if px <= BITS_MAX_PX => Method::Bits,
@@ -734,7 +746,8 @@ fn trap_impl(
         nl,
         own: &own,
         rank: &rank,
-        spreading,
+        inks: &inks,
+        spreaders: &spreaders,
         method,
         radii: &radii,
         slot: &slot,
@@ -762,8 +775,9 @@ struct Job<'a> {
     /// Indexed by label (2¹⁶ entries): is an ink, and lightness rank (see [`trap_impl`]).
     own: &'a [bool],
     rank: &'a [u16],
-    /// Whether any ink can spread at all.
-    spreading: bool,
+    /// The inks, and the inks that have a darker ink to spread into (none when px = 0).
+    inks: &'a [u16],
+    spreaders: &'a [u16],
     /// `Bits` or `Envelope`, never `Auto`.
     method: Method,
     /// The distinct disc half-widths, ascending, and the index in it for each row offset 0..=px.
@@ -847,17 +861,12 @@ impl Job<'_> {
         let r0 = b * self.rows;
         let r1 = (r0 + self.rows).min(h);
         let band_labels = &self.labels[r0 * w..r1 * w];
-        s.seen.clear();
-        s.seen.resize(1 << 16, false);
-        for &m in band_labels {
-            s.seen[m as usize] = true;
-        }
-        // Own pixels: a vectorised compare per ink present, or one pass when there are many.
-        let present: Vec<usize> = (0..self.nl).filter(|&m| s.seen[m] && self.own[m]).collect();
-        if present.len() <= 16 {
-            for &m in &present {
-                for (o, &v) in chunks[m].iter_mut().zip(band_labels) {
-                    *o = v as usize == m;
+        let few = self.inks.len() <= FEW_INKS;
+        // Own pixels: a vectorised compare per ink, or one pass when there are many inks.
+        if few {
+            for &l in self.inks {
+                for (o, &m) in chunks[l as usize].iter_mut().zip(band_labels) {
+                    *o = m == l;
                 }
             }
         } else {
@@ -867,33 +876,41 @@ impl Job<'_> {
                 }
             }
         }
-        if !self.spreading {
+        if self.spreaders.is_empty() {
             return;
         }
-
-        // The inks that can spread here: present in the band or within px rows of it (farther
-        // pixels cannot reach it), and lighter than some ink present in the band.
+        // Pixels more than px rows away cannot reach the band.
         let margin = self.px as usize;
         let h0 = r0.saturating_sub(margin);
         let h1 = (r1 + margin).min(h);
-        let darkest = (0..self.nl)
-            .filter(|&m| s.seen[m])
-            .map(|m| self.rank[m])
-            .min()
-            .unwrap_or(NO_RANK);
-        for &m in self.labels[h0 * w..r0 * w]
-            .iter()
-            .chain(&self.labels[r1 * w..h1 * w])
-        {
-            s.seen[m as usize] = true;
-        }
-        let active: Vec<u16> = (0..self.nl)
-            .filter(|&l| s.seen[l] && self.rank[l] != NO_RANK && darkest < self.rank[l])
-            .map(|l| l as u16)
-            .collect();
-        if active.is_empty() {
-            return;
-        }
+        // With many inks, only those present near the band and lighter than an ink present in
+        // the band are worth looking at; with few, absent inks cost little (their rows are
+        // empty and skipped).
+        let active: Vec<u16> = if few {
+            self.spreaders.to_vec()
+        } else {
+            s.seen.clear();
+            s.seen.resize(1 << 16, false);
+            for &m in band_labels {
+                s.seen[m as usize] = true;
+            }
+            let darkest = (0..self.nl)
+                .filter(|&m| s.seen[m])
+                .map(|m| self.rank[m])
+                .min()
+                .unwrap_or(NO_RANK);
+            for &m in self.labels[h0 * w..r0 * w]
+                .iter()
+                .chain(&self.labels[r1 * w..h1 * w])
+            {
+                s.seen[m as usize] = true;
+            }
+            self.spreaders
+                .iter()
+                .copied()
+                .filter(|&l| s.seen[l as usize] && darkest < self.rank[l as usize])
+                .collect()
+        };
         match self.method {
             Method::Envelope { wide: false } => {
                 for &l in &active {
@@ -965,11 +982,13 @@ impl Job<'_> {
             s.bits.resize(rows * words, 0);
             s.dilated.clear();
             s.dilated.resize(self.radii.len() * rows * words, 0);
+            let mut present = false;
             for j in 0..rows {
                 let lab = &self.labels[(h0 + j) * w..(h0 + j + 1) * w];
                 if !pack_with(lab, &mut s.bits[j * words..(j + 1) * words], |m| m == l) {
                     continue;
                 }
+                present = true;
                 s.a.copy_from_slice(&s.bits[j * words..(j + 1) * words]);
                 let mut radius = 0;
                 for (k, &r) in self.radii.iter().enumerate() {
@@ -980,6 +999,9 @@ impl Job<'_> {
                     }
                     s.dilated[row_at(k, j)..row_at(k, j) + words].copy_from_slice(&s.a);
                 }
+            }
+            if !present {
+                continue;
             }
             let mask = &mut *chunks[l as usize];
             for y in r0..r1 {
@@ -1903,6 +1925,71 @@ mod tests {
                 for rows in [None, Some(1), Some(2), Some(3), Some(5), Some(8)] {
                     for method in METHODS {
                         let got = trap_impl(&labels, w, h, &lightness, &is_ink, px, rows, method);
+                        assert_eq!(got, want, "seed {seed} px {px} rows {rows:?} {method:?}");
+                    }
+                }
+            }
+        }
+    }
+
+    #[test]
+    fn packing_and_row_dilation() {
+        let mut rng = XorShift::new(5);
+        for len in [0usize, 1, 7, 8, 63, 64, 65, 127, 128, 129, 200] {
+            let src: Vec<u16> = (0..len).map(|_| rng.below(3) as u16).collect();
+            let words = len.div_ceil(64) + 1;
+            let mut dst = vec![u64::MAX; words];
+            let any = pack_with(&src, &mut dst, |v| v == 1);
+            let bit = |d: &[u64], i: usize| d[i / 64] >> (i % 64) & 1 == 1;
+            for i in 0..words * 64 {
+                assert_eq!(bit(&dst, i), i < len && src[i] == 1, "len {len} bit {i}");
+            }
+            assert_eq!(any, src.contains(&1));
+            let mut wider = vec![0u64; words];
+            dilate_row(&dst, &mut wider);
+            for i in 0..len {
+                let near = (i.saturating_sub(1)..=(i + 1).min(len - 1)).any(|j| src[j] == 1);
+                assert_eq!(bit(&wider, i), near, "len {len} bit {i}");
+            }
+        }
+    }
+
+    #[test]
+    fn trap_on_rows_of_several_words_matches_window_search() {
+        for (k, &w) in [63usize, 64, 65, 128, 129, 200].iter().enumerate() {
+            let h = 9 + k;
+            let labels = blobs(400 + k as u64, w, h, 5, k % 2 == 0);
+            let lightness = [80.0, 20.0, 50.0, 50.0, 95.0];
+            let is_ink = [true, true, true, true, false];
+            for px in [1u32, 2, 4, 6] {
+                let want = reference_trap(&labels, w, h, &lightness, &is_ink, px);
+                for rows in [None, Some(1), Some(4)] {
+                    for method in METHODS {
+                        let got =
+                            trap_impl(&labels, w, h, &lightness, &is_ink, px, rows, method);
+                        assert_eq!(got, want, "w {w} px {px} rows {rows:?} {method:?}");
+                    }
+                }
+            }
+        }
+    }
+
+    #[test]
+    fn trap_with_many_inks_matches_window_search() {
+        // More than FEW_INKS inks: the bands first look for the labels near them.
+        for seed in 0..6u64 {
+            let mut rng = XorShift::new(seed + 900);
+            let (w, h) = (20 + rng.below(50) as usize, 10 + rng.below(30) as usize);
+            let nl = FEW_INKS + 2 + rng.below(30) as usize;
+            let labels = blobs(seed + 901, w, h, nl as u16 + 3, true);
+            let lightness: Vec<f64> = (0..nl).map(|_| rng.below(12) as f64 * 8.0).collect();
+            let is_ink: Vec<bool> = (0..nl).map(|_| rng.below(6) != 0).collect();
+            for px in [1u32, 3, 40] {
+                let want = reference_trap(&labels, w, h, &lightness, &is_ink, px);
+                for rows in [None, Some(3)] {
+                    for method in METHODS {
+                        let got =
+                            trap_impl(&labels, w, h, &lightness, &is_ink, px, rows, method);
                         assert_eq!(got, want, "seed {seed} px {px} rows {rows:?} {method:?}");
                     }
                 }
