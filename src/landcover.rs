@@ -698,7 +698,9 @@ pub fn landcover_file(
                 let mut pull = |_y0: u32, rows: u32| -> Result<Vec<f32>> {
                     let need = rows as usize * w as usize;
                     while buf.len() < need {
-                        let more = rx.recv().map_err(|_| Error::Data("the class pass stopped early".into()))?;
+                        let more = rx
+                            .recv()
+                            .map_err(|_| Error::Data("the class pass stopped early".into()))?;
                         buf.extend_from_slice(&more);
                     }
                     Ok(buf.drain(..need).collect())
@@ -713,7 +715,8 @@ pub fn landcover_file(
             });
             let mut send = |y0: u32, rows: u32| -> Result<Vec<u8>> {
                 let (classes, unc) = next(y0, rows)?;
-                tx.send(unc).map_err(|_| Error::Data("the uncertainty writer stopped early".into()))?;
+                tx.send(unc)
+                    .map_err(|_| Error::Data("the uncertainty writer stopped early".into()))?;
                 Ok(classes)
             };
             let mut result = Ok(());

@@ -6,6 +6,7 @@
 //! to temporary files and renamed into place ([`output`]). The workflows ([`reduce`])
 //! tie these together; the binary is a thin layer over them.
 
+pub mod batch;
 pub mod cli;
 pub mod cluster;
 pub mod colour;

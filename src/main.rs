@@ -1,16 +1,154 @@
 //! The `chromasift` binary: parses flags, calls the library, maps the result to an exit code.
 
 use chromasift::cli::{Cli, Command};
+use chromasift::{batch, reduce};
 use clap::Parser;
 use std::io::Write;
 use std::process::ExitCode;
+use std::sync::atomic::{AtomicBool, Ordering};
 
 /// Exit codes: 0 success, 1 some inputs failed (batches), 2 usage or input error.
 const EXIT_USAGE: u8 = 2;
 
 fn fail(message: impl std::fmt::Display) -> ExitCode {
-    eprintln!("chromasift: error: {message}");
+    eprintln!(
+        "chromasift: error: {}",
+        chromasift::batch::one_line(&message.to_string())
+    );
     ExitCode::from(EXIT_USAGE)
+}
+
+/// Exit code when some inputs of a batch failed.
+const EXIT_SOME_FAILED: u8 = 1;
+/// Exit code after Ctrl-C (128 + SIGINT).
+const EXIT_INTERRUPTED: u8 = 130;
+
+static STOP: AtomicBool = AtomicBool::new(false);
+
+fn read_palette(path: &std::path::Path) -> Result<reduce::FixedPalette, chromasift::Error> {
+    let bytes = std::fs::read(path).map_err(|source| chromasift::Error::Open {
+        path: path.into(),
+        source,
+    })?;
+    let doc: reduce::PaletteDocument =
+        serde_json::from_slice(&bytes).map_err(|e| chromasift::Error::Decode {
+            path: path.into(),
+            message: format!("not a palette document: {e}"),
+        })?;
+    reduce::FixedPalette::from_document(&doc).map_err(|message| chromasift::Error::Decode {
+        path: path.into(),
+        message,
+    })
+}
+
+fn print_reduce_summary(input: &std::path::Path, report: &reduce::ReduceReport, json: bool) {
+    for n in &report.notes {
+        eprintln!("chromasift: note: {}: {n}", input.display());
+    }
+    let d = &report.document;
+    eprintln!(
+        "chromasift: {}: {} colours, {} iterations, SSE {:.6e}, mean ΔE2000 {:.3}, {:.2} s",
+        input.display(),
+        d.k,
+        d.iterations,
+        d.sse,
+        d.mean_delta_e2000,
+        report.seconds
+    );
+    if json {
+        let mut out = std::io::stdout().lock();
+        let _ = writeln!(
+            out,
+            "{}",
+            serde_json::to_string_pretty(d).expect("document serialises")
+        );
+    }
+}
+
+fn run_batch(args: chromasift::cli::BatchArgs) -> ExitCode {
+    use std::io::IsTerminal;
+    let _ = ctrlc::set_handler(|| STOP.store(true, Ordering::SeqCst));
+    let palette = match args.palette.as_deref().map(read_palette).transpose() {
+        Ok(p) => p,
+        Err(e) => return fail(e),
+    };
+    let opts = batch::BatchOptions {
+        reduce: args.settings.options(),
+        shared: args.shared,
+        jobs: args
+            .jobs
+            .unwrap_or_else(|| std::thread::available_parallelism().map_or(1, |n| n.get())),
+        force: args.force,
+        contact_sheet: args.contact_sheet,
+        palette,
+    };
+    let bar = (!args.quiet && std::io::stderr().is_terminal()).then(|| {
+        let b = indicatif::ProgressBar::new(0);
+        b.set_style(
+            indicatif::ProgressStyle::with_template(
+                "{bar:30} {pos}/{len} images  {per_sec}  about {eta} left",
+            )
+            .unwrap_or_else(|_| indicatif::ProgressStyle::default_bar()),
+        );
+        b
+    });
+    let last_line = std::sync::Mutex::new(std::time::Instant::now());
+    let progress = |done: usize, total: usize| {
+        if args.quiet {
+            return;
+        }
+        if let Some(b) = &bar {
+            b.set_length(total as u64);
+            b.set_position(done as u64);
+        } else {
+            let mut t = last_line.lock().unwrap();
+            if done == total || t.elapsed().as_secs() >= 5 {
+                eprintln!("chromasift: batch: {done}/{total} images");
+                *t = std::time::Instant::now();
+            }
+        }
+    };
+    let result = batch::run_batch(&args.input, &args.out, &opts, &STOP, &progress);
+    if let Some(b) = &bar {
+        b.finish_and_clear();
+    }
+    match result {
+        Ok(r) => {
+            for f in r.files.iter().filter(|f| f.status == batch::Status::Failed) {
+                eprintln!(
+                    "chromasift: failed: {}",
+                    f.error.as_deref().unwrap_or(&f.input)
+                );
+            }
+            let t = &r.totals;
+            eprintln!(
+                "chromasift: batch: {} images: {} reduced, {} up to date, {} failed{}; {} other files skipped; {:.1} s",
+                t.files,
+                t.ok,
+                t.skipped,
+                t.failed,
+                if t.interrupted > 0 { format!(", {} not started (interrupted)", t.interrupted) } else { String::new() },
+                t.not_images,
+                t.seconds
+            );
+            if args.json {
+                let mut out = std::io::stdout().lock();
+                let _ = writeln!(
+                    out,
+                    "{}",
+                    serde_json::to_string_pretty(&r).expect("report serialises")
+                );
+            }
+            if STOP.load(Ordering::SeqCst) {
+                ExitCode::from(EXIT_INTERRUPTED)
+            } else if t.failed > 0 {
+                ExitCode::from(EXIT_SOME_FAILED)
+            } else {
+                ExitCode::SUCCESS
+            }
+        }
+        Err(e) => fail(e),
+    }
 }
 
 fn main() -> ExitCode {
@@ -38,29 +176,9 @@ fn main() -> ExitCode {
     match cli.command {
         Command::Reduce(args) => {
             let opts = args.options();
-            match chromasift::reduce::reduce_file(&args.input, &args.out, &opts) {
+            match reduce::reduce_file(&args.input, &args.out, &opts) {
                 Ok(report) => {
-                    for n in &report.notes {
-                        eprintln!("chromasift: note: {}: {n}", args.input.display());
-                    }
-                    let d = &report.document;
-                    eprintln!(
-                        "chromasift: {}: {} colours, {} iterations, SSE {:.6e}, mean ΔE2000 {:.3}, {:.2} s",
-                        args.input.display(),
-                        d.k,
-                        d.iterations,
-                        d.sse,
-                        d.mean_delta_e2000,
-                        report.seconds
-                    );
-                    if args.json {
-                        let mut out = std::io::stdout().lock();
-                        let _ = writeln!(
-                            out,
-                            "{}",
-                            serde_json::to_string_pretty(d).expect("document serialises")
-                        );
-                    }
+                    print_reduce_summary(&args.input, &report, args.json);
                     ExitCode::SUCCESS
                 }
                 Err(e) => fail(e),
@@ -114,6 +232,87 @@ fn main() -> ExitCode {
                             serde_json::to_string_pretty(d).expect("document serialises")
                         );
                     }
+                    ExitCode::SUCCESS
+                }
+                Err(e) => fail(e),
+            }
+        }
+        Command::Batch(args) => run_batch(args),
+        Command::Learn(args) => {
+            let opts = args.settings.options();
+            let result = (|| -> Result<reduce::PaletteDocument, chromasift::Error> {
+                opts.kmeans_params().check()?;
+                let hist = batch::gather_histograms(&args.inputs, &opts)?;
+                let doc = reduce::learn_palette(&hist, &opts)?;
+                let dir = args
+                    .out
+                    .parent()
+                    .filter(|p| !p.as_os_str().is_empty())
+                    .unwrap_or(std::path::Path::new("."));
+                let name = args
+                    .out
+                    .file_name()
+                    .and_then(|n| n.to_str())
+                    .ok_or_else(|| chromasift::Error::output(&args.out, "not a file name"))?;
+                let mut set = chromasift::output::OutputSet::prepare(dir, &[])?;
+                let json = serde_json::to_string_pretty(&doc).expect("document serialises");
+                set.write_bytes(name, format!("{json}\n").as_bytes())?;
+                set.commit()?;
+                Ok(doc)
+            })();
+            match result {
+                Ok(doc) => {
+                    eprintln!(
+                        "chromasift: learned {} colours from {} pixels, mean ΔE2000 {:.3}; wrote {}",
+                        doc.k,
+                        doc.colors.iter().map(|c| c.pixels).sum::<u64>(),
+                        doc.mean_delta_e2000,
+                        args.out.display()
+                    );
+                    ExitCode::SUCCESS
+                }
+                Err(e) => fail(e),
+            }
+        }
+        Command::Apply(args) => {
+            let opts = args.settings.options();
+            let palette = match read_palette(&args.palette) {
+                Ok(p) => p,
+                Err(e) => return fail(e),
+            };
+            match reduce::reduce_file_with(&args.input, &args.out, &opts, Some(&palette), false) {
+                Ok(report) => {
+                    print_reduce_summary(&args.input, &report, args.json);
+                    ExitCode::SUCCESS
+                }
+                Err(e) => fail(e),
+            }
+        }
+        Command::Histogram(args) => {
+            let opts = reduce::ReduceOptions {
+                limits: chromasift::Limits::with_max_pixels(args.max_pixels),
+                ..reduce::ReduceOptions::new(1)
+            };
+            let result = (|| -> Result<u64, chromasift::Error> {
+                let hist = batch::gather_histograms(&args.inputs, &opts)?;
+                let dir = args
+                    .out
+                    .parent()
+                    .filter(|p| !p.as_os_str().is_empty())
+                    .unwrap_or(std::path::Path::new("."));
+                let name = args
+                    .out
+                    .file_name()
+                    .and_then(|n| n.to_str())
+                    .ok_or_else(|| chromasift::Error::output(&args.out, "not a file name"))?;
+                let mut set = chromasift::output::OutputSet::prepare(dir, &[])?;
+                set.write_bytes(name, &batch::encode_histogram(&hist))?;
+                set.commit()?;
+                Ok(hist.total())
+            })();
+            match result {
+                Ok(n) => {
+                    eprintln!("chromasift: wrote {} ({n} pixels)", args.out.display());
                     ExitCode::SUCCESS
                 }
                 Err(e) => fail(e),

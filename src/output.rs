@@ -91,7 +91,8 @@ impl OutputSet {
     /// to the set. A started output may be written on another thread.
     pub fn begin(&self, name: &str) -> Result<PendingOutput> {
         let target = self.check_target(name)?;
-        let tmp = NamedTempFile::with_prefix_in(TEMP_PREFIX, &self.dir).map_err(|e| Error::io(&target, e))?;
+        let tmp = NamedTempFile::with_prefix_in(TEMP_PREFIX, &self.dir)
+            .map_err(|e| Error::io(&target, e))?;
         Ok(PendingOutput { tmp, target })
     }
 
@@ -106,7 +107,9 @@ impl OutputSet {
                 .set_permissions(fs::Permissions::from_mode(0o644))
                 .map_err(|e| Error::io(&target, e))?;
         }
-        tmp.as_file().sync_data().map_err(|e| Error::io(&target, e))?;
+        tmp.as_file()
+            .sync_data()
+            .map_err(|e| Error::io(&target, e))?;
         self.pending.push((tmp, target.clone()));
         Ok(target)
     }

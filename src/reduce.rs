@@ -126,6 +126,69 @@ pub struct PaletteDocument {
     pub mean_delta_e2000: f64,
     pub colors: Vec<PaletteColour>,
     pub settings: ReduceSettings,
+    /// Size and modification time of the input (batch runs use it to resume).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub source: Option<SourceStamp>,
+    /// Fingerprint of every setting that shapes the outputs (batch runs use it to resume).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub settings_fingerprint: Option<String>,
+}
+
+/// Identity of an input file for resuming: byte size and modification time.
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize)]
+pub struct SourceStamp {
+    pub bytes: u64,
+    /// Modification time, nanoseconds since the Unix epoch.
+    pub modified_ns: u128,
+}
+
+impl SourceStamp {
+    /// The stamp of a file now.
+    pub fn of(path: &Path) -> Option<SourceStamp> {
+        let m = std::fs::metadata(path).ok()?;
+        let modified_ns = m
+            .modified()
+            .ok()?
+            .duration_since(std::time::UNIX_EPOCH)
+            .ok()?
+            .as_nanos();
+        Some(SourceStamp {
+            bytes: m.len(),
+            modified_ns,
+        })
+    }
+}
+
+/// FNV-1a, 64 bits: a small, stable hash for fingerprints and checksums.
+pub fn fnv1a(bytes: &[u8]) -> u64 {
+    let mut h = 0xcbf2_9ce4_8422_2325u64;
+    for &b in bytes {
+        h ^= b as u64;
+        h = h.wrapping_mul(0x0000_0100_0000_01b3);
+    }
+    h
+}
+
+impl ReduceOptions {
+    /// Fingerprint of the settings that shape the outputs (and of a fixed palette, if any).
+    pub fn fingerprint(&self, fixed: Option<&FixedPalette>) -> String {
+        let text = format!(
+            "{}|{}|{:?}|{:?}|{}|{}|{}|{}|{}|{}|{}|{:?}",
+            crate::TOOL_VERSION,
+            self.k,
+            self.mode,
+            self.beta,
+            self.space.name(),
+            self.seed,
+            self.restarts,
+            self.max_iter,
+            self.tolerance,
+            self.dither.name(),
+            self.uncertainty_raw,
+            fixed.map(|f| (f.colours.clone(), f.beta)),
+        );
+        format!("{:016x}", fnv1a(text.as_bytes()))
+    }
 }
 
 /// An image reduced in memory, ready to be written.
@@ -176,10 +239,43 @@ pub fn entry_features(h: &histogram::Histogram, space: Space) -> (Vec<f32>, Vec<
     (rows, labs)
 }
 
+/// A palette given in advance (from a palette document): its colours and, optionally,
+/// the β to use for the uncertainty map (default: automatic for the image at hand).
+#[derive(Debug, Clone, PartialEq)]
+pub struct FixedPalette {
+    pub colours: Vec<[u8; 3]>,
+    pub beta: Option<f64>,
+}
+
+impl FixedPalette {
+    /// The colours and β of a palette document.
+    pub fn from_document(doc: &PaletteDocument) -> std::result::Result<Self, String> {
+        let colours = doc
+            .colors
+            .iter()
+            .map(|c| colour::parse_hex(&c.hex))
+            .collect::<std::result::Result<Vec<_>, _>>()?;
+        if colours.is_empty() {
+            return Err("the palette has no colours".into());
+        }
+        Ok(FixedPalette {
+            colours,
+            beta: doc.beta,
+        })
+    }
+}
+
 /// Reduces a decoded image. Fails only on parameters or an image with no opaque pixel.
 pub fn reduce_image(img: &Decoded, opts: &ReduceOptions) -> Result<Reduction> {
-    let params = opts.kmeans_params().check()?;
-    let mut ph = crate::trace::Phases::start("reduce");
+    reduce_image_with(img, opts, None)
+}
+
+/// Reduces a decoded image with a fitted palette, or maps it onto `fixed` colours.
+pub fn reduce_image_with(
+    img: &Decoded,
+    opts: &ReduceOptions,
+    fixed: Option<&FixedPalette>,
+) -> Result<Reduction> {
     let IndexedHistogram {
         histogram: hist,
         pixel_entry,
@@ -187,6 +283,45 @@ pub fn reduce_image(img: &Decoded, opts: &ReduceOptions) -> Result<Reduction> {
         Pixels::Rgba8(p) => histogram::from_rgba8(p),
         Pixels::Rgba16(p) => histogram::from_rgba16(p),
     };
+    let alpha = if img.has_alpha {
+        let a = img.alpha8();
+        a.iter().any(|&v| v != 255).then_some(a)
+    } else {
+        None
+    };
+    reduce_indexed(
+        &hist,
+        pixel_entry,
+        img.width,
+        img.height,
+        alpha,
+        opts,
+        fixed,
+    )
+}
+
+/// Fits a palette to a (possibly merged) histogram without an image: the palette document
+/// of the whole set, as written by `learn` and `batch --shared`.
+pub fn learn_palette(hist: &histogram::Histogram, opts: &ReduceOptions) -> Result<PaletteDocument> {
+    let opts = ReduceOptions {
+        dither: Dither::None,
+        ..opts.clone()
+    };
+    Ok(reduce_indexed(hist, Vec::new(), 0, 0, None, &opts, None)?.document)
+}
+
+/// The shared core: per-entry clustering (or mapping), rendering and scores.
+fn reduce_indexed(
+    hist: &histogram::Histogram,
+    pixel_entry: Vec<u32>,
+    width: u32,
+    height: u32,
+    alpha: Option<Vec<u8>>,
+    opts: &ReduceOptions,
+    fixed: Option<&FixedPalette>,
+) -> Result<Reduction> {
+    let params = opts.kmeans_params().check()?;
+    let mut ph = crate::trace::Phases::start("reduce");
     if hist.is_empty() {
         return Err(Error::Data(
             "every pixel is fully transparent; there is nothing to reduce".into(),
@@ -194,13 +329,29 @@ pub fn reduce_image(img: &Decoded, opts: &ReduceOptions) -> Result<Reduction> {
     }
     ph.mark("histogram");
     let weights = hist.weights();
-    let (rows, labs) = entry_features(&hist, opts.space);
+    let (rows, labs) = entry_features(hist, opts.space);
     ph.mark("features");
     let data = Dataset::new(&rows, 3, Some(&weights))?;
     let mut notes = Vec::new();
 
     // Means in the clustering space, their β, SSE, iterations and per-entry results.
-    let (means, beta, sse, iterations, labels, entropy) = if hist.len() <= opts.k {
+    let (means, beta, sse, iterations, labels, entropy) = if let Some(fp) = fixed {
+        let means: Vec<f64> = fp
+            .colours
+            .iter()
+            .flat_map(|&c| colour::linear_to_space(colour::srgb8_to_linear(c), opts.space))
+            .collect();
+        let m32: Vec<f32> = means.iter().map(|&v| v as f32).collect();
+        let (_, sse) = crate::cluster::assign_nearest(&data, &m32);
+        let beta = match opts.beta {
+            Beta::Fixed(b) => Some(b),
+            Beta::Auto => fp
+                .beta
+                .or_else(|| crate::cluster::auto_beta(sse, data.total_weight(), 3)),
+        };
+        let a = crate::cluster::soft_assign(&data, &means, beta);
+        (means, beta, sse, 0, a.labels, a.entropy)
+    } else if hist.len() <= opts.k {
         if hist.len() < opts.k {
             notes.push(format!(
                 "the image has only {} distinct colours; returning them all instead of {}",
@@ -254,7 +405,7 @@ pub fn reduce_image(img: &Decoded, opts: &ReduceOptions) -> Result<Reduction> {
     let pixel_slot = match opts.dither {
         Dither::None => render::remap(&pixel_entry, &entry_slot),
         Dither::FloydSteinberg => {
-            render::dither_floyd_steinberg(img.width as usize, &pixel_entry, &rows, &slot_feat, 3)
+            render::dither_floyd_steinberg(width as usize, &pixel_entry, &rows, &slot_feat, 3)
         }
     };
 
@@ -354,12 +505,6 @@ pub fn reduce_image(img: &Decoded, opts: &ReduceOptions) -> Result<Reduction> {
         })
         .collect();
 
-    let alpha = if img.has_alpha {
-        let a = img.alpha8();
-        a.iter().any(|&v| v != 255).then_some(a)
-    } else {
-        None
-    };
     let document = PaletteDocument {
         tool_version: crate::TOOL_VERSION.to_string(),
         input: None,
@@ -384,10 +529,12 @@ pub fn reduce_image(img: &Decoded, opts: &ReduceOptions) -> Result<Reduction> {
             tolerance: opts.tolerance,
             dither: opts.dither.name().into(),
         },
+        source: None,
+        settings_fingerprint: None,
     };
     Ok(Reduction {
-        width: img.width,
-        height: img.height,
+        width,
+        height,
         palette,
         pixel_index,
         alpha,
@@ -511,6 +658,19 @@ pub fn stem_of(input: &Path) -> Result<String> {
 
 /// Reads `input`, reduces it and writes all outputs into `out_dir` atomically.
 pub fn reduce_file(input: &Path, out_dir: &Path, opts: &ReduceOptions) -> Result<ReduceReport> {
+    reduce_file_with(input, out_dir, opts, None, false)
+}
+
+/// As [`reduce_file`], mapping onto `fixed` colours when given (the `apply` workflow).
+/// With `stamp`, the palette document records the input's size and time and the settings
+/// fingerprint, so a batch can tell later whether the outputs are up to date.
+pub fn reduce_file_with(
+    input: &Path,
+    out_dir: &Path,
+    opts: &ReduceOptions,
+    fixed: Option<&FixedPalette>,
+    stamp: bool,
+) -> Result<ReduceReport> {
     let t0 = Instant::now();
     opts.kmeans_params().check()?;
     let stem = stem_of(input)?;
@@ -519,7 +679,7 @@ pub fn reduce_file(input: &Path, out_dir: &Path, opts: &ReduceOptions) -> Result
     for name in output_names(&stem) {
         set.check_target(&name)?;
     }
-    let mut red = reduce_image(&img, opts).map_err(|e| match e {
+    let mut red = reduce_image_with(&img, opts, fixed).map_err(|e| match e {
         Error::Data(message) => Error::InputData {
             path: input.into(),
             message,
@@ -528,6 +688,10 @@ pub fn reduce_file(input: &Path, out_dir: &Path, opts: &ReduceOptions) -> Result
     })?;
     drop(img);
     red.document.input = input.file_name().map(|n| n.to_string_lossy().into_owned());
+    if stamp {
+        red.document.source = SourceStamp::of(input);
+        red.document.settings_fingerprint = Some(opts.fingerprint(fixed));
+    }
     write_reduction(&red, &stem, &mut set, opts.uncertainty_raw)?;
     let outputs = set.commit()?;
     Ok(ReduceReport {

@@ -73,6 +73,19 @@ pub enum Command {
     /// aligned to the map, with an uncertainty map. Not a validated classification.
     #[command(after_help = LANDCOVER_EXAMPLES)]
     Landcover(LandcoverArgs),
+
+    /// Reduce every image of a folder, each with its own palette or all with one shared palette.
+    #[command(after_help = BATCH_EXAMPLES)]
+    Batch(BatchArgs),
+
+    /// Learn one palette from folders, images or histogram files, without reducing anything.
+    Learn(LearnArgs),
+
+    /// Map an image onto a given palette (nearest colour in the palette's space).
+    Apply(ApplyArgs),
+
+    /// Write the merged colour histogram of folders or images to a file, for `learn`.
+    Histogram(HistogramArgs),
 }
 
 /// Flags of `landcover`.
@@ -272,13 +285,24 @@ pub struct ReduceArgs {
     /// Image to reduce (PNG, JPEG, TIFF, WebP, BMP, GIF; 8 or 16 bits per sample).
     pub input: PathBuf,
 
-    /// Number of colours (at least 1). Fewer are returned if the image has fewer distinct colours.
-    #[arg(short = 'k', long = "k", default_value_t = 8, value_name = "K")]
-    pub k: usize,
+    #[command(flatten)]
+    pub settings: ReduceFlags,
 
     /// Output folder (created if missing).
     #[arg(short = 'o', long = "out", default_value = ".", value_name = "DIR")]
     pub out: PathBuf,
+
+    /// Print the palette document on standard output.
+    #[arg(long)]
+    pub json: bool,
+}
+
+/// The reduction settings shared by `reduce`, `batch`, `learn` and `apply`.
+#[derive(Debug, Args, Clone)]
+pub struct ReduceFlags {
+    /// Number of colours (at least 1). Fewer are returned if the image has fewer distinct colours.
+    #[arg(short = 'k', long = "k", default_value_t = 8, value_name = "K")]
+    pub k: usize,
 
     /// hard: each pixel one colour; soft: each pixel a probability over colours,
     /// r ∝ exp(−β·½ΔE²), started from the hard solution.
@@ -326,13 +350,9 @@ pub struct ReduceArgs {
     /// Also write STEM.uncertainty.tif (32-bit float, 0..1).
     #[arg(long = "uncertainty-raw")]
     pub uncertainty_raw: bool,
-
-    /// Print the palette document on standard output.
-    #[arg(long)]
-    pub json: bool,
 }
 
-impl ReduceArgs {
+impl ReduceFlags {
     /// The library options these flags ask for.
     pub fn options(&self) -> ReduceOptions {
         ReduceOptions {
@@ -349,6 +369,120 @@ impl ReduceArgs {
             uncertainty_raw: self.uncertainty_raw,
         }
     }
+}
+
+impl ReduceArgs {
+    /// The library options these flags ask for.
+    pub fn options(&self) -> ReduceOptions {
+        self.settings.options()
+    }
+}
+
+const BATCH_EXAMPLES: &str = "\
+Examples:
+  chromasift batch shoot/ -k 12 -o reduced/
+  chromasift batch shoot/ -k 16 --shared -o reduced/ --jobs 2
+  chromasift batch shoot/ -k 16 --palette brand.palette.json -o reduced/
+
+Mirrors the folder under -o with the reduce outputs of each image, and writes
+batch-report.json and batch-report.csv there (plus shared.palette.json with --shared, and
+contact-sheet.html with --contact-sheet). A rerun skips images whose outputs are up to date.
+
+Exit status: 0 all images done, 1 some images failed, 2 usage error, 130 interrupted.";
+
+/// Flags of `batch`.
+#[derive(Debug, Args, Clone)]
+pub struct BatchArgs {
+    /// Folder of images (walked recursively).
+    pub input: PathBuf,
+
+    #[command(flatten)]
+    pub settings: ReduceFlags,
+
+    /// One palette for the whole batch, fitted on the merged histograms of all images.
+    #[arg(long, conflicts_with = "palette")]
+    pub shared: bool,
+
+    /// Map every image onto this palette document instead of fitting one per image.
+    #[arg(long, value_name = "FILE")]
+    pub palette: Option<PathBuf>,
+
+    /// Images processed at once (default: the number of cores).
+    #[arg(long, value_name = "N")]
+    pub jobs: Option<usize>,
+
+    /// Redo images whose outputs are already up to date.
+    #[arg(long)]
+    pub force: bool,
+
+    /// No progress output.
+    #[arg(long, short = 'q')]
+    pub quiet: bool,
+
+    /// Also write contact-sheet.html: before and after, palette strips and ΔE2000.
+    #[arg(long = "contact-sheet")]
+    pub contact_sheet: bool,
+
+    /// Output folder (must not be inside the input folder).
+    #[arg(short = 'o', long = "out", value_name = "DIR")]
+    pub out: PathBuf,
+
+    /// Print the batch report on standard output.
+    #[arg(long)]
+    pub json: bool,
+}
+
+/// Flags of `learn`.
+#[derive(Debug, Args, Clone)]
+pub struct LearnArgs {
+    /// Folders, images or histogram files (from `chromasift histogram`) to learn from.
+    #[arg(required = true)]
+    pub inputs: Vec<PathBuf>,
+
+    #[command(flatten)]
+    pub settings: ReduceFlags,
+
+    /// The palette document to write.
+    #[arg(short = 'o', long = "out", value_name = "FILE")]
+    pub out: PathBuf,
+}
+
+/// Flags of `apply`.
+#[derive(Debug, Args, Clone)]
+pub struct ApplyArgs {
+    /// Image to map onto the palette.
+    pub input: PathBuf,
+
+    /// Palette document (from `learn`, `reduce` or `batch --shared`).
+    #[arg(long, value_name = "FILE")]
+    pub palette: PathBuf,
+
+    #[command(flatten)]
+    pub settings: ReduceFlags,
+
+    /// Output folder (created if missing).
+    #[arg(short = 'o', long = "out", default_value = ".", value_name = "DIR")]
+    pub out: PathBuf,
+
+    /// Print the palette document on standard output.
+    #[arg(long)]
+    pub json: bool,
+}
+
+/// Flags of `histogram`.
+#[derive(Debug, Args, Clone)]
+pub struct HistogramArgs {
+    /// Folders or images to summarise.
+    #[arg(required = true)]
+    pub inputs: Vec<PathBuf>,
+
+    /// The histogram file to write.
+    #[arg(short = 'o', long = "out", value_name = "FILE")]
+    pub out: PathBuf,
+
+    /// Refuse images with more pixels than this.
+    #[arg(long = "max-pixels", default_value_t = Limits::default().max_pixels, value_name = "N")]
+    pub max_pixels: u64,
 }
 
 #[cfg(test)]
@@ -375,24 +509,24 @@ mod tests {
 
     #[test]
     fn each_flag_parses() {
-        assert_eq!(reduce(&["-k", "5"]).k, 5);
-        assert_eq!(reduce(&["--k", "7"]).k, 7);
+        assert_eq!(reduce(&["-k", "5"]).settings.k, 5);
+        assert_eq!(reduce(&["--k", "7"]).settings.k, 7);
         assert_eq!(reduce(&["-o", "x"]).out, PathBuf::from("x"));
         assert_eq!(reduce(&["--out", "y"]).out, PathBuf::from("y"));
-        assert_eq!(reduce(&["--mode", "soft"]).mode, Mode::Soft);
-        assert_eq!(reduce(&["--beta", "0.02"]).beta, Beta::Fixed(0.02));
-        assert_eq!(reduce(&["--beta", "auto"]).beta, Beta::Auto);
-        assert_eq!(reduce(&["--space", "oklab"]).space, Space::Oklab);
-        assert_eq!(reduce(&["--seed", "3"]).seed, 3);
-        assert_eq!(reduce(&["--restarts", "4"]).restarts, 4);
-        assert_eq!(reduce(&["--max-iter", "9"]).max_iter, 9);
-        assert_eq!(reduce(&["--tolerance", "0.01"]).tolerance, 0.01);
+        assert_eq!(reduce(&["--mode", "soft"]).settings.mode, Mode::Soft);
+        assert_eq!(reduce(&["--beta", "0.02"]).settings.beta, Beta::Fixed(0.02));
+        assert_eq!(reduce(&["--beta", "auto"]).settings.beta, Beta::Auto);
+        assert_eq!(reduce(&["--space", "oklab"]).settings.space, Space::Oklab);
+        assert_eq!(reduce(&["--seed", "3"]).settings.seed, 3);
+        assert_eq!(reduce(&["--restarts", "4"]).settings.restarts, 4);
+        assert_eq!(reduce(&["--max-iter", "9"]).settings.max_iter, 9);
+        assert_eq!(reduce(&["--tolerance", "0.01"]).settings.tolerance, 0.01);
         assert_eq!(
-            reduce(&["--dither", "floyd-steinberg"]).dither,
+            reduce(&["--dither", "floyd-steinberg"]).settings.dither,
             Dither::FloydSteinberg
         );
-        assert_eq!(reduce(&["--max-pixels", "100"]).max_pixels, 100);
-        assert!(reduce(&["--uncertainty-raw"]).uncertainty_raw);
+        assert_eq!(reduce(&["--max-pixels", "100"]).settings.max_pixels, 100);
+        assert!(reduce(&["--uncertainty-raw"]).settings.uncertainty_raw);
         assert!(reduce(&["--json"]).json);
     }
 

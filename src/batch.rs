@@ -1,0 +1,663 @@
+//! Folders of images: `batch` (each image its own palette, or one shared palette),
+//! `learn` (a palette from many images or histogram files), the histogram file format
+//! that lets a large archive be summarised in shards, and the batch report.
+
+use crate::error::{Error, Result};
+use crate::histogram::{self, Histogram};
+use crate::output::{OutputSet, TEMP_PREFIX};
+use crate::raster::{self, Pixels};
+use crate::reduce::{self, fnv1a, FixedPalette, PaletteDocument, ReduceOptions, SourceStamp};
+use rayon::prelude::*;
+use serde::{Deserialize, Serialize};
+use std::path::{Path, PathBuf};
+use std::sync::atomic::{AtomicBool, AtomicUsize, Ordering};
+use std::time::Instant;
+
+/// File endings read as images (case-insensitive).
+pub const IMAGE_EXTENSIONS: [&str; 8] = ["png", "jpg", "jpeg", "tif", "tiff", "webp", "bmp", "gif"];
+
+/// Name of the shared palette written by `batch --shared`.
+pub const SHARED_PALETTE: &str = "shared.palette.json";
+
+/// Outcome of one file.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "lowercase")]
+pub enum Status {
+    /// Reduced now.
+    Ok,
+    /// Outputs were already up to date.
+    Skipped,
+    /// Could not be reduced (see `error`).
+    Failed,
+    /// Not started because the run was interrupted.
+    Interrupted,
+}
+
+/// One row of the batch report.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct FileReport {
+    /// Path relative to the input folder.
+    pub input: String,
+    pub status: Status,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub error: Option<String>,
+    pub colors: Option<usize>,
+    pub mean_delta_e2000: Option<f64>,
+    pub seconds: f64,
+}
+
+/// Totals of a batch.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Totals {
+    pub files: usize,
+    pub ok: usize,
+    pub skipped: usize,
+    pub failed: usize,
+    pub interrupted: usize,
+    pub not_images: usize,
+    pub seconds: f64,
+}
+
+/// `batch-report.json`.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct BatchReport {
+    pub tool_version: String,
+    pub seed: u64,
+    pub shared_palette: Option<String>,
+    pub files: Vec<FileReport>,
+    pub skipped_not_images: Vec<String>,
+    pub totals: Totals,
+}
+
+/// Settings of a batch.
+#[derive(Debug, Clone)]
+pub struct BatchOptions {
+    pub reduce: ReduceOptions,
+    /// One palette for all images, fitted on their merged histograms.
+    pub shared: bool,
+    /// Images processed at once (worker threads). Default: the number of cores.
+    pub jobs: usize,
+    /// Redo images whose outputs are up to date.
+    pub force: bool,
+    /// Also write `contact-sheet.html`.
+    pub contact_sheet: bool,
+    /// Map every image onto this palette instead of fitting (`batch --palette`).
+    pub palette: Option<FixedPalette>,
+}
+
+/// Images under `dir` (recursively, sorted) and the files that are not images.
+pub fn collect_images(dir: &Path) -> Result<(Vec<PathBuf>, Vec<PathBuf>)> {
+    let meta = std::fs::metadata(dir).map_err(|source| Error::Open {
+        path: dir.into(),
+        source,
+    })?;
+    if !meta.is_dir() {
+        return Err(Error::output(dir, "is not a folder"));
+    }
+    let mut images = Vec::new();
+    let mut others = Vec::new();
+    let mut stack = vec![dir.to_path_buf()];
+    while let Some(d) = stack.pop() {
+        let rd = std::fs::read_dir(&d).map_err(|source| Error::Open {
+            path: d.clone(),
+            source,
+        })?;
+        for e in rd.flatten() {
+            let p = e.path();
+            let name = e.file_name().to_string_lossy().into_owned();
+            if name.starts_with('.') {
+                continue;
+            }
+            match e.file_type() {
+                Ok(t) if t.is_dir() => stack.push(p),
+                Ok(t) if t.is_file() => {
+                    let ext = p
+                        .extension()
+                        .and_then(|x| x.to_str())
+                        .unwrap_or("")
+                        .to_ascii_lowercase();
+                    if IMAGE_EXTENSIONS.contains(&ext.as_str()) {
+                        images.push(p);
+                    } else {
+                        others.push(p);
+                    }
+                }
+                _ => {}
+            }
+        }
+    }
+    images.sort();
+    others.sort();
+    Ok((images, others))
+}
+
+/// `path` with symbolic links and `..` resolved, also when its last parts do not exist yet.
+fn resolved(path: &Path) -> PathBuf {
+    let abs = std::path::absolute(path).unwrap_or_else(|_| path.to_path_buf());
+    let mut existing = abs.clone();
+    let mut rest = Vec::new();
+    while !existing.exists() {
+        match (
+            existing.file_name().map(|n| n.to_os_string()),
+            existing.parent(),
+        ) {
+            (Some(n), Some(p)) => {
+                rest.push(n);
+                existing = p.to_path_buf();
+            }
+            _ => break,
+        }
+    }
+    let mut out = std::fs::canonicalize(&existing).unwrap_or(existing);
+    for n in rest.into_iter().rev() {
+        out.push(n);
+    }
+    out
+}
+
+/// Refuses an output folder inside (or equal to) the input folder.
+pub fn check_out_not_inside(input_dir: &Path, out: &Path) -> Result<()> {
+    let i = resolved(input_dir);
+    let o = resolved(out);
+    if o.starts_with(&i) {
+        return Err(Error::output(
+            out,
+            format!(
+                "the output folder is inside the input folder {}; choose one outside it",
+                input_dir.display()
+            ),
+        ));
+    }
+    Ok(())
+}
+
+/// Removes temporary files left by an interrupted earlier run.
+pub fn remove_stale_temporaries(out: &Path) {
+    let mut stack = vec![out.to_path_buf()];
+    while let Some(d) = stack.pop() {
+        let Ok(rd) = std::fs::read_dir(&d) else {
+            continue;
+        };
+        for e in rd.flatten() {
+            let p = e.path();
+            match e.file_type() {
+                Ok(t) if t.is_dir() => stack.push(p),
+                Ok(t)
+                    if t.is_file() && e.file_name().to_string_lossy().starts_with(TEMP_PREFIX) =>
+                {
+                    let _ = std::fs::remove_file(p);
+                }
+                _ => {}
+            }
+        }
+    }
+}
+
+/// Are the outputs of `input` in `out_dir` complete and made from this file with these settings?
+pub fn up_to_date(
+    input: &Path,
+    out_dir: &Path,
+    opts: &ReduceOptions,
+    fixed: Option<&FixedPalette>,
+) -> bool {
+    let Ok(stem) = reduce::stem_of(input) else {
+        return false;
+    };
+    let names = reduce::output_names(&stem);
+    let needed = if opts.uncertainty_raw { 5 } else { 4 };
+    if !names[..needed].iter().all(|n| out_dir.join(n).is_file()) {
+        return false;
+    }
+    let Ok(bytes) = std::fs::read(out_dir.join(&names[1])) else {
+        return false;
+    };
+    let Ok(doc) = serde_json::from_slice::<PaletteDocument>(&bytes) else {
+        return false;
+    };
+    doc.settings_fingerprint.as_deref() == Some(opts.fingerprint(fixed).as_str())
+        && doc.source.is_some()
+        && doc.source == SourceStamp::of(input)
+}
+
+/// Histogram of one image file (8-bit images merge with 8-bit ones; 16-bit images are
+/// brought to 8 bits so that a whole folder shares one table).
+pub fn histogram_of_file(path: &Path, opts: &ReduceOptions) -> Result<Histogram> {
+    let img = raster::decode(path, &opts.limits)?;
+    let rgba8: Vec<u8> = match img.pixels {
+        Pixels::Rgba8(p) => p,
+        Pixels::Rgba16(p) => p.iter().map(|&v| ((v as u32 + 128) / 257) as u8).collect(),
+    };
+    Ok(histogram::from_rgba8(&rgba8).histogram)
+}
+
+/// Progress callback: (done, total).
+pub type Progress<'a> = &'a (dyn Fn(usize, usize) + Sync);
+
+/// Runs a batch over `input_dir` into `out` (see the `batch` command).
+pub fn run_batch(
+    input_dir: &Path,
+    out: &Path,
+    opts: &BatchOptions,
+    stop: &AtomicBool,
+    progress: Progress,
+) -> Result<BatchReport> {
+    let t0 = Instant::now();
+    opts.reduce.kmeans_params().check()?;
+    check_out_not_inside(input_dir, out)?;
+    let (images, others) = collect_images(input_dir)?;
+    std::fs::create_dir_all(out)
+        .map_err(|e| Error::output(out, format!("cannot create output folder: {e}")))?;
+    remove_stale_temporaries(out);
+    let pool = rayon::ThreadPoolBuilder::new()
+        .num_threads(opts.jobs.max(1))
+        .build()
+        .map_err(|e| Error::Data(format!("cannot start worker threads: {e}")))?;
+    let rel = |p: &Path| {
+        p.strip_prefix(input_dir)
+            .unwrap_or(p)
+            .to_string_lossy()
+            .into_owned()
+    };
+    let done = AtomicUsize::new(0);
+    let mut early_failures: Vec<Option<String>> = vec![None; images.len()];
+
+    // Shared palette: merge every image's histogram, fit once.
+    let fixed = if let Some(p) = &opts.palette {
+        Some(p.clone())
+    } else if opts.shared {
+        let hists: Vec<Result<Histogram>> = pool.install(|| {
+            images
+                .par_iter()
+                .map(|p| {
+                    if stop.load(Ordering::Relaxed) {
+                        return Err(Error::Data("interrupted".into()));
+                    }
+                    histogram_of_file(p, &opts.reduce)
+                })
+                .collect()
+        });
+        let mut ok = Vec::new();
+        for (i, h) in hists.into_iter().enumerate() {
+            match h {
+                Ok(h) => ok.push(h),
+                Err(e) => early_failures[i] = Some(one_line(&e.to_string())),
+            }
+        }
+        let merged = Histogram::merge(&ok).ok_or_else(|| {
+            Error::Data(format!(
+                "{}: no image could be read to learn a shared palette",
+                input_dir.display()
+            ))
+        })?;
+        let doc = reduce::learn_palette(&merged, &opts.reduce)?;
+        let mut set = OutputSet::prepare(out, &[])?;
+        let json = serde_json::to_string_pretty(&doc).expect("document serialises");
+        set.write_bytes(SHARED_PALETTE, format!("{json}\n").as_bytes())?;
+        set.commit()?;
+        Some(FixedPalette::from_document(&doc).map_err(Error::Data)?)
+    } else {
+        None
+    };
+
+    let total = images.len();
+    let rows: Vec<FileReport> = pool.install(|| {
+        images
+            .par_iter()
+            .enumerate()
+            .map(|(i, p)| {
+                let t = Instant::now();
+                let input = rel(p);
+                let row = |status, error, colors, de| FileReport {
+                    input: input.clone(),
+                    status,
+                    error,
+                    colors,
+                    mean_delta_e2000: de,
+                    seconds: t.elapsed().as_secs_f64(),
+                };
+                let r = if let Some(e) = &early_failures[i] {
+                    row(Status::Failed, Some(e.clone()), None, None)
+                } else if stop.load(Ordering::Relaxed) {
+                    row(Status::Interrupted, None, None, None)
+                } else {
+                    let sub = p
+                        .parent()
+                        .and_then(|d| d.strip_prefix(input_dir).ok())
+                        .unwrap_or(Path::new(""));
+                    let out_dir = out.join(sub);
+                    if !opts.force && up_to_date(p, &out_dir, &opts.reduce, fixed.as_ref()) {
+                        let doc: Option<PaletteDocument> = reduce::stem_of(p)
+                            .ok()
+                            .and_then(|s| {
+                                std::fs::read(out_dir.join(format!("{s}.palette.json"))).ok()
+                            })
+                            .and_then(|b| serde_json::from_slice(&b).ok());
+                        row(
+                            Status::Skipped,
+                            None,
+                            doc.as_ref().map(|d| d.k),
+                            doc.as_ref().map(|d| d.mean_delta_e2000),
+                        )
+                    } else {
+                        match reduce::reduce_file_with(
+                            p,
+                            &out_dir,
+                            &opts.reduce,
+                            fixed.as_ref(),
+                            true,
+                        ) {
+                            Ok(rep) => row(
+                                Status::Ok,
+                                None,
+                                Some(rep.document.k),
+                                Some(rep.document.mean_delta_e2000),
+                            ),
+                            Err(e) => {
+                                row(Status::Failed, Some(one_line(&e.to_string())), None, None)
+                            }
+                        }
+                    }
+                };
+                progress(done.fetch_add(1, Ordering::Relaxed) + 1, total);
+                r
+            })
+            .collect()
+    });
+    let count = |s: Status| rows.iter().filter(|r| r.status == s).count();
+    let report = BatchReport {
+        tool_version: crate::TOOL_VERSION.into(),
+        seed: opts.reduce.seed,
+        shared_palette: opts.shared.then(|| SHARED_PALETTE.to_string()),
+        skipped_not_images: others.iter().map(|p| rel(p)).collect(),
+        totals: Totals {
+            files: rows.len(),
+            ok: count(Status::Ok),
+            skipped: count(Status::Skipped),
+            failed: count(Status::Failed),
+            interrupted: count(Status::Interrupted),
+            not_images: others.len(),
+            seconds: t0.elapsed().as_secs_f64(),
+        },
+        files: rows,
+    };
+    let mut set = OutputSet::prepare(out, &[])?;
+    let json = serde_json::to_string_pretty(&report).expect("report serialises");
+    set.write_bytes("batch-report.json", format!("{json}\n").as_bytes())?;
+    set.write_bytes("batch-report.csv", report_csv(&report).as_bytes())?;
+    if opts.contact_sheet {
+        set.write_bytes(
+            "contact-sheet.html",
+            contact_sheet(&report, input_dir, out).as_bytes(),
+        )?;
+    }
+    set.commit()?;
+    Ok(report)
+}
+
+/// A message on one line (decoder messages sometimes hold line breaks).
+pub fn one_line(s: &str) -> String {
+    s.split_whitespace().collect::<Vec<_>>().join(" ")
+}
+
+fn csv_field(s: &str) -> String {
+    if s.contains([',', '"', '\n']) {
+        format!("\"{}\"", s.replace('"', "\"\""))
+    } else {
+        s.to_string()
+    }
+}
+
+/// `batch-report.csv`: one row per file, then a totals row.
+pub fn report_csv(r: &BatchReport) -> String {
+    let mut s = String::from("input,status,error,colors,mean_delta_e2000,seconds\n");
+    for f in &r.files {
+        s.push_str(&format!(
+            "{},{},{},{},{},{:.3}\n",
+            csv_field(&f.input),
+            serde_json::to_value(f.status).unwrap().as_str().unwrap(),
+            csv_field(f.error.as_deref().unwrap_or("")),
+            f.colors.map(|c| c.to_string()).unwrap_or_default(),
+            f.mean_delta_e2000
+                .map(|d| format!("{d:.4}"))
+                .unwrap_or_default(),
+            f.seconds
+        ));
+    }
+    let t = &r.totals;
+    s.push_str(&format!(
+        "TOTAL,ok {} skipped {} failed {} interrupted {},,,,{:.3}\n",
+        t.ok, t.skipped, t.failed, t.interrupted, t.seconds
+    ));
+    s
+}
+
+fn html_escape(s: &str) -> String {
+    s.replace('&', "&amp;")
+        .replace('<', "&lt;")
+        .replace('>', "&gt;")
+        .replace('"', "&quot;")
+}
+
+/// `contact-sheet.html`: before and after side by side, each image's palette strip and ΔE2000.
+pub fn contact_sheet(r: &BatchReport, input_dir: &Path, out: &Path) -> String {
+    let src_root = resolved(input_dir);
+    let mut s = String::from(
+        "<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\"><title>chromasift batch</title>\n<style>\
+         body{font-family:sans-serif;margin:1em;background:#f6f6f4}.card{display:inline-block;vertical-align:top;margin:6px;padding:6px;background:#fff;border:1px solid #ddd}\
+         .card img{width:180px;height:auto;margin-right:4px}.strip{display:flex;height:14px;margin-top:4px}.strip span{flex-grow:1}\
+         .failed{color:#a00}small{color:#555}</style></head><body>\n",
+    );
+    s.push_str(&format!(
+        "<h1>{} images</h1><p>{} reduced, {} up to date, {} failed</p>\n",
+        r.totals.files, r.totals.ok, r.totals.skipped, r.totals.failed
+    ));
+    for f in &r.files {
+        let rel = Path::new(&f.input);
+        let sub = rel.parent().unwrap_or(Path::new(""));
+        let stem = rel
+            .file_stem()
+            .map(|x| x.to_string_lossy().into_owned())
+            .unwrap_or_default();
+        s.push_str("<div class=\"card\">");
+        if f.status == Status::Failed || f.status == Status::Interrupted {
+            s.push_str(&format!(
+                "<div class=\"failed\">{}: {}</div>",
+                html_escape(&f.input),
+                html_escape(f.error.as_deref().unwrap_or("not run"))
+            ));
+        } else {
+            let src = src_root.join(rel);
+            let reduced = sub.join(format!("{stem}.reduced.png"));
+            s.push_str(&format!(
+                "<img src=\"file://{}\" alt=\"before\"><img src=\"{}\" alt=\"after\"><br><small>{} &middot; {} colours &middot; mean &Delta;E2000 {:.2}</small>",
+                html_escape(&src.to_string_lossy()),
+                html_escape(&reduced.to_string_lossy()),
+                html_escape(&f.input),
+                f.colors.unwrap_or(0),
+                f.mean_delta_e2000.unwrap_or(0.0)
+            ));
+            let doc: Option<PaletteDocument> =
+                std::fs::read(out.join(sub).join(format!("{stem}.palette.json")))
+                    .ok()
+                    .and_then(|b| serde_json::from_slice(&b).ok());
+            if let Some(d) = doc {
+                s.push_str("<div class=\"strip\">");
+                for c in &d.colors {
+                    s.push_str(&format!(
+                        "<span style=\"background:{};flex-grow:{:.4}\" title=\"{} {:.1}%\"></span>",
+                        c.hex,
+                        c.share.max(0.002),
+                        c.hex,
+                        c.share * 100.0
+                    ));
+                }
+                s.push_str("</div>");
+            }
+        }
+        s.push_str("</div>\n");
+    }
+    s.push_str("</body></html>\n");
+    s
+}
+
+// ---- Histogram files ----
+
+/// First bytes of a histogram file: "CSHIST", a NUL, and the format version (1).
+pub const HIST_MAGIC: &[u8; 8] = b"CSHIST\x00\x01";
+
+/// Encodes a histogram file (all integers little-endian):
+/// magic (8) | depth u8 | 7 zero bytes | entries u64 | entries × (r, g, b u16; count u64) |
+/// FNV-1a 64 checksum of everything before it (u64).
+pub fn encode_histogram(h: &Histogram) -> Vec<u8> {
+    let mut v = Vec::with_capacity(32 + h.len() * 14);
+    v.extend_from_slice(HIST_MAGIC);
+    v.push(h.depth);
+    v.extend_from_slice(&[0u8; 7]);
+    v.extend_from_slice(&(h.len() as u64).to_le_bytes());
+    for (c, &n) in h.colours.iter().zip(&h.counts) {
+        for ch in c {
+            v.extend_from_slice(&ch.to_le_bytes());
+        }
+        v.extend_from_slice(&n.to_le_bytes());
+    }
+    let sum = fnv1a(&v);
+    v.extend_from_slice(&sum.to_le_bytes());
+    v
+}
+
+/// Decodes and checks a histogram file; `path` is used in messages.
+pub fn decode_histogram(bytes: &[u8], path: &Path) -> Result<Histogram> {
+    let bad = |m: &str| Error::Decode {
+        path: path.into(),
+        message: format!("not a valid chromasift histogram file: {m}"),
+    };
+    if bytes.len() < 8 || &bytes[..6] != b"CSHIST" {
+        return Err(bad("wrong first bytes"));
+    }
+    if bytes[6..8] != HIST_MAGIC[6..8] {
+        return Err(bad(&format!(
+            "format version {} is not supported (this tool reads version 1)",
+            bytes[7]
+        )));
+    }
+    if bytes.len() < 32 {
+        return Err(bad("file is too short"));
+    }
+    let depth = bytes[8];
+    if depth != 8 && depth != 16 {
+        return Err(bad("sample depth must be 8 or 16"));
+    }
+    let n = u64::from_le_bytes(bytes[16..24].try_into().unwrap());
+    let expected = n.checked_mul(14).and_then(|b| b.checked_add(32));
+    if expected != Some(bytes.len() as u64) {
+        return Err(bad("size does not match the entry count (truncated?)"));
+    }
+    let body = &bytes[..bytes.len() - 8];
+    let sum = u64::from_le_bytes(bytes[bytes.len() - 8..].try_into().unwrap());
+    if fnv1a(body) != sum {
+        return Err(bad("checksum mismatch (damaged file)"));
+    }
+    let mut colours = Vec::with_capacity(n as usize);
+    let mut counts = Vec::with_capacity(n as usize);
+    for e in body[24..].chunks_exact(14) {
+        let c = [
+            u16::from_le_bytes([e[0], e[1]]),
+            u16::from_le_bytes([e[2], e[3]]),
+            u16::from_le_bytes([e[4], e[5]]),
+        ];
+        let count = u64::from_le_bytes(e[6..14].try_into().unwrap());
+        if depth == 8 && c.iter().any(|&v| v > 255) {
+            return Err(bad("an 8-bit entry holds a value above 255"));
+        }
+        if count == 0 {
+            return Err(bad("an entry has a zero count"));
+        }
+        if colours.last().is_some_and(|l: &[u16; 3]| *l >= c) {
+            return Err(bad("entries are not in strictly increasing colour order"));
+        }
+        colours.push(c);
+        counts.push(count);
+    }
+    Ok(Histogram {
+        depth,
+        colours,
+        counts,
+    })
+}
+
+/// Merged histogram of every input: folders (their images), image files and histogram files.
+pub fn gather_histograms(inputs: &[PathBuf], opts: &ReduceOptions) -> Result<Histogram> {
+    let mut files = Vec::new();
+    for i in inputs {
+        if i.is_dir() {
+            files.extend(collect_images(i)?.0);
+        } else {
+            files.push(i.clone());
+        }
+    }
+    if files.is_empty() {
+        return Err(Error::Data(
+            "no images or histogram files were given".into(),
+        ));
+    }
+    let parts: Vec<Result<Histogram>> = files
+        .par_iter()
+        .map(|f| {
+            let bytes = std::fs::read(f).map_err(|source| Error::Open {
+                path: f.clone(),
+                source,
+            })?;
+            if bytes.starts_with(b"CSHIST") {
+                decode_histogram(&bytes, f)
+            } else {
+                histogram_of_file(f, opts)
+            }
+        })
+        .collect();
+    let parts = parts.into_iter().collect::<Result<Vec<_>>>()?;
+    Histogram::merge(&parts).ok_or_else(|| {
+        Error::Data("the histograms mix 8- and 16-bit tables and cannot be merged".into())
+    })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn sample() -> Histogram {
+        Histogram {
+            depth: 8,
+            colours: vec![[0, 0, 1], [3, 2, 1], [255, 0, 0]],
+            counts: vec![5, 1, 9],
+        }
+    }
+
+    #[test]
+    fn histogram_file_round_trip() {
+        let h = sample();
+        let bytes = encode_histogram(&h);
+        assert_eq!(bytes.len(), 32 + 3 * 14);
+        assert_eq!(decode_histogram(&bytes, Path::new("a.hist")).unwrap(), h);
+    }
+
+    #[test]
+    fn corrupt_or_foreign_histogram_files_are_refused() {
+        let good = encode_histogram(&sample());
+        let p = Path::new("part.hist");
+        let check = |b: &[u8], m: &str| {
+            let e = decode_histogram(b, p).unwrap_err().to_string();
+            assert!(e.contains("part.hist") && e.contains(m), "{e}");
+        };
+        check(b"PNG....", "first bytes");
+        let mut v = good.clone();
+        v[7] = 2;
+        check(&v, "version 2");
+        check(&good[..good.len() - 3], "size");
+        let mut v = good.clone();
+        v[30] ^= 1;
+        check(&v, "checksum");
+        let mut v = good.clone();
+        v[8] = 12;
+        check(&v, "depth");
+    }
+}

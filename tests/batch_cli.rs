@@ -1,0 +1,423 @@
+//! `batch`, `learn`, `apply` and `histogram` end to end on an invented folder of images.
+
+mod common;
+
+use common::{fixture, run, stderr};
+use serde_json::Value;
+use std::collections::BTreeMap;
+use std::path::{Path, PathBuf};
+
+/// Every file under `dir` with its bytes.
+fn tree(dir: &Path) -> BTreeMap<PathBuf, Vec<u8>> {
+    let mut out = BTreeMap::new();
+    let mut stack = vec![dir.to_path_buf()];
+    while let Some(d) = stack.pop() {
+        for e in std::fs::read_dir(&d).unwrap().flatten() {
+            let p = e.path();
+            if p.is_dir() {
+                stack.push(p);
+            } else {
+                out.insert(
+                    p.strip_prefix(dir).unwrap().to_path_buf(),
+                    std::fs::read(&p).unwrap(),
+                );
+            }
+        }
+    }
+    out
+}
+
+/// An invented shoot: two demo images, a small gradient in a sub-folder, a corrupt JPEG
+/// and a text file.
+fn shoot(root: &Path) -> PathBuf {
+    let s = root.join("shoot");
+    std::fs::create_dir_all(s.join("day2/raw")).unwrap();
+    std::fs::copy(fixture("demo/harbour-poster.png"), s.join("poster.png")).unwrap();
+    std::fs::copy(fixture("demo/valley-aerial.png"), s.join("day2/aerial.png")).unwrap();
+    common::write_rgb(
+        &s.join("day2/raw/ramp.png"),
+        64,
+        16,
+        &common::gradient(64, 16, [10, 30, 90], [250, 220, 120]),
+    );
+    std::fs::write(
+        s.join("day2/broken.jpg"),
+        b"\xff\xd8\xff\xe0 not really a jpeg",
+    )
+    .unwrap();
+    std::fs::write(s.join("notes.txt"), b"shot list").unwrap();
+    s
+}
+
+fn report(out: &Path) -> Value {
+    serde_json::from_slice(&std::fs::read(out.join("batch-report.json")).unwrap()).unwrap()
+}
+
+fn status_of(r: &Value, input: &str) -> String {
+    r["files"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|f| f["input"] == input)
+        .unwrap()["status"]
+        .as_str()
+        .unwrap()
+        .to_string()
+}
+
+#[test]
+fn batch_mirrors_reports_survives_a_bad_file_and_resumes() {
+    let root = tempfile::tempdir().unwrap();
+    let s = shoot(root.path());
+    let before = tree(&s);
+    let out = root.path().join("reduced");
+    let o = run(
+        &[
+            "batch",
+            s.to_str().unwrap(),
+            "-k",
+            "5",
+            "-o",
+            out.to_str().unwrap(),
+        ],
+        &[],
+    );
+    assert_eq!(o.status.code(), Some(1), "one file failed: {}", stderr(&o));
+    assert_eq!(tree(&s), before, "the input tree is untouched");
+    for f in [
+        "poster.reduced.png",
+        "poster.palette.json",
+        "day2/aerial.uncertainty.png",
+        "day2/raw/ramp.palette.csv",
+    ] {
+        assert!(out.join(f).is_file(), "{f}");
+    }
+    let r = report(&out);
+    assert_eq!(status_of(&r, "poster.png"), "ok");
+    assert_eq!(status_of(&r, "day2/broken.jpg"), "failed");
+    let broken = r["files"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|f| f["input"] == "day2/broken.jpg")
+        .unwrap();
+    assert!(broken["error"].as_str().unwrap().contains("broken.jpg"));
+    assert_eq!(r["totals"]["ok"], 3);
+    assert_eq!(r["totals"]["failed"], 1);
+    assert_eq!(r["skipped_not_images"], serde_json::json!(["notes.txt"]));
+    let csv = std::fs::read_to_string(out.join("batch-report.csv")).unwrap();
+    assert!(csv.starts_with("input,status,error,colors,mean_delta_e2000,seconds\n"));
+    assert_eq!(csv.lines().count(), 1 + 4 + 1);
+    assert!(!tree(&out)
+        .keys()
+        .any(|k| k.to_string_lossy().contains(".chromasift-tmp-")));
+
+    // A rerun skips what is up to date; a changed input is redone.
+    let o = run(
+        &[
+            "batch",
+            s.to_str().unwrap(),
+            "-k",
+            "5",
+            "-o",
+            out.to_str().unwrap(),
+        ],
+        &[],
+    );
+    assert_eq!(o.status.code(), Some(1));
+    let r = report(&out);
+    assert_eq!(r["totals"]["skipped"], 3);
+    std::fs::copy(fixture("demo/harbour-poster.png"), s.join("poster.png")).unwrap();
+    let later = std::time::SystemTime::now() + std::time::Duration::from_secs(5);
+    std::fs::File::options()
+        .write(true)
+        .open(s.join("poster.png"))
+        .unwrap()
+        .set_modified(later)
+        .unwrap();
+    run(
+        &[
+            "batch",
+            s.to_str().unwrap(),
+            "-k",
+            "5",
+            "-o",
+            out.to_str().unwrap(),
+        ],
+        &[],
+    );
+    let r = report(&out);
+    assert_eq!(status_of(&r, "poster.png"), "ok");
+    assert_eq!(status_of(&r, "day2/aerial.png"), "skipped");
+    // Other settings: everything is redone; --force redoes all.
+    run(
+        &[
+            "batch",
+            s.to_str().unwrap(),
+            "-k",
+            "4",
+            "-o",
+            out.to_str().unwrap(),
+        ],
+        &[],
+    );
+    assert_eq!(report(&out)["totals"]["ok"], 3);
+    run(
+        &[
+            "batch",
+            s.to_str().unwrap(),
+            "-k",
+            "4",
+            "--force",
+            "-o",
+            out.to_str().unwrap(),
+        ],
+        &[],
+    );
+    assert_eq!(report(&out)["totals"]["ok"], 3);
+}
+
+#[test]
+fn output_inside_the_input_is_refused() {
+    let root = tempfile::tempdir().unwrap();
+    let s = shoot(root.path());
+    let before = tree(&s);
+    let o = run(
+        &[
+            "batch",
+            s.to_str().unwrap(),
+            "-o",
+            s.join("out").to_str().unwrap(),
+        ],
+        &[],
+    );
+    assert_eq!(o.status.code(), Some(2));
+    assert!(
+        stderr(&o).contains("inside the input folder"),
+        "{}",
+        stderr(&o)
+    );
+    assert_eq!(tree(&s), before);
+}
+
+fn palette_hexes(doc: &Value) -> Vec<String> {
+    doc["colors"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|c| c["hex"].as_str().unwrap().to_string())
+        .collect()
+}
+
+#[test]
+fn shared_palette_learn_apply_and_histogram_shards_agree() {
+    let root = tempfile::tempdir().unwrap();
+    let s = shoot(root.path());
+    std::fs::remove_file(s.join("day2/broken.jpg")).unwrap();
+    let out = root.path().join("shared");
+    let o = run(
+        &[
+            "batch",
+            s.to_str().unwrap(),
+            "-k",
+            "6",
+            "--shared",
+            "--jobs",
+            "2",
+            "-o",
+            out.to_str().unwrap(),
+        ],
+        &[],
+    );
+    assert!(o.status.success(), "{}", stderr(&o));
+    let shared: Value =
+        serde_json::from_slice(&std::fs::read(out.join("shared.palette.json")).unwrap()).unwrap();
+    let hexes = palette_hexes(&shared);
+    assert_eq!(hexes.len(), 6);
+    // Every output uses only the shared colours.
+    for img in [
+        "poster.reduced.png",
+        "day2/aerial.reduced.png",
+        "day2/raw/ramp.reduced.png",
+    ] {
+        let px = common::read_rgba(&out.join(img));
+        for p in px.pixels().filter(|p| p[3] > 0) {
+            let h = chromasift::colour::hex([p[0], p[1], p[2]]);
+            assert!(
+                hexes.contains(&h),
+                "{img} uses {h}, not in the shared palette"
+            );
+        }
+    }
+    // The same palette from `learn` on the folder, and from histogram shards made by
+    // separate processes (standing in for the nodes of a cluster).
+    let learned = root.path().join("brand.palette.json");
+    let o = run(
+        &[
+            "learn",
+            s.to_str().unwrap(),
+            "-k",
+            "6",
+            "-o",
+            learned.to_str().unwrap(),
+        ],
+        &[],
+    );
+    assert!(o.status.success(), "{}", stderr(&o));
+    let part_a = root.path().join("a.hist");
+    let part_b = root.path().join("b.hist");
+    let mut kids = vec![
+        std::process::Command::new(env!("CARGO_BIN_EXE_chromasift"))
+            .args([
+                "histogram",
+                s.join("poster.png").to_str().unwrap(),
+                "-o",
+                part_a.to_str().unwrap(),
+            ])
+            .stderr(std::process::Stdio::null())
+            .spawn()
+            .unwrap(),
+        std::process::Command::new(env!("CARGO_BIN_EXE_chromasift"))
+            .args([
+                "histogram",
+                s.join("day2").to_str().unwrap(),
+                "-o",
+                part_b.to_str().unwrap(),
+            ])
+            .stderr(std::process::Stdio::null())
+            .spawn()
+            .unwrap(),
+    ];
+    for k in kids.iter_mut() {
+        assert!(k.wait().unwrap().success());
+    }
+    let whole = root.path().join("whole.hist");
+    assert!(run(
+        &[
+            "histogram",
+            s.to_str().unwrap(),
+            "-o",
+            whole.to_str().unwrap()
+        ],
+        &[]
+    )
+    .status
+    .success());
+    let a = chromasift::batch::decode_histogram(&std::fs::read(&part_a).unwrap(), &part_a).unwrap();
+    let b = chromasift::batch::decode_histogram(&std::fs::read(&part_b).unwrap(), &part_b).unwrap();
+    let w = chromasift::batch::decode_histogram(&std::fs::read(&whole).unwrap(), &whole).unwrap();
+    assert_eq!(
+        chromasift::histogram::Histogram::merge(&[a, b]).unwrap(),
+        w,
+        "merged shards equal the whole"
+    );
+    let from_parts = root.path().join("parts.palette.json");
+    assert!(run(
+        &[
+            "learn",
+            part_a.to_str().unwrap(),
+            part_b.to_str().unwrap(),
+            "-k",
+            "6",
+            "-o",
+            from_parts.to_str().unwrap()
+        ],
+        &[]
+    )
+    .status
+    .success());
+    let l1: Value = serde_json::from_slice(&std::fs::read(&learned).unwrap()).unwrap();
+    let l2: Value = serde_json::from_slice(&std::fs::read(&from_parts).unwrap()).unwrap();
+    assert_eq!(palette_hexes(&l1), hexes);
+    assert_eq!(l1, l2);
+    // apply with the learned palette equals the shared batch output, byte for byte.
+    let applied = root.path().join("applied");
+    let o = run(
+        &[
+            "apply",
+            s.join("poster.png").to_str().unwrap(),
+            "--palette",
+            learned.to_str().unwrap(),
+            "-k",
+            "6",
+            "-o",
+            applied.to_str().unwrap(),
+        ],
+        &[],
+    );
+    assert!(o.status.success(), "{}", stderr(&o));
+    for f in ["poster.reduced.png", "poster.uncertainty.png"] {
+        assert_eq!(
+            std::fs::read(applied.join(f)).unwrap(),
+            std::fs::read(out.join(f)).unwrap(),
+            "{f}"
+        );
+    }
+}
+
+#[test]
+fn one_and_two_jobs_give_the_same_outputs() {
+    let root = tempfile::tempdir().unwrap();
+    let s = shoot(root.path());
+    let mut trees = Vec::new();
+    for jobs in ["1", "2"] {
+        let out = root.path().join(format!("j{jobs}"));
+        run(
+            &[
+                "batch",
+                s.to_str().unwrap(),
+                "-k",
+                "5",
+                "--jobs",
+                jobs,
+                "-o",
+                out.to_str().unwrap(),
+            ],
+            &[],
+        );
+        let mut t = tree(&out);
+        t.remove(Path::new("batch-report.json"));
+        t.remove(Path::new("batch-report.csv"));
+        trees.push(t);
+    }
+    assert!(trees[0].len() >= 12);
+    assert_eq!(trees[0], trees[1]);
+}
+
+#[test]
+fn corrupt_or_foreign_histogram_files_are_refused() {
+    let root = tempfile::tempdir().unwrap();
+    let fake = root.path().join("part.hist");
+    std::fs::write(&fake, b"CSHIST\x00\x01 truncated").unwrap();
+    let o = run(
+        &[
+            "learn",
+            fake.to_str().unwrap(),
+            "-o",
+            root.path().join("p.json").to_str().unwrap(),
+        ],
+        &[],
+    );
+    assert_eq!(o.status.code(), Some(2));
+    assert!(
+        stderr(&o).contains("part.hist") && stderr(&o).contains("histogram file"),
+        "{}",
+        stderr(&o)
+    );
+    assert!(!root.path().join("p.json").exists());
+    let bad_palette = root.path().join("pal.json");
+    std::fs::write(&bad_palette, b"{\"not\": \"a palette\"}").unwrap();
+    let o = run(
+        &[
+            "apply",
+            fixture("demo/harbour-poster.png").to_str().unwrap(),
+            "--palette",
+            bad_palette.to_str().unwrap(),
+            "-o",
+            root.path().join("o").to_str().unwrap(),
+        ],
+        &[],
+    );
+    assert_eq!(o.status.code(), Some(2));
+    assert!(stderr(&o).contains("pal.json") && stderr(&o).contains("not a palette document"));
+}
