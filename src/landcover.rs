@@ -555,7 +555,7 @@ pub fn landcover_file(
             f[d] = ((f[d] as f64 - offset[d]) * factor[d]) as f32;
         }
     };
-    sample.par_chunks_mut(dim).for_each(|f| scale_row(f));
+    sample.par_chunks_mut(dim).for_each(scale_row);
     phases.mark("pass 1 (statistics, sample)");
     let data = Dataset::new(&sample, dim, None)?;
     let model = fit(&data, &params)?;
@@ -724,7 +724,6 @@ pub fn landcover_file(
                 result = geotiff::write_u8_band(wr, w, h, geo, Some("0"), &mut send);
                 Ok(())
             })?;
-            drop(send);
             drop(tx);
             let unc_done = writer.join().expect("uncertainty writer thread");
             result?;

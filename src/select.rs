@@ -315,9 +315,9 @@ pub fn greedy_start(t: &CostTable, k: usize, forced: &[usize]) -> Vec<usize> {
             .into_par_iter()
             .map(|c| {
                 let mut acc = vec![0.0f64; cands.len()];
-                for e in c * CHUNK..((c + 1) * CHUNK).min(t.n) {
+                let (lo, hi) = (c * CHUNK, ((c + 1) * CHUNK).min(t.n));
+                for (e, &cur) in (lo..hi).zip(&current[lo..hi]) {
                     let row = t.row(e);
-                    let cur = current[e];
                     let w = t.weights[e];
                     for (a, &j) in acc.iter_mut().zip(&cands) {
                         *a += w * cur.min(row[j]) as f64;

@@ -266,7 +266,7 @@ fn shared_palette_learn_apply_and_histogram_shards_agree() {
     assert!(o.status.success(), "{}", stderr(&o));
     let part_a = root.path().join("a.hist");
     let part_b = root.path().join("b.hist");
-    let mut kids = vec![
+    let mut kids = [
         std::process::Command::new(env!("CARGO_BIN_EXE_chromasift"))
             .args([
                 "histogram",
