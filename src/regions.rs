@@ -195,9 +195,8 @@ fn join_rows<I: PixelIndex>(
 }
 
 /// Calls `visit(label, size, first)` for every 8-connected region ([`FIXED`] excluded), in
-/// raster order of the regions' first pixels, and `runs_of(start, end, size)` (if given) for
-/// every run of pixels `start..end` with the size of its region. `labels.len() == width *
-/// height`. `band_rows` rows are labelled together (see [`label_band_rows`]).
+/// raster order of the regions' first pixels. `labels.len() == width * height`. `band_rows`
+/// rows are labelled together (see [`label_band_rows`]).
 ///
 /// Run-based labelling: every row is cut into runs of one label, and each run is joined
 /// (union-find) to the runs of its label in the row above that touch it. Bands of rows are cut
@@ -209,7 +208,6 @@ fn components<I: PixelIndex>(
     height: usize,
     band_rows: usize,
     mut visit: impl FnMut(u16, usize, usize),
-    runs_of: Option<&mut dyn FnMut(usize, usize, usize)>,
 ) {
     let n = labels.len();
     if n == 0 {
@@ -307,13 +305,6 @@ fn components<I: PixelIndex>(
         parent[r] = I::from_usize(id);
         size[id] = I::from_usize(size[id].get() + start[r + 1].get() - start[r].get());
     }
-    if let Some(run) = runs_of {
-        for r in 0..runs {
-            if label(r) != FIXED {
-                run(start[r].get(), start[r + 1].get(), size[parent[r].get()].get());
-            }
-        }
-    }
     drop(parent);
     drop(start);
     for (f, s) in first.iter().zip(&size) {
@@ -330,9 +321,9 @@ fn for_each_region(
 ) {
     let band_rows = label_band_rows(width);
     if labels.len() < u32::MAX as usize {
-        components::<u32>(labels, width, height, band_rows, visit, None)
+        components::<u32>(labels, width, height, band_rows, visit)
     } else {
-        components::<usize>(labels, width, height, band_rows, visit, None)
+        components::<usize>(labels, width, height, band_rows, visit)
     }
 }
 
@@ -354,65 +345,41 @@ pub fn regions(labels: &[u16], width: usize, height: usize) -> Vec<(u16, usize, 
 // Merging small regions
 // ---------------------------------------------------------------------------------------------
 
-/// Flood-fill state reused across regions. Two bits per pixel (3 MB each for 24 megapixels, so
-/// they mostly stay in cache): `visited`, which each fill clears again afterwards, and `large`,
-/// set only on pixels known to be in a region of at least `min_area` pixels. Such a pixel is never
-/// relabelled and its region only grows, so the bit stays true.
+/// Flood-fill state reused across regions: a visited bit per pixel (3 MB for 24 megapixels, so
+/// it mostly stays in cache; each fill clears its own bits afterwards), the explicit stack, the
+/// region's pixels and its border counts.
 struct Flood {
     visited: Vec<u64>,
-    large: Vec<u64>,
     stack: Vec<usize>,
     pixels: Vec<usize>,
-    /// (neighbouring label, number of 8-neighbour pixel pairs between the region and it,
-    /// whether one of those neighbours is known to be in a large region).
-    borders: Vec<(u16, usize, bool)>,
-}
-
-#[inline]
-fn bit(bits: &[u64], p: usize) -> bool {
-    bits[p / 64] >> (p % 64) & 1 != 0
-}
-
-#[inline]
-fn set_bit(bits: &mut [u64], p: usize) {
-    bits[p / 64] |= 1 << (p % 64);
+    /// (neighbouring label, number of 8-neighbour pixel pairs between the region and it).
+    borders: Vec<(u16, usize)>,
 }
 
 impl Flood {
     fn new(n: usize) -> Self {
         Flood {
             visited: vec![0; n.div_ceil(64)],
-            large: vec![0; n.div_ceil(64)],
             stack: Vec::new(),
             pixels: Vec::new(),
             borders: Vec::new(),
         }
     }
 
-    /// Marks pixels `start..end` as in a large region.
-    fn mark_large(&mut self, start: usize, end: usize) {
-        if start >= end {
-            return;
-        }
-        let (first, last) = (start / 64, (end - 1) / 64);
-        let low = u64::MAX << (start % 64);
-        let high = u64::MAX >> (63 - (end - 1) % 64);
-        if first == last {
-            self.large[first] |= low & high;
-        } else {
-            self.large[first] |= low;
-            for word in &mut self.large[first + 1..last] {
-                *word = u64::MAX;
-            }
-            self.large[last] |= high;
-        }
+    #[inline]
+    fn seen(&self, p: usize) -> bool {
+        self.visited[p / 64] >> (p % 64) & 1 != 0
+    }
+
+    #[inline]
+    fn mark(&mut self, p: usize) {
+        self.visited[p / 64] |= 1 << (p % 64);
     }
 
     /// Fills the current region (pixels of the current label of `seed`, 8-connected) from
     /// `seed`. If it has fewer than `min_area` pixels, returns true with its pixels in
-    /// `self.pixels` and its border counts in `self.borders`. As soon as it reaches `min_area`
-    /// pixels, or a pixel known to be in a large region, it stops and returns false.
-    /// `labels[seed] != FIXED`.
+    /// `self.pixels` and its border counts in `self.borders`; as soon as it reaches `min_area`
+    /// pixels, stops and returns false. `labels[seed] != FIXED`.
     fn small_region(
         &mut self,
         labels: &[u16],
@@ -424,14 +391,11 @@ impl Flood {
         let small = self.fill(labels, width, height, seed, min_area);
         for &p in &self.pixels {
             self.visited[p / 64] = 0;
-            if !small {
-                set_bit(&mut self.large, p);
-            }
         }
         small
     }
 
-    /// The fill of [`Flood::small_region`]; every pixel it marks visited is in `self.pixels`. A
+    /// The fill of [`Flood::small_region`]; every pixel it marks is in `self.pixels`. A
     /// neighbour with the region's label is inside the region and one with another label is
     /// outside, so each border pair (inside, outside) is counted once, when its inside pixel is
     /// taken off the stack.
@@ -448,10 +412,7 @@ impl Flood {
         self.stack.clear();
         self.pixels.clear();
         self.borders.clear();
-        if bit(&self.large, seed) {
-            return false;
-        }
-        set_bit(&mut self.visited, seed);
+        self.mark(seed);
         self.stack.push(seed);
         self.pixels.push(seed);
         if self.pixels.len() >= min_area {
@@ -462,11 +423,8 @@ impl Flood {
             for &q in &nb[..k] {
                 let m = labels[q];
                 if m == l {
-                    if !bit(&self.visited, q) {
-                        if bit(&self.large, q) {
-                            return false;
-                        }
-                        set_bit(&mut self.visited, q);
+                    if !self.seen(q) {
+                        self.mark(q);
                         self.pixels.push(q);
                         if self.pixels.len() >= min_area {
                             return false;
@@ -474,13 +432,9 @@ impl Flood {
                         self.stack.push(q);
                     }
                 } else if m != FIXED {
-                    let large = bit(&self.large, q);
-                    match self.borders.iter_mut().find(|b| b.0 == m) {
-                        Some(entry) => {
-                            entry.1 += 1;
-                            entry.2 |= large;
-                        }
-                        None => self.borders.push((m, 1, large)),
+                    match self.borders.iter_mut().find(|(lab, _)| *lab == m) {
+                        Some(entry) => entry.1 += 1,
+                        None => self.borders.push((m, 1)),
                     }
                 }
             }
@@ -488,13 +442,12 @@ impl Flood {
         true
     }
 
-    /// The neighbouring label with the longest border (ties → the lower label), if any, and
-    /// whether the region joins a large region by taking it.
-    fn best_neighbour(&self) -> Option<(u16, bool)> {
+    /// The neighbouring label with the longest border (ties → the lower label), if any.
+    fn best_neighbour(&self) -> Option<u16> {
         self.borders
             .iter()
             .max_by(|a, b| a.1.cmp(&b.1).then(b.0.cmp(&a.0)))
-            .map(|&(l, _, large)| (l, large))
+            .map(|&(l, _)| l)
     }
 }
 
@@ -547,15 +500,8 @@ fn merge_impl<I: PixelIndex>(
     height: usize,
     min_area: usize,
 ) -> MergeStats {
-    // (size, first pixel) of every region below min_area, smallest first; the pixels of the
-    // other regions are known to be in large regions.
+    // (size, first pixel) of every region below min_area, smallest first.
     let mut small: Vec<(I, I)> = Vec::new();
-    let mut flood = Flood::new(labels.len());
-    let mut large_runs = |start: usize, end: usize, size: usize| {
-        if size >= min_area {
-            flood.mark_large(start, end);
-        }
-    };
     components::<I>(
         labels,
         width,
@@ -566,7 +512,6 @@ fn merge_impl<I: PixelIndex>(
                 small.push((I::from_usize(size), I::from_usize(first)));
             }
         },
-        Some(&mut large_runs),
     );
     let mut stats = MergeStats {
         passes: 1,
@@ -575,8 +520,28 @@ fn merge_impl<I: PixelIndex>(
     if small.is_empty() {
         return stats;
     }
-    small.sort_unstable();
+    // Order by (size, first pixel). The list is in raster order of first pixels, so a stable
+    // counting sort by size does it in linear time when min_area is not too large.
+    if min_area <= small.len() {
+        let mut start = vec![0usize; min_area + 1];
+        for &(size, _) in &small {
+            start[size.get() + 1] += 1;
+        }
+        for k in 1..start.len() {
+            start[k] += start[k - 1];
+        }
+        let mut sorted = small.clone();
+        for &entry in &small {
+            let k = &mut start[entry.0.get()];
+            sorted[*k] = entry;
+            *k += 1;
+        }
+        small = sorted;
+    } else {
+        small.sort_unstable();
+    }
 
+    let mut flood = Flood::new(labels.len());
     // First pixels of the regions found isolated; one region may be found from several seeds.
     let mut isolated: Vec<usize> = Vec::new();
     for &(_, seed) in &small {
@@ -584,12 +549,9 @@ fn merge_impl<I: PixelIndex>(
             continue;
         }
         match flood.best_neighbour() {
-            Some((target, joins_large)) => {
+            Some(target) => {
                 for &p in &flood.pixels {
                     labels[p] = target;
-                    if joins_large {
-                        set_bit(&mut flood.large, p);
-                    }
                 }
                 stats.merged += 1;
             }
@@ -1458,10 +1420,10 @@ mod tests {
             let want = reference_regions(&l, w, h);
             for band_rows in [1, 2, 3, 7, h] {
                 let mut got = Vec::new();
-                components::<u32>(&l, w, h, band_rows, |a, b, c| got.push((a, b, c)), None);
+                components::<u32>(&l, w, h, band_rows, |a, b, c| got.push((a, b, c)));
                 assert_eq!(got, want, "seed {seed} band_rows {band_rows}");
                 let mut got = Vec::new();
-                components::<usize>(&l, w, h, band_rows, |a, b, c| got.push((a, b, c)), None);
+                components::<usize>(&l, w, h, band_rows, |a, b, c| got.push((a, b, c)));
                 assert_eq!(got, want, "seed {seed} band_rows {band_rows}");
             }
         }

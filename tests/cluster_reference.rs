@@ -113,13 +113,14 @@ fn soft_responsibilities_at_beta_one_over_sigma2_are_the_gaussian_posterior() {
     let data = Dataset::new(&rows, 2, None).unwrap();
     let flat: Vec<f64> = true_means.iter().flatten().copied().collect();
 
-    // Exact: with the true means, r at β = 1/σ² is the closed form.
+    // Exact up to single-precision exponentials: with the true means, r at β = 1/σ² is the
+    // closed form.
     let r = responsibility_matrix(&data, &flat, 1.0 / (sigma * sigma));
     for i in (0..data.len()).step_by(37) {
         let x = data.row(i);
         let p = posterior([x[0] as f64, x[1] as f64], &true_means, sigma);
         for k in 0..3 {
-            assert!((r[i * 3 + k] - p[k]).abs() < 1e-12);
+            assert!((r[i * 3 + k] - p[k]).abs() < 1e-6);
         }
     }
 

