@@ -155,8 +155,8 @@ fn synthetic_photo(width: u32, height: u32, seed: u64) -> Vec<u8> {
                 let (cov, u) = s.cover(fx, fy);
                 if cov > 0.0 {
                     let light = s.shade * u;
-                    for d in 0..3 {
-                        c[d] = c[d] * (1.0 - cov) + (s.colour[d] + light) * cov;
+                    for (cd, sd) in c.iter_mut().zip(s.colour) {
+                        *cd = *cd * (1.0 - cov) + (sd + light) * cov;
                     }
                 }
             }

@@ -244,20 +244,8 @@ fn main() -> ExitCode {
                 opts.kmeans_params().check()?;
                 let hist = batch::gather_histograms(&args.inputs, &opts)?;
                 let doc = reduce::learn_palette(&hist, &opts)?;
-                let dir = args
-                    .out
-                    .parent()
-                    .filter(|p| !p.as_os_str().is_empty())
-                    .unwrap_or(std::path::Path::new("."));
-                let name = args
-                    .out
-                    .file_name()
-                    .and_then(|n| n.to_str())
-                    .ok_or_else(|| chromasift::Error::output(&args.out, "not a file name"))?;
-                let mut set = chromasift::output::OutputSet::prepare(dir, &[])?;
                 let json = serde_json::to_string_pretty(&doc).expect("document serialises");
-                set.write_bytes(name, format!("{json}\n").as_bytes())?;
-                set.commit()?;
+                chromasift::output::write_file(&args.out, format!("{json}\n").as_bytes())?;
                 Ok(doc)
             })();
             match result {
@@ -295,19 +283,7 @@ fn main() -> ExitCode {
             };
             let result = (|| -> Result<u64, chromasift::Error> {
                 let hist = batch::gather_histograms(&args.inputs, &opts)?;
-                let dir = args
-                    .out
-                    .parent()
-                    .filter(|p| !p.as_os_str().is_empty())
-                    .unwrap_or(std::path::Path::new("."));
-                let name = args
-                    .out
-                    .file_name()
-                    .and_then(|n| n.to_str())
-                    .ok_or_else(|| chromasift::Error::output(&args.out, "not a file name"))?;
-                let mut set = chromasift::output::OutputSet::prepare(dir, &[])?;
-                set.write_bytes(name, &batch::encode_histogram(&hist))?;
-                set.commit()?;
+                chromasift::output::write_file(&args.out, &batch::encode_histogram(&hist))?;
                 Ok(hist.total())
             })();
             match result {

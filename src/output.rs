@@ -142,6 +142,21 @@ impl OutputSet {
     }
 }
 
+/// Writes one file atomically (temporary file in its folder, then renamed).
+pub fn write_file(path: &Path, bytes: &[u8]) -> Result<PathBuf> {
+    let dir = path
+        .parent()
+        .filter(|p| !p.as_os_str().is_empty())
+        .unwrap_or(Path::new("."));
+    let name = path
+        .file_name()
+        .and_then(|n| n.to_str())
+        .ok_or_else(|| Error::output(path, "not a file name"))?;
+    let mut set = OutputSet::prepare(dir, &[])?;
+    set.write_bytes(name, bytes)?;
+    Ok(set.commit()?.remove(0))
+}
+
 /// One output being written (see [`OutputSet::begin`]).
 #[derive(Debug)]
 pub struct PendingOutput {
