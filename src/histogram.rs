@@ -39,6 +39,15 @@ impl Histogram {
     pub fn total(&self) -> u64 {
         self.counts.iter().sum()
     }
+    /// Linear sRGB (0..1) of an entry colour at this table's depth.
+    pub fn linear(&self, c: &[u16; 3]) -> [f64; 3] {
+        if self.depth == 8 {
+            crate::colour::srgb8_to_linear([c[0] as u8, c[1] as u8, c[2] as u8])
+        } else {
+            crate::colour::srgb16_to_linear(*c)
+        }
+    }
+
     /// Counts as f64 weights for clustering.
     pub fn weights(&self) -> Vec<f64> {
         self.counts.iter().map(|&c| c as f64).collect()

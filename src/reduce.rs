@@ -217,11 +217,7 @@ pub fn entry_features(h: &histogram::Histogram, space: Space) -> (Vec<f32>, Vec<
         .par_iter()
         .with_min_len(4096)
         .map(|c| {
-            let lin = if h.depth == 8 {
-                colour::srgb8_to_linear([c[0] as u8, c[1] as u8, c[2] as u8])
-            } else {
-                colour::srgb16_to_linear(*c)
-            };
+            let lin = h.linear(c);
             let lab = colour::linear_to_lab(lin);
             let f = match space {
                 Space::Cielab => lab,

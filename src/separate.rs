@@ -4,7 +4,7 @@
 
 use crate::colour::{self, adapt, delta_e2000};
 use crate::error::{Error, Result};
-use crate::histogram::{self, TRANSPARENT};
+use crate::histogram;
 use crate::inks::{self, Ink};
 use crate::limits::Limits;
 use crate::output::OutputSet;
@@ -219,14 +219,7 @@ pub fn separate_image(
         .colours
         .par_iter()
         .with_min_len(4096)
-        .map(|c| {
-            let lin = if hist.depth == 8 {
-                colour::srgb8_to_linear([c[0] as u8, c[1] as u8, c[2] as u8])
-            } else {
-                colour::srgb16_to_linear(*c)
-            };
-            adapt::linear_to_lab_d50(lin)
-        })
+        .map(|c| adapt::linear_to_lab_d50(hist.linear(c)))
         .collect();
     let weights = hist.weights();
     let substrate_lab = opts.substrate.map(adapt::srgb8_to_lab_d50);
@@ -273,18 +266,9 @@ pub fn separate_image(
             }
         })
         .collect();
-    let mut labels: Vec<u16> = ih
-        .pixel_entry
-        .par_iter()
-        .with_min_len(1 << 14)
-        .map(|&e| {
-            if e == TRANSPARENT {
-                FIXED
-            } else {
-                entry_label[e as usize]
-            }
-        })
-        .collect();
+    // Transparent pixels map to `render::NO_INDEX`, which is `FIXED`.
+    const _: () = assert!(crate::render::NO_INDEX == FIXED);
+    let mut labels: Vec<u16> = crate::render::remap(&ih.pixel_entry, &entry_label);
     let (w, h) = (img.width as usize, img.height as usize);
     ph.mark("labels");
     let merge = regions::merge_small_regions(&mut labels, w, h, opts.min_area);
