@@ -68,6 +68,8 @@ pub enum ParamsError {
     KTooLarge { got: usize, max: usize },
     #[error("beta must be a positive finite number (got {0})")]
     BadBeta(f64),
+    #[error("shift tolerance must be a finite number >= 0 (got {0})")]
+    BadShiftTolerance(f64),
     #[error("tolerance must be a finite number >= 0 (got {0})")]
     BadTolerance(f64),
     #[error("max-iter must be at least 1 (got {0})")]

@@ -87,8 +87,26 @@ impl Histogram {
 /// Uses a dense 2²⁴ table (zero-initialised lazily by the OS, so only pages of colours
 /// present are touched) and a presence bitmap, so counting is one pass at memory speed.
 pub fn from_rgba8(rgba: &[u8]) -> IndexedHistogram {
-    let mut table = vec![0u32; 1 << 24];
-    let mut present = vec![0u64; 1 << 18];
+    // The 64 MiB count table is kept per thread between calls (and cleared by touching
+    // only the entries used), so a batch of small images does not pay for allocating
+    // and faulting in a fresh table each time.
+    let (mut table, mut present) = TABLES
+        .with(|t| t.borrow_mut().take())
+        .unwrap_or_else(|| (vec![0u32; 1 << 24], vec![0u64; 1 << 18]));
+    let result = count_rgba8(rgba, &mut table, &mut present);
+    TABLES.with(|t| *t.borrow_mut() = Some((table, present)));
+    result
+}
+
+thread_local! {
+    /// Cleared count table and presence bitmap reused by [`from_rgba8`].
+    #[allow(clippy::type_complexity)]
+    static TABLES: std::cell::RefCell<Option<(Vec<u32>, Vec<u64>)>> =
+        const { std::cell::RefCell::new(None) };
+}
+
+/// Counts into all-zero `table`/`present` and leaves them all-zero again.
+fn count_rgba8(rgba: &[u8], table: &mut [u32], present: &mut [u64]) -> IndexedHistogram {
     for p in rgba.chunks_exact(4) {
         if p[3] == 0 {
             continue;
@@ -99,8 +117,8 @@ pub fn from_rgba8(rgba: &[u8]) -> IndexedHistogram {
     }
     let mut colours = Vec::new();
     let mut counts = Vec::new();
-    for (wi, &word) in present.iter().enumerate() {
-        let mut bits = word;
+    for (wi, word) in present.iter_mut().enumerate() {
+        let mut bits = std::mem::take(word);
         while bits != 0 {
             let b = bits.trailing_zeros() as usize;
             bits &= bits - 1;
@@ -127,6 +145,9 @@ pub fn from_rgba8(rgba: &[u8]) -> IndexedHistogram {
                 };
             }
         });
+    for c in &colours {
+        table[(c[0] as usize) << 16 | (c[1] as usize) << 8 | c[2] as usize] = 0;
+    }
     IndexedHistogram {
         histogram: Histogram {
             depth: 8,

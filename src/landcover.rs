@@ -133,6 +133,9 @@ pub struct LandcoverOptions {
     pub restarts: usize,
     pub max_iter: usize,
     pub tolerance: f64,
+    /// Means' summed squared move (relative to the data's mean variance) that ends the
+    /// hard phase. Default: 1e-4.
+    pub shift_tolerance: f64,
     /// Pixels in the fitting sample (seeded, one per grid cell). Default: 2 000 000.
     pub sample: usize,
     pub limits: Limits,
@@ -153,6 +156,7 @@ impl Default for LandcoverOptions {
             restarts: p.restarts,
             max_iter: p.max_iter,
             tolerance: p.tolerance,
+            shift_tolerance: p.shift_tolerance,
             sample: 2_000_000,
             limits: Limits::default(),
         }
@@ -168,6 +172,7 @@ impl LandcoverOptions {
             .restarts(self.restarts)
             .max_iter(self.max_iter)
             .tolerance(self.tolerance)
+            .shift_tolerance(self.shift_tolerance)
     }
 }
 

@@ -34,6 +34,9 @@ pub struct ReduceOptions {
     pub max_iter: usize,
     /// Relative objective change that ends the iterations. Default: 1e-6.
     pub tolerance: f64,
+    /// Hard phase stops when the means' summed squared move is at most this times the
+    /// data's mean variance per dimension. Default: 1e-4.
+    pub shift_tolerance: f64,
     /// Dithering of the reduced image. Default: none.
     pub dither: Dither,
     /// Decode limits.
@@ -55,6 +58,7 @@ impl ReduceOptions {
             restarts: p.restarts,
             max_iter: p.max_iter,
             tolerance: p.tolerance,
+            shift_tolerance: p.shift_tolerance,
             dither: Dither::None,
             limits: Limits::default(),
             uncertainty_raw: false,
@@ -70,6 +74,7 @@ impl ReduceOptions {
             .restarts(self.restarts)
             .max_iter(self.max_iter)
             .tolerance(self.tolerance)
+            .shift_tolerance(self.shift_tolerance)
     }
 }
 
@@ -98,6 +103,8 @@ pub struct ReduceSettings {
     pub restarts: usize,
     pub max_iter: usize,
     pub tolerance: f64,
+    #[serde(default)]
+    pub shift_tolerance: f64,
     pub dither: String,
 }
 
@@ -173,7 +180,7 @@ impl ReduceOptions {
     /// Fingerprint of the settings that shape the outputs (and of a fixed palette, if any).
     pub fn fingerprint(&self, fixed: Option<&FixedPalette>) -> String {
         let text = format!(
-            "{}|{}|{:?}|{:?}|{}|{}|{}|{}|{}|{}|{}|{:?}",
+            "{}|{}|{:?}|{:?}|{}|{}|{}|{}|{}|{}|{}|{}|{:?}",
             crate::TOOL_VERSION,
             self.k,
             self.mode,
@@ -183,6 +190,7 @@ impl ReduceOptions {
             self.restarts,
             self.max_iter,
             self.tolerance,
+            self.shift_tolerance,
             self.dither.name(),
             self.uncertainty_raw,
             fixed.map(|f| (f.colours.clone(), f.beta)),
@@ -272,6 +280,7 @@ pub fn reduce_image_with(
     opts: &ReduceOptions,
     fixed: Option<&FixedPalette>,
 ) -> Result<Reduction> {
+    let mut ph = crate::trace::Phases::start("reduce");
     let IndexedHistogram {
         histogram: hist,
         pixel_entry,
@@ -279,6 +288,7 @@ pub fn reduce_image_with(
         Pixels::Rgba8(p) => histogram::from_rgba8(p),
         Pixels::Rgba16(p) => histogram::from_rgba16(p),
     };
+    ph.mark("histogram");
     let alpha = if img.has_alpha {
         let a = img.alpha8();
         a.iter().any(|&v| v != 255).then_some(a)
@@ -323,7 +333,6 @@ fn reduce_indexed(
             "every pixel is fully transparent; there is nothing to reduce".into(),
         ));
     }
-    ph.mark("histogram");
     let weights = hist.weights();
     let (rows, labs) = entry_features(hist, opts.space);
     ph.mark("features");
@@ -360,6 +369,7 @@ fn reduce_indexed(
         (means, None, 0.0, 0, labels, vec![0.0f32; hist.len()])
     } else {
         let model = fit(&data, &params)?;
+        ph.mark("fit");
         let a = model.assign(&data);
         (
             model.means.clone(),
@@ -371,7 +381,7 @@ fn reduce_indexed(
         )
     };
 
-    ph.mark("fit and assign");
+    ph.mark("assign");
     // Quantise the means to sRGB8; clusters that land on the same colour share a slot.
     let k_means = means.len() / 3;
     let mut slot_of_colour: HashMap<[u8; 3], u16> = HashMap::new();
@@ -523,6 +533,7 @@ fn reduce_indexed(
             restarts: opts.restarts,
             max_iter: opts.max_iter,
             tolerance: opts.tolerance,
+            shift_tolerance: opts.shift_tolerance,
             dither: opts.dither.name().into(),
         },
         source: None,
@@ -616,8 +627,6 @@ pub fn write_reduction(
     let names = output_names(stem);
     let mut written = Vec::new();
     written.push(set.write(&names[0], |w| encode_reduced(red, w))?);
-    let json = serde_json::to_string_pretty(&red.document).expect("palette document serialises");
-    written.push(set.write_bytes(&names[1], format!("{json}\n").as_bytes())?);
     written.push(set.write_bytes(&names[2], palette_csv(&red.document).as_bytes())?);
     let grey = render::uncertainty_u8(&red.pixel_entry, &red.entry_uncertainty);
     written.push(set.write(&names[3], |w| {
@@ -629,6 +638,11 @@ pub fn write_reduction(
             raster::write_f32_tiff(w, red.width, red.height, &f)
         })?);
     }
+    // The palette document goes last: files are renamed into place in the order they
+    // were written, so a set whose palette.json carries the current settings fingerprint
+    // is complete even if the process was killed part-way through the renames.
+    let json = serde_json::to_string_pretty(&red.document).expect("palette document serialises");
+    written.push(set.write_bytes(&names[1], format!("{json}\n").as_bytes())?);
     Ok(written)
 }
 
@@ -668,9 +682,11 @@ pub fn reduce_file_with(
     stamp: bool,
 ) -> Result<ReduceReport> {
     let t0 = Instant::now();
+    let mut ph = crate::trace::Phases::start("reduce file");
     opts.kmeans_params().check()?;
     let stem = stem_of(input)?;
     let img = raster::decode(input, &opts.limits)?;
+    ph.mark("decode");
     let mut set = OutputSet::prepare(out_dir, &[input])?;
     for name in output_names(&stem) {
         set.check_target(&name)?;
@@ -688,8 +704,11 @@ pub fn reduce_file_with(
         red.document.source = SourceStamp::of(input);
         red.document.settings_fingerprint = Some(opts.fingerprint(fixed));
     }
+    ph.mark("reduce in memory");
     write_reduction(&red, &stem, &mut set, opts.uncertainty_raw)?;
+    ph.mark("encode and write");
     let outputs = set.commit()?;
+    ph.mark("rename into place");
     Ok(ReduceReport {
         input: input.into(),
         outputs,

@@ -2,30 +2,9 @@
 
 mod common;
 
-use common::{fixture, run, stderr};
+use common::{fixture, run, stderr, tree};
 use serde_json::Value;
-use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};
-
-/// Every file under `dir` with its bytes.
-fn tree(dir: &Path) -> BTreeMap<PathBuf, Vec<u8>> {
-    let mut out = BTreeMap::new();
-    let mut stack = vec![dir.to_path_buf()];
-    while let Some(d) = stack.pop() {
-        for e in std::fs::read_dir(&d).unwrap().flatten() {
-            let p = e.path();
-            if p.is_dir() {
-                stack.push(p);
-            } else {
-                out.insert(
-                    p.strip_prefix(dir).unwrap().to_path_buf(),
-                    std::fs::read(&p).unwrap(),
-                );
-            }
-        }
-    }
-    out
-}
 
 /// An invented shoot: two demo images, a small gradient in a sub-folder, a corrupt JPEG
 /// and a text file.

@@ -144,6 +144,11 @@ pub struct LandcoverArgs {
     #[arg(long, default_value_t = 1e-6, value_name = "FRACTION")]
     pub tolerance: f64,
 
+    /// Hard phase also stops when the means' summed squared move in one iteration is at
+    /// most this times the data's mean variance per dimension (0 = off).
+    #[arg(long = "shift-tolerance", default_value_t = 1e-4, value_name = "FRACTION")]
+    pub shift_tolerance: f64,
+
     /// Pixels in the seeded, spatially spread fitting sample (all pixels when the scene is smaller).
     #[arg(long, default_value_t = 2_000_000, value_name = "N")]
     pub sample: usize,
@@ -187,6 +192,7 @@ impl LandcoverArgs {
             restarts: self.restarts,
             max_iter: self.max_iter,
             tolerance: self.tolerance,
+            shift_tolerance: self.shift_tolerance,
             sample: self.sample,
             limits: Limits {
                 max_pixels: self.max_pixels,
@@ -339,6 +345,11 @@ pub struct ReduceFlags {
     #[arg(long, default_value_t = 1e-6, value_name = "FRACTION")]
     pub tolerance: f64,
 
+    /// Hard phase also stops when the means' summed squared move in one iteration is at
+    /// most this times the data's mean variance per dimension (0 = off).
+    #[arg(long = "shift-tolerance", default_value_t = 1e-4, value_name = "FRACTION")]
+    pub shift_tolerance: f64,
+
     /// Dithering of the reduced image.
     #[arg(long, default_value = "none", value_name = "none|floyd-steinberg")]
     pub dither: Dither,
@@ -364,6 +375,7 @@ impl ReduceFlags {
             restarts: self.restarts,
             max_iter: self.max_iter,
             tolerance: self.tolerance,
+            shift_tolerance: self.shift_tolerance,
             dither: self.dither,
             limits: Limits::with_max_pixels(self.max_pixels),
             uncertainty_raw: self.uncertainty_raw,
@@ -521,6 +533,10 @@ mod tests {
         assert_eq!(reduce(&["--restarts", "4"]).settings.restarts, 4);
         assert_eq!(reduce(&["--max-iter", "9"]).settings.max_iter, 9);
         assert_eq!(reduce(&["--tolerance", "0.01"]).settings.tolerance, 0.01);
+        assert_eq!(
+            reduce(&["--shift-tolerance", "0"]).settings.shift_tolerance,
+            0.0
+        );
         assert_eq!(
             reduce(&["--dither", "floyd-steinberg"]).settings.dither,
             Dither::FloydSteinberg

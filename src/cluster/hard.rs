@@ -78,101 +78,205 @@ impl Stats {
     }
 }
 
-fn accumulate(data: &Dataset, labels: &[u32], k: usize) -> Stats {
-    let dim = data.dim();
-    let stride = dim + 2;
-    let partial: Vec<Vec<f64>> = labels
-        .par_chunks(CHUNK)
-        .enumerate()
-        .map(|(c, ls)| {
-            let mut v = vec![0.0f64; k * stride];
-            for (o, &l) in ls.iter().enumerate() {
-                let i = c * CHUNK + o;
-                let w = data.weight(i);
-                if w == 0.0 {
-                    continue;
-                }
-                let x = data.row(i);
-                let base = l as usize * stride;
-                v[base] += w;
-                let mut q = 0.0f64;
-                for (d, &xv) in x.iter().enumerate() {
-                    let xv = xv as f64;
-                    q += xv * xv;
-                    v[base + 2 + d] += w * xv;
-                }
-                v[base + 1] += w * q;
-            }
-            v
-        })
-        .collect();
-    let mut v = vec![0.0f64; k * stride];
-    for p in partial {
+/// Adds row `i` (weight `w`) to the per-cluster statistics `v` under label `l`.
+#[inline(always)]
+fn add_row(v: &mut [f64], stride: usize, l: usize, x: &[f32], w: f64) {
+    if w == 0.0 {
+        return;
+    }
+    let base = l * stride;
+    v[base] += w;
+    let mut q = 0.0f64;
+    for (d, &xv) in x.iter().enumerate() {
+        let xv = xv as f64;
+        q += xv * xv;
+        v[base + 2 + d] += w * xv;
+    }
+    v[base + 1] += w * q;
+}
+
+/// Sums per-chunk results in chunk order (deterministic whatever the thread count).
+fn combine(parts: Vec<(usize, Vec<f64>)>, k: usize, dim: usize) -> (usize, Stats) {
+    let mut v = vec![0.0f64; k * (dim + 2)];
+    let mut changed = 0;
+    for (c, p) in parts {
+        changed += c;
         for (a, b) in v.iter_mut().zip(p) {
             *a += b;
         }
     }
-    Stats { k, dim, v }
+    (changed, Stats { k, dim, v })
 }
 
 /// Full assignment with bounds: labels, upper = distance to own mean, lower = to second.
+/// Returns the number of rows that changed cluster and the statistics of the new labels.
 fn full_pass(
     data: &Dataset,
     means: &[f32],
     labels: &mut [u32],
     upper: &mut [f64],
     lower: &mut [f64],
-) -> usize {
-    let dim = data.dim();
-    labels
+) -> (usize, Stats) {
+    match data.dim() {
+        1 => full_pass_dim(data, 1, means, labels, upper, lower),
+        2 => full_pass_dim(data, 2, means, labels, upper, lower),
+        3 => full_pass_dim(data, 3, means, labels, upper, lower),
+        4 => full_pass_dim(data, 4, means, labels, upper, lower),
+        d => full_pass_dim(data, d, means, labels, upper, lower),
+    }
+}
+
+#[inline(always)]
+fn full_pass_dim(
+    data: &Dataset,
+    dim: usize,
+    means: &[f32],
+    labels: &mut [u32],
+    upper: &mut [f64],
+    lower: &mut [f64],
+) -> (usize, Stats) {
+    let rows = data.rows();
+    let k = means.len() / dim;
+    let stride = dim + 2;
+    let parts: Vec<(usize, Vec<f64>)> = labels
         .par_chunks_mut(CHUNK)
         .zip(upper.par_chunks_mut(CHUNK))
         .zip(lower.par_chunks_mut(CHUNK))
         .enumerate()
         .map(|(c, ((ls, us), lo))| {
             let mut changed = 0usize;
+            let mut v = vec![0.0f64; k * stride];
             for o in 0..ls.len() {
                 let i = c * CHUNK + o;
-                let (b, d1, d2) = nearest_two(data.row(i), means, dim);
+                let x = &rows[i * dim..(i + 1) * dim];
+                let (b, d1, d2) = nearest_two(x, means, dim);
                 if b as u32 != ls[o] {
                     changed += 1;
                 }
                 ls[o] = b as u32;
                 us[o] = (d1 as f64).sqrt();
                 lo[o] = (d2 as f64).sqrt();
+                add_row(&mut v, stride, b, x, data.weight(i));
             }
-            changed
+            (changed, v)
         })
-        .sum()
+        .collect();
+    combine(parts, k, dim)
 }
 
-/// Assignment pass that skips rows whose bounds prove the current mean is nearest.
+/// How far the means moved in the last update, for the bound test of [`bounded_pass`].
+struct Moves {
+    /// Distance each mean moved.
+    shift: Vec<f64>,
+    /// The mean that moved most, and the largest and second-largest moves.
+    most: usize,
+    p1: f64,
+    p2: f64,
+    /// Half the distance from each mean to its nearest other mean.
+    half_gap: Vec<f64>,
+}
+
+impl Moves {
+    fn new(old: &[f64], means: &[f64], means32: &[f32], dim: usize) -> Moves {
+        let k = means.len() / dim;
+        let shift: Vec<f64> = (0..k)
+            .map(|j| {
+                (0..dim)
+                    .map(|d| (means[j * dim + d] - old[j * dim + d]).powi(2))
+                    .sum::<f64>()
+                    .sqrt()
+            })
+            .collect();
+        let (mut p1, mut most, mut p2) = (0.0f64, usize::MAX, 0.0f64);
+        for (j, &p) in shift.iter().enumerate() {
+            if p > p1 {
+                p2 = p1;
+                p1 = p;
+                most = j;
+            } else if p > p2 {
+                p2 = p;
+            }
+        }
+        let half_gap: Vec<f64> = (0..k)
+            .map(|j| {
+                let mj = &means32[j * dim..(j + 1) * dim];
+                (0..k)
+                    .filter(|&o| o != j)
+                    .map(|o| (dist2(mj, &means32[o * dim..(o + 1) * dim]) as f64).sqrt())
+                    .fold(f64::INFINITY, f64::min)
+                    * 0.5
+            })
+            .collect();
+        Moves {
+            shift,
+            most,
+            p1,
+            p2,
+            half_gap,
+        }
+    }
+}
+
+/// One pass that first widens each row's bounds by the last moves of the means, then
+/// skips rows whose bounds prove the current mean is nearest (Hamerly 2010), and adds
+/// every row to the statistics of its label. Returns (rows changed, statistics).
 fn bounded_pass(
     data: &Dataset,
     means: &[f32],
-    half_gap: &[f64],
+    moves: &Moves,
     labels: &mut [u32],
     upper: &mut [f64],
     lower: &mut [f64],
-) -> usize {
-    let dim = data.dim();
-    labels
+) -> (usize, Stats) {
+    // The body is inlined with the dimension as a constant for the common sizes, so
+    // its per-row loops are unrolled (same arithmetic in the same order).
+    match data.dim() {
+        1 => bounded_pass_dim(data, 1, means, moves, labels, upper, lower),
+        2 => bounded_pass_dim(data, 2, means, moves, labels, upper, lower),
+        3 => bounded_pass_dim(data, 3, means, moves, labels, upper, lower),
+        4 => bounded_pass_dim(data, 4, means, moves, labels, upper, lower),
+        5 => bounded_pass_dim(data, 5, means, moves, labels, upper, lower),
+        6 => bounded_pass_dim(data, 6, means, moves, labels, upper, lower),
+        d => bounded_pass_dim(data, d, means, moves, labels, upper, lower),
+    }
+}
+
+#[inline(always)]
+fn bounded_pass_dim(
+    data: &Dataset,
+    dim: usize,
+    means: &[f32],
+    moves: &Moves,
+    labels: &mut [u32],
+    upper: &mut [f64],
+    lower: &mut [f64],
+) -> (usize, Stats) {
+    let rows = data.rows();
+    let k = means.len() / dim;
+    let stride = dim + 2;
+    let parts: Vec<(usize, Vec<f64>)> = labels
         .par_chunks_mut(CHUNK)
         .zip(upper.par_chunks_mut(CHUNK))
         .zip(lower.par_chunks_mut(CHUNK))
         .enumerate()
         .map(|(c, ((ls, us), lo))| {
             let mut changed = 0usize;
+            let mut v = vec![0.0f64; k * stride];
             for o in 0..ls.len() {
                 let i = c * CHUNK + o;
                 let a = ls[o] as usize;
-                let m = half_gap[a].max(lo[o]) * (1.0 - BOUND_MARGIN);
+                let x = &rows[i * dim..(i + 1) * dim];
+                let w = data.weight(i);
+                us[o] += moves.shift[a];
+                lo[o] -= if a == moves.most { moves.p2 } else { moves.p1 };
+                let m = moves.half_gap[a].max(lo[o]) * (1.0 - BOUND_MARGIN);
                 if us[o] < m {
+                    add_row(&mut v, stride, a, x, w);
                     continue;
                 }
-                let x = data.row(i);
                 us[o] = (dist2(x, &means[a * dim..(a + 1) * dim]) as f64).sqrt();
                 if us[o] < m {
+                    add_row(&mut v, stride, a, x, w);
                     continue;
                 }
                 let (b, d1, d2) = nearest_two(x, means, dim);
@@ -182,10 +286,12 @@ fn bounded_pass(
                 ls[o] = b as u32;
                 us[o] = (d1 as f64).sqrt();
                 lo[o] = (d2 as f64).sqrt();
+                add_row(&mut v, stride, b, x, w);
             }
-            changed
+            (changed, v)
         })
-        .sum()
+        .collect();
+    combine(parts, k, dim)
 }
 
 /// Replaces the mean of each empty cluster by the row worst served by the other
@@ -233,32 +339,80 @@ fn reseed_empty(data: &Dataset, means: &mut [f64], empty: &[usize]) {
     }
 }
 
-/// Weighted Lloyd iterations from `init` (`k × dim`) until no row changes cluster,
-/// the relative SSE decrease of an iteration is at most `tolerance`, or `max_iter`.
-/// With `accelerate`, Hamerly bounds skip distance work; the result is the same.
-pub fn lloyd(
-    data: &Dataset,
-    init: &[f32],
-    max_iter: usize,
-    tolerance: f64,
-    accelerate: bool,
-) -> LloydResult {
+/// When [`lloyd`] stops.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Stop {
+    /// Most mean updates.
+    pub max_iter: usize,
+    /// Stop when one iteration lowers the SSE by at most this fraction of it.
+    pub tolerance: f64,
+    /// Stop when the summed squared moves of all means in one update are at most this
+    /// times the mean per-dimension weighted variance of the data (the rule and default,
+    /// 1e-4, that scikit-learn's KMeans uses for its `tol`). 0 turns the rule off.
+    pub shift_tolerance: f64,
+}
+
+impl Stop {
+    /// Run to no change (or `max_iter`): both tolerances off.
+    pub fn exact(max_iter: usize) -> Stop {
+        Stop {
+            max_iter,
+            tolerance: 0.0,
+            shift_tolerance: 0.0,
+        }
+    }
+}
+
+/// Mean over dimensions of the weighted variance of the rows.
+fn mean_variance(data: &Dataset) -> f64 {
+    let dim = data.dim();
+    let total = data.total_weight();
+    if total <= 0.0 {
+        return 0.0;
+    }
+    let stats = combine(
+        data.rows()
+            .par_chunks(CHUNK * dim)
+            .enumerate()
+            .map(|(c, rows)| {
+                let mut v = vec![0.0f64; dim + 2];
+                for (o, x) in rows.chunks_exact(dim).enumerate() {
+                    add_row(&mut v, dim + 2, 0, x, data.weight(c * CHUNK + o));
+                }
+                (0, v)
+            })
+            .collect(),
+        1,
+        dim,
+    )
+    .1;
+    stats.sse() / total / dim as f64
+}
+
+/// Weighted Lloyd iterations from `init` (`k × dim`) until no row changes cluster or a
+/// rule of `stop` holds. With `accelerate`, Hamerly bounds skip distance work; the
+/// result is the same.
+pub fn lloyd(data: &Dataset, init: &[f32], stop: Stop, accelerate: bool) -> LloydResult {
     let dim = data.dim();
     let n = data.len();
     let k = init.len() / dim;
+    let shift_limit = if stop.shift_tolerance > 0.0 {
+        stop.shift_tolerance * mean_variance(data)
+    } else {
+        -1.0
+    };
     let mut means: Vec<f64> = init.iter().map(|&v| v as f64).collect();
     let mut means32 = init.to_vec();
     let mut labels = vec![u32::MAX; n];
     let mut upper = vec![0.0f64; n];
     let mut lower = vec![0.0f64; n];
-    full_pass(data, &means32, &mut labels, &mut upper, &mut lower);
+    let (_, mut stats) = full_pass(data, &means32, &mut labels, &mut upper, &mut lower);
 
     let mut prev_sse = f64::INFINITY;
     let mut iterations = 0;
     let mut converged = false;
-    while iterations < max_iter {
+    while iterations < stop.max_iter {
         iterations += 1;
-        let stats = accumulate(data, &labels, k);
         let sse = stats.sse();
         let old = means.clone();
         let mut empty = Vec::new();
@@ -276,64 +430,27 @@ pub fn lloyd(
         if !empty.is_empty() {
             reseed_empty(data, &mut means, &empty);
         }
-        if empty.is_empty() && prev_sse.is_finite() && prev_sse - sse <= tolerance * prev_sse {
+        if empty.is_empty() && prev_sse.is_finite() && prev_sse - sse <= stop.tolerance * prev_sse
+        {
             converged = true;
             break;
         }
         prev_sse = sse;
-        means32 = to_f32(&means);
-        let changed = if accelerate && empty.is_empty() && k > 1 {
-            // Shifts of each mean, and half the distance from each mean to its nearest other.
-            let shift: Vec<f64> = (0..k)
-                .map(|j| {
-                    (0..dim)
-                        .map(|d| (means[j * dim + d] - old[j * dim + d]).powi(2))
-                        .sum::<f64>()
-                        .sqrt()
-                })
-                .collect();
-            let (mut p1, mut p1j, mut p2) = (0.0f64, usize::MAX, 0.0f64);
-            for (j, &p) in shift.iter().enumerate() {
-                if p > p1 {
-                    p2 = p1;
-                    p1 = p;
-                    p1j = j;
-                } else if p > p2 {
-                    p2 = p;
-                }
+        if empty.is_empty() {
+            let moved: f64 = means.iter().zip(&old).map(|(a, b)| (a - b).powi(2)).sum();
+            if moved <= shift_limit {
+                converged = true;
+                break;
             }
-            upper
-                .par_chunks_mut(CHUNK)
-                .zip(lower.par_chunks_mut(CHUNK))
-                .zip(labels.par_chunks(CHUNK))
-                .for_each(|((us, lo), ls)| {
-                    for o in 0..ls.len() {
-                        let a = ls[o] as usize;
-                        us[o] += shift[a];
-                        lo[o] -= if a == p1j { p2 } else { p1 };
-                    }
-                });
-            let half_gap: Vec<f64> = (0..k)
-                .map(|j| {
-                    let mj = &means32[j * dim..(j + 1) * dim];
-                    (0..k)
-                        .filter(|&o| o != j)
-                        .map(|o| (dist2(mj, &means32[o * dim..(o + 1) * dim]) as f64).sqrt())
-                        .fold(f64::INFINITY, f64::min)
-                        * 0.5
-                })
-                .collect();
-            bounded_pass(
-                data,
-                &means32,
-                &half_gap,
-                &mut labels,
-                &mut upper,
-                &mut lower,
-            )
+        }
+        means32 = to_f32(&means);
+        let (changed, next) = if accelerate && empty.is_empty() && k > 1 {
+            let moves = Moves::new(&old, &means, &means32, dim);
+            bounded_pass(data, &means32, &moves, &mut labels, &mut upper, &mut lower)
         } else {
             full_pass(data, &means32, &mut labels, &mut upper, &mut lower)
         };
+        stats = next;
         if changed == 0 && empty.is_empty() {
             converged = true;
             break;
@@ -373,7 +490,7 @@ mod tests {
         // are 0+2 → {0}, {2,10,12} = 8, then {0,2} = 1 and {10,12} = 11; SSE = 1+1+1+1 = 4.
         let rows = [0.0f32, 2.0, 10.0, 12.0];
         let data = Dataset::new(&rows, 1, None).unwrap();
-        let r = lloyd(&data, &[0.0, 2.0], 100, 0.0, false);
+        let r = lloyd(&data, &[0.0, 2.0], Stop::exact(100), false);
         assert_eq!(r.means, vec![1.0, 11.0]);
         assert_eq!(r.labels, vec![0, 0, 1, 1]);
         assert_eq!(r.sse, 4.0);
@@ -393,15 +510,13 @@ mod tests {
         let a = lloyd(
             &Dataset::new(&rows, 1, Some(&w)).unwrap(),
             &[0.0, 10.0],
-            100,
-            0.0,
+            Stop::exact(100),
             true,
         );
         let b = lloyd(
             &Dataset::new(&expanded, 1, None).unwrap(),
             &[0.0, 10.0],
-            100,
-            0.0,
+            Stop::exact(100),
             true,
         );
         assert_eq!(a.means, b.means);
@@ -422,8 +537,8 @@ mod tests {
         let data = Dataset::new(&rows, 2, None).unwrap();
         for seed in 0..5 {
             let init = crate::cluster::kmeans_plus_plus(&data, 6, &mut Rng::new(seed, 0));
-            let a = lloyd(&data, &init, 300, 0.0, false);
-            let b = lloyd(&data, &init, 300, 0.0, true);
+            let a = lloyd(&data, &init, Stop::exact(300), false);
+            let b = lloyd(&data, &init, Stop::exact(300), true);
             assert_eq!(a, b, "seed {seed}");
         }
     }
@@ -433,7 +548,7 @@ mod tests {
         // Two means start on top of each other far from the data's second group.
         let rows = [0.0f32, 0.1, 0.2, 50.0];
         let data = Dataset::new(&rows, 1, None).unwrap();
-        let r = lloyd(&data, &[0.1, 0.1], 100, 0.0, true);
+        let r = lloyd(&data, &[0.1, 0.1], Stop::exact(100), true);
         let mut m = r.means.clone();
         m.sort_by(f64::total_cmp);
         assert!(
@@ -450,7 +565,7 @@ mod tests {
         let init = crate::cluster::kmeans_plus_plus(&data, 5, &mut Rng::new(2, 0));
         let mut last = f64::INFINITY;
         for it in 1..15 {
-            let r = lloyd(&data, &init, it, 0.0, true);
+            let r = lloyd(&data, &init, Stop::exact(it), true);
             assert!(r.sse <= last + 1e-9, "iteration {it}: {} > {last}", r.sse);
             last = r.sse;
         }

@@ -1,30 +1,150 @@
 //! Weighted, seeded k-means++ seeding (Arthur & Vassilvitskii 2007), greedy variant
-//! with 2 + ⌊ln k⌋ candidate draws per centre.
+//! with 2 + ⌊ln k⌋ candidate draws per centre (as in scikit-learn).
 
 use super::{dist2, Dataset, CHUNK};
 use crate::rng::Rng;
 use rayon::prelude::*;
 
-/// Draws an index with probability proportional to `mass[i]` (total `total` > 0).
-fn draw(mass_cumsum: &[f64], rng: &mut Rng) -> usize {
-    let total = *mass_cumsum.last().unwrap();
-    let u = rng.uniform() * total;
-    // First index whose cumulative mass exceeds u: it has positive mass.
-    let i = mass_cumsum.partition_point(|&c| c <= u);
-    i.min(mass_cumsum.len() - 1)
+/// Draws a row with probability proportional to its mass `w_i · d_i` (`d` = `None`
+/// means 1), given the per-chunk sums of that mass. The chunk is found on the running
+/// sum of chunk sums, then the row by the same running sum inside the chunk, so only one
+/// chunk is scanned and the result does not depend on the thread count.
+fn draw(data: &Dataset, d: Option<&[f32]>, chunk_sums: &[f64], rng: &mut Rng) -> usize {
+    let total: f64 = chunk_sums.iter().sum();
+    let mut u = rng.uniform() * total;
+    let mut c = 0;
+    // Chunk whose cumulative mass passes u (the last one with mass, on rounding).
+    let last_with_mass = chunk_sums.iter().rposition(|&m| m > 0.0).unwrap_or(0);
+    while c < last_with_mass && u >= chunk_sums[c] {
+        u -= chunk_sums[c];
+        c += 1;
+    }
+    let lo = c * CHUNK;
+    let hi = ((c + 1) * CHUNK).min(data.len());
+    let mass = |i: usize| data.weight(i) * d.map_or(1.0, |d| d[i] as f64);
+    let mut s = 0.0f64;
+    let mut last = None;
+    for i in lo..hi {
+        let m = mass(i);
+        if m > 0.0 {
+            s += m;
+            last = Some(i);
+            if s > u {
+                return i;
+            }
+        }
+    }
+    last.unwrap_or(lo)
 }
 
-fn cumsum(values: impl Iterator<Item = f64>, out: &mut Vec<f64>) {
-    out.clear();
-    let mut s = 0.0;
-    for v in values {
-        s += v;
-        out.push(s);
+/// For each candidate `t`: `out[t][i] = min(closest[i], ‖x_i − c_t‖²)`; returns, per
+/// candidate, the per-chunk sums of `w_i · out[t][i]` (fixed-size loops for dimension D).
+fn evaluate_fixed<const D: usize>(
+    data: &Dataset,
+    closest: &[f32],
+    cands: &[f32],
+    out: &mut [Vec<f32>],
+) -> Vec<Vec<f64>> {
+    let n = data.len();
+    let t_n = out.len();
+    let rows = data.rows();
+    let chunks = n.div_ceil(CHUNK);
+    let mut sums = vec![vec![0.0f64; chunks]; t_n];
+    // Split every candidate's output into chunks and walk them together.
+    let mut outs: Vec<std::slice::ChunksMut<f32>> =
+        out.iter_mut().map(|o| o.chunks_mut(CHUNK)).collect();
+    let mut work: Vec<(usize, Vec<&mut [f32]>)> = (0..chunks)
+        .map(|c| (c, outs.iter_mut().map(|o| o.next().unwrap()).collect()))
+        .collect();
+    let partial: Vec<(usize, Vec<f64>)> = work
+        .par_iter_mut()
+        .map(|(c, outs)| {
+            let c = *c;
+            let mut s = vec![0.0f64; t_n];
+            let base = c * CHUNK;
+            for o in 0..outs[0].len() {
+                let i = base + o;
+                let x: &[f32; D] = rows[i * D..(i + 1) * D].try_into().unwrap();
+                let d_old = closest[i];
+                let w = data.weight(i);
+                for (t, cand) in cands.chunks_exact(D).enumerate() {
+                    let mut d = 0.0f32;
+                    for k in 0..D {
+                        let v = x[k] - cand[k];
+                        d += v * v;
+                    }
+                    let d = d.min(d_old);
+                    outs[t][o] = d;
+                    s[t] += w * d as f64;
+                }
+            }
+            (c, s)
+        })
+        .collect();
+    for (c, s) in partial {
+        for t in 0..t_n {
+            sums[t][c] = s[t];
+        }
+    }
+    sums
+}
+
+fn evaluate_any(
+    data: &Dataset,
+    closest: &[f32],
+    cands: &[f32],
+    out: &mut [Vec<f32>],
+) -> Vec<Vec<f64>> {
+    let n = data.len();
+    let dim = data.dim();
+    let chunks = n.div_ceil(CHUNK);
+    let mut sums = vec![vec![0.0f64; chunks]; out.len()];
+    for (t, o) in out.iter_mut().enumerate() {
+        let cand = &cands[t * dim..(t + 1) * dim];
+        let s: Vec<f64> = o
+            .par_chunks_mut(CHUNK)
+            .enumerate()
+            .map(|(c, oc)| {
+                let mut s = 0.0f64;
+                for (k, slot) in oc.iter_mut().enumerate() {
+                    let i = c * CHUNK + k;
+                    let d = dist2(data.row(i), cand).min(closest[i]);
+                    *slot = d;
+                    s += data.weight(i) * d as f64;
+                }
+                s
+            })
+            .collect();
+        sums[t] = s;
+    }
+    sums
+}
+
+/// One pass over the data for all candidates of a round.
+fn evaluate(
+    data: &Dataset,
+    closest: &[f32],
+    cands: &[f32],
+    out: &mut [Vec<f32>],
+) -> Vec<Vec<f64>> {
+    match data.dim() {
+        1 => evaluate_fixed::<1>(data, closest, cands, out),
+        2 => evaluate_fixed::<2>(data, closest, cands, out),
+        3 => evaluate_fixed::<3>(data, closest, cands, out),
+        4 => evaluate_fixed::<4>(data, closest, cands, out),
+        5 => evaluate_fixed::<5>(data, closest, cands, out),
+        6 => evaluate_fixed::<6>(data, closest, cands, out),
+        _ => evaluate_any(data, closest, cands, out),
     }
 }
 
 /// Chooses up to `k` initial means (flat, `k × dim`). Returns fewer when the data
 /// has fewer than `k` distinct rows with positive weight.
+///
+/// Each round draws 2 + ⌊ln k⌋ candidates with probability ∝ w·D² and keeps the one
+/// that lowers the potential Σ w·D² most (earliest on ties). All candidates of a round
+/// are scored in one pass over the data, and the kept candidate's distances become the
+/// next round's D², so a round costs one pass.
 pub fn kmeans_plus_plus(data: &Dataset, k: usize, rng: &mut Rng) -> Vec<f32> {
     let n = data.len();
     let dim = data.dim();
@@ -32,65 +152,40 @@ pub fn kmeans_plus_plus(data: &Dataset, k: usize, rng: &mut Rng) -> Vec<f32> {
     if n == 0 || k == 0 {
         return means;
     }
-    let mut cum = Vec::with_capacity(n);
-    cumsum((0..n).map(|i| data.weight(i)), &mut cum);
-    if *cum.last().unwrap() <= 0.0 {
+    let weight_sums: Vec<f64> = (0..n.div_ceil(CHUNK))
+        .map(|c| (c * CHUNK..((c + 1) * CHUNK).min(n)).map(|i| data.weight(i)).sum())
+        .collect();
+    if weight_sums.iter().sum::<f64>() <= 0.0 {
         return means;
     }
-    let first = draw(&cum, rng);
+    let first = draw(data, None, &weight_sums, rng);
     means.extend_from_slice(data.row(first));
-    let mut closest: Vec<f32> = vec![0.0; n];
-    closest
-        .par_chunks_mut(CHUNK)
-        .enumerate()
-        .for_each(|(c, out)| {
-            for (o, slot) in out.iter_mut().enumerate() {
-                *slot = dist2(data.row(c * CHUNK + o), &means[..dim]);
-            }
-        });
+    // Distances to the first mean: one "candidate" scored against +inf.
+    let inf = vec![f32::INFINITY; n];
+    let mut scratch = vec![vec![0.0f32; n]];
+    let mut chunk_sums = evaluate(data, &inf, &means[..dim], &mut scratch).remove(0);
+    let mut closest = scratch.pop().unwrap();
+    drop(inf);
     let trials = 2 + (k as f64).ln().floor() as usize;
+    let mut scratch: Vec<Vec<f32>> = vec![vec![0.0f32; n]; trials];
     while means.len() < k * dim {
-        cumsum((0..n).map(|i| data.weight(i) * closest[i] as f64), &mut cum);
-        if *cum.last().unwrap() <= 0.0 {
+        if chunk_sums.iter().sum::<f64>() <= 0.0 {
             break; // every remaining row sits on a chosen mean
         }
-        let candidates: Vec<usize> = (0..trials).map(|_| draw(&cum, rng)).collect();
-        // Potential of each candidate: weighted sum of min(current, distance to candidate).
-        let mut best: Option<(f64, usize)> = None;
-        for &cand in &candidates {
-            let c = data.row(cand);
-            let partial: Vec<f64> = closest
-                .par_chunks(CHUNK)
-                .enumerate()
-                .map(|(ci, cl)| {
-                    let mut s = 0.0f64;
-                    for (o, &d_old) in cl.iter().enumerate() {
-                        let i = ci * CHUNK + o;
-                        let d = dist2(data.row(i), c).min(d_old);
-                        s += data.weight(i) * d as f64;
-                    }
-                    s
-                })
-                .collect();
-            let pot: f64 = partial.iter().sum();
-            if best.is_none_or(|(bp, _)| pot < bp) {
-                best = Some((pot, cand));
+        let cands: Vec<f32> = (0..trials)
+            .flat_map(|_| data.row(draw(data, Some(&closest), &chunk_sums, rng)).to_vec())
+            .collect();
+        let sums = evaluate(data, &closest, &cands, &mut scratch);
+        let pots: Vec<f64> = sums.iter().map(|s| s.iter().sum()).collect();
+        let mut best = 0;
+        for t in 1..trials {
+            if pots[t] < pots[best] {
+                best = t;
             }
         }
-        let (_, chosen) = best.unwrap();
-        let c = data.row(chosen).to_vec();
-        closest
-            .par_chunks_mut(CHUNK)
-            .enumerate()
-            .for_each(|(ci, cl)| {
-                for (o, slot) in cl.iter_mut().enumerate() {
-                    let d = dist2(data.row(ci * CHUNK + o), &c);
-                    if d < *slot {
-                        *slot = d;
-                    }
-                }
-            });
-        means.extend_from_slice(&c);
+        means.extend_from_slice(&cands[best * dim..(best + 1) * dim]);
+        std::mem::swap(&mut closest, &mut scratch[best]);
+        chunk_sums = sums.into_iter().nth(best).unwrap();
     }
     means
 }

@@ -14,7 +14,7 @@ mod model;
 mod params;
 mod soft;
 
-pub use hard::{assign_nearest, lloyd, LloydResult};
+pub use hard::{assign_nearest, lloyd, LloydResult, Stop};
 pub use init::kmeans_plus_plus;
 pub use model::{fit, fit_from, KMeansModel};
 pub use params::{Beta, KMeansParams, Mode, ValidParams, MAX_K};
@@ -117,7 +117,7 @@ impl<'a> Dataset<'a> {
 }
 
 /// Squared Euclidean distance (summed left to right, whatever the dimension).
-#[inline]
+#[inline(always)]
 pub(crate) fn dist2(a: &[f32], b: &[f32]) -> f32 {
     let mut s = 0.0f32;
     for (x, y) in a.iter().zip(b) {
@@ -152,7 +152,7 @@ fn nearest_two_fixed<const D: usize>(x: &[f32], means: &[f32]) -> (usize, f32, f
 
 /// Index and squared distance of the nearest of `k` means (lowest index on ties),
 /// and the squared distance of the second nearest (infinite when k = 1).
-#[inline]
+#[inline(always)]
 pub fn nearest_two(x: &[f32], means: &[f32], dim: usize) -> (usize, f32, f32) {
     // Fixed-size loops for the common dimensions (same arithmetic, unrolled).
     match dim {

@@ -1,6 +1,6 @@
 //! Fitting: restarts of k-means++ and Lloyd, an optional soft phase, and the fitted model.
 
-use super::hard::{assign_nearest, lloyd};
+use super::hard::{assign_nearest, lloyd, Stop};
 use super::init::kmeans_plus_plus;
 use super::params::{Beta, Mode, ValidParams};
 use super::soft::{auto_beta, soft_assign, soft_kmeans, SoftAssignment};
@@ -66,21 +66,26 @@ fn check_data(data: &Dataset) -> Result<()> {
     Ok(())
 }
 
+fn stop_rule(params: &ValidParams) -> Stop {
+    Stop {
+        max_iter: params.max_iter,
+        tolerance: params.tolerance,
+        shift_tolerance: params.shift_tolerance,
+    }
+}
+
 /// Fits k-means: `restarts` seeded k-means++ starts, each polished by Lloyd; the lowest
 /// SSE is kept (the earliest on ties); in soft mode, soft k-means then starts from it.
 pub fn fit(data: &Dataset, params: &ValidParams) -> Result<KMeansModel> {
     check_data(data)?;
     let mut best = None;
     for r in 0..params.restarts {
+        let mut ph = crate::trace::Phases::start("fit");
         let mut rng = Rng::new(params.seed, r as u64);
         let init = kmeans_plus_plus(data, params.k, &mut rng);
-        let res = lloyd(
-            data,
-            &init,
-            params.max_iter,
-            params.tolerance,
-            params.accelerate,
-        );
+        ph.mark("k-means++");
+        let res = lloyd(data, &init, stop_rule(params), params.accelerate);
+        ph.mark("lloyd");
         if best
             .as_ref()
             .is_none_or(|(_, b): &(usize, super::LloydResult)| res.sse < b.sse)
@@ -102,13 +107,7 @@ pub fn fit_from(data: &Dataset, init: &[f32], params: &ValidParams) -> Result<KM
         }
         .into());
     }
-    let hard = lloyd(
-        data,
-        init,
-        params.max_iter,
-        params.tolerance,
-        params.accelerate,
-    );
+    let hard = lloyd(data, init, stop_rule(params), params.accelerate);
     Ok(finish(data, params, 0, hard))
 }
 

@@ -78,6 +78,10 @@ pub struct KMeansParams {
     pub max_iter: usize,
     /// Stop when the relative objective change of one iteration is at most this. Default: 1e-6.
     pub tolerance: f64,
+    /// Hard phase also stops when the summed squared moves of the means in one update
+    /// are at most this times the data's mean per-dimension variance (scikit-learn's
+    /// `tol` rule). 0 turns it off. Default: 1e-4.
+    pub shift_tolerance: f64,
     /// Use distance bounds (Hamerly 2010) to skip work; same result as plain Lloyd. Default: true.
     pub accelerate: bool,
 }
@@ -93,6 +97,7 @@ impl KMeansParams {
             restarts: 1,
             max_iter: 300,
             tolerance: 1e-6,
+            shift_tolerance: 1e-4,
             accelerate: true,
         }
     }
@@ -120,6 +125,10 @@ impl KMeansParams {
         self.tolerance = tolerance;
         self
     }
+    pub fn shift_tolerance(mut self, shift_tolerance: f64) -> Self {
+        self.shift_tolerance = shift_tolerance;
+        self
+    }
     pub fn accelerate(mut self, accelerate: bool) -> Self {
         self.accelerate = accelerate;
         self
@@ -143,6 +152,9 @@ impl KMeansParams {
         }
         if !(self.tolerance.is_finite() && self.tolerance >= 0.0) {
             return Err(ParamsError::BadTolerance(self.tolerance));
+        }
+        if !(self.shift_tolerance.is_finite() && self.shift_tolerance >= 0.0) {
+            return Err(ParamsError::BadShiftTolerance(self.shift_tolerance));
         }
         if self.max_iter == 0 {
             return Err(ParamsError::BadMaxIter(0));
@@ -188,6 +200,10 @@ mod tests {
         assert!(matches!(
             KMeansParams::new(3).tolerance(f64::NAN).check(),
             Err(ParamsError::BadTolerance(_))
+        ));
+        assert!(matches!(
+            KMeansParams::new(3).shift_tolerance(-1.0).check(),
+            Err(ParamsError::BadShiftTolerance(_))
         ));
         assert!(matches!(
             KMeansParams::new(3).max_iter(0).check(),
