@@ -68,6 +68,10 @@ pub enum ParamsError {
     KTooLarge { got: usize, max: usize },
     #[error("beta must be a positive finite number (got {0})")]
     BadBeta(f64),
+    #[error("{0}")]
+    BadTarget(String),
+    #[error("annealing schedule: {0}")]
+    BadAnneal(String),
     #[error("shift tolerance must be a finite number >= 0 (got {0})")]
     BadShiftTolerance(f64),
     #[error("tolerance must be a finite number >= 0 (got {0})")]

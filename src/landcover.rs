@@ -471,16 +471,33 @@ pub fn output_names(stem: &str) -> [String; 5] {
     ]
 }
 
-/// Runs the whole workflow on a file and writes all outputs atomically.
-pub fn landcover_file(
-    input: &Path,
-    out_dir: &Path,
-    opts: &LandcoverOptions,
-) -> Result<LandcoverReport> {
-    let t0 = Instant::now();
-    let mut phases = crate::trace::Phases::start("landcover");
-    let params = opts.params().check()?;
-    let stem = crate::reduce::stem_of(input)?;
+/// Pass 1 of a scene: feature statistics over every valid pixel, and the seeded grid
+/// sample of feature rows, scaled as asked (what the fit sees).
+pub struct SceneSample {
+    raster: GeoRaster,
+    pub info: RasterInfo,
+    feats: Features,
+    /// Features per row.
+    pub dim: usize,
+    /// Scaled feature rows of the sample, `n × dim`.
+    pub sample: Vec<f32>,
+    /// Pixels that are not nodata.
+    pub valid_pixels: u64,
+    pub total_pixels: u64,
+    offset: Vec<f64>,
+    factor: Vec<f64>,
+}
+
+impl SceneSample {
+    /// Feature names (band numbers as text, then index names).
+    pub fn feature_names(&self) -> &[String] {
+        &self.feats.names
+    }
+}
+
+/// Opens `input`, checks the band and index options, and reads pass 1 (see
+/// [`SceneSample`]). `k_needed`: the sample must hold at least this many valid pixels.
+pub fn scene_sample(input: &Path, opts: &LandcoverOptions, k_needed: usize) -> Result<SceneSample> {
     let mut raster = GeoRaster::open(input, &opts.limits)?;
     let info = raster.info().clone();
     let feats = check_options(opts, &info, input)?;
@@ -538,12 +555,11 @@ pub fn landcover_file(
         });
     }
     let sample_n = sample.len() / dim;
-    if sample_n < opts.k {
+    if sample_n < k_needed {
         return Err(Error::InputData {
             path: input.into(),
             message: format!(
-                "-k {} is more than the {sample_n} valid pixels available to fit",
-                opts.k
+                "K = {k_needed} is more than the {sample_n} valid pixels available to fit"
             ),
         });
     }
@@ -561,6 +577,47 @@ pub fn landcover_file(
         }
     };
     sample.par_chunks_mut(dim).for_each(scale_row);
+    Ok(SceneSample {
+        raster,
+        info,
+        feats,
+        dim,
+        sample,
+        valid_pixels,
+        total_pixels,
+        offset,
+        factor,
+    })
+}
+
+/// Runs the whole workflow on a file and writes all outputs atomically.
+pub fn landcover_file(
+    input: &Path,
+    out_dir: &Path,
+    opts: &LandcoverOptions,
+) -> Result<LandcoverReport> {
+    let t0 = Instant::now();
+    let mut phases = crate::trace::Phases::start("landcover");
+    let params = opts.params().check()?;
+    let stem = crate::reduce::stem_of(input)?;
+    let SceneSample {
+        mut raster,
+        info,
+        feats,
+        dim,
+        sample,
+        valid_pixels,
+        total_pixels,
+        offset,
+        factor,
+    } = scene_sample(input, opts, opts.k)?;
+    let (w, h) = (info.width, info.height);
+    let sample_n = sample.len() / dim;
+    let scale_row = |f: &mut [f32]| {
+        for d in 0..f.len() {
+            f[d] = ((f[d] as f64 - offset[d]) * factor[d]) as f32;
+        }
+    };
     phases.mark("pass 1 (statistics, sample)");
     let data = Dataset::new(&sample, dim, None)?;
     let model = fit(&data, &params)?;

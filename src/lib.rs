@@ -24,6 +24,7 @@ pub mod render;
 pub mod rng;
 pub mod select;
 pub mod separate;
+pub mod sweep;
 pub mod trace;
 
 pub use error::{Error, ParamsError, Result};

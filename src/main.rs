@@ -242,6 +242,40 @@ fn main() -> ExitCode {
                 Err(e) => fail(e),
             }
         }
+        Command::Sweep(args) => {
+            let opts = args.options();
+            match chromasift::sweep::sweep_file(&args.input, &args.out, &opts) {
+                Ok(report) => {
+                    for n in &report.notes {
+                        eprintln!("chromasift: note: {}: {n}", args.input.display());
+                    }
+                    let d = &report.document;
+                    let suggested: Vec<String> = d
+                        .suggested
+                        .iter()
+                        .map(|(c, k)| format!("{c} K = {k}"))
+                        .collect();
+                    eprintln!(
+                        "chromasift: {}: swept K {}..{}; suggested: {}; {:.2} s",
+                        args.input.display(),
+                        d.rows.first().map_or(0, |r| r.k),
+                        d.rows.last().map_or(0, |r| r.k),
+                        if suggested.is_empty() { "none".to_string() } else { suggested.join(", ") },
+                        report.seconds
+                    );
+                    if args.json {
+                        let mut out = std::io::stdout().lock();
+                        let _ = writeln!(
+                            out,
+                            "{}",
+                            serde_json::to_string_pretty(d).expect("document serialises")
+                        );
+                    }
+                    ExitCode::SUCCESS
+                }
+                Err(e) => fail(e),
+            }
+        }
         Command::Batch(args) => run_batch(args),
         Command::Learn(args) => {
             let opts = args.settings.options();

@@ -1,7 +1,7 @@
 //! The `reduce` workflow: an image to a K-colour palette chosen in CIELAB or OKLab,
 //! with CIEDE2000 scores and an uncertainty map.
 
-use crate::cluster::{fit, Beta, Dataset, KMeansParams, Mode};
+use crate::cluster::{fit, Anneal, Beta, Dataset, KMeansModel, KMeansParams, Mode, ValidParams};
 use crate::colour::{self, Space};
 use crate::error::{Error, Result};
 use crate::histogram::{self, IndexedHistogram};
@@ -43,6 +43,155 @@ pub struct ReduceOptions {
     pub limits: Limits,
     /// Also write the float uncertainty TIFF. Default: false.
     pub uncertainty_raw: bool,
+    /// Start from deterministic annealing instead of k-means++. Default: off.
+    pub anneal: Option<Anneal>,
+    /// Choose K as the smallest meeting a colour-difference target (then `k` is unused).
+    /// Default: off.
+    pub target: Option<QualityTarget>,
+}
+
+/// Which statistic of the per-pixel CIEDE2000 a target bounds.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "lowercase")]
+pub enum TargetStatistic {
+    /// Mean over pixels.
+    Mean,
+    /// 95th percentile over pixels (the smallest ΔE that at least 95 % of pixels are within).
+    P95,
+}
+
+impl TargetStatistic {
+    pub fn name(self) -> &'static str {
+        match self {
+            TargetStatistic::Mean => "mean",
+            TargetStatistic::P95 => "95th percentile",
+        }
+    }
+}
+
+/// "The fewest colours whose CIEDE2000 is at most `delta_e`", searched K = 1..=`k_max`.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+pub struct QualityTarget {
+    /// Largest acceptable ΔE2000 (of the chosen statistic).
+    pub delta_e: f64,
+    pub statistic: TargetStatistic,
+    /// Largest K tried.
+    pub k_max: usize,
+}
+
+impl QualityTarget {
+    /// Checks the target's numbers.
+    pub fn check(&self) -> Result<()> {
+        if !(self.delta_e.is_finite() && self.delta_e >= 0.0) {
+            return Err(Error::Params(crate::error::ParamsError::BadTarget(format!(
+                "--target-delta-e must be a finite number >= 0 (got {})",
+                self.delta_e
+            ))));
+        }
+        if self.k_max == 0 || self.k_max > crate::cluster::MAX_K {
+            return Err(Error::Params(crate::error::ParamsError::BadTarget(format!(
+                "--k-max must be between 1 and {} (got {})",
+                crate::cluster::MAX_K,
+                self.k_max
+            ))));
+        }
+        Ok(())
+    }
+}
+
+/// Per-entry CIEDE2000 between each colour (`labs`) and the palette colour of its
+/// cluster, the cluster means (`k × 3`, in `space`) rounded to sRGB8 as they are written.
+pub fn entry_delta_e2000(means: &[f64], labels: &[u32], labs: &[[f64; 3]], space: Space) -> Vec<f64> {
+    let palette_lab: Vec<[f64; 3]> = means
+        .chunks_exact(3)
+        .map(|m| colour::srgb8_to_lab(colour::space_to_srgb8([m[0], m[1], m[2]], space)))
+        .collect();
+    labels
+        .par_iter()
+        .zip(labs.par_iter())
+        .with_min_len(4096)
+        .map(|(&l, lab)| colour::delta_e2000(*lab, palette_lab[l as usize]))
+        .collect()
+}
+
+/// Weighted mean (Σ w·v / `total`, summed in entry order) and weighted 95th percentile
+/// (the smallest value that entries holding at least 95 % of the weight are within).
+pub fn mean_and_p95(values: &[f64], weights: &[f64], total: f64) -> (f64, f64) {
+    let mut sum = 0.0;
+    for (v, w) in values.iter().zip(weights) {
+        sum += w * v;
+    }
+    let mut order: Vec<usize> = (0..values.len()).collect();
+    order.sort_by(|&a, &b| values[a].total_cmp(&values[b]).then(a.cmp(&b)));
+    let need = 0.95 * weights.iter().sum::<f64>();
+    let mut cum = 0.0;
+    let mut p95 = values.get(*order.last().unwrap_or(&0)).copied().unwrap_or(0.0);
+    for &i in &order {
+        cum += weights[i];
+        if cum >= need {
+            p95 = values[i];
+            break;
+        }
+    }
+    (sum / total, p95)
+}
+
+/// Outcome of a search for the smallest K meeting a target.
+#[derive(Debug, Clone)]
+pub struct TargetSearch {
+    /// The model at the chosen K.
+    pub model: KMeansModel,
+    /// (K, mean ΔE2000, 95th-percentile ΔE2000) of every K tried, in order.
+    pub tried: Vec<(usize, f64, f64)>,
+    /// Whether the chosen K meets the target (false: none up to k_max did).
+    pub met: bool,
+}
+
+/// Searches K = 1, 2, … along the warm-started path of [`crate::cluster::k_path`] for
+/// the smallest K whose ΔE2000 statistic is at most the target.
+pub fn search_k(
+    data: &Dataset,
+    labs: &[[f64; 3]],
+    total: f64,
+    space: Space,
+    params: &ValidParams,
+    target: &QualityTarget,
+) -> Result<TargetSearch> {
+    let weights: Vec<f64> = (0..data.len()).map(|i| data.weight(i)).collect();
+    let mut tried = Vec::new();
+    let mut last: Option<(usize, crate::cluster::LloydResult)> = None;
+    let mut met = false;
+    crate::cluster::k_path(
+        data,
+        1,
+        target.k_max,
+        params.seed,
+        crate::cluster::stop_rule(params),
+        params.accelerate,
+        |k, res| {
+            let de = entry_delta_e2000(&res.means, &res.labels, labs, space);
+            let (mean, p95) = mean_and_p95(&de, &weights, total);
+            tried.push((k, mean, p95));
+            last = Some((k, res.clone()));
+            let value = match target.statistic {
+                TargetStatistic::Mean => mean,
+                TargetStatistic::P95 => p95,
+            };
+            met = value <= target.delta_e;
+            !met
+        },
+    );
+    let (k, hard) = last.ok_or_else(|| Error::Data("no colours to fit".into()))?;
+    let p = KMeansParams {
+        k,
+        ..(**params).clone()
+    }
+    .check()?;
+    Ok(TargetSearch {
+        model: crate::cluster::finish(data, &p, 0, hard),
+        tried,
+        met,
+    })
 }
 
 impl ReduceOptions {
@@ -62,6 +211,8 @@ impl ReduceOptions {
             dither: Dither::None,
             limits: Limits::default(),
             uncertainty_raw: false,
+            anneal: None,
+            target: None,
         }
     }
 
@@ -75,6 +226,7 @@ impl ReduceOptions {
             .max_iter(self.max_iter)
             .tolerance(self.tolerance)
             .shift_tolerance(self.shift_tolerance)
+            .anneal(self.anneal)
     }
 }
 
@@ -106,6 +258,20 @@ pub struct ReduceSettings {
     #[serde(default)]
     pub shift_tolerance: f64,
     pub dither: String,
+    /// The annealing schedule, when used.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub anneal: Option<AnnealSetting>,
+    /// The colour-difference target K was chosen by, when used.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub target: Option<QualityTarget>,
+}
+
+/// The annealing schedule as recorded in the palette document.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct AnnealSetting {
+    pub start: f64,
+    pub end: f64,
+    pub factor: f64,
 }
 
 /// The palette document (`STEM.palette.json`).
@@ -180,7 +346,7 @@ impl ReduceOptions {
     /// Fingerprint of the settings that shape the outputs (and of a fixed palette, if any).
     pub fn fingerprint(&self, fixed: Option<&FixedPalette>) -> String {
         let text = format!(
-            "{}|{}|{:?}|{:?}|{}|{}|{}|{}|{}|{}|{}|{}|{:?}",
+            "{}|{}|{:?}|{:?}|{}|{}|{}|{}|{}|{}|{}|{}|{:?}|{:?}|{:?}",
             crate::TOOL_VERSION,
             self.k,
             self.mode,
@@ -194,6 +360,8 @@ impl ReduceOptions {
             self.dither.name(),
             self.uncertainty_raw,
             fixed.map(|f| (f.colours.clone(), f.beta)),
+            self.anneal,
+            self.target,
         );
         format!("{:016x}", fnv1a(text.as_bytes()))
     }
@@ -356,6 +524,47 @@ fn reduce_indexed(
         };
         let a = crate::cluster::soft_assign(&data, &means, beta);
         (means, beta, sse, 0, a.labels, a.entropy)
+    } else if let Some(target) = opts.target.as_ref().filter(|_| hist.len() > 1) {
+        target.check()?;
+        let search = search_k(&data, &labs, hist.total() as f64, opts.space, &params, target)?;
+        let (k, mean, p95) = *search.tried.last().expect("at least one K tried");
+        let shown = |(k, m, p): &(usize, f64, f64)| match target.statistic {
+            TargetStatistic::Mean => format!("K = {k}: {m:.2}"),
+            TargetStatistic::P95 => format!("K = {k}: {p:.2}"),
+        };
+        let before = search
+            .tried
+            .len()
+            .checked_sub(2)
+            .map(|i| format!("; {}", shown(&search.tried[i])))
+            .unwrap_or_default();
+        notes.push(if search.met {
+            format!(
+                "chose K = {k}, the smallest K whose {} ΔE2000 is at most {} ({}{before})",
+                target.statistic.name(),
+                target.delta_e,
+                shown(&(k, mean, p95)),
+            )
+        } else {
+            format!(
+                "no K up to {} has a {} ΔE2000 of at most {}; using K = {k} ({})",
+                target.k_max,
+                target.statistic.name(),
+                target.delta_e,
+                shown(&(k, mean, p95)),
+            )
+        });
+        let model = search.model;
+        ph.mark("fit");
+        let a = model.assign(&data);
+        (
+            model.means.clone(),
+            model.beta,
+            model.sse,
+            model.iterations(),
+            a.labels,
+            a.entropy,
+        )
     } else if hist.len() <= opts.k {
         if hist.len() < opts.k {
             notes.push(format!(
@@ -535,6 +744,12 @@ fn reduce_indexed(
             tolerance: opts.tolerance,
             shift_tolerance: opts.shift_tolerance,
             dither: opts.dither.name().into(),
+            anneal: opts.anneal.map(|a| AnnealSetting {
+                start: a.start,
+                end: a.end,
+                factor: a.factor,
+            }),
+            target: opts.target,
         },
         source: None,
         settings_fingerprint: None,

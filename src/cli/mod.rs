@@ -1,6 +1,6 @@
 //! Command-line flags (as typed) and their resolution into library options.
 
-use crate::cluster::{Beta, Mode};
+use crate::cluster::{Anneal, Beta, Mode};
 use crate::colour::Space;
 use crate::limits::Limits;
 use crate::reduce::ReduceOptions;
@@ -14,6 +14,8 @@ Examples:
   chromasift reduce fixtures/demo/harbour-poster.png -k 6 -o out/
   chromasift reduce field.jpg -k 6 --mode soft --beta auto -o out/ --seed 3
   chromasift reduce scan.tif -k 12 --space oklab --dither floyd-steinberg --uncertainty-raw -o out/
+  chromasift reduce poster.png --target-delta-e 3.0 --k-max 12 -o out/
+  chromasift reduce photo.jpg -k 16 --anneal -o out/
 
 Writes STEM.reduced.png, STEM.palette.json, STEM.palette.csv and STEM.uncertainty.png
 (plus STEM.uncertainty.tif with --uncertainty-raw) into the output folder.
@@ -86,6 +88,116 @@ pub enum Command {
 
     /// Write the merged colour histogram of folders or images to a file, for `learn`.
     Histogram(HistogramArgs),
+
+    /// Fit every K of a range and score each (ΔE2000, silhouette, BIC, uncertainty), to
+    /// choose how many colours or classes.
+    #[command(after_help = SWEEP_EXAMPLES)]
+    Sweep(SweepArgs),
+}
+
+const SWEEP_EXAMPLES: &str = "\
+Examples:
+  chromasift sweep fixtures/demo/harbour-poster.png --k 2..16 -o sweep/
+  chromasift sweep scene.tif --k 3..12 --bands 1,2,3,4 -o sweep/
+
+Writes sweep.csv, sweep.json and sweep.svg into the output folder: per K the SSE, mean
+and 95th-percentile ΔE2000 (colour images), mean uncertainty, mean silhouette on a seeded
+sample (Rousseeuw 1987) and BIC (Schwarz 1978), with the K each criterion suggests.
+The criteria are evidence, not a verdict: look at the reduced images too.
+
+Exit status: 0 success, 2 bad parameters or unreadable input (nothing is written).";
+
+/// Flags of `sweep`.
+#[derive(Debug, Args, Clone)]
+pub struct SweepArgs {
+    /// Colour image, or a multi-band raster (TIFF/GeoTIFF) read as `landcover` reads it.
+    pub input: PathBuf,
+
+    /// Range of K, both ends included.
+    #[arg(short = 'k', long = "k", default_value = "2..16", value_name = "A..B")]
+    pub k: crate::sweep::KRange,
+
+    /// Space the colours are chosen in (colour images).
+    #[arg(long, default_value = "cielab", value_name = "cielab|oklab")]
+    pub space: Space,
+
+    /// Bands to use, 1-based (multi-band rasters; default: all).
+    #[arg(long, value_name = "LIST")]
+    pub bands: Option<BandList>,
+
+    /// Add a normalised difference as a feature (multi-band rasters), as in `landcover`.
+    #[arg(long = "index", value_name = "ndvi:RED,NIR|nd:A,B")]
+    pub index: Vec<crate::landcover::IndexSpec>,
+
+    /// Feature scaling for multi-band rasters: zscore or none.
+    #[arg(long, default_value = "zscore", value_name = "zscore|none")]
+    pub scale: crate::landcover::Scale,
+
+    /// Nodata value for multi-band rasters (default: the file's GDAL_NODATA tag).
+    #[arg(long, value_name = "VALUE", allow_hyphen_values = true)]
+    pub nodata: Option<f64>,
+
+    /// Pixels in the seeded fitting sample of a multi-band raster.
+    #[arg(long, default_value_t = 2_000_000, value_name = "N")]
+    pub sample: usize,
+
+    /// Pixels drawn (seeded) for the silhouette, which costs O(N²).
+    #[arg(long = "silhouette-sample", default_value_t = 2000, value_name = "N")]
+    pub silhouette_sample: usize,
+
+    /// Seed of k-means++ and of the samples.
+    #[arg(long, default_value_t = DEFAULT_SEED)]
+    pub seed: u64,
+
+    /// Most Lloyd iterations per K.
+    #[arg(long = "max-iter", default_value_t = 300, value_name = "N")]
+    pub max_iter: usize,
+
+    /// Stop when an iteration lowers the SSE by at most this fraction.
+    #[arg(long, default_value_t = 1e-6, value_name = "FRACTION")]
+    pub tolerance: f64,
+
+    /// Also stop when the means' summed squared move is at most this times the data's
+    /// mean variance per dimension (0 = off).
+    #[arg(long = "shift-tolerance", default_value_t = 1e-4, value_name = "FRACTION")]
+    pub shift_tolerance: f64,
+
+    /// Refuse images with more pixels than this (checked from the header).
+    #[arg(long = "max-pixels", default_value_t = Limits::default().max_pixels, value_name = "N")]
+    pub max_pixels: u64,
+
+    /// Output folder (created if missing).
+    #[arg(short = 'o', long = "out", default_value = ".", value_name = "DIR")]
+    pub out: PathBuf,
+
+    /// Print the sweep document on standard output.
+    #[arg(long)]
+    pub json: bool,
+}
+
+impl SweepArgs {
+    /// The library options these flags ask for.
+    pub fn options(&self) -> crate::sweep::SweepOptions {
+        let scene = crate::landcover::LandcoverOptions {
+            bands: self.bands.as_ref().map(|b| b.0.clone()),
+            indices: self.index.clone(),
+            scale: self.scale,
+            nodata: self.nodata,
+            sample: self.sample,
+            ..Default::default()
+        };
+        crate::sweep::SweepOptions {
+            range: self.k,
+            space: self.space,
+            seed: self.seed,
+            max_iter: self.max_iter,
+            tolerance: self.tolerance,
+            shift_tolerance: self.shift_tolerance,
+            silhouette_sample: self.silhouette_sample,
+            limits: Limits::with_max_pixels(self.max_pixels),
+            scene: Some(scene),
+        }
+    }
 }
 
 /// Flags of `landcover`.
@@ -361,6 +473,41 @@ pub struct ReduceFlags {
     /// Also write STEM.uncertainty.tif (32-bit float, 0..1).
     #[arg(long = "uncertainty-raw")]
     pub uncertainty_raw: bool,
+
+    /// Choose K instead of giving it: the smallest K (up to --k-max) whose mean CIEDE2000
+    /// between source and reduced pixels is at most this. Rules of thumb (common
+    /// practice, not a standard): about 1 is where a trained observer starts to notice,
+    /// 2 to 3 a usual commercial print tolerance.
+    #[arg(long = "target-delta-e", value_name = "ΔE2000", conflicts_with = "k")]
+    pub target_delta_e: Option<f64>,
+
+    /// With --target-delta-e: bound the 95th percentile of the per-pixel ΔE2000 instead
+    /// of the mean.
+    #[arg(long = "target-p95", requires = "target_delta_e")]
+    pub target_p95: bool,
+
+    /// With --target-delta-e: the largest K tried.
+    #[arg(long = "k-max", default_value_t = 16, value_name = "K")]
+    pub k_max: usize,
+
+    /// Start from deterministic annealing (Rose, Gurewitz & Fox 1990) instead of
+    /// k-means++: soft k-means with β raised geometrically from --anneal-start to
+    /// --anneal-end, then a hard Lloyd polish.
+    #[arg(long)]
+    pub anneal: bool,
+
+    /// First β of the annealing, as a multiple of the critical β_c = 1/λ_max (λ_max: the
+    /// data's largest variance along a principal axis, in ΔE*ab² for CIELAB).
+    #[arg(long = "anneal-start", default_value_t = Anneal::default().start, value_name = "MULTIPLE")]
+    pub anneal_start: f64,
+
+    /// Last β of the annealing, as a multiple of β_c.
+    #[arg(long = "anneal-end", default_value_t = Anneal::default().end, value_name = "MULTIPLE")]
+    pub anneal_end: f64,
+
+    /// Ratio between successive β of the annealing (> 1).
+    #[arg(long = "anneal-factor", default_value_t = Anneal::default().factor, value_name = "RATIO")]
+    pub anneal_factor: f64,
 }
 
 impl ReduceFlags {
@@ -379,6 +526,21 @@ impl ReduceFlags {
             dither: self.dither,
             limits: Limits::with_max_pixels(self.max_pixels),
             uncertainty_raw: self.uncertainty_raw,
+            anneal: self.anneal.then(|| Anneal {
+                start: self.anneal_start,
+                end: self.anneal_end,
+                factor: self.anneal_factor,
+                ..Anneal::default()
+            }),
+            target: self.target_delta_e.map(|delta_e| crate::reduce::QualityTarget {
+                delta_e,
+                statistic: if self.target_p95 {
+                    crate::reduce::TargetStatistic::P95
+                } else {
+                    crate::reduce::TargetStatistic::Mean
+                },
+                k_max: self.k_max,
+            }),
         }
     }
 }

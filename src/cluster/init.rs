@@ -146,6 +146,12 @@ fn evaluate(
 /// are scored in one pass over the data, and the kept candidate's distances become the
 /// next round's D², so a round costs one pass.
 pub fn kmeans_plus_plus(data: &Dataset, k: usize, rng: &mut Rng) -> Vec<f32> {
+    kmeans_plus_plus_from(data, &[], k, rng)
+}
+
+/// As [`kmeans_plus_plus`], keeping the given means (`j × dim`, j ≤ k) and adding the
+/// rest by the same greedy D² rounds: the warm start of a sweep over K.
+pub fn kmeans_plus_plus_from(data: &Dataset, start: &[f32], k: usize, rng: &mut Rng) -> Vec<f32> {
     let n = data.len();
     let dim = data.dim();
     let mut means: Vec<f32> = Vec::with_capacity(k * dim);
@@ -158,14 +164,30 @@ pub fn kmeans_plus_plus(data: &Dataset, k: usize, rng: &mut Rng) -> Vec<f32> {
     if weight_sums.iter().sum::<f64>() <= 0.0 {
         return means;
     }
-    let first = draw(data, None, &weight_sums, rng);
-    means.extend_from_slice(data.row(first));
-    // Distances to the first mean: one "candidate" scored against +inf.
-    let inf = vec![f32::INFINITY; n];
-    let mut scratch = vec![vec![0.0f32; n]];
-    let mut chunk_sums = evaluate(data, &inf, &means[..dim], &mut scratch).remove(0);
-    let mut closest = scratch.pop().unwrap();
-    drop(inf);
+    let start = &start[..(start.len() / dim).min(k) * dim];
+    if start.is_empty() {
+        let first = draw(data, None, &weight_sums, rng);
+        means.extend_from_slice(data.row(first));
+    } else {
+        means.extend_from_slice(start);
+    }
+    // Squared distance of every row to its nearest mean so far, and per-chunk sums of
+    // w·D² (one pass).
+    let mut closest = vec![0.0f32; n];
+    let chunk_sums: Vec<f64> = closest
+        .par_chunks_mut(CHUNK)
+        .enumerate()
+        .map(|(c, out)| {
+            let mut s = 0.0f64;
+            for (o, slot) in out.iter_mut().enumerate() {
+                let i = c * CHUNK + o;
+                *slot = super::nearest_two(data.row(i), &means, dim).1;
+                s += data.weight(i) * *slot as f64;
+            }
+            s
+        })
+        .collect();
+    let mut chunk_sums = chunk_sums;
     let trials = 2 + (k as f64).ln().floor() as usize;
     let mut scratch: Vec<Vec<f32>> = vec![vec![0.0f32; n]; trials];
     while means.len() < k * dim {
@@ -204,6 +226,16 @@ mod tests {
         assert_eq!(m.len(), 4);
         assert_ne!(m[0..2], m[2..4]);
         assert!(!m.chunks(2).any(|c| c == [5.0, 5.0]));
+    }
+
+    #[test]
+    fn extending_keeps_the_given_means() {
+        let rows: Vec<f32> = (0..400).map(|i| ((i * 53) % 97) as f32).collect();
+        let data = Dataset::new(&rows, 2, None).unwrap();
+        let three = kmeans_plus_plus(&data, 3, &mut Rng::new(4, 0));
+        let five = kmeans_plus_plus_from(&data, &three, 5, &mut Rng::new(4, 1));
+        assert_eq!(five.len(), 10);
+        assert_eq!(&five[..6], &three[..]);
     }
 
     #[test]

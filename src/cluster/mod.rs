@@ -8,6 +8,8 @@
 //! Determinism: work is split into fixed-size chunks whatever the thread count,
 //! and per-chunk partial sums are reduced in chunk order.
 
+mod anneal;
+mod choose;
 mod hard;
 mod init;
 mod model;
@@ -15,8 +17,10 @@ mod params;
 mod soft;
 
 pub use hard::{assign_nearest, lloyd, LloydResult, Stop};
-pub use init::kmeans_plus_plus;
-pub use model::{fit, fit_from, KMeansModel};
+pub use anneal::{anneal, Anneal, AnnealResult};
+pub use choose::{bic, k_path, silhouette, weighted_sample};
+pub use init::{kmeans_plus_plus, kmeans_plus_plus_from};
+pub use model::{finish, fit, fit_from, stop_rule, KMeansModel};
 pub use params::{Beta, KMeansParams, Mode, ValidParams, MAX_K};
 pub use soft::{
     auto_beta, responsibility_matrix, soft_assign, soft_kmeans, SoftAssignment, SoftResult,

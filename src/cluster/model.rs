@@ -1,6 +1,7 @@
 //! Fitting: restarts of k-means++ and Lloyd, an optional soft phase, and the fitted model.
 
 use super::hard::{assign_nearest, lloyd, Stop};
+use super::anneal::anneal;
 use super::init::kmeans_plus_plus;
 use super::params::{Beta, Mode, ValidParams};
 use super::soft::{auto_beta, soft_assign, soft_kmeans, SoftAssignment};
@@ -66,7 +67,8 @@ fn check_data(data: &Dataset) -> Result<()> {
     Ok(())
 }
 
-fn stop_rule(params: &ValidParams) -> Stop {
+/// The stopping rule of the hard phase that `params` ask for.
+pub fn stop_rule(params: &ValidParams) -> Stop {
     Stop {
         max_iter: params.max_iter,
         tolerance: params.tolerance,
@@ -74,16 +76,27 @@ fn stop_rule(params: &ValidParams) -> Stop {
     }
 }
 
-/// Fits k-means: `restarts` seeded k-means++ starts, each polished by Lloyd; the lowest
-/// SSE is kept (the earliest on ties); in soft mode, soft k-means then starts from it.
+/// Fits k-means: `restarts` seeded k-means++ starts (or annealing runs, with
+/// `params.anneal`), each polished by Lloyd; the lowest SSE is kept (the earliest on
+/// ties); in soft mode, soft k-means then starts from it.
 pub fn fit(data: &Dataset, params: &ValidParams) -> Result<KMeansModel> {
     check_data(data)?;
     let mut best = None;
     for r in 0..params.restarts {
         let mut ph = crate::trace::Phases::start("fit");
-        let mut rng = Rng::new(params.seed, r as u64);
-        let init = kmeans_plus_plus(data, params.k, &mut rng);
-        ph.mark("k-means++");
+        let init = match &params.anneal {
+            Some(schedule) => {
+                let a = anneal(data, params.k, schedule, params.seed ^ r as u64, params.tolerance);
+                ph.mark("annealing");
+                a.means.iter().map(|&v| v as f32).collect()
+            }
+            None => {
+                let mut rng = Rng::new(params.seed, r as u64);
+                let init = kmeans_plus_plus(data, params.k, &mut rng);
+                ph.mark("k-means++");
+                init
+            }
+        };
         let res = lloyd(data, &init, stop_rule(params), params.accelerate);
         ph.mark("lloyd");
         if best
@@ -113,7 +126,7 @@ pub fn fit_from(data: &Dataset, init: &[f32], params: &ValidParams) -> Result<KM
 
 /// Weighted centroids of the occupied cells of a grid of side `cell`, in cell order
 /// (deterministic): a small stand-in for many rows when the scale of interest is coarser.
-fn coarsen(data: &Dataset, cell: f64) -> (Vec<f32>, Vec<f64>) {
+pub(crate) fn coarsen(data: &Dataset, cell: f64) -> (Vec<f32>, Vec<f64>) {
     let dim = data.dim();
     if !(cell.is_finite() && cell > 0.0) {
         return (
@@ -148,7 +161,9 @@ fn coarsen(data: &Dataset, cell: f64) -> (Vec<f32>, Vec<f64>) {
     (rows, weights)
 }
 
-fn finish(
+/// The model of a finished hard fit (`restart` records which start it came from): β
+/// resolved, and in soft mode the soft phase run from its means.
+pub fn finish(
     data: &Dataset,
     params: &ValidParams,
     restart: usize,

@@ -82,6 +82,8 @@ pub struct KMeansParams {
     /// are at most this times the data's mean per-dimension variance (scikit-learn's
     /// `tol` rule). 0 turns it off. Default: 1e-4.
     pub shift_tolerance: f64,
+    /// Start from deterministic annealing instead of k-means++. Default: off.
+    pub anneal: Option<super::Anneal>,
     /// Use distance bounds (Hamerly 2010) to skip work; same result as plain Lloyd. Default: true.
     pub accelerate: bool,
 }
@@ -98,6 +100,7 @@ impl KMeansParams {
             max_iter: 300,
             tolerance: 1e-6,
             shift_tolerance: 1e-4,
+            anneal: None,
             accelerate: true,
         }
     }
@@ -129,6 +132,10 @@ impl KMeansParams {
         self.shift_tolerance = shift_tolerance;
         self
     }
+    pub fn anneal(mut self, anneal: Option<super::Anneal>) -> Self {
+        self.anneal = anneal;
+        self
+    }
     pub fn accelerate(mut self, accelerate: bool) -> Self {
         self.accelerate = accelerate;
         self
@@ -155,6 +162,9 @@ impl KMeansParams {
         }
         if !(self.shift_tolerance.is_finite() && self.shift_tolerance >= 0.0) {
             return Err(ParamsError::BadShiftTolerance(self.shift_tolerance));
+        }
+        if let Some(a) = &self.anneal {
+            a.check()?;
         }
         if self.max_iter == 0 {
             return Err(ParamsError::BadMaxIter(0));

@@ -1,0 +1,195 @@
+//! Deterministic annealing (Rose, Gurewitz & Fox 1990): soft k-means at a sharpness β
+//! raised on a geometric schedule, each stage started from the last, so the means split
+//! one phase transition at a time instead of depending on where k-means++ put them.
+//!
+//! Units. With r_ik ∝ exp(−β·½‖x_i − m_k‖²), all means sit at the data's centroid until
+//! β passes the first critical value β_c = 1/λ_max, λ_max the largest variance along a
+//! principal axis of the (weighted) data. The schedule's start and end are given as
+//! multiples of β_c, so one default fits data of any scale; in CIELAB β itself is in
+//! 1/ΔE*ab².
+//!
+//! Speed. Each stage runs on weighted centroids of grid cells half of 1/√β wide (the
+//! scale the assignment can resolve at that β), never finer than a floor of σ_max/32;
+//! the result is then polished by hard Lloyd iterations on every row (by the caller).
+
+use super::model::coarsen;
+use super::soft::soft_kmeans;
+use super::Dataset;
+use crate::error::ParamsError;
+use crate::rng::Rng;
+
+/// The annealing schedule.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Anneal {
+    /// First β, as a multiple of β_c = 1/λ_max. Default: 0.5 (all means together).
+    pub start: f64,
+    /// Last β, as a multiple of β_c. Default: 2000 (near-hard on the data's own scale).
+    pub end: f64,
+    /// Ratio between successive β. Default: 1.25.
+    pub factor: f64,
+    /// Most soft iterations per stage. Default: 40.
+    pub stage_iter: usize,
+}
+
+impl Default for Anneal {
+    fn default() -> Self {
+        Anneal {
+            start: 0.5,
+            end: 2000.0,
+            factor: 1.25,
+            stage_iter: 40,
+        }
+    }
+}
+
+impl Anneal {
+    /// Checks the schedule.
+    pub fn check(&self) -> Result<(), ParamsError> {
+        let ok = self.start.is_finite()
+            && self.start > 0.0
+            && self.end.is_finite()
+            && self.end > self.start
+            && self.factor.is_finite()
+            && self.factor > 1.0
+            && self.stage_iter > 0
+            && (self.end / self.start).ln() / self.factor.ln() <= 10_000.0;
+        if ok {
+            Ok(())
+        } else {
+            Err(ParamsError::BadAnneal(format!(
+                "start {} and end {} must be positive with end > start, factor {} must be > 1, \
+                 and at most 10000 stages",
+                self.start, self.end, self.factor
+            )))
+        }
+    }
+}
+
+/// What the annealing did.
+#[derive(Debug, Clone, PartialEq)]
+pub struct AnnealResult {
+    /// Means at the end of the last stage (before any hard polish), `k × dim`.
+    pub means: Vec<f64>,
+    /// β_c = 1/λ_max of the data.
+    pub beta_critical: f64,
+    /// Stages run.
+    pub stages: usize,
+    /// Soft iterations over all stages.
+    pub iterations: usize,
+}
+
+/// Weighted mean and the largest eigenvalue of the weighted covariance (power iteration).
+fn centroid_and_lambda_max(data: &Dataset) -> (Vec<f64>, f64) {
+    let dim = data.dim();
+    let total = data.total_weight();
+    let mut mean = vec![0.0f64; dim];
+    for i in 0..data.len() {
+        let w = data.weight(i);
+        for (m, &x) in mean.iter_mut().zip(data.row(i)) {
+            *m += w * x as f64;
+        }
+    }
+    mean.iter_mut().for_each(|m| *m /= total);
+    let mut cov = vec![0.0f64; dim * dim];
+    for i in 0..data.len() {
+        let w = data.weight(i);
+        let x = data.row(i);
+        for a in 0..dim {
+            let da = x[a] as f64 - mean[a];
+            for b in 0..dim {
+                cov[a * dim + b] += w * da * (x[b] as f64 - mean[b]);
+            }
+        }
+    }
+    cov.iter_mut().for_each(|c| *c /= total);
+    let mut v = vec![1.0f64; dim];
+    let mut lambda = 0.0;
+    for _ in 0..200 {
+        let mut nv = vec![0.0f64; dim];
+        for a in 0..dim {
+            for b in 0..dim {
+                nv[a] += cov[a * dim + b] * v[b];
+            }
+        }
+        let norm = nv.iter().map(|x| x * x).sum::<f64>().sqrt();
+        if norm == 0.0 {
+            break;
+        }
+        let next = norm / v.iter().map(|x| x * x).sum::<f64>().sqrt();
+        v = nv.iter().map(|x| x / norm).collect();
+        let done = (next - lambda).abs() <= 1e-12 * next;
+        lambda = next;
+        if done {
+            break;
+        }
+    }
+    (mean, lambda)
+}
+
+/// Anneals `k` means over `data` on `schedule`, seeded (the seed only sets the tiny
+/// perturbations that let coincident means separate at each phase transition).
+pub fn anneal(data: &Dataset, k: usize, schedule: &Anneal, seed: u64, tolerance: f64) -> AnnealResult {
+    let dim = data.dim();
+    let (centre, lambda) = centroid_and_lambda_max(data);
+    let sigma = lambda.sqrt();
+    let mut rng = Rng::new(seed, 0xA77E);
+    let jitter = 1e-3 * sigma.max(f64::MIN_POSITIVE);
+    let mut means: Vec<f64> = (0..k)
+        .flat_map(|_| centre.clone())
+        .collect();
+    if !(lambda > 0.0) {
+        // All rows equal: nothing to split.
+        return AnnealResult {
+            means,
+            beta_critical: f64::INFINITY,
+            stages: 0,
+            iterations: 0,
+        };
+    }
+    let beta_c = 1.0 / lambda;
+
+    // Levels of grid summaries: the finest at σ/32, each next one twice as coarse.
+    let floor_cell = sigma / 32.0;
+    let mut levels: Vec<(f64, Vec<f32>, Vec<f64>)> = Vec::new();
+    let (r0, w0) = coarsen(data, floor_cell);
+    levels.push((floor_cell, r0, w0));
+    while levels.last().unwrap().0 < sigma && levels.last().unwrap().2.len() > 4 * k {
+        let (cell, rows, weights) = levels.last().unwrap();
+        let finer = Dataset::new(rows, dim, Some(weights)).expect("grid summary is valid");
+        let (r, w) = coarsen(&finer, cell * 2.0);
+        levels.push((cell * 2.0, r, w));
+    }
+
+    let mut beta = schedule.start * beta_c;
+    let end = schedule.end * beta_c;
+    let mut stages = 0;
+    let mut iterations = 0;
+    loop {
+        // The coarsest level whose cells are at most half of 1/√β.
+        let want = 0.5 / beta.sqrt();
+        let level = levels
+            .iter()
+            .rev()
+            .find(|(cell, _, _)| *cell <= want)
+            .unwrap_or(&levels[0]);
+        let stage_data =
+            Dataset::new(&level.1, dim, Some(&level.2)).expect("grid summary is valid");
+        for m in means.iter_mut() {
+            *m += jitter * (2.0 * rng.uniform() - 1.0);
+        }
+        let r = soft_kmeans(&stage_data, &means, beta, schedule.stage_iter, tolerance);
+        means = r.means;
+        iterations += r.iterations;
+        stages += 1;
+        if beta >= end {
+            break;
+        }
+        beta = (beta * schedule.factor).min(end);
+    }
+    AnnealResult {
+        means,
+        beta_critical: beta_c,
+        stages,
+        iterations,
+    }
+}

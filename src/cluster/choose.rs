@@ -1,0 +1,181 @@
+//! Choosing K: a warm-started path of fits over a range of K, and two published criteria
+//! to compare them, the mean silhouette (Rousseeuw 1987) and the BIC (Schwarz 1978) of
+//! the matching isotropic Gaussian mixture.
+
+use super::hard::{lloyd, LloydResult, Stop};
+use super::init::{kmeans_plus_plus, kmeans_plus_plus_from};
+use super::{dist2, Dataset};
+use crate::rng::Rng;
+use rayon::prelude::*;
+
+/// Fits K = 1, 2, … up to `k_max`: K = 1 from seeded k-means++, each next one from the
+/// previous solution plus one greedy k-means++ centre, each polished by Lloyd. `step`
+/// sees the fits with K ≥ `k_min` in turn and returns false to stop early. The path also
+/// stops when the data has no more distinct rows than the last K.
+///
+/// The path always starts at K = 1, so the fit at each K depends only on the data, `seed`
+/// and `stop`, never on the range asked: a sweep over 2..16 and a search for the smallest
+/// K meeting a target see the same fit at every K.
+pub fn k_path(
+    data: &Dataset,
+    k_min: usize,
+    k_max: usize,
+    seed: u64,
+    stop: Stop,
+    accelerate: bool,
+    mut step: impl FnMut(usize, &LloydResult) -> bool,
+) {
+    let dim = data.dim();
+    let mut prev: Option<Vec<f32>> = None;
+    for k in 1..=k_max {
+        // One generator stream per K: reproducible whatever the range asked.
+        let mut rng = Rng::new(seed, k as u64);
+        let init = match &prev {
+            None => kmeans_plus_plus(data, k, &mut rng),
+            Some(p) => kmeans_plus_plus_from(data, p, k, &mut rng),
+        };
+        if init.len() / dim < k {
+            return; // fewer distinct rows than K
+        }
+        let res = lloyd(data, &init, stop, accelerate);
+        prev = Some(res.means.iter().map(|&v| v as f32).collect());
+        if k >= k_min && !step(k, &res) {
+            return;
+        }
+    }
+}
+
+/// Indices of `n` rows drawn with probability proportional to weight, with replacement,
+/// from a seeded generator (a sample of pixels when rows are histogram entries).
+pub fn weighted_sample(data: &Dataset, n: usize, seed: u64) -> Vec<usize> {
+    let mut cum = Vec::with_capacity(data.len());
+    let mut s = 0.0f64;
+    for i in 0..data.len() {
+        s += data.weight(i);
+        cum.push(s);
+    }
+    if s <= 0.0 {
+        return Vec::new();
+    }
+    let mut rng = Rng::new(seed, 0x5111);
+    let mut out: Vec<usize> = (0..n)
+        .map(|_| {
+            let u = rng.uniform() * s;
+            cum.partition_point(|&c| c <= u).min(data.len() - 1)
+        })
+        .collect();
+    out.sort_unstable();
+    out
+}
+
+/// Mean silhouette width (Rousseeuw 1987) of `rows` (`n × dim`) under `labels`, with
+/// Euclidean distances: s(i) = (b − a) / max(a, b), a the mean distance from i to the
+/// other members of its cluster, b the smallest mean distance to another cluster; s = 0
+/// for a point alone in its cluster. None when fewer than two clusters are occupied.
+/// Exact, O(n²·dim); the same definition as scikit-learn's `silhouette_score`.
+pub fn silhouette(rows: &[f32], dim: usize, labels: &[u32]) -> Option<f64> {
+    let n = labels.len();
+    let k = labels.iter().map(|&l| l as usize + 1).max().unwrap_or(0);
+    let mut size = vec![0usize; k];
+    for &l in labels {
+        size[l as usize] += 1;
+    }
+    if size.iter().filter(|&&c| c > 0).count() < 2 {
+        return None;
+    }
+    let s: Vec<f64> = (0..n)
+        .into_par_iter()
+        .with_min_len(64)
+        .map(|i| {
+            let xi = &rows[i * dim..(i + 1) * dim];
+            let mut sum = vec![0.0f64; k];
+            for j in 0..n {
+                let d = (dist2(xi, &rows[j * dim..(j + 1) * dim]) as f64).sqrt();
+                sum[labels[j] as usize] += d;
+            }
+            let own = labels[i] as usize;
+            if size[own] <= 1 {
+                return 0.0;
+            }
+            let a = sum[own] / (size[own] - 1) as f64;
+            let b = (0..k)
+                .filter(|&c| c != own && size[c] > 0)
+                .map(|c| sum[c] / size[c] as f64)
+                .fold(f64::INFINITY, f64::min);
+            let m = a.max(b);
+            if m > 0.0 {
+                (b - a) / m
+            } else {
+                0.0
+            }
+        })
+        .collect();
+    Some(s.iter().sum::<f64>() / n as f64)
+}
+
+/// BIC = p·ln N − 2·ln L (Schwarz 1978) of the isotropic Gaussian mixture that matches a
+/// hard k-means solution: mixing weights n_j / N, the K means, and one shared variance
+/// σ² = SSE / (N·dim) (the maximum-likelihood value); L is the classification
+/// likelihood of the hard assignment, and p = (K − 1) + K·dim + 1. Lower is better.
+/// `cluster_weights` are the n_j (pixels when rows are histogram entries). None when the
+/// SSE is zero (every point on its mean: the likelihood is unbounded).
+pub fn bic(sse: f64, cluster_weights: &[f64], dim: usize) -> Option<f64> {
+    let n: f64 = cluster_weights.iter().sum();
+    if !(sse > 0.0 && n > 0.0) {
+        return None;
+    }
+    let d = dim as f64;
+    let k = cluster_weights.iter().filter(|&&w| w > 0.0).count() as f64;
+    let var = sse / (n * d);
+    let mix: f64 = cluster_weights
+        .iter()
+        .filter(|&&w| w > 0.0)
+        .map(|&w| w * (w / n).ln())
+        .sum();
+    let log_l = mix - 0.5 * n * d * (2.0 * std::f64::consts::PI * var).ln() - 0.5 * n * d;
+    let p = (k - 1.0) + k * d + 1.0;
+    Some(p * n.ln() - 2.0 * log_l)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn silhouette_of_a_hand_worked_case() {
+        // Points 0, 1 in one cluster and 4 in another (one dimension).
+        // s(0): a = 1, b = 4 → 0.75; s(1): a = 1, b = 3 → 2/3; s(4): alone → 0.
+        let rows = [0.0f32, 1.0, 4.0];
+        let s = silhouette(&rows, 1, &[0, 0, 1]).unwrap();
+        assert!((s - (0.75 + 2.0 / 3.0) / 3.0).abs() < 1e-12);
+        assert_eq!(silhouette(&rows, 1, &[0, 0, 0]), None);
+    }
+
+    #[test]
+    fn bic_counts_parameters_and_likelihood() {
+        // One cluster of N = 4 in one dimension with SSE 4: σ² = 1,
+        // ln L = −(4/2)·ln(2π) − 2, p = 2.
+        let b = bic(4.0, &[4.0], 1).unwrap();
+        let expect = 2.0 * 4f64.ln() + 4.0 * (2.0 * std::f64::consts::PI).ln() + 4.0;
+        assert!((b - expect).abs() < 1e-12);
+        assert_eq!(bic(0.0, &[4.0], 1), None);
+    }
+
+    #[test]
+    fn path_fits_are_the_same_whatever_the_range() {
+        let rows: Vec<f32> = (0..600).map(|i| ((i * 37) % 113) as f32 * 0.5).collect();
+        let data = Dataset::new(&rows, 2, None).unwrap();
+        let mut long = Vec::new();
+        k_path(&data, 1, 6, 9, Stop::exact(100), true, |k, r| {
+            long.push((k, r.sse));
+            true
+        });
+        let mut short = Vec::new();
+        k_path(&data, 3, 6, 9, Stop::exact(100), true, |k, r| {
+            short.push((k, r.sse));
+            k < 4
+        });
+        assert_eq!(long.len(), 6);
+        assert_eq!(&long[2..4], &short[..]);
+    }
+}
