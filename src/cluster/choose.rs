@@ -137,6 +137,50 @@ pub fn bic(sse: f64, cluster_weights: &[f64], dim: usize) -> Option<f64> {
     Some(p * n.ln() - 2.0 * log_l)
 }
 
+/// One bin of a reliability table: predicted probabilities in [lo, hi).
+#[derive(Debug, Clone, PartialEq)]
+pub struct CalibrationBin {
+    pub lo: f64,
+    pub hi: f64,
+    /// (row, cluster) pairs whose predicted probability fell in the bin.
+    pub count: usize,
+    /// Mean predicted probability in the bin.
+    pub mean_predicted: f64,
+    /// Fraction of those pairs where the cluster was the row's true component.
+    pub observed: f64,
+}
+
+/// Reliability table of soft assignments against known components: every (row, cluster)
+/// pair contributes its responsibility `resp[i·k + j]` as a prediction of the event
+/// "row i came from component j", binned into `bins` equal-width bins of [0, 1]. A
+/// calibrated assignment has `observed ≈ mean_predicted` in every well-filled bin.
+/// `truth[i]` must already be expressed in cluster numbering.
+pub fn calibration(resp: &[f64], k: usize, truth: &[u32], bins: usize) -> Vec<CalibrationBin> {
+    let mut count = vec![0usize; bins];
+    let mut pred = vec![0.0f64; bins];
+    let mut hit = vec![0usize; bins];
+    for (i, &t) in truth.iter().enumerate() {
+        for j in 0..k {
+            let r = resp[i * k + j];
+            let b = ((r * bins as f64) as usize).min(bins - 1);
+            count[b] += 1;
+            pred[b] += r;
+            if t as usize == j {
+                hit[b] += 1;
+            }
+        }
+    }
+    (0..bins)
+        .map(|b| CalibrationBin {
+            lo: b as f64 / bins as f64,
+            hi: (b + 1) as f64 / bins as f64,
+            count: count[b],
+            mean_predicted: if count[b] > 0 { pred[b] / count[b] as f64 } else { 0.0 },
+            observed: if count[b] > 0 { hit[b] as f64 / count[b] as f64 } else { 0.0 },
+        })
+        .collect()
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

@@ -18,7 +18,7 @@ mod soft;
 
 pub use hard::{assign_nearest, lloyd, LloydResult, Stop};
 pub use anneal::{anneal, Anneal, AnnealResult};
-pub use choose::{bic, k_path, silhouette, weighted_sample};
+pub use choose::{bic, calibration, k_path, silhouette, weighted_sample, CalibrationBin};
 pub use init::{kmeans_plus_plus, kmeans_plus_plus_from};
 pub use model::{finish, fit, fit_from, stop_rule, KMeansModel};
 pub use params::{Beta, KMeansParams, Mode, ValidParams, MAX_K};

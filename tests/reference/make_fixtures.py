@@ -375,6 +375,13 @@ def make_iris() -> dict:
                    algorithm="lloyd", random_state=seed, tol=1e-10,
                    max_iter=1000).fit(data).inertia_))
 
+    by_k = []
+    for k in range(2, 7):
+        lab = KMeans(n_clusters=k, init="k-means++", n_init=1, algorithm="lloyd",
+                     random_state=0).fit(data).labels_
+        by_k.append({"k": k, "labels": [int(v) for v in lab],
+                     "silhouette": float(silhouette_score(data, lab, metric="euclidean"))})
+
     obj = {
         "source": (
             "data: Fisher (1936), 'The use of multiple measurements in "
@@ -408,6 +415,12 @@ def make_iris() -> dict:
         "silhouette_note": (
             "sklearn.metrics.silhouette_score(data, kmeans.labels, "
             "metric='euclidean')"
+        ),
+        "silhouette_by_k": by_k,
+        "silhouette_by_k_note": (
+            "labels of KMeans(n_clusters=k, init='k-means++', n_init=1, "
+            "algorithm='lloyd', random_state=0) and "
+            "sklearn.metrics.silhouette_score(data, labels, metric='euclidean'), k = 2..6"
         ),
     }
     write_json("iris_kmeans.json", obj)
