@@ -193,6 +193,9 @@ fn main() -> ExitCode {
             let opts = args.options();
             match chromasift::separate::separate_file(&args.input, &args.inks, &args.out, &opts) {
                 Ok(report) => {
+                    for n in &report.document.notes {
+                        eprintln!("chromasift: note: {}: {n}", args.input.display());
+                    }
                     eprintln!("{}", chromasift::separate::summary_table(&report.document));
                     eprintln!(
                         "chromasift: {}: {} plates written in {:.2} s",

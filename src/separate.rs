@@ -41,6 +41,9 @@ pub struct SeparateOptions {
     pub seed: u64,
     /// Decode limits.
     pub limits: Limits,
+    /// Choose the number of inks as the smallest meeting a ΔE2000 target (then `k` is
+    /// unused). Default: off.
+    pub target: Option<crate::reduce::QualityTarget>,
 }
 
 impl Default for SeparateOptions {
@@ -55,6 +58,7 @@ impl Default for SeparateOptions {
             dpi: None,
             seed: crate::rng::DEFAULT_SEED,
             limits: Limits::default(),
+            target: None,
         }
     }
 }
@@ -101,6 +105,9 @@ pub struct SeparationDocument {
     pub regions_kept_isolated: usize,
     /// Inks in print order (lightest first).
     pub inks: Vec<InkReport>,
+    /// How the number of inks was chosen, when a ΔE2000 target chose it.
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub notes: Vec<String>,
 }
 
 /// A separation in memory.
@@ -150,6 +157,10 @@ pub fn resolve_inks(
     if opts.all {
         return Ok(((0..library.len()).count(), (0..library.len()).collect()));
     }
+    if opts.target.is_some() {
+        // The number of inks is searched; only the forced inks are fixed.
+        return Ok((forced.len().max(1), forced));
+    }
     if opts.k == 0 {
         return Err(crate::error::ParamsError::KTooSmall(0).into());
     }
@@ -170,6 +181,75 @@ pub fn resolve_inks(
         ));
     }
     Ok((opts.k, forced))
+}
+
+/// The smallest number of inks (from the forced ones, at least 1, up to the target's
+/// `k_max` and the library size) whose best set reproduces the artwork within the target,
+/// judged on the ink choice itself (each colour to its nearest chosen ink or the
+/// substrate, before small regions are merged). Returns the selection and a note saying
+/// what was chosen and why.
+fn choose_for_target(
+    table: &CostTable,
+    labs: &[[f64; 3]],
+    weights: &[f64],
+    library: &[Ink],
+    forced: &[usize],
+    opts: &SeparateOptions,
+    target: &crate::reduce::QualityTarget,
+) -> (select::Selection, String) {
+    let total: f64 = weights.iter().sum();
+    let lo = forced.len().max(1);
+    let hi = target.k_max.min(library.len()).max(lo);
+    let mut tried: Vec<(usize, f64)> = Vec::new();
+    let mut last = None;
+    for k in lo..=hi {
+        let sel = select::choose(table, labs, library, k, forced, opts.seed);
+        let per_entry: Vec<f64> = (0..table.n)
+            .map(|e| {
+                let best = sel
+                    .chosen
+                    .iter()
+                    .map(|&i| table.cost[e * table.m + i])
+                    .fold(f32::INFINITY, f32::min);
+                match &table.substrate {
+                    Some(s) => best.min(s[e]) as f64,
+                    None => best as f64,
+                }
+            })
+            .collect();
+        let (mean, p95) = crate::reduce::mean_and_p95(&per_entry, weights, total);
+        let value = match target.statistic {
+            crate::reduce::TargetStatistic::Mean => mean,
+            crate::reduce::TargetStatistic::P95 => p95,
+        };
+        tried.push((k, value));
+        let met = value <= target.delta_e;
+        last = Some(sel);
+        if met {
+            let before = tried
+                .len()
+                .checked_sub(2)
+                .map(|i| format!("; {} inks: {:.2}", tried[i].0, tried[i].1))
+                .unwrap_or_default();
+            return (
+                last.unwrap(),
+                format!(
+                    "chose {k} inks, the fewest whose {} ΔE2000 is at most {} ({k} inks: {value:.2}{before})",
+                    target.statistic.name(),
+                    target.delta_e
+                ),
+            );
+        }
+    }
+    let (k, value) = *tried.last().expect("at least one size tried");
+    (
+        last.expect("at least one size tried"),
+        format!(
+            "no set of up to {hi} inks has a {} ΔE2000 of at most {}; using {k} inks ({value:.2})",
+            target.statistic.name(),
+            target.delta_e
+        ),
+    )
 }
 
 /// A file-safe form of an ink name: lowercase letters and digits, other runs as '-'.
@@ -226,12 +306,18 @@ pub fn separate_image(
     ph.mark("histogram and CIELAB D50");
     let table = CostTable::new(&labs, &weights, library, substrate_lab);
     ph.mark("cost table");
+    let mut notes = Vec::new();
     let selection = if opts.all {
         select::Selection {
             chosen: (0..library.len()).collect(),
             total_delta_e: table.objective(&(0..library.len()).collect::<Vec<_>>()),
             method: Method::All,
         }
+    } else if let Some(target) = &opts.target {
+        target.check()?;
+        let (selection, note) = choose_for_target(&table, &labs, &weights, library, &forced, opts, target);
+        notes.push(note);
+        selection
     } else {
         select::choose(&table, &labs, library, k, &forced, opts.seed)
     };
@@ -362,6 +448,7 @@ pub fn separate_image(
         regions_merged: merge.merged,
         regions_kept_isolated: merge.kept_isolated,
         inks: inks_report,
+        notes,
     };
     Ok(Separation {
         width: img.width,

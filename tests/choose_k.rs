@@ -330,3 +330,37 @@ fn soft_assignment_at_auto_beta_is_calibrated() {
     }
     assert!(checked >= 6, "{table:?}");
 }
+
+/// `separate --target-delta-e T` uses the fewest inks whose separation is within T: the
+/// same count as the smallest `-k` run (without region merging) whose mean ΔE2000 ≤ T.
+#[test]
+fn separate_target_uses_the_fewest_inks_within_the_target() {
+    let dir = tempfile::tempdir().unwrap();
+    let art = fixture("demo/harbour-poster.png");
+    let inks = fixture("demo/quayside-inks.csv");
+    let (a, l) = (art.to_str().unwrap(), inks.to_str().unwrap());
+    let mean_for = |args: &[&str]| -> (u64, f64, String) {
+        let out = dir.path().join("o");
+        let mut v = vec!["separate", a, "--inks", l, "--min-area", "1", "--json", "-o"];
+        let os = out.to_str().unwrap().to_string();
+        v.push(&os);
+        v.extend_from_slice(args);
+        let o = run(&v, &[]);
+        assert_eq!(o.status.code(), Some(0), "{}", stderr(&o));
+        let d: Value = serde_json::from_slice(&o.stdout).unwrap();
+        std::fs::remove_dir_all(&out).unwrap();
+        (
+            d["inks"].as_array().unwrap().len() as u64,
+            d["mean_delta_e2000"].as_f64().unwrap(),
+            stderr(&o),
+        )
+    };
+    let per_k: Vec<f64> = (1..=5).map(|k| mean_for(&["-k", &k.to_string()]).1).collect();
+    let target = (per_k[2] + per_k[3]) / 2.0;
+    let want = 1 + per_k.iter().position(|&m| m <= target).unwrap() as u64;
+    let t = format!("{target}");
+    let (n, mean, err) = mean_for(&["--target-delta-e", &t, "--k-max", "5"]);
+    assert_eq!(n, want, "{err}");
+    assert!(mean <= target);
+    assert!(err.contains(&format!("chose {want} inks")), "{err}");
+}

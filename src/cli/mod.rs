@@ -25,6 +25,7 @@ Exit status: 0 success, 2 bad parameters or unreadable input (nothing is written
 const SEPARATE_EXAMPLES: &str = "\
 Examples:
   chromasift separate fixtures/demo/harbour-poster.png --inks fixtures/demo/quayside-inks.csv -k 4 -o plates/
+  chromasift separate artwork.png --inks shop-inks.csv --target-delta-e 3 --k-max 6 -o plates/
   chromasift separate artwork.png --inks shop-inks.csv --use \"Night Black,Harbour Blue\" -k 3 \\
       --substrate \"#ffffff\" --min-area 24 --trap 2 -o plates/
 
@@ -353,6 +354,20 @@ pub struct SeparateArgs {
     #[arg(long, value_name = "DPI")]
     pub dpi: Option<f64>,
 
+    /// Choose the number of inks instead of giving it: the fewest (up to --k-max) whose
+    /// mean CIEDE2000 to the artwork is at most this (rules of thumb, common practice:
+    /// about 1 is noticeable to a trained observer, 2 to 3 a usual print tolerance).
+    #[arg(long = "target-delta-e", value_name = "ΔE2000", conflicts_with_all = ["k", "all"])]
+    pub target_delta_e: Option<f64>,
+
+    /// With --target-delta-e: bound the 95th percentile instead of the mean.
+    #[arg(long = "target-p95", requires = "target_delta_e")]
+    pub target_p95: bool,
+
+    /// With --target-delta-e: the most inks tried.
+    #[arg(long = "k-max", default_value_t = 8, value_name = "K")]
+    pub k_max: usize,
+
     /// Seed of the k-means start of the ink search.
     #[arg(long, default_value_t = DEFAULT_SEED)]
     pub seed: u64,
@@ -393,6 +408,15 @@ impl SeparateArgs {
             dpi: self.dpi,
             seed: self.seed,
             limits: Limits::with_max_pixels(self.max_pixels),
+            target: self.target_delta_e.map(|delta_e| crate::reduce::QualityTarget {
+                delta_e,
+                statistic: if self.target_p95 {
+                    crate::reduce::TargetStatistic::P95
+                } else {
+                    crate::reduce::TargetStatistic::Mean
+                },
+                k_max: self.k_max,
+            }),
         }
     }
 }
