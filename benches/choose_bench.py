@@ -1,0 +1,95 @@
+"""Speed of choosing K and of annealing, against a single `reduce`.
+
+    cargo build --release
+    python3 benches/choose_bench.py [--photo PATH] [--roll DIR --roll-count 6]
+
+On the 12-megapixel photo made by benches/compare_sklearn.py (skimage coffee, CC0,
+4000 x 3000 with seeded noise; default /tmp/chromasift-bench/coffee-4000x3000-noise2.png):
+
+* `reduce -k 16` (plain), `sweep --k 2..16`, `reduce -k 16 --anneal`: wall time
+  (median of --repeats runs). Targets (issue: choosing K and beta): sweep under 4x the
+  plain run, anneal under 3x.
+* SSE of `--anneal` against plain k-means++ given the same time: `--restarts R` with R
+  the whole number of plain runs that fit in the annealing run's time (at least 1).
+
+The same SSE comparison is repeated on the first --roll-count photos of the batch
+benchmark's roll (benches/batch_bench.py), so "most images" can be counted.
+"""
+import argparse
+import json
+import os
+import re
+import statistics
+import subprocess
+import tempfile
+import time
+
+ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
+BIN = os.path.join(ROOT, "target", "release", "chromasift")
+
+
+def run(args):
+    out = tempfile.mkdtemp(prefix="chromasift-choose-")
+    t = time.perf_counter()
+    r = subprocess.run([BIN] + args + ["-o", out], capture_output=True, text=True)
+    dt = time.perf_counter() - t
+    if r.returncode != 0:
+        raise SystemExit(f"failed: {args}\n{r.stderr}")
+    return dt, out, r.stderr
+
+
+def sse_of(out):
+    for f in os.listdir(out):
+        if f.endswith(".palette.json"):
+            with open(os.path.join(out, f)) as fh:
+                return json.load(fh)["sse"]
+    raise SystemExit("no palette.json")
+
+
+def compare_anneal(image, repeats=1):
+    t_plain = statistics.median(run(["reduce", image, "-k", "16"])[0] for _ in range(repeats))
+    t_ann, out_a, _ = run(["reduce", image, "-k", "16", "--anneal"])
+    r = max(1, int(t_ann // t_plain))
+    _, out_r, _ = run(["reduce", image, "-k", "16", "--restarts", str(r)])
+    return {"plain_s": round(t_plain, 3), "anneal_s": round(t_ann, 3), "restarts": r,
+            "anneal_sse": sse_of(out_a), "restarts_sse": sse_of(out_r)}
+
+
+def main():
+    ap = argparse.ArgumentParser()
+    ap.add_argument("--photo", default="/tmp/chromasift-bench/coffee-4000x3000-noise2.png")
+    ap.add_argument("--roll", default="/tmp/chromasift-bench/roll200")
+    ap.add_argument("--roll-count", type=int, default=6)
+    ap.add_argument("--repeats", type=int, default=3)
+    a = ap.parse_args()
+    res = {}
+    med = lambda args: statistics.median(run(args)[0] for _ in range(a.repeats))
+    res["reduce_k16_s"] = round(med(["reduce", a.photo, "-k", "16"]), 3)
+    res["sweep_2_16_s"] = round(med(["sweep", a.photo, "--k", "2..16"]), 3)
+    res["anneal_k16_s"] = round(med(["reduce", a.photo, "-k", "16", "--anneal"]), 3)
+    res["sweep_ratio"] = round(res["sweep_2_16_s"] / res["reduce_k16_s"], 2)
+    res["anneal_ratio"] = round(res["anneal_k16_s"] / res["reduce_k16_s"], 2)
+    print(f"reduce -k 16        {res['reduce_k16_s']:.2f} s")
+    print(f"sweep --k 2..16     {res['sweep_2_16_s']:.2f} s  ({res['sweep_ratio']}x; target < 4x)")
+    print(f"reduce --anneal     {res['anneal_k16_s']:.2f} s  ({res['anneal_ratio']}x; target < 3x)")
+    images = [a.photo]
+    if os.path.isdir(a.roll):
+        images += sorted(os.path.join(a.roll, f) for f in os.listdir(a.roll)
+                         if f.endswith(".jpg"))[: a.roll_count]
+    wins = 0
+    res["anneal_vs_restarts"] = []
+    for im in images:
+        c = compare_anneal(im)
+        c["image"] = os.path.basename(im)
+        better = c["anneal_sse"] < c["restarts_sse"]
+        wins += better
+        res["anneal_vs_restarts"].append(c)
+        print(f"{c['image']:40s} anneal SSE {c['anneal_sse']:.6e} vs {c['restarts']} restart(s) "
+              f"{c['restarts_sse']:.6e}: {'anneal lower' if better else 'restarts lower or equal'}")
+    res["anneal_lower_on"] = f"{wins}/{len(images)}"
+    print(f"annealing reached a lower SSE on {wins} of {len(images)} images at the same time budget")
+    print(json.dumps(res))
+
+
+if __name__ == "__main__":
+    main()
