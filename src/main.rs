@@ -46,6 +46,66 @@ fn read_palette(path: &std::path::Path) -> Result<reduce::FixedPalette, chromasi
     })
 }
 
+/// `reduce` with standard input (`-`) as input and/or one output on standard output.
+fn reduce_stream(args: &chromasift::cli::ReduceArgs) -> Result<reduce::ReduceReport, chromasift::Error> {
+    use std::io::Read;
+    let t0 = std::time::Instant::now();
+    let opts = args.options();
+    let from_stdin = args.input.as_os_str() == "-";
+    let name = if from_stdin {
+        std::path::PathBuf::from("standard input")
+    } else {
+        args.input.clone()
+    };
+    let bytes = if from_stdin {
+        let mut b = Vec::new();
+        std::io::stdin()
+            .lock()
+            .take(opts.limits.max_alloc + 1)
+            .read_to_end(&mut b)
+            .map_err(|e| chromasift::Error::io(&name, e))?;
+        if b.len() as u64 > opts.limits.max_alloc {
+            return Err(chromasift::Error::LimitExceeded {
+                path: name,
+                message: format!("input is over the limit of {} bytes", opts.limits.max_alloc),
+            });
+        }
+        b
+    } else {
+        std::fs::read(&args.input).map_err(|source| chromasift::Error::Open {
+            path: args.input.clone(),
+            source,
+        })?
+    };
+    let mut red = reduce::reduce_bytes(&bytes, &name, &opts)?;
+    drop(bytes);
+    if !from_stdin {
+        red.document.input = args.input.file_name().map(|n| n.to_string_lossy().into_owned());
+    }
+    let outputs = match args.stdout {
+        Some(which) => {
+            let data = reduce::encode_one(&red, which);
+            let mut out = std::io::stdout().lock();
+            out.write_all(&data)
+                .and_then(|_| out.flush())
+                .map_err(|e| chromasift::Error::io(std::path::Path::new("standard output"), e))?;
+            Vec::new()
+        }
+        None => {
+            let mut set = chromasift::output::OutputSet::prepare(&args.out, &[])?;
+            reduce::write_reduction(&red, "stdin", &mut set, opts.uncertainty_raw)?;
+            set.commit()?
+        }
+    };
+    Ok(reduce::ReduceReport {
+        input: name,
+        outputs,
+        document: red.document,
+        notes: red.notes,
+        seconds: t0.elapsed().as_secs_f64(),
+    })
+}
+
 fn print_reduce_summary(input: &std::path::Path, report: &reduce::ReduceReport, json: bool) {
     for n in &report.notes {
         eprintln!("chromasift: note: {}: {n}", input.display());
@@ -179,6 +239,15 @@ fn main() -> ExitCode {
         }
     };
     match cli.command {
+        Command::Reduce(args) if args.input.as_os_str() == "-" || args.stdout.is_some() => {
+            match reduce_stream(&args) {
+                Ok(report) => {
+                    print_reduce_summary(&args.input, &report, args.json);
+                    ExitCode::SUCCESS
+                }
+                Err(e) => fail(e),
+            }
+        }
         Command::Reduce(args) => {
             let opts = args.options();
             match reduce::reduce_file(&args.input, &args.out, &opts) {
@@ -280,6 +349,20 @@ fn main() -> ExitCode {
             }
         }
         Command::Batch(args) => run_batch(args),
+        Command::Completions(args) => {
+            use clap::CommandFactory;
+            let mut cmd = Cli::command();
+            clap_complete::generate(args.shell, &mut cmd, "chromasift", &mut std::io::stdout());
+            ExitCode::SUCCESS
+        }
+        Command::Manpage => {
+            use clap::CommandFactory;
+            let mut out = std::io::stdout().lock();
+            match clap_mangen::Man::new(Cli::command()).render(&mut out) {
+                Ok(()) => ExitCode::SUCCESS,
+                Err(e) => fail(format!("standard output: {e}")),
+            }
+        }
         Command::Learn(args) => {
             let opts = args.settings.options();
             let result = (|| -> Result<reduce::PaletteDocument, chromasift::Error> {

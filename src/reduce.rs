@@ -832,6 +832,50 @@ pub fn encode_reduced(red: &Reduction, w: &mut impl std::io::Write) -> std::io::
     }
 }
 
+/// One output of a reduction, for `--stdout`.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum OneOutput {
+    /// `STEM.reduced.png`.
+    Reduced,
+    /// `STEM.uncertainty.png`.
+    Uncertainty,
+    /// `STEM.palette.json`.
+    Palette,
+}
+
+impl std::str::FromStr for OneOutput {
+    type Err = String;
+    fn from_str(s: &str) -> std::result::Result<Self, String> {
+        match s {
+            "reduced" => Ok(OneOutput::Reduced),
+            "uncertainty" => Ok(OneOutput::Uncertainty),
+            "palette" => Ok(OneOutput::Palette),
+            _ => Err(format!(
+                "--stdout takes reduced, uncertainty or palette (got '{s}')"
+            )),
+        }
+    }
+}
+
+/// Encodes one output of a reduction, byte for byte as [`write_reduction`] writes it.
+pub fn encode_one(red: &Reduction, which: OneOutput) -> Vec<u8> {
+    let mut out = Vec::new();
+    match which {
+        OneOutput::Reduced => encode_reduced(red, &mut out).expect("writing to memory"),
+        OneOutput::Uncertainty => {
+            let grey = render::uncertainty_u8(&red.pixel_entry, &red.entry_uncertainty);
+            raster::write_grey_png(&mut out, red.width, red.height, &grey)
+                .expect("writing to memory")
+        }
+        OneOutput::Palette => {
+            let json =
+                serde_json::to_string_pretty(&red.document).expect("palette document serialises");
+            out.extend_from_slice(format!("{json}\n").as_bytes());
+        }
+    }
+    out
+}
+
 /// Writes every output of a reduction into `set` (not yet committed).
 pub fn write_reduction(
     red: &Reduction,
@@ -879,6 +923,20 @@ pub fn stem_of(input: &Path) -> Result<String> {
         .filter(|s| !s.is_empty())
         .map(str::to_string)
         .ok_or_else(|| Error::output(input, "cannot derive an output name from this file name"))
+}
+
+/// Reduces an image held in memory (for example read from standard input); `name` is
+/// used in messages. Nothing is written.
+pub fn reduce_bytes(bytes: &[u8], name: &Path, opts: &ReduceOptions) -> Result<Reduction> {
+    opts.kmeans_params().check()?;
+    let img = raster::decode_bytes(bytes, name, &opts.limits)?;
+    reduce_image_with(&img, opts, None).map_err(|e| match e {
+        Error::Data(message) => Error::InputData {
+            path: name.into(),
+            message,
+        },
+        other => other,
+    })
 }
 
 /// Reads `input`, reduces it and writes all outputs into `out_dir` atomically.

@@ -16,6 +16,7 @@ Examples:
   chromasift reduce scan.tif -k 12 --space oklab --dither floyd-steinberg --uncertainty-raw -o out/
   chromasift reduce poster.png --target-delta-e 3.0 --k-max 12 -o out/
   chromasift reduce photo.jpg -k 16 --anneal -o out/
+  cat photo.png | chromasift reduce - -k 8 --stdout reduced > photo.k8.png
 
 Writes STEM.reduced.png, STEM.palette.json, STEM.palette.csv and STEM.uncertainty.png
 (plus STEM.uncertainty.tif with --uncertainty-raw) into the output folder.
@@ -94,6 +95,22 @@ pub enum Command {
     /// choose how many colours or classes.
     #[command(after_help = SWEEP_EXAMPLES)]
     Sweep(SweepArgs),
+
+    /// Print a shell completion script on standard output.
+    #[command(after_help = "Example:\n  chromasift completions bash > ~/.local/share/bash-completion/completions/chromasift")]
+    Completions(CompletionsArgs),
+
+    /// Print the manual page (roff) on standard output.
+    #[command(after_help = "Example:\n  chromasift manpage > chromasift.1 && man ./chromasift.1")]
+    Manpage,
+}
+
+/// Flags of `completions`.
+#[derive(Debug, Args, Clone)]
+pub struct CompletionsArgs {
+    /// Shell to write completions for.
+    #[arg(value_name = "bash|zsh|fish|elvish|powershell")]
+    pub shell: clap_complete::Shell,
 }
 
 const SWEEP_EXAMPLES: &str = "\
@@ -424,7 +441,8 @@ impl SeparateArgs {
 /// Flags of `reduce`.
 #[derive(Debug, Args, Clone)]
 pub struct ReduceArgs {
-    /// Image to reduce (PNG, JPEG, TIFF, WebP, BMP, GIF; 8 or 16 bits per sample).
+    /// Image to reduce (PNG, JPEG, TIFF, WebP, BMP, GIF; 8 or 16 bits per sample), or `-`
+    /// to read it from standard input (outputs are then named stdin.*).
     pub input: PathBuf,
 
     #[command(flatten)]
@@ -435,8 +453,12 @@ pub struct ReduceArgs {
     pub out: PathBuf,
 
     /// Print the palette document on standard output.
-    #[arg(long)]
+    #[arg(long, conflicts_with = "stdout")]
     pub json: bool,
+
+    /// Write this one output to standard output instead of files (for pipelines).
+    #[arg(long, value_name = "reduced|uncertainty|palette")]
+    pub stdout: Option<crate::reduce::OneOutput>,
 }
 
 /// The reduction settings shared by `reduce`, `batch`, `learn` and `apply`.

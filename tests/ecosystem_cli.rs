@@ -1,0 +1,157 @@
+//! Pipelines, completions, the manual page and terminal manners.
+
+mod common;
+
+use common::{fixture, run, stderr};
+use std::io::Write;
+use std::process::{Command, Stdio};
+
+fn bin() -> &'static str {
+    env!("CARGO_BIN_EXE_chromasift")
+}
+
+/// Runs the binary with `input` on standard input; returns (exit code, stdout, stderr).
+fn piped(args: &[&str], input: &[u8], env: &[(&str, &str)]) -> (Option<i32>, Vec<u8>, String) {
+    let mut c = Command::new(bin());
+    c.args(args)
+        .stdin(Stdio::piped())
+        .stdout(Stdio::piped())
+        .stderr(Stdio::piped());
+    for (k, v) in env {
+        c.env(k, v);
+    }
+    let mut child = c.spawn().unwrap();
+    let mut stdin = child.stdin.take().unwrap();
+    let data = input.to_vec();
+    let feeder = std::thread::spawn(move || {
+        let _ = stdin.write_all(&data);
+    });
+    let o = child.wait_with_output().unwrap();
+    feeder.join().unwrap();
+    (
+        o.status.code(),
+        o.stdout,
+        String::from_utf8_lossy(&o.stderr).into_owned(),
+    )
+}
+
+#[test]
+fn stdin_to_stdout_equals_the_file_path_result_byte_for_byte() {
+    let poster = fixture("demo/harbour-poster.png");
+    let bytes = std::fs::read(&poster).unwrap();
+    let dir = tempfile::tempdir().unwrap();
+    let out = dir.path().join("files");
+    let o = run(
+        &["reduce", poster.to_str().unwrap(), "-k", "6", "-o", out.to_str().unwrap()],
+        &[],
+    );
+    assert_eq!(o.status.code(), Some(0), "{}", stderr(&o));
+    for (which, file) in [
+        ("reduced", "harbour-poster.reduced.png"),
+        ("uncertainty", "harbour-poster.uncertainty.png"),
+    ] {
+        let (code, stdout, err) = piped(&["reduce", "-", "-k", "6", "--stdout", which], &bytes, &[]);
+        assert_eq!(code, Some(0), "{err}");
+        assert_eq!(stdout, std::fs::read(out.join(file)).unwrap(), "{which}");
+    }
+    // The palette document differs only in the input name, which standard input lacks.
+    let (code, stdout, err) = piped(&["reduce", "-", "-k", "6", "--stdout", "palette"], &bytes, &[]);
+    assert_eq!(code, Some(0), "{err}");
+    let mut a: serde_json::Value = serde_json::from_slice(&stdout).unwrap();
+    let mut b: serde_json::Value =
+        serde_json::from_slice(&std::fs::read(out.join("harbour-poster.palette.json")).unwrap())
+            .unwrap();
+    a.as_object_mut().unwrap().remove("input");
+    b.as_object_mut().unwrap().remove("input");
+    assert_eq!(a, b);
+
+    // A file input with --stdout writes nothing to the output folder.
+    let quiet = dir.path().join("none");
+    let o = run(
+        &[
+            "reduce",
+            poster.to_str().unwrap(),
+            "-k",
+            "6",
+            "--stdout",
+            "reduced",
+            "-o",
+            quiet.to_str().unwrap(),
+        ],
+        &[],
+    );
+    assert_eq!(o.status.code(), Some(0));
+    assert_eq!(o.stdout, std::fs::read(out.join("harbour-poster.reduced.png")).unwrap());
+    assert!(!quiet.exists());
+}
+
+#[test]
+fn stdin_without_stdout_writes_stdin_named_files_and_bad_input_fails_cleanly() {
+    let bytes = std::fs::read(fixture("demo/harbour-poster.png")).unwrap();
+    let dir = tempfile::tempdir().unwrap();
+    let out = dir.path().join("o");
+    let (code, _, err) = piped(&["reduce", "-", "-k", "4", "-o", out.to_str().unwrap()], &bytes, &[]);
+    assert_eq!(code, Some(0), "{err}");
+    assert_eq!(
+        common::files_in(&out),
+        ["stdin.palette.csv", "stdin.palette.json", "stdin.reduced.png", "stdin.uncertainty.png"]
+    );
+    for bad in [&b""[..], b"not an image at all", &bytes[..bytes.len() / 3]] {
+        let (code, stdout, err) =
+            piped(&["reduce", "-", "-k", "4", "--stdout", "reduced"], bad, &[]);
+        assert_eq!(code, Some(2), "{err}");
+        assert!(stdout.is_empty());
+        assert!(err.starts_with("chromasift: error: standard input: "), "{err}");
+        assert_eq!(err.trim_end().lines().count(), 1, "{err}");
+    }
+    let (code, _, err) = piped(&["reduce", "-", "--stdout", "everything"], &bytes, &[]);
+    assert_eq!(code, Some(2));
+    assert!(err.contains("--stdout takes reduced, uncertainty or palette"), "{err}");
+}
+
+#[test]
+fn completions_and_manual_page_generate() {
+    for shell in ["bash", "zsh", "fish"] {
+        let o = run(&["completions", shell], &[]);
+        assert_eq!(o.status.code(), Some(0), "{shell}: {}", stderr(&o));
+        let text = String::from_utf8(o.stdout).unwrap();
+        for word in ["reduce", "sweep", "landcover", "target-delta-e"] {
+            assert!(text.contains(word), "{shell} completions lack {word}");
+        }
+    }
+    let o = run(&["completions", "tcsh-ish"], &[]);
+    assert_eq!(o.status.code(), Some(2));
+    let o = run(&["manpage"], &[]);
+    assert_eq!(o.status.code(), Some(0));
+    let man = String::from_utf8(o.stdout).unwrap();
+    assert!(man.contains(".TH chromasift 1"), "{man}");
+    for word in ["reduce", "separate", "landcover", "batch", "sweep"] {
+        assert!(man.contains(word), "manual page lacks {word}");
+    }
+}
+
+/// Colour only on a terminal, and never with NO_COLOR set (the no-color.org convention).
+/// `script` (util-linux) gives the command a pseudo-terminal.
+#[test]
+fn no_colour_off_a_terminal_or_with_no_color() {
+    let o = run(&["reduce", "--help"], &[]);
+    assert!(!o.stdout.contains(&0x1b), "escape codes off a terminal");
+    let o = run(&["reduce", "-k", "zero"], &[]);
+    assert!(!o.stderr.contains(&0x1b));
+    let have_script = Command::new("script").arg("--version").output().is_ok();
+    if !have_script {
+        eprintln!("`script` not found: terminal half of the check skipped");
+        return;
+    }
+    let on_tty = |no_color: bool| -> Vec<u8> {
+        let mut c = Command::new("script");
+        c.args(["-qc", &format!("{} reduce --help", bin()), "/dev/null"]);
+        c.env_remove("NO_COLOR");
+        if no_color {
+            c.env("NO_COLOR", "1");
+        }
+        c.output().unwrap().stdout
+    };
+    assert!(on_tty(false).contains(&0x1b), "styled help on a terminal");
+    assert!(!on_tty(true).contains(&0x1b), "NO_COLOR turns styling off");
+}
