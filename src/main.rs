@@ -382,6 +382,14 @@ fn main() -> ExitCode {
                         doc.mean_delta_e2000,
                         args.out.display()
                     );
+                    if args.json {
+                        let mut out = std::io::stdout().lock();
+                        let _ = writeln!(
+                            out,
+                            "{}",
+                            serde_json::to_string_pretty(&doc).expect("document serialises")
+                        );
+                    }
                     ExitCode::SUCCESS
                 }
                 Err(e) => fail(e),
@@ -406,14 +414,26 @@ fn main() -> ExitCode {
                 limits: chromasift::Limits::with_max_pixels(args.max_pixels),
                 ..reduce::ReduceOptions::new(1)
             };
-            let result = (|| -> Result<u64, chromasift::Error> {
+            let result = (|| -> Result<(u64, usize), chromasift::Error> {
                 let hist = batch::gather_histograms(&args.inputs, &opts)?;
                 chromasift::output::write_file(&args.out, &batch::encode_histogram(&hist))?;
-                Ok(hist.total())
+                Ok((hist.total(), hist.len()))
             })();
             match result {
-                Ok(n) => {
+                Ok((n, distinct)) => {
                     eprintln!("chromasift: wrote {} ({n} pixels)", args.out.display());
+                    if args.json {
+                        let mut out = std::io::stdout().lock();
+                        let _ = writeln!(
+                            out,
+                            "{}",
+                            serde_json::json!({
+                                "file": args.out.to_string_lossy(),
+                                "pixels": n,
+                                "distinct_colours": distinct,
+                            })
+                        );
+                    }
                     ExitCode::SUCCESS
                 }
                 Err(e) => fail(e),

@@ -155,3 +155,17 @@ fn no_colour_off_a_terminal_or_with_no_color() {
     assert!(on_tty(false).contains(&0x1b), "styled help on a terminal");
     assert!(!on_tty(true).contains(&0x1b), "NO_COLOR turns styling off");
 }
+
+#[test]
+fn every_workflow_offers_json_and_the_help_states_the_exit_codes() {
+    for c in ["reduce", "separate", "landcover", "batch", "learn", "apply", "histogram", "sweep"] {
+        let o = run(&[c, "--help"], &[]);
+        let help = String::from_utf8(o.stdout).unwrap();
+        assert!(help.contains("--json"), "{c} --help lacks --json");
+    }
+    let o = run(&["--help"], &[]);
+    let help = String::from_utf8(o.stdout).unwrap();
+    for code in ["0 success", "1 some inputs", "2 usage error", "130"] {
+        assert!(help.contains(code), "top-level help lacks exit code {code}: {help}");
+    }
+}

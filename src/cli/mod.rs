@@ -55,7 +55,15 @@ Exit status: 0 success, 2 bad parameters or unreadable input (nothing is written
 
 /// Split images into a few colours or classes with perceptual k-means.
 #[derive(Debug, Parser)]
-#[command(name = "chromasift", version, about, propagate_version = true)]
+#[command(
+    name = "chromasift",
+    version,
+    about,
+    propagate_version = true,
+    after_help = "Exit status: 0 success; 1 some inputs of a batch failed (the rest were done); \
+2 usage error or unreadable input (nothing is written); 130 a batch was interrupted.\n\
+Data goes to standard output, messages to standard error. NO_COLOR turns styling off."
+)]
 pub struct Cli {
     #[command(subcommand)]
     pub command: Command,
@@ -665,6 +673,10 @@ pub struct LearnArgs {
     /// The palette document to write.
     #[arg(short = 'o', long = "out", value_name = "FILE")]
     pub out: PathBuf,
+
+    /// Also print the palette document on standard output.
+    #[arg(long)]
+    pub json: bool,
 }
 
 /// Flags of `apply`.
@@ -703,6 +715,10 @@ pub struct HistogramArgs {
     /// Refuse images with more pixels than this.
     #[arg(long = "max-pixels", default_value_t = Limits::default().max_pixels, value_name = "N")]
     pub max_pixels: u64,
+
+    /// Print a summary (file, pixels, distinct colours) as JSON on standard output.
+    #[arg(long)]
+    pub json: bool,
 }
 
 #[cfg(test)]
