@@ -265,24 +265,51 @@ pub fn run_batch(
     let fixed = if let Some(p) = &opts.palette {
         Some(p.clone())
     } else if opts.shared {
-        let hists: Vec<Result<Histogram>> = pool.install(|| {
+        // Histograms are merged as they arrive (at most MERGE_EVERY pending per worker),
+        // so memory stays bounded however many images the folder holds. Merging sums
+        // exact counts, so the result does not depend on the order.
+        const MERGE_EVERY: usize = 16;
+        let squash = |mut pending: Vec<Histogram>| -> Vec<Histogram> {
+            if pending.len() >= MERGE_EVERY {
+                pending = Histogram::merge(&pending).into_iter().collect();
+            }
+            pending
+        };
+        let (pending, failures) = pool.install(|| {
             images
                 .par_iter()
-                .map(|p| {
-                    if stop.load(Ordering::Relaxed) {
-                        return Err(Error::Data("interrupted".into()));
-                    }
-                    histogram_of_file(p, &opts.reduce)
-                })
-                .collect()
+                .enumerate()
+                .fold(
+                    || (Vec::<Histogram>::new(), Vec::<(usize, String)>::new()),
+                    |(mut pending, mut fails), (i, p)| {
+                        let h = if stop.load(Ordering::Relaxed) {
+                            Err(Error::Data("interrupted".into()))
+                        } else {
+                            histogram_of_file(p, &opts.reduce)
+                        };
+                        match h {
+                            Ok(h) => {
+                                pending.push(h);
+                                pending = squash(pending);
+                            }
+                            Err(e) => fails.push((i, one_line(&e.to_string()))),
+                        }
+                        (pending, fails)
+                    },
+                )
+                .reduce(
+                    || (Vec::new(), Vec::new()),
+                    |(mut a, mut fa), (b, fb)| {
+                        a.extend(b);
+                        fa.extend(fb);
+                        (squash(a), fa)
+                    },
+                )
         });
-        let mut ok = Vec::new();
-        for (i, h) in hists.into_iter().enumerate() {
-            match h {
-                Ok(h) => ok.push(h),
-                Err(e) => early_failures[i] = Some(one_line(&e.to_string())),
-            }
+        for (i, e) in failures {
+            early_failures[i] = Some(e);
         }
+        let ok = pending;
         let merged = Histogram::merge(&ok).ok_or_else(|| {
             Error::Data(format!(
                 "{}: no image could be read to learn a shared palette",
@@ -547,6 +574,9 @@ pub fn decode_histogram(bytes: &[u8], path: &Path) -> Result<Histogram> {
     if depth != 8 && depth != 16 {
         return Err(bad("sample depth must be 8 or 16"));
     }
+    if bytes[9..16].iter().any(|&b| b != 0) {
+        return Err(bad("the 7 reserved header bytes are not zero"));
+    }
     let n = u64::from_le_bytes(bytes[16..24].try_into().unwrap());
     let expected = n.checked_mul(14).and_then(|b| b.checked_add(32));
     if expected != Some(bytes.len() as u64) {
@@ -585,8 +615,9 @@ pub fn decode_histogram(bytes: &[u8], path: &Path) -> Result<Histogram> {
     })
 }
 
-/// Merged histogram of every input: folders (their images), image files and histogram files.
-pub fn gather_histograms(inputs: &[PathBuf], opts: &ReduceOptions) -> Result<Histogram> {
+/// The files `learn` and `histogram` read for `inputs`: each folder's images, and
+/// every other input as given.
+pub fn input_files(inputs: &[PathBuf]) -> Result<Vec<PathBuf>> {
     let mut files = Vec::new();
     for i in inputs {
         if i.is_dir() {
@@ -595,6 +626,12 @@ pub fn gather_histograms(inputs: &[PathBuf], opts: &ReduceOptions) -> Result<His
             files.push(i.clone());
         }
     }
+    Ok(files)
+}
+
+/// Merged histogram of every input: folders (their images), image files and histogram files.
+pub fn gather_histograms(inputs: &[PathBuf], opts: &ReduceOptions) -> Result<Histogram> {
+    let files = input_files(inputs)?;
     if files.is_empty() {
         return Err(Error::Data(
             "no images or histogram files were given".into(),

@@ -144,6 +144,12 @@ impl OutputSet {
 
 /// Writes one file atomically (temporary file in its folder, then renamed).
 pub fn write_file(path: &Path, bytes: &[u8]) -> Result<PathBuf> {
+    write_file_sparing(path, bytes, &[])
+}
+
+/// [`write_file`], refusing to replace any of `inputs`: a command whose output is one
+/// file (`learn`, `histogram`) names the files it read, so `-o` can never overwrite one.
+pub fn write_file_sparing(path: &Path, bytes: &[u8], inputs: &[&Path]) -> Result<PathBuf> {
     let dir = path
         .parent()
         .filter(|p| !p.as_os_str().is_empty())
@@ -152,7 +158,7 @@ pub fn write_file(path: &Path, bytes: &[u8]) -> Result<PathBuf> {
         .file_name()
         .and_then(|n| n.to_str())
         .ok_or_else(|| Error::output(path, "not a file name"))?;
-    let mut set = OutputSet::prepare(dir, &[])?;
+    let mut set = OutputSet::prepare(dir, inputs)?;
     set.write_bytes(name, bytes)?;
     Ok(set.commit()?.remove(0))
 }
@@ -225,5 +231,24 @@ mod tests {
         let set = OutputSet::prepare(root.path(), &[&file]).unwrap();
         assert!(set.check_target("f").is_err());
         assert!(set.check_target("g").is_ok());
+    }
+
+    #[test]
+    fn a_single_file_output_spares_its_inputs() {
+        let root = tempfile::tempdir().unwrap();
+        let input = root.path().join("in.png");
+        fs::write(&input, b"pixels").unwrap();
+        // Named directly, and through a link.
+        let e = write_file_sparing(&input, b"palette", &[&input]).unwrap_err();
+        assert!(e.to_string().contains("overwrite the input"), "{e}");
+        let link = root.path().join("link.json");
+        std::os::unix::fs::symlink(&input, &link).unwrap();
+        assert!(write_file_sparing(&link, b"palette", &[&input]).is_err());
+        assert_eq!(fs::read(&input).unwrap(), b"pixels");
+        let names: Vec<_> = fs::read_dir(root.path()).unwrap().flatten().map(|e| e.file_name()).collect();
+        assert_eq!(names.len(), 2, "no temporary file left: {names:?}");
+        // Another name is written.
+        write_file_sparing(&root.path().join("out.json"), b"palette", &[&input]).unwrap();
+        assert_eq!(fs::read(root.path().join("out.json")).unwrap(), b"palette");
     }
 }

@@ -123,6 +123,17 @@ fn decode_error(path: &Path, e: image::ImageError) -> Error {
     }
 }
 
+/// Bytes read before the format is known (every signature the decoders know is shorter).
+const SNIFF_BYTES: u64 = 64;
+
+fn not_an_image(path: &Path) -> Error {
+    Error::Decode {
+        path: path.into(),
+        message: "not an image in a format this tool reads (PNG, JPEG, TIFF, WebP, BMP, GIF)"
+            .into(),
+    }
+}
+
 /// Reads and decodes an image file, refusing over-limit images before any pixel
 /// buffer is allocated.
 pub fn decode(path: &Path, limits: &Limits) -> Result<Decoded> {
@@ -150,11 +161,32 @@ pub fn decode(path: &Path, limits: &Limits) -> Result<Decoded> {
             ),
         });
     }
-    let mut bytes = Vec::with_capacity(meta.len() as usize);
-    file.read_to_end(&mut bytes).map_err(|source| Error::Open {
+    // The size above is 0 for devices and pipes, which may never end: read at most one
+    // byte over the limit, and look at the first bytes before reading on, so a stream
+    // that is no image (such as /dev/zero) is refused at once.
+    let read_error = |source| Error::Open {
         path: path.into(),
         source,
-    })?;
+    };
+    let mut bytes = Vec::with_capacity(meta.len() as usize);
+    let mut reader = (&mut file).take(limits.max_alloc.saturating_add(1));
+    (&mut reader)
+        .take(SNIFF_BYTES)
+        .read_to_end(&mut bytes)
+        .map_err(read_error)?;
+    if !bytes.is_empty() && image::guess_format(&bytes).is_err() {
+        return Err(not_an_image(path));
+    }
+    reader.read_to_end(&mut bytes).map_err(read_error)?;
+    if bytes.len() as u64 > limits.max_alloc {
+        return Err(Error::LimitExceeded {
+            path: path.into(),
+            message: format!(
+                "input is over the limit of {} bytes",
+                limits.max_alloc
+            ),
+        });
+    }
     decode_bytes(&bytes, path, limits)
 }
 
@@ -170,11 +202,7 @@ pub fn decode_bytes(bytes: &[u8], name: &Path, limits: &Limits) -> Result<Decode
         .with_guessed_format()
         .map_err(|e| decode_error(name, e.into()))?;
     if reader.format().is_none() {
-        return Err(Error::Decode {
-            path: name.into(),
-            message: "not an image in a format this tool reads (PNG, JPEG, TIFF, WebP, BMP, GIF)"
-                .into(),
-        });
+        return Err(not_an_image(name));
     }
     // Header first: refuse over-limit images before the decoder allocates.
     let (width, height) = reader

@@ -106,3 +106,89 @@ pub fn tree(dir: &Path) -> BTreeMap<PathBuf, Vec<u8>> {
     }
     out
 }
+
+/// Every entry under `dir` (recursively, links not followed): files with their bytes,
+/// folders as `None`, links as the bytes of their target path.
+pub fn everything_under(dir: &Path) -> BTreeMap<PathBuf, Option<Vec<u8>>> {
+    let mut out = BTreeMap::new();
+    let mut stack = vec![dir.to_path_buf()];
+    while let Some(d) = stack.pop() {
+        let Ok(rd) = std::fs::read_dir(&d) else {
+            continue;
+        };
+        for e in rd.flatten() {
+            let p = e.path();
+            let rel = p.strip_prefix(dir).unwrap().to_path_buf();
+            let meta = std::fs::symlink_metadata(&p).unwrap();
+            if meta.file_type().is_symlink() {
+                let target = std::fs::read_link(&p).unwrap();
+                out.insert(rel, Some(target.to_string_lossy().as_bytes().to_vec()));
+            } else if meta.is_dir() {
+                out.insert(rel, None);
+                stack.push(p);
+            } else {
+                out.insert(rel, Some(std::fs::read(&p).unwrap()));
+            }
+        }
+    }
+    out
+}
+
+/// Checks the binary's refusal of a bad input: exit status 2, nothing on standard
+/// output, and one short line on standard error that starts with "chromasift: error: ",
+/// holds no panic, and contains each of `expect`. Returns that line, or what is wrong.
+pub fn check_refusal(o: &Output, what: &str, expect: &[&str]) -> Result<String, String> {
+    let err = stderr(o);
+    let fail = |m: &str| Err(format!("{what}: {m}; stderr: {err}"));
+    if o.status.code() != Some(2) {
+        return fail(&format!("exit status {:?}, not 2", o.status.code()));
+    }
+    if err.contains("panicked") {
+        return fail("a panic");
+    }
+    if err.trim_end().lines().count() != 1 || err.len() > 400 {
+        return fail("not one short line");
+    }
+    if !err.starts_with("chromasift: error: ") {
+        return fail("no 'chromasift: error: ' prefix");
+    }
+    for e in expect {
+        if !err.contains(e) {
+            return fail(&format!("'{e}' is not in the message"));
+        }
+    }
+    if !o.stdout.is_empty() {
+        return fail("something on standard output");
+    }
+    Ok(err)
+}
+
+/// [`check_refusal`], panicking on the first problem.
+pub fn assert_refusal(o: &Output, what: &str, expect: &[&str]) -> String {
+    check_refusal(o, what, expect).unwrap_or_else(|m| panic!("{m}"))
+}
+
+/// CRC-32 as specified for PNG chunks (ISO/IEC 15948, annex D).
+pub fn crc32(bytes: &[u8]) -> u32 {
+    let mut c = 0xffff_ffffu32;
+    for &b in bytes {
+        c ^= b as u32;
+        for _ in 0..8 {
+            c = if c & 1 != 0 {
+                0xedb8_8320 ^ (c >> 1)
+            } else {
+                c >> 1
+            };
+        }
+    }
+    !c
+}
+
+/// A PNG chunk: length, type, data, CRC (ISO/IEC 15948, §5.3).
+pub fn png_chunk(kind: &[u8; 4], data: &[u8]) -> Vec<u8> {
+    let mut v = (data.len() as u32).to_be_bytes().to_vec();
+    v.extend_from_slice(kind);
+    v.extend_from_slice(data);
+    v.extend_from_slice(&crc32(&v[4..]).to_be_bytes());
+    v
+}
