@@ -245,7 +245,11 @@ mod tests {
         std::os::unix::fs::symlink(&input, &link).unwrap();
         assert!(write_file_sparing(&link, b"palette", &[&input]).is_err());
         assert_eq!(fs::read(&input).unwrap(), b"pixels");
-        let names: Vec<_> = fs::read_dir(root.path()).unwrap().flatten().map(|e| e.file_name()).collect();
+        let names: Vec<_> = fs::read_dir(root.path())
+            .unwrap()
+            .flatten()
+            .map(|e| e.file_name())
+            .collect();
         assert_eq!(names.len(), 2, "no temporary file left: {names:?}");
         // Another name is written.
         write_file_sparing(&root.path().join("out.json"), b"palette", &[&input]).unwrap();

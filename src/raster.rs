@@ -181,10 +181,7 @@ pub fn decode(path: &Path, limits: &Limits) -> Result<Decoded> {
     if bytes.len() as u64 > limits.max_alloc {
         return Err(Error::LimitExceeded {
             path: path.into(),
-            message: format!(
-                "input is over the limit of {} bytes",
-                limits.max_alloc
-            ),
+            message: format!("input is over the limit of {} bytes", limits.max_alloc),
         });
     }
     decode_bytes(&bytes, path, limits)

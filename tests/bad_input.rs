@@ -94,27 +94,45 @@ fn scene() -> Scene {
     std::fs::write(s.root.join("taken"), b"keep me").unwrap();
     // The output would land on the input: a link named like an output, to the input.
     std::fs::create_dir(s.root.join("linked")).unwrap();
-    std::os::unix::fs::symlink(s.root.join("good.png"), s.root.join("linked/good.palette.json"))
-        .unwrap();
+    std::os::unix::fs::symlink(
+        s.root.join("good.png"),
+        s.root.join("linked/good.palette.json"),
+    )
+    .unwrap();
 
     // Ink libraries, each broken in one way.
-    s.write("inks-good.csv", b"name,hex\nChalk,#ffffff\nNight,#101820\nSea,#1f4e8c\nSun,#f0d020\nLeaf,#3c8c3c\n");
-    s.write("inks-number.csv", b"name,L,a,b\nChalk,95,0,2\nNight,1O,0,0\n");
+    s.write(
+        "inks-good.csv",
+        b"name,hex\nChalk,#ffffff\nNight,#101820\nSea,#1f4e8c\nSun,#f0d020\nLeaf,#3c8c3c\n",
+    );
+    s.write(
+        "inks-number.csv",
+        b"name,L,a,b\nChalk,95,0,2\nNight,1O,0,0\n",
+    );
     s.write("inks-columns.csv", b"name,colour\nChalk,white\n");
     s.write("inks-ragged.csv", b"name,L,a,b\nChalk,95,0\n");
     s.write("inks-range.csv", b"name,L,a,b\nChalk,150,0,2\n");
-    s.write("inks-duplicate.csv", b"name,hex\nChalk,#ffffff\nchalk,#eeeeee\n");
+    s.write(
+        "inks-duplicate.csv",
+        b"name,hex\nChalk,#ffffff\nchalk,#eeeeee\n",
+    );
     s.write("inks-quote.csv", b"name,hex\n\"Chalk,#ffffff\n");
     s.write("inks-hex.csv", b"name,hex\nChalk,#fffff\n");
     s.write("inks-latin1.csv", b"name,hex\nCr\xe8me,#fff8e0\n");
     s.write("inks-none.csv", b"# nothing here\nname,L,a,b\n");
     s.write("inks-broken.json", b"[{\"name\": \"Chalk\", \"L\": 95,");
-    s.write("inks-object.json", b"[{\"name\": \"Chalk\", \"L\": 95, \"a\": 0, \"b\": \"two\"}]");
+    s.write(
+        "inks-object.json",
+        b"[{\"name\": \"Chalk\", \"L\": 95, \"a\": 0, \"b\": \"two\"}]",
+    );
     s.write("inks-fields.json", b"[{\"name\": \"Chalk\"}]");
     s.write("inks-item.json", b"[42]");
 
     // Palette documents: a good one from `reduce`, then broken copies.
-    let o = run(&["reduce", &s.p("good.png"), "-k", "3", "-o", &s.p("pal")], &[]);
+    let o = run(
+        &["reduce", &s.p("good.png"), "-k", "3", "-o", &s.p("pal")],
+        &[],
+    );
     assert!(o.status.success(), "{}", common::stderr(&o));
     let good = std::fs::read_to_string(s.root.join("pal/good.palette.json")).unwrap();
     s.write("cut.palette.json", &good.as_bytes()[..good.len() / 2]);
@@ -128,7 +146,10 @@ fn scene() -> Scene {
     s.write("image.palette.json", &png);
 
     // Histogram files: a good one from `histogram`, then damaged and foreign ones.
-    let o = run(&["histogram", &s.p("good.png"), "-o", &s.p("good.hist")], &[]);
+    let o = run(
+        &["histogram", &s.p("good.png"), "-o", &s.p("good.hist")],
+        &[],
+    );
     assert!(o.status.success(), "{}", common::stderr(&o));
     let hist = std::fs::read(s.root.join("good.hist")).unwrap();
     let mut v = hist.clone();
@@ -155,19 +176,30 @@ fn scene() -> Scene {
     geo("geo-ok.tif", vec![scale(), tie(), keys()]);
     geo(
         "geo-keycount.tif",
-        vec![scale(), tie(), (KEY_DIRECTORY, GeoValue::Shorts(utm_keys()[..12].to_vec()))],
+        vec![
+            scale(),
+            tie(),
+            (KEY_DIRECTORY, GeoValue::Shorts(utm_keys()[..12].to_vec())),
+        ],
     );
     geo(
         "geo-tiepoint.tif",
         vec![
             scale(),
-            (TIEPOINT, GeoValue::Doubles(vec![0.0, 0.0, 0.0, 500_000.0, 5_000_000.0])),
+            (
+                TIEPOINT,
+                GeoValue::Doubles(vec![0.0, 0.0, 0.0, 500_000.0, 5_000_000.0]),
+            ),
             keys(),
         ],
     );
     geo(
         "geo-negative.tif",
-        vec![(PIXEL_SCALE, GeoValue::Doubles(vec![10.0, -10.0, 0.0])), tie(), keys()],
+        vec![
+            (PIXEL_SCALE, GeoValue::Doubles(vec![10.0, -10.0, 0.0])),
+            tie(),
+            keys(),
+        ],
     );
     let mut m = vec![0.0; 16];
     m[0] = 10.0;
@@ -175,7 +207,12 @@ fn scene() -> Scene {
     m[15] = 1.0;
     geo(
         "geo-ambiguous.tif",
-        vec![scale(), tie(), (TRANSFORMATION, GeoValue::Doubles(m)), keys()],
+        vec![
+            scale(),
+            tie(),
+            (TRANSFORMATION, GeoValue::Doubles(m)),
+            keys(),
+        ],
     );
     let mut keys_v = utm_keys();
     keys_v[0] = 2;
@@ -185,7 +222,12 @@ fn scene() -> Scene {
     );
     geo(
         "geo-nodata.tif",
-        vec![scale(), tie(), keys(), (GDAL_NODATA, GeoValue::Text("none".into()))],
+        vec![
+            scale(),
+            tie(),
+            keys(),
+            (GDAL_NODATA, GeoValue::Text("none".into())),
+        ],
     );
     std::fs::create_dir(s.root.join("shoot")).unwrap();
     std::fs::copy(s.root.join("good.png"), s.root.join("shoot/a.png")).unwrap();
@@ -210,30 +252,100 @@ fn rows(s: &Scene) -> Vec<Row> {
     };
 
     // ---- reduce: every input problem, every parameter rule, every output problem ----
-    add("reduce missing file", &["reduce", &s.p("missing.png"), "-o", &new_out], &["missing.png", "cannot open"]);
-    add("reduce not an image", &["reduce", &s.p("words.png"), "-o", &new_out], &["words.png", "not an image"]);
-    add("reduce empty file", &["reduce", &s.p("empty.png"), "-o", &new_out], &["empty.png", "empty"]);
-    add("reduce a folder", &["reduce", &s.p("shoot"), "-o", &new_out], &["shoot", "folder"]);
-    add("reduce endless device", &["reduce", "/dev/zero", "-o", &new_out], &["/dev/zero", "not an image"]);
-    add("reduce truncated PNG", &["reduce", &s.p("cut.png"), "-o", &new_out], &["cut.png"]);
-    add("reduce truncated JPEG", &["reduce", &s.p("cut.jpg"), "-o", &new_out], &["cut.jpg"]);
-    add("reduce truncated TIFF", &["reduce", &s.p("cut.tif"), "-o", &new_out], &["cut.tif"]);
-    add("reduce decompression bomb", &["reduce", &s.p("bomb.png"), "-o", &new_out], &["bomb.png", "over the limit"]);
-    add("reduce k 0", &["reduce", &good, "-k", "0", "-o", &new_out], &["k must be at least 1"]);
-    add("reduce k not a number", &["reduce", &good, "-k", "six", "-o", &new_out], &["six", "--k"]);
+    add(
+        "reduce missing file",
+        &["reduce", &s.p("missing.png"), "-o", &new_out],
+        &["missing.png", "cannot open"],
+    );
+    add(
+        "reduce not an image",
+        &["reduce", &s.p("words.png"), "-o", &new_out],
+        &["words.png", "not an image"],
+    );
+    add(
+        "reduce empty file",
+        &["reduce", &s.p("empty.png"), "-o", &new_out],
+        &["empty.png", "empty"],
+    );
+    add(
+        "reduce a folder",
+        &["reduce", &s.p("shoot"), "-o", &new_out],
+        &["shoot", "folder"],
+    );
+    add(
+        "reduce endless device",
+        &["reduce", "/dev/zero", "-o", &new_out],
+        &["/dev/zero", "not an image"],
+    );
+    add(
+        "reduce truncated PNG",
+        &["reduce", &s.p("cut.png"), "-o", &new_out],
+        &["cut.png"],
+    );
+    add(
+        "reduce truncated JPEG",
+        &["reduce", &s.p("cut.jpg"), "-o", &new_out],
+        &["cut.jpg"],
+    );
+    add(
+        "reduce truncated TIFF",
+        &["reduce", &s.p("cut.tif"), "-o", &new_out],
+        &["cut.tif"],
+    );
+    add(
+        "reduce decompression bomb",
+        &["reduce", &s.p("bomb.png"), "-o", &new_out],
+        &["bomb.png", "over the limit"],
+    );
+    add(
+        "reduce k 0",
+        &["reduce", &good, "-k", "0", "-o", &new_out],
+        &["k must be at least 1"],
+    );
+    add(
+        "reduce k not a number",
+        &["reduce", &good, "-k", "six", "-o", &new_out],
+        &["six", "--k"],
+    );
     for beta in ["0", "-1", "nan", "inf", "-inf", "1e999"] {
         add(
             "reduce bad beta",
-            &["reduce", &good, "--mode", "soft", "--beta", beta, "-o", &new_out],
+            &[
+                "reduce", &good, "--mode", "soft", "--beta", beta, "-o", &new_out,
+            ],
             &["beta must be a positive finite number"],
         );
     }
-    add("reduce beta not a number", &["reduce", &good, "--beta", "sharp", "-o", &new_out], &["sharp", "beta"]);
-    add("reduce tolerance NaN", &["reduce", &good, "--tolerance", "nan", "-o", &new_out], &["tolerance"]);
-    add("reduce max-iter 0", &["reduce", &good, "--max-iter", "0", "-o", &new_out], &["max-iter"]);
-    add("reduce restarts 0", &["reduce", &good, "--restarts", "0", "-o", &new_out], &["restarts"]);
-    add("reduce unknown space", &["reduce", &good, "--space", "hsv", "-o", &new_out], &["hsv"]);
-    add("reduce output is a file", &["reduce", &good, "-o", &s.p("taken")], &["taken", "not a folder"]);
+    add(
+        "reduce beta not a number",
+        &["reduce", &good, "--beta", "sharp", "-o", &new_out],
+        &["sharp", "beta"],
+    );
+    add(
+        "reduce tolerance NaN",
+        &["reduce", &good, "--tolerance", "nan", "-o", &new_out],
+        &["tolerance"],
+    );
+    add(
+        "reduce max-iter 0",
+        &["reduce", &good, "--max-iter", "0", "-o", &new_out],
+        &["max-iter"],
+    );
+    add(
+        "reduce restarts 0",
+        &["reduce", &good, "--restarts", "0", "-o", &new_out],
+        &["restarts"],
+    );
+    add(
+        "reduce unknown space",
+        &["reduce", &good, "--space", "hsv", "-o", &new_out],
+        &["hsv"],
+    );
+    add(
+        "reduce output is a file",
+        &["reduce", &good, "-o", &s.p("taken")],
+        &["taken", "not a folder"],
+    );
     add(
         "reduce output under a file",
         &["reduce", &good, "-o", &s.p("taken/sub")],
@@ -247,29 +359,88 @@ fn rows(s: &Scene) -> Vec<Row> {
 
     // ---- separate: the artwork and every kind of broken ink library ----
     for (name, lib, problem) in [
-        ("separate missing library", "no-inks.csv", &["cannot open"][..]),
-        ("separate CSV bad number", "inks-number.csv", &["line 3", "'1O' is not a number"]),
-        ("separate CSV no colour columns", "inks-columns.csv", &["line 1", "L,a,b or hex"]),
-        ("separate CSV ragged row", "inks-ragged.csv", &["line 2", "expected 4 fields"]),
-        ("separate CSV L out of range", "inks-range.csv", &["line 2", "outside 0..100"]),
-        ("separate CSV duplicate name", "inks-duplicate.csv", &["line 3", "duplicate ink name"]),
-        ("separate CSV open quote", "inks-quote.csv", &["line 2", "not closed"]),
-        ("separate CSV bad hex", "inks-hex.csv", &["line 2", "#rrggbb"]),
+        (
+            "separate missing library",
+            "no-inks.csv",
+            &["cannot open"][..],
+        ),
+        (
+            "separate CSV bad number",
+            "inks-number.csv",
+            &["line 3", "'1O' is not a number"],
+        ),
+        (
+            "separate CSV no colour columns",
+            "inks-columns.csv",
+            &["line 1", "L,a,b or hex"],
+        ),
+        (
+            "separate CSV ragged row",
+            "inks-ragged.csv",
+            &["line 2", "expected 4 fields"],
+        ),
+        (
+            "separate CSV L out of range",
+            "inks-range.csv",
+            &["line 2", "outside 0..100"],
+        ),
+        (
+            "separate CSV duplicate name",
+            "inks-duplicate.csv",
+            &["line 3", "duplicate ink name"],
+        ),
+        (
+            "separate CSV open quote",
+            "inks-quote.csv",
+            &["line 2", "not closed"],
+        ),
+        (
+            "separate CSV bad hex",
+            "inks-hex.csv",
+            &["line 2", "#rrggbb"],
+        ),
         ("separate CSV not UTF-8", "inks-latin1.csv", &["not UTF-8"]),
         ("separate CSV no inks", "inks-none.csv", &["no inks"]),
-        ("separate JSON cut short", "inks-broken.json", &["not valid JSON"]),
-        ("separate JSON field not a number", "inks-object.json", &["entry 1", "'b' is not a number"]),
-        ("separate JSON missing fields", "inks-fields.json", &["entry 1", "needs L, a, b or hex"]),
-        ("separate JSON entry not an object", "inks-item.json", &["entry 1", "not an object"]),
+        (
+            "separate JSON cut short",
+            "inks-broken.json",
+            &["not valid JSON"],
+        ),
+        (
+            "separate JSON field not a number",
+            "inks-object.json",
+            &["entry 1", "'b' is not a number"],
+        ),
+        (
+            "separate JSON missing fields",
+            "inks-fields.json",
+            &["entry 1", "needs L, a, b or hex"],
+        ),
+        (
+            "separate JSON entry not an object",
+            "inks-item.json",
+            &["entry 1", "not an object"],
+        ),
     ] {
         let mut expect = vec![lib];
         expect.extend_from_slice(problem);
-        add(name, &["separate", &good, "--inks", &s.p(lib), "-o", &new_out], &expect);
+        add(
+            name,
+            &["separate", &good, "--inks", &s.p(lib), "-o", &new_out],
+            &expect,
+        );
     }
     let lib = s.p("inks-good.csv");
     add(
         "separate missing artwork",
-        &["separate", &s.p("missing.png"), "--inks", &lib, "-o", &new_out],
+        &[
+            "separate",
+            &s.p("missing.png"),
+            "--inks",
+            &lib,
+            "-o",
+            &new_out,
+        ],
         &["missing.png", "cannot open"],
     );
     add(
@@ -279,58 +450,199 @@ fn rows(s: &Scene) -> Vec<Row> {
     );
     add(
         "separate bad substrate",
-        &["separate", &good, "--inks", &lib, "--substrate", "white", "-o", &new_out],
+        &[
+            "separate",
+            &good,
+            "--inks",
+            &lib,
+            "--substrate",
+            "white",
+            "-o",
+            &new_out,
+        ],
         &["white", "#rrggbb"],
     );
 
     // ---- landcover: rasters, band lists, index specs, georeferencing ----
-    add("landcover missing raster", &["landcover", &s.p("missing.tif"), "-o", &new_out], &["missing.tif", "cannot open"]);
-    add("landcover not a raster", &["landcover", &s.p("words.png"), "-o", &new_out], &["words.png", "not an image"]);
-    add("landcover truncated TIFF", &["landcover", &s.p("cut.tif"), "-o", &new_out], &["cut.tif"]);
-    add("landcover decompression bomb", &["landcover", &s.p("bomb.tif"), "-o", &new_out], &["bomb.tif", "over the limit"]);
-    add("landcover k 0", &["landcover", &scene, "-k", "0", "-o", &new_out], &["k must be at least 1"]);
+    add(
+        "landcover missing raster",
+        &["landcover", &s.p("missing.tif"), "-o", &new_out],
+        &["missing.tif", "cannot open"],
+    );
+    add(
+        "landcover not a raster",
+        &["landcover", &s.p("words.png"), "-o", &new_out],
+        &["words.png", "not an image"],
+    );
+    add(
+        "landcover truncated TIFF",
+        &["landcover", &s.p("cut.tif"), "-o", &new_out],
+        &["cut.tif"],
+    );
+    add(
+        "landcover decompression bomb",
+        &["landcover", &s.p("bomb.tif"), "-o", &new_out],
+        &["bomb.tif", "over the limit"],
+    );
+    add(
+        "landcover k 0",
+        &["landcover", &scene, "-k", "0", "-o", &new_out],
+        &["k must be at least 1"],
+    );
     add(
         "landcover soft beta NaN",
-        &["landcover", &scene, "--mode", "soft", "--beta", "nan", "-o", &new_out],
+        &[
+            "landcover",
+            &scene,
+            "--mode",
+            "soft",
+            "--beta",
+            "nan",
+            "-o",
+            &new_out,
+        ],
         &["beta must be a positive finite number"],
     );
-    add("landcover band beyond the raster", &["landcover", &scene, "--bands", "2,5", "-o", &new_out], &["scene.tif", "band 5", "3 bands"]);
-    add("landcover band 0", &["landcover", &scene, "--bands", "0", "-o", &new_out], &["'0' is not a band number"]);
-    add("landcover band list with a word", &["landcover", &scene, "--bands", "1,red", "-o", &new_out], &["'red' is not a band number"]);
-    add("landcover empty band list", &["landcover", &scene, "--bands", "", "-o", &new_out], &["--bands"]);
-    add("landcover band list trailing comma", &["landcover", &scene, "--bands", "1,2,", "-o", &new_out], &["is not a band number"]);
-    add("landcover index with one band", &["landcover", &scene, "--index", "ndvi:3", "-o", &new_out], &["ndvi:3", "two bands"]);
-    add("landcover unknown index", &["landcover", &scene, "--index", "evi:1,2", "-o", &new_out], &["unknown index 'evi'"]);
-    add("landcover index without kind", &["landcover", &scene, "--index", "1,2", "-o", &new_out], &["ndvi:RED,NIR"]);
-    add("landcover index band beyond the raster", &["landcover", &scene, "--index", "ndvi:1,9", "-o", &new_out], &["scene.tif", "band 9"]);
-    add("landcover nodata not a number", &["landcover", &scene, "--nodata", "none", "-o", &new_out], &["none", "--nodata"]);
-    add("landcover unknown scaling", &["landcover", &scene, "--scale", "minmax", "-o", &new_out], &["minmax"]);
+    add(
+        "landcover band beyond the raster",
+        &["landcover", &scene, "--bands", "2,5", "-o", &new_out],
+        &["scene.tif", "band 5", "3 bands"],
+    );
+    add(
+        "landcover band 0",
+        &["landcover", &scene, "--bands", "0", "-o", &new_out],
+        &["'0' is not a band number"],
+    );
+    add(
+        "landcover band list with a word",
+        &["landcover", &scene, "--bands", "1,red", "-o", &new_out],
+        &["'red' is not a band number"],
+    );
+    add(
+        "landcover empty band list",
+        &["landcover", &scene, "--bands", "", "-o", &new_out],
+        &["--bands"],
+    );
+    add(
+        "landcover band list trailing comma",
+        &["landcover", &scene, "--bands", "1,2,", "-o", &new_out],
+        &["is not a band number"],
+    );
+    add(
+        "landcover index with one band",
+        &["landcover", &scene, "--index", "ndvi:3", "-o", &new_out],
+        &["ndvi:3", "two bands"],
+    );
+    add(
+        "landcover unknown index",
+        &["landcover", &scene, "--index", "evi:1,2", "-o", &new_out],
+        &["unknown index 'evi'"],
+    );
+    add(
+        "landcover index without kind",
+        &["landcover", &scene, "--index", "1,2", "-o", &new_out],
+        &["ndvi:RED,NIR"],
+    );
+    add(
+        "landcover index band beyond the raster",
+        &["landcover", &scene, "--index", "ndvi:1,9", "-o", &new_out],
+        &["scene.tif", "band 9"],
+    );
+    add(
+        "landcover nodata not a number",
+        &["landcover", &scene, "--nodata", "none", "-o", &new_out],
+        &["none", "--nodata"],
+    );
+    add(
+        "landcover unknown scaling",
+        &["landcover", &scene, "--scale", "minmax", "-o", &new_out],
+        &["minmax"],
+    );
     for (name, file, problem) in [
-        ("landcover GeoKeyDirectory count", "geo-keycount.tif", "declares 4 keys"),
-        ("landcover ModelTiepoint length", "geo-tiepoint.tif", "ModelTiepoint has 5 values"),
-        ("landcover negative pixel size", "geo-negative.tif", "must be > 0"),
-        ("landcover two georeferencings", "geo-ambiguous.tif", "ambiguous"),
-        ("landcover GeoKeyDirectory version", "geo-version.tif", "version is 2"),
-        ("landcover GDAL_NODATA not a number", "geo-nodata.tif", "GDAL_NODATA"),
+        (
+            "landcover GeoKeyDirectory count",
+            "geo-keycount.tif",
+            "declares 4 keys",
+        ),
+        (
+            "landcover ModelTiepoint length",
+            "geo-tiepoint.tif",
+            "ModelTiepoint has 5 values",
+        ),
+        (
+            "landcover negative pixel size",
+            "geo-negative.tif",
+            "must be > 0",
+        ),
+        (
+            "landcover two georeferencings",
+            "geo-ambiguous.tif",
+            "ambiguous",
+        ),
+        (
+            "landcover GeoKeyDirectory version",
+            "geo-version.tif",
+            "version is 2",
+        ),
+        (
+            "landcover GDAL_NODATA not a number",
+            "geo-nodata.tif",
+            "GDAL_NODATA",
+        ),
     ] {
-        add(name, &["landcover", &s.p(file), "-o", &new_out], &[file, problem]);
+        add(
+            name,
+            &["landcover", &s.p(file), "-o", &new_out],
+            &[file, problem],
+        );
     }
 
     // ---- apply: broken palette documents ----
     for (name, file, problem) in [
         ("apply missing palette", "no.palette.json", "cannot open"),
-        ("apply palette cut short", "cut.palette.json", "not a palette document"),
-        ("apply palette with a bad colour", "badhex.palette.json", "#rrggbb"),
-        ("apply palette with no colours", "nocolours.palette.json", "no colours"),
-        ("apply palette with unknown space", "space.palette.json", "not a palette document"),
-        ("apply palette that is an image", "image.palette.json", "not a palette document"),
+        (
+            "apply palette cut short",
+            "cut.palette.json",
+            "not a palette document",
+        ),
+        (
+            "apply palette with a bad colour",
+            "badhex.palette.json",
+            "#rrggbb",
+        ),
+        (
+            "apply palette with no colours",
+            "nocolours.palette.json",
+            "no colours",
+        ),
+        (
+            "apply palette with unknown space",
+            "space.palette.json",
+            "not a palette document",
+        ),
+        (
+            "apply palette that is an image",
+            "image.palette.json",
+            "not a palette document",
+        ),
     ] {
-        add(name, &["apply", &good, "--palette", &s.p(file), "-o", &new_out], &[file, problem]);
+        add(
+            name,
+            &["apply", &good, "--palette", &s.p(file), "-o", &new_out],
+            &[file, problem],
+        );
     }
     let pal = s.p("pal/good.palette.json");
     add(
         "apply missing image",
-        &["apply", &s.p("missing.png"), "--palette", &pal, "-o", &new_out],
+        &[
+            "apply",
+            &s.p("missing.png"),
+            "--palette",
+            &pal,
+            "-o",
+            &new_out,
+        ],
         &["missing.png", "cannot open"],
     );
     add(
@@ -345,14 +657,30 @@ fn rows(s: &Scene) -> Vec<Row> {
         ("learn damaged histogram", "damaged.hist", "checksum"),
         ("learn histogram of a later version", "v2.hist", "version 2"),
         ("learn truncated histogram", "cut.hist", "truncated"),
-        ("learn histogram with a foreign header", "words.hist", "histogram file"),
+        (
+            "learn histogram with a foreign header",
+            "words.hist",
+            "histogram file",
+        ),
         ("learn foreign file", "foreign.hist", "not an image"),
         ("learn missing file", "missing.hist", "cannot open"),
     ] {
-        add(name, &["learn", &s.p(file), "-o", &learned], &[file, problem]);
+        add(
+            name,
+            &["learn", &s.p(file), "-o", &learned],
+            &[file, problem],
+        );
     }
-    add("learn k 0", &["learn", &s.p("good.hist"), "-k", "0", "-o", &learned], &["k must be at least 1"]);
-    add("learn output is a folder", &["learn", &s.p("good.hist"), "-o", &out], &["out", "folder"]);
+    add(
+        "learn k 0",
+        &["learn", &s.p("good.hist"), "-k", "0", "-o", &learned],
+        &["k must be at least 1"],
+    );
+    add(
+        "learn output is a folder",
+        &["learn", &s.p("good.hist"), "-o", &out],
+        &["out", "folder"],
+    );
     add(
         "learn output under a file",
         &["learn", &s.p("good.hist"), "-o", &s.p("taken/p.json")],
@@ -360,21 +688,57 @@ fn rows(s: &Scene) -> Vec<Row> {
     );
 
     // ---- histogram ----
-    add("histogram not an image", &["histogram", &s.p("words.png"), "-o", &s.p("h.hist")], &["words.png", "not an image"]);
-    add("histogram bomb", &["histogram", &s.p("bomb.png"), "-o", &s.p("h.hist")], &["bomb.png", "over the limit"]);
-    add("histogram output is a folder", &["histogram", &good, "-o", &out], &["out", "folder"]);
+    add(
+        "histogram not an image",
+        &["histogram", &s.p("words.png"), "-o", &s.p("h.hist")],
+        &["words.png", "not an image"],
+    );
+    add(
+        "histogram bomb",
+        &["histogram", &s.p("bomb.png"), "-o", &s.p("h.hist")],
+        &["bomb.png", "over the limit"],
+    );
+    add(
+        "histogram output is a folder",
+        &["histogram", &good, "-o", &out],
+        &["out", "folder"],
+    );
 
     // ---- batch ----
-    add("batch missing folder", &["batch", &s.p("no-shoot"), "-o", &new_out], &["no-shoot"]);
-    add("batch k 0", &["batch", &s.p("shoot"), "-k", "0", "-o", &new_out], &["k must be at least 1"]);
+    add(
+        "batch missing folder",
+        &["batch", &s.p("no-shoot"), "-o", &new_out],
+        &["no-shoot"],
+    );
+    add(
+        "batch k 0",
+        &["batch", &s.p("shoot"), "-k", "0", "-o", &new_out],
+        &["k must be at least 1"],
+    );
     add(
         "batch soft beta inf",
-        &["batch", &s.p("shoot"), "--mode", "soft", "--beta", "inf", "-o", &new_out],
+        &[
+            "batch",
+            &s.p("shoot"),
+            "--mode",
+            "soft",
+            "--beta",
+            "inf",
+            "-o",
+            &new_out,
+        ],
         &["beta must be a positive finite number"],
     );
     add(
         "batch broken palette",
-        &["batch", &s.p("shoot"), "--palette", &s.p("cut.palette.json"), "-o", &new_out],
+        &[
+            "batch",
+            &s.p("shoot"),
+            "--palette",
+            &s.p("cut.palette.json"),
+            "-o",
+            &new_out,
+        ],
         &["cut.palette.json", "not a palette document"],
     );
     add(
@@ -410,7 +774,13 @@ fn every_bad_input_is_refused_cleanly() {
             panic!("{name}: the folder changed: {changed:?}");
         }
     }
-    assert!(problems.is_empty(), "{} of {} rows:\n{}", problems.len(), table.len(), problems.join("\n"));
+    assert!(
+        problems.is_empty(),
+        "{} of {} rows:\n{}",
+        problems.len(),
+        table.len(),
+        problems.join("\n")
+    );
 }
 
 // ---- Headers that claim huge images ----
@@ -425,7 +795,9 @@ fn huge_png(w: u32, h: u32) -> Vec<u8> {
     // zlib stream of one stored block holding 4 zero bytes (RFC 1950/1951).
     v.extend(png_chunk(
         b"IDAT",
-        &[0x78, 0x01, 0x01, 0x04, 0x00, 0xfb, 0xff, 0, 0, 0, 0, 0x00, 0x04, 0x00, 0x01],
+        &[
+            0x78, 0x01, 0x01, 0x04, 0x00, 0xfb, 0xff, 0, 0, 0, 0, 0x00, 0x04, 0x00, 0x01,
+        ],
     ));
     v.extend(png_chunk(b"IEND", &[]));
     v
@@ -449,7 +821,9 @@ fn huge_jpeg(w: u16, h: u16) -> Vec<u8> {
         v.push(0);
     }
     // SOS: three components on tables 0/0, spectral selection 0..63.
-    v.extend_from_slice(&[0xff, 0xda, 0x00, 0x0c, 3, 1, 0x00, 2, 0x00, 3, 0x00, 0, 63, 0]);
+    v.extend_from_slice(&[
+        0xff, 0xda, 0x00, 0x0c, 3, 1, 0x00, 2, 0x00, 3, 0x00, 0, 63, 0,
+    ]);
     v.extend_from_slice(&[0u8; 16]);
     v.extend_from_slice(&[0xff, 0xd9]);
     v
@@ -460,14 +834,14 @@ fn huge_jpeg(w: u16, h: u16) -> Vec<u8> {
 fn huge_tiff(w: u32, h: u32) -> Vec<u8> {
     let mut v = b"II\x2a\x00\x08\x00\x00\x00".to_vec();
     let entries: [(u16, u16, u32); 9] = [
-        (256, 4, w),              // ImageWidth, LONG
-        (257, 4, h),              // ImageLength
-        (258, 3, 8),              // BitsPerSample, SHORT
-        (259, 3, 1),              // Compression: none
-        (262, 3, 1),              // PhotometricInterpretation: BlackIsZero
-        (273, 4, 8 + 2 + 9 * 12 + 4), // StripOffsets: just after the IFD
-        (277, 3, 1),              // SamplesPerPixel
-        (278, 4, h),              // RowsPerStrip
+        (256, 4, w),                   // ImageWidth, LONG
+        (257, 4, h),                   // ImageLength
+        (258, 3, 8),                   // BitsPerSample, SHORT
+        (259, 3, 1),                   // Compression: none
+        (262, 3, 1),                   // PhotometricInterpretation: BlackIsZero
+        (273, 4, 8 + 2 + 9 * 12 + 4),  // StripOffsets: just after the IFD
+        (277, 3, 1),                   // SamplesPerPixel
+        (278, 4, h),                   // RowsPerStrip
         (279, 4, w.saturating_mul(h)), // StripByteCounts
     ];
     v.extend_from_slice(&(entries.len() as u16).to_le_bytes());
@@ -569,9 +943,16 @@ fn every_decoder_refuses_a_huge_header_before_allocating() {
         let o_dir = out.to_str().unwrap();
         // A tight limit, named in the message.
         let t = Instant::now();
-        let o = run(&["reduce", path, "--max-pixels", "1000000", "-o", o_dir], &[]);
+        let o = run(
+            &["reduce", path, "--max-pixels", "1000000", "-o", o_dir],
+            &[],
+        );
         assert_refusal(&o, name, &[name, "over the limit of 1000000 pixels"]);
-        assert!(t.elapsed() < Duration::from_secs(5), "{name}: {:?}", t.elapsed());
+        assert!(
+            t.elapsed() < Duration::from_secs(5),
+            "{name}: {:?}",
+            t.elapsed()
+        );
         // The default limits, in an address space far too small for the pixels.
         let t = Instant::now();
         let bin = env!("CARGO_BIN_EXE_chromasift");
@@ -582,11 +963,22 @@ fn every_decoder_refuses_a_huge_header_before_allocating() {
             .output()
             .unwrap();
         assert_refusal(&o, name, &[name, "over the limit of 200000000 pixels"]);
-        assert!(t.elapsed() < Duration::from_secs(5), "{name}: {:?}", t.elapsed());
+        assert!(
+            t.elapsed() < Duration::from_secs(5),
+            "{name}: {:?}",
+            t.elapsed()
+        );
         // A pixel cap raised past the claim: the allocation cap refuses it instead.
-        let o = run(&["reduce", path, "--max-pixels", "4000000000", "-o", o_dir], &[]);
+        let o = run(
+            &["reduce", path, "--max-pixels", "4000000000", "-o", o_dir],
+            &[],
+        );
         assert_refusal(&o, name, &[name, "over the limit of 3221225472 bytes"]);
-        assert_eq!(everything_under(dir.path()), before, "{name}: nothing written");
+        assert_eq!(
+            everything_under(dir.path()),
+            before,
+            "{name}: nothing written"
+        );
         std::fs::remove_file(&p).unwrap();
     }
     // The raster reader of `landcover` (TIFF directly, other formats through the image
@@ -596,7 +988,14 @@ fn every_decoder_refuses_a_huge_header_before_allocating() {
         std::fs::write(&p, bytes).unwrap();
         let t = Instant::now();
         let o = run(
-            &["landcover", p.to_str().unwrap(), "--max-pixels", "1000000", "-o", out.to_str().unwrap()],
+            &[
+                "landcover",
+                p.to_str().unwrap(),
+                "--max-pixels",
+                "1000000",
+                "-o",
+                out.to_str().unwrap(),
+            ],
             &[],
         );
         assert_refusal(&o, name, &[name, "over the limit of 1000000 pixels"]);
@@ -618,7 +1017,10 @@ fn every_decoder_refuses_a_huge_header_before_allocating() {
             Ok(d) => assert_eq!((d.width, d.height), (2, 2), "{name}"),
             Err(e) => {
                 let m = e.to_string();
-                assert!(!m.contains("over the limit") && !m.contains("not an image"), "{name}: {m}");
+                assert!(
+                    !m.contains("over the limit") && !m.contains("not an image"),
+                    "{name}: {m}"
+                );
             }
         }
     }

@@ -23,7 +23,12 @@ fuzz_target!(|data: &[u8]| {
         return;
     };
     let pixels = img.width as u64 * img.height as u64;
-    assert!(pixels >= 1 && pixels <= LIMITS.max_pixels, "{} x {}", img.width, img.height);
+    assert!(
+        pixels >= 1 && pixels <= LIMITS.max_pixels,
+        "{} x {}",
+        img.width,
+        img.height
+    );
     let (len, opaque, total) = match &img.pixels {
         Pixels::Rgba8(p) => {
             let h = histogram::from_rgba8(p);

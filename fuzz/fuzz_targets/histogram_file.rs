@@ -18,7 +18,11 @@ fn check(bytes: &[u8]) {
     let Ok(h) = decode_histogram(bytes, Path::new("fuzz.hist")) else {
         return;
     };
-    assert_eq!(encode_histogram(&h), bytes, "decode then encode is the identity");
+    assert_eq!(
+        encode_histogram(&h),
+        bytes,
+        "decode then encode is the identity"
+    );
     if h.len() > 64 {
         return;
     }

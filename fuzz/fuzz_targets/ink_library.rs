@@ -19,10 +19,18 @@ fuzz_target!(|data: &[u8]| {
     let mut names = std::collections::HashSet::new();
     for ink in &inks {
         assert!(!ink.name.is_empty());
-        assert!(names.insert(ink.name.to_lowercase()), "duplicate {}", ink.name);
+        assert!(
+            names.insert(ink.name.to_lowercase()),
+            "duplicate {}",
+            ink.name
+        );
         let [l, a, b] = ink.lab_d50;
         assert!(l.is_finite() && a.is_finite() && b.is_finite());
         assert!((0.0..=100.0).contains(&l) && a.abs() <= 200.0 && b.abs() <= 200.0);
-        assert!(chromasift::colour::parse_hex(&ink.hex).is_ok(), "{}", ink.hex);
+        assert!(
+            chromasift::colour::parse_hex(&ink.hex).is_ok(),
+            "{}",
+            ink.hex
+        );
     }
 });
