@@ -589,6 +589,7 @@ pub fn decode_histogram(bytes: &[u8], path: &Path) -> Result<Histogram> {
     }
     let mut colours = Vec::with_capacity(n as usize);
     let mut counts = Vec::with_capacity(n as usize);
+    let mut total = 0u64;
     for e in body[24..].chunks_exact(14) {
         let c = [
             u16::from_le_bytes([e[0], e[1]]),
@@ -601,6 +602,12 @@ pub fn decode_histogram(bytes: &[u8], path: &Path) -> Result<Histogram> {
         }
         if count == 0 {
             return Err(bad("an entry has a zero count"));
+        }
+        total = total.saturating_add(count);
+        if total > histogram::MAX_TOTAL {
+            return Err(bad(
+                "the counts add up to more than 2^53 pixels (damaged file?)",
+            ));
         }
         if colours.last().is_some_and(|l: &[u16; 3]| *l >= c) {
             return Err(bad("entries are not in strictly increasing colour order"));
@@ -639,22 +646,52 @@ pub fn gather_histograms(inputs: &[PathBuf], opts: &ReduceOptions) -> Result<His
     }
     let parts: Vec<Result<Histogram>> = files
         .par_iter()
-        .map(|f| {
-            let bytes = std::fs::read(f).map_err(|source| Error::Open {
-                path: f.clone(),
-                source,
-            })?;
-            if bytes.starts_with(b"CSHIST") {
-                decode_histogram(&bytes, f)
-            } else {
-                histogram_of_file(f, opts)
-            }
+        .map(|f| match read_histogram_file(f, opts.limits.max_alloc)? {
+            Some(bytes) => decode_histogram(&bytes, f),
+            None => histogram_of_file(f, opts),
         })
         .collect();
     let parts = parts.into_iter().collect::<Result<Vec<_>>>()?;
+    let total = parts.iter().fold(0u64, |a, p| a.saturating_add(p.total()));
+    if total > histogram::MAX_TOTAL {
+        return Err(Error::Data(format!(
+            "the inputs count {total} pixels in all, more than the 2^53 a histogram holds \
+             exactly"
+        )));
+    }
     Histogram::merge(&parts).ok_or_else(|| {
         Error::Data("the histograms mix 8- and 16-bit tables and cannot be merged".into())
     })
+}
+
+/// The bytes of `path` when it is a histogram file (it starts with "CSHIST"), or `None`
+/// for any other file. At most `limit` bytes are read, and only the first 8 of a file
+/// that is not a histogram, so a device or pipe that never ends is not read to its end.
+fn read_histogram_file(path: &Path, limit: u64) -> Result<Option<Vec<u8>>> {
+    use std::io::Read;
+    let open_error = |source| Error::Open {
+        path: path.into(),
+        source,
+    };
+    let mut file = std::fs::File::open(path).map_err(open_error)?;
+    let mut bytes = Vec::new();
+    (&mut file)
+        .take(8)
+        .read_to_end(&mut bytes)
+        .map_err(open_error)?;
+    if !bytes.starts_with(b"CSHIST") {
+        return Ok(None);
+    }
+    file.take(limit.saturating_add(1))
+        .read_to_end(&mut bytes)
+        .map_err(open_error)?;
+    if bytes.len() as u64 > limit {
+        return Err(Error::LimitExceeded {
+            path: path.into(),
+            message: format!("histogram file is over the limit of {limit} bytes"),
+        });
+    }
+    Ok(Some(bytes))
 }
 
 #[cfg(test)]

@@ -805,6 +805,18 @@ fn photometric_patch(path: &Path) -> Option<(u64, [u8; 2])> {
 
 fn open_tiff(path: &Path, limits: &Limits) -> Result<GeoRaster> {
     let mut decoder = tiff_decoder(path, None, limits)?;
+    for (tag, what) in [
+        (Tag::SamplesPerPixel, "SamplesPerPixel (277)"),
+        (
+            Tag::PhotometricInterpretation,
+            "PhotometricInterpretation (262)",
+        ),
+        (Tag::Compression, "Compression (259)"),
+        (Tag::SampleFormat, "SampleFormat (339)"),
+        (Tag::PlanarConfiguration, "PlanarConfiguration (284)"),
+    ] {
+        check_tag_fits(&mut decoder, tag, what, path)?;
+    }
     let samples: u16 = decoder
         .find_tag_unsigned(Tag::SamplesPerPixel)
         .map_err(|e| tiff_error(path, e))?
@@ -1049,6 +1061,56 @@ fn convert_all<T>(
     values.into_iter().map(f).collect()
 }
 
+/// Bytes one value of a TIFF field type takes in the file (TIFF 6.0 §2; BigTIFF adds the
+/// 8-byte types).
+fn type_bytes(t: Type) -> u64 {
+    match t {
+        Type::BYTE | Type::SBYTE | Type::ASCII | Type::UNDEFINED => 1,
+        Type::SHORT | Type::SSHORT => 2,
+        Type::LONG | Type::SLONG | Type::FLOAT | Type::IFD => 4,
+        Type::LONG8
+        | Type::SLONG8
+        | Type::DOUBLE
+        | Type::RATIONAL
+        | Type::SRATIONAL
+        | Type::IFD8 => 8,
+        _ => 1,
+    }
+}
+
+/// Refuses a tag of the first image whose declared values are longer than the whole file.
+/// The `tiff` crate sizes its buffer from the declared count before it reads, and bounds
+/// that only by the decoding limit, so a file of a few hundred bytes could otherwise make
+/// it allocate gigabytes for one tag.
+fn check_tag_fits<R: Read + Seek>(
+    decoder: &mut Decoder<R>,
+    tag: Tag,
+    what: &str,
+    path: &Path,
+) -> Result<()> {
+    let Some(entry) = decoder.image_ifd().find_entry(tag) else {
+        return Ok(());
+    };
+    let file_len = std::fs::metadata(path)
+        .map_err(|source| Error::Open {
+            path: path.into(),
+            source,
+        })?
+        .len();
+    let bytes = entry.count().saturating_mul(type_bytes(entry.field_type()));
+    if bytes > file_len {
+        return Err(decode(
+            path,
+            format!(
+                "TIFF tag {what} claims {} values ({bytes} bytes) but the file has only \
+                 {file_len} bytes (corrupt file?)",
+                entry.count()
+            ),
+        ));
+    }
+    Ok(())
+}
+
 fn read_geo<R: Read + Seek>(decoder: &mut Decoder<R>, path: &Path) -> Result<GeoTags> {
     let mut geo = GeoTags::default();
     for code in [
@@ -1064,6 +1126,7 @@ fn read_geo<R: Read + Seek>(decoder: &mut Decoder<R>, path: &Path) -> Result<Geo
             continue;
         };
         let name = geo_tag_name(code);
+        check_tag_fits(decoder, tag, &format!("{name} ({code})"), path)?;
         let bad = |e: TiffError| {
             decode(
                 path,
@@ -1112,6 +1175,7 @@ pub fn parse_nodata(text: &str) -> Option<f64> {
 
 fn read_nodata<R: Read + Seek>(decoder: &mut Decoder<R>, path: &Path) -> Result<Option<f64>> {
     let tag = Tag::from_u16_exhaustive(TAG_GDAL_NODATA);
+    check_tag_fits(decoder, tag, "GDAL_NODATA (42113)", path)?;
     let Some(value) = decoder
         .find_tag(tag)
         .map_err(|e| decode(path, format!("cannot read GDAL_NODATA (42113): {e}")))?

@@ -5,6 +5,11 @@ use rayon::prelude::*;
 /// Entry index of a pixel that takes no part (alpha = 0).
 pub const TRANSPARENT: u32 = u32::MAX;
 
+/// Most pixels one histogram may count in all: 2⁵³ (about 9 × 10¹⁵), so that every count
+/// and every sum of counts is exact as an f64 clustering weight. Histogram files and
+/// merges that would go past it are refused.
+pub const MAX_TOTAL: u64 = 1 << 53;
+
 /// Distinct colours of an image with their pixel counts.
 ///
 /// Entries are sorted by colour value (R, then G, then B), so the table is the same
@@ -35,9 +40,10 @@ impl Histogram {
     pub fn is_empty(&self) -> bool {
         self.colours.is_empty()
     }
-    /// Pixels counted.
+    /// Pixels counted (saturating at `u64::MAX`; the histograms this crate builds or
+    /// reads stay within [`MAX_TOTAL`]).
     pub fn total(&self) -> u64 {
-        self.counts.iter().sum()
+        self.counts.iter().fold(0u64, |a, &c| a.saturating_add(c))
     }
     /// Linear sRGB (0..1) of an entry colour at this table's depth.
     pub fn linear(&self, c: &[u16; 3]) -> [f64; 3] {
@@ -54,6 +60,8 @@ impl Histogram {
     }
 
     /// Merges histograms of the same depth (parts of one image, or several images).
+    /// Counts saturate at `u64::MAX`; callers merging histograms from files check the
+    /// sum against [`MAX_TOTAL`] first.
     pub fn merge(parts: &[Histogram]) -> Option<Histogram> {
         let depth = parts.first()?.depth;
         if parts.iter().any(|p| p.depth != depth) {
@@ -68,7 +76,8 @@ impl Histogram {
         let mut counts: Vec<u64> = Vec::new();
         for (c, n) in all {
             if colours.last() == Some(&c) {
-                *counts.last_mut().unwrap() += n;
+                let last = counts.last_mut().unwrap();
+                *last = last.saturating_add(n);
             } else {
                 colours.push(c);
                 counts.push(n);

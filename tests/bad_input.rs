@@ -672,6 +672,11 @@ fn rows(s: &Scene) -> Vec<Row> {
         );
     }
     add(
+        "learn endless device",
+        &["learn", "/dev/zero", "-o", &learned],
+        &["/dev/zero", "not an image"],
+    );
+    add(
         "learn k 0",
         &["learn", &s.p("good.hist"), "-k", "0", "-o", &learned],
         &["k must be at least 1"],
