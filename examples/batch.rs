@@ -20,7 +20,10 @@ fn main() -> Result<(), chromasift::Error> {
     let stop = AtomicBool::new(false);
     let report = run_batch(Path::new("fixtures/demo"), &out, &opts, &stop, &|_, _| {})?;
     for f in &report.files {
-        println!("{:32} {:?} ΔE2000 {:?}", f.input, f.status, f.mean_delta_e2000);
+        println!(
+            "{:32} {:?} ΔE2000 {:?}",
+            f.input, f.status, f.mean_delta_e2000
+        );
     }
     Ok(())
 }

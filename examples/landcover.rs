@@ -12,7 +12,11 @@ fn main() -> Result<(), chromasift::Error> {
         k: 4,
         ..LandcoverOptions::default()
     };
-    let report = landcover_file(Path::new("fixtures/rasters/utm_u16_4band_strips.tif"), &out, &opts)?;
+    let report = landcover_file(
+        Path::new("fixtures/rasters/utm_u16_4band_strips.tif"),
+        &out,
+        &opts,
+    )?;
     for c in &report.document.classes {
         println!("class {}: {} pixels", c.class, c.pixels);
     }

@@ -15,7 +15,12 @@ fn main() -> Result<(), chromasift::Error> {
     let out = std::env::temp_dir().join("chromasift-example-reduce");
     let report = reduce_file(&input, &out, &ReduceOptions::new(k))?;
     for c in &report.document.colors {
-        println!("{} {:5.1} %  uncertainty {:.3}", c.hex, 100.0 * c.share, c.mean_uncertainty);
+        println!(
+            "{} {:5.1} %  uncertainty {:.3}",
+            c.hex,
+            100.0 * c.share,
+            c.mean_uncertainty
+        );
     }
     println!(
         "mean ΔE2000 {:.2}; outputs in {}",

@@ -18,7 +18,12 @@ fn main() -> Result<(), chromasift::Error> {
         &opts,
     )?;
     for ink in &report.document.inks {
-        println!("{:24} coverage {:5.1} %  plate {}", ink.name, 100.0 * ink.coverage, ink.plate);
+        println!(
+            "{:24} coverage {:5.1} %  plate {}",
+            ink.name,
+            100.0 * ink.coverage,
+            ink.plate
+        );
     }
     println!("mean ΔE2000 {:.2}", report.document.mean_delta_e2000);
     Ok(())

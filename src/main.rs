@@ -47,7 +47,9 @@ fn read_palette(path: &std::path::Path) -> Result<reduce::FixedPalette, chromasi
 }
 
 /// `reduce` with standard input (`-`) as input and/or one output on standard output.
-fn reduce_stream(args: &chromasift::cli::ReduceArgs) -> Result<reduce::ReduceReport, chromasift::Error> {
+fn reduce_stream(
+    args: &chromasift::cli::ReduceArgs,
+) -> Result<reduce::ReduceReport, chromasift::Error> {
     use std::io::Read;
     let t0 = std::time::Instant::now();
     let opts = args.options();
@@ -80,7 +82,10 @@ fn reduce_stream(args: &chromasift::cli::ReduceArgs) -> Result<reduce::ReduceRep
     let mut red = reduce::reduce_bytes(&bytes, &name, &opts)?;
     drop(bytes);
     if !from_stdin {
-        red.document.input = args.input.file_name().map(|n| n.to_string_lossy().into_owned());
+        red.document.input = args
+            .input
+            .file_name()
+            .map(|n| n.to_string_lossy().into_owned());
     }
     let outputs = match args.stdout {
         Some(which) => {
@@ -216,7 +221,22 @@ fn run_batch(args: chromasift::cli::BatchArgs) -> ExitCode {
     }
 }
 
+/// With a file-size limit set (`ulimit -f`), the kernel kills a process that writes past
+/// it (SIGXFSZ), leaving its temporary file behind. Ignoring the signal turns that into a
+/// write error (EFBIG) that is reported like a full disk, and the temporary file is
+/// removed.
+#[cfg(unix)]
+fn ignore_file_size_signal() {
+    // SAFETY: setting a signal's disposition to "ignore" at start-up, before any other
+    // thread exists, has no memory-safety requirement.
+    unsafe {
+        libc::signal(libc::SIGXFSZ, libc::SIG_IGN);
+    }
+}
+
 fn main() -> ExitCode {
+    #[cfg(unix)]
+    ignore_file_size_signal();
     let cli = match Cli::try_parse() {
         Ok(c) => c,
         Err(e) => {
@@ -332,7 +352,11 @@ fn main() -> ExitCode {
                         args.input.display(),
                         d.rows.first().map_or(0, |r| r.k),
                         d.rows.last().map_or(0, |r| r.k),
-                        if suggested.is_empty() { "none".to_string() } else { suggested.join(", ") },
+                        if suggested.is_empty() {
+                            "none".to_string()
+                        } else {
+                            suggested.join(", ")
+                        },
                         report.seconds
                     );
                     if args.json {

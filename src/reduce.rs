@@ -83,17 +83,21 @@ impl QualityTarget {
     /// Checks the target's numbers.
     pub fn check(&self) -> Result<()> {
         if !(self.delta_e.is_finite() && self.delta_e >= 0.0) {
-            return Err(Error::Params(crate::error::ParamsError::BadTarget(format!(
-                "--target-delta-e must be a finite number >= 0 (got {})",
-                self.delta_e
-            ))));
+            return Err(Error::Params(crate::error::ParamsError::BadTarget(
+                format!(
+                    "--target-delta-e must be a finite number >= 0 (got {})",
+                    self.delta_e
+                ),
+            )));
         }
         if self.k_max == 0 || self.k_max > crate::cluster::MAX_K {
-            return Err(Error::Params(crate::error::ParamsError::BadTarget(format!(
-                "--k-max must be between 1 and {} (got {})",
-                crate::cluster::MAX_K,
-                self.k_max
-            ))));
+            return Err(Error::Params(crate::error::ParamsError::BadTarget(
+                format!(
+                    "--k-max must be between 1 and {} (got {})",
+                    crate::cluster::MAX_K,
+                    self.k_max
+                ),
+            )));
         }
         Ok(())
     }
@@ -101,7 +105,12 @@ impl QualityTarget {
 
 /// Per-entry CIEDE2000 between each colour (`labs`) and the palette colour of its
 /// cluster, the cluster means (`k × 3`, in `space`) rounded to sRGB8 as they are written.
-pub fn entry_delta_e2000(means: &[f64], labels: &[u32], labs: &[[f64; 3]], space: Space) -> Vec<f64> {
+pub fn entry_delta_e2000(
+    means: &[f64],
+    labels: &[u32],
+    labs: &[[f64; 3]],
+    space: Space,
+) -> Vec<f64> {
     let palette_lab: Vec<[f64; 3]> = means
         .chunks_exact(3)
         .map(|m| colour::srgb8_to_lab(colour::space_to_srgb8([m[0], m[1], m[2]], space)))
@@ -125,7 +134,10 @@ pub fn mean_and_p95(values: &[f64], weights: &[f64], total: f64) -> (f64, f64) {
     order.sort_by(|&a, &b| values[a].total_cmp(&values[b]).then(a.cmp(&b)));
     let need = 0.95 * weights.iter().sum::<f64>();
     let mut cum = 0.0;
-    let mut p95 = values.get(*order.last().unwrap_or(&0)).copied().unwrap_or(0.0);
+    let mut p95 = values
+        .get(*order.last().unwrap_or(&0))
+        .copied()
+        .unwrap_or(0.0);
     for &i in &order {
         cum += weights[i];
         if cum >= need {
@@ -526,7 +538,14 @@ fn reduce_indexed(
         (means, beta, sse, 0, a.labels, a.entropy)
     } else if let Some(target) = opts.target.as_ref().filter(|_| hist.len() > 1) {
         target.check()?;
-        let search = search_k(&data, &labs, hist.total() as f64, opts.space, &params, target)?;
+        let search = search_k(
+            &data,
+            &labs,
+            hist.total() as f64,
+            opts.space,
+            &params,
+            target,
+        )?;
         let (k, mean, p95) = *search.tried.last().expect("at least one K tried");
         let shown = |(k, m, p): &(usize, f64, f64)| match target.statistic {
             TargetStatistic::Mean => format!("K = {k}: {m:.2}"),

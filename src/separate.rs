@@ -315,7 +315,8 @@ pub fn separate_image(
         }
     } else if let Some(target) = &opts.target {
         target.check()?;
-        let (selection, note) = choose_for_target(&table, &labs, &weights, library, &forced, opts, target);
+        let (selection, note) =
+            choose_for_target(&table, &labs, &weights, library, &forced, opts, target);
         notes.push(note);
         selection
     } else {

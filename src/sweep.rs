@@ -253,10 +253,7 @@ fn is_scene(input: &Path, opts: &SweepOptions) -> Result<bool> {
 pub fn sweep_file(input: &Path, out_dir: &Path, opts: &SweepOptions) -> Result<SweepReport> {
     let t0 = Instant::now();
     if opts.silhouette_sample < 2 {
-        return Err(ParamsError::Other(
-            "--silhouette-sample must be at least 2".into(),
-        )
-        .into());
+        return Err(ParamsError::Other("--silhouette-sample must be at least 2".into()).into());
     }
     crate::cluster::KMeansParams::new(opts.range.max)
         .max_iter(opts.max_iter)
@@ -271,14 +268,21 @@ pub fn sweep_file(input: &Path, out_dir: &Path, opts: &SweepOptions) -> Result<S
     let mut notes = Vec::new();
     let (rows, features) = if is_scene(input, opts)? {
         let scene_opts = opts.scene.clone().unwrap_or_default();
-        let s = scene_sample(input, &LandcoverOptions {
-            limits: opts.limits,
-            seed: opts.seed,
-            ..scene_opts
-        }, opts.range.min)?;
+        let s = scene_sample(
+            input,
+            &LandcoverOptions {
+                limits: opts.limits,
+                seed: opts.seed,
+                ..scene_opts
+            },
+            opts.range.min,
+        )?;
         let data = Dataset::new(&s.sample, s.dim, None)?;
         let rows = sweep_rows(&data, None, opts.space, opts);
-        (rows, format!("bands/indices {}", s.feature_names().join(",")))
+        (
+            rows,
+            format!("bands/indices {}", s.feature_names().join(",")),
+        )
     } else {
         let img = raster::decode(input, &opts.limits)?;
         let IndexedHistogram { histogram: h, .. } = match &img.pixels {
@@ -341,9 +345,8 @@ fn opt(v: Option<f64>) -> String {
 
 /// `sweep.csv`: one row per K with a header, then a `# suggested` comment line per criterion.
 pub fn sweep_csv(doc: &SweepDocument) -> String {
-    let mut s = String::from(
-        "k,sse,mean_delta_e2000,p95_delta_e2000,mean_uncertainty,silhouette,bic\n",
-    );
+    let mut s =
+        String::from("k,sse,mean_delta_e2000,p95_delta_e2000,mean_uncertainty,silhouette,bic\n");
     for r in &doc.rows {
         s.push_str(&format!(
             "{},{},{},{},{},{},{}\n",
@@ -396,7 +399,9 @@ fn label(v: f64) -> String {
 }
 
 fn escape(s: &str) -> String {
-    s.replace('&', "&amp;").replace('<', "&lt;").replace('>', "&gt;")
+    s.replace('&', "&amp;")
+        .replace('<', "&lt;")
+        .replace('>', "&gt;")
 }
 
 /// One line of a panel.
@@ -444,7 +449,9 @@ fn panel(
     }
     let (mut lo, mut hi) = vals
         .iter()
-        .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), &v| (a.min(v), b.max(v)));
+        .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), &v| {
+            (a.min(v), b.max(v))
+        });
     if hi - lo < 1e-12 * hi.abs().max(1.0) {
         lo -= 0.5 * lo.abs().max(1.0);
         hi += 0.5 * hi.abs().max(1.0);
@@ -530,7 +537,11 @@ fn panel(
             "<polyline points=\"{}\" fill=\"none\" stroke=\"{}\" stroke-width=\"2\"{}/>\n",
             pts.join(" "),
             s.colour,
-            if s.dashed { " stroke-dasharray=\"5,3\"" } else { "" }
+            if s.dashed {
+                " stroke-dasharray=\"5,3\""
+            } else {
+                ""
+            }
         ));
         for p in &pts {
             let (x, y) = p.split_once(',').unwrap();
@@ -705,9 +716,15 @@ pub fn sweep_svg(doc: &SweepDocument, space: Space) -> String {
         note(&format!("  {name}: K = {k}"), &mut s);
     }
     note("Silhouette: Rousseeuw (1987), on a seeded sample", &mut s);
-    note(&format!("  of {} pixels or rows.", doc.silhouette_sample), &mut s);
+    note(
+        &format!("  of {} pixels or rows.", doc.silhouette_sample),
+        &mut s,
+    );
     note("BIC: Schwarz (1978), isotropic Gaussian mixture;", &mut s);
-    note("  on millions of pixels it tends to favour large K.", &mut s);
+    note(
+        "  on millions of pixels it tends to favour large K.",
+        &mut s,
+    );
     note("* Dotted grey lines: ΔE2000 rules of thumb,", &mut s);
     note("  common practice, not a standard.", &mut s);
     s.push_str("</svg>\n");
@@ -720,8 +737,14 @@ mod tests {
 
     #[test]
     fn k_ranges_parse_and_refuse() {
-        assert_eq!("2..16".parse::<KRange>().unwrap(), KRange { min: 2, max: 16 });
-        assert_eq!("3..=5".parse::<KRange>().unwrap(), KRange { min: 3, max: 5 });
+        assert_eq!(
+            "2..16".parse::<KRange>().unwrap(),
+            KRange { min: 2, max: 16 }
+        );
+        assert_eq!(
+            "3..=5".parse::<KRange>().unwrap(),
+            KRange { min: 3, max: 5 }
+        );
         assert_eq!("4..4".parse::<KRange>().unwrap(), KRange { min: 4, max: 4 });
         for bad in ["", "2", "0..4", "5..3", "a..b", "2..1000", "2...5"] {
             assert!(bad.parse::<KRange>().is_err(), "{bad}");

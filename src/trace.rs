@@ -4,7 +4,8 @@
 use std::sync::OnceLock;
 use std::time::Instant;
 
-fn enabled() -> bool {
+/// True when `CHROMASIFT_TIMINGS` is set (and not 0).
+pub fn enabled() -> bool {
     static ON: OnceLock<bool> = OnceLock::new();
     *ON.get_or_init(|| std::env::var_os("CHROMASIFT_TIMINGS").is_some_and(|v| v != "0"))
 }

@@ -5,8 +5,8 @@
 mod common;
 
 use chromasift::cluster::{
-    assign_nearest, auto_beta, calibration, fit, lloyd, responsibility_matrix, silhouette,
-    Anneal, Dataset, KMeansParams, Stop,
+    assign_nearest, auto_beta, calibration, fit, lloyd, responsibility_matrix, silhouette, Anneal,
+    Dataset, KMeansParams, Stop,
 };
 use chromasift::rng::Rng;
 use chromasift::sweep::{suggest, sweep_rows, KRange, SweepOptions};
@@ -67,7 +67,11 @@ fn silhouette_matches_scikit_learn_on_iris() {
         let want = case["silhouette"].as_f64().unwrap();
         let got = silhouette(&rows, 4, &labels).unwrap();
         // Rows are f32 here (data given to one decimal), scikit-learn used f64.
-        assert!((got - want).abs() < 1e-6, "k = {}: {got} vs {want}", case["k"]);
+        assert!(
+            (got - want).abs() < 1e-6,
+            "k = {}: {got} vs {want}",
+            case["k"]
+        );
     }
 }
 
@@ -90,7 +94,10 @@ fn silhouette_and_bic_pick_the_true_k_on_separated_mixtures() {
         let table = sweep_rows(&data, None, chromasift::colour::Space::Cielab, &opts);
         assert_eq!(table.len(), 11);
         let s = suggest(&table);
-        assert_eq!(s["silhouette"], true_k, "silhouette, true K {true_k}: {table:?}");
+        assert_eq!(
+            s["silhouette"], true_k,
+            "silhouette, true K {true_k}: {table:?}"
+        );
         assert_eq!(s["bic"], true_k, "BIC, true K {true_k}: {table:?}");
         // ΔE columns are absent for non-colour rows; SSE falls with K along the path.
         assert!(table.iter().all(|r| r.mean_delta_e2000.is_none()));
@@ -109,7 +116,10 @@ fn target_delta_e_returns_the_smallest_qualifying_k_of_the_sweep() {
     let poster = fixture("demo/harbour-poster.png");
     let p = poster.to_str().unwrap();
     let sw = dir.path().join("sweep");
-    let o = run(&["sweep", p, "--k", "1..12", "-o", sw.to_str().unwrap()], &[]);
+    let o = run(
+        &["sweep", p, "--k", "1..12", "-o", sw.to_str().unwrap()],
+        &[],
+    );
     assert_eq!(o.status.code(), Some(0), "{}", stderr(&o));
     for name in ["sweep.csv", "sweep.json", "sweep.svg"] {
         assert!(sw.join(name).is_file(), "{name}");
@@ -118,17 +128,22 @@ fn target_delta_e_returns_the_smallest_qualifying_k_of_the_sweep() {
     let rows = doc["rows"].as_array().unwrap();
     assert_eq!(rows.len(), 12);
     let csv = std::fs::read_to_string(sw.join("sweep.csv")).unwrap();
-    assert!(csv.starts_with(
-        "k,sse,mean_delta_e2000,p95_delta_e2000,mean_uncertainty,silhouette,bic\n"
-    ));
+    assert!(
+        csv.starts_with("k,sse,mean_delta_e2000,p95_delta_e2000,mean_uncertainty,silhouette,bic\n")
+    );
     let svg = std::fs::read_to_string(sw.join("sweep.svg")).unwrap();
-    assert!(svg.starts_with("<svg") && svg.contains("suggested") && svg.trim_end().ends_with("</svg>"));
+    assert!(
+        svg.starts_with("<svg") && svg.contains("suggested") && svg.trim_end().ends_with("</svg>")
+    );
     for key in ["silhouette", "bic"] {
         let k = doc["suggested"][key].as_u64().unwrap();
         assert!((1..=12).contains(&k), "{key}");
     }
 
-    for (stat, flag) in [("mean_delta_e2000", None), ("p95_delta_e2000", Some("--target-p95"))] {
+    for (stat, flag) in [
+        ("mean_delta_e2000", None),
+        ("p95_delta_e2000", Some("--target-p95")),
+    ] {
         // A target between two rows' values, so exactly one K is the smallest that meets it.
         let values: Vec<f64> = rows.iter().map(|r| r[stat].as_f64().unwrap()).collect();
         let target = (values[5] + values[6]) / 2.0;
@@ -196,7 +211,14 @@ fn sweep_reads_a_multi_band_scene_and_refuses_bad_ranges() {
     for bad in ["0..4", "5..2", "x"] {
         let out = dir.path().join("bad");
         let o = run(
-            &["sweep", scene.to_str().unwrap(), "--k", bad, "-o", out.to_str().unwrap()],
+            &[
+                "sweep",
+                scene.to_str().unwrap(),
+                "--k",
+                bad,
+                "-o",
+                out.to_str().unwrap(),
+            ],
             &[],
         );
         assert_eq!(o.status.code(), Some(2), "{bad}");
@@ -248,14 +270,31 @@ fn annealing_beats_single_start_kmeans_plus_plus_on_unbalanced_groups() {
         })
         .collect();
     singles.sort_by(f64::total_cmp);
-    let beaten = singles.iter().filter(|&&s| s > annealed.sse * (1.0 + 1e-6)).count();
-    assert!(annealed.sse <= singles[10], "{} vs median {}", annealed.sse, singles[10]);
-    assert!(beaten >= 15, "beats {beaten} of 20: {} vs {singles:?}", annealed.sse);
+    let beaten = singles
+        .iter()
+        .filter(|&&s| s > annealed.sse * (1.0 + 1e-6))
+        .count();
+    assert!(
+        annealed.sse <= singles[10],
+        "{} vs median {}",
+        annealed.sse,
+        singles[10]
+    );
+    assert!(
+        beaten >= 15,
+        "beats {beaten} of 20: {} vs {singles:?}",
+        annealed.sse
+    );
 }
 
 #[test]
 fn bad_annealing_schedules_are_refused() {
-    for (s, e, f) in [(0.0, 10.0, 1.2), (5.0, 1.0, 1.2), (0.5, 10.0, 1.0), (0.5, f64::NAN, 1.2)] {
+    for (s, e, f) in [
+        (0.0, 10.0, 1.2),
+        (5.0, 1.0, 1.2),
+        (0.5, 10.0, 1.0),
+        (0.5, f64::NAN, 1.2),
+    ] {
         let r = KMeansParams::new(3)
             .anneal(Some(Anneal {
                 start: s,
@@ -303,8 +342,10 @@ fn soft_assignment_at_auto_beta_is_calibrated() {
             let m = &centres[c];
             (0..3)
                 .min_by(|&a, &b| {
-                    let da = (model.means[a * 2] - m[0]).powi(2) + (model.means[a * 2 + 1] - m[1]).powi(2);
-                    let db = (model.means[b * 2] - m[0]).powi(2) + (model.means[b * 2 + 1] - m[1]).powi(2);
+                    let da = (model.means[a * 2] - m[0]).powi(2)
+                        + (model.means[a * 2 + 1] - m[1]).powi(2);
+                    let db = (model.means[b * 2] - m[0]).powi(2)
+                        + (model.means[b * 2 + 1] - m[1]).powi(2);
                     da.total_cmp(&db)
                 })
                 .unwrap() as u32
@@ -341,7 +382,16 @@ fn separate_target_uses_the_fewest_inks_within_the_target() {
     let (a, l) = (art.to_str().unwrap(), inks.to_str().unwrap());
     let mean_for = |args: &[&str]| -> (u64, f64, String) {
         let out = dir.path().join("o");
-        let mut v = vec!["separate", a, "--inks", l, "--min-area", "1", "--json", "-o"];
+        let mut v = vec![
+            "separate",
+            a,
+            "--inks",
+            l,
+            "--min-area",
+            "1",
+            "--json",
+            "-o",
+        ];
         let os = out.to_str().unwrap().to_string();
         v.push(&os);
         v.extend_from_slice(args);
@@ -355,7 +405,9 @@ fn separate_target_uses_the_fewest_inks_within_the_target() {
             stderr(&o),
         )
     };
-    let per_k: Vec<f64> = (1..=5).map(|k| mean_for(&["-k", &k.to_string()]).1).collect();
+    let per_k: Vec<f64> = (1..=5)
+        .map(|k| mean_for(&["-k", &k.to_string()]).1)
+        .collect();
     let target = (per_k[2] + per_k[3]) / 2.0;
     let want = 1 + per_k.iter().position(|&m| m <= target).unwrap() as u64;
     let t = format!("{target}");

@@ -42,7 +42,14 @@ fn stdin_to_stdout_equals_the_file_path_result_byte_for_byte() {
     let dir = tempfile::tempdir().unwrap();
     let out = dir.path().join("files");
     let o = run(
-        &["reduce", poster.to_str().unwrap(), "-k", "6", "-o", out.to_str().unwrap()],
+        &[
+            "reduce",
+            poster.to_str().unwrap(),
+            "-k",
+            "6",
+            "-o",
+            out.to_str().unwrap(),
+        ],
         &[],
     );
     assert_eq!(o.status.code(), Some(0), "{}", stderr(&o));
@@ -50,12 +57,17 @@ fn stdin_to_stdout_equals_the_file_path_result_byte_for_byte() {
         ("reduced", "harbour-poster.reduced.png"),
         ("uncertainty", "harbour-poster.uncertainty.png"),
     ] {
-        let (code, stdout, err) = piped(&["reduce", "-", "-k", "6", "--stdout", which], &bytes, &[]);
+        let (code, stdout, err) =
+            piped(&["reduce", "-", "-k", "6", "--stdout", which], &bytes, &[]);
         assert_eq!(code, Some(0), "{err}");
         assert_eq!(stdout, std::fs::read(out.join(file)).unwrap(), "{which}");
     }
     // The palette document differs only in the input name, which standard input lacks.
-    let (code, stdout, err) = piped(&["reduce", "-", "-k", "6", "--stdout", "palette"], &bytes, &[]);
+    let (code, stdout, err) = piped(
+        &["reduce", "-", "-k", "6", "--stdout", "palette"],
+        &bytes,
+        &[],
+    );
     assert_eq!(code, Some(0), "{err}");
     let mut a: serde_json::Value = serde_json::from_slice(&stdout).unwrap();
     let mut b: serde_json::Value =
@@ -81,7 +93,10 @@ fn stdin_to_stdout_equals_the_file_path_result_byte_for_byte() {
         &[],
     );
     assert_eq!(o.status.code(), Some(0));
-    assert_eq!(o.stdout, std::fs::read(out.join("harbour-poster.reduced.png")).unwrap());
+    assert_eq!(
+        o.stdout,
+        std::fs::read(out.join("harbour-poster.reduced.png")).unwrap()
+    );
     assert!(!quiet.exists());
 }
 
@@ -90,23 +105,38 @@ fn stdin_without_stdout_writes_stdin_named_files_and_bad_input_fails_cleanly() {
     let bytes = std::fs::read(fixture("demo/harbour-poster.png")).unwrap();
     let dir = tempfile::tempdir().unwrap();
     let out = dir.path().join("o");
-    let (code, _, err) = piped(&["reduce", "-", "-k", "4", "-o", out.to_str().unwrap()], &bytes, &[]);
+    let (code, _, err) = piped(
+        &["reduce", "-", "-k", "4", "-o", out.to_str().unwrap()],
+        &bytes,
+        &[],
+    );
     assert_eq!(code, Some(0), "{err}");
     assert_eq!(
         common::files_in(&out),
-        ["stdin.palette.csv", "stdin.palette.json", "stdin.reduced.png", "stdin.uncertainty.png"]
+        [
+            "stdin.palette.csv",
+            "stdin.palette.json",
+            "stdin.reduced.png",
+            "stdin.uncertainty.png"
+        ]
     );
     for bad in [&b""[..], b"not an image at all", &bytes[..bytes.len() / 3]] {
         let (code, stdout, err) =
             piped(&["reduce", "-", "-k", "4", "--stdout", "reduced"], bad, &[]);
         assert_eq!(code, Some(2), "{err}");
         assert!(stdout.is_empty());
-        assert!(err.starts_with("chromasift: error: standard input: "), "{err}");
+        assert!(
+            err.starts_with("chromasift: error: standard input: "),
+            "{err}"
+        );
         assert_eq!(err.trim_end().lines().count(), 1, "{err}");
     }
     let (code, _, err) = piped(&["reduce", "-", "--stdout", "everything"], &bytes, &[]);
     assert_eq!(code, Some(2));
-    assert!(err.contains("--stdout takes reduced, uncertainty or palette"), "{err}");
+    assert!(
+        err.contains("--stdout takes reduced, uncertainty or palette"),
+        "{err}"
+    );
 }
 
 #[test]
@@ -158,7 +188,16 @@ fn no_colour_off_a_terminal_or_with_no_color() {
 
 #[test]
 fn every_workflow_offers_json_and_the_help_states_the_exit_codes() {
-    for c in ["reduce", "separate", "landcover", "batch", "learn", "apply", "histogram", "sweep"] {
+    for c in [
+        "reduce",
+        "separate",
+        "landcover",
+        "batch",
+        "learn",
+        "apply",
+        "histogram",
+        "sweep",
+    ] {
         let o = run(&[c, "--help"], &[]);
         let help = String::from_utf8(o.stdout).unwrap();
         assert!(help.contains("--json"), "{c} --help lacks --json");
@@ -166,6 +205,9 @@ fn every_workflow_offers_json_and_the_help_states_the_exit_codes() {
     let o = run(&["--help"], &[]);
     let help = String::from_utf8(o.stdout).unwrap();
     for code in ["0 success", "1 some inputs", "2 usage error", "130"] {
-        assert!(help.contains(code), "top-level help lacks exit code {code}: {help}");
+        assert!(
+            help.contains(code),
+            "top-level help lacks exit code {code}: {help}"
+        );
     }
 }

@@ -29,7 +29,9 @@ fn every_guide_command_runs() {
     let dir = tempfile::tempdir().unwrap();
     let root = Path::new(env!("CARGO_MANIFEST_DIR"));
     std::os::unix::fs::symlink(root.join("fixtures"), dir.path().join("fixtures")).unwrap();
-    let bin_dir = Path::new(env!("CARGO_BIN_EXE_chromasift")).parent().unwrap();
+    let bin_dir = Path::new(env!("CARGO_BIN_EXE_chromasift"))
+        .parent()
+        .unwrap();
     let path = format!(
         "{}:{}",
         bin_dir.display(),

@@ -54,7 +54,9 @@ fn folder(root: &Path, n: usize) -> PathBuf {
 }
 
 fn batch_args<'a>(input: &'a str, out: &'a str) -> Vec<&'a str> {
-    vec!["batch", input, "-k", "8", "-o", out, "--jobs", "1", "--quiet"]
+    vec![
+        "batch", input, "-k", "8", "-o", out, "--jobs", "1", "--quiet",
+    ]
 }
 
 fn spawn(args: &[&str]) -> Child {
@@ -106,7 +108,12 @@ fn assert_no_partial_files(out: &Path) {
 fn temporaries(out: &Path) -> Vec<PathBuf> {
     tree(out)
         .into_keys()
-        .filter(|p| p.file_name().unwrap().to_string_lossy().starts_with(TEMP_PREFIX))
+        .filter(|p| {
+            p.file_name()
+                .unwrap()
+                .to_string_lossy()
+                .starts_with(TEMP_PREFIX)
+        })
         .collect()
 }
 
@@ -149,7 +156,10 @@ fn any_palette_written(out: &Path) -> bool {
 fn reference(root: &Path, input: &Path) -> (PathBuf, f64) {
     let out = root.join("reference");
     let t = Instant::now();
-    let o = run(&batch_args(input.to_str().unwrap(), out.to_str().unwrap()), &[]);
+    let o = run(
+        &batch_args(input.to_str().unwrap(), out.to_str().unwrap()),
+        &[],
+    );
     assert_eq!(o.status.code(), Some(0), "{}", stderr(&o));
     (out, t.elapsed().as_secs_f64())
 }
@@ -176,9 +186,16 @@ fn ctrl_c_stops_cleanly_and_a_rerun_finishes_the_rest() {
     assert!(k.success());
     let o_int = child.wait_with_output().unwrap();
     let err = String::from_utf8_lossy(&o_int.stderr);
-    assert_eq!(o_int.status.code(), Some(130), "exit 130 after Ctrl-C: {err}");
+    assert_eq!(
+        o_int.status.code(),
+        Some(130),
+        "exit 130 after Ctrl-C: {err}"
+    );
     assert!(!err.contains("panicked"), "{err}");
-    assert!(temporaries(&out).is_empty(), "no temporary files after a clean stop");
+    assert!(
+        temporaries(&out).is_empty(),
+        "no temporary files after a clean stop"
+    );
     assert_no_partial_files(&out);
     let st = statuses(&out);
     assert!(st.iter().any(|s| s == "interrupted"), "{st:?}");
@@ -188,8 +205,15 @@ fn ctrl_c_stops_cleanly_and_a_rerun_finishes_the_rest() {
     assert_eq!(o2.status.code(), Some(0), "{}", stderr(&o2));
     let st = statuses(&out);
     assert!(st.iter().all(|s| s == "ok" || s == "skipped"), "{st:?}");
-    assert!(st.iter().any(|s| s == "skipped"), "finished images are not redone");
-    assert_eq!(outputs(&out), outputs(&reference), "same files as an uninterrupted run");
+    assert!(
+        st.iter().any(|s| s == "skipped"),
+        "finished images are not redone"
+    );
+    assert_eq!(
+        outputs(&out),
+        outputs(&reference),
+        "same files as an uninterrupted run"
+    );
     assert_eq!(results(&out), results(&reference));
     assert_eq!(tree(&input), before, "the input folder is untouched");
 }
@@ -237,6 +261,9 @@ fn sigkill_at_seeded_moments_leaves_no_partial_output() {
         );
         assert_eq!(results(&out), results(&reference), "trial {trial}");
     }
-    assert!(cut_mid_run > 0, "at least one kill landed part-way through the batch");
+    assert!(
+        cut_mid_run > 0,
+        "at least one kill landed part-way through the batch"
+    );
     assert_eq!(tree(&input), before, "the input folder is untouched");
 }

@@ -105,7 +105,9 @@ pub enum Command {
     Sweep(SweepArgs),
 
     /// Print a shell completion script on standard output.
-    #[command(after_help = "Example:\n  chromasift completions bash > ~/.local/share/bash-completion/completions/chromasift")]
+    #[command(
+        after_help = "Example:\n  chromasift completions bash > ~/.local/share/bash-completion/completions/chromasift"
+    )]
     Completions(CompletionsArgs),
 
     /// Print the manual page (roff) on standard output.
@@ -185,7 +187,11 @@ pub struct SweepArgs {
 
     /// Also stop when the means' summed squared move is at most this times the data's
     /// mean variance per dimension (0 = off).
-    #[arg(long = "shift-tolerance", default_value_t = 1e-4, value_name = "FRACTION")]
+    #[arg(
+        long = "shift-tolerance",
+        default_value_t = 1e-4,
+        value_name = "FRACTION"
+    )]
     pub shift_tolerance: f64,
 
     /// Refuse images with more pixels than this (checked from the header).
@@ -284,7 +290,11 @@ pub struct LandcoverArgs {
 
     /// Hard phase also stops when the means' summed squared move in one iteration is at
     /// most this times the data's mean variance per dimension (0 = off).
-    #[arg(long = "shift-tolerance", default_value_t = 1e-4, value_name = "FRACTION")]
+    #[arg(
+        long = "shift-tolerance",
+        default_value_t = 1e-4,
+        value_name = "FRACTION"
+    )]
     pub shift_tolerance: f64,
 
     /// Pixels in the seeded, spatially spread fitting sample (all pixels when the scene is smaller).
@@ -433,15 +443,17 @@ impl SeparateArgs {
             dpi: self.dpi,
             seed: self.seed,
             limits: Limits::with_max_pixels(self.max_pixels),
-            target: self.target_delta_e.map(|delta_e| crate::reduce::QualityTarget {
-                delta_e,
-                statistic: if self.target_p95 {
-                    crate::reduce::TargetStatistic::P95
-                } else {
-                    crate::reduce::TargetStatistic::Mean
-                },
-                k_max: self.k_max,
-            }),
+            target: self
+                .target_delta_e
+                .map(|delta_e| crate::reduce::QualityTarget {
+                    delta_e,
+                    statistic: if self.target_p95 {
+                        crate::reduce::TargetStatistic::P95
+                    } else {
+                        crate::reduce::TargetStatistic::Mean
+                    },
+                    k_max: self.k_max,
+                }),
         }
     }
 }
@@ -513,7 +525,11 @@ pub struct ReduceFlags {
 
     /// Hard phase also stops when the means' summed squared move in one iteration is at
     /// most this times the data's mean variance per dimension (0 = off).
-    #[arg(long = "shift-tolerance", default_value_t = 1e-4, value_name = "FRACTION")]
+    #[arg(
+        long = "shift-tolerance",
+        default_value_t = 1e-4,
+        value_name = "FRACTION"
+    )]
     pub shift_tolerance: f64,
 
     /// Dithering of the reduced image.
@@ -586,15 +602,17 @@ impl ReduceFlags {
                 factor: self.anneal_factor,
                 ..Anneal::default()
             }),
-            target: self.target_delta_e.map(|delta_e| crate::reduce::QualityTarget {
-                delta_e,
-                statistic: if self.target_p95 {
-                    crate::reduce::TargetStatistic::P95
-                } else {
-                    crate::reduce::TargetStatistic::Mean
-                },
-                k_max: self.k_max,
-            }),
+            target: self
+                .target_delta_e
+                .map(|delta_e| crate::reduce::QualityTarget {
+                    delta_e,
+                    statistic: if self.target_p95 {
+                        crate::reduce::TargetStatistic::P95
+                    } else {
+                        crate::reduce::TargetStatistic::Mean
+                    },
+                    k_max: self.k_max,
+                }),
         }
     }
 }

@@ -128,15 +128,19 @@ fn centroid_and_lambda_max(data: &Dataset) -> (Vec<f64>, f64) {
 
 /// Anneals `k` means over `data` on `schedule`, seeded (the seed only sets the tiny
 /// perturbations that let coincident means separate at each phase transition).
-pub fn anneal(data: &Dataset, k: usize, schedule: &Anneal, seed: u64, tolerance: f64) -> AnnealResult {
+pub fn anneal(
+    data: &Dataset,
+    k: usize,
+    schedule: &Anneal,
+    seed: u64,
+    tolerance: f64,
+) -> AnnealResult {
     let dim = data.dim();
     let (centre, lambda) = centroid_and_lambda_max(data);
     let sigma = lambda.sqrt();
     let mut rng = Rng::new(seed, 0xA77E);
     let jitter = 1e-3 * sigma.max(f64::MIN_POSITIVE);
-    let mut means: Vec<f64> = (0..k)
-        .flat_map(|_| centre.clone())
-        .collect();
+    let mut means: Vec<f64> = (0..k).flat_map(|_| centre.clone()).collect();
     if !(lambda > 0.0) {
         // All rows equal: nothing to split.
         return AnnealResult {

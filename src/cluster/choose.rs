@@ -175,8 +175,16 @@ pub fn calibration(resp: &[f64], k: usize, truth: &[u32], bins: usize) -> Vec<Ca
             lo: b as f64 / bins as f64,
             hi: (b + 1) as f64 / bins as f64,
             count: count[b],
-            mean_predicted: if count[b] > 0 { pred[b] / count[b] as f64 } else { 0.0 },
-            observed: if count[b] > 0 { hit[b] as f64 / count[b] as f64 } else { 0.0 },
+            mean_predicted: if count[b] > 0 {
+                pred[b] / count[b] as f64
+            } else {
+                0.0
+            },
+            observed: if count[b] > 0 {
+                hit[b] as f64 / count[b] as f64
+            } else {
+                0.0
+            },
         })
         .collect()
 }

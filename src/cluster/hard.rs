@@ -1,8 +1,9 @@
 //! Hard k-means: weighted Lloyd iterations, optionally accelerated with Hamerly (2010)
 //! distance bounds. Both paths make the same decisions and give the same result.
 
-use super::{dist2, nearest_two, Dataset, CHUNK};
+use super::{dist2, nearest_two, nearest_two_by_dim, Dataset, MeansByDim, CHUNK};
 use rayon::prelude::*;
+use std::sync::atomic::{AtomicUsize, Ordering::Relaxed};
 
 /// Relative safety margin on bound tests, far above f32 rounding of distances, so a
 /// skipped row is one whose nearest mean is certain.
@@ -29,7 +30,7 @@ fn to_f32(means: &[f64]) -> Vec<f32> {
 
 /// Nearest mean of every row and the weighted SSE (sum over chunks in chunk order).
 pub fn assign_nearest(data: &Dataset, means: &[f32]) -> (Vec<u32>, f64) {
-    let dim = data.dim();
+    let by_dim = MeansByDim::new(means, data.dim());
     let mut labels = vec![0u32; data.len()];
     let partial: Vec<f64> = labels
         .par_chunks_mut(CHUNK)
@@ -38,7 +39,7 @@ pub fn assign_nearest(data: &Dataset, means: &[f32]) -> (Vec<u32>, f64) {
             let mut s = 0.0f64;
             for (o, l) in out.iter_mut().enumerate() {
                 let i = c * CHUNK + o;
-                let (b, d1, _) = nearest_two(data.row(i), means, dim);
+                let (b, d1, _) = nearest_two_by_dim(data.row(i), &by_dim);
                 *l = b as u32;
                 s += data.weight(i) * d1 as f64;
             }
@@ -138,6 +139,7 @@ fn full_pass_dim(
     let rows = data.rows();
     let k = means.len() / dim;
     let stride = dim + 2;
+    let by_dim = MeansByDim::new(means, dim);
     let parts: Vec<(usize, Vec<f64>)> = labels
         .par_chunks_mut(CHUNK)
         .zip(upper.par_chunks_mut(CHUNK))
@@ -149,7 +151,7 @@ fn full_pass_dim(
             for o in 0..ls.len() {
                 let i = c * CHUNK + o;
                 let x = &rows[i * dim..(i + 1) * dim];
-                let (b, d1, d2) = nearest_two(x, means, dim);
+                let (b, d1, d2) = nearest_two_by_dim(x, &by_dim);
                 if b as u32 != ls[o] {
                     changed += 1;
                 }
@@ -254,6 +256,7 @@ fn bounded_pass_dim(
     let rows = data.rows();
     let k = means.len() / dim;
     let stride = dim + 2;
+    let by_dim = MeansByDim::new(means, dim);
     let parts: Vec<(usize, Vec<f64>)> = labels
         .par_chunks_mut(CHUNK)
         .zip(upper.par_chunks_mut(CHUNK))
@@ -261,6 +264,7 @@ fn bounded_pass_dim(
         .enumerate()
         .map(|(c, ((ls, us), lo))| {
             let mut changed = 0usize;
+            let (mut by_bounds, mut by_own) = (0usize, 0usize);
             let mut v = vec![0.0f64; k * stride];
             for o in 0..ls.len() {
                 let i = c * CHUNK + o;
@@ -271,15 +275,17 @@ fn bounded_pass_dim(
                 lo[o] -= if a == moves.most { moves.p2 } else { moves.p1 };
                 let m = moves.half_gap[a].max(lo[o]) * (1.0 - BOUND_MARGIN);
                 if us[o] < m {
+                    by_bounds += 1;
                     add_row(&mut v, stride, a, x, w);
                     continue;
                 }
                 us[o] = (dist2(x, &means[a * dim..(a + 1) * dim]) as f64).sqrt();
                 if us[o] < m {
+                    by_own += 1;
                     add_row(&mut v, stride, a, x, w);
                     continue;
                 }
-                let (b, d1, d2) = nearest_two(x, means, dim);
+                let (b, d1, d2) = nearest_two_by_dim(x, &by_dim);
                 if b != a {
                     changed += 1;
                 }
@@ -288,11 +294,24 @@ fn bounded_pass_dim(
                 lo[o] = (d2 as f64).sqrt();
                 add_row(&mut v, stride, b, x, w);
             }
+            if crate::trace::enabled() {
+                SKIPS[0].fetch_add(by_bounds, Relaxed);
+                SKIPS[1].fetch_add(by_own, Relaxed);
+                SKIPS[2].fetch_add(ls.len() - by_bounds - by_own, Relaxed);
+            }
             (changed, v)
         })
         .collect();
     combine(parts, k, dim)
 }
+
+/// Rows of bounded passes settled by the bounds alone, by the distance to their own mean,
+/// and by a full search (counted only when timings are on, for contributors).
+static SKIPS: [AtomicUsize; 3] = [
+    AtomicUsize::new(0),
+    AtomicUsize::new(0),
+    AtomicUsize::new(0),
+];
 
 /// Replaces the mean of each empty cluster by the row worst served by the other
 /// means (largest squared distance to its nearest mean; lowest index on ties).
@@ -409,6 +428,7 @@ pub fn lloyd(data: &Dataset, init: &[f32], stop: Stop, accelerate: bool) -> Lloy
     let (_, mut stats) = full_pass(data, &means32, &mut labels, &mut upper, &mut lower);
 
     let mut prev_sse = f64::INFINITY;
+    let mut pass_time = 0.0f64;
     let mut iterations = 0;
     let mut converged = false;
     while iterations < stop.max_iter {
@@ -430,8 +450,7 @@ pub fn lloyd(data: &Dataset, init: &[f32], stop: Stop, accelerate: bool) -> Lloy
         if !empty.is_empty() {
             reseed_empty(data, &mut means, &empty);
         }
-        if empty.is_empty() && prev_sse.is_finite() && prev_sse - sse <= stop.tolerance * prev_sse
-        {
+        if empty.is_empty() && prev_sse.is_finite() && prev_sse - sse <= stop.tolerance * prev_sse {
             converged = true;
             break;
         }
@@ -444,12 +463,14 @@ pub fn lloyd(data: &Dataset, init: &[f32], stop: Stop, accelerate: bool) -> Lloy
             }
         }
         means32 = to_f32(&means);
+        let t0 = std::time::Instant::now();
         let (changed, next) = if accelerate && empty.is_empty() && k > 1 {
             let moves = Moves::new(&old, &means, &means32, dim);
             bounded_pass(data, &means32, &moves, &mut labels, &mut upper, &mut lower)
         } else {
             full_pass(data, &means32, &mut labels, &mut upper, &mut lower)
         };
+        pass_time += t0.elapsed().as_secs_f64();
         stats = next;
         if changed == 0 && empty.is_empty() {
             converged = true;
@@ -458,6 +479,17 @@ pub fn lloyd(data: &Dataset, init: &[f32], stop: Stop, accelerate: bool) -> Lloy
     }
     means32 = to_f32(&means);
     let (labels, sse) = assign_nearest(data, &means32);
+    if crate::trace::enabled() {
+        let s: Vec<usize> = SKIPS.iter().map(|c| c.swap(0, Relaxed)).collect();
+        let all = s.iter().sum::<usize>().max(1) as f64;
+        eprintln!(
+            "chromasift: timing: lloyd rows: {n} rows, {iterations} iterations, {pass_time:.3} s in passes; bounded passes \
+             settled {:.1}% by bounds, {:.1}% by own distance, {:.1}% by full search",
+            100.0 * s[0] as f64 / all,
+            100.0 * s[1] as f64 / all,
+            100.0 * s[2] as f64 / all
+        );
+    }
     LloydResult {
         means,
         labels,

@@ -121,12 +121,7 @@ fn evaluate_any(
 }
 
 /// One pass over the data for all candidates of a round.
-fn evaluate(
-    data: &Dataset,
-    closest: &[f32],
-    cands: &[f32],
-    out: &mut [Vec<f32>],
-) -> Vec<Vec<f64>> {
+fn evaluate(data: &Dataset, closest: &[f32], cands: &[f32], out: &mut [Vec<f32>]) -> Vec<Vec<f64>> {
     match data.dim() {
         1 => evaluate_fixed::<1>(data, closest, cands, out),
         2 => evaluate_fixed::<2>(data, closest, cands, out),
@@ -159,7 +154,11 @@ pub fn kmeans_plus_plus_from(data: &Dataset, start: &[f32], k: usize, rng: &mut 
         return means;
     }
     let weight_sums: Vec<f64> = (0..n.div_ceil(CHUNK))
-        .map(|c| (c * CHUNK..((c + 1) * CHUNK).min(n)).map(|i| data.weight(i)).sum())
+        .map(|c| {
+            (c * CHUNK..((c + 1) * CHUNK).min(n))
+                .map(|i| data.weight(i))
+                .sum()
+        })
         .collect();
     if weight_sums.iter().sum::<f64>() <= 0.0 {
         return means;
@@ -195,7 +194,10 @@ pub fn kmeans_plus_plus_from(data: &Dataset, start: &[f32], k: usize, rng: &mut 
             break; // every remaining row sits on a chosen mean
         }
         let cands: Vec<f32> = (0..trials)
-            .flat_map(|_| data.row(draw(data, Some(&closest), &chunk_sums, rng)).to_vec())
+            .flat_map(|_| {
+                data.row(draw(data, Some(&closest), &chunk_sums, rng))
+                    .to_vec()
+            })
             .collect();
         let sums = evaluate(data, &closest, &cands, &mut scratch);
         let pots: Vec<f64> = sums.iter().map(|s| s.iter().sum()).collect();

@@ -16,9 +16,9 @@ mod model;
 mod params;
 mod soft;
 
-pub use hard::{assign_nearest, lloyd, LloydResult, Stop};
 pub use anneal::{anneal, Anneal, AnnealResult};
 pub use choose::{bic, calibration, k_path, silhouette, weighted_sample, CalibrationBin};
+pub use hard::{assign_nearest, lloyd, LloydResult, Stop};
 pub use init::{kmeans_plus_plus, kmeans_plus_plus_from};
 pub use model::{finish, fit, fit_from, stop_rule, KMeansModel};
 pub use params::{Beta, KMeansParams, Mode, ValidParams, MAX_K};
@@ -154,6 +154,101 @@ fn nearest_two_fixed<const D: usize>(x: &[f32], means: &[f32]) -> (usize, f32, f
     (best, d1, d2)
 }
 
+/// Means per vector block in [`MeansByDim`].
+const LANES: usize = 8;
+
+/// Means laid out by dimension (every mean's first coordinate, then every second, …),
+/// each run padded with +∞ to a multiple of [`LANES`], so the distances from one row to
+/// a block of means are computed side by side (the compiler vectorises the block). Each
+/// distance is still summed over dimensions in order, so it is bit-identical to
+/// [`dist2`], and [`nearest_two_by_dim`] gives exactly what [`nearest_two`] gives.
+#[derive(Debug, Clone)]
+pub(crate) struct MeansByDim {
+    v: Vec<f32>,
+    kpad: usize,
+    dim: usize,
+}
+
+impl MeansByDim {
+    /// From `k × dim` means, row after row.
+    pub(crate) fn new(means: &[f32], dim: usize) -> Self {
+        let k = means.len() / dim;
+        let kpad = k.div_ceil(LANES).max(1) * LANES;
+        let mut v = vec![f32::INFINITY; kpad * dim];
+        for (j, m) in means.chunks_exact(dim).enumerate() {
+            for (t, &x) in m.iter().enumerate() {
+                v[t * kpad + j] = x;
+            }
+        }
+        MeansByDim { v, kpad, dim }
+    }
+}
+
+#[inline(always)]
+fn scan_block(d: &[f32; LANES], j0: usize, best: &mut usize, d1: &mut f32, d2: &mut f32) {
+    for (l, &dl) in d.iter().enumerate() {
+        // Same decisions as `if dl < d1 {…} else if dl < d2 {…}`, as d1 ≤ d2 always.
+        if dl < *d2 {
+            if dl < *d1 {
+                *d2 = *d1;
+                *d1 = dl;
+                *best = j0 + l;
+            } else {
+                *d2 = dl;
+            }
+        }
+    }
+}
+
+#[inline(always)]
+fn nearest_two_by_dim_fixed<const D: usize>(x: &[f32], m: &MeansByDim) -> (usize, f32, f32) {
+    let x: &[f32; D] = x.try_into().expect("row of D values");
+    let (mut best, mut d1, mut d2) = (0usize, f32::INFINITY, f32::INFINITY);
+    for j0 in (0..m.kpad).step_by(LANES) {
+        let mut d = [0.0f32; LANES];
+        for (t, &xt) in x.iter().enumerate() {
+            let col: &[f32; LANES] = m.v[t * m.kpad + j0..t * m.kpad + j0 + LANES]
+                .try_into()
+                .expect("a block of means");
+            for l in 0..LANES {
+                let v = xt - col[l];
+                d[l] += v * v;
+            }
+        }
+        scan_block(&d, j0, &mut best, &mut d1, &mut d2);
+    }
+    (best, d1, d2)
+}
+
+/// [`nearest_two`] over means laid out by dimension: the same index and distances.
+#[inline(always)]
+pub(crate) fn nearest_two_by_dim(x: &[f32], m: &MeansByDim) -> (usize, f32, f32) {
+    match m.dim {
+        1 => return nearest_two_by_dim_fixed::<1>(x, m),
+        2 => return nearest_two_by_dim_fixed::<2>(x, m),
+        3 => return nearest_two_by_dim_fixed::<3>(x, m),
+        4 => return nearest_two_by_dim_fixed::<4>(x, m),
+        5 => return nearest_two_by_dim_fixed::<5>(x, m),
+        6 => return nearest_two_by_dim_fixed::<6>(x, m),
+        7 => return nearest_two_by_dim_fixed::<7>(x, m),
+        8 => return nearest_two_by_dim_fixed::<8>(x, m),
+        _ => {}
+    }
+    let (mut best, mut d1, mut d2) = (0usize, f32::INFINITY, f32::INFINITY);
+    for j0 in (0..m.kpad).step_by(LANES) {
+        let mut d = [0.0f32; LANES];
+        for (t, &xt) in x.iter().enumerate() {
+            let col = &m.v[t * m.kpad + j0..t * m.kpad + j0 + LANES];
+            for l in 0..LANES {
+                let v = xt - col[l];
+                d[l] += v * v;
+            }
+        }
+        scan_block(&d, j0, &mut best, &mut d1, &mut d2);
+    }
+    (best, d1, d2)
+}
+
 /// Index and squared distance of the nearest of `k` means (lowest index on ties),
 /// and the squared distance of the second nearest (infinite when k = 1).
 #[inline(always)]
@@ -184,4 +279,40 @@ pub fn nearest_two(x: &[f32], means: &[f32], dim: usize) -> (usize, f32, f32) {
         }
     }
     (best, d1, d2)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::rng::Rng;
+
+    #[test]
+    fn means_by_dim_give_exactly_the_row_layout_results() {
+        let mut r = Rng::new(11, 0);
+        for dim in 1..=10 {
+            for k in [1, 2, 7, 8, 9, 16, 17, 40] {
+                let means: Vec<f32> = (0..k * dim)
+                    .map(|_| (r.uniform() * 200.0 - 100.0) as f32)
+                    .collect();
+                let by_dim = MeansByDim::new(&means, dim);
+                for _ in 0..200 {
+                    let x: Vec<f32> = (0..dim)
+                        .map(|_| (r.uniform() * 240.0 - 120.0) as f32)
+                        .collect();
+                    let a = nearest_two(&x, &means, dim);
+                    let b = nearest_two_by_dim(&x, &by_dim);
+                    assert_eq!(a.0, b.0, "dim {dim} k {k}");
+                    assert_eq!(a.1.to_bits(), b.1.to_bits());
+                    assert_eq!(a.2.to_bits(), b.2.to_bits());
+                }
+                // A row equal to a mean, and ties between equal means: lowest index wins.
+                let mut twice = means.clone();
+                twice.extend_from_slice(&means[..dim]);
+                let by_dim = MeansByDim::new(&twice, dim);
+                let x = &means[..dim];
+                assert_eq!(nearest_two(x, &twice, dim), nearest_two_by_dim(x, &by_dim));
+                assert_eq!(nearest_two_by_dim(x, &by_dim).0, 0);
+            }
+        }
+    }
 }

@@ -1,7 +1,7 @@
 //! Fitting: restarts of k-means++ and Lloyd, an optional soft phase, and the fitted model.
 
-use super::hard::{assign_nearest, lloyd, Stop};
 use super::anneal::anneal;
+use super::hard::{assign_nearest, lloyd, Stop};
 use super::init::kmeans_plus_plus;
 use super::params::{Beta, Mode, ValidParams};
 use super::soft::{auto_beta, soft_assign, soft_kmeans, SoftAssignment};
@@ -86,7 +86,13 @@ pub fn fit(data: &Dataset, params: &ValidParams) -> Result<KMeansModel> {
         let mut ph = crate::trace::Phases::start("fit");
         let init = match &params.anneal {
             Some(schedule) => {
-                let a = anneal(data, params.k, schedule, params.seed ^ r as u64, params.tolerance);
+                let a = anneal(
+                    data,
+                    params.k,
+                    schedule,
+                    params.seed ^ r as u64,
+                    params.tolerance,
+                );
                 ph.mark("annealing");
                 a.means.iter().map(|&v| v as f32).collect()
             }
