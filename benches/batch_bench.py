@@ -30,7 +30,7 @@ from PIL import Image
 from skimage import data
 
 ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
-BIN = os.path.join(ROOT, "target", "release", "chromasift")
+BIN = os.path.join(os.environ.get("CARGO_TARGET_DIR") or os.path.join(ROOT, "target"), "release", "chromasift")
 W, H = 1632, 1224
 
 

@@ -49,7 +49,9 @@ pub fn assign_nearest(data: &Dataset, means: &[f32]) -> (Vec<u32>, f64) {
     (labels, partial.iter().sum())
 }
 
-/// Per-cluster sufficient statistics: weight, Σw‖x‖², Σw·x.
+/// Per-cluster sufficient statistics, `dim + 3` values each: weight, Σw‖x‖², Σw·x, and
+/// the number of rows of non-zero weight (exact, so a cluster left by all its rows is
+/// known to be empty even when its weights do not cancel to exactly zero).
 struct Stats {
     k: usize,
     dim: usize,
@@ -58,28 +60,46 @@ struct Stats {
 
 impl Stats {
     fn stride(&self) -> usize {
-        self.dim + 2
+        self.dim + 3
     }
+    fn rows(&self, j: usize) -> f64 {
+        self.v[(j + 1) * self.stride() - 1]
+    }
+    /// Weight of cluster `j`; exactly 0 when it has no rows.
     fn weight(&self, j: usize) -> f64 {
-        self.v[j * self.stride()]
+        if self.rows(j) < 0.5 {
+            0.0
+        } else {
+            self.v[j * self.stride()]
+        }
+    }
+    /// Adds the changes `delta` (same shape) made by one pass.
+    fn apply(&mut self, delta: &Stats) {
+        for (a, b) in self.v.iter_mut().zip(&delta.v) {
+            *a += b;
+        }
     }
     fn sse(&self) -> f64 {
         let s = self.stride();
         (0..self.k)
             .map(|j| {
-                let w = self.v[j * s];
+                let w = self.weight(j);
                 if w <= 0.0 {
                     return 0.0;
                 }
                 let q = self.v[j * s + 1];
-                let norm: f64 = self.v[j * s + 2..(j + 1) * s].iter().map(|x| x * x).sum();
+                let norm: f64 = self.v[j * s + 2..(j + 1) * s - 1]
+                    .iter()
+                    .map(|x| x * x)
+                    .sum();
                 (q - norm / w).max(0.0)
             })
             .sum()
     }
 }
 
-/// Adds row `i` (weight `w`) to the per-cluster statistics `v` under label `l`.
+/// Adds row `x` (weight `w`) to the per-cluster statistics `v` under label `l`; a
+/// negative `w` takes it out again (every term is then the exact negation).
 #[inline(always)]
 fn add_row(v: &mut [f64], stride: usize, l: usize, x: &[f32], w: f64) {
     if w == 0.0 {
@@ -87,6 +107,7 @@ fn add_row(v: &mut [f64], stride: usize, l: usize, x: &[f32], w: f64) {
     }
     let base = l * stride;
     v[base] += w;
+    v[base + stride - 1] += if w > 0.0 { 1.0 } else { -1.0 };
     let mut q = 0.0f64;
     for (d, &xv) in x.iter().enumerate() {
         let xv = xv as f64;
@@ -98,7 +119,7 @@ fn add_row(v: &mut [f64], stride: usize, l: usize, x: &[f32], w: f64) {
 
 /// Sums per-chunk results in chunk order (deterministic whatever the thread count).
 fn combine(parts: Vec<(usize, Vec<f64>)>, k: usize, dim: usize) -> (usize, Stats) {
-    let mut v = vec![0.0f64; k * (dim + 2)];
+    let mut v = vec![0.0f64; k * (dim + 3)];
     let mut changed = 0;
     for (c, p) in parts {
         changed += c;
@@ -110,7 +131,8 @@ fn combine(parts: Vec<(usize, Vec<f64>)>, k: usize, dim: usize) -> (usize, Stats
 }
 
 /// Full assignment with bounds: labels, upper = distance to own mean, lower = to second.
-/// Returns the number of rows that changed cluster and the statistics of the new labels.
+/// Returns the number of rows that changed cluster and the change to the statistics
+/// (each moved row taken out of its old cluster, if it had one, and added to the new).
 fn full_pass(
     data: &Dataset,
     means: &[f32],
@@ -138,7 +160,7 @@ fn full_pass_dim(
 ) -> (usize, Stats) {
     let rows = data.rows();
     let k = means.len() / dim;
-    let stride = dim + 2;
+    let stride = dim + 3;
     let by_dim = MeansByDim::new(means, dim);
     let parts: Vec<(usize, Vec<f64>)> = labels
         .par_chunks_mut(CHUNK)
@@ -152,13 +174,18 @@ fn full_pass_dim(
                 let i = c * CHUNK + o;
                 let x = &rows[i * dim..(i + 1) * dim];
                 let (b, d1, d2) = nearest_two_by_dim(x, &by_dim);
-                if b as u32 != ls[o] {
+                let was = ls[o];
+                if b as u32 != was {
                     changed += 1;
+                    let w = data.weight(i);
+                    if was != u32::MAX {
+                        add_row(&mut v, stride, was as usize, x, -w);
+                    }
+                    add_row(&mut v, stride, b, x, w);
                 }
                 ls[o] = b as u32;
                 us[o] = (d1 as f64).sqrt();
                 lo[o] = (d2 as f64).sqrt();
-                add_row(&mut v, stride, b, x, data.weight(i));
             }
             (changed, v)
         })
@@ -220,8 +247,9 @@ impl Moves {
 }
 
 /// One pass that first widens each row's bounds by the last moves of the means, then
-/// skips rows whose bounds prove the current mean is nearest (Hamerly 2010), and adds
-/// every row to the statistics of its label. Returns (rows changed, statistics).
+/// skips rows whose bounds prove the current mean is nearest (Hamerly 2010). Only rows
+/// that change cluster touch the statistics. Returns (rows changed, change to the
+/// statistics).
 fn bounded_pass(
     data: &Dataset,
     means: &[f32],
@@ -255,7 +283,7 @@ fn bounded_pass_dim(
 ) -> (usize, Stats) {
     let rows = data.rows();
     let k = means.len() / dim;
-    let stride = dim + 2;
+    let stride = dim + 3;
     let by_dim = MeansByDim::new(means, dim);
     let parts: Vec<(usize, Vec<f64>)> = labels
         .par_chunks_mut(CHUNK)
@@ -276,23 +304,22 @@ fn bounded_pass_dim(
                 let m = moves.half_gap[a].max(lo[o]) * (1.0 - BOUND_MARGIN);
                 if us[o] < m {
                     by_bounds += 1;
-                    add_row(&mut v, stride, a, x, w);
                     continue;
                 }
                 us[o] = (dist2(x, &means[a * dim..(a + 1) * dim]) as f64).sqrt();
                 if us[o] < m {
                     by_own += 1;
-                    add_row(&mut v, stride, a, x, w);
                     continue;
                 }
                 let (b, d1, d2) = nearest_two_by_dim(x, &by_dim);
                 if b != a {
                     changed += 1;
+                    add_row(&mut v, stride, a, x, -w);
+                    add_row(&mut v, stride, b, x, w);
                 }
                 ls[o] = b as u32;
                 us[o] = (d1 as f64).sqrt();
                 lo[o] = (d2 as f64).sqrt();
-                add_row(&mut v, stride, b, x, w);
             }
             if crate::trace::enabled() {
                 SKIPS[0].fetch_add(by_bounds, Relaxed);
@@ -394,9 +421,9 @@ fn mean_variance(data: &Dataset) -> f64 {
             .par_chunks(CHUNK * dim)
             .enumerate()
             .map(|(c, rows)| {
-                let mut v = vec![0.0f64; dim + 2];
+                let mut v = vec![0.0f64; dim + 3];
                 for (o, x) in rows.chunks_exact(dim).enumerate() {
-                    add_row(&mut v, dim + 2, 0, x, data.weight(c * CHUNK + o));
+                    add_row(&mut v, dim + 3, 0, x, data.weight(c * CHUNK + o));
                 }
                 (0, v)
             })
@@ -425,6 +452,8 @@ pub fn lloyd(data: &Dataset, init: &[f32], stop: Stop, accelerate: bool) -> Lloy
     let mut labels = vec![u32::MAX; n];
     let mut upper = vec![0.0f64; n];
     let mut lower = vec![0.0f64; n];
+    // The statistics are kept from pass to pass: each pass returns only the changes made
+    // by rows that moved to another cluster (the first pass adds every row).
     let (_, mut stats) = full_pass(data, &means32, &mut labels, &mut upper, &mut lower);
 
     let mut prev_sse = f64::INFINITY;
@@ -439,7 +468,7 @@ pub fn lloyd(data: &Dataset, init: &[f32], stop: Stop, accelerate: bool) -> Lloy
         for j in 0..k {
             let w = stats.weight(j);
             if w > 0.0 {
-                let base = j * (dim + 2) + 2;
+                let base = j * stats.stride() + 2;
                 for d in 0..dim {
                     means[j * dim + d] = stats.v[base + d] / w;
                 }
@@ -471,7 +500,7 @@ pub fn lloyd(data: &Dataset, init: &[f32], stop: Stop, accelerate: bool) -> Lloy
             full_pass(data, &means32, &mut labels, &mut upper, &mut lower)
         };
         pass_time += t0.elapsed().as_secs_f64();
-        stats = next;
+        stats.apply(&next);
         if changed == 0 && empty.is_empty() {
             converged = true;
             break;
