@@ -145,11 +145,31 @@ fn statuses(out: &Path) -> Vec<String> {
         .collect()
 }
 
+/// Names of the files under `dir`, read while a batch is still writing there: entries
+/// that vanish between listing and reading (temporaries being renamed) are passed over.
+fn names_while_running(dir: &Path) -> Vec<String> {
+    let mut names = Vec::new();
+    let mut stack = vec![dir.to_path_buf()];
+    while let Some(d) = stack.pop() {
+        let Ok(entries) = std::fs::read_dir(&d) else {
+            continue;
+        };
+        for e in entries.flatten() {
+            match e.file_type() {
+                Ok(t) if t.is_dir() => stack.push(e.path()),
+                Ok(_) => names.push(e.file_name().to_string_lossy().into_owned()),
+                Err(_) => {}
+            }
+        }
+    }
+    names
+}
+
 fn any_palette_written(out: &Path) -> bool {
     out.is_dir()
-        && tree(out)
-            .keys()
-            .any(|p| p.to_string_lossy().ends_with(".palette.json"))
+        && names_while_running(out)
+            .iter()
+            .any(|n| n.ends_with(".palette.json"))
 }
 
 /// The reference: the same batch run to the end without interruption.

@@ -203,6 +203,12 @@ struct Moves {
     p2: f64,
     /// Half the distance from each mean to its nearest other mean.
     half_gap: Vec<f64>,
+    /// Since the last full pass, per cluster: the summed moves of its mean (the upper
+    /// bound of a row in it grows by this) and the summed largest move of any other mean
+    /// (its lower bound shrinks by this). Rows store bounds net of these sums, so a row
+    /// the bounds settle is only read, never written.
+    up: Vec<f64>,
+    down: Vec<f64>,
 }
 
 impl Moves {
@@ -242,12 +248,25 @@ impl Moves {
             p1,
             p2,
             half_gap,
+            up: vec![0.0; k],
+            down: vec![0.0; k],
         }
+    }
+
+    /// Adds this update's moves to the sums `up` and `down` carried since the last full
+    /// pass, and keeps the new sums.
+    fn accumulate(&mut self, up: &mut [f64], down: &mut [f64]) {
+        for j in 0..up.len() {
+            up[j] += self.shift[j];
+            down[j] += if j == self.most { self.p2 } else { self.p1 };
+        }
+        self.up = up.to_vec();
+        self.down = down.to_vec();
     }
 }
 
-/// One pass that first widens each row's bounds by the last moves of the means, then
-/// skips rows whose bounds prove the current mean is nearest (Hamerly 2010). Only rows
+/// One pass that widens each row's bounds by the moves of the means since the last full
+/// pass and skips rows whose bounds prove the current mean is nearest (Hamerly 2010). Only rows
 /// that change cluster touch the statistics. Returns (rows changed, change to the
 /// statistics).
 fn bounded_pass(
@@ -299,16 +318,18 @@ fn bounded_pass_dim(
                 let a = ls[o] as usize;
                 let x = &rows[i * dim..(i + 1) * dim];
                 let w = data.weight(i);
-                us[o] += moves.shift[a];
-                lo[o] -= if a == moves.most { moves.p2 } else { moves.p1 };
-                let m = moves.half_gap[a].max(lo[o]) * (1.0 - BOUND_MARGIN);
-                if us[o] < m {
+                // Stored bounds are net of the sums since the last full pass.
+                let upper = us[o] + moves.up[a];
+                let lower = lo[o] - moves.down[a];
+                let m = moves.half_gap[a].max(lower) * (1.0 - BOUND_MARGIN);
+                if upper < m {
                     by_bounds += 1;
                     continue;
                 }
-                us[o] = (dist2(x, &means[a * dim..(a + 1) * dim]) as f64).sqrt();
-                if us[o] < m {
+                let own = (dist2(x, &means[a * dim..(a + 1) * dim]) as f64).sqrt();
+                if own < m {
                     by_own += 1;
+                    us[o] = own - moves.up[a];
                     continue;
                 }
                 let (b, d1, d2) = nearest_two_by_dim(x, &by_dim);
@@ -318,8 +339,8 @@ fn bounded_pass_dim(
                     add_row(&mut v, stride, b, x, w);
                 }
                 ls[o] = b as u32;
-                us[o] = (d1 as f64).sqrt();
-                lo[o] = (d2 as f64).sqrt();
+                us[o] = (d1 as f64).sqrt() - moves.up[b];
+                lo[o] = (d2 as f64).sqrt() + moves.down[b];
             }
             if crate::trace::enabled() {
                 SKIPS[0].fetch_add(by_bounds, Relaxed);
@@ -457,6 +478,7 @@ pub fn lloyd(data: &Dataset, init: &[f32], stop: Stop, accelerate: bool) -> Lloy
     let (_, mut stats) = full_pass(data, &means32, &mut labels, &mut upper, &mut lower);
 
     let mut prev_sse = f64::INFINITY;
+    let (mut up, mut down) = (vec![0.0f64; k], vec![0.0f64; k]);
     let mut pass_time = 0.0f64;
     let mut iterations = 0;
     let mut converged = false;
@@ -494,9 +516,13 @@ pub fn lloyd(data: &Dataset, init: &[f32], stop: Stop, accelerate: bool) -> Lloy
         means32 = to_f32(&means);
         let t0 = std::time::Instant::now();
         let (changed, next) = if accelerate && empty.is_empty() && k > 1 {
-            let moves = Moves::new(&old, &means, &means32, dim);
+            let mut moves = Moves::new(&old, &means, &means32, dim);
+            moves.accumulate(&mut up, &mut down);
             bounded_pass(data, &means32, &moves, &mut labels, &mut upper, &mut lower)
         } else {
+            // A full pass stores plain bounds: the sums start again from zero.
+            up.iter_mut().for_each(|v| *v = 0.0);
+            down.iter_mut().for_each(|v| *v = 0.0);
             full_pass(data, &means32, &mut labels, &mut upper, &mut lower)
         };
         pass_time += t0.elapsed().as_secs_f64();
