@@ -85,17 +85,15 @@ fn reduce_refuses_cleanly_when_a_write_fails() {
     let input = folder(dir.path(), 1).join("day1/img0.png");
     let before = std::fs::read(&input).unwrap();
     let out = dir.path().join("out");
-    let o = run_limited(
-        LIMIT_BLOCKS,
-        &[
-            "reduce",
-            input.to_str().unwrap(),
-            "-k",
-            "8",
-            "-o",
-            out.to_str().unwrap(),
-        ],
-    );
+    let args = [
+        "reduce",
+        input.to_str().unwrap(),
+        "-k",
+        "8",
+        "-o",
+        out.to_str().unwrap(),
+    ];
+    let o = run_limited(LIMIT_BLOCKS, &args);
     let err = stderr(&o);
     assert_eq!(o.status.code(), Some(2), "{err}");
     assert!(!err.contains("panicked"), "{err}");
@@ -118,17 +116,7 @@ fn reduce_refuses_cleanly_when_a_write_fails() {
     assert_eq!(std::fs::read(&input).unwrap(), before, "input untouched");
 
     // With room to write, the same command succeeds.
-    let o = run(
-        &[
-            "reduce",
-            input.to_str().unwrap(),
-            "-k",
-            "8",
-            "-o",
-            out.to_str().unwrap(),
-        ],
-        &[],
-    );
+    let o = run(&args, &[]);
     assert!(o.status.success(), "{}", stderr(&o));
     assert!(out.join("img0.reduced.png").exists());
 }

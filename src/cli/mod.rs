@@ -443,17 +443,7 @@ impl SeparateArgs {
             dpi: self.dpi,
             seed: self.seed,
             limits: Limits::with_max_pixels(self.max_pixels),
-            target: self
-                .target_delta_e
-                .map(|delta_e| crate::reduce::QualityTarget {
-                    delta_e,
-                    statistic: if self.target_p95 {
-                        crate::reduce::TargetStatistic::P95
-                    } else {
-                        crate::reduce::TargetStatistic::Mean
-                    },
-                    k_max: self.k_max,
-                }),
+            target: quality_target(self.target_delta_e, self.target_p95, self.k_max),
         }
     }
 }
@@ -602,17 +592,7 @@ impl ReduceFlags {
                 factor: self.anneal_factor,
                 ..Anneal::default()
             }),
-            target: self
-                .target_delta_e
-                .map(|delta_e| crate::reduce::QualityTarget {
-                    delta_e,
-                    statistic: if self.target_p95 {
-                        crate::reduce::TargetStatistic::P95
-                    } else {
-                        crate::reduce::TargetStatistic::Mean
-                    },
-                    k_max: self.k_max,
-                }),
+            target: quality_target(self.target_delta_e, self.target_p95, self.k_max),
         }
     }
 }
@@ -890,4 +870,21 @@ mod tests {
             assert!(Cli::try_parse_from(v).is_err(), "{bad:?}");
         }
     }
+}
+
+/// The `--target-delta-e`, `--target-p95` and `--k-max` flags as a quality target.
+fn quality_target(
+    delta_e: Option<f64>,
+    p95: bool,
+    k_max: usize,
+) -> Option<crate::reduce::QualityTarget> {
+    delta_e.map(|delta_e| crate::reduce::QualityTarget {
+        delta_e,
+        statistic: if p95 {
+            crate::reduce::TargetStatistic::P95
+        } else {
+            crate::reduce::TargetStatistic::Mean
+        },
+        k_max,
+    })
 }

@@ -200,9 +200,10 @@ fn scan_block(d: &[f32; LANES], j0: usize, best: &mut usize, d1: &mut f32, d2: &
     }
 }
 
+/// Distances from `x` to every block of means, scanned in index order. Inlined into the
+/// fixed-dimension callers, where `x.len()` is a constant and the loops unroll.
 #[inline(always)]
-fn nearest_two_by_dim_fixed<const D: usize>(x: &[f32], m: &MeansByDim) -> (usize, f32, f32) {
-    let x: &[f32; D] = x.try_into().expect("row of D values");
+fn nearest_two_blocks(x: &[f32], m: &MeansByDim) -> (usize, f32, f32) {
     let (mut best, mut d1, mut d2) = (0usize, f32::INFINITY, f32::INFINITY);
     for j0 in (0..m.kpad).step_by(LANES) {
         let mut d = [0.0f32; LANES];
@@ -220,33 +221,26 @@ fn nearest_two_by_dim_fixed<const D: usize>(x: &[f32], m: &MeansByDim) -> (usize
     (best, d1, d2)
 }
 
+#[inline(always)]
+fn nearest_two_by_dim_fixed<const D: usize>(x: &[f32], m: &MeansByDim) -> (usize, f32, f32) {
+    let x: &[f32; D] = x.try_into().expect("row of D values");
+    nearest_two_blocks(x, m)
+}
+
 /// [`nearest_two`] over means laid out by dimension: the same index and distances.
 #[inline(always)]
 pub(crate) fn nearest_two_by_dim(x: &[f32], m: &MeansByDim) -> (usize, f32, f32) {
     match m.dim {
-        1 => return nearest_two_by_dim_fixed::<1>(x, m),
-        2 => return nearest_two_by_dim_fixed::<2>(x, m),
-        3 => return nearest_two_by_dim_fixed::<3>(x, m),
-        4 => return nearest_two_by_dim_fixed::<4>(x, m),
-        5 => return nearest_two_by_dim_fixed::<5>(x, m),
-        6 => return nearest_two_by_dim_fixed::<6>(x, m),
-        7 => return nearest_two_by_dim_fixed::<7>(x, m),
-        8 => return nearest_two_by_dim_fixed::<8>(x, m),
-        _ => {}
+        1 => nearest_two_by_dim_fixed::<1>(x, m),
+        2 => nearest_two_by_dim_fixed::<2>(x, m),
+        3 => nearest_two_by_dim_fixed::<3>(x, m),
+        4 => nearest_two_by_dim_fixed::<4>(x, m),
+        5 => nearest_two_by_dim_fixed::<5>(x, m),
+        6 => nearest_two_by_dim_fixed::<6>(x, m),
+        7 => nearest_two_by_dim_fixed::<7>(x, m),
+        8 => nearest_two_by_dim_fixed::<8>(x, m),
+        _ => nearest_two_blocks(x, m),
     }
-    let (mut best, mut d1, mut d2) = (0usize, f32::INFINITY, f32::INFINITY);
-    for j0 in (0..m.kpad).step_by(LANES) {
-        let mut d = [0.0f32; LANES];
-        for (t, &xt) in x.iter().enumerate() {
-            let col = &m.v[t * m.kpad + j0..t * m.kpad + j0 + LANES];
-            for l in 0..LANES {
-                let v = xt - col[l];
-                d[l] += v * v;
-            }
-        }
-        scan_block(&d, j0, &mut best, &mut d1, &mut d2);
-    }
-    (best, d1, d2)
 }
 
 /// Index and squared distance of the nearest of `k` means (lowest index on ties),
