@@ -367,7 +367,7 @@ pub fn sweep_csv(doc: &SweepDocument) -> String {
 
 /// About `n` round tick values covering [lo, hi].
 fn ticks(lo: f64, hi: f64, n: usize) -> Vec<f64> {
-    if !(hi > lo) {
+    if hi.is_nan() || lo.is_nan() || hi <= lo {
         return vec![lo];
     }
     let raw = (hi - lo) / n as f64;

@@ -4,7 +4,7 @@
 mod common;
 
 use chromasift::colour::{self, delta_e2000};
-use common::{files_in, fixture, read_rgba, run, stderr, write_rgb, write_rgba};
+use common::{crc32, files_in, fixture, read_rgba, run, stderr, write_rgb, write_rgba};
 use serde_json::Value;
 use std::path::Path;
 
@@ -554,22 +554,6 @@ fn huge_header_is_refused_before_decoding() {
         "-o",
         out.to_str().unwrap(),
     ]);
-}
-
-fn crc32(bytes: &[u8]) -> u32 {
-    // CRC-32 as specified for PNG chunks (ISO/IEC 15948, annex D).
-    let mut c = 0xffff_ffffu32;
-    for &b in bytes {
-        c ^= b as u32;
-        for _ in 0..8 {
-            c = if c & 1 != 0 {
-                0xedb8_8320 ^ (c >> 1)
-            } else {
-                c >> 1
-            };
-        }
-    }
-    !c
 }
 
 #[test]

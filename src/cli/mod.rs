@@ -719,6 +719,23 @@ pub struct HistogramArgs {
     pub json: bool,
 }
 
+/// The `--target-delta-e`, `--target-p95` and `--k-max` flags as a quality target.
+fn quality_target(
+    delta_e: Option<f64>,
+    p95: bool,
+    k_max: usize,
+) -> Option<crate::reduce::QualityTarget> {
+    delta_e.map(|delta_e| crate::reduce::QualityTarget {
+        delta_e,
+        statistic: if p95 {
+            crate::reduce::TargetStatistic::P95
+        } else {
+            crate::reduce::TargetStatistic::Mean
+        },
+        k_max,
+    })
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -870,21 +887,4 @@ mod tests {
             assert!(Cli::try_parse_from(v).is_err(), "{bad:?}");
         }
     }
-}
-
-/// The `--target-delta-e`, `--target-p95` and `--k-max` flags as a quality target.
-fn quality_target(
-    delta_e: Option<f64>,
-    p95: bool,
-    k_max: usize,
-) -> Option<crate::reduce::QualityTarget> {
-    delta_e.map(|delta_e| crate::reduce::QualityTarget {
-        delta_e,
-        statistic: if p95 {
-            crate::reduce::TargetStatistic::P95
-        } else {
-            crate::reduce::TargetStatistic::Mean
-        },
-        k_max,
-    })
 }

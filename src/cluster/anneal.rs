@@ -141,7 +141,7 @@ pub fn anneal(
     let mut rng = Rng::new(seed, 0xA77E);
     let jitter = 1e-3 * sigma.max(f64::MIN_POSITIVE);
     let mut means: Vec<f64> = (0..k).flat_map(|_| centre.clone()).collect();
-    if !(lambda > 0.0) {
+    if lambda.is_nan() || lambda <= 0.0 {
         // All rows equal: nothing to split.
         return AnnealResult {
             means,
