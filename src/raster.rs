@@ -292,19 +292,38 @@ pub fn write_indexed_png<W: Write>(
         png::BitDepth::Four => 2,
         _ => 1,
     };
-    let shift = 8 / per;
-    let row_bytes = (width as usize).div_ceil(per);
-    let mut packed = vec![0u8; row_bytes * height as usize];
-    for (y, row) in indices.chunks_exact(width as usize).enumerate() {
-        let out = &mut packed[y * row_bytes..(y + 1) * row_bytes];
-        for (x, &v) in row.iter().enumerate() {
-            let byte = x / per;
-            let pos = per - 1 - x % per;
-            out[byte] |= v << (pos * shift);
-        }
-    }
+    let packed = match per {
+        8 => pack_indices::<8>(indices, width as usize),
+        4 => pack_indices::<4>(indices, width as usize),
+        2 => pack_indices::<2>(indices, width as usize),
+        _ => pack_indices::<1>(indices, width as usize),
+    };
     writer.write_image_data(&packed).map_err(png_error)?;
     writer.finish().map_err(png_error)
+}
+
+/// Packs `PER` indices into each byte, the first in the highest bits, every row starting
+/// on a new byte (the PNG layout for bit depths below 8).
+fn pack_indices<const PER: usize>(indices: &[u8], width: usize) -> Vec<u8> {
+    let shift = 8 / PER;
+    let row_bytes = width.div_ceil(PER);
+    let mut packed = vec![0u8; row_bytes * (indices.len() / width.max(1))];
+    if width == 0 {
+        return packed;
+    }
+    for (out, row) in packed
+        .chunks_exact_mut(row_bytes)
+        .zip(indices.chunks_exact(width))
+    {
+        for (byte, px) in out.iter_mut().zip(row.chunks(PER)) {
+            let mut b = 0u8;
+            for (j, &v) in px.iter().enumerate() {
+                b |= v << ((PER - 1 - j) * shift);
+            }
+            *byte = b;
+        }
+    }
+    packed
 }
 
 /// Writes an 8-bit RGBA PNG.
@@ -358,5 +377,34 @@ fn tiff_error(e: tiff::TiffError) -> std::io::Error {
     match e {
         tiff::TiffError::IoError(io) => io,
         other => std::io::Error::other(other.to_string()),
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn indexed_png_decodes_to_the_palette_colour_of_every_index() {
+        // Every bit depth (2, 4, 16 and 200 colours), with widths that leave a part byte
+        // at the end of each row; decoded by the image crate's PNG reader.
+        for (colours, width) in [(2usize, 13u32), (4, 7), (16, 5), (16, 64), (200, 9)] {
+            let palette: Vec<[u8; 3]> = (0..colours)
+                .map(|i| [i as u8, (i * 7 % 256) as u8, 255 - i as u8])
+                .collect();
+            let height = 6u32;
+            let indices: Vec<u8> = (0..width * height)
+                .map(|p| ((p * 31 + p / 3) % colours as u32) as u8)
+                .collect();
+            let mut bytes = Vec::new();
+            write_indexed_png(&mut bytes, width, height, &palette, None, &indices).unwrap();
+            let img = image::load_from_memory_with_format(&bytes, image::ImageFormat::Png)
+                .unwrap()
+                .to_rgb8();
+            assert_eq!(img.dimensions(), (width, height));
+            for (p, px) in img.pixels().enumerate() {
+                assert_eq!(px.0, palette[indices[p] as usize], "{colours} colours, pixel {p}");
+            }
+        }
     }
 }

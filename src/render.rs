@@ -98,6 +98,11 @@ pub fn dither_floyd_steinberg(
 
 /// 8-bit uncertainty map: round(255 × normalised entropy); transparent pixels are 0.
 pub fn uncertainty_u8(pixel_entry: &[u32], entry_uncertainty: &[f32]) -> Vec<u8> {
+    // Rounded once per distinct colour, then looked up per pixel.
+    let level: Vec<u8> = entry_uncertainty
+        .iter()
+        .map(|&u| (u * 255.0).round().clamp(0.0, 255.0) as u8)
+        .collect();
     pixel_entry
         .par_iter()
         .with_min_len(1 << 14)
@@ -105,9 +110,7 @@ pub fn uncertainty_u8(pixel_entry: &[u32], entry_uncertainty: &[f32]) -> Vec<u8>
             if e == TRANSPARENT {
                 0
             } else {
-                (entry_uncertainty[e as usize] * 255.0)
-                    .round()
-                    .clamp(0.0, 255.0) as u8
+                level[e as usize]
             }
         })
         .collect()

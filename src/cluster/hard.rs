@@ -311,21 +311,32 @@ fn bounded_pass_dim(
         .enumerate()
         .map(|(c, ((ls, us), lo))| {
             let mut changed = 0usize;
-            let (mut by_bounds, mut by_own) = (0usize, 0usize);
+            let mut by_own = 0usize;
             let mut v = vec![0.0f64; k * stride];
+            // First a tight loop that only tests the bounds and lists the rows they do not
+            // settle (most rows, after the first few passes, are settled here); then the
+            // listed rows only. Stored bounds are net of the sums since the last full pass.
+            let mut todo = [0u16; CHUNK];
+            let mut n_todo = 0usize;
             for o in 0..ls.len() {
-                let i = c * CHUNK + o;
                 let a = ls[o] as usize;
-                let x = &rows[i * dim..(i + 1) * dim];
-                let w = data.weight(i);
-                // Stored bounds are net of the sums since the last full pass.
                 let upper = us[o] + moves.up[a];
                 let lower = lo[o] - moves.down[a];
                 let m = moves.half_gap[a].max(lower) * (1.0 - BOUND_MARGIN);
-                if upper < m {
-                    by_bounds += 1;
-                    continue;
-                }
+                // Listed unless the bounds prove it (a NaN fails the proof).
+                #[allow(clippy::neg_cmp_op_on_partial_ord)]
+                let unsettled = !(upper < m);
+                todo[n_todo] = o as u16;
+                n_todo += usize::from(unsettled);
+            }
+            let by_bounds = ls.len() - n_todo;
+            for &o in &todo[..n_todo] {
+                let o = o as usize;
+                let i = c * CHUNK + o;
+                let a = ls[o] as usize;
+                let x = &rows[i * dim..(i + 1) * dim];
+                let lower = lo[o] - moves.down[a];
+                let m = moves.half_gap[a].max(lower) * (1.0 - BOUND_MARGIN);
                 let own = (dist2(x, &means[a * dim..(a + 1) * dim]) as f64).sqrt();
                 if own < m {
                     by_own += 1;
@@ -335,6 +346,7 @@ fn bounded_pass_dim(
                 let (b, d1, d2) = nearest_two_by_dim(x, &by_dim);
                 if b != a {
                     changed += 1;
+                    let w = data.weight(i);
                     add_row(&mut v, stride, a, x, -w);
                     add_row(&mut v, stride, b, x, w);
                 }

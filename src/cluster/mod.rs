@@ -184,6 +184,7 @@ impl MeansByDim {
     }
 }
 
+#[cfg(not(target_arch = "x86_64"))]
 #[inline(always)]
 fn scan_block(d: &[f32; LANES], j0: usize, best: &mut usize, d1: &mut f32, d2: &mut f32) {
     for (l, &dl) in d.iter().enumerate() {
@@ -202,6 +203,63 @@ fn scan_block(d: &[f32; LANES], j0: usize, best: &mut usize, d1: &mut f32, d2: &
 
 /// Distances from `x` to every block of means, scanned in index order. Inlined into the
 /// fixed-dimension callers, where `x.len()` is a constant and the loops unroll.
+///
+/// On x86-64 the scan runs four means at a time in SSE2 registers (part of every x86-64
+/// processor): each lane keeps the smallest and second-smallest distance it has seen and
+/// where the smallest was (the earliest on ties), and the four lanes are merged at the
+/// end. Minimum and maximum are exact, and the distances are summed in the same order,
+/// so the result is the same index and distances as the scalar scan.
+#[cfg(target_arch = "x86_64")]
+#[inline(always)]
+fn nearest_two_blocks(x: &[f32], m: &MeansByDim) -> (usize, f32, f32) {
+    use std::arch::x86_64::*;
+    debug_assert_eq!(m.kpad % 4, 0);
+    debug_assert_eq!(m.v.len(), m.kpad * x.len());
+    // SAFETY: SSE2 is part of the x86-64 baseline; every load reads 4 floats at
+    // t·kpad + q with q + 4 ≤ kpad, inside `m.v` (length kpad·dim, checked above in
+    // debug builds and by construction in `MeansByDim::new`).
+    unsafe {
+        let inf = _mm_set1_ps(f32::INFINITY);
+        let (mut first, mut second) = (inf, inf);
+        let mut at = _mm_setr_epi32(0, 1, 2, 3);
+        let mut idx = at;
+        let four = _mm_set1_epi32(4);
+        let base = m.v.as_ptr();
+        for q in (0..m.kpad).step_by(4) {
+            let mut d = _mm_setzero_ps();
+            for (t, &xt) in x.iter().enumerate() {
+                let v = _mm_sub_ps(_mm_set1_ps(xt), _mm_loadu_ps(base.add(t * m.kpad + q)));
+                d = _mm_add_ps(d, _mm_mul_ps(v, v));
+            }
+            let lt = _mm_castps_si128(_mm_cmplt_ps(d, first));
+            second = _mm_min_ps(second, _mm_max_ps(d, first));
+            first = _mm_min_ps(first, d);
+            idx = _mm_or_si128(_mm_and_si128(lt, at), _mm_andnot_si128(lt, idx));
+            at = _mm_add_epi32(at, four);
+        }
+        let (mut f, mut s, mut i) = ([0f32; 4], [0f32; 4], [0i32; 4]);
+        _mm_storeu_ps(f.as_mut_ptr(), first);
+        _mm_storeu_ps(s.as_mut_ptr(), second);
+        _mm_storeu_si128(i.as_mut_ptr() as *mut __m128i, idx);
+        // The lane holding the smallest distance (the lowest index on ties); the second
+        // smallest overall is the least of every lane's second and the other lanes' first.
+        let mut w = 0;
+        for l in 1..4 {
+            if f[l] < f[w] || (f[l] == f[w] && i[l] < i[w]) {
+                w = l;
+            }
+        }
+        let mut d2 = s[w];
+        for l in 0..4 {
+            if l != w {
+                d2 = d2.min(f[l]).min(s[l]);
+            }
+        }
+        (i[w] as usize, f[w], d2)
+    }
+}
+
+#[cfg(not(target_arch = "x86_64"))]
 #[inline(always)]
 fn nearest_two_blocks(x: &[f32], m: &MeansByDim) -> (usize, f32, f32) {
     let (mut best, mut d1, mut d2) = (0usize, f32::INFINITY, f32::INFINITY);
@@ -306,6 +364,27 @@ mod tests {
                 let x = &means[..dim];
                 assert_eq!(nearest_two(x, &twice, dim), nearest_two_by_dim(x, &by_dim));
                 assert_eq!(nearest_two_by_dim(x, &by_dim).0, 0);
+            }
+        }
+    }
+
+    #[test]
+    fn ties_across_lanes_resolve_to_the_lowest_index() {
+        // Means on a coarse integer grid and rows on it too: many exactly equal
+        // distances, spread over different lanes and blocks.
+        let mut r = Rng::new(5, 0);
+        for dim in 1..=4 {
+            for k in [3, 5, 8, 13, 16, 33] {
+                let means: Vec<f32> = (0..k * dim).map(|_| (r.below(3) as f32) - 1.0).collect();
+                let by_dim = MeansByDim::new(&means, dim);
+                for _ in 0..300 {
+                    let x: Vec<f32> = (0..dim).map(|_| (r.below(5) as f32) - 2.0).collect();
+                    let a = nearest_two(&x, &means, dim);
+                    let b = nearest_two_by_dim(&x, &by_dim);
+                    assert_eq!(a.0, b.0, "dim {dim} k {k} x {x:?}");
+                    assert_eq!(a.1.to_bits(), b.1.to_bits());
+                    assert_eq!(a.2.to_bits(), b.2.to_bits());
+                }
             }
         }
     }
