@@ -25,7 +25,7 @@ pub struct Anneal {
     pub start: f64,
     /// Last β, as a multiple of β_c. Default: 2000 (near-hard on the data's own scale).
     pub end: f64,
-    /// Ratio between successive β. Default: 1.25.
+    /// Ratio between successive β. Default: 1.5.
     pub factor: f64,
     /// Most soft iterations per stage. Default: 40.
     pub stage_iter: usize,
@@ -36,7 +36,7 @@ impl Default for Anneal {
         Anneal {
             start: 0.5,
             end: 2000.0,
-            factor: 1.25,
+            factor: 1.5,
             stage_iter: 40,
         }
     }
