@@ -130,15 +130,22 @@ pub fn mean_and_p95(values: &[f64], weights: &[f64], total: f64) -> (f64, f64) {
     for (v, w) in values.iter().zip(weights) {
         sum += w * v;
     }
-    let mut order: Vec<usize> = (0..values.len()).collect();
-    order.sort_by(|&a, &b| values[a].total_cmp(&values[b]).then(a.cmp(&b)));
+    // Entries in value order (ties: entry order), sorted as contiguous (key, index) pairs;
+    // the key orders exactly as `f64::total_cmp`, and with the index it is a total order,
+    // so the unstable sort gives the one possible result.
+    let mut order: Vec<(i64, usize)> = values
+        .iter()
+        .enumerate()
+        .map(|(i, v)| {
+            let b = v.to_bits() as i64;
+            (b ^ (((b >> 63) as u64) >> 1) as i64, i)
+        })
+        .collect();
+    order.sort_unstable();
     let need = 0.95 * weights.iter().sum::<f64>();
     let mut cum = 0.0;
-    let mut p95 = values
-        .get(*order.last().unwrap_or(&0))
-        .copied()
-        .unwrap_or(0.0);
-    for &i in &order {
+    let mut p95 = order.last().map_or(0.0, |&(_, i)| values[i]);
+    for &(_, i) in &order {
         cum += weights[i];
         if cum >= need {
             p95 = values[i];
@@ -1008,4 +1015,44 @@ pub fn reduce_file_with(
         notes: red.notes,
         seconds: t0.elapsed().as_secs_f64(),
     })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// The weighted 95th percentile by its definition: for each candidate value, the
+    /// weight of entries at or below it; the smallest value reaching 95 % of the total.
+    fn p95_by_definition(values: &[f64], weights: &[f64]) -> f64 {
+        let need = 0.95 * weights.iter().sum::<f64>();
+        let mut cands: Vec<f64> = values.to_vec();
+        cands.sort_by(f64::total_cmp);
+        for c in cands {
+            let below: f64 = values
+                .iter()
+                .zip(weights)
+                .filter(|(v, _)| v.total_cmp(&c).is_le())
+                .map(|(_, w)| w)
+                .sum();
+            if below >= need {
+                return c;
+            }
+        }
+        f64::NAN
+    }
+
+    #[test]
+    fn weighted_p95_follows_its_definition_with_ties() {
+        let mut r = crate::rng::Rng::new(3, 0);
+        for n in [1usize, 2, 5, 40, 301] {
+            // Values on a coarse grid so that many tie; integer weights so sums are exact.
+            let values: Vec<f64> = (0..n).map(|_| r.below(7) as f64 * 0.5).collect();
+            let weights: Vec<f64> = (0..n).map(|_| 1.0 + r.below(9) as f64).collect();
+            let total: f64 = weights.iter().sum();
+            let (mean, p95) = mean_and_p95(&values, &weights, total);
+            assert_eq!(p95, p95_by_definition(&values, &weights), "n = {n}");
+            let m: f64 = values.iter().zip(&weights).map(|(v, w)| v * w).sum::<f64>() / total;
+            assert!((mean - m).abs() <= 1e-12 * m.abs().max(1.0));
+        }
+    }
 }

@@ -337,10 +337,11 @@ fn bounded_pass_dim(
                 let x = &rows[i * dim..(i + 1) * dim];
                 let lower = lo[o] - moves.down[a];
                 let m = moves.half_gap[a].max(lower) * (1.0 - BOUND_MARGIN);
-                let own = (dist2(x, &means[a * dim..(a + 1) * dim]) as f64).sqrt();
-                if own < m {
+                // Compared squared (m ≥ 0), so the branch does not wait for the root.
+                let own2 = dist2(x, &means[a * dim..(a + 1) * dim]) as f64;
+                if own2 < m * m {
                     by_own += 1;
-                    us[o] = own - moves.up[a];
+                    us[o] = own2.sqrt() - moves.up[a];
                     continue;
                 }
                 let (b, d1, d2) = nearest_two_by_dim(x, &by_dim);

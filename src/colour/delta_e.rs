@@ -13,6 +13,28 @@ pub fn delta_e76(a: [f64; 3], b: [f64; 3]) -> f64 {
 /// rounding in `atan2` decides between two results that differ by up to 0.06 ΔE00.
 const HUE_TIE: f64 = 1e-9;
 
+// Cosines and sines of the fixed angles in T (30°, 6°, 63°).
+const COS_30: f64 = 0.866_025_403_784_438_6;
+const SIN_30: f64 = 0.5;
+const COS_6: f64 = 0.994_521_895_368_273_3;
+const SIN_6: f64 = 0.104_528_463_267_653_47;
+const COS_63: f64 = 0.453_990_499_739_546_8;
+const SIN_63: f64 = 0.891_006_524_188_367_9;
+
+/// T = 1 − 0.17 cos(h̄′ − 30°) + 0.24 cos(2h̄′) + 0.32 cos(3h̄′ + 6°) − 0.20 cos(4h̄′ − 63°),
+/// `h` = h̄′ in radians. The multiple angles come from one sine and cosine of h̄′ through
+/// the angle-sum and multiple-angle identities: the same value to within a few units in
+/// the last place (unit test), for one trigonometric call instead of four.
+#[inline]
+fn hue_weight_t(h: f64) -> f64 {
+    let (s1, c1) = h.sin_cos();
+    let (s2, c2) = (2.0 * s1 * c1, c1 * c1 - s1 * s1);
+    let (s3, c3) = (s1 * (3.0 - 4.0 * s1 * s1), c1 * (4.0 * c1 * c1 - 3.0));
+    let (s4, c4) = (2.0 * s2 * c2, c2 * c2 - s2 * s2);
+    1.0 - 0.17 * (c1 * COS_30 + s1 * SIN_30) + 0.24 * c2 + 0.32 * (c3 * COS_6 - s3 * SIN_6)
+        - 0.20 * (c4 * COS_63 + s4 * SIN_63)
+}
+
 /// CIEDE2000 colour difference with kL = kC = kH = 1, following the implementation
 /// notes of Sharma, Wu & Dalal (2005), Color Research & Application 30(1), 21–30.
 pub fn delta_e2000(lab1: [f64; 3], lab2: [f64; 3]) -> f64 {
@@ -71,10 +93,7 @@ pub fn delta_e2000(lab1: [f64; 3], lab2: [f64; 3]) -> f64 {
         0.5 * (h1p + h2p - 360.0)
     };
     let rad = |deg: f64| deg * PI / 180.0;
-    let t = 1.0 - 0.17 * rad(h_bar - 30.0).cos()
-        + 0.24 * rad(2.0 * h_bar).cos()
-        + 0.32 * rad(3.0 * h_bar + 6.0).cos()
-        - 0.20 * rad(4.0 * h_bar - 63.0).cos();
+    let t = hue_weight_t(rad(h_bar));
     let d_theta = 30.0 * (-((h_bar - 275.0) / 25.0).powi(2)).exp();
     let cp_bar7 = cp_bar.powi(7);
     let r_c = 2.0 * (cp_bar7 / (cp_bar7 + pow25_7)).sqrt();
@@ -100,6 +119,21 @@ mod tests {
         for lab in [[50.0, 0.0, 0.0], [30.0, 20.0, -40.0], [100.0, 0.0, 0.0]] {
             assert_eq!(delta_e2000(lab, lab), 0.0);
             assert_eq!(delta_e76(lab, lab), 0.0);
+        }
+    }
+
+    #[test]
+    fn hue_weight_from_identities_equals_the_four_cosines() {
+        // Every tenth of a degree: the printed formula (Sharma, Wu & Dalal 2005, eq. 15).
+        let rad = |deg: f64| deg * std::f64::consts::PI / 180.0;
+        for i in 0..3600 {
+            let h = i as f64 / 10.0;
+            let direct = 1.0 - 0.17 * rad(h - 30.0).cos()
+                + 0.24 * rad(2.0 * h).cos()
+                + 0.32 * rad(3.0 * h + 6.0).cos()
+                - 0.20 * rad(4.0 * h - 63.0).cos();
+            let got = hue_weight_t(rad(h));
+            assert!((got - direct).abs() <= 1e-14, "h̄′ = {h}°: {got} vs {direct}");
         }
     }
 
