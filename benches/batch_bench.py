@@ -66,7 +66,7 @@ def timed(args):
     h = int(wall.group(1) or 0)
     seconds = h * 3600 + int(wall.group(2)) * 60 + float(wall.group(3))
     rss = int(re.search(r"Maximum resident set size \(kbytes\): (\d+)", r.stderr).group(1))
-    return seconds, rss / 1024.0
+    return seconds, rss * 1024 / 1e6  # /usr/bin/time reports KiB; MB = 10^6 bytes
 
 
 def main():

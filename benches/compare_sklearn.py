@@ -183,7 +183,8 @@ def parse_time_v(text: str) -> dict:
     rss_kb = int(re.search(r"Maximum resident set size \(kbytes\): (\d+)", text).group(1))
     user = float(re.search(r"User time \(seconds\): ([\d.]+)", text).group(1))
     sys_t = float(re.search(r"System time \(seconds\): ([\d.]+)", text).group(1))
-    return {"wall_s": secs, "peak_rss_mb": rss_kb / 1024.0, "cpu_s": user + sys_t}
+    # /usr/bin/time reports KiB; MB here is 10^6 bytes, the unit of the target.
+    return {"wall_s": secs, "peak_rss_mb": rss_kb * 1024 / 1e6, "cpu_s": user + sys_t}
 
 
 def run_cli(binary: Path, photo: Path, out_dir: Path, extra: list[str]) -> dict:

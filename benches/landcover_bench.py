@@ -66,7 +66,7 @@ def main():
     wall = re.search(r"Elapsed \(wall clock\) time.*: (.*)", r.stderr).group(1)
     rss = int(re.search(r"Maximum resident set size \(kbytes\): (\d+)", r.stderr).group(1))
     print([l for l in r.stderr.splitlines() if l.startswith("chromasift:")][0])
-    print(f"landcover -k 8: wall {wall}, peak RSS {rss / 1024:.0f} MB (targets: < 30 s, < 1536 MB)")
+    print(f"landcover -k 8: wall {wall}, peak RSS {rss * 1024 / 1e6:.0f} MB (targets: < 30 s, < 1500 MB; MB = 10^6 bytes)")
     if not a.keep:
         subprocess.run(["rm", "-rf", tmp])
 

@@ -65,8 +65,8 @@ def main():
     wall = re.search(r"Elapsed \(wall clock\) time.*: (.*)", r.stderr).group(1)
     rss = int(re.search(r"Maximum resident set size \(kbytes\): (\d+)", r.stderr).group(1))
     print("\n".join(l for l in r.stderr.splitlines() if not l.startswith("\t")))
-    print(f"separate {a.width}x{a.height}, 30 inks, -k 6, --min-area 50: wall {wall}, peak RSS {rss / 1024:.0f} MB "
-          f"(targets: < 5 s, < 1024 MB)")
+    print(f"separate {a.width}x{a.height}, 30 inks, -k 6, --min-area 50: wall {wall}, peak RSS {rss * 1024 / 1e6:.0f} MB "
+          f"(targets: < 5 s, < 1000 MB; MB = 10^6 bytes)")
     subprocess.run(["rm", "-rf", tmp])
 
 

@@ -248,6 +248,8 @@ pub fn run_batch(
     std::fs::create_dir_all(out)
         .map_err(|e| Error::output(out, format!("cannot create output folder: {e}")))?;
     remove_stale_temporaries(out);
+    // Many images: keep each worker's colour-count table from image to image.
+    crate::histogram::keep_tables(true);
     let pool = rayon::ThreadPoolBuilder::new()
         .num_threads(opts.jobs.max(1))
         .build()
@@ -643,6 +645,9 @@ pub fn gather_histograms(inputs: &[PathBuf], opts: &ReduceOptions) -> Result<His
         return Err(Error::Data(
             "no images or histogram files were given".into(),
         ));
+    }
+    if files.len() > 1 {
+        crate::histogram::keep_tables(true);
     }
     let parts: Vec<Result<Histogram>> = files
         .par_iter()

@@ -96,15 +96,31 @@ impl Histogram {
 /// Uses a dense 2²⁴ table (zero-initialised lazily by the OS, so only pages of colours
 /// present are touched) and a presence bitmap, so counting is one pass at memory speed.
 pub fn from_rgba8(rgba: &[u8]) -> IndexedHistogram {
-    // The 64 MiB count table is kept per thread between calls (and cleared by touching
-    // only the entries used), so a batch of small images does not pay for allocating
-    // and faulting in a fresh table each time.
+    // With `keep_tables(true)` the 64 MiB count table is kept per thread between calls
+    // (and cleared by touching only the entries used), so a batch of small images does
+    // not pay for allocating and faulting in a fresh table each time.
     let (mut table, mut present) = TABLES
         .with(|t| t.borrow_mut().take())
         .unwrap_or_else(|| (vec![0u32; 1 << 24], vec![0u64; 1 << 18]));
     let result = count_rgba8(rgba, &mut table, &mut present);
-    TABLES.with(|t| *t.borrow_mut() = Some((table, present)));
+    if KEEP_TABLES.load(std::sync::atomic::Ordering::Relaxed) {
+        TABLES.with(|t| *t.borrow_mut() = Some((table, present)));
+    }
     result
+}
+
+/// Whether [`from_rgba8`] keeps its 64 MiB count table per thread for the next call.
+/// Off by default, so a single image frees the table (about 66 MB resident) before the
+/// rest of the work allocates; `batch` turns it on, where the reuse saves a fresh
+/// table's page faults for every image.
+static KEEP_TABLES: std::sync::atomic::AtomicBool = std::sync::atomic::AtomicBool::new(false);
+
+/// Keeps (or stops keeping) [`from_rgba8`]'s count table per thread between calls.
+pub fn keep_tables(keep: bool) {
+    KEEP_TABLES.store(keep, std::sync::atomic::Ordering::Relaxed);
+    if !keep {
+        TABLES.with(|t| t.borrow_mut().take());
+    }
 }
 
 thread_local! {
