@@ -230,6 +230,22 @@ pub fn histogram_of_file(path: &Path, opts: &ReduceOptions) -> Result<Histogram>
     Ok(histogram::from_rgba8(&rgba8).histogram)
 }
 
+/// Histograms waiting to be merged, per worker, before they are merged into one.
+const MERGE_EVERY: usize = 16;
+
+/// Merges `pending` into one histogram once it holds [`MERGE_EVERY`], so a worker never
+/// holds more than that many. Merging sums exact counts, so the result does not depend on
+/// the order. Parts of different depths cannot merge and are kept as they are, for the
+/// final merge to report.
+fn squash(pending: Vec<Histogram>) -> Vec<Histogram> {
+    if pending.len() >= MERGE_EVERY {
+        if let Some(merged) = Histogram::merge(&pending) {
+            return vec![merged];
+        }
+    }
+    pending
+}
+
 /// Progress callback: (done, total).
 pub type Progress<'a> = &'a (dyn Fn(usize, usize) + Sync);
 
@@ -267,16 +283,8 @@ pub fn run_batch(
     let fixed = if let Some(p) = &opts.palette {
         Some(p.clone())
     } else if opts.shared {
-        // Histograms are merged as they arrive (at most MERGE_EVERY pending per worker),
-        // so memory stays bounded however many images the folder holds. Merging sums
-        // exact counts, so the result does not depend on the order.
-        const MERGE_EVERY: usize = 16;
-        let squash = |mut pending: Vec<Histogram>| -> Vec<Histogram> {
-            if pending.len() >= MERGE_EVERY {
-                pending = Histogram::merge(&pending).into_iter().collect();
-            }
-            pending
-        };
+        // Histograms are merged as they arrive (see `squash`), so memory stays bounded
+        // however many images the folder holds.
         let (pending, failures) = pool.install(|| {
             images
                 .par_iter()
@@ -649,14 +657,39 @@ pub fn gather_histograms(inputs: &[PathBuf], opts: &ReduceOptions) -> Result<His
     if files.len() > 1 {
         crate::histogram::keep_tables(true);
     }
-    let parts: Vec<Result<Histogram>> = files
+    // Merged as they arrive (see `squash`), so memory stays bounded however many files
+    // there are; the first failing file in input order is the error reported.
+    let read = |f: &PathBuf| match read_histogram_file(f, opts.limits.max_alloc)? {
+        Some(bytes) => decode_histogram(&bytes, f),
+        None => histogram_of_file(f, opts),
+    };
+    let (parts, failures) = files
         .par_iter()
-        .map(|f| match read_histogram_file(f, opts.limits.max_alloc)? {
-            Some(bytes) => decode_histogram(&bytes, f),
-            None => histogram_of_file(f, opts),
-        })
-        .collect();
-    let parts = parts.into_iter().collect::<Result<Vec<_>>>()?;
+        .enumerate()
+        .fold(
+            || (Vec::<Histogram>::new(), Vec::<(usize, Error)>::new()),
+            |(mut pending, mut fails), (i, f)| {
+                match read(f) {
+                    Ok(h) => {
+                        pending.push(h);
+                        pending = squash(pending);
+                    }
+                    Err(e) => fails.push((i, e)),
+                }
+                (pending, fails)
+            },
+        )
+        .reduce(
+            || (Vec::new(), Vec::new()),
+            |(mut a, mut fa), (b, fb)| {
+                a.extend(b);
+                fa.extend(fb);
+                (squash(a), fa)
+            },
+        );
+    if let Some((_, e)) = failures.into_iter().min_by_key(|(i, _)| *i) {
+        return Err(e);
+    }
     let total = parts.iter().fold(0u64, |a, p| a.saturating_add(p.total()));
     if total > histogram::MAX_TOTAL {
         return Err(Error::Data(format!(
@@ -738,5 +771,41 @@ mod tests {
         let mut v = good.clone();
         v[8] = 12;
         check(&v, "depth");
+    }
+
+    #[test]
+    fn many_histogram_files_merge_as_they_arrive_to_the_whole() {
+        // More files than MERGE_EVERY, on more than one worker: the result equals one
+        // merge of everything; a bad file is reported, the first in input order.
+        let dir = tempfile::tempdir().unwrap();
+        let mut r = crate::rng::Rng::new(9, 0);
+        let mut parts = Vec::new();
+        let mut paths = Vec::new();
+        for f in 0..(3 * MERGE_EVERY + 5) {
+            let mut colours: Vec<[u16; 3]> = (0..20)
+                .map(|_| [r.below(4) as u16, r.below(4) as u16, r.below(256) as u16])
+                .collect();
+            colours.sort_unstable();
+            colours.dedup();
+            let counts = colours.iter().map(|_| 1 + r.below(1000) as u64).collect();
+            let h = Histogram { depth: 8, colours, counts };
+            let path = dir.path().join(format!("part{f:03}.hist"));
+            std::fs::write(&path, encode_histogram(&h)).unwrap();
+            parts.push(h);
+            paths.push(path);
+        }
+        let opts = ReduceOptions::new(8);
+        let pool = rayon::ThreadPoolBuilder::new().num_threads(3).build().unwrap();
+        let got = pool.install(|| gather_histograms(&paths, &opts)).unwrap();
+        assert_eq!(got, Histogram::merge(&parts).unwrap());
+
+        let mut bad = paths.clone();
+        for (i, name) in [(7, "bad-b.hist"), (3, "bad-a.hist")] {
+            let p = dir.path().join(name);
+            std::fs::write(&p, b"CSHIST\x00\x01 truncated").unwrap();
+            bad.insert(i, p);
+        }
+        let e = pool.install(|| gather_histograms(&bad, &opts)).unwrap_err().to_string();
+        assert!(e.contains("bad-a.hist"), "{e}");
     }
 }
