@@ -246,6 +246,39 @@ fn squash(pending: Vec<Histogram>) -> Vec<Histogram> {
     pending
 }
 
+/// Reads a histogram from each item in parallel and merges them as they arrive (see
+/// [`squash`]). Returns the unmerged remainder (one part per depth, at most a few) and
+/// the items that failed, by index.
+fn merge_as_they_arrive<T: Sync>(
+    items: &[T],
+    read: impl Fn(&T) -> Result<Histogram> + Sync,
+) -> (Vec<Histogram>, Vec<(usize, Error)>) {
+    items
+        .par_iter()
+        .enumerate()
+        .fold(
+            || (Vec::<Histogram>::new(), Vec::<(usize, Error)>::new()),
+            |(mut pending, mut fails), (i, item)| {
+                match read(item) {
+                    Ok(h) => {
+                        pending.push(h);
+                        pending = squash(pending);
+                    }
+                    Err(e) => fails.push((i, e)),
+                }
+                (pending, fails)
+            },
+        )
+        .reduce(
+            || (Vec::new(), Vec::new()),
+            |(mut a, mut fa), (b, fb)| {
+                a.extend(b);
+                fa.extend(fb);
+                (squash(a), fa)
+            },
+        )
+}
+
 /// Progress callback: (done, total).
 pub type Progress<'a> = &'a (dyn Fn(usize, usize) + Sync);
 
@@ -286,36 +319,17 @@ pub fn run_batch(
         // Histograms are merged as they arrive (see `squash`), so memory stays bounded
         // however many images the folder holds.
         let (pending, failures) = pool.install(|| {
-            images
-                .par_iter()
-                .enumerate()
-                .fold(
-                    || (Vec::<Histogram>::new(), Vec::<(usize, String)>::new()),
-                    |(mut pending, mut fails), (i, p)| {
-                        let h = if stop.load(Ordering::Relaxed) {
-                            Err(Error::Data("interrupted".into()))
-                        } else {
-                            histogram_of_file(p, &opts.reduce)
-                        };
-                        match h {
-                            Ok(h) => {
-                                pending.push(h);
-                                pending = squash(pending);
-                            }
-                            Err(e) => fails.push((i, one_line(&e.to_string()))),
-                        }
-                        (pending, fails)
-                    },
-                )
-                .reduce(
-                    || (Vec::new(), Vec::new()),
-                    |(mut a, mut fa), (b, fb)| {
-                        a.extend(b);
-                        fa.extend(fb);
-                        (squash(a), fa)
-                    },
-                )
+            merge_as_they_arrive(&images, |p: &PathBuf| {
+                if stop.load(Ordering::Relaxed) {
+                    Err(Error::Data("interrupted".into()))
+                } else {
+                    histogram_of_file(p, &opts.reduce)
+                }
+            })
         });
+        let failures = failures
+            .into_iter()
+            .map(|(i, e)| (i, one_line(&e.to_string())));
         for (i, e) in failures {
             early_failures[i] = Some(e);
         }
@@ -663,30 +677,7 @@ pub fn gather_histograms(inputs: &[PathBuf], opts: &ReduceOptions) -> Result<His
         Some(bytes) => decode_histogram(&bytes, f),
         None => histogram_of_file(f, opts),
     };
-    let (parts, failures) = files
-        .par_iter()
-        .enumerate()
-        .fold(
-            || (Vec::<Histogram>::new(), Vec::<(usize, Error)>::new()),
-            |(mut pending, mut fails), (i, f)| {
-                match read(f) {
-                    Ok(h) => {
-                        pending.push(h);
-                        pending = squash(pending);
-                    }
-                    Err(e) => fails.push((i, e)),
-                }
-                (pending, fails)
-            },
-        )
-        .reduce(
-            || (Vec::new(), Vec::new()),
-            |(mut a, mut fa), (b, fb)| {
-                a.extend(b);
-                fa.extend(fb);
-                (squash(a), fa)
-            },
-        );
+    let (parts, failures) = merge_as_they_arrive(&files, read);
     if let Some((_, e)) = failures.into_iter().min_by_key(|(i, _)| *i) {
         return Err(e);
     }
