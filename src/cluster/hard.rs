@@ -316,6 +316,7 @@ fn bounded_pass_dim(
             // First a tight loop that only tests the bounds and lists the rows they do not
             // settle (most rows, after the first few passes, are settled here); then the
             // listed rows only. Stored bounds are net of the sums since the last full pass.
+            const { assert!(CHUNK <= 1 << 16, "row offsets in a chunk must fit in u16") };
             let mut todo = [0u16; CHUNK];
             let mut n_todo = 0usize;
             for o in 0..ls.len() {
