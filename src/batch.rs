@@ -779,14 +779,21 @@ mod tests {
             colours.sort_unstable();
             colours.dedup();
             let counts = colours.iter().map(|_| 1 + r.below(1000) as u64).collect();
-            let h = Histogram { depth: 8, colours, counts };
+            let h = Histogram {
+                depth: 8,
+                colours,
+                counts,
+            };
             let path = dir.path().join(format!("part{f:03}.hist"));
             std::fs::write(&path, encode_histogram(&h)).unwrap();
             parts.push(h);
             paths.push(path);
         }
         let opts = ReduceOptions::new(8);
-        let pool = rayon::ThreadPoolBuilder::new().num_threads(3).build().unwrap();
+        let pool = rayon::ThreadPoolBuilder::new()
+            .num_threads(3)
+            .build()
+            .unwrap();
         let got = pool.install(|| gather_histograms(&paths, &opts)).unwrap();
         assert_eq!(got, Histogram::merge(&parts).unwrap());
 
@@ -796,7 +803,10 @@ mod tests {
             std::fs::write(&p, b"CSHIST\x00\x01 truncated").unwrap();
             bad.insert(i, p);
         }
-        let e = pool.install(|| gather_histograms(&bad, &opts)).unwrap_err().to_string();
+        let e = pool
+            .install(|| gather_histograms(&bad, &opts))
+            .unwrap_err()
+            .to_string();
         assert!(e.contains("bad-a.hist"), "{e}");
     }
 }

@@ -403,7 +403,10 @@ mod tests {
                 .to_rgb8();
             assert_eq!(img.dimensions(), (width, height));
             for (p, px) in img.pixels().enumerate() {
-                assert_eq!(px.0, palette[indices[p] as usize], "{colours} colours, pixel {p}");
+                assert_eq!(
+                    px.0, palette[indices[p] as usize],
+                    "{colours} colours, pixel {p}"
+                );
             }
         }
     }

@@ -214,7 +214,10 @@ fn scan_block(d: &[f32; LANES], j0: usize, best: &mut usize, d1: &mut f32, d2: &
 fn nearest_two_blocks(x: &[f32], m: &MeansByDim) -> (usize, f32, f32) {
     use std::arch::x86_64::*;
     // Checked in every build: the loads below rely on it (one predictable branch a call).
-    assert!(m.kpad % 4 == 0 && m.v.len() >= m.kpad * x.len(), "row and means disagree");
+    assert!(
+        m.kpad % 4 == 0 && m.v.len() >= m.kpad * x.len(),
+        "row and means disagree"
+    );
     // SAFETY: SSE2 is part of the x86-64 baseline; every load reads 4 floats at
     // t·kpad + q with t < x.len() and q + 4 ≤ kpad, inside `m.v` (asserted above).
     unsafe {

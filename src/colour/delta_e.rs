@@ -133,7 +133,10 @@ mod tests {
                 + 0.32 * rad(3.0 * h + 6.0).cos()
                 - 0.20 * rad(4.0 * h - 63.0).cos();
             let got = hue_weight_t(rad(h));
-            assert!((got - direct).abs() <= 1e-14, "h̄′ = {h}°: {got} vs {direct}");
+            assert!(
+                (got - direct).abs() <= 1e-14,
+                "h̄′ = {h}°: {got} vs {direct}"
+            );
         }
     }
 
