@@ -298,7 +298,7 @@ pub fn run_batch(
         .map_err(|e| Error::output(out, format!("cannot create output folder: {e}")))?;
     remove_stale_temporaries(out);
     // Many images: keep each worker's colour-count table from image to image.
-    crate::histogram::keep_tables(true);
+    let _keep = crate::histogram::KeepTables::new();
     let pool = rayon::ThreadPoolBuilder::new()
         .num_threads(opts.jobs.max(1))
         .build()
@@ -668,9 +668,7 @@ pub fn gather_histograms(inputs: &[PathBuf], opts: &ReduceOptions) -> Result<His
             "no images or histogram files were given".into(),
         ));
     }
-    if files.len() > 1 {
-        crate::histogram::keep_tables(true);
-    }
+    let _keep = (files.len() > 1).then(crate::histogram::KeepTables::new);
     // Merged as they arrive (see `squash`), so memory stays bounded however many files
     // there are; the first failing file in input order is the error reported.
     let read = |f: &PathBuf| match read_histogram_file(f, opts.limits.max_alloc)? {

@@ -123,6 +123,34 @@ pub fn keep_tables(keep: bool) {
     }
 }
 
+/// Keeps the count tables while it lives, then puts the previous setting back (so a
+/// library caller's later single images free their table again).
+pub struct KeepTables(bool);
+
+impl KeepTables {
+    /// Turns keeping on until the guard is dropped.
+    pub fn new() -> Self {
+        let before = KEEP_TABLES.swap(true, std::sync::atomic::Ordering::Relaxed);
+        KeepTables(before)
+    }
+}
+
+impl Default for KeepTables {
+    fn default() -> Self {
+        Self::new()
+    }
+}
+
+impl Drop for KeepTables {
+    fn drop(&mut self) {
+        keep_tables(self.0);
+        if !self.0 {
+            // The tables kept by the current pool's worker threads go too.
+            rayon::broadcast(|_| TABLES.with(|t| t.borrow_mut().take()));
+        }
+    }
+}
+
 thread_local! {
     /// Cleared count table and presence bitmap reused by [`from_rgba8`].
     #[allow(clippy::type_complexity)]
