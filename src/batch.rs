@@ -193,17 +193,51 @@ pub fn remove_stale_temporaries(out: &Path) {
     }
 }
 
-/// Are the outputs of `input` in `out_dir` complete and made from this file with these settings?
+/// The name each image's outputs start with: its file stem (`x` for `x.png`), or its
+/// whole file name (`x.png`, `x.tif`) where images in one folder share a stem, so that no
+/// image's outputs overwrite another's. Applied again until no two names in a folder
+/// agree (a whole name can equal another file's stem: `x.png` and `x.png.jpg`). `None`
+/// for a file name no output name can be made from.
+pub fn output_stems(images: &[PathBuf]) -> Vec<Option<String>> {
+    let whole = |p: &PathBuf| p.file_name().and_then(|n| n.to_str()).map(str::to_string);
+    let mut stems: Vec<Option<String>> = images.iter().map(|p| reduce::stem_of(p).ok()).collect();
+    let mut use_whole = vec![false; images.len()];
+    loop {
+        let mut seen: std::collections::HashMap<(Option<&Path>, &str), usize> =
+            std::collections::HashMap::new();
+        for (p, s) in images.iter().zip(&stems) {
+            if let Some(s) = s {
+                *seen.entry((p.parent(), s.as_str())).or_default() += 1;
+            }
+        }
+        let clash: Vec<usize> = (0..images.len())
+            .filter(|&i| {
+                !use_whole[i]
+                    && stems[i]
+                        .as_deref()
+                        .is_some_and(|s| seen[&(images[i].parent(), s)] > 1)
+            })
+            .collect();
+        if clash.is_empty() {
+            return stems;
+        }
+        for i in clash {
+            use_whole[i] = true;
+            stems[i] = whole(&images[i]);
+        }
+    }
+}
+
+/// Are the outputs of `input` in `out_dir`, named from `stem`, complete and made from this
+/// file with these settings?
 pub fn up_to_date(
     input: &Path,
+    stem: &str,
     out_dir: &Path,
     opts: &ReduceOptions,
     fixed: Option<&FixedPalette>,
 ) -> bool {
-    let Ok(stem) = reduce::stem_of(input) else {
-        return false;
-    };
-    let names = reduce::output_names(&stem);
+    let names = reduce::output_names(stem);
     let needed = if opts.uncertainty_raw { 5 } else { 4 };
     if !names[..needed].iter().all(|n| out_dir.join(n).is_file()) {
         return false;
@@ -351,6 +385,7 @@ pub fn run_batch(
     };
 
     let total = images.len();
+    let stems = output_stems(&images);
     let rows: Vec<FileReport> = pool.install(|| {
         images
             .par_iter()
@@ -376,9 +411,13 @@ pub fn run_batch(
                         .and_then(|d| d.strip_prefix(input_dir).ok())
                         .unwrap_or(Path::new(""));
                     let out_dir = out.join(sub);
-                    if !opts.force && up_to_date(p, &out_dir, &opts.reduce, fixed.as_ref()) {
-                        let doc: Option<PaletteDocument> = reduce::stem_of(p)
-                            .ok()
+                    let stem = stems[i].as_deref();
+                    if !opts.force
+                        && stem.is_some_and(|s| {
+                            up_to_date(p, s, &out_dir, &opts.reduce, fixed.as_ref())
+                        })
+                    {
+                        let doc: Option<PaletteDocument> = stem
                             .and_then(|s| {
                                 std::fs::read(out_dir.join(format!("{s}.palette.json"))).ok()
                             })
@@ -390,13 +429,21 @@ pub fn run_batch(
                             doc.as_ref().map(|d| d.mean_delta_e2000),
                         )
                     } else {
-                        match reduce::reduce_file_with(
-                            p,
-                            &out_dir,
-                            &opts.reduce,
-                            fixed.as_ref(),
-                            true,
-                        ) {
+                        let reduced = match stem {
+                            Some(s) => reduce::reduce_file_as(
+                                p,
+                                s,
+                                &out_dir,
+                                &opts.reduce,
+                                fixed.as_ref(),
+                                true,
+                            ),
+                            None => Err(Error::output(
+                                p,
+                                "cannot derive an output name from this file name",
+                            )),
+                        };
+                        match reduced {
                             Ok(rep) => row(
                                 Status::Ok,
                                 None,
@@ -502,13 +549,16 @@ pub fn contact_sheet(r: &BatchReport, input_dir: &Path, out: &Path) -> String {
         "<h1>{} images</h1><p>{} reduced, {} up to date, {} failed</p>\n",
         r.totals.files, r.totals.ok, r.totals.skipped, r.totals.failed
     ));
-    for f in &r.files {
+    let stems = output_stems(
+        &r.files
+            .iter()
+            .map(|f| PathBuf::from(&f.input))
+            .collect::<Vec<_>>(),
+    );
+    for (f, stem) in r.files.iter().zip(stems) {
         let rel = Path::new(&f.input);
         let sub = rel.parent().unwrap_or(Path::new(""));
-        let stem = rel
-            .file_stem()
-            .map(|x| x.to_string_lossy().into_owned())
-            .unwrap_or_default();
+        let stem = stem.unwrap_or_default();
         s.push_str("<div class=\"card\">");
         if f.status == Status::Failed || f.status == Status::Interrupted {
             s.push_str(&format!(
@@ -760,6 +810,36 @@ mod tests {
         let mut v = good.clone();
         v[8] = 12;
         check(&v, "depth");
+    }
+
+    #[test]
+    fn images_sharing_a_stem_are_named_by_their_whole_file_names() {
+        let paths: Vec<PathBuf> = [
+            "a/x.png",
+            "a/x.tif",
+            "a/y.png",
+            "a/x.png.jpg",
+            "a/x.png.jpg.gif",
+            "b/x.png",
+            "a/z",
+        ]
+        .iter()
+        .map(PathBuf::from)
+        .collect();
+        let stems = output_stems(&paths);
+        let want = [
+            "x.png",
+            "x.tif",
+            "y",
+            "x.png.jpg",
+            "x.png.jpg.gif",
+            "x",
+            "z",
+        ];
+        assert_eq!(
+            stems,
+            want.iter().map(|s| Some(s.to_string())).collect::<Vec<_>>()
+        );
     }
 
     #[test]

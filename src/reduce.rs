@@ -980,14 +980,27 @@ pub fn reduce_file_with(
     fixed: Option<&FixedPalette>,
     stamp: bool,
 ) -> Result<ReduceReport> {
+    opts.kmeans_params().check()?;
+    reduce_file_as(input, &stem_of(input)?, out_dir, opts, fixed, stamp)
+}
+
+/// As [`reduce_file_with`], naming the outputs `{stem}.reduced.png` and so on (a batch
+/// names two images of one folder that share a file stem by their whole file names).
+pub fn reduce_file_as(
+    input: &Path,
+    stem: &str,
+    out_dir: &Path,
+    opts: &ReduceOptions,
+    fixed: Option<&FixedPalette>,
+    stamp: bool,
+) -> Result<ReduceReport> {
     let t0 = Instant::now();
     let mut ph = crate::trace::Phases::start("reduce file");
     opts.kmeans_params().check()?;
-    let stem = stem_of(input)?;
     let img = raster::decode(input, &opts.limits)?;
     ph.mark("decode");
     let mut set = OutputSet::prepare(out_dir, &[input])?;
-    for name in output_names(&stem) {
+    for name in output_names(stem) {
         set.check_target(&name)?;
     }
     let mut red = reduce_image_with(&img, opts, fixed).map_err(|e| match e {
@@ -1004,7 +1017,7 @@ pub fn reduce_file_with(
         red.document.settings_fingerprint = Some(opts.fingerprint(fixed));
     }
     ph.mark("reduce in memory");
-    write_reduction(&red, &stem, &mut set, opts.uncertainty_raw)?;
+    write_reduction(&red, stem, &mut set, opts.uncertainty_raw)?;
     ph.mark("encode and write");
     let outputs = set.commit()?;
     ph.mark("rename into place");

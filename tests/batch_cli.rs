@@ -400,3 +400,56 @@ fn corrupt_or_foreign_histogram_files_are_refused() {
     assert_eq!(o.status.code(), Some(2));
     assert!(stderr(&o).contains("pal.json") && stderr(&o).contains("not a palette document"));
 }
+
+/// Two images of one folder that share a file stem (`scan.png`, `scan.bmp`) each keep
+/// their own outputs, named by the whole file name, on any number of jobs; a rerun finds
+/// both up to date.
+#[test]
+fn images_sharing_a_stem_keep_their_own_outputs() {
+    let root = tempfile::tempdir().unwrap();
+    let s = root.path().join("scans");
+    std::fs::create_dir_all(&s).unwrap();
+    let red = common::gradient(48, 12, [200, 20, 20], [250, 120, 90]);
+    let blue = common::gradient(48, 12, [10, 30, 160], [90, 200, 250]);
+    common::write_rgb(&s.join("scan.png"), 48, 12, &red);
+    common::write_rgb(&s.join("scan.bmp"), 48, 12, &blue);
+    common::write_rgb(&s.join("other.png"), 48, 12, &blue);
+    for jobs in ["1", "2"] {
+        let out = root.path().join(format!("out{jobs}"));
+        let args = [
+            "batch",
+            s.to_str().unwrap(),
+            "-k",
+            "3",
+            "--jobs",
+            jobs,
+            "--contact-sheet",
+            "-o",
+            out.to_str().unwrap(),
+        ];
+        let o = run(&args, &[]);
+        assert!(o.status.success(), "{}", stderr(&o));
+        for (name, colour) in [("scan.png", &red), ("scan.bmp", &blue)] {
+            let doc: Value = serde_json::from_slice(
+                &std::fs::read(out.join(format!("{name}.palette.json"))).unwrap(),
+            )
+            .unwrap();
+            assert_eq!(doc["input"], name);
+            // The reduced image is made from this input: its first pixel is near the
+            // input's first pixel, not the other image's.
+            let px = common::read_rgba(&out.join(format!("{name}.reduced.png")));
+            let p = px.get_pixel(0, 0);
+            let d: i32 = (0..3).map(|c| (p[c] as i32 - colour[c] as i32).abs()).sum();
+            assert!(d < 60, "{name}: {p:?} vs {:?}", &colour[..3]);
+        }
+        assert!(out.join("other.palette.json").is_file());
+        assert!(!out.join("scan.palette.json").exists());
+        let sheet = std::fs::read_to_string(out.join("contact-sheet.html")).unwrap();
+        assert!(sheet.contains("scan.bmp.reduced.png"), "{sheet}");
+        let again = run(&args, &[]);
+        assert!(again.status.success(), "{}", stderr(&again));
+        let r = report(&out);
+        assert_eq!(status_of(&r, "scan.png"), "skipped");
+        assert_eq!(status_of(&r, "scan.bmp"), "skipped");
+    }
+}
