@@ -16,6 +16,7 @@ fn main() -> Result<(), chromasift::Error> {
         force: true,
         contact_sheet: false,
         palette: None,
+        palette_file: None,
     };
     let stop = AtomicBool::new(false);
     let report = run_batch(Path::new("fixtures/demo"), &out, &opts, &stop, &|_, _| {})?;

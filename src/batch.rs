@@ -83,10 +83,25 @@ pub struct BatchOptions {
     pub contact_sheet: bool,
     /// Map every image onto this palette instead of fitting (`batch --palette`).
     pub palette: Option<FixedPalette>,
+    /// The file `palette` was read from: no output may replace it.
+    pub palette_file: Option<PathBuf>,
 }
 
 /// Images under `dir` (recursively, sorted) and the files that are not images.
 pub fn collect_images(dir: &Path) -> Result<(Vec<PathBuf>, Vec<PathBuf>)> {
+    let (images, others, mut unreadable) = walk_images(dir)?;
+    match unreadable.is_empty() {
+        true => Ok((images, others)),
+        false => Err(unreadable.remove(0).1),
+    }
+}
+
+/// Sub-folders that could not be read, with the error, in the order met.
+type Unreadable = Vec<(PathBuf, Error)>;
+
+/// As [`collect_images`], but a sub-folder that cannot be read is listed, not fatal (a
+/// batch reports it as failed and goes on); only `dir` itself must be readable.
+pub fn walk_images(dir: &Path) -> Result<(Vec<PathBuf>, Vec<PathBuf>, Unreadable)> {
     let meta = std::fs::metadata(dir).map_err(|source| Error::Open {
         path: dir.into(),
         source,
@@ -96,12 +111,23 @@ pub fn collect_images(dir: &Path) -> Result<(Vec<PathBuf>, Vec<PathBuf>)> {
     }
     let mut images = Vec::new();
     let mut others = Vec::new();
+    let mut unreadable = Vec::new();
     let mut stack = vec![dir.to_path_buf()];
     while let Some(d) = stack.pop() {
-        let rd = std::fs::read_dir(&d).map_err(|source| Error::Open {
-            path: d.clone(),
-            source,
-        })?;
+        let rd = match std::fs::read_dir(&d) {
+            Ok(rd) => rd,
+            Err(source) => {
+                let e = Error::Open {
+                    path: d.clone(),
+                    source,
+                };
+                if d == dir {
+                    return Err(e);
+                }
+                unreadable.push((d, e));
+                continue;
+            }
+        };
         for e in rd.flatten() {
             let p = e.path();
             let name = e.file_name().to_string_lossy().into_owned();
@@ -128,7 +154,8 @@ pub fn collect_images(dir: &Path) -> Result<(Vec<PathBuf>, Vec<PathBuf>)> {
     }
     images.sort();
     others.sort();
-    Ok((images, others))
+    unreadable.sort_by(|a, b| a.0.cmp(&b.0));
+    Ok((images, others, unreadable))
 }
 
 /// `path` with symbolic links and `..` resolved, also when its last parts do not exist yet.
@@ -327,14 +354,15 @@ pub fn run_batch(
     let t0 = Instant::now();
     opts.reduce.kmeans_params().check()?;
     check_out_not_inside(input_dir, out)?;
-    let (images, others) = collect_images(input_dir)?;
+    let (images, others, unreadable) = walk_images(input_dir)?;
     std::fs::create_dir_all(out)
         .map_err(|e| Error::output(out, format!("cannot create output folder: {e}")))?;
     remove_stale_temporaries(out);
     // Many images: keep each worker's colour-count table from image to image.
     let _keep = crate::histogram::KeepTables::new();
     let pool = rayon::ThreadPoolBuilder::new()
-        .num_threads(opts.jobs.max(1))
+        // Never more workers than images.
+        .num_threads(opts.jobs.clamp(1, images.len().max(1)))
         .build()
         .map_err(|e| Error::Data(format!("cannot start worker threads: {e}")))?;
     let rel = |p: &Path| {
@@ -386,6 +414,7 @@ pub fn run_batch(
 
     let total = images.len();
     let stems = output_stems(&images);
+    let spare: Vec<&Path> = opts.palette_file.as_deref().into_iter().collect();
     let rows: Vec<FileReport> = pool.install(|| {
         images
             .par_iter()
@@ -437,6 +466,7 @@ pub fn run_batch(
                                 &opts.reduce,
                                 fixed.as_ref(),
                                 true,
+                                &spare,
                             ),
                             None => Err(Error::output(
                                 p,
@@ -461,6 +491,15 @@ pub fn run_batch(
             })
             .collect()
     });
+    let mut rows = rows;
+    rows.extend(unreadable.iter().map(|(d, e)| FileReport {
+        input: rel(d),
+        status: Status::Failed,
+        error: Some(one_line(&e.to_string())),
+        colors: None,
+        mean_delta_e2000: None,
+        seconds: 0.0,
+    }));
     let count = |s: Status| rows.iter().filter(|r| r.status == s).count();
     let report = BatchReport {
         tool_version: crate::TOOL_VERSION.into(),
@@ -478,7 +517,7 @@ pub fn run_batch(
         },
         files: rows,
     };
-    let mut set = OutputSet::prepare(out, &[])?;
+    let mut set = OutputSet::prepare(out, &spare)?;
     let json = serde_json::to_string_pretty(&report).expect("report serialises");
     set.write_bytes("batch-report.json", format!("{json}\n").as_bytes())?;
     set.write_bytes("batch-report.csv", report_csv(&report).as_bytes())?;

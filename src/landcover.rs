@@ -405,6 +405,9 @@ pub fn class_colours(k: usize) -> Vec<[u8; 3]> {
         .collect()
 }
 
+/// Most classes: `classes.tif` is 8-bit, with 0 for nodata.
+pub const MAX_CLASSES: usize = 255;
+
 fn check_options(opts: &LandcoverOptions, info: &RasterInfo, path: &Path) -> Result<Features> {
     let bands: Vec<usize> = match &opts.bands {
         Some(b) => b.clone(),
@@ -412,6 +415,13 @@ fn check_options(opts: &LandcoverOptions, info: &RasterInfo, path: &Path) -> Res
     };
     if bands.is_empty() && opts.indices.is_empty() {
         return Err(ParamsError::Other("no bands selected".into()).into());
+    }
+    if opts.k > MAX_CLASSES {
+        return Err(ParamsError::Other(format!(
+            "k = {} classes: the 8-bit class raster holds at most {MAX_CLASSES} (0 is nodata)",
+            opts.k
+        ))
+        .into());
     }
     for &b in &bands {
         if b == 0 || b > info.bands {

@@ -2,7 +2,6 @@
 
 use chromasift::cli::{Cli, Command};
 use chromasift::{batch, reduce};
-use clap::Parser;
 use std::io::Write;
 use std::process::ExitCode;
 use std::sync::atomic::{AtomicBool, Ordering};
@@ -127,10 +126,9 @@ fn print_reduce_summary(input: &std::path::Path, report: &reduce::ReduceReport, 
     );
     if json {
         let mut out = std::io::stdout().lock();
-        let _ = writeln!(
-            out,
-            "{}",
-            serde_json::to_string_pretty(d).expect("document serialises")
+        emit(
+            &mut out,
+            &serde_json::to_string_pretty(d).expect("document serialises"),
         );
     }
 }
@@ -147,10 +145,12 @@ fn run_batch(args: chromasift::cli::BatchArgs) -> ExitCode {
         shared: args.shared,
         jobs: args
             .jobs
+            .map(usize::from)
             .unwrap_or_else(|| std::thread::available_parallelism().map_or(1, |n| n.get())),
         force: args.force,
         contact_sheet: args.contact_sheet,
         palette,
+        palette_file: args.palette.clone(),
     };
     let bar = (!args.quiet && std::io::stderr().is_terminal()).then(|| {
         let b = indicatif::ProgressBar::new(0);
@@ -203,10 +203,9 @@ fn run_batch(args: chromasift::cli::BatchArgs) -> ExitCode {
             );
             if args.json {
                 let mut out = std::io::stdout().lock();
-                let _ = writeln!(
-                    out,
-                    "{}",
-                    serde_json::to_string_pretty(&r).expect("report serialises")
+                emit(
+                    &mut out,
+                    &serde_json::to_string_pretty(&r).expect("report serialises"),
                 );
             }
             if STOP.load(Ordering::SeqCst) {
@@ -234,28 +233,80 @@ fn ignore_file_size_signal() {
     }
 }
 
+/// Parses the command line. Every option that takes a value accepts a negative number as
+/// that value (`-k -3` is read as k = −3 and then refused with the reason, not taken
+/// for an unknown flag `-3`).
+fn parse_command_line() -> Result<Cli, clap::Error> {
+    use clap::{CommandFactory, FromArgMatches};
+    fn negatives(a: clap::Arg) -> clap::Arg {
+        if a.get_action().takes_values() && !a.is_positional() {
+            a.allow_negative_numbers(true)
+        } else {
+            a
+        }
+    }
+    let cmd = Cli::command()
+        .mut_args(negatives)
+        .mut_subcommands(|sub| sub.mut_args(negatives));
+    Cli::from_arg_matches(&cmd.try_get_matches()?)
+}
+
+/// One line from clap's error text: its first line without the `error: ` prefix, and, for
+/// a list such as the missing required arguments, the listed items after it.
+fn usage_error_line(text: &str) -> String {
+    let mut lines = text.lines();
+    let first = lines.next().unwrap_or("").trim_start_matches("error: ");
+    let first = first.trim_end();
+    if let Some(head) = first.strip_suffix(':') {
+        let items: Vec<&str> = lines
+            .take_while(|l| !l.trim().is_empty())
+            .map(str::trim)
+            .collect();
+        if !items.is_empty() {
+            return format!("{head}: {}", items.join(", "));
+        }
+    }
+    first.to_string()
+}
+
+/// Set when writing to standard output failed; the exit status is then 2.
+static STDOUT_FAILED: AtomicBool = AtomicBool::new(false);
+
+/// Writes one document and a newline to standard output; a failure (a full disk, a closed
+/// pipe) is reported once on standard error and makes the exit status 2.
+fn emit(out: &mut impl Write, text: &str) {
+    if let Err(e) = writeln!(out, "{text}").and_then(|()| out.flush()) {
+        if !STDOUT_FAILED.swap(true, Ordering::SeqCst) {
+            eprintln!("chromasift: error: standard output: {e}");
+        }
+    }
+}
+
 fn main() -> ExitCode {
+    let code = run();
+    if STDOUT_FAILED.load(Ordering::SeqCst) {
+        return ExitCode::from(2);
+    }
+    code
+}
+
+fn run() -> ExitCode {
     #[cfg(unix)]
     ignore_file_size_signal();
-    let cli = match Cli::try_parse() {
+    let cli = match parse_command_line() {
         Ok(c) => c,
         Err(e) => {
             use clap::error::ErrorKind as K;
-            if matches!(
-                e.kind(),
-                K::DisplayHelp | K::DisplayVersion | K::DisplayHelpOnMissingArgumentOrSubcommand
-            ) {
+            if matches!(e.kind(), K::DisplayHelp | K::DisplayVersion) {
                 let _ = e.print();
                 return ExitCode::SUCCESS;
             }
-            // One line: clap's first line without its own prefix.
-            let text = e.to_string();
-            let first = text
-                .lines()
-                .next()
-                .unwrap_or("")
-                .trim_start_matches("error: ");
-            return fail(format!("{first} (see --help)"));
+            if e.kind() == K::DisplayHelpOnMissingArgumentOrSubcommand {
+                // No command given: the help goes to standard error, and it is a usage error.
+                let _ = e.print();
+                return ExitCode::from(2);
+            }
+            return fail(format!("{} (see --help)", usage_error_line(&e.to_string())));
         }
     };
     match cli.command {
@@ -294,11 +345,10 @@ fn main() -> ExitCode {
                     );
                     if args.json {
                         let mut out = std::io::stdout().lock();
-                        let _ = writeln!(
-                            out,
-                            "{}",
-                            serde_json::to_string_pretty(&report.document)
-                                .expect("document serialises")
+                        emit(
+                            &mut out,
+                            &serde_json::to_string_pretty(&report.document)
+                                .expect("document serialises"),
                         );
                     }
                     ExitCode::SUCCESS
@@ -323,10 +373,9 @@ fn main() -> ExitCode {
                     eprintln!("chromasift: caution: {}", chromasift::landcover::CAUTION);
                     if args.json {
                         let mut out = std::io::stdout().lock();
-                        let _ = writeln!(
-                            out,
-                            "{}",
-                            serde_json::to_string_pretty(d).expect("document serialises")
+                        emit(
+                            &mut out,
+                            &serde_json::to_string_pretty(d).expect("document serialises"),
                         );
                     }
                     ExitCode::SUCCESS
@@ -361,10 +410,9 @@ fn main() -> ExitCode {
                     );
                     if args.json {
                         let mut out = std::io::stdout().lock();
-                        let _ = writeln!(
-                            out,
-                            "{}",
-                            serde_json::to_string_pretty(d).expect("document serialises")
+                        emit(
+                            &mut out,
+                            &serde_json::to_string_pretty(d).expect("document serialises"),
                         );
                     }
                     ExitCode::SUCCESS
@@ -394,7 +442,15 @@ fn main() -> ExitCode {
                 let hist = batch::gather_histograms(&args.inputs, &opts)?;
                 let doc = reduce::learn_palette(&hist, &opts)?;
                 let json = serde_json::to_string_pretty(&doc).expect("document serialises");
-                chromasift::output::write_file(&args.out, format!("{json}\n").as_bytes())?;
+                let read = batch::input_files(&args.inputs)?;
+                chromasift::output::write_file_sparing(
+                    &args.out,
+                    format!("{json}\n").as_bytes(),
+                    &read
+                        .iter()
+                        .map(std::path::PathBuf::as_path)
+                        .collect::<Vec<_>>(),
+                )?;
                 Ok(doc)
             })();
             match result {
@@ -408,10 +464,9 @@ fn main() -> ExitCode {
                     );
                     if args.json {
                         let mut out = std::io::stdout().lock();
-                        let _ = writeln!(
-                            out,
-                            "{}",
-                            serde_json::to_string_pretty(&doc).expect("document serialises")
+                        emit(
+                            &mut out,
+                            &serde_json::to_string_pretty(&doc).expect("document serialises"),
                         );
                     }
                     ExitCode::SUCCESS
@@ -425,7 +480,14 @@ fn main() -> ExitCode {
                 Ok(p) => p,
                 Err(e) => return fail(e),
             };
-            match reduce::reduce_file_with(&args.input, &args.out, &opts, Some(&palette), false) {
+            match reduce::reduce_file_with(
+                &args.input,
+                &args.out,
+                &opts,
+                Some(&palette),
+                false,
+                &[args.palette.as_path()],
+            ) {
                 Ok(report) => {
                     print_reduce_summary(&args.input, &report, args.json);
                     ExitCode::SUCCESS
@@ -440,7 +502,15 @@ fn main() -> ExitCode {
             };
             let result = (|| -> Result<(u64, usize), chromasift::Error> {
                 let hist = batch::gather_histograms(&args.inputs, &opts)?;
-                chromasift::output::write_file(&args.out, &batch::encode_histogram(&hist))?;
+                let read = batch::input_files(&args.inputs)?;
+                chromasift::output::write_file_sparing(
+                    &args.out,
+                    &batch::encode_histogram(&hist),
+                    &read
+                        .iter()
+                        .map(std::path::PathBuf::as_path)
+                        .collect::<Vec<_>>(),
+                )?;
                 Ok((hist.total(), hist.len()))
             })();
             match result {
@@ -448,14 +518,14 @@ fn main() -> ExitCode {
                     eprintln!("chromasift: wrote {} ({n} pixels)", args.out.display());
                     if args.json {
                         let mut out = std::io::stdout().lock();
-                        let _ = writeln!(
-                            out,
-                            "{}",
-                            serde_json::json!({
+                        emit(
+                            &mut out,
+                            &serde_json::json!({
                                 "file": args.out.to_string_lossy(),
                                 "pixels": n,
                                 "distinct_colours": distinct,
                             })
+                            .to_string(),
                         );
                     }
                     ExitCode::SUCCESS

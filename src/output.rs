@@ -10,6 +10,9 @@ use tempfile::NamedTempFile;
 /// Prefix of temporary files; a later run may remove stale ones.
 pub const TEMP_PREFIX: &str = ".chromasift-tmp-";
 
+/// Longest output file name, in bytes (NAME_MAX of ext4, XFS, Btrfs, APFS and NTFS).
+pub const MAX_NAME_BYTES: usize = 255;
+
 /// A set of outputs in one folder, committed together.
 #[derive(Debug)]
 pub struct OutputSet {
@@ -71,6 +74,18 @@ impl OutputSet {
     /// Checks that `name` may be written: not a folder, not one of the inputs.
     pub fn check_target(&self, name: &str) -> Result<PathBuf> {
         let target = self.path_of(name);
+        // Checked before anything is written, so a set never fails halfway through its
+        // renames on a name the file system cannot hold (255 bytes on common ones).
+        if name.len() > MAX_NAME_BYTES {
+            return Err(Error::output(
+                &target,
+                format!(
+                    "output file name is {} bytes long; file systems allow {MAX_NAME_BYTES} \
+                     (rename the input to something shorter)",
+                    name.len()
+                ),
+            ));
+        }
         if let Ok(m) = fs::symlink_metadata(&target) {
             if m.is_dir() {
                 return Err(Error::output(&target, "an output would replace a folder"));
@@ -129,12 +144,18 @@ impl OutputSet {
         self.write(name, |w| w.write_all(bytes))
     }
 
-    /// Renames every pending output into place.
+    /// Renames every pending output into place. If a rename fails, the outputs of this
+    /// set already renamed are removed again, so no mixed set is left (the others'
+    /// temporary files delete themselves).
     pub fn commit(mut self) -> Result<Vec<PathBuf>> {
         let mut done = Vec::new();
         for (tmp, target) in std::mem::take(&mut self.pending) {
-            tmp.persist(&target)
-                .map_err(|e| Error::io(&target, e.error))?;
+            if let Err(e) = tmp.persist(&target) {
+                for d in &done {
+                    let _ = fs::remove_file(d);
+                }
+                return Err(Error::io(&target, e.error));
+            }
             done.push(target);
         }
         self.committed = true;
@@ -220,6 +241,36 @@ mod tests {
             1,
             "no temporary files remain"
         );
+    }
+
+    #[test]
+    fn a_failed_rename_takes_back_the_renamed_outputs() {
+        let dir = tempfile::tempdir().unwrap();
+        let mut set = OutputSet::prepare(dir.path(), &[]).unwrap();
+        set.write_bytes("a.png", b"first").unwrap();
+        set.write_bytes("b.json", b"second").unwrap();
+        // After the checks, a non-empty folder appears where the second output goes: its
+        // rename must fail, and the first output, already renamed, must go again.
+        fs::create_dir(dir.path().join("b.json")).unwrap();
+        fs::write(dir.path().join("b.json/keep"), b"x").unwrap();
+        assert!(set.commit().is_err());
+        assert!(!dir.path().join("a.png").exists());
+        let left: Vec<_> = fs::read_dir(dir.path())
+            .unwrap()
+            .map(|e| e.unwrap().file_name().into_string().unwrap())
+            .collect();
+        assert_eq!(left, vec!["b.json".to_string()]);
+    }
+
+    #[test]
+    fn names_longer_than_file_systems_hold_are_refused_before_writing() {
+        let dir = tempfile::tempdir().unwrap();
+        let set = OutputSet::prepare(dir.path(), &[]).unwrap();
+        assert!(set.check_target(&"x".repeat(MAX_NAME_BYTES)).is_ok());
+        let e = set
+            .check_target(&"x".repeat(MAX_NAME_BYTES + 1))
+            .unwrap_err();
+        assert!(e.to_string().contains("256 bytes"), "{e}");
     }
 
     #[test]

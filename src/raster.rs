@@ -102,6 +102,25 @@ pub fn sniff_dpi(bytes: &[u8]) -> Option<f64> {
     None
 }
 
+/// A decoder message without Rust debug dumps: `ChunkType { type: IDAT, critical: … }`
+/// (from the PNG decoder) becomes `IDAT`.
+fn readable(message: &str) -> String {
+    let mut out = String::new();
+    let mut rest = message;
+    while let Some(at) = rest.find("ChunkType { type: ") {
+        out.push_str(&rest[..at]);
+        let after = &rest[at + "ChunkType { type: ".len()..];
+        let name_end = after.find([',', ' ', '}']).unwrap_or(after.len());
+        out.push_str(&after[..name_end]);
+        rest = match after.find('}') {
+            Some(close) => &after[close + 1..],
+            None => "",
+        };
+    }
+    out.push_str(rest);
+    out
+}
+
 fn decode_error(path: &Path, e: image::ImageError) -> Error {
     use image::ImageError as E;
     let message = match e {
@@ -115,11 +134,71 @@ fn decode_error(path: &Path, e: image::ImageError) -> Error {
         E::IoError(io) if io.kind() == std::io::ErrorKind::UnexpectedEof => {
             "image data ends early (truncated file?)".to_string()
         }
-        other => format!("cannot decode image: {other}"),
+        other => format!("cannot decode image: {}", readable(&other.to_string())),
     };
     Error::Decode {
         path: path.into(),
         message,
+    }
+}
+
+/// Does JPEG data run to its end-of-image marker? Walks the marker segments (ITU-T T.81
+/// annex B): each segment's length is skipped, so markers inside metadata such as an
+/// embedded thumbnail are never mistaken for the image's own; after each start of scan,
+/// the entropy-coded data runs to the next marker other than a stuffed 0xFF00 or a
+/// restart marker.
+pub fn jpeg_is_complete(bytes: &[u8]) -> bool {
+    if bytes.len() < 4 || bytes[0] != 0xFF || bytes[1] != 0xD8 {
+        return false;
+    }
+    let mut i = 2;
+    loop {
+        // Find the next marker (0xFF fill bytes may precede it).
+        while i < bytes.len() && bytes[i] != 0xFF {
+            i += 1;
+        }
+        while i < bytes.len() && bytes[i] == 0xFF {
+            i += 1;
+        }
+        let Some(&m) = bytes.get(i) else {
+            return false;
+        };
+        i += 1;
+        match m {
+            0xD9 => return true,
+            0x01 | 0xD0..=0xD7 => continue,
+            _ => {}
+        }
+        let Some(len) = bytes
+            .get(i..i + 2)
+            .map(|b| u16::from_be_bytes([b[0], b[1]]) as usize)
+        else {
+            return false;
+        };
+        if len < 2 {
+            return false;
+        }
+        i += len;
+        if i > bytes.len() {
+            return false;
+        }
+        if m == 0xDA {
+            // Entropy-coded data: up to a marker that is not 0xFF00 or a restart.
+            loop {
+                while i < bytes.len() && bytes[i] != 0xFF {
+                    i += 1;
+                }
+                let mut j = i;
+                while j < bytes.len() && bytes[j] == 0xFF {
+                    j += 1;
+                }
+                match bytes.get(j) {
+                    None => return false,
+                    Some(0x00) | Some(0xD0..=0xD7) => i = j + 1,
+                    Some(_) => break,
+                }
+            }
+        }
     }
 }
 
@@ -198,9 +277,28 @@ pub fn decode_bytes(bytes: &[u8], name: &Path, limits: &Limits) -> Result<Decode
     let reader = ImageReader::new(Cursor::new(bytes))
         .with_guessed_format()
         .map_err(|e| decode_error(name, e.into()))?;
-    if reader.format().is_none() {
+    let format = reader.format();
+    if format.is_none() {
         return Err(not_an_image(name));
     }
+    // The JPEG decoder fills a cut-off scan with grey and reports no error: look for the
+    // end of the image first.
+    if format == Some(image::ImageFormat::Jpeg) && !jpeg_is_complete(bytes) {
+        return Err(Error::Decode {
+            path: name.into(),
+            message: "JPEG data ends before its end-of-image marker (truncated file?)".into(),
+        });
+    }
+    let tiff = format == Some(image::ImageFormat::Tiff);
+    let decode_error = |name: &Path, e: image::ImageError| match e {
+        image::ImageError::Unsupported(_) if tiff => Error::Decode {
+            path: name.into(),
+            message: "this TIFF is not a grey or RGB(A) image; for a multi-band raster use \
+                      `landcover`, or `sweep` with `--bands`"
+                .into(),
+        },
+        e => decode_error(name, e),
+    };
     // Header first: refuse over-limit images before the decoder allocates.
     let (width, height) = reader
         .into_dimensions()
@@ -383,6 +481,59 @@ fn tiff_error(e: tiff::TiffError) -> std::io::Error {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// A baseline JPEG from the image crate's encoder, of a ripple of our own.
+    fn ripple_jpeg() -> Vec<u8> {
+        let px: Vec<u8> = (0..40 * 30 * 3).map(|i| ((i * 29) % 253) as u8).collect();
+        let mut v = Cursor::new(Vec::new());
+        image::RgbImage::from_raw(40, 30, px)
+            .unwrap()
+            .write_to(&mut v, image::ImageFormat::Jpeg)
+            .unwrap();
+        v.into_inner()
+    }
+
+    #[test]
+    fn a_jpeg_is_complete_only_up_to_its_end_of_image_marker() {
+        let jpeg = ripple_jpeg();
+        assert!(jpeg_is_complete(&jpeg));
+        // Every cut short of the end-of-image marker is incomplete.
+        for cut in (0..jpeg.len() - 1).step_by(7).chain([jpeg.len() - 1]) {
+            assert!(
+                !jpeg_is_complete(&jpeg[..cut]),
+                "cut at {cut} of {}",
+                jpeg.len()
+            );
+        }
+        // Bytes after the marker (common in camera files) are allowed.
+        let mut tail = jpeg.clone();
+        tail.extend_from_slice(b"trailing data");
+        assert!(jpeg_is_complete(&tail));
+    }
+
+    #[test]
+    fn a_thumbnail_end_marker_does_not_complete_a_cut_jpeg() {
+        // An APP1 segment holding a whole small JPEG, then the main image cut in its scan:
+        // the thumbnail's end-of-image marker is inside the segment and must be skipped.
+        let thumb = ripple_jpeg();
+        let main = ripple_jpeg();
+        let mut v = vec![0xFF, 0xD8, 0xFF, 0xE1];
+        v.extend_from_slice(&((thumb.len() + 2) as u16).to_be_bytes());
+        v.extend_from_slice(&thumb);
+        v.extend_from_slice(&main[2..main.len() * 3 / 4]);
+        assert!(!jpeg_is_complete(&v));
+        v.extend_from_slice(&main[main.len() * 3 / 4..]);
+        assert!(jpeg_is_complete(&v));
+    }
+
+    #[test]
+    fn decoder_messages_lose_their_debug_dumps() {
+        assert_eq!(
+            readable("CRC error while decoding ChunkType { type: IDAT, critical: true, private: false } chunk."),
+            "CRC error while decoding IDAT chunk."
+        );
+        assert_eq!(readable("plain words"), "plain words");
+    }
 
     #[test]
     fn indexed_png_decodes_to_the_palette_colour_of_every_index() {

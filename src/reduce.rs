@@ -967,25 +967,28 @@ pub fn reduce_bytes(bytes: &[u8], name: &Path, opts: &ReduceOptions) -> Result<R
 
 /// Reads `input`, reduces it and writes all outputs into `out_dir` atomically.
 pub fn reduce_file(input: &Path, out_dir: &Path, opts: &ReduceOptions) -> Result<ReduceReport> {
-    reduce_file_with(input, out_dir, opts, None, false)
+    reduce_file_with(input, out_dir, opts, None, false, &[])
 }
 
 /// As [`reduce_file`], mapping onto `fixed` colours when given (the `apply` workflow).
 /// With `stamp`, the palette document records the input's size and time and the settings
-/// fingerprint, so a batch can tell later whether the outputs are up to date.
+/// fingerprint, so a batch can tell later whether the outputs are up to date. No output
+/// may replace a file in `spare`.
 pub fn reduce_file_with(
     input: &Path,
     out_dir: &Path,
     opts: &ReduceOptions,
     fixed: Option<&FixedPalette>,
     stamp: bool,
+    spare: &[&Path],
 ) -> Result<ReduceReport> {
     opts.kmeans_params().check()?;
-    reduce_file_as(input, &stem_of(input)?, out_dir, opts, fixed, stamp)
+    reduce_file_as(input, &stem_of(input)?, out_dir, opts, fixed, stamp, spare)
 }
 
 /// As [`reduce_file_with`], naming the outputs `{stem}.reduced.png` and so on (a batch
 /// names two images of one folder that share a file stem by their whole file names).
+/// No output may replace `input` or any file in `spare` (the palette document of `apply`).
 pub fn reduce_file_as(
     input: &Path,
     stem: &str,
@@ -993,13 +996,19 @@ pub fn reduce_file_as(
     opts: &ReduceOptions,
     fixed: Option<&FixedPalette>,
     stamp: bool,
+    spare: &[&Path],
 ) -> Result<ReduceReport> {
     let t0 = Instant::now();
     let mut ph = crate::trace::Phases::start("reduce file");
     opts.kmeans_params().check()?;
     let img = raster::decode(input, &opts.limits)?;
     ph.mark("decode");
-    let mut set = OutputSet::prepare(out_dir, &[input])?;
+    let mut set = OutputSet::prepare(
+        out_dir,
+        &std::iter::once(input)
+            .chain(spare.iter().copied())
+            .collect::<Vec<_>>(),
+    )?;
     for name in output_names(stem) {
         set.check_target(&name)?;
     }

@@ -86,6 +86,24 @@ fn scene() -> Scene {
     s.write("cut.jpg", &jpeg[..jpeg.len() / 2]);
     let tif = encode(image::ImageFormat::Tiff);
     s.write("cut.tif", &tif[..tif.len() / 2]);
+    // A JPEG cut inside its scan data, where the decoder itself would fill the rest with
+    // grey: a 64 × 48 ripple (ours) cut at 85 % of its bytes.
+    let ripple: Vec<u8> = (0..64 * 48 * 3)
+        .map(|i| ((i * 37 + (i / 192) * 11) % 251) as u8)
+        .collect();
+    let mut v = std::io::Cursor::new(Vec::new());
+    image::RgbImage::from_raw(64, 48, ripple)
+        .unwrap()
+        .write_to(&mut v, image::ImageFormat::Jpeg)
+        .unwrap();
+    let jpeg = v.into_inner();
+    s.write("scan-cut.jpg", &jpeg[..jpeg.len() * 85 / 100]);
+    // A name whose outputs would pass the 255-byte limit of common file systems.
+    std::fs::copy(
+        s.root.join("good.png"),
+        s.root.join(format!("{}.png", "n".repeat(240))),
+    )
+    .unwrap();
     s.write("words.png", b"these are words, not pixels\n");
     s.write("empty.png", b"");
     s.write("bomb.png", &huge_png(100_000, 100_000));
@@ -291,6 +309,71 @@ fn rows(s: &Scene) -> Vec<Row> {
         "reduce truncated TIFF",
         &["reduce", &s.p("cut.tif"), "-o", &new_out],
         &["cut.tif"],
+    );
+    add(
+        "reduce JPEG cut inside its scan",
+        &["reduce", &s.p("scan-cut.jpg"), "-o", &new_out],
+        &["scan-cut.jpg", "end-of-image"],
+    );
+    let long = s.p(&format!("{}.png", "n".repeat(240)));
+    add(
+        "reduce output names too long",
+        &["reduce", &long, "-o", &new_out],
+        &["file name is", "255"],
+    );
+    add(
+        "reduce negative k after a space",
+        &["reduce", &good, "-k", "-3", "-o", &new_out],
+        &["'-3'", "--k"],
+    );
+    add(
+        "reduce multi-band raster",
+        &[
+            "reduce",
+            common::fixture("rasters/utm_u16_4band_lzw.tif")
+                .to_str()
+                .unwrap(),
+            "-o",
+            &new_out,
+        ],
+        &["utm_u16_4band_lzw.tif", "landcover"],
+    );
+    add(
+        "histogram output over its input",
+        &["histogram", &good, "-o", &good],
+        &["good.png", "overwrite the input"],
+    );
+    add(
+        "learn output over its input",
+        &["learn", &s.p("good.hist"), "-o", &s.p("good.hist")],
+        &["good.hist", "overwrite the input"],
+    );
+    add(
+        "apply output over its palette",
+        &[
+            "apply",
+            &good,
+            "--palette",
+            &s.p("pal/good.palette.json"),
+            "-o",
+            &s.p("pal"),
+        ],
+        &["good.palette.json", "overwrite the input"],
+    );
+    add(
+        "landcover more classes than the class raster holds",
+        &["landcover", &scene, "-k", "256", "-o", &new_out],
+        &["k = 256", "255"],
+    );
+    add(
+        "batch without an output folder",
+        &["batch", &s.p("shoot")],
+        &["required", "--out"],
+    );
+    add(
+        "batch too many jobs",
+        &["batch", &s.p("shoot"), "--jobs", "100000", "-o", &new_out],
+        &["--jobs", "100000"],
     );
     add(
         "reduce decompression bomb",

@@ -453,3 +453,43 @@ fn images_sharing_a_stem_keep_their_own_outputs() {
         assert_eq!(status_of(&r, "scan.bmp"), "skipped");
     }
 }
+
+/// `batch --palette` never writes over the palette document it maps onto, even when that
+/// document sits in the output folder under an output's name.
+#[test]
+fn batch_spares_its_palette_document() {
+    let root = tempfile::tempdir().unwrap();
+    let s = shoot(root.path());
+    let out = root.path().join("out");
+    let o = run(
+        &[
+            "reduce",
+            s.join("poster.png").to_str().unwrap(),
+            "-k",
+            "4",
+            "-o",
+            out.to_str().unwrap(),
+        ],
+        &[],
+    );
+    assert!(o.status.success(), "{}", stderr(&o));
+    let pal = out.join("poster.palette.json");
+    let before = std::fs::read(&pal).unwrap();
+    let o = run(
+        &[
+            "batch",
+            s.to_str().unwrap(),
+            "--palette",
+            pal.to_str().unwrap(),
+            "--force",
+            "-o",
+            out.to_str().unwrap(),
+        ],
+        &[],
+    );
+    assert_eq!(std::fs::read(&pal).unwrap(), before);
+    assert_eq!(o.status.code(), Some(1), "{}", stderr(&o));
+    let r = report(&out);
+    assert_eq!(status_of(&r, "poster.png"), "failed");
+    assert_eq!(status_of(&r, "day2/aerial.png"), "ok");
+}

@@ -702,3 +702,32 @@ fn help_shows_examples() {
         "{text}"
     );
 }
+
+/// A document printed with `--json` that cannot be written (a full device) is an error:
+/// exit status 2 and one line naming standard output, not a silent success.
+#[test]
+fn a_failed_write_to_standard_output_is_an_error() {
+    let Ok(full) = std::fs::OpenOptions::new().write(true).open("/dev/full") else {
+        return; // not Linux: no device that is always full
+    };
+    let dir = tempfile::tempdir().unwrap();
+    let o = std::process::Command::new(env!("CARGO_BIN_EXE_chromasift"))
+        .args([
+            "reduce",
+            fixture("demo/harbour-poster.png").to_str().unwrap(),
+            "-k",
+            "4",
+            "--json",
+            "-o",
+            dir.path().to_str().unwrap(),
+        ])
+        .stdout(full)
+        .output()
+        .unwrap();
+    assert_eq!(o.status.code(), Some(2), "{}", stderr(&o));
+    assert!(
+        stderr(&o).contains("chromasift: error: standard output:"),
+        "{}",
+        stderr(&o)
+    );
+}

@@ -633,9 +633,9 @@ pub struct BatchArgs {
     #[arg(long, value_name = "FILE")]
     pub palette: Option<PathBuf>,
 
-    /// Images processed at once (default: the number of cores).
-    #[arg(long, value_name = "N")]
-    pub jobs: Option<usize>,
+    /// Images processed at once, 1 to 256 (default: the number of cores).
+    #[arg(long, value_name = "N", value_parser = clap::value_parser!(u16).range(1..=256))]
+    pub jobs: Option<u16>,
 
     /// Redo images whose outputs are already up to date.
     #[arg(long)]
