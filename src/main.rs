@@ -309,6 +309,15 @@ fn run() -> ExitCode {
             return fail(format!("{} (see --help)", usage_error_line(&e.to_string())));
         }
     };
+    if !matches!(cli.command, Command::Batch(_)) {
+        // Ctrl-C or SIGTERM: remove the temporary files being written and stop (a batch
+        // has its own handler, which finishes the images under way and writes its report).
+        let _ = ctrlc::set_handler(|| {
+            chromasift::output::remove_live_temporaries();
+            eprintln!("chromasift: interrupted; unfinished outputs removed");
+            std::process::exit(130);
+        });
+    }
     match cli.command {
         Command::Reduce(args) if args.input.as_os_str() == "-" || args.stdout.is_some() => {
             match reduce_stream(&args) {

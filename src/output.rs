@@ -13,13 +13,50 @@ pub const TEMP_PREFIX: &str = ".chromasift-tmp-";
 /// Longest output file name, in bytes (NAME_MAX of ext4, XFS, Btrfs, APFS and NTFS).
 pub const MAX_NAME_BYTES: usize = 255;
 
+/// Temporary files being written now, so that an interrupted process can remove them
+/// (see [`remove_live_temporaries`]).
+static LIVE: std::sync::Mutex<Vec<PathBuf>> = std::sync::Mutex::new(Vec::new());
+
+/// Keeps a temporary file's path in [`LIVE`] while it exists.
+#[derive(Debug)]
+struct Live(PathBuf);
+
+impl Live {
+    fn new(path: &Path) -> Live {
+        if let Ok(mut l) = LIVE.lock() {
+            l.push(path.to_path_buf());
+        }
+        Live(path.to_path_buf())
+    }
+}
+
+impl Drop for Live {
+    fn drop(&mut self) {
+        if let Ok(mut l) = LIVE.lock() {
+            if let Some(i) = l.iter().rposition(|p| *p == self.0) {
+                l.swap_remove(i);
+            }
+        }
+    }
+}
+
+/// Removes every temporary file this process is writing: for a signal handler that ends
+/// the process (Ctrl-C, SIGTERM), which skips the destructors that would remove them.
+pub fn remove_live_temporaries() {
+    if let Ok(l) = LIVE.lock() {
+        for p in l.iter() {
+            let _ = fs::remove_file(p);
+        }
+    }
+}
+
 /// A set of outputs in one folder, committed together.
 #[derive(Debug)]
 pub struct OutputSet {
     dir: PathBuf,
     created_dir: bool,
     inputs: Vec<PathBuf>,
-    pending: Vec<(NamedTempFile, PathBuf)>,
+    pending: Vec<(NamedTempFile, PathBuf, Live)>,
     committed: bool,
 }
 
@@ -108,12 +145,13 @@ impl OutputSet {
         let target = self.check_target(name)?;
         let tmp = NamedTempFile::with_prefix_in(TEMP_PREFIX, &self.dir)
             .map_err(|e| Error::io(&target, e))?;
-        Ok(PendingOutput { tmp, target })
+        let live = Live::new(tmp.path());
+        Ok(PendingOutput { tmp, target, live })
     }
 
     /// Completes a started output: ordinary permissions, data on disk, renamed on commit.
     pub fn finish(&mut self, out: PendingOutput) -> Result<PathBuf> {
-        let PendingOutput { tmp, target } = out;
+        let PendingOutput { tmp, target, live } = out;
         #[cfg(unix)]
         {
             use std::os::unix::fs::PermissionsExt;
@@ -125,7 +163,7 @@ impl OutputSet {
         tmp.as_file()
             .sync_data()
             .map_err(|e| Error::io(&target, e))?;
-        self.pending.push((tmp, target.clone()));
+        self.pending.push((tmp, target.clone(), live));
         Ok(target)
     }
 
@@ -149,7 +187,7 @@ impl OutputSet {
     /// temporary files delete themselves).
     pub fn commit(mut self) -> Result<Vec<PathBuf>> {
         let mut done = Vec::new();
-        for (tmp, target) in std::mem::take(&mut self.pending) {
+        for (tmp, target, _live) in std::mem::take(&mut self.pending) {
             if let Err(e) = tmp.persist(&target) {
                 for d in &done {
                     let _ = fs::remove_file(d);
@@ -189,6 +227,7 @@ pub fn write_file_sparing(path: &Path, bytes: &[u8], inputs: &[&Path]) -> Result
 pub struct PendingOutput {
     tmp: NamedTempFile,
     target: PathBuf,
+    live: Live,
 }
 
 impl PendingOutput {

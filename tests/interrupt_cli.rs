@@ -287,3 +287,67 @@ fn sigkill_at_seeded_moments_leaves_no_partial_output() {
     );
     assert_eq!(tree(&input), before, "the input folder is untouched");
 }
+
+/// Names of the temporary files in `dir` (none when it does not exist), without reading them.
+fn temp_names(dir: &Path) -> Vec<String> {
+    std::fs::read_dir(dir)
+        .map(|rd| {
+            rd.flatten()
+                .map(|e| e.file_name().to_string_lossy().into_owned())
+                .filter(|n| n.starts_with(TEMP_PREFIX))
+                .collect()
+        })
+        .unwrap_or_default()
+}
+
+/// `reduce` stopped by SIGTERM or Ctrl-C while it writes its outputs removes its temporary
+/// files and exits 130; what it leaves is only complete outputs.
+#[test]
+fn reduce_stopped_while_writing_leaves_no_temporary_files() {
+    let root = tempfile::tempdir().unwrap();
+    let input = folder(root.path(), 1);
+    // One larger invented photo: its outputs take long enough to write to be caught.
+    let (w, h) = (1400u32, 1100u32);
+    let mut rng = Noise(77);
+    let rgb: Vec<u8> = (0..w * h * 3)
+        .map(|i| ((i / 3 % w) as u64 * 255 / w as u64 + rng.next() % 40) as u8)
+        .collect();
+    let photo = input.join("large.png");
+    common::write_rgb(&photo, w, h, &rgb);
+    for (trial, signal) in ["-TERM", "-INT", "-TERM"].iter().enumerate() {
+        let out = root.path().join(format!("single{trial}"));
+        let child = spawn(&[
+            "reduce",
+            photo.to_str().unwrap(),
+            "-k",
+            "8",
+            "--uncertainty-raw",
+            "-o",
+            out.to_str().unwrap(),
+        ]);
+        let t = Instant::now();
+        // Wait for the write phase: a temporary file in the output folder.
+        while temp_names(&out).is_empty() && t.elapsed() < Duration::from_secs(60) {
+            std::thread::sleep(Duration::from_micros(500));
+        }
+        let _ = Command::new("kill")
+            .args([*signal, &child.id().to_string()])
+            .status();
+        let o = child.wait_with_output().unwrap();
+        let err = String::from_utf8_lossy(&o.stderr);
+        assert!(
+            matches!(o.status.code(), Some(130) | Some(0)),
+            "trial {trial}: {:?} {err}",
+            o.status.code()
+        );
+        assert!(!err.contains("panicked"), "{err}");
+        assert!(
+            temp_names(&out).is_empty(),
+            "trial {trial} ({signal}): temporary files left: {:?}",
+            temp_names(&out)
+        );
+        if out.is_dir() {
+            assert_no_partial_files(&out);
+        }
+    }
+}
