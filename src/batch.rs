@@ -753,8 +753,16 @@ pub fn input_files(inputs: &[PathBuf]) -> Result<Vec<PathBuf>> {
 pub fn gather_histograms(inputs: &[PathBuf], opts: &ReduceOptions) -> Result<Histogram> {
     let files = input_files(inputs)?;
     if files.is_empty() {
+        let given: Vec<String> = inputs.iter().map(|p| p.display().to_string()).collect();
         return Err(Error::Data(
-            "no images or histogram files were given".into(),
+            format!(
+                "{}: no images or histogram files found",
+                if given.is_empty() {
+                    "(no inputs)".to_string()
+                } else {
+                    given.join(", ")
+                }
+            ),
         ));
     }
     let _keep = (files.len() > 1).then(crate::histogram::KeepTables::new);
