@@ -754,16 +754,14 @@ pub fn gather_histograms(inputs: &[PathBuf], opts: &ReduceOptions) -> Result<His
     let files = input_files(inputs)?;
     if files.is_empty() {
         let given: Vec<String> = inputs.iter().map(|p| p.display().to_string()).collect();
-        return Err(Error::Data(
-            format!(
-                "{}: no images or histogram files found",
-                if given.is_empty() {
-                    "(no inputs)".to_string()
-                } else {
-                    given.join(", ")
-                }
-            ),
-        ));
+        return Err(Error::Data(format!(
+            "{}: no images or histogram files found",
+            if given.is_empty() {
+                "(no inputs)".to_string()
+            } else {
+                given.join(", ")
+            }
+        )));
     }
     let _keep = (files.len() > 1).then(crate::histogram::KeepTables::new);
     // Merged as they arrive (see `squash`), so memory stays bounded however many files

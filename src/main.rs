@@ -445,6 +445,14 @@ fn run() -> ExitCode {
             }
         }
         Command::Learn(args) => {
+            if args.settings.dither != chromasift::render::Dither::None
+                || args.settings.uncertainty_raw
+            {
+                eprintln!(
+                    "chromasift: note: learn writes a palette only; --dither and \
+                     --uncertainty-raw apply to images (use them with apply)"
+                );
+            }
             let opts = args.settings.options();
             let result = (|| -> Result<reduce::PaletteDocument, chromasift::Error> {
                 opts.kmeans_params().check()?;
@@ -484,6 +492,24 @@ fn run() -> ExitCode {
             }
         }
         Command::Apply(args) => {
+            let f = &args.settings;
+            let ignored: Vec<&str> = [
+                (f.k != 8, "-k"),
+                (f.restarts != 1, "--restarts"),
+                (f.target_delta_e.is_some(), "--target-delta-e"),
+                (f.anneal, "--anneal"),
+                (f.max_iter != 300, "--max-iter"),
+            ]
+            .into_iter()
+            .filter_map(|(set, name)| set.then_some(name))
+            .collect();
+            if !ignored.is_empty() {
+                eprintln!(
+                    "chromasift: note: apply maps onto the palette's colours as they are; {} \
+                     only change how a palette is fitted, so they have no effect here",
+                    ignored.join(", ")
+                );
+            }
             let opts = args.settings.options();
             let palette = match read_palette(&args.palette) {
                 Ok(p) => p,

@@ -366,6 +366,16 @@ fn rows(s: &Scene) -> Vec<Row> {
         &["k = 256", "255"],
     );
     add(
+        "reduce --k-max without a target",
+        &["reduce", &good, "--k-max", "5", "-o", &new_out],
+        &["--target-delta-e"],
+    );
+    add(
+        "reduce annealing schedule without --anneal",
+        &["reduce", &good, "--anneal-factor", "2", "-o", &new_out],
+        &["--anneal"],
+    );
+    add(
         "batch without an output folder",
         &["batch", &s.p("shoot")],
         &["required", "--out"],

@@ -493,3 +493,49 @@ fn batch_spares_its_palette_document() {
     assert_eq!(status_of(&r, "poster.png"), "failed");
     assert_eq!(status_of(&r, "day2/aerial.png"), "ok");
 }
+
+/// `apply` says when fitting flags cannot change its result (the palette is fixed).
+#[test]
+fn apply_notes_fitting_flags_it_cannot_use() {
+    let root = tempfile::tempdir().unwrap();
+    let s = shoot(root.path());
+    let pal_dir = root.path().join("pal");
+    let poster = s.join("poster.png");
+    let o = run(
+        &[
+            "reduce",
+            poster.to_str().unwrap(),
+            "-k",
+            "4",
+            "-o",
+            pal_dir.to_str().unwrap(),
+        ],
+        &[],
+    );
+    assert!(o.status.success(), "{}", stderr(&o));
+    let pal = pal_dir.join("poster.palette.json");
+    let out = root.path().join("applied");
+    let base = [
+        "apply",
+        poster.to_str().unwrap(),
+        "--palette",
+        pal.to_str().unwrap(),
+    ];
+    let plain = run(&[&base[..], &["-o", out.to_str().unwrap()]].concat(), &[]);
+    assert!(plain.status.success(), "{}", stderr(&plain));
+    assert!(!stderr(&plain).contains("no effect"), "{}", stderr(&plain));
+    let with_k = run(
+        &[
+            &base[..],
+            &["-k", "3", "--restarts", "4", "-o", out.to_str().unwrap()],
+        ]
+        .concat(),
+        &[],
+    );
+    assert!(with_k.status.success(), "{}", stderr(&with_k));
+    let err = stderr(&with_k);
+    assert!(
+        err.contains("-k, --restarts") && err.contains("no effect"),
+        "{err}"
+    );
+}

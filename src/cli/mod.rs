@@ -547,7 +547,12 @@ pub struct ReduceFlags {
     pub target_p95: bool,
 
     /// With --target-delta-e: the largest K tried.
-    #[arg(long = "k-max", default_value_t = 16, value_name = "K")]
+    #[arg(
+        long = "k-max",
+        default_value_t = 16,
+        value_name = "K",
+        requires = "target_delta_e"
+    )]
     pub k_max: usize,
 
     /// Start from deterministic annealing (Rose, Gurewitz & Fox 1990) instead of
@@ -558,15 +563,15 @@ pub struct ReduceFlags {
 
     /// First β of the annealing, as a multiple of the critical β_c = 1/λ_max (λ_max: the
     /// data's largest variance along a principal axis, in ΔE*ab² for CIELAB).
-    #[arg(long = "anneal-start", default_value_t = Anneal::default().start, value_name = "MULTIPLE")]
+    #[arg(long = "anneal-start", default_value_t = Anneal::default().start, value_name = "MULTIPLE", requires = "anneal")]
     pub anneal_start: f64,
 
     /// Last β of the annealing, as a multiple of β_c.
-    #[arg(long = "anneal-end", default_value_t = Anneal::default().end, value_name = "MULTIPLE")]
+    #[arg(long = "anneal-end", default_value_t = Anneal::default().end, value_name = "MULTIPLE", requires = "anneal")]
     pub anneal_end: f64,
 
     /// Ratio between successive β of the annealing (> 1).
-    #[arg(long = "anneal-factor", default_value_t = Anneal::default().factor, value_name = "RATIO")]
+    #[arg(long = "anneal-factor", default_value_t = Anneal::default().factor, value_name = "RATIO", requires = "anneal")]
     pub anneal_factor: f64,
 }
 
