@@ -416,6 +416,21 @@ fn check_options(opts: &LandcoverOptions, info: &RasterInfo, path: &Path) -> Res
     if bands.is_empty() && opts.indices.is_empty() {
         return Err(ParamsError::Other("no bands selected".into()).into());
     }
+    if let Some(b) = bands
+        .iter()
+        .enumerate()
+        .find_map(|(i, b)| bands[..i].contains(b).then_some(b))
+    {
+        return Err(ParamsError::Other(format!("band {b} is listed twice in --bands")).into());
+    }
+    if let Some(ix) = opts.indices.iter().find(|ix| ix.a == ix.b) {
+        return Err(ParamsError::Other(format!(
+            "index {} uses band {} twice; it would be 0 everywhere",
+            ix.name(),
+            ix.a
+        ))
+        .into());
+    }
     if opts.k > MAX_CLASSES {
         return Err(ParamsError::Other(format!(
             "k = {} classes: the 8-bit class raster holds at most {MAX_CLASSES} (0 is nodata)",
@@ -569,7 +584,8 @@ pub fn scene_sample(input: &Path, opts: &LandcoverOptions, k_needed: usize) -> R
         return Err(Error::InputData {
             path: input.into(),
             message: format!(
-                "K = {k_needed} is more than the {sample_n} valid pixels available to fit"
+                "K = {k_needed} is more than the {sample_n} valid pixels in the fitting \
+                 sample ({valid_pixels} valid in the scene; see --sample)"
             ),
         });
     }

@@ -361,6 +361,21 @@ fn rows(s: &Scene) -> Vec<Row> {
         &["good.palette.json", "overwrite the input"],
     );
     add(
+        "landcover band listed twice",
+        &["landcover", &scene, "--bands", "1,1", "-o", &new_out],
+        &["band 1", "twice"],
+    );
+    add(
+        "landcover index of one band with itself",
+        &["landcover", &scene, "--index", "ndvi:2,2", "-o", &new_out],
+        &["ndvi:2,2", "twice"],
+    );
+    add(
+        "landcover empty sample",
+        &["landcover", &scene, "--sample", "0", "-o", &new_out],
+        &["--sample", "at least 1"],
+    );
+    add(
         "landcover more classes than the class raster holds",
         &["landcover", &scene, "-k", "256", "-o", &new_out],
         &["k = 256", "255"],

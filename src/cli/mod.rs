@@ -166,7 +166,7 @@ pub struct SweepArgs {
     pub nodata: Option<f64>,
 
     /// Pixels in the seeded fitting sample of a multi-band raster.
-    #[arg(long, default_value_t = 2_000_000, value_name = "N")]
+    #[arg(long, default_value_t = 2_000_000, value_name = "N", value_parser = positive_count)]
     pub sample: usize,
 
     /// Pixels drawn (seeded) for the silhouette, which costs O(N²).
@@ -298,7 +298,7 @@ pub struct LandcoverArgs {
     pub shift_tolerance: f64,
 
     /// Pixels in the seeded, spatially spread fitting sample (all pixels when the scene is smaller).
-    #[arg(long, default_value_t = 2_000_000, value_name = "N")]
+    #[arg(long, default_value_t = 2_000_000, value_name = "N", value_parser = positive_count)]
     pub sample: usize,
 
     /// Output folder (created if missing).
@@ -739,6 +739,15 @@ fn quality_target(
         },
         k_max,
     })
+}
+
+/// A count of at least 1 (`--sample`).
+fn positive_count(s: &str) -> Result<usize, String> {
+    match s.parse::<usize>() {
+        Ok(0) => Err("must be at least 1".into()),
+        Ok(n) => Ok(n),
+        Err(e) => Err(e.to_string()),
+    }
 }
 
 #[cfg(test)]
