@@ -357,6 +357,8 @@ pub fn run_batch(
     let (images, others, unreadable) = walk_images(input_dir)?;
     std::fs::create_dir_all(out)
         .map_err(|e| Error::output(out, format!("cannot create output folder: {e}")))?;
+    // A folder that cannot be written fails now, not after every image was reduced.
+    drop(OutputSet::prepare(out, &[])?);
     remove_stale_temporaries(out);
     // Many images: keep each worker's colour-count table from image to image.
     let _keep = crate::histogram::KeepTables::new();
