@@ -126,6 +126,13 @@ pub fn parse_library(text: &str, path: &Path) -> Result<Vec<Ink>> {
     let text = text.strip_prefix('\u{feff}').unwrap_or(text);
     let inks = if text.trim_start().starts_with('[') {
         parse_json(text, path)?
+    } else if text.trim_start().starts_with('{') {
+        return Err(table_error(
+            path,
+            None,
+            "a JSON ink library is an array of inks, [{\"name\": …, \"L\": …, \"a\": …, \"b\": …}, …] \
+             or with \"hex\", not an object",
+        ));
     } else {
         parse_csv(text, path)?
     };

@@ -34,11 +34,21 @@ fn read_palette(path: &std::path::Path) -> Result<reduce::FixedPalette, chromasi
         path: path.into(),
         source,
     })?;
+    let bad = |message: String| chromasift::Error::Decode {
+        path: path.into(),
+        message,
+    };
+    let value: serde_json::Value =
+        serde_json::from_slice(&bytes).map_err(|e| bad(format!("not a palette document: {e}")))?;
+    if !value.is_object() {
+        return Err(bad(
+            "not a palette document: expected a JSON object (a palette.json written by \
+             reduce, learn or batch --shared)"
+                .into(),
+        ));
+    }
     let doc: reduce::PaletteDocument =
-        serde_json::from_slice(&bytes).map_err(|e| chromasift::Error::Decode {
-            path: path.into(),
-            message: format!("not a palette document: {e}"),
-        })?;
+        serde_json::from_value(value).map_err(|e| bad(format!("not a palette document: {e}")))?;
     reduce::FixedPalette::from_document(&doc).map_err(|message| chromasift::Error::Decode {
         path: path.into(),
         message,

@@ -145,6 +145,11 @@ fn scene() -> Scene {
     );
     s.write("inks-fields.json", b"[{\"name\": \"Chalk\"}]");
     s.write("inks-item.json", b"[42]");
+    s.write(
+        "inks-wrapped.json",
+        b"{\"inks\": [{\"name\": \"Chalk\", \"hex\": \"#ffffff\"}]}",
+    );
+    s.write("array.palette.json", b"[]");
 
     // Palette documents: a good one from `reduce`, then broken copies.
     let o = run(
@@ -529,6 +534,11 @@ fn rows(s: &Scene) -> Vec<Row> {
             "inks-item.json",
             &["entry 1", "not an object"],
         ),
+        (
+            "separate JSON library that is an object",
+            "inks-wrapped.json",
+            &["array of inks", "not an object"],
+        ),
     ] {
         let mut expect = vec![lib];
         expect.extend_from_slice(problem);
@@ -752,6 +762,18 @@ fn rows(s: &Scene) -> Vec<Row> {
             &new_out,
         ],
         &["missing.png", "cannot open"],
+    );
+    add(
+        "apply palette that is not a JSON object",
+        &[
+            "apply",
+            &good,
+            "--palette",
+            &s.p("array.palette.json"),
+            "-o",
+            &new_out,
+        ],
+        &["array.palette.json", "expected a JSON object"],
     );
     add(
         "apply output is a file",
