@@ -134,9 +134,23 @@ pub fn walk_images(dir: &Path) -> Result<(Vec<PathBuf>, Vec<PathBuf>, Unreadable
             if name.starts_with('.') {
                 continue;
             }
-            match e.file_type() {
-                Ok(t) if t.is_dir() => stack.push(p),
-                Ok(t) if t.is_file() => {
+            // A symbolic link to a file counts as that file; links to folders are not
+            // followed (no loops), and they and broken links are listed with the others.
+            let kind = match e.file_type() {
+                Ok(t) if t.is_symlink() => match std::fs::metadata(&p) {
+                    Ok(m) if m.is_file() => Some(false),
+                    _ => {
+                        others.push(p);
+                        continue;
+                    }
+                },
+                Ok(t) if t.is_dir() => Some(true),
+                Ok(t) if t.is_file() => Some(false),
+                _ => None,
+            };
+            match kind {
+                Some(true) => stack.push(p),
+                Some(false) => {
                     let ext = p
                         .extension()
                         .and_then(|x| x.to_str())
@@ -148,7 +162,7 @@ pub fn walk_images(dir: &Path) -> Result<(Vec<PathBuf>, Vec<PathBuf>, Unreadable
                         others.push(p);
                     }
                 }
-                _ => {}
+                None => {}
             }
         }
     }

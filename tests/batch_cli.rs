@@ -539,3 +539,45 @@ fn apply_notes_fitting_flags_it_cannot_use() {
         "{err}"
     );
 }
+
+/// A link to an image is reduced like the image; links to folders are not followed, and
+/// they and broken links are listed with the skipped files, not dropped silently.
+#[test]
+fn links_to_images_are_reduced_and_other_links_listed() {
+    let root = tempfile::tempdir().unwrap();
+    let s = root.path().join("links");
+    std::fs::create_dir_all(&s).unwrap();
+    let elsewhere = root.path().join("elsewhere");
+    std::fs::create_dir_all(&elsewhere).unwrap();
+    std::fs::copy(
+        fixture("demo/harbour-poster.png"),
+        elsewhere.join("poster.png"),
+    )
+    .unwrap();
+    std::os::unix::fs::symlink(elsewhere.join("poster.png"), s.join("linked.png")).unwrap();
+    std::os::unix::fs::symlink(&elsewhere, s.join("folder-link")).unwrap();
+    std::os::unix::fs::symlink(root.path().join("gone.png"), s.join("broken.png")).unwrap();
+    let out = root.path().join("out");
+    let o = run(
+        &[
+            "batch",
+            s.to_str().unwrap(),
+            "-k",
+            "4",
+            "-o",
+            out.to_str().unwrap(),
+        ],
+        &[],
+    );
+    assert!(o.status.success(), "{}", stderr(&o));
+    assert!(out.join("linked.palette.json").is_file());
+    let r = report(&out);
+    assert_eq!(status_of(&r, "linked.png"), "ok");
+    let skipped: Vec<&str> = r["skipped_not_images"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|v| v.as_str().unwrap())
+        .collect();
+    assert_eq!(skipped, vec!["broken.png", "folder-link"]);
+}
