@@ -814,6 +814,10 @@ fn open_tiff(path: &Path, limits: &Limits) -> Result<GeoRaster> {
         (Tag::Compression, "Compression (259)"),
         (Tag::SampleFormat, "SampleFormat (339)"),
         (Tag::PlanarConfiguration, "PlanarConfiguration (284)"),
+        (Tag::StripOffsets, "StripOffsets (273)"),
+        (Tag::StripByteCounts, "StripByteCounts (279)"),
+        (Tag::TileOffsets, "TileOffsets (324)"),
+        (Tag::TileByteCounts, "TileByteCounts (325)"),
     ] {
         check_tag_fits(&mut decoder, tag, what, path)?;
     }
@@ -888,6 +892,7 @@ fn open_tiff(path: &Path, limits: &Limits) -> Result<GeoRaster> {
     limits
         .check_dimensions(width, height, 1, 1)
         .map_err(|m| over_limit(path, m))?;
+    check_chunks_fit(&mut decoder, path)?;
 
     let planar = decoder
         .find_tag_unsigned::<u16>(Tag::PlanarConfiguration)
@@ -1076,6 +1081,45 @@ fn type_bytes(t: Type) -> u64 {
         | Type::IFD8 => 8,
         _ => 1,
     }
+}
+
+/// Refuses a file whose strips or tiles, as its offsets and byte counts declare them, run
+/// past its end: a truncated file is then refused before a block buffer is allocated for
+/// data that is not there.
+fn check_chunks_fit<R: Read + Seek>(decoder: &mut Decoder<R>, path: &Path) -> Result<()> {
+    let file_len = std::fs::metadata(path)
+        .map_err(|source| Error::Open {
+            path: path.into(),
+            source,
+        })?
+        .len();
+    for (offsets, counts) in [
+        (Tag::StripOffsets, Tag::StripByteCounts),
+        (Tag::TileOffsets, Tag::TileByteCounts),
+    ] {
+        let (Ok(o), Ok(c)) = (
+            decoder.get_tag_u64_vec(offsets),
+            decoder.get_tag_u64_vec(counts),
+        ) else {
+            continue;
+        };
+        if let Some((i, (off, n))) = o
+            .iter()
+            .zip(&c)
+            .enumerate()
+            .find(|(_, (&off, &n))| off.saturating_add(n) > file_len)
+        {
+            return Err(decode(
+                path,
+                format!(
+                    "TIFF data ends early (truncated file?): strip/tile {i} spans bytes {off} to \
+                     {} of a {file_len}-byte file",
+                    off.saturating_add(*n)
+                ),
+            ));
+        }
+    }
+    Ok(())
 }
 
 /// Refuses a tag of the first image whose declared values are longer than the whole file.

@@ -108,6 +108,8 @@ fn scene() -> Scene {
     s.write("empty.png", b"");
     s.write("bomb.png", &huge_png(100_000, 100_000));
     s.write("bomb.tif", &huge_tiff(100_000, 100_000));
+    // Within the pixel limit, but its one strip runs far past the end of the file.
+    s.write("hollow.tif", &huge_tiff(8_000, 8_000));
     std::fs::create_dir(s.root.join("out")).unwrap();
     std::fs::write(s.root.join("taken"), b"keep me").unwrap();
     // The output would land on the input: a link named like an output, to the input.
@@ -364,6 +366,11 @@ fn rows(s: &Scene) -> Vec<Row> {
             &s.p("pal"),
         ],
         &["good.palette.json", "overwrite the input"],
+    );
+    add(
+        "landcover strip past the end of the file",
+        &["landcover", &s.p("hollow.tif"), "-o", &new_out],
+        &["hollow.tif", "ends early", "spans bytes"],
     );
     add(
         "landcover band listed twice",
