@@ -52,25 +52,31 @@ impl Default for Anneal {
 impl Anneal {
     /// Checks the schedule.
     pub fn check(&self) -> Result<(), ParamsError> {
-        let ok = self.start.is_finite()
-            && self.start > 0.0
-            && self.end.is_finite()
-            && self.end > self.start
-            && self.factor.is_finite()
-            && self.factor > 1.0
-            && self.stage_iter > 0
-            && self.finest_cell.is_finite()
-            && self.finest_cell > 0.0
-            && (self.end / self.start).ln() / self.factor.ln() <= 10_000.0;
-        if ok {
-            Ok(())
+        let positive = |v: f64| v.is_finite() && v > 0.0;
+        let problem = if !positive(self.start) {
+            Some(format!("start {} must be a positive number", self.start))
+        } else if !(positive(self.end) && self.end > self.start) {
+            Some(format!(
+                "end {} must be a number above start {}",
+                self.end, self.start
+            ))
+        } else if !(self.factor.is_finite() && self.factor > 1.0) {
+            Some(format!("factor {} must be above 1", self.factor))
+        } else if (self.end / self.start).ln() / self.factor.ln() > 10_000.0 {
+            Some(format!(
+                "from start {} to end {} by factor {} is more than 10000 stages",
+                self.start, self.end, self.factor
+            ))
+        } else if self.stage_iter == 0 {
+            Some("at least one iteration per stage is needed".to_string())
+        } else if !positive(self.finest_cell) {
+            Some(format!("finest cell {} must be positive", self.finest_cell))
         } else {
-            Err(ParamsError::BadAnneal(format!(
-                "start {} and end {} must be positive with end > start, factor {} must be > 1, \
-                 at most 10000 stages, at least one iteration each, and a positive finest \
-                 cell ({})",
-                self.start, self.end, self.factor, self.finest_cell
-            )))
+            None
+        };
+        match problem {
+            None => Ok(()),
+            Some(p) => Err(ParamsError::BadAnneal(p)),
         }
     }
 }
