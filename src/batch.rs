@@ -235,8 +235,8 @@ pub fn remove_stale_temporaries(out: &Path) {
 }
 
 /// The name each image's outputs start with: its file stem (`x` for `x.png`), or its
-/// whole file name (`x.png`, `x.tif`) where images in one folder share a stem, so that no
-/// image's outputs overwrite another's. Applied again until no two names in a folder
+/// whole file name (`x.png`, `x.tif`) where images in one folder share a stem (ignoring
+/// case), so that no image's outputs overwrite another's. Applied again until no two names in a folder
 /// agree (a whole name can equal another file's stem: `x.png` and `x.png.jpg`). `None`
 /// for a file name no output name can be made from.
 pub fn output_stems(images: &[PathBuf]) -> Vec<Option<String>> {
@@ -244,11 +244,13 @@ pub fn output_stems(images: &[PathBuf]) -> Vec<Option<String>> {
     let mut stems: Vec<Option<String>> = images.iter().map(|p| reduce::stem_of(p).ok()).collect();
     let mut use_whole = vec![false; images.len()];
     loop {
-        let mut seen: std::collections::HashMap<(Option<&Path>, &str), usize> =
+        // Compared without case: on case-insensitive file systems `X.png` and `x.jpg`
+        // would write the same files.
+        let mut seen: std::collections::HashMap<(Option<&Path>, String), usize> =
             std::collections::HashMap::new();
         for (p, s) in images.iter().zip(&stems) {
             if let Some(s) = s {
-                *seen.entry((p.parent(), s.as_str())).or_default() += 1;
+                *seen.entry((p.parent(), s.to_lowercase())).or_default() += 1;
             }
         }
         let clash: Vec<usize> = (0..images.len())
@@ -256,7 +258,7 @@ pub fn output_stems(images: &[PathBuf]) -> Vec<Option<String>> {
                 !use_whole[i]
                     && stems[i]
                         .as_deref()
-                        .is_some_and(|s| seen[&(images[i].parent(), s)] > 1)
+                        .is_some_and(|s| seen[&(images[i].parent(), s.to_lowercase())] > 1)
             })
             .collect();
         if clash.is_empty() {
@@ -354,8 +356,32 @@ fn merge_as_they_arrive<T: Sync>(
         )
 }
 
+/// Most worker threads of a batch (`--jobs`).
+pub const MAX_JOBS: usize = 256;
+
 /// Progress callback: (done, total).
 pub type Progress<'a> = &'a (dyn Fn(usize, usize) + Sync);
+
+/// Learns the shared palette from the merged histograms and writes `shared.palette.json`.
+fn shared_palette(
+    parts: &[Histogram],
+    input_dir: &Path,
+    out: &Path,
+    opts: &ReduceOptions,
+) -> Result<FixedPalette> {
+    let merged = Histogram::merge(parts).ok_or_else(|| {
+        Error::Data(format!(
+            "{}: no image could be read to learn a shared palette",
+            input_dir.display()
+        ))
+    })?;
+    let doc = reduce::learn_palette(&merged, opts)?;
+    let mut set = OutputSet::prepare(out, &[])?;
+    let json = serde_json::to_string_pretty(&doc).expect("document serialises");
+    set.write_bytes(SHARED_PALETTE, format!("{json}\n").as_bytes())?;
+    set.commit()?;
+    FixedPalette::from_document(&doc).map_err(Error::Data)
+}
 
 /// Runs a batch over `input_dir` into `out` (see the `batch` command).
 pub fn run_batch(
@@ -377,8 +403,7 @@ pub fn run_batch(
     // Many images: keep each worker's colour-count table from image to image.
     let _keep = crate::histogram::KeepTables::new();
     let pool = rayon::ThreadPoolBuilder::new()
-        // Never more workers than images.
-        .num_threads(opts.jobs.clamp(1, images.len().max(1)))
+        .num_threads(opts.jobs.clamp(1, MAX_JOBS))
         .build()
         .map_err(|e| Error::Data(format!("cannot start worker threads: {e}")))?;
     let rel = |p: &Path| {
@@ -405,28 +430,27 @@ pub fn run_batch(
                 }
             })
         });
-        let failures = failures
-            .into_iter()
-            .map(|(i, e)| (i, one_line(&e.to_string())));
-        for (i, e) in failures {
-            early_failures[i] = Some(e);
+        if stop.load(Ordering::Relaxed) {
+            // Interrupted while reading: no palette from part of the images; every image
+            // is reported as interrupted below.
+            None
+        } else {
+            for (i, e) in failures {
+                early_failures[i] = Some(one_line(&e.to_string()));
+            }
+            Some(shared_palette(&pending, input_dir, out, &opts.reduce)?)
         }
-        let ok = pending;
-        let merged = Histogram::merge(&ok).ok_or_else(|| {
-            Error::Data(format!(
-                "{}: no image could be read to learn a shared palette",
-                input_dir.display()
-            ))
-        })?;
-        let doc = reduce::learn_palette(&merged, &opts.reduce)?;
-        let mut set = OutputSet::prepare(out, &[])?;
-        let json = serde_json::to_string_pretty(&doc).expect("document serialises");
-        set.write_bytes(SHARED_PALETTE, format!("{json}\n").as_bytes())?;
-        set.commit()?;
-        Some(FixedPalette::from_document(&doc).map_err(Error::Data)?)
     } else {
         None
     };
+    // Every file a batch reads or skips: no output may replace one (the output folder may
+    // hold the input folder: `batch photos -o .`).
+    let inputs: std::collections::HashSet<PathBuf> = images
+        .iter()
+        .chain(&others)
+        .chain(opts.palette_file.as_ref())
+        .filter_map(|p| std::fs::canonicalize(p).ok())
+        .collect();
 
     let total = images.len();
     let stems = output_stems(&images);
@@ -474,7 +498,20 @@ pub fn run_batch(
                             doc.as_ref().map(|d| d.mean_delta_e2000),
                         )
                     } else {
+                        let clash = stem.and_then(|s| {
+                            reduce::output_names(s).into_iter().find_map(|n| {
+                                let target = out_dir.join(n);
+                                std::fs::canonicalize(&target)
+                                    .ok()
+                                    .filter(|c| inputs.contains(c))
+                                    .map(|_| target)
+                            })
+                        });
                         let reduced = match stem {
+                            _ if clash.is_some() => Err(Error::output(
+                                clash.as_deref().unwrap_or(p),
+                                "this output would overwrite an input file of the batch",
+                            )),
                             Some(s) => reduce::reduce_file_as(
                                 p,
                                 s,
@@ -508,6 +545,8 @@ pub fn run_batch(
             .collect()
     });
     let mut rows = rows;
+    let mut sheet_stems = stems.clone();
+    sheet_stems.resize(rows.len() + unreadable.len(), None);
     rows.extend(unreadable.iter().map(|(d, e)| FileReport {
         input: rel(d),
         status: Status::Failed,
@@ -540,7 +579,7 @@ pub fn run_batch(
     if opts.contact_sheet {
         set.write_bytes(
             "contact-sheet.html",
-            contact_sheet(&report, input_dir, out).as_bytes(),
+            contact_sheet(&report, &sheet_stems, input_dir, out).as_bytes(),
         )?;
     }
     set.commit()?;
@@ -592,7 +631,14 @@ fn html_escape(s: &str) -> String {
 }
 
 /// `contact-sheet.html`: before and after side by side, each image's palette strip and ΔE2000.
-pub fn contact_sheet(r: &BatchReport, input_dir: &Path, out: &Path) -> String {
+/// The contact sheet of a batch report; `stems` are the rows' output stems (`None` for a
+/// row without outputs, such as an unreadable folder).
+pub fn contact_sheet(
+    r: &BatchReport,
+    stems: &[Option<String>],
+    input_dir: &Path,
+    out: &Path,
+) -> String {
     let src_root = resolved(input_dir);
     let mut s = String::from(
         "<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\"><title>chromasift batch</title>\n<style>\
@@ -604,13 +650,7 @@ pub fn contact_sheet(r: &BatchReport, input_dir: &Path, out: &Path) -> String {
         "<h1>{} images</h1><p>{} reduced, {} up to date, {} failed</p>\n",
         r.totals.files, r.totals.ok, r.totals.skipped, r.totals.failed
     ));
-    let stems = output_stems(
-        &r.files
-            .iter()
-            .map(|f| PathBuf::from(&f.input))
-            .collect::<Vec<_>>(),
-    );
-    for (f, stem) in r.files.iter().zip(stems) {
+    for (f, stem) in r.files.iter().zip(stems.iter().cloned()) {
         let rel = Path::new(&f.input);
         let sub = rel.parent().unwrap_or(Path::new(""));
         let stem = stem.unwrap_or_default();
@@ -883,6 +923,8 @@ mod tests {
             "a/x.png.jpg.gif",
             "b/x.png",
             "a/z",
+            "c/Q.png",
+            "c/q.jpg",
         ]
         .iter()
         .map(PathBuf::from)
@@ -896,6 +938,8 @@ mod tests {
             "x.png.jpg.gif",
             "x",
             "z",
+            "Q.png",
+            "q.jpg",
         ];
         assert_eq!(
             stems,

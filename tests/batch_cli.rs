@@ -581,3 +581,34 @@ fn links_to_images_are_reduced_and_other_links_listed() {
         .collect();
     assert_eq!(skipped, vec!["broken.png", "folder-link"]);
 }
+
+/// The output folder may hold the input folder (`batch photos -o .`); an image whose
+/// outputs would land on another input image of the batch fails, and that input is kept.
+#[test]
+fn outputs_never_replace_an_input_image_of_the_batch() {
+    let root = tempfile::tempdir().unwrap();
+    let top = root.path().join("top");
+    let input = top.join("in");
+    std::fs::create_dir_all(input.join("in")).unwrap();
+    let red = common::gradient(32, 8, [200, 20, 20], [250, 120, 90]);
+    common::write_rgb(&input.join("in/x.png"), 32, 8, &red);
+    // An input image named like the outputs that `in/x.png` would write to `top/in/`.
+    common::write_rgb(&input.join("x.reduced.png"), 32, 8, &red);
+    let kept = std::fs::read(input.join("x.reduced.png")).unwrap();
+    let o = run(
+        &[
+            "batch",
+            input.to_str().unwrap(),
+            "-k",
+            "3",
+            "-o",
+            top.to_str().unwrap(),
+        ],
+        &[],
+    );
+    assert_eq!(o.status.code(), Some(1), "{}", stderr(&o));
+    assert_eq!(std::fs::read(input.join("x.reduced.png")).unwrap(), kept);
+    let r = report(&top);
+    assert_eq!(status_of(&r, "in/x.png"), "failed");
+    assert_eq!(status_of(&r, "x.reduced.png"), "ok");
+}
