@@ -323,9 +323,8 @@ fn run() -> ExitCode {
         // Ctrl-C or SIGTERM: remove the temporary files being written and stop (a batch
         // has its own handler, which finishes the images under way and writes its report).
         let _ = ctrlc::set_handler(|| {
-            chromasift::output::remove_live_temporaries();
             eprintln!("chromasift: interrupted; unfinished outputs removed");
-            std::process::exit(130);
+            chromasift::output::abandon_and_exit(130);
         });
     }
     match cli.command {

@@ -13,48 +13,66 @@ pub const TEMP_PREFIX: &str = ".chromasift-tmp-";
 /// Longest output file name, in bytes (NAME_MAX of ext4, XFS, Btrfs, APFS and NTFS).
 pub const MAX_NAME_BYTES: usize = 255;
 
-/// Temporary files being written now, so that an interrupted process can remove them
-/// (see [`remove_live_temporaries`]).
-static LIVE: std::sync::Mutex<Vec<PathBuf>> = std::sync::Mutex::new(Vec::new());
+use std::sync::{Mutex, MutexGuard};
 
-/// Keeps a temporary file's path in [`LIVE`] while it exists.
+/// What an interrupted process must clean up: the temporary files being written and the
+/// folders created for outputs not yet committed (see [`abandon_and_exit`]).
+static LIVE: Mutex<Vec<(PathBuf, bool)>> = Mutex::new(Vec::new());
+
+/// Held while a set is renamed into place, so an interruption waits for the set to be
+/// complete (or rolled back) instead of leaving half of it.
+static COMMIT: Mutex<()> = Mutex::new(());
+
+fn lock<T>(m: &Mutex<T>) -> MutexGuard<'_, T> {
+    m.lock().unwrap_or_else(|e| e.into_inner())
+}
+
+/// Keeps a path in [`LIVE`] while it is a temporary file (or an uncommitted new folder).
 #[derive(Debug)]
 struct Live(PathBuf);
 
-impl Live {
-    fn new(path: &Path) -> Live {
-        if let Ok(mut l) = LIVE.lock() {
-            l.push(path.to_path_buf());
-        }
-        Live(path.to_path_buf())
-    }
-}
-
 impl Drop for Live {
     fn drop(&mut self) {
-        if let Ok(mut l) = LIVE.lock() {
-            if let Some(i) = l.iter().rposition(|p| *p == self.0) {
-                l.swap_remove(i);
-            }
+        let mut l = lock(&LIVE);
+        if let Some(i) = l.iter().rposition(|(p, _)| *p == self.0) {
+            l.swap_remove(i);
         }
     }
 }
 
-/// Removes every temporary file this process is writing: for a signal handler that ends
-/// the process (Ctrl-C, SIGTERM), which skips the destructors that would remove them.
-pub fn remove_live_temporaries() {
-    if let Ok(l) = LIVE.lock() {
-        for p in l.iter() {
-            let _ = fs::remove_file(p);
-        }
-    }
+/// A new temporary file in `dir`, listed in [`LIVE`] from the moment it exists.
+fn live_temp(dir: &Path) -> std::io::Result<(NamedTempFile, Live)> {
+    let mut l = lock(&LIVE);
+    let tmp = NamedTempFile::with_prefix_in(TEMP_PREFIX, dir)?;
+    l.push((tmp.path().to_path_buf(), false));
+    let live = Live(tmp.path().to_path_buf());
+    Ok((tmp, live))
 }
+
+/// Ends the process with `code` after removing every temporary file it is writing and
+/// every output folder it created for nothing: for a Ctrl-C or SIGTERM handler, since
+/// ending the process skips the destructors that would do it. A set being renamed into
+/// place is finished first.
+pub fn abandon_and_exit(code: i32) -> ! {
+    let _commit = lock(&COMMIT);
+    let live = lock(&LIVE);
+    for (p, _) in live.iter().filter(|(_, dir)| !dir) {
+        let _ = fs::remove_file(p);
+    }
+    for (p, _) in live.iter().rev().filter(|(_, dir)| *dir) {
+        let _ = fs::remove_dir(p);
+    }
+    std::process::exit(code)
+}
+
+/// Names backups of replaced outputs uniquely within the process.
+static BACKUPS: std::sync::atomic::AtomicU64 = std::sync::atomic::AtomicU64::new(0);
 
 /// A set of outputs in one folder, committed together.
 #[derive(Debug)]
 pub struct OutputSet {
     dir: PathBuf,
-    created_dir: bool,
+    created_dir: Option<Live>,
     inputs: Vec<PathBuf>,
     pending: Vec<(NamedTempFile, PathBuf, Live)>,
     committed: bool,
@@ -74,14 +92,16 @@ impl OutputSet {
         } else {
             dir
         };
-        let mut created_dir = false;
+        let mut created_dir = None;
         match fs::metadata(dir) {
             Ok(m) if m.is_dir() => {}
             Ok(_) => return Err(Error::output(dir, "output path exists and is not a folder")),
             Err(e) if e.kind() == std::io::ErrorKind::NotFound => {
+                let mut l = lock(&LIVE);
                 fs::create_dir_all(dir)
                     .map_err(|e| Error::output(dir, format!("cannot create output folder: {e}")))?;
-                created_dir = true;
+                l.push((dir.to_path_buf(), true));
+                created_dir = Some(Live(dir.to_path_buf()));
             }
             Err(e) => return Err(Error::output(dir, format!("cannot use output folder: {e}"))),
         }
@@ -93,7 +113,7 @@ impl OutputSet {
             committed: false,
         };
         // Writability check: a temporary file that is removed at once.
-        NamedTempFile::with_prefix_in(TEMP_PREFIX, &set.dir)
+        live_temp(&set.dir)
             .map_err(|e| Error::output(&set.dir, format!("output folder is not writable: {e}")))?;
         Ok(set)
     }
@@ -143,9 +163,7 @@ impl OutputSet {
     /// to the set. A started output may be written on another thread.
     pub fn begin(&self, name: &str) -> Result<PendingOutput> {
         let target = self.check_target(name)?;
-        let tmp = NamedTempFile::with_prefix_in(TEMP_PREFIX, &self.dir)
-            .map_err(|e| Error::io(&target, e))?;
-        let live = Live::new(tmp.path());
+        let (tmp, live) = live_temp(&self.dir).map_err(|e| Error::io(&target, e))?;
         Ok(PendingOutput { tmp, target, live })
     }
 
@@ -182,21 +200,52 @@ impl OutputSet {
         self.write(name, |w| w.write_all(bytes))
     }
 
-    /// Renames every pending output into place. If a rename fails, the outputs of this
-    /// set already renamed are removed again, so no mixed set is left (the others'
-    /// temporary files delete themselves).
+    /// Renames every pending output into place. Files they replace are first moved aside
+    /// (to temporary names); if any rename fails, the new outputs already in place are
+    /// removed and the old files put back, so neither a mixed set nor a lost earlier one
+    /// is left (the other temporary files delete themselves).
     pub fn commit(mut self) -> Result<Vec<PathBuf>> {
+        let _commit = lock(&COMMIT);
+        let pending = std::mem::take(&mut self.pending);
+        let mut moved: Vec<(PathBuf, PathBuf)> = Vec::new();
+        let put_back = |moved: &[(PathBuf, PathBuf)]| {
+            for (target, backup) in moved.iter().rev() {
+                let _ = fs::rename(backup, target);
+            }
+        };
+        for (_, target, _) in &pending {
+            if let Ok(m) = fs::symlink_metadata(target) {
+                if m.is_dir() {
+                    put_back(&moved);
+                    return Err(Error::output(target, "an output would replace a folder"));
+                }
+                let n = BACKUPS.fetch_add(1, std::sync::atomic::Ordering::Relaxed);
+                let backup = self
+                    .dir
+                    .join(format!("{TEMP_PREFIX}old-{}-{n}", std::process::id()));
+                if let Err(e) = fs::rename(target, &backup) {
+                    put_back(&moved);
+                    return Err(Error::io(target, e));
+                }
+                moved.push((target.clone(), backup));
+            }
+        }
         let mut done = Vec::new();
-        for (tmp, target, _live) in std::mem::take(&mut self.pending) {
+        for (tmp, target, _live) in pending {
             if let Err(e) = tmp.persist(&target) {
                 for d in &done {
                     let _ = fs::remove_file(d);
                 }
+                put_back(&moved);
                 return Err(Error::io(&target, e.error));
             }
             done.push(target);
         }
+        for (_, backup) in &moved {
+            let _ = fs::remove_file(backup);
+        }
         self.committed = true;
+        self.created_dir = None;
         Ok(done)
     }
 }
@@ -251,8 +300,11 @@ impl Drop for OutputSet {
     fn drop(&mut self) {
         // Pending temporary files delete themselves; remove a folder we made for nothing.
         self.pending.clear();
-        if self.created_dir && !self.committed {
-            let _ = fs::remove_dir(&self.dir);
+        if let Some(live) = self.created_dir.take() {
+            if !self.committed {
+                let _ = fs::remove_dir(&self.dir);
+            }
+            drop(live);
         }
     }
 }
@@ -285,20 +337,51 @@ mod tests {
     #[test]
     fn a_failed_rename_takes_back_the_renamed_outputs() {
         let dir = tempfile::tempdir().unwrap();
+        // An earlier run's output, which the new set replaces.
+        fs::write(dir.path().join("a.png"), b"earlier").unwrap();
         let mut set = OutputSet::prepare(dir.path(), &[]).unwrap();
         set.write_bytes("a.png", b"first").unwrap();
         set.write_bytes("b.json", b"second").unwrap();
-        // After the checks, a non-empty folder appears where the second output goes: its
-        // rename must fail, and the first output, already renamed, must go again.
-        fs::create_dir(dir.path().join("b.json")).unwrap();
-        fs::write(dir.path().join("b.json/keep"), b"x").unwrap();
+        set.write_bytes("c.csv", b"third").unwrap();
+        // The second output's temporary file vanishes before the commit: its rename
+        // fails; the first output, already renamed, must go again, and the earlier file
+        // it replaced must come back.
+        fs::remove_file(set.pending[1].0.path()).unwrap();
         assert!(set.commit().is_err());
-        assert!(!dir.path().join("a.png").exists());
-        let left: Vec<_> = fs::read_dir(dir.path())
-            .unwrap()
-            .map(|e| e.unwrap().file_name().into_string().unwrap())
-            .collect();
-        assert_eq!(left, vec!["b.json".to_string()]);
+        assert_eq!(fs::read(dir.path().join("a.png")).unwrap(), b"earlier");
+        let names = |d: &Path| {
+            let mut v: Vec<_> = fs::read_dir(d)
+                .unwrap()
+                .map(|e| e.unwrap().file_name().into_string().unwrap())
+                .collect();
+            v.sort();
+            v
+        };
+        assert_eq!(names(dir.path()), vec!["a.png".to_string()]);
+
+        // A folder appears where an output goes after the checks: refused, nothing moved.
+        let mut set = OutputSet::prepare(dir.path(), &[]).unwrap();
+        set.write_bytes("a.png", b"first").unwrap();
+        set.write_bytes("b.json", b"second").unwrap();
+        fs::create_dir(dir.path().join("b.json")).unwrap();
+        let e = set.commit().unwrap_err();
+        assert!(e.to_string().contains("replace a folder"), "{e}");
+        assert_eq!(fs::read(dir.path().join("a.png")).unwrap(), b"earlier");
+        assert_eq!(
+            names(dir.path()),
+            vec!["a.png".to_string(), "b.json".to_string()]
+        );
+    }
+
+    #[test]
+    fn a_committed_set_replaces_earlier_outputs_and_leaves_no_backups() {
+        let dir = tempfile::tempdir().unwrap();
+        fs::write(dir.path().join("a.png"), b"earlier").unwrap();
+        let mut set = OutputSet::prepare(dir.path(), &[]).unwrap();
+        set.write_bytes("a.png", b"new").unwrap();
+        set.commit().unwrap();
+        assert_eq!(fs::read(dir.path().join("a.png")).unwrap(), b"new");
+        assert_eq!(fs::read_dir(dir.path()).unwrap().count(), 1);
     }
 
     #[test]

@@ -346,8 +346,23 @@ fn reduce_stopped_while_writing_leaves_no_temporary_files() {
             "trial {trial} ({signal}): temporary files left: {:?}",
             temp_names(&out)
         );
+        // Either the whole set landed (the signal came as it was renamed into place, and
+        // the handler waited for it) or nothing did, not even the new folder.
         if out.is_dir() {
             assert_no_partial_files(&out);
+            for name in [
+                "reduced.png",
+                "palette.json",
+                "palette.csv",
+                "uncertainty.png",
+                "uncertainty.tif",
+            ] {
+                assert!(
+                    out.join(format!("large.{name}")).is_file(),
+                    "trial {trial}: a partial set: {:?}",
+                    common::files_in(&out)
+                );
+            }
         }
     }
 }
