@@ -431,6 +431,24 @@ fn check_options(opts: &LandcoverOptions, info: &RasterInfo, path: &Path) -> Res
         ))
         .into());
     }
+    // The same pair of bands twice (in either order, under either name) is one feature
+    // counted twice (or its negative).
+    let pair = |a: usize, b: usize| (a.min(b), a.max(b));
+    for (i, ix) in opts.indices.iter().enumerate() {
+        if !opts.indices[..i]
+            .iter()
+            .any(|o| pair(o.a, o.b) == pair(ix.a, ix.b))
+        {
+            continue;
+        }
+        return Err(ParamsError::Other(format!(
+            "index {} repeats bands {} and {} of an earlier index",
+            ix.name(),
+            ix.a,
+            ix.b
+        ))
+        .into());
+    }
     if opts.k > MAX_CLASSES {
         return Err(ParamsError::Other(format!(
             "k = {} classes: the 8-bit class raster holds at most {MAX_CLASSES} (0 is nodata)",

@@ -244,8 +244,8 @@ fn ignore_file_size_signal() {
 }
 
 /// Parses the command line. Every option that takes a value accepts a negative number as
-/// that value (`-k -3` is read as k = −3 and then refused with the reason, not taken
-/// for an unknown flag `-3`).
+/// that value: `-k -3` is refused by the option's own rule, not taken for an unknown
+/// flag `-3`.
 fn parse_command_line() -> Result<Cli, clap::Error> {
     use clap::{CommandFactory, FromArgMatches};
     fn negatives(a: clap::Arg) -> clap::Arg {
@@ -285,8 +285,16 @@ static STDOUT_FAILED: AtomicBool = AtomicBool::new(false);
 /// Writes one document and a newline to standard output; a failure (a full disk, a closed
 /// pipe) is reported once on standard error and makes the exit status 2.
 fn emit(out: &mut impl Write, text: &str) {
-    if let Err(e) = writeln!(out, "{text}").and_then(|()| out.flush()) {
-        if !STDOUT_FAILED.swap(true, Ordering::SeqCst) {
+    let result = writeln!(out, "{text}").and_then(|()| out.flush());
+    stdout_result(result);
+}
+
+/// Records a failed write to standard output. A closed pipe (`… | head`) is not worth a
+/// message, but still makes the exit status 2.
+fn stdout_result(result: std::io::Result<()>) {
+    if let Err(e) = result {
+        if !STDOUT_FAILED.swap(true, Ordering::SeqCst) && e.kind() != std::io::ErrorKind::BrokenPipe
+        {
             eprintln!("chromasift: error: standard output: {e}");
         }
     }
@@ -308,7 +316,7 @@ fn run() -> ExitCode {
         Err(e) => {
             use clap::error::ErrorKind as K;
             if matches!(e.kind(), K::DisplayHelp | K::DisplayVersion) {
-                let _ = e.print();
+                stdout_result(e.print());
                 return ExitCode::SUCCESS;
             }
             if e.kind() == K::DisplayHelpOnMissingArgumentOrSubcommand {
@@ -442,7 +450,10 @@ fn run() -> ExitCode {
         Command::Completions(args) => {
             use clap::CommandFactory;
             let mut cmd = Cli::command();
-            clap_complete::generate(args.shell, &mut cmd, "chromasift", &mut std::io::stdout());
+            let mut script = Vec::new();
+            clap_complete::generate(args.shell, &mut cmd, "chromasift", &mut script);
+            let mut out = std::io::stdout().lock();
+            stdout_result(out.write_all(&script).and_then(|()| out.flush()));
             ExitCode::SUCCESS
         }
         Command::Manpage => {

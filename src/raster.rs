@@ -291,12 +291,23 @@ pub fn decode_bytes(bytes: &[u8], name: &Path, limits: &Limits) -> Result<Decode
     }
     let tiff = format == Some(image::ImageFormat::Tiff);
     let decode_error = |name: &Path, e: image::ImageError| match e {
-        image::ImageError::Unsupported(_) if tiff => Error::Decode {
-            path: name.into(),
-            message: "this TIFF is not a grey or RGB(A) image; for a multi-band raster use \
+        image::ImageError::Unsupported(u)
+            if tiff
+                && match u.kind() {
+                    image::error::UnsupportedErrorKind::Color(_) => true,
+                    image::error::UnsupportedErrorKind::GenericFeature(f) => {
+                        f.contains("color type")
+                    }
+                    _ => false,
+                } =>
+        {
+            Error::Decode {
+                path: name.into(),
+                message: "this TIFF is not a grey or RGB(A) image; for a multi-band raster use \
                       `landcover`, or `sweep` with `--bands`"
-                .into(),
-        },
+                    .into(),
+            }
+        }
         e => decode_error(name, e),
     };
     // Header first: refuse over-limit images before the decoder allocates.

@@ -383,6 +383,20 @@ fn rows(s: &Scene) -> Vec<Row> {
         &["ndvi:2,2", "twice"],
     );
     add(
+        "landcover the same index twice",
+        &[
+            "landcover",
+            &scene,
+            "--index",
+            "nd:1,2",
+            "--index",
+            "ndvi:2,1",
+            "-o",
+            &new_out,
+        ],
+        &["ndvi:2,1", "repeats bands"],
+    );
+    add(
         "landcover empty sample",
         &["landcover", &scene, "--sample", "0", "-o", &new_out],
         &["--sample", "at least 1"],
