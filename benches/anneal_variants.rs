@@ -68,6 +68,33 @@ fn coarsen(rows: &[f32], w: &[f64], cell: f64) -> (Vec<f32>, Vec<f64>) {
     out
 }
 
+/// One grid summary: (cell side, rows, weights).
+type Level = (f64, Vec<f32>, Vec<f64>);
+
+/// Grid summaries as the library builds them: the finest at σ·`finest`, each next one
+/// twice as coarse, up to σ or until about 4K cells remain.
+fn grid_levels(rows: &[f32], w: &[f64], sigma: f64, finest: f64, k: usize) -> Vec<Level> {
+    let c = sigma * finest;
+    let (r, ww) = coarsen(rows, w, c);
+    let mut levels = vec![(c, r, ww)];
+    while levels.last().unwrap().0 < sigma && levels.last().unwrap().2.len() > 4 * k {
+        let (c, r, ww) = levels.last().unwrap();
+        let (r2, w2) = coarsen(r, ww, c * 2.0);
+        levels.push((c * 2.0, r2, w2));
+    }
+    levels
+}
+
+/// The coarsest level whose cells are at most half of 1/√β.
+fn level_for(levels: &[Level], beta: f64) -> &Level {
+    let want = 0.5 / beta.sqrt();
+    levels
+        .iter()
+        .rev()
+        .find(|l| l.0 <= want)
+        .unwrap_or(&levels[0])
+}
+
 /// Largest eigenvalue and its unit eigenvector of a symmetric DIM × DIM matrix.
 fn principal(cov: &[f64; DIM * DIM]) -> (f64, [f64; DIM]) {
     let mut v = [1.0, 0.7, 0.4];
@@ -117,28 +144,14 @@ fn mass_constrained(rows: &[f32], w: &[f64], k: usize, schedule: &Anneal) -> Vec
     let (lambda, _) = principal(&cov);
     let sigma = lambda.sqrt();
     // Grid levels as the library builds them: finest σ·finest_cell, each next twice as coarse.
-    let mut levels = vec![{
-        let c = sigma * schedule.finest_cell;
-        let (r, ww) = coarsen(rows, w, c);
-        (c, r, ww)
-    }];
-    while levels.last().unwrap().0 < sigma && levels.last().unwrap().2.len() > 4 * k {
-        let (c, r, ww) = levels.last().unwrap();
-        let (r2, w2) = coarsen(r, ww, c * 2.0);
-        levels.push((c * 2.0, r2, w2));
-    }
+    let levels = grid_levels(rows, w, sigma, schedule.finest_cell, k);
     let beta_c = 1.0 / lambda;
     let mut y: Vec<[f64; DIM]> = vec![centre];
     let mut p = vec![1.0f64];
     let mut beta = schedule.start * beta_c;
     let end = schedule.end * beta_c;
     loop {
-        let want = 0.5 / beta.sqrt();
-        let (_, lr, lw) = levels
-            .iter()
-            .rev()
-            .find(|l| l.0 <= want)
-            .unwrap_or(&levels[0]);
+        let (_, lr, lw) = level_for(&levels, beta);
         let total: f64 = lw.iter().sum();
         for _round in 0..=k {
             let mut moments = vec![];
@@ -247,26 +260,12 @@ fn seeded(data: &Dataset, init: &[f32], start: f64, schedule: &Anneal) -> Vec<f3
     }
     let (lambda, _) = principal(&covariance(&all).1);
     let sigma = lambda.sqrt();
-    let mut levels = vec![{
-        let c = sigma * schedule.finest_cell;
-        let (r, ww) = coarsen(data.rows(), &w, c);
-        (c, r, ww)
-    }];
-    while levels.last().unwrap().0 < sigma && levels.last().unwrap().2.len() > 4 * K {
-        let (c, r, ww) = levels.last().unwrap();
-        let (r2, w2) = coarsen(r, ww, c * 2.0);
-        levels.push((c * 2.0, r2, w2));
-    }
+    let levels = grid_levels(data.rows(), &w, sigma, schedule.finest_cell, K);
     let mut means: Vec<f64> = init.iter().map(|&v| v as f64).collect();
     let mut beta = start / lambda;
     let end = schedule.end / lambda;
     loop {
-        let want = 0.5 / beta.sqrt();
-        let (_, lr, lw) = levels
-            .iter()
-            .rev()
-            .find(|l| l.0 <= want)
-            .unwrap_or(&levels[0]);
+        let (_, lr, lw) = level_for(&levels, beta);
         let sd = Dataset::new(lr, DIM, Some(lw)).expect("grid summary");
         means = soft_kmeans(&sd, &means, beta, schedule.stage_iter, 1e-6).means;
         if beta >= end {

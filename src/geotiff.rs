@@ -1083,16 +1083,21 @@ fn type_bytes(t: Type) -> u64 {
     }
 }
 
+/// The size of the file at `path`, in bytes.
+fn file_len(path: &Path) -> Result<u64> {
+    std::fs::metadata(path)
+        .map(|m| m.len())
+        .map_err(|source| Error::Open {
+            path: path.into(),
+            source,
+        })
+}
+
 /// Refuses a file whose strips or tiles, as its offsets and byte counts declare them, run
 /// past its end: a truncated file is then refused before a block buffer is allocated for
 /// data that is not there.
 fn check_chunks_fit<R: Read + Seek>(decoder: &mut Decoder<R>, path: &Path) -> Result<()> {
-    let file_len = std::fs::metadata(path)
-        .map_err(|source| Error::Open {
-            path: path.into(),
-            source,
-        })?
-        .len();
+    let file_len = file_len(path)?;
     for (offsets, counts) in [
         (Tag::StripOffsets, Tag::StripByteCounts),
         (Tag::TileOffsets, Tag::TileByteCounts),
@@ -1135,12 +1140,7 @@ fn check_tag_fits<R: Read + Seek>(
     let Some(entry) = decoder.image_ifd().find_entry(tag) else {
         return Ok(());
     };
-    let file_len = std::fs::metadata(path)
-        .map_err(|source| Error::Open {
-            path: path.into(),
-            source,
-        })?
-        .len();
+    let file_len = file_len(path)?;
     let bytes = entry.count().saturating_mul(type_bytes(entry.field_type()));
     if bytes > file_len {
         return Err(decode(
