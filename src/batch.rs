@@ -362,6 +362,29 @@ pub const MAX_JOBS: usize = 256;
 /// Progress callback: (done, total).
 pub type Progress<'a> = &'a (dyn Fn(usize, usize) + Sync);
 
+/// Reduces one image of a batch into `out_dir` under `stem`, unless one of its outputs
+/// would replace a file the batch reads or skips (`inputs`, canonical paths: the output
+/// folder may hold the input folder, as in `batch photos -o .`).
+fn reduce_one(
+    input: &Path,
+    stem: &str,
+    out_dir: &Path,
+    inputs: &std::collections::HashSet<PathBuf>,
+    opts: &BatchOptions,
+    fixed: Option<&FixedPalette>,
+) -> Result<reduce::ReduceReport> {
+    for name in reduce::output_names(stem) {
+        let target = out_dir.join(name);
+        if std::fs::canonicalize(&target).is_ok_and(|c| inputs.contains(&c)) {
+            return Err(Error::output(
+                &target,
+                "this output would overwrite an input file of the batch",
+            ));
+        }
+    }
+    reduce::reduce_file_as(input, stem, out_dir, &opts.reduce, fixed, true, &[])
+}
+
 /// Learns the shared palette from the merged histograms and writes `shared.palette.json`.
 fn shared_palette(
     parts: &[Histogram],
@@ -443,8 +466,8 @@ pub fn run_batch(
     } else {
         None
     };
-    // Every file a batch reads or skips: no output may replace one (the output folder may
-    // hold the input folder: `batch photos -o .`).
+    // Every file a batch reads or skips, and its `--palette` document: no output may
+    // replace one (see `reduce_one`).
     let inputs: std::collections::HashSet<PathBuf> = images
         .iter()
         .chain(&others)
@@ -454,7 +477,6 @@ pub fn run_batch(
 
     let total = images.len();
     let stems = output_stems(&images);
-    let spare: Vec<&Path> = opts.palette_file.as_deref().into_iter().collect();
     let rows: Vec<FileReport> = pool.install(|| {
         images
             .par_iter()
@@ -498,29 +520,8 @@ pub fn run_batch(
                             doc.as_ref().map(|d| d.mean_delta_e2000),
                         )
                     } else {
-                        let clash = stem.and_then(|s| {
-                            reduce::output_names(s).into_iter().find_map(|n| {
-                                let target = out_dir.join(n);
-                                std::fs::canonicalize(&target)
-                                    .ok()
-                                    .filter(|c| inputs.contains(c))
-                                    .map(|_| target)
-                            })
-                        });
                         let reduced = match stem {
-                            _ if clash.is_some() => Err(Error::output(
-                                clash.as_deref().unwrap_or(p),
-                                "this output would overwrite an input file of the batch",
-                            )),
-                            Some(s) => reduce::reduce_file_as(
-                                p,
-                                s,
-                                &out_dir,
-                                &opts.reduce,
-                                fixed.as_ref(),
-                                true,
-                                &spare,
-                            ),
+                            Some(s) => reduce_one(p, s, &out_dir, &inputs, opts, fixed.as_ref()),
                             None => Err(Error::output(
                                 p,
                                 "cannot derive an output name from this file name",
@@ -572,6 +573,7 @@ pub fn run_batch(
         },
         files: rows,
     };
+    let spare: Vec<&Path> = opts.palette_file.as_deref().into_iter().collect();
     let mut set = OutputSet::prepare(out, &spare)?;
     let json = serde_json::to_string_pretty(&report).expect("report serialises");
     set.write_bytes("batch-report.json", format!("{json}\n").as_bytes())?;
