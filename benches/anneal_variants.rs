@@ -14,8 +14,13 @@
 //! Lloyd polish:
 //!
 //! * `anneal/32`, `anneal/16`: the library's annealing (`cluster::anneal`, default
-//!   schedule) with the finest grid cell at σ/32 (the default until session 5) and σ/16
-//!   (the default since);
+//!   schedule) without its split-and-merge moves, with the finest grid cell at σ/32 (the
+//!   default until session 5) and σ/16 (the default since);
+//! * `anneal+moves`: the library's annealing as `reduce --anneal` runs it (default
+//!   schedule, then up to 32 split-and-merge moves on the finest grid summary);
+//! * `anneal/endE+moves` (`CHROMASIFT_STUDY_ENDS=E,...`): the same ending at E β_c;
+//! * `k-means+++moves`: start 0's k-means++ means, then the same split-and-merge moves on
+//!   the same grid summary (no annealing);
 //! * `mass-constrained`: Rose (1998), "Deterministic annealing for clustering,
 //!   compression, classification, regression, and related optimization problems",
 //!   Proc. IEEE 86(11), sec. III: codevectors with masses p_j, r_ij ∝ p_j exp(−β·½‖x−y_j‖²),
@@ -25,11 +30,15 @@
 //! * `seeded/S`: the library's soft stages started at S β_c from the k-means++ means of
 //!   start 0 instead of from the centroid.
 //!
+//! `CHROMASIFT_STUDY_VARIANTS=name,...` runs only the named variants.
+//!
 //! Printed per variant: the SSE relative to start 0 (a single start), how many of the
 //! starts it beats, its time in starts, and whether it beats the best of the R starts
 //! that fit in its time (R ≥ 1), the comparison of the issue.
 
-use chromasift::cluster::{anneal, kmeans_plus_plus, lloyd, soft_kmeans, Anneal, Dataset, Stop};
+use chromasift::cluster::{
+    anneal, kmeans_plus_plus, lloyd, soft_kmeans, split_merge, Anneal, Dataset, Stop,
+};
 use chromasift::colour::Space;
 use chromasift::histogram;
 use chromasift::limits::Limits;
@@ -44,6 +53,15 @@ const DIM: usize = 3;
 fn stop() -> Stop {
     Stop {
         max_iter: 300,
+        tolerance: 1e-6,
+        shift_tolerance: 1e-4,
+    }
+}
+
+/// The Lloyd stopping rule the library's annealing gives its split-and-merge moves.
+fn split_stop() -> Stop {
+    Stop {
+        max_iter: 50,
         tolerance: 1e-6,
         shift_tolerance: 1e-4,
     }
@@ -276,6 +294,17 @@ fn seeded(data: &Dataset, init: &[f32], start: f64, schedule: &Anneal) -> Vec<f3
     means.iter().map(|&v| v as f32).collect()
 }
 
+/// The finest grid summary the library's annealing runs on (σ/16 cells).
+fn finest_grid(data: &Dataset) -> (Vec<f32>, Vec<f64>) {
+    let w: Vec<f64> = (0..data.len()).map(|i| data.weight(i)).collect();
+    let mut all: Moments = (0.0, [0.0; DIM], [0.0; DIM * DIM]);
+    for (x, &wi) in data.rows().chunks_exact(DIM).zip(&w) {
+        add(&mut all, wi, x);
+    }
+    let (lambda, _) = principal(&covariance(&all).1);
+    coarsen(data.rows(), &w, lambda.sqrt() / 16.0)
+}
+
 fn main() {
     let images: Vec<String> = std::env::args()
         .skip(1)
@@ -289,6 +318,13 @@ fn main() {
         .ok()
         .and_then(|s| s.parse().ok())
         .unwrap_or(12);
+    let only: Vec<String> = std::env::var("CHROMASIFT_STUDY_VARIANTS")
+        .map(|v| v.split(',').map(str::to_string).collect())
+        .unwrap_or_default();
+    let ends: Vec<f64> = std::env::var("CHROMASIFT_STUDY_ENDS")
+        .ok()
+        .map(|v| v.split(',').filter_map(|e| e.parse().ok()).collect())
+        .unwrap_or_default();
     let mut wins = std::collections::BTreeMap::<String, (usize, usize)>::new();
     for path in &images {
         let img = raster::decode(std::path::Path::new(path), &Limits::default()).expect("decode");
@@ -314,13 +350,15 @@ fn main() {
             per_start,
             best / sses[0]
         );
-        type Variant<'a> = (&'a str, Box<dyn Fn() -> Vec<f32> + 'a>);
-        let variants: [Variant; 5] = [
+        type Run<'a> = Box<dyn Fn() -> Vec<f32> + 'a>;
+        type Variant<'a> = (String, Run<'a>);
+        let fixed: Vec<(&str, Run)> = vec![
             (
                 "anneal/32",
                 Box::new(|| {
                     let s = Anneal {
                         finest_cell: 1.0 / 32.0,
+                        split_merge: 0,
                         ..Anneal::default()
                     };
                     anneal(&data, K, &s, DEFAULT_SEED, 1e-6)
@@ -333,7 +371,11 @@ fn main() {
             (
                 "anneal/16",
                 Box::new(|| {
-                    anneal(&data, K, &Anneal::default(), DEFAULT_SEED, 1e-6)
+                    let s = Anneal {
+                        split_merge: 0,
+                        ..Anneal::default()
+                    };
+                    anneal(&data, K, &s, DEFAULT_SEED, 1e-6)
                         .means
                         .iter()
                         .map(|&v| v as f32)
@@ -358,8 +400,51 @@ fn main() {
                     seeded(&data, &init, 64.0, &Anneal::default())
                 }),
             ),
+            (
+                "anneal+moves",
+                Box::new(|| {
+                    anneal(&data, K, &Anneal::default(), DEFAULT_SEED, 1e-6)
+                        .means
+                        .iter()
+                        .map(|&v| v as f32)
+                        .collect()
+                }),
+            ),
+            (
+                "k-means+++moves",
+                Box::new(|| {
+                    let init = kmeans_plus_plus(&data, K, &mut Rng::new(DEFAULT_SEED, 0));
+                    let (gr, gw) = finest_grid(&data);
+                    let g = Dataset::new(&gr, DIM, Some(&gw)).expect("grid");
+                    let moves = Anneal::default().split_merge;
+                    split_merge(&g, &init, moves, split_stop()).means
+                }),
+            ),
         ];
+        let mut variants: Vec<Variant> =
+            fixed.into_iter().map(|(n, f)| (n.to_string(), f)).collect();
+        // The library's annealing with its moves, ending at other β (multiples of β_c).
+        for end in &ends {
+            let data = &data;
+            variants.push((
+                format!("anneal/end{end}+moves"),
+                Box::new(move || {
+                    let s = Anneal {
+                        end: *end,
+                        ..Anneal::default()
+                    };
+                    anneal(data, K, &s, DEFAULT_SEED, 1e-6)
+                        .means
+                        .iter()
+                        .map(|&v| v as f32)
+                        .collect()
+                }),
+            ));
+        }
         for (name, run) in variants.iter() {
+            if !only.is_empty() && !only.iter().any(|o| o == name) {
+                continue;
+            }
             let t = Instant::now();
             let init = run();
             let sse = lloyd(&data, &init, stop(), true).sse;

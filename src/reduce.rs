@@ -291,6 +291,9 @@ pub struct AnnealSetting {
     pub start: f64,
     pub end: f64,
     pub factor: f64,
+    /// Most split-and-merge moves after the last stage.
+    #[serde(default)]
+    pub moves: usize,
 }
 
 /// The palette document (`STEM.palette.json`).
@@ -774,6 +777,7 @@ fn reduce_indexed(
                 start: a.start,
                 end: a.end,
                 factor: a.factor,
+                moves: a.split_merge,
             }),
             target: opts.target,
         },

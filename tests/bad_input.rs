@@ -417,6 +417,24 @@ fn rows(s: &Scene) -> Vec<Row> {
         &["--anneal"],
     );
     add(
+        "reduce split-and-merge moves without --anneal",
+        &["reduce", &good, "--anneal-moves", "4", "-o", &new_out],
+        &["--anneal"],
+    );
+    add(
+        "reduce negative split-and-merge moves",
+        &[
+            "reduce",
+            &good,
+            "--anneal",
+            "--anneal-moves",
+            "-1",
+            "-o",
+            &new_out,
+        ],
+        &["--anneal-moves"],
+    );
+    add(
         "batch without an output folder",
         &["batch", &s.p("shoot")],
         &["required", "--out"],

@@ -254,14 +254,6 @@ fn annealing_beats_single_start_kmeans_plus_plus_on_unbalanced_groups() {
     assert!(polished.sse <= start_sse * (1.0 + 1e-12));
     assert!(a.stages > 10);
 
-    let annealed = fit(
-        &data,
-        &KMeansParams::new(k)
-            .anneal(Some(Anneal::default()))
-            .check()
-            .unwrap(),
-    )
-    .unwrap();
     let mut singles: Vec<f64> = (0..20)
         .map(|seed| {
             fit(&data, &KMeansParams::new(k).seed(seed).check().unwrap())
@@ -270,21 +262,33 @@ fn annealing_beats_single_start_kmeans_plus_plus_on_unbalanced_groups() {
         })
         .collect();
     singles.sort_by(f64::total_cmp);
-    let beaten = singles
-        .iter()
-        .filter(|&&s| s > annealed.sse * (1.0 + 1e-6))
-        .count();
-    assert!(
-        annealed.sse <= singles[10],
-        "{} vs median {}",
-        annealed.sse,
-        singles[10]
-    );
-    assert!(
-        beaten >= 15,
-        "beats {beaten} of 20: {} vs {singles:?}",
-        annealed.sse
-    );
+    // With the split-and-merge moves (the default) and without them (annealing alone).
+    for moves in [Anneal::default().split_merge, 0] {
+        let schedule = Anneal {
+            split_merge: moves,
+            ..Anneal::default()
+        };
+        let annealed = fit(
+            &data,
+            &KMeansParams::new(k).anneal(Some(schedule)).check().unwrap(),
+        )
+        .unwrap();
+        let beaten = singles
+            .iter()
+            .filter(|&&s| s > annealed.sse * (1.0 + 1e-6))
+            .count();
+        assert!(
+            annealed.sse <= singles[10],
+            "moves {moves}: {} vs median {}",
+            annealed.sse,
+            singles[10]
+        );
+        assert!(
+            beaten >= 15,
+            "moves {moves}: beats {beaten} of 20: {} vs {singles:?}",
+            annealed.sse
+        );
+    }
 }
 
 #[test]

@@ -557,7 +557,7 @@ pub struct ReduceFlags {
 
     /// Start from deterministic annealing (Rose, Gurewitz & Fox 1990) instead of
     /// k-means++: soft k-means with β raised geometrically from --anneal-start to
-    /// --anneal-end, then a hard Lloyd polish.
+    /// --anneal-end, then split-and-merge moves (--anneal-moves), then a hard Lloyd polish.
     #[arg(long)]
     pub anneal: bool,
 
@@ -573,6 +573,12 @@ pub struct ReduceFlags {
     /// Ratio between successive β of the annealing (> 1).
     #[arg(long = "anneal-factor", default_value_t = Anneal::default().factor, value_name = "RATIO", requires = "anneal")]
     pub anneal_factor: f64,
+
+    /// Most split-and-merge moves after the annealing's last stage (each moves one mean
+    /// from where it is least needed to split the cluster that gains most, and is kept
+    /// only if the SSE falls); 0 for none.
+    #[arg(long = "anneal-moves", default_value_t = Anneal::default().split_merge, value_name = "N", requires = "anneal")]
+    pub anneal_moves: usize,
 }
 
 impl ReduceFlags {
@@ -595,6 +601,7 @@ impl ReduceFlags {
                 start: self.anneal_start,
                 end: self.anneal_end,
                 factor: self.anneal_factor,
+                split_merge: self.anneal_moves,
                 ..Anneal::default()
             }),
             target: quality_target(self.target_delta_e, self.target_p95, self.k_max),

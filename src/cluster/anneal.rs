@@ -12,9 +12,17 @@
 //! scale the assignment can resolve at that β), never finer than a floor of σ_max/16
 //! ([`Anneal::finest_cell`]); the result is then polished by hard Lloyd iterations on
 //! every row (by the caller).
+//!
+//! Reallocation. Annealing splits its means in order of temperature, dense regions first,
+//! and on photographs it often ends with several means on one dense region and one on a
+//! wide sparse one, a local optimum Lloyd cannot leave. So after the last stage, up to
+//! [`Anneal::split_merge`] split-and-merge moves ([`super::split_merge`]) run on the finest
+//! grid summary; each is kept only if it lowers the SSE there.
 
+use super::hard::Stop;
 use super::model::coarsen;
 use super::soft::soft_kmeans;
+use super::split_merge::split_merge;
 use super::Dataset;
 use crate::error::ParamsError;
 use crate::rng::Rng;
@@ -24,7 +32,8 @@ use crate::rng::Rng;
 pub struct Anneal {
     /// First β, as a multiple of β_c = 1/λ_max. Default: 0.5 (all means together).
     pub start: f64,
-    /// Last β, as a multiple of β_c. Default: 2000 (near-hard on the data's own scale).
+    /// Last β, as a multiple of β_c. Default: 64 (near-hard at the scale of the clusters; the
+    /// split-and-merge moves and the hard Lloyd polish finish the job, see DEVELOPERS.md).
     pub end: f64,
     /// Ratio between successive β. Default: 1.5 (with 10 iterations per stage: chosen by
     /// measurement on the benchmark photos, see DEVELOPERS.md).
@@ -35,16 +44,19 @@ pub struct Anneal {
     /// Default: 1/16 (on the benchmark photos, 1/32 cost twice the time for an SSE
     /// within 0.05 %; see DEVELOPERS.md).
     pub finest_cell: f64,
+    /// Most split-and-merge moves after the last stage (0: none). Default: 32.
+    pub split_merge: usize,
 }
 
 impl Default for Anneal {
     fn default() -> Self {
         Anneal {
             start: 0.5,
-            end: 2000.0,
+            end: 64.0,
             factor: 1.5,
             stage_iter: 10,
             finest_cell: 1.0 / 16.0,
+            split_merge: 32,
         }
     }
 }
@@ -92,6 +104,8 @@ pub struct AnnealResult {
     pub stages: usize,
     /// Soft iterations over all stages.
     pub iterations: usize,
+    /// Split-and-merge moves kept after the last stage.
+    pub moves: usize,
 }
 
 /// Weighted mean and the largest eigenvalue of the weighted covariance (power iteration).
@@ -164,6 +178,7 @@ pub fn anneal(
             beta_critical: f64::INFINITY,
             stages: 0,
             iterations: 0,
+            moves: 0,
         };
     }
     let beta_c = 1.0 / lambda;
@@ -214,10 +229,31 @@ pub fn anneal(
         }
         beta = (beta * schedule.factor).min(end);
     }
+    let mut moves = 0;
+    if schedule.split_merge > 0 {
+        let finest =
+            Dataset::new(&levels[0].1, dim, Some(&levels[0].2)).expect("grid summary is valid");
+        let init: Vec<f32> = means.iter().map(|&v| v as f32).collect();
+        let stop = Stop {
+            max_iter: 50,
+            tolerance,
+            shift_tolerance: 1e-4,
+        };
+        let r = split_merge(&finest, &init, schedule.split_merge, stop);
+        if crate::trace::enabled() {
+            eprintln!(
+                "chromasift: timing: annealing split-and-merge: {} moves, grid SSE {:.6e} -> {:.6e}",
+                r.moves, r.start_sse, r.sse
+            );
+        }
+        means = r.means.iter().map(|&v| v as f64).collect();
+        moves = r.moves;
+    }
     AnnealResult {
         means,
         beta_critical: beta_c,
         stages,
         iterations,
+        moves,
     }
 }

@@ -15,6 +15,7 @@ mod init;
 mod model;
 mod params;
 mod soft;
+mod split_merge;
 
 pub use anneal::{anneal, Anneal, AnnealResult};
 pub use choose::{bic, calibration, k_path, silhouette, weighted_sample, CalibrationBin};
@@ -25,6 +26,7 @@ pub use params::{Beta, KMeansParams, Mode, ValidParams, MAX_K};
 pub use soft::{
     auto_beta, responsibility_matrix, soft_assign, soft_kmeans, SoftAssignment, SoftResult,
 };
+pub use split_merge::{split_merge, SplitMerge};
 
 use crate::error::ParamsError;
 

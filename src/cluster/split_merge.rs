@@ -1,0 +1,278 @@
+//! Split-and-merge reallocation of hard k-means means, after Kaukoranta, Fränti &
+//! Nevalainen (1998), "Iterative split-and-merge algorithm for vector quantization
+//! codebook generation", Optical Engineering 37(10).
+//!
+//! Lloyd iterations only move each mean within its own neighbourhood, so a solution that
+//! spends several means on one dense region and one mean on a wide sparse one stays
+//! there. Deterministic annealing ends that way on photographs: its means split in order
+//! of temperature, dense regions first (DEVELOPERS.md, "Annealing on photographs"). One
+//! move here takes the mean whose cluster costs least to give up (its rows re-served by
+//! their second-nearest mean), and the cluster whose split in two lowers the SSE most,
+//! puts the freed mean and the split cluster's mean at the two halves of that split, and
+//! re-converges by Lloyd. The move is kept only if the SSE fell, so the result is never
+//! worse than the Lloyd optimum it started from. No random numbers: same input, same
+//! result.
+
+use super::hard::{lloyd, Stop};
+use super::{nearest_two, Dataset, CHUNK};
+use rayon::prelude::*;
+
+/// Candidate clusters tried per move on each side (to split, to give up): up to
+/// `TRIES × TRIES` Lloyd runs before a move is abandoned.
+const TRIES: usize = 3;
+
+/// What the reallocation did.
+#[derive(Debug, Clone, PartialEq)]
+pub struct SplitMerge {
+    /// Means after the last kept move and its Lloyd run, `k × dim`.
+    pub means: Vec<f32>,
+    /// SSE of `means` on the data.
+    pub sse: f64,
+    /// SSE of the Lloyd optimum the moves started from.
+    pub start_sse: f64,
+    /// Moves kept.
+    pub moves: usize,
+}
+
+/// Largest eigenvalue and unit eigenvector of a symmetric `dim × dim` matrix (power
+/// iteration from the column with the largest diagonal entry).
+fn principal(cov: &[f64], dim: usize) -> (f64, Vec<f64>) {
+    let col = (0..dim)
+        .max_by(|&a, &b| {
+            cov[a * dim + a]
+                .total_cmp(&cov[b * dim + b])
+                .then(b.cmp(&a))
+        })
+        .unwrap_or(0);
+    let mut v: Vec<f64> = (0..dim).map(|a| cov[a * dim + col]).collect();
+    let mut lambda = 0.0;
+    for _ in 0..200 {
+        let norm_v = v.iter().map(|x| x * x).sum::<f64>().sqrt();
+        if norm_v == 0.0 || !norm_v.is_finite() {
+            return (0.0, vec![0.0; dim]);
+        }
+        v.iter_mut().for_each(|x| *x /= norm_v);
+        let nv: Vec<f64> = (0..dim)
+            .map(|a| (0..dim).map(|b| cov[a * dim + b] * v[b]).sum())
+            .collect();
+        let next = nv.iter().map(|x| x * x).sum::<f64>().sqrt();
+        let done = (next - lambda).abs() <= 1e-12 * next;
+        lambda = next;
+        v = nv;
+        if done {
+            break;
+        }
+    }
+    let norm_v = v.iter().map(|x| x * x).sum::<f64>().sqrt();
+    if norm_v > 0.0 {
+        v.iter_mut().for_each(|x| *x /= norm_v);
+    }
+    (lambda, v)
+}
+
+/// The best split of one cluster in two: 2-means over its rows, from its mean ± 0.8 σ
+/// along its principal axis (the halves' centroids of a normal distribution sit at
+/// ±√(2/π) σ ≈ 0.8 σ). Returns (SSE decrease, first half's mean, second half's mean).
+fn split_two(data: &Dataset, members: &[u32]) -> (f64, Vec<f64>, Vec<f64>) {
+    let dim = data.dim();
+    let mut mass = 0.0;
+    let mut sum = vec![0.0f64; dim];
+    for &i in members {
+        let w = data.weight(i as usize);
+        mass += w;
+        for (s, &x) in sum.iter_mut().zip(data.row(i as usize)) {
+            *s += w * x as f64;
+        }
+    }
+    if mass <= 0.0 || members.len() < 2 {
+        return (0.0, vec![0.0; dim], vec![0.0; dim]);
+    }
+    let mu: Vec<f64> = sum.iter().map(|s| s / mass).collect();
+    let mut cov = vec![0.0f64; dim * dim];
+    for &i in members {
+        let w = data.weight(i as usize);
+        let x = data.row(i as usize);
+        for a in 0..dim {
+            let da = x[a] as f64 - mu[a];
+            for b in a..dim {
+                cov[a * dim + b] += w * da * (x[b] as f64 - mu[b]);
+            }
+        }
+    }
+    for a in 0..dim {
+        for b in a..dim {
+            cov[a * dim + b] /= mass;
+            cov[b * dim + a] = cov[a * dim + b];
+        }
+    }
+    let whole: f64 = (0..dim).map(|a| cov[a * dim + a]).sum::<f64>() * mass;
+    let (lambda, axis) = principal(&cov, dim);
+    let step = 0.8 * lambda.max(0.0).sqrt();
+    let mut halves = [
+        (0..dim)
+            .map(|a| mu[a] + step * axis[a])
+            .collect::<Vec<f64>>(),
+        (0..dim)
+            .map(|a| mu[a] - step * axis[a])
+            .collect::<Vec<f64>>(),
+    ];
+    let mut split_sse = whole;
+    for _ in 0..8 {
+        let mut acc = [(0.0f64, vec![0.0f64; dim]), (0.0f64, vec![0.0f64; dim])];
+        split_sse = 0.0;
+        for &i in members {
+            let x = data.row(i as usize);
+            let d = |c: &[f64]| {
+                x.iter()
+                    .zip(c)
+                    .map(|(&v, &m)| (v as f64 - m).powi(2))
+                    .sum::<f64>()
+            };
+            let (d0, d1) = (d(&halves[0]), d(&halves[1]));
+            let h = (d1 < d0) as usize;
+            let w = data.weight(i as usize);
+            split_sse += w * d0.min(d1);
+            acc[h].0 += w;
+            for (s, &v) in acc[h].1.iter_mut().zip(x) {
+                *s += w * v as f64;
+            }
+        }
+        for (half, (m, s)) in halves.iter_mut().zip(&acc) {
+            if *m > 0.0 {
+                half.iter_mut().zip(s).for_each(|(h, s)| *h = s / m);
+            }
+        }
+    }
+    let [a, b] = halves;
+    ((whole - split_sse).max(0.0), a, b)
+}
+
+/// Runs Lloyd from `init` (`k × dim`), then up to `max_moves` split-and-merge moves, each
+/// re-converged by Lloyd with `stop`; the SSE never rises.
+pub fn split_merge(data: &Dataset, init: &[f32], max_moves: usize, stop: Stop) -> SplitMerge {
+    let dim = data.dim();
+    let k = init.len() / dim;
+    let first = lloyd(data, init, stop, true);
+    let mut means: Vec<f32> = first.means.iter().map(|&v| v as f32).collect();
+    let mut sse = first.sse;
+    let start_sse = sse;
+    let mut moves = 0;
+    while moves < max_moves && k >= 2 {
+        // Each row's nearest mean, and what giving that mean up would cost it.
+        let parts: Vec<(Vec<u32>, Vec<f64>)> = data
+            .rows()
+            .par_chunks(CHUNK * dim)
+            .enumerate()
+            .map(|(c, rows)| {
+                let mut labels = Vec::with_capacity(rows.len() / dim);
+                let mut cost = vec![0.0f64; k];
+                for (o, x) in rows.chunks_exact(dim).enumerate() {
+                    let (j, d1, d2) = nearest_two(x, &means, dim);
+                    cost[j] += data.weight(c * CHUNK + o) * (d2 - d1) as f64;
+                    labels.push(j as u32);
+                }
+                (labels, cost)
+            })
+            .collect();
+        let mut removal = vec![0.0f64; k];
+        let mut members: Vec<Vec<u32>> = vec![Vec::new(); k];
+        let mut i = 0u32;
+        for (labels, cost) in &parts {
+            removal.iter_mut().zip(cost).for_each(|(r, c)| *r += c);
+            for &j in labels {
+                members[j as usize].push(i);
+                i += 1;
+            }
+        }
+        let splits: Vec<(f64, Vec<f64>, Vec<f64>)> =
+            members.par_iter().map(|m| split_two(data, m)).collect();
+        let mut give_up: Vec<usize> = (0..k).collect();
+        give_up.sort_by(|&a, &b| removal[a].total_cmp(&removal[b]).then(a.cmp(&b)));
+        let mut to_split: Vec<usize> = (0..k).filter(|&c| splits[c].0 > 0.0).collect();
+        to_split.sort_by(|&a, &b| splits[b].0.total_cmp(&splits[a].0).then(a.cmp(&b)));
+        let mut kept = false;
+        'tries: for &c in to_split.iter().take(TRIES) {
+            for &j in give_up.iter().take(TRIES) {
+                if j == c {
+                    continue;
+                }
+                let mut trial = means.clone();
+                for (t, &v) in trial[c * dim..(c + 1) * dim].iter_mut().zip(&splits[c].1) {
+                    *t = v as f32;
+                }
+                for (t, &v) in trial[j * dim..(j + 1) * dim].iter_mut().zip(&splits[c].2) {
+                    *t = v as f32;
+                }
+                let r = lloyd(data, &trial, stop, true);
+                if r.sse < sse * (1.0 - 1e-9) {
+                    means = r.means.iter().map(|&v| v as f32).collect();
+                    sse = r.sse;
+                    kept = true;
+                    break 'tries;
+                }
+            }
+        }
+        if !kept {
+            break;
+        }
+        moves += 1;
+    }
+    SplitMerge {
+        means,
+        sse,
+        start_sse,
+        moves,
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn stop() -> Stop {
+        Stop {
+            max_iter: 100,
+            tolerance: 0.0,
+            shift_tolerance: 0.0,
+        }
+    }
+
+    #[test]
+    fn principal_axis_of_a_diagonal_matrix() {
+        let (l, v) = principal(&[1.0, 0.0, 0.0, 0.0, 9.0, 0.0, 0.0, 0.0, 4.0], 3);
+        assert!((l - 9.0).abs() < 1e-9);
+        assert!((v[1].abs() - 1.0).abs() < 1e-9);
+    }
+
+    #[test]
+    fn moves_a_mean_from_a_tight_pair_to_a_wide_group() {
+        // Hand-checkable layout: two tight groups at 0 and 1 (each served by its own mean)
+        // and a wide pair of groups at 100 and 120 served by one mean at 110. Giving up
+        // one of the tight means costs 100 × 1²·w; splitting the wide cluster saves
+        // 2 × 10²·w. Lloyd alone cannot make that move.
+        let mut rows = Vec::new();
+        for &c in &[0.0f32, 1.0, 100.0, 120.0] {
+            rows.extend([c, 0.0]);
+        }
+        let weights = [100.0, 100.0, 1.0, 1.0];
+        let data = Dataset::new(&rows, 2, Some(&weights)).unwrap();
+        let init = [0.0f32, 0.0, 1.0, 0.0, 110.0, 0.0];
+        let start = lloyd(&data, &init, stop(), true);
+        assert!((start.sse - 200.0).abs() < 1e-6, "{}", start.sse);
+        let r = split_merge(&data, &init, 4, stop());
+        assert_eq!(r.moves, 1);
+        assert!((r.start_sse - 200.0).abs() < 1e-6);
+        // Tight groups merged at 0.5 (cost 200 × 0.25 = 50), wide ones served exactly.
+        assert!((r.sse - 50.0).abs() < 1e-6, "{}", r.sse);
+    }
+
+    #[test]
+    fn never_raises_the_sse_and_stops_at_a_good_solution() {
+        // Three exact groups, three means already on them: nothing to move.
+        let rows = [0.0f32, 0.0, 10.0, 0.0, 0.0, 10.0];
+        let data = Dataset::new(&rows, 2, None).unwrap();
+        let r = split_merge(&data, &rows, 8, stop());
+        assert_eq!(r.moves, 0);
+        assert_eq!(r.sse, 0.0);
+    }
+}
