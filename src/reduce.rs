@@ -291,9 +291,10 @@ pub struct AnnealSetting {
     pub start: f64,
     pub end: f64,
     pub factor: f64,
-    /// Most split-and-merge moves after the last stage.
+    /// Most split-and-merge moves allowed after the last stage (`--anneal-moves`); absent
+    /// in documents written before the moves existed, which read as 0.
     #[serde(default)]
-    pub moves: usize,
+    pub max_moves: usize,
 }
 
 /// The palette document (`STEM.palette.json`).
@@ -777,7 +778,7 @@ fn reduce_indexed(
                 start: a.start,
                 end: a.end,
                 factor: a.factor,
-                moves: a.split_merge,
+                max_moves: a.split_merge,
             }),
             target: opts.target,
         },

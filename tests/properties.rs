@@ -4,7 +4,7 @@
 //! Each property names where it comes from: a definition in a standard or paper that
 //! the implementation must satisfy, not a value computed by this project.
 
-use chromasift::cluster::{kmeans_plus_plus, lloyd, soft_kmeans, Dataset, Stop};
+use chromasift::cluster::{kmeans_plus_plus, lloyd, soft_kmeans, split_merge, Dataset, Stop};
 use chromasift::colour::{delta_e2000, space_to_srgb8, srgb8_to_lab, srgb8_to_oklab, Space};
 use chromasift::histogram::{from_rgba16, from_rgba8, Histogram, TRANSPARENT};
 use chromasift::raster::Decoded;
@@ -136,6 +136,25 @@ proptest! {
                 }
             }
         }
+    }
+
+    /// Split-and-merge moves (after Kaukoranta, Fränti & Nevalainen 1998) keep a move only
+    /// if Lloyd from it lowers the SSE: the result is never above the Lloyd optimum it
+    /// started from, and the reported SSE is that of the returned means.
+    #[test]
+    fn split_merge_never_raises_the_sse((rows, w) in weighted_rows(80), k in 2usize..7, seed in any::<u64>()) {
+        let data = Dataset::new(&rows, 3, Some(&w)).unwrap();
+        let init = kmeans_plus_plus(&data, k, &mut Rng::new(seed, 0));
+        prop_assume!(!init.is_empty());
+        let stop = Stop::exact(100);
+        let start = lloyd(&data, &init, stop, true).sse;
+        let r = split_merge(&data, &init, 8, stop);
+        prop_assert_eq!(r.start_sse, start);
+        prop_assert!(r.sse <= start, "{} after {}", r.sse, start);
+        prop_assert!(r.moves > 0 || r.sse == start);
+        let means: Vec<f64> = r.means.iter().map(|&v| v as f64).collect();
+        let own = weighted_sse(&rows, &w, &means);
+        prop_assert!((own - r.sse).abs() <= 1e-4 * own.max(1.0), "{} vs {}", own, r.sse);
     }
 
     /// Soft k-means as in MacKay (2003), ch. 20 and §22.4: each responsibility update and

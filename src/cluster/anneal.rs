@@ -96,7 +96,8 @@ impl Anneal {
 /// What the annealing did.
 #[derive(Debug, Clone, PartialEq)]
 pub struct AnnealResult {
-    /// Means at the end of the last stage (before any hard polish), `k × dim`.
+    /// Means after the last stage and the split-and-merge moves (which end with Lloyd on
+    /// the finest grid summary), before the caller's hard polish on every row; `k × dim`.
     pub means: Vec<f64>,
     /// β_c = 1/λ_max of the data.
     pub beta_critical: f64,
