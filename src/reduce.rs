@@ -130,25 +130,58 @@ pub fn mean_and_p95(values: &[f64], weights: &[f64], total: f64) -> (f64, f64) {
     for (v, w) in values.iter().zip(weights) {
         sum += w * v;
     }
-    // Entries in value order (ties: entry order), sorted as contiguous (key, index) pairs;
-    // the key orders exactly as `f64::total_cmp`, and with the index it is a total order,
-    // so the unstable sort gives the one possible result.
-    let mut order: Vec<(i64, usize)> = values
-        .iter()
-        .enumerate()
-        .map(|(i, v)| {
-            let b = v.to_bits() as i64;
-            (b ^ (((b >> 63) as u64) >> 1) as i64, i)
-        })
-        .collect();
-    order.sort_unstable();
+    if values.is_empty() {
+        return (sum / total, 0.0);
+    }
+    // Entries in value order (ties: entry order). The key orders exactly as
+    // `f64::total_cmp`, and with the index it is a total order. Instead of sorting every
+    // entry, keys fall into BUCKETS equal slices of their range (bucket order = key order);
+    // bucket weights locate the bucket where the running weight reaches 95 %, and only that
+    // bucket's entries are sorted and walked. With integer weights (pixel counts) every sum
+    // is exact, so the result is the one a full sort and walk gives.
+    const BUCKETS: usize = 1 << 16;
+    let key = |v: f64| {
+        let b = v.to_bits() as i64;
+        b ^ (((b >> 63) as u64) >> 1) as i64
+    };
+    let (lo, hi) = values.iter().fold((i64::MAX, i64::MIN), |(lo, hi), &v| {
+        (lo.min(key(v)), hi.max(key(v)))
+    });
+    let span = (hi as i128 - lo as i128) as u128 + 1;
+    let bucket = |k: i64| ((k as i128 - lo as i128) as u128 * BUCKETS as u128 / span) as usize;
+    let mut mass = vec![0.0f64; BUCKETS];
+    for (&v, &w) in values.iter().zip(weights) {
+        mass[bucket(key(v))] += w;
+    }
     let need = 0.95 * weights.iter().sum::<f64>();
     let mut cum = 0.0;
-    let mut p95 = order.last().map_or(0.0, |&(_, i)| values[i]);
-    for &(_, i) in &order {
-        cum += weights[i];
-        if cum >= need {
-            p95 = values[i];
+    let mut p95 = values[values
+        .iter()
+        .enumerate()
+        .max_by(|a, b| key(*a.1).cmp(&key(*b.1)).then(a.0.cmp(&b.0)))
+        .map_or(0, |(i, _)| i)];
+    for (b, &m) in mass.iter().enumerate() {
+        if cum + m < need {
+            cum += m;
+            continue;
+        }
+        let mut order: Vec<(i64, usize)> = values
+            .iter()
+            .enumerate()
+            .filter(|(_, &v)| bucket(key(v)) == b)
+            .map(|(i, &v)| (key(v), i))
+            .collect();
+        order.sort_unstable();
+        let mut found = false;
+        for &(_, i) in &order {
+            cum += weights[i];
+            if cum >= need {
+                p95 = values[i];
+                found = true;
+                break;
+            }
+        }
+        if found {
             break;
         }
     }
@@ -1080,6 +1113,23 @@ mod tests {
             assert_eq!(p95, p95_by_definition(&values, &weights), "n = {n}");
             let m: f64 = values.iter().zip(&weights).map(|(v, w)| v * w).sum::<f64>() / total;
             assert!((mean - m).abs() <= 1e-12 * m.abs().max(1.0));
+        }
+        // Continuous values over a wide range (many occupied buckets, negatives, a few
+        // exact repeats, zero weights) against the definition.
+        for n in [3usize, 1000, 3000] {
+            let values: Vec<f64> = (0..n)
+                .map(|i| {
+                    if i % 97 == 0 {
+                        2.5
+                    } else {
+                        (r.uniform() - 0.1) * 10f64.powi(r.below(5) as i32)
+                    }
+                })
+                .collect();
+            let weights: Vec<f64> = (0..n).map(|_| r.below(6) as f64).collect();
+            let total: f64 = weights.iter().sum::<f64>().max(1.0);
+            let (_, p95) = mean_and_p95(&values, &weights, total);
+            assert_eq!(p95, p95_by_definition(&values, &weights), "n = {n}");
         }
     }
 }

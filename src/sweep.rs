@@ -138,6 +138,13 @@ pub fn sweep_rows(
         shift_tolerance: opts.shift_tolerance,
     };
     let mut rows = Vec::new();
+    // Contributor timings (CHROMASIFT_TIMINGS): fits, ΔE2000, soft entropy, silhouette.
+    let mut spent = [0.0f64; 4];
+    let mut clock = std::time::Instant::now();
+    let mut lap = |slot: usize, spent: &mut [f64; 4]| {
+        spent[slot] += clock.elapsed().as_secs_f64();
+        clock = std::time::Instant::now();
+    };
     k_path(
         data,
         opts.range.min,
@@ -146,6 +153,7 @@ pub fn sweep_rows(
         stop,
         true,
         |k, res| {
+            lap(0, &mut spent);
             let (mean_de, p95_de) = match labs {
                 Some(labs) => {
                     let de = entry_delta_e2000(&res.means, &res.labels, labs, space);
@@ -154,12 +162,14 @@ pub fn sweep_rows(
                 }
                 None => (None, None),
             };
+            lap(1, &mut spent);
             let beta = auto_beta(res.sse, total, dim);
             let soft = soft_assign(data, &res.means, beta);
             let mut unc = 0.0;
             for (h, w) in soft.entropy.iter().zip(&weights) {
                 unc += w * *h as f64;
             }
+            lap(2, &mut spent);
             let sample_labels: Vec<u32> = picks.iter().map(|&i| res.labels[i]).collect();
             let mut cluster_w = vec![0.0f64; k];
             for (l, w) in res.labels.iter().zip(&weights) {
@@ -174,9 +184,16 @@ pub fn sweep_rows(
                 silhouette: silhouette(&sample_rows, dim, &sample_labels),
                 bic: bic(res.sse, &cluster_w, dim),
             });
+            lap(3, &mut spent);
             true
         },
     );
+    if crate::trace::enabled() {
+        eprintln!(
+            "chromasift: timing: sweep over K: fits {:.3} s, ΔE2000 {:.3} s, soft entropy {:.3} s, silhouette {:.3} s",
+            spent[0], spent[1], spent[2], spent[3]
+        );
+    }
     rows
 }
 
