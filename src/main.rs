@@ -518,6 +518,7 @@ fn run() -> ExitCode {
                 (f.restarts != 1, "--restarts"),
                 (f.target_delta_e.is_some(), "--target-delta-e"),
                 (f.anneal, "--anneal"),
+                (f.split_merge.is_some(), "--split-merge"),
                 (f.max_iter != 300, "--max-iter"),
             ]
             .into_iter()

@@ -45,6 +45,9 @@ pub struct ReduceOptions {
     pub uncertainty_raw: bool,
     /// Start from deterministic annealing instead of k-means++. Default: off.
     pub anneal: Option<Anneal>,
+    /// Most split-and-merge moves after each k-means++ start (with annealing, its own
+    /// `Anneal::split_merge` applies instead). Default: 0.
+    pub split_merge: usize,
     /// Choose K as the smallest meeting a colour-difference target (then `k` is unused).
     /// Default: off.
     pub target: Option<QualityTarget>,
@@ -264,6 +267,7 @@ impl ReduceOptions {
             limits: Limits::default(),
             uncertainty_raw: false,
             anneal: None,
+            split_merge: p.split_merge,
             target: None,
         }
     }
@@ -279,6 +283,7 @@ impl ReduceOptions {
             .tolerance(self.tolerance)
             .shift_tolerance(self.shift_tolerance)
             .anneal(self.anneal)
+            .split_merge(self.split_merge)
     }
 }
 
@@ -316,6 +321,13 @@ pub struct ReduceSettings {
     /// The colour-difference target K was chosen by, when used.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub target: Option<QualityTarget>,
+    /// Most split-and-merge moves after each k-means++ start (`--split-merge`), when used.
+    #[serde(default, skip_serializing_if = "is_zero")]
+    pub split_merge: usize,
+}
+
+fn is_zero(n: &usize) -> bool {
+    *n == 0
 }
 
 /// The annealing schedule as recorded in the palette document.
@@ -324,7 +336,7 @@ pub struct AnnealSetting {
     pub start: f64,
     pub end: f64,
     pub factor: f64,
-    /// Most split-and-merge moves allowed after the last stage (`--anneal-moves`); absent
+    /// Most split-and-merge moves allowed after the last stage (`--split-merge`); absent
     /// in documents written before the moves existed, which read as 0.
     #[serde(default)]
     pub max_moves: usize,
@@ -419,6 +431,12 @@ impl ReduceOptions {
             self.anneal,
             self.target,
         );
+        // Added after the fields above, only when used, so earlier fingerprints still hold.
+        let text = if self.split_merge > 0 && self.anneal.is_none() {
+            format!("{text}|split-merge {}", self.split_merge)
+        } else {
+            text
+        };
         format!("{:016x}", fnv1a(text.as_bytes()))
     }
 }
@@ -814,6 +832,11 @@ fn reduce_indexed(
                 max_moves: a.split_merge,
             }),
             target: opts.target,
+            split_merge: if opts.anneal.is_none() {
+                opts.split_merge
+            } else {
+                0
+            },
         },
         source: None,
         settings_fingerprint: None,

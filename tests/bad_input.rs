@@ -417,22 +417,9 @@ fn rows(s: &Scene) -> Vec<Row> {
         &["--anneal"],
     );
     add(
-        "reduce split-and-merge moves without --anneal",
-        &["reduce", &good, "--anneal-moves", "4", "-o", &new_out],
-        &["--anneal"],
-    );
-    add(
         "reduce negative split-and-merge moves",
-        &[
-            "reduce",
-            &good,
-            "--anneal",
-            "--anneal-moves",
-            "-1",
-            "-o",
-            &new_out,
-        ],
-        &["--anneal-moves"],
+        &["reduce", &good, "--split-merge", "-1", "-o", &new_out],
+        &["'-1'", "--split-merge"],
     );
     add(
         "batch without an output folder",

@@ -233,6 +233,58 @@ fn same_output_bytes_on_one_and_two_threads() {
     assert_eq!(outs[0], outs[1]);
 }
 
+/// `--split-merge N` after a k-means++ start, and `--anneal` with its moves: the same
+/// bytes on one and two threads, the setting recorded in the palette document, and an
+/// SSE no higher than the same start without moves (each move is kept only if it lowers
+/// the SSE on the grid summary; here, on the demo poster, it also does on every colour).
+#[test]
+fn split_merge_moves_same_bytes_on_one_and_two_threads() {
+    let input = fixture("demo/harbour-poster.png");
+    let sse_of = |dir: &std::path::Path| -> (f64, serde_json::Value) {
+        let doc: serde_json::Value = serde_json::from_str(
+            &std::fs::read_to_string(dir.join("harbour-poster.palette.json")).unwrap(),
+        )
+        .unwrap();
+        (doc["sse"].as_f64().unwrap(), doc)
+    };
+    let plain = tempfile::tempdir().unwrap();
+    reduce_ok(&[
+        "reduce",
+        input.to_str().unwrap(),
+        "-k",
+        "12",
+        "-o",
+        plain.path().to_str().unwrap(),
+    ]);
+    let (plain_sse, plain_doc) = sse_of(plain.path());
+    assert!(plain_doc["settings"].get("split_merge").is_none());
+    for extra in [&["--split-merge", "16"][..], &["--anneal"][..]] {
+        let mut outs = Vec::new();
+        for threads in ["1", "2"] {
+            let dir = tempfile::tempdir().unwrap();
+            let mut args = vec!["reduce", input.to_str().unwrap(), "-k", "12"];
+            args.extend_from_slice(extra);
+            args.extend_from_slice(&["-o", dir.path().to_str().unwrap()]);
+            let o = run(&args, &[("RAYON_NUM_THREADS", threads)]);
+            assert!(o.status.success(), "{}", stderr(&o));
+            let files: Vec<(String, Vec<u8>)> = files_in(dir.path())
+                .into_iter()
+                .map(|f| (f.clone(), std::fs::read(dir.path().join(&f)).unwrap()))
+                .collect();
+            let (sse, doc) = sse_of(dir.path());
+            if extra[0] == "--split-merge" {
+                assert_eq!(doc["settings"]["split_merge"], 16, "{extra:?}");
+                assert!(sse <= plain_sse, "{extra:?}: {sse} vs {plain_sse}");
+            } else {
+                assert_eq!(doc["settings"]["anneal"]["max_moves"], 32);
+                assert!(doc["settings"].get("split_merge").is_none());
+            }
+            outs.push(files);
+        }
+        assert_eq!(outs[0], outs[1], "{extra:?}");
+    }
+}
+
 #[test]
 fn uncertainty_peaks_at_the_boundary_of_a_two_colour_gradient() {
     let dir = tempfile::tempdir().unwrap();

@@ -557,7 +557,7 @@ pub struct ReduceFlags {
 
     /// Start from deterministic annealing (Rose, Gurewitz & Fox 1990) instead of
     /// k-means++: soft k-means with β raised geometrically from --anneal-start to
-    /// --anneal-end, then split-and-merge moves (--anneal-moves), then a hard Lloyd polish.
+    /// --anneal-end, then split-and-merge moves (--split-merge), then a hard Lloyd polish.
     #[arg(long)]
     pub anneal: bool,
 
@@ -574,11 +574,11 @@ pub struct ReduceFlags {
     #[arg(long = "anneal-factor", default_value_t = Anneal::default().factor, value_name = "RATIO", requires = "anneal")]
     pub anneal_factor: f64,
 
-    /// Most split-and-merge moves after the annealing's last stage (each moves one mean
-    /// from where it is least needed to split the cluster that gains most, and is kept
-    /// only if the SSE falls); 0 for none.
-    #[arg(long = "anneal-moves", default_value_t = Anneal::default().split_merge, value_name = "N", requires = "anneal")]
-    pub anneal_moves: usize,
+    /// Most split-and-merge moves after each start (each moves one mean from where it is
+    /// least needed to split the cluster that gains most, and is kept only if the SSE
+    /// falls); 0 for none. Default: 32 with --anneal, 0 without.
+    #[arg(long = "split-merge", value_name = "N")]
+    pub split_merge: Option<usize>,
 }
 
 impl ReduceFlags {
@@ -601,9 +601,14 @@ impl ReduceFlags {
                 start: self.anneal_start,
                 end: self.anneal_end,
                 factor: self.anneal_factor,
-                split_merge: self.anneal_moves,
+                split_merge: self.split_merge.unwrap_or(Anneal::default().split_merge),
                 ..Anneal::default()
             }),
+            split_merge: if self.anneal {
+                0
+            } else {
+                self.split_merge.unwrap_or(0)
+            },
             target: quality_target(self.target_delta_e, self.target_p95, self.k_max),
         }
     }

@@ -19,10 +19,9 @@
 //! [`Anneal::split_merge`] split-and-merge moves ([`super::split_merge`]) run on the finest
 //! grid summary; each is kept only if it lowers the SSE there.
 
-use super::hard::Stop;
 use super::model::coarsen;
 use super::soft::soft_kmeans;
-use super::split_merge::split_merge;
+use super::split_merge::{split_merge, trial_stop};
 use super::Dataset;
 use crate::error::ParamsError;
 use crate::rng::Rng;
@@ -110,7 +109,7 @@ pub struct AnnealResult {
 }
 
 /// Weighted mean and the largest eigenvalue of the weighted covariance (power iteration).
-fn centroid_and_lambda_max(data: &Dataset) -> (Vec<f64>, f64) {
+pub(crate) fn centroid_and_lambda_max(data: &Dataset) -> (Vec<f64>, f64) {
     let dim = data.dim();
     let total = data.total_weight();
     let mut mean = vec![0.0f64; dim];
@@ -235,12 +234,7 @@ pub fn anneal(
         let finest =
             Dataset::new(&levels[0].1, dim, Some(&levels[0].2)).expect("grid summary is valid");
         let init: Vec<f32> = means.iter().map(|&v| v as f32).collect();
-        let stop = Stop {
-            max_iter: 50,
-            tolerance,
-            shift_tolerance: 1e-4,
-        };
-        let r = split_merge(&finest, &init, schedule.split_merge, stop);
+        let r = split_merge(&finest, &init, schedule.split_merge, trial_stop(tolerance));
         if crate::trace::enabled() {
             eprintln!(
                 "chromasift: timing: annealing split-and-merge: {} moves, grid SSE {:.6e} -> {:.6e}",

@@ -100,7 +100,22 @@ pub fn fit(data: &Dataset, params: &ValidParams) -> Result<KMeansModel> {
                 let mut rng = Rng::new(params.seed, r as u64);
                 let init = kmeans_plus_plus(data, params.k, &mut rng);
                 ph.mark("k-means++");
-                init
+                if params.split_merge > 0 {
+                    // On the grid annealing's last stage uses: cells σ_max/16 wide.
+                    let sigma = super::anneal::centroid_and_lambda_max(data).1.sqrt();
+                    let cell = sigma * super::Anneal::default().finest_cell;
+                    let moved = super::split_merge::moves_on_grid(
+                        data,
+                        &init,
+                        params.split_merge,
+                        params.tolerance,
+                        cell,
+                    );
+                    ph.mark("split-and-merge");
+                    moved
+                } else {
+                    init
+                }
             }
         };
         let res = lloyd(data, &init, stop_rule(params), params.accelerate);

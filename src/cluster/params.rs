@@ -84,6 +84,10 @@ pub struct KMeansParams {
     pub shift_tolerance: f64,
     /// Start from deterministic annealing instead of k-means++. Default: off.
     pub anneal: Option<super::Anneal>,
+    /// Most split-and-merge moves after each k-means++ start ([`super::split_merge`], on
+    /// a grid summary of the rows; annealing has its own, `Anneal::split_merge`).
+    /// Default: 0 (none).
+    pub split_merge: usize,
     /// Use distance bounds (Hamerly 2010) to skip work; same result as plain Lloyd. Default: true.
     pub accelerate: bool,
 }
@@ -101,6 +105,7 @@ impl KMeansParams {
             tolerance: 1e-6,
             shift_tolerance: 1e-4,
             anneal: None,
+            split_merge: 0,
             accelerate: true,
         }
     }
@@ -134,6 +139,10 @@ impl KMeansParams {
     }
     pub fn anneal(mut self, anneal: Option<super::Anneal>) -> Self {
         self.anneal = anneal;
+        self
+    }
+    pub fn split_merge(mut self, moves: usize) -> Self {
+        self.split_merge = moves;
         self
     }
     pub fn accelerate(mut self, accelerate: bool) -> Self {

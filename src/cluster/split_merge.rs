@@ -14,6 +14,7 @@
 //! result.
 
 use super::hard::{lloyd, Stop};
+use super::model::coarsen;
 use super::{nearest_two, Dataset, CHUNK};
 use rayon::prelude::*;
 
@@ -150,6 +151,35 @@ fn split_two(data: &Dataset, members: &[u32]) -> (f64, Vec<f64>, Vec<f64>) {
     }
     let [a, b] = halves;
     ((whole - split_sse).max(0.0), a, b)
+}
+
+/// The Lloyd stopping rule of the moves' trials: at most 50 iterations, the caller's
+/// relative SSE tolerance, and the centre-shift rule at its default.
+pub(crate) fn trial_stop(tolerance: f64) -> Stop {
+    Stop {
+        max_iter: 50,
+        tolerance,
+        shift_tolerance: 1e-4,
+    }
+}
+
+/// Split-and-merge moves from a start (`k × dim`) on a grid summary of `data` with cells
+/// `cell` wide (the rows themselves when `cell` is not positive): what `fit` runs after
+/// each k-means++ start when asked to. The caller polishes the result on every row.
+pub(crate) fn moves_on_grid(
+    data: &Dataset,
+    init: &[f32],
+    max_moves: usize,
+    tolerance: f64,
+    cell: f64,
+) -> Vec<f32> {
+    let (rows, weights) = coarsen(data, cell);
+    match Dataset::new(&rows, data.dim(), Some(&weights)) {
+        Ok(grid) if !grid.is_empty() => {
+            split_merge(&grid, init, max_moves, trial_stop(tolerance)).means
+        }
+        _ => init.to_vec(),
+    }
 }
 
 /// Runs Lloyd from `init` (`k × dim`), then up to `max_moves` split-and-merge moves, each
