@@ -15,11 +15,13 @@ On the 12-megapixel photo made by benches/compare_sklearn.py (skimage coffee, CC
 
 The same SSE comparison is repeated on the first --roll-count photos of the batch
 benchmark's roll (benches/batch_bench.py), so "most images" can be counted.
+`--candidate '--split-merge 32'` compares other flags than `--anneal` the same way.
 """
 import argparse
 import json
 import os
 import re
+import shlex
 import statistics
 import subprocess
 import tempfile
@@ -47,8 +49,9 @@ def sse_of(out):
     raise SystemExit("no palette.json")
 
 
-def compare_anneal(image, repeats=1):
-    """Annealing against k-means++ restarts given the same wall time.
+def compare_anneal(image, repeats=1, candidate=("--anneal",)):
+    """Annealing (or the `--candidate` flags) against k-means++ restarts given the same
+    wall time.
 
     Restarts share the decode, histogram and output work, so R restarts cost far less than
     R plain runs. The cost of one more restart is measured (`--restarts 5` against a plain
@@ -56,7 +59,7 @@ def compare_anneal(image, repeats=1):
     time; the R-restart run's own time is printed so the budget can be checked.
     """
     t_plain = statistics.median(run(["reduce", image, "-k", "16"])[0] for _ in range(repeats))
-    t_ann, out_a, _ = run(["reduce", image, "-k", "16", "--anneal"])
+    t_ann, out_a, _ = run(["reduce", image, "-k", "16", *candidate])
     t_five = statistics.median(run(["reduce", image, "-k", "16", "--restarts", "5"])[0]
                                for _ in range(repeats))
     per_start = max((t_five - t_plain) / 4, 1e-3)
@@ -73,6 +76,8 @@ def main():
     ap.add_argument("--roll", default="/tmp/chromasift-bench/roll200")
     ap.add_argument("--roll-count", type=int, default=6)
     ap.add_argument("--repeats", type=int, default=3)
+    ap.add_argument("--candidate", default="--anneal",
+                    help="flags compared with equal-time restarts, e.g. '--split-merge 32'")
     a = ap.parse_args()
     res = {}
     med = lambda args: statistics.median(run(args)[0] for _ in range(a.repeats))
@@ -92,19 +97,19 @@ def main():
     wins_single = 0
     res["anneal_vs_restarts"] = []
     for im in images:
-        c = compare_anneal(im)
+        c = compare_anneal(im, candidate=tuple(shlex.split(a.candidate)))
         c["image"] = os.path.basename(im)
         better = c["anneal_sse"] < c["restarts_sse"]
         wins += better
         wins_single += c["anneal_sse"] < c["plain_sse"]
         res["anneal_vs_restarts"].append(c)
-        print(f"{c['image']:34s} anneal {c['anneal_s']:.2f} s SSE {c['anneal_sse']:.5e}; "
+        print(f"{c['image']:34s} {a.candidate} {c['anneal_s']:.2f} s SSE {c['anneal_sse']:.5e}; "
               f"{c['restarts']} restart(s) {c['restarts_s']:.2f} s SSE {c['restarts_sse']:.5e}; "
-              f"one start SSE {c['plain_sse']:.5e}: {'anneal lower' if better else 'restarts lower or equal'}")
+              f"one start SSE {c['plain_sse']:.5e}: {'candidate lower' if better else 'restarts lower or equal'}")
     res["anneal_lower_on"] = f"{wins}/{len(images)}"
     res["anneal_lower_than_one_start_on"] = f"{wins_single}/{len(images)}"
-    print(f"annealing reached a lower SSE on {wins} of {len(images)} images at the same time budget")
-    print(f"annealing reached a lower SSE than a single k-means++ start on {wins_single} of {len(images)} images")
+    print(f"{a.candidate} reached a lower SSE on {wins} of {len(images)} images at the same time budget")
+    print(f"{a.candidate} reached a lower SSE than a single k-means++ start on {wins_single} of {len(images)} images")
     print(json.dumps(res))
 
 
