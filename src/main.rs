@@ -143,9 +143,35 @@ fn print_reduce_summary(input: &std::path::Path, report: &reduce::ReduceReport, 
     }
 }
 
+/// With a given palette (`apply`, `batch --palette`), says which of the flags that only
+/// shape how a palette is fitted were given anyway.
+fn note_fitting_flags(command: &str, f: &chromasift::cli::ReduceFlags) {
+    let ignored: Vec<&str> = [
+        (f.k != 8, "-k"),
+        (f.restarts != 1, "--restarts"),
+        (f.target_delta_e.is_some(), "--target-delta-e"),
+        (f.anneal, "--anneal"),
+        (f.split_merge.is_some(), "--split-merge"),
+        (f.max_iter != 300, "--max-iter"),
+    ]
+    .into_iter()
+    .filter_map(|(set, name)| set.then_some(name))
+    .collect();
+    if !ignored.is_empty() {
+        eprintln!(
+            "chromasift: note: {command} maps onto the palette's colours as they are; {} \
+             only change how a palette is fitted, so they have no effect here",
+            ignored.join(", ")
+        );
+    }
+}
+
 fn run_batch(args: chromasift::cli::BatchArgs) -> ExitCode {
     use std::io::IsTerminal;
     let _ = ctrlc::set_handler(|| STOP.store(true, Ordering::SeqCst));
+    if args.palette.is_some() {
+        note_fitting_flags("batch --palette", &args.settings);
+    }
     let palette = match args.palette.as_deref().map(read_palette).transpose() {
         Ok(p) => p,
         Err(e) => return fail(e),
@@ -512,25 +538,7 @@ fn run() -> ExitCode {
             }
         }
         Command::Apply(args) => {
-            let f = &args.settings;
-            let ignored: Vec<&str> = [
-                (f.k != 8, "-k"),
-                (f.restarts != 1, "--restarts"),
-                (f.target_delta_e.is_some(), "--target-delta-e"),
-                (f.anneal, "--anneal"),
-                (f.split_merge.is_some(), "--split-merge"),
-                (f.max_iter != 300, "--max-iter"),
-            ]
-            .into_iter()
-            .filter_map(|(set, name)| set.then_some(name))
-            .collect();
-            if !ignored.is_empty() {
-                eprintln!(
-                    "chromasift: note: apply maps onto the palette's colours as they are; {} \
-                     only change how a palette is fitted, so they have no effect here",
-                    ignored.join(", ")
-                );
-            }
+            note_fitting_flags("apply", &args.settings);
             let opts = args.settings.options();
             let palette = match read_palette(&args.palette) {
                 Ok(p) => p,

@@ -600,6 +600,21 @@ fn reduce_indexed(
         (means, beta, sse, 0, a.labels, a.entropy)
     } else if let Some(target) = opts.target.as_ref().filter(|_| hist.len() > 1) {
         target.check()?;
+        let unused: Vec<&str> = [
+            (opts.anneal.is_some(), "--anneal"),
+            (opts.split_merge > 0, "--split-merge"),
+            (opts.restarts > 1, "--restarts"),
+        ]
+        .into_iter()
+        .filter_map(|(set, name)| set.then_some(name))
+        .collect();
+        if !unused.is_empty() {
+            notes.push(format!(
+                "the K search follows one warm-started path of K (the sweep's), so {} have \
+                 no effect with a ΔE2000 target",
+                unused.join(", ")
+            ));
+        }
         let search = search_k(
             &data,
             &labs,
@@ -832,7 +847,9 @@ fn reduce_indexed(
                 max_moves: a.split_merge,
             }),
             target: opts.target,
-            split_merge: if opts.anneal.is_none() {
+            // Recorded only where it acted: after k-means++ starts, not with annealing
+            // (which records its own), a ΔE2000 target's K path, or a fixed palette.
+            split_merge: if opts.anneal.is_none() && opts.target.is_none() && fixed.is_none() {
                 opts.split_merge
             } else {
                 0
@@ -1122,6 +1139,30 @@ mod tests {
             }
         }
         f64::NAN
+    }
+
+    #[test]
+    fn fingerprint_tells_split_merge_settings_apart() {
+        let base = ReduceOptions::new(8);
+        let with = |n: usize| ReduceOptions {
+            split_merge: n,
+            ..base.clone()
+        };
+        assert_eq!(with(0).fingerprint(None), base.fingerprint(None));
+        assert_ne!(with(8).fingerprint(None), base.fingerprint(None));
+        assert_ne!(with(8).fingerprint(None), with(16).fingerprint(None));
+        let annealed = |n: usize| ReduceOptions {
+            anneal: Some(Anneal {
+                split_merge: n,
+                ..Anneal::default()
+            }),
+            ..base.clone()
+        };
+        assert_ne!(
+            annealed(32).fingerprint(None),
+            annealed(0).fingerprint(None)
+        );
+        assert_ne!(annealed(32).fingerprint(None), base.fingerprint(None));
     }
 
     #[test]

@@ -141,6 +141,21 @@ fn batch_mirrors_reports_survives_a_bad_file_and_resumes() {
         &[],
     );
     assert_eq!(report(&out)["totals"]["ok"], 3);
+    // Split-and-merge moves are a setting too: adding them redoes every image.
+    run(
+        &[
+            "batch",
+            s.to_str().unwrap(),
+            "-k",
+            "4",
+            "--split-merge",
+            "8",
+            "-o",
+            out.to_str().unwrap(),
+        ],
+        &[],
+    );
+    assert_eq!(report(&out)["totals"]["ok"], 3);
     run(
         &[
             "batch",
@@ -536,6 +551,28 @@ fn apply_notes_fitting_flags_it_cannot_use() {
     let err = stderr(&with_k);
     assert!(
         err.contains("-k, --restarts") && err.contains("no effect"),
+        "{err}"
+    );
+    // The same note from a batch given a palette.
+    let batch_out = root.path().join("batch-applied");
+    let b = run(
+        &[
+            "batch",
+            s.to_str().unwrap(),
+            "--palette",
+            pal.to_str().unwrap(),
+            "--split-merge",
+            "8",
+            "-o",
+            batch_out.to_str().unwrap(),
+        ],
+        &[],
+    );
+    let err = stderr(&b);
+    assert!(
+        err.contains("batch --palette")
+            && err.contains("--split-merge")
+            && err.contains("no effect"),
         "{err}"
     );
 }

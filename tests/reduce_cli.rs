@@ -283,6 +283,31 @@ fn split_merge_moves_same_bytes_on_one_and_two_threads() {
         }
         assert_eq!(outs[0], outs[1], "{extra:?}");
     }
+    // With a ΔE2000 target, K comes from the warm-started path: the moves cannot act,
+    // the user is told so, and the document does not claim them.
+    let dir = tempfile::tempdir().unwrap();
+    let o = run(
+        &[
+            "reduce",
+            input.to_str().unwrap(),
+            "--target-delta-e",
+            "4",
+            "--split-merge",
+            "16",
+            "-o",
+            dir.path().to_str().unwrap(),
+        ],
+        &[],
+    );
+    assert!(o.status.success(), "{}", stderr(&o));
+    assert!(
+        stderr(&o).contains("--split-merge have no effect"),
+        "{}",
+        stderr(&o)
+    );
+    assert!(sse_of(dir.path()).1["settings"]
+        .get("split_merge")
+        .is_none());
 }
 
 #[test]

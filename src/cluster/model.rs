@@ -81,6 +81,12 @@ pub fn stop_rule(params: &ValidParams) -> Stop {
 /// ties); in soft mode, soft k-means then starts from it.
 pub fn fit(data: &Dataset, params: &ValidParams) -> Result<KMeansModel> {
     check_data(data)?;
+    // Split-and-merge moves after k-means++ starts run on the grid summary annealing's
+    // last stage uses (cells σ_max/16 wide), built once for all restarts.
+    let grid = (params.anneal.is_none() && params.split_merge > 0).then(|| {
+        let sigma = super::anneal::centroid_and_lambda_max(data).1.sqrt();
+        coarsen(data, sigma * super::Anneal::default().finest_cell)
+    });
     let mut best = None;
     for r in 0..params.restarts {
         let mut ph = crate::trace::Phases::start("fit");
@@ -100,21 +106,20 @@ pub fn fit(data: &Dataset, params: &ValidParams) -> Result<KMeansModel> {
                 let mut rng = Rng::new(params.seed, r as u64);
                 let init = kmeans_plus_plus(data, params.k, &mut rng);
                 ph.mark("k-means++");
-                if params.split_merge > 0 {
-                    // On the grid annealing's last stage uses: cells σ_max/16 wide.
-                    let sigma = super::anneal::centroid_and_lambda_max(data).1.sqrt();
-                    let cell = sigma * super::Anneal::default().finest_cell;
-                    let moved = super::split_merge::moves_on_grid(
-                        data,
-                        &init,
-                        params.split_merge,
-                        params.tolerance,
-                        cell,
-                    );
-                    ph.mark("split-and-merge");
-                    moved
-                } else {
-                    init
+                match &grid {
+                    Some((rows, weights)) => {
+                        let moved = super::split_merge::moves_on_grid(
+                            rows,
+                            weights,
+                            data.dim(),
+                            &init,
+                            params.split_merge,
+                            params.tolerance,
+                        );
+                        ph.mark("split-and-merge");
+                        moved
+                    }
+                    None => init,
                 }
             }
         };

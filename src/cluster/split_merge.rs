@@ -14,7 +14,6 @@
 //! result.
 
 use super::hard::{lloyd, Stop};
-use super::model::coarsen;
 use super::{nearest_two, Dataset, CHUNK};
 use rayon::prelude::*;
 
@@ -163,18 +162,18 @@ pub(crate) fn trial_stop(tolerance: f64) -> Stop {
     }
 }
 
-/// Split-and-merge moves from a start (`k × dim`) on a grid summary of `data` with cells
-/// `cell` wide (the rows themselves when `cell` is not positive): what `fit` runs after
-/// each k-means++ start when asked to. The caller polishes the result on every row.
+/// Split-and-merge moves from a start (`k × dim`) on a grid summary (`rows`, `weights`,
+/// from `model::coarsen`): what `fit` runs after each k-means++ start when asked to. The
+/// caller polishes the result on every row.
 pub(crate) fn moves_on_grid(
-    data: &Dataset,
+    rows: &[f32],
+    weights: &[f64],
+    dim: usize,
     init: &[f32],
     max_moves: usize,
     tolerance: f64,
-    cell: f64,
 ) -> Vec<f32> {
-    let (rows, weights) = coarsen(data, cell);
-    match Dataset::new(&rows, data.dim(), Some(&weights)) {
+    match Dataset::new(rows, dim, Some(weights)) {
         Ok(grid) if !grid.is_empty() => {
             split_merge(&grid, init, max_moves, trial_stop(tolerance)).means
         }
