@@ -84,8 +84,12 @@ pub fn fit(data: &Dataset, params: &ValidParams) -> Result<KMeansModel> {
     // Split-and-merge moves after k-means++ starts run on the grid summary annealing's
     // last stage uses (cells σ_max/16 wide), built once for all restarts.
     let grid = (params.anneal.is_none() && params.split_merge > 0).then(|| {
+        let mut ph = crate::trace::Phases::start("fit");
         let sigma = super::anneal::centroid_and_lambda_max(data).1.sqrt();
-        coarsen(data, sigma * super::Anneal::default().finest_cell)
+        ph.mark("principal axis");
+        let grid = coarsen(data, sigma * super::Anneal::default().finest_cell);
+        ph.mark("grid summary");
+        grid
     });
     let mut best = None;
     for r in 0..params.restarts {
@@ -160,29 +164,71 @@ pub(crate) fn coarsen(data: &Dataset, cell: f64) -> (Vec<f32>, Vec<f64>) {
             (0..data.len()).map(|i| data.weight(i)).collect(),
         );
     }
-    let mut cells: std::collections::BTreeMap<Vec<i64>, (f64, Vec<f64>)> =
-        std::collections::BTreeMap::new();
-    for i in 0..data.len() {
-        let w = data.weight(i);
-        if w == 0.0 {
-            continue;
-        }
-        let x = data.row(i);
-        let key: Vec<i64> = x
-            .iter()
-            .map(|&v| (v as f64 / cell).floor() as i64)
-            .collect();
-        let e = cells.entry(key).or_insert_with(|| (0.0, vec![0.0; dim]));
-        e.0 += w;
-        for (s, &v) in e.1.iter_mut().zip(x) {
-            *s += w * v as f64;
+    // Each row's cell key; rows sorted by (key, row) so that each cell's rows are
+    // consecutive and in row order: the same sums, in the same order, and the same cell
+    // order (keys compared as sequences) as a map from key to running sums would give.
+    let n = data.len();
+    let mut keys = vec![0i64; n * dim];
+    for (i, k) in keys.chunks_exact_mut(dim.max(1)).enumerate().take(n) {
+        for (kv, &v) in k.iter_mut().zip(data.row(i)) {
+            *kv = (v as f64 / cell).floor() as i64;
         }
     }
-    let mut rows = Vec::with_capacity(cells.len() * dim);
-    let mut weights = Vec::with_capacity(cells.len());
-    for (_, (w, s)) in cells {
-        rows.extend(s.iter().map(|v| (v / w) as f32));
+    let mut order: Vec<u32> = (0..n as u32)
+        .filter(|&i| data.weight(i as usize) != 0.0)
+        .collect();
+    let key = |i: u32| &keys[i as usize * dim..(i as usize + 1) * dim];
+    // When every key fits in 64 bits (offset from its dimension's least value, first
+    // dimension most significant), sort packed integers: the same order, much faster.
+    let mut lo = vec![i64::MAX; dim];
+    let mut hi = vec![i64::MIN; dim];
+    for &i in &order {
+        for ((l, h), &k) in lo.iter_mut().zip(hi.iter_mut()).zip(key(i)) {
+            *l = (*l).min(k);
+            *h = (*h).max(k);
+        }
+    }
+    let bits: Vec<u32> = lo
+        .iter()
+        .zip(&hi)
+        .map(|(&l, &h)| 64 - ((h as i128 - l as i128).max(0) as u64).leading_zeros())
+        .collect();
+    if !order.is_empty() && bits.iter().sum::<u32>() <= 64 {
+        let mut packed: Vec<(u64, u32)> = order
+            .iter()
+            .map(|&i| {
+                let mut p = 0u64;
+                for ((&k, &l), &b) in key(i).iter().zip(&lo).zip(&bits) {
+                    p = if b == 64 { 0 } else { p << b } | (k as i128 - l as i128) as u64;
+                }
+                (p, i)
+            })
+            .collect();
+        packed.sort_unstable();
+        order = packed.into_iter().map(|(_, i)| i).collect();
+    } else {
+        order.sort_unstable_by(|&a, &b| key(a).cmp(key(b)).then(a.cmp(&b)));
+    }
+    let mut rows = Vec::new();
+    let mut weights = Vec::new();
+    let mut sum = vec![0.0f64; dim];
+    let mut start = 0;
+    while start < order.len() {
+        let mut end = start;
+        let mut w = 0.0;
+        sum.iter_mut().for_each(|s| *s = 0.0);
+        while end < order.len() && key(order[end]) == key(order[start]) {
+            let i = order[end] as usize;
+            let wi = data.weight(i);
+            w += wi;
+            for (s, &v) in sum.iter_mut().zip(data.row(i)) {
+                *s += wi * v as f64;
+            }
+            end += 1;
+        }
+        rows.extend(sum.iter().map(|v| (v / w) as f32));
         weights.push(w);
+        start = end;
     }
     (rows, weights)
 }
@@ -234,4 +280,67 @@ pub fn finish(
         }
     }
     model
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// The grid summary as a map from cell key to running sums, in key order: the
+    /// definition `coarsen` must reproduce bit for bit.
+    fn coarsen_by_map(data: &Dataset, cell: f64) -> (Vec<f32>, Vec<f64>) {
+        let dim = data.dim();
+        let mut cells: std::collections::BTreeMap<Vec<i64>, (f64, Vec<f64>)> =
+            std::collections::BTreeMap::new();
+        for i in 0..data.len() {
+            let w = data.weight(i);
+            if w == 0.0 {
+                continue;
+            }
+            let x = data.row(i);
+            let key: Vec<i64> = x
+                .iter()
+                .map(|&v| (v as f64 / cell).floor() as i64)
+                .collect();
+            let e = cells.entry(key).or_insert_with(|| (0.0, vec![0.0; dim]));
+            e.0 += w;
+            for (s, &v) in e.1.iter_mut().zip(x) {
+                *s += w * v as f64;
+            }
+        }
+        let mut rows = Vec::new();
+        let mut weights = Vec::new();
+        for (_, (w, s)) in cells {
+            rows.extend(s.iter().map(|v| (v / w) as f32));
+            weights.push(w);
+        }
+        (rows, weights)
+    }
+
+    #[test]
+    fn coarsen_matches_a_map_of_cells() {
+        let mut r = Rng::new(17, 0);
+        // (dim, spread, cell): packed keys for the first four (a few cells of many rows
+        // each, then mostly single rows), the slice-order fallback for the last two (keys
+        // spanning more than 64 bits in all).
+        for (dim, spread, cell) in [
+            (1, 50.0, 0.7),
+            (3, 10.0, 1.5),
+            (3, 100.0, 1.5),
+            (5, 100.0, 0.5),
+            (5, 1000.0, 0.01),
+            (4, 3.0e7, 1e-3),
+        ] {
+            let n = 3000;
+            let rows: Vec<f32> = (0..n * dim)
+                .map(|_| ((r.uniform() - 0.5) * spread) as f32)
+                .collect();
+            let weights: Vec<f64> = (0..n).map(|_| r.below(4) as f64).collect();
+            let data = Dataset::new(&rows, dim, Some(&weights)).unwrap();
+            let got = coarsen(&data, cell);
+            let want = coarsen_by_map(&data, cell);
+            assert_eq!(got.1.len(), want.1.len(), "dim {dim}");
+            assert!(got.0 == want.0 && got.1 == want.1, "dim {dim}");
+        }
+    }
 }
