@@ -147,9 +147,14 @@ pub fn mean_and_p95(values: &[f64], weights: &[f64], total: f64) -> (f64, f64) {
         let b = v.to_bits() as i64;
         b ^ (((b >> 63) as u64) >> 1) as i64
     };
-    let (lo, hi) = values.iter().fold((i64::MAX, i64::MIN), |(lo, hi), &v| {
-        (lo.min(key(v)), hi.max(key(v)))
-    });
+    // Least and greatest key, and the value with the greatest key (the answer when the
+    // weights never reach 95 %: the last entry in value order).
+    let (lo, hi, top) = values
+        .iter()
+        .fold((i64::MAX, i64::MIN, 0.0), |(lo, hi, top), &v| {
+            let k = key(v);
+            (lo.min(k), hi.max(k), if k > hi { v } else { top })
+        });
     let span = (hi as i128 - lo as i128) as u128 + 1;
     let bucket = |k: i64| ((k as i128 - lo as i128) as u128 * BUCKETS as u128 / span) as usize;
     let mut mass = vec![0.0f64; BUCKETS];
@@ -158,11 +163,7 @@ pub fn mean_and_p95(values: &[f64], weights: &[f64], total: f64) -> (f64, f64) {
     }
     let need = 0.95 * weights.iter().sum::<f64>();
     let mut cum = 0.0;
-    let mut p95 = values[values
-        .iter()
-        .enumerate()
-        .max_by(|a, b| key(*a.1).cmp(&key(*b.1)).then(a.0.cmp(&b.0)))
-        .map_or(0, |(i, _)| i)];
+    let mut p95 = top;
     for (b, &m) in mass.iter().enumerate() {
         if cum + m < need {
             cum += m;
