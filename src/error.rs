@@ -92,6 +92,8 @@ pub enum ParamsError {
     WeightCount { rows: usize, weights: usize },
     #[error("initial means: expected {expected} values, got {got}")]
     BadInitialMeans { expected: usize, got: usize },
+    #[error("pinned colours: {0}")]
+    BadPinned(String),
     #[error("{0}")]
     Other(String),
 }

@@ -77,6 +77,7 @@ pub mod cli;
 pub mod cluster;
 pub mod colour;
 pub mod error;
+pub mod families;
 pub mod geotiff;
 pub mod histogram;
 pub mod inks;

@@ -116,6 +116,7 @@ fn reduce_stream(
         outputs,
         document: red.document,
         notes: red.notes,
+        warnings: red.warnings,
         seconds: t0.elapsed().as_secs_f64(),
     })
 }
@@ -123,6 +124,9 @@ fn reduce_stream(
 fn print_reduce_summary(input: &std::path::Path, report: &reduce::ReduceReport, json: bool) {
     for n in &report.notes {
         eprintln!("chromasift: note: {}: {n}", input.display());
+    }
+    for w in &report.warnings {
+        eprintln!("chromasift: warning: {}: {w}", input.display());
     }
     let d = &report.document;
     eprintln!(

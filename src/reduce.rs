@@ -1,9 +1,13 @@
 //! The `reduce` workflow: an image to a K-colour palette chosen in CIELAB or OKLab,
 //! with CIEDE2000 scores and an uncertainty map.
 
-use crate::cluster::{fit, Anneal, Beta, Dataset, KMeansModel, KMeansParams, Mode, ValidParams};
+use crate::cluster::{
+    finish, fit_hard, stop_rule, Anneal, Beta, Dataset, KMeansModel, KMeansParams, Mode,
+    ValidParams,
+};
 use crate::colour::{self, Space};
 use crate::error::{Error, Result};
+use crate::families::{self, LostArea, Objective};
 use crate::histogram::{self, IndexedHistogram};
 use crate::limits::Limits;
 use crate::output::OutputSet;
@@ -51,6 +55,12 @@ pub struct ReduceOptions {
     /// Choose K as the smallest meeting a colour-difference target (then `k` is unused).
     /// Default: off.
     pub target: Option<QualityTarget>,
+    /// How colours are chosen: keep every distinct colour family (default) or plain
+    /// squared error.
+    pub objective: Objective,
+    /// Colours that must be in the palette exactly (sRGB8); they count toward `k` and
+    /// never move. Default: none.
+    pub pinned: Vec<[u8; 3]>,
 }
 
 /// Which statistic of the per-pixel CIEDE2000 a target bounds.
@@ -270,6 +280,8 @@ impl ReduceOptions {
             anneal: None,
             split_merge: p.split_merge,
             target: None,
+            objective: Objective::Families,
+            pinned: Vec::new(),
         }
     }
 
@@ -285,6 +297,12 @@ impl ReduceOptions {
             .shift_tolerance(self.shift_tolerance)
             .anneal(self.anneal)
             .split_merge(self.split_merge)
+            .pinned(
+                self.pinned
+                    .iter()
+                    .flat_map(|&c| colour::linear_to_space(colour::srgb8_to_linear(c), self.space))
+                    .collect(),
+            )
     }
 }
 
@@ -325,6 +343,20 @@ pub struct ReduceSettings {
     /// Most split-and-merge moves after each k-means++ start (`--split-merge`), when used.
     #[serde(default, skip_serializing_if = "is_zero")]
     pub split_merge: usize,
+    /// How colours were chosen (`families` or `sse`); documents written before the choice
+    /// existed read as `sse`.
+    #[serde(default = "objective_plain")]
+    pub objective: Objective,
+    /// Moves that brought back lost colour families (objective `families`).
+    #[serde(default, skip_serializing_if = "is_zero")]
+    pub family_moves: usize,
+    /// Pinned colours (`#rrggbb`), when any.
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub pinned: Vec<String>,
+}
+
+fn objective_plain() -> Objective {
+    Objective::Plain
 }
 
 fn is_zero(n: &usize) -> bool {
@@ -367,6 +399,11 @@ pub struct PaletteDocument {
     /// Mean CIEDE2000 between each source pixel and its reduced pixel.
     pub mean_delta_e2000: f64,
     pub colors: Vec<PaletteColour>,
+    /// Areas of the image (at least 0.1 % of the opaque pixels or 400 pixels) whose every
+    /// pixel is more than ΔE2000 10 from its palette colour: what the palette lost.
+    /// Empty for a palette learnt from histograms alone, which has no image.
+    #[serde(default)]
+    pub lost_areas: Vec<LostArea>,
     pub settings: ReduceSettings,
     /// Size and modification time of the input (batch runs use it to resume).
     #[serde(default, skip_serializing_if = "Option::is_none")]
@@ -438,6 +475,11 @@ impl ReduceOptions {
         } else {
             text
         };
+        let text = format!(
+            "{text}|objective {}|pinned {:?}",
+            self.objective.name(),
+            self.pinned
+        );
         format!("{:016x}", fnv1a(text.as_bytes()))
     }
 }
@@ -459,6 +501,8 @@ pub struct Reduction {
     pub document: PaletteDocument,
     /// Remarks for the user (e.g. fewer distinct colours than K).
     pub notes: Vec<String>,
+    /// Problems with the result the user should act on (e.g. colours lost).
+    pub warnings: Vec<String>,
 }
 
 /// Features of each histogram entry in `space` (f32 rows) and CIELAB (for ΔE).
@@ -581,6 +625,35 @@ fn reduce_indexed(
     ph.mark("features");
     let data = Dataset::new(&rows, 3, Some(&weights))?;
     let mut notes = Vec::new();
+    let mut warnings = Vec::new();
+    let mut family_moves = 0;
+    if !opts.pinned.is_empty() {
+        if opts.target.is_some() && fixed.is_none() {
+            return Err(Error::Params(crate::error::ParamsError::BadPinned(
+                "pinned colours cannot be combined with a colour-difference target".into(),
+            )));
+        }
+        if opts.pinned.len() > opts.k && fixed.is_none() {
+            return Err(Error::Params(crate::error::ParamsError::BadPinned(
+                format!(
+                    "{} colours pinned but k is {}; pinned colours count toward k",
+                    opts.pinned.len(),
+                    opts.k
+                ),
+            )));
+        }
+        if fixed.is_some() {
+            notes.push(
+                "a given palette is used as it is, so the pinned colours have no effect".into(),
+            );
+        } else if opts.anneal.is_some() || opts.split_merge > 0 {
+            notes.push(
+                "with pinned colours every start extends the pins by k-means++, so the \
+                 annealing and split-and-merge settings have no effect"
+                    .into(),
+            );
+        }
+    }
 
     // Means in the clustering space, their β, SSE, iterations and per-entry results.
     let (means, beta, sse, iterations, labels, entropy) = if let Some(fp) = fixed {
@@ -662,7 +735,7 @@ fn reduce_indexed(
             a.labels,
             a.entropy,
         )
-    } else if hist.len() <= opts.k {
+    } else if hist.len() <= opts.k && opts.pinned.is_empty() {
         if hist.len() < opts.k {
             notes.push(format!(
                 "the image has only {} distinct colours; returning them all instead of {}",
@@ -674,8 +747,41 @@ fn reduce_indexed(
         let labels: Vec<u32> = (0..hist.len() as u32).collect();
         (means, None, 0.0, 0, labels, vec![0.0f32; hist.len()])
     } else {
-        let model = fit(&data, &params)?;
+        let (restart, mut hard) = fit_hard(&data, &params)?;
         ph.mark("fit");
+        if opts.objective == Objective::Families {
+            let pinned = params.pinned.len() / 3;
+            // With an image, families are judged on its pixels; a histogram alone
+            // (learn) is judged by its colours.
+            let image = (!pixel_entry.is_empty()).then_some(families::ImageEntries {
+                width,
+                height,
+                pixel_entry: &pixel_entry,
+            });
+            if let Some(kept) = families::keep_families(
+                &data,
+                &labs,
+                opts.space,
+                image,
+                &hard,
+                pinned,
+                stop_rule(&params),
+                params.accelerate,
+            ) {
+                notes.push(format!(
+                    "moved {} palette colour{} to keep distinct colour families that plain \
+                     k-means merged into a neighbour (families lost: {} before, {} after)",
+                    kept.moves,
+                    if kept.moves == 1 { "" } else { "s" },
+                    kept.lost_before,
+                    kept.lost_after,
+                ));
+                family_moves = kept.moves;
+                hard = kept.hard;
+            }
+            ph.mark("families");
+        }
+        let model = finish(&data, &params, restart, hard);
         let a = model.assign(&data);
         (
             model.means.clone(),
@@ -785,8 +891,20 @@ fn reduce_indexed(
     let total = hist.total() as f64;
     ph.mark("render and scores");
 
-    // Order: most pixels first (ties: earlier slot); unused slots are dropped.
-    let mut order: Vec<usize> = (0..n_slots).filter(|&s| pixels[s] > 0).collect();
+    // Order: most pixels first (ties: earlier slot); unused slots are dropped, except the
+    // pinned colours (the first clusters of a fit), which are always in the palette.
+    let pinned_slots: Vec<usize> = if fixed.is_none() && opts.target.is_none() {
+        cluster_slot
+            .iter()
+            .take(opts.pinned.len())
+            .map(|&s| s as usize)
+            .collect()
+    } else {
+        Vec::new()
+    };
+    let mut order: Vec<usize> = (0..n_slots)
+        .filter(|&s| pixels[s] > 0 || pinned_slots.contains(&s))
+        .collect();
     order.sort_by(|&a, &b| pixels[b].cmp(&pixels[a]).then(a.cmp(&b)));
     let mut new_index = vec![NO_INDEX; n_slots];
     for (i, &s) in order.iter().enumerate() {
@@ -813,9 +931,36 @@ fn reduce_indexed(
             lab: slot_lab[s],
             pixels: pixels[s],
             share: pixels[s] as f64 / total,
-            mean_uncertainty: unc_sum[s] / pixels[s] as f64,
+            mean_uncertainty: if pixels[s] > 0 {
+                unc_sum[s] / pixels[s] as f64
+            } else {
+                0.0
+            },
         })
         .collect();
+    // What the palette lost: areas far from the palette colour of their entries (each
+    // entry's own colour, before any dithering).
+    let lost_areas = if pixel_entry.is_empty() {
+        Vec::new()
+    } else {
+        let entry_error: Vec<f64> = (0..hist.len())
+            .into_par_iter()
+            .with_min_len(4096)
+            .map(|e| colour::delta_e2000(labs[e], slot_lab[entry_slot[e] as usize]))
+            .collect();
+        let entry_index: Vec<u16> = entry_slot.iter().map(|&s| new_index[s as usize]).collect();
+        families::lost_areas(
+            width,
+            height,
+            &pixel_entry,
+            &entry_error,
+            &entry_index,
+            &labs,
+            &palette,
+        )
+    };
+    warnings.extend(families::lost_areas_warning(&lost_areas));
+    ph.mark("lost areas");
 
     let document = PaletteDocument {
         tool_version: crate::TOOL_VERSION.to_string(),
@@ -830,6 +975,7 @@ fn reduce_indexed(
         mean_delta_e76: de76 / total,
         mean_delta_e2000: de2000 / total,
         colors,
+        lost_areas,
         settings: ReduceSettings {
             k_requested: opts.k,
             beta_setting: match opts.beta {
@@ -855,6 +1001,13 @@ fn reduce_indexed(
             } else {
                 0
             },
+            objective: opts.objective,
+            family_moves,
+            pinned: if fixed.is_none() {
+                opts.pinned.iter().map(|&c| colour::hex(c)).collect()
+            } else {
+                Vec::new()
+            },
         },
         source: None,
         settings_fingerprint: None,
@@ -869,6 +1022,7 @@ fn reduce_indexed(
         entry_uncertainty: entropy,
         document,
         notes,
+        warnings,
     })
 }
 
@@ -1017,6 +1171,8 @@ pub struct ReduceReport {
     pub outputs: Vec<PathBuf>,
     pub document: PaletteDocument,
     pub notes: Vec<String>,
+    /// Problems with the result the user should act on (e.g. colours lost).
+    pub warnings: Vec<String>,
     pub seconds: f64,
 }
 
@@ -1114,6 +1270,7 @@ pub fn reduce_file_as(
         outputs,
         document: red.document,
         notes: red.notes,
+        warnings: red.warnings,
         seconds: t0.elapsed().as_secs_f64(),
     })
 }

@@ -341,6 +341,21 @@ pub fn regions(labels: &[u16], width: usize, height: usize) -> Vec<(u16, usize, 
     out
 }
 
+/// The pixels (indices in raster order, in fill order) of the 8-connected region of
+/// `labels[seed]` that holds `seed`. Empty when `seed` is out of range, is [`FIXED`], or
+/// `labels.len() != width * height`.
+pub fn region_pixels(labels: &[u16], width: usize, height: usize, seed: usize) -> Vec<usize> {
+    if pixel_count(labels.len(), width, height).is_none()
+        || seed >= labels.len()
+        || labels[seed] == FIXED
+    {
+        return Vec::new();
+    }
+    let mut flood = Flood::new(labels.len());
+    flood.fill(labels, width, height, seed, usize::MAX);
+    flood.pixels
+}
+
 // ---------------------------------------------------------------------------------------------
 // Merging small regions
 // ---------------------------------------------------------------------------------------------

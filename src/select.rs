@@ -452,6 +452,156 @@ pub fn choose_by_swaps(
     }
 }
 
+/// What [`keep_families`] did.
+#[derive(Debug, Clone, PartialEq)]
+pub struct KeptInks {
+    /// The inks after the swaps (library indices, ascending).
+    pub chosen: Vec<usize>,
+    /// Swaps made.
+    pub swaps: usize,
+    /// Families the library can keep (an ink within ΔE2000 6) that the choice lost, before
+    /// and after.
+    pub lost_before: usize,
+    pub lost_after: usize,
+}
+
+/// Brings back colour families that the ink choice lost: a family (see
+/// [`crate::families`]; CIELAB D50 here, like the inks) is lost when no chosen ink is
+/// within ΔE2000 6 of it although a library ink is. A swap gives up chosen inks that no
+/// family needs (none is the only chosen ink within 6 of a family), cheapest first by
+/// Σ w·(second-nearest − nearest ΔE2000) of their pixels, and takes each lost family's
+/// nearest library ink instead: first all lost families at once, then the worst alone.
+/// A swap is kept only if fewer families are lost. Forced inks are never given up.
+/// Returns `None` when nothing was lost or no swap helped.
+pub fn keep_families(
+    t: &CostTable,
+    inks: &[Ink],
+    families: &[crate::families::Family],
+    chosen: &[usize],
+    forced: &[usize],
+) -> Option<KeptInks> {
+    const LOST: f64 = crate::families::LOST_DELTA_E;
+    // Each family's nearest library ink and how close it is.
+    let best: Vec<(usize, f64)> = families
+        .iter()
+        .map(|fam| {
+            inks.iter()
+                .enumerate()
+                .map(|(i, ink)| (i, delta_e2000(fam.lab, ink.lab_d50)))
+                .fold(
+                    (usize::MAX, f64::INFINITY),
+                    |a, b| if b.1 < a.1 { b } else { a },
+                )
+        })
+        .collect();
+    let error = |f: usize, set: &[usize]| {
+        set.iter()
+            .map(|&i| delta_e2000(families[f].lab, inks[i].lab_d50))
+            .fold(f64::INFINITY, f64::min)
+    };
+    // A family is lost when its nearest chosen ink is more than ΔE2000 6 away and more
+    // than 1 farther than the library's nearest; clearly lost 2 farther still. Lost
+    // families (family, its nearest library ink, clearly lost), most pixels first.
+    let lost_of = |set: &[usize]| -> Vec<(usize, usize, bool)> {
+        let mut v: Vec<(usize, usize, bool)> = (0..families.len())
+            .filter_map(|f| {
+                let e = error(f, set);
+                let (ink, a) = best[f];
+                (e > LOST && e > a + 1.0).then_some((f, ink, e > LOST.max(a) + 2.0))
+            })
+            .collect();
+        v.sort_by(|x, y| {
+            families[y.0]
+                .pixels
+                .total_cmp(&families[x.0].pixels)
+                .then(x.0.cmp(&y.0))
+        });
+        v
+    };
+    let score = |lost: &[(usize, usize, bool)]| -> usize {
+        lost.iter()
+            .map(|&(_, _, clear)| if clear { 3 } else { 1 })
+            .sum()
+    };
+    let mut set = chosen.to_vec();
+    let mut lost = lost_of(&set);
+    let lost_before = lost.len();
+    let mut swaps = 0;
+    'rounds: for _ in 0..set.len() {
+        if lost.is_empty() {
+            break;
+        }
+        // Give-up order: free inks no family needs, cheapest first; then the other free inks.
+        let (d1, nearest, second) = nearest_two(t, &set);
+        let mut cost = vec![0.0f64; t.m];
+        for e in 0..t.n {
+            if nearest[e] != usize::MAX {
+                let gap = if second[e].is_finite() {
+                    second[e] - d1[e]
+                } else {
+                    1e3
+                };
+                cost[nearest[e]] += t.weights[e] * gap as f64;
+            }
+        }
+        // An ink is needed when some family would be more than ΔE2000 6 from the other
+        // chosen inks.
+        let needed = |i: usize| {
+            let others: Vec<usize> = set.iter().copied().filter(|&j| j != i).collect();
+            (0..families.len())
+                .any(|f| error(f, &others) > LOST && error(f, &others) > error(f, &set))
+        };
+        let mut free: Vec<usize> = set
+            .iter()
+            .copied()
+            .filter(|i| !forced.contains(i))
+            .collect();
+        free.sort_by(|&a, &b| {
+            needed(a)
+                .cmp(&needed(b))
+                .then(cost[a].total_cmp(&cost[b]))
+                .then(a.cmp(&b))
+        });
+        let mut trials: Vec<Vec<(usize, usize)>> = Vec::new();
+        let together = lost.len().min(free.len());
+        if together > 1 {
+            trials.push((0..together).map(|i| (free[i], lost[i].1)).collect());
+        }
+        for &(_, ink, _) in lost.iter().take(2) {
+            for &g in free.iter().take(3) {
+                trials.push(vec![(g, ink)]);
+            }
+        }
+        for trial in trials {
+            let mut next: Vec<usize> = set
+                .iter()
+                .copied()
+                .filter(|i| trial.iter().all(|&(g, _)| g != *i))
+                .collect();
+            for &(_, ink) in &trial {
+                if !next.contains(&ink) {
+                    next.push(ink);
+                }
+            }
+            next.sort_unstable();
+            let lf = lost_of(&next);
+            if score(&lf) < score(&lost) {
+                set = next;
+                lost = lf;
+                swaps += trial.len();
+                continue 'rounds;
+            }
+        }
+        break;
+    }
+    (swaps > 0).then_some(KeptInks {
+        chosen: set,
+        swaps,
+        lost_before,
+        lost_after: lost.len(),
+    })
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

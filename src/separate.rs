@@ -44,6 +44,9 @@ pub struct SeparateOptions {
     /// Choose the number of inks as the smallest meeting a ΔE2000 target (then `k` is
     /// unused). Default: off.
     pub target: Option<crate::reduce::QualityTarget>,
+    /// How inks are chosen: keep every distinct colour family the library can match
+    /// (default) or the pixel-weighted ΔE2000 alone.
+    pub objective: crate::families::Objective,
 }
 
 impl Default for SeparateOptions {
@@ -59,6 +62,7 @@ impl Default for SeparateOptions {
             seed: crate::rng::DEFAULT_SEED,
             limits: Limits::default(),
             target: None,
+            objective: crate::families::Objective::Families,
         }
     }
 }
@@ -320,7 +324,36 @@ pub fn separate_image(
         notes.push(note);
         selection
     } else {
-        select::choose(&table, &labs, library, k, &forced, opts.seed)
+        let mut selection = select::choose(&table, &labs, library, k, &forced, opts.seed);
+        if opts.objective == crate::families::Objective::Families {
+            let families = crate::families::distinct_families(
+                crate::families::ImageEntries {
+                    width: img.width,
+                    height: img.height,
+                    pixel_entry: &ih.pixel_entry,
+                },
+                &labs,
+                &weights,
+            );
+            if let Some(kept) =
+                select::keep_families(&table, library, &families, &selection.chosen, &forced)
+            {
+                notes.push(format!(
+                    "swapped {} ink{} so that distinct colour families of the artwork keep a \
+                     matching ink (families lost: {} before, {} after)",
+                    kept.swaps,
+                    if kept.swaps == 1 { "" } else { "s" },
+                    kept.lost_before,
+                    kept.lost_after,
+                ));
+                selection = select::Selection {
+                    total_delta_e: table.objective(&kept.chosen),
+                    chosen: kept.chosen,
+                    method: selection.method,
+                };
+            }
+        }
+        selection
     };
 
     ph.mark("ink choice");

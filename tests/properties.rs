@@ -310,9 +310,11 @@ proptest! {
 proptest! {
     #![proptest_config(ProptestConfig::with_cases(120))]
 
-    /// The whole weighted-histogram path (histogram, k-means++ with a fixed seed, Lloyd,
-    /// palette) sees only the sorted histogram, so a reordered image gets the same palette
-    /// document and every pixel the same palette index.
+    /// The whole weighted-histogram path of plain k-means (histogram, k-means++ with a
+    /// fixed seed, Lloyd, palette) sees only the sorted histogram, so a reordered image gets
+    /// the same palette document and every pixel the same palette index. (The default
+    /// objective, which keeps colour families, and the lost-area report look at where
+    /// colours sit in the image, so they are left out here by design.)
     #[test]
     fn reduction_is_invariant_to_pixel_order(px in image8(), shuffle in any::<u64>(), k in 1usize..5) {
         let n = px.len() / 4;
@@ -323,9 +325,14 @@ proptest! {
             order.swap(i, rng.below(i + 1));
         }
         let permuted: Vec<u8> = order.iter().flat_map(|&i| px[i * 4..i * 4 + 4].to_vec()).collect();
-        let opts = ReduceOptions::new(k);
-        let a = reduce_image(&Decoded::from_rgba8(n as u32, 1, px.clone()), &opts).unwrap();
-        let b = reduce_image(&Decoded::from_rgba8(n as u32, 1, permuted), &opts).unwrap();
+        let opts = ReduceOptions {
+            objective: chromasift::families::Objective::Plain,
+            ..ReduceOptions::new(k)
+        };
+        let mut a = reduce_image(&Decoded::from_rgba8(n as u32, 1, px.clone()), &opts).unwrap();
+        let mut b = reduce_image(&Decoded::from_rgba8(n as u32, 1, permuted), &opts).unwrap();
+        a.document.lost_areas.clear();
+        b.document.lost_areas.clear();
         prop_assert_eq!(&a.palette, &b.palette);
         prop_assert_eq!(&a.document, &b.document);
         for (new_pos, &old) in order.iter().enumerate() {

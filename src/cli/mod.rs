@@ -407,6 +407,13 @@ pub struct SeparateArgs {
     #[arg(long, default_value_t = DEFAULT_SEED)]
     pub seed: u64,
 
+    /// How inks are chosen. `families` (default): the lowest total ΔE2000, then every
+    /// distinct colour family of the artwork that a library ink matches (within ΔE2000 6)
+    /// gets that ink, in place of an ink no family needs. `plain`: the lowest total ΔE2000
+    /// alone.
+    #[arg(long, default_value = "families", value_name = "families|plain")]
+    pub objective: crate::families::Objective,
+
     /// Output folder (created if missing).
     #[arg(short = 'o', long = "out", default_value = ".", value_name = "DIR")]
     pub out: PathBuf,
@@ -444,6 +451,7 @@ impl SeparateArgs {
             seed: self.seed,
             limits: Limits::with_max_pixels(self.max_pixels),
             target: quality_target(self.target_delta_e, self.target_p95, self.k_max),
+            objective: self.objective,
         }
     }
 }
@@ -579,6 +587,20 @@ pub struct ReduceFlags {
     /// falls); 0 for none. Default: 32 with --anneal, 0 without.
     #[arg(long = "split-merge", value_name = "N")]
     pub split_merge: Option<usize>,
+
+    /// How colours are chosen. `families` (default): k-means, then every distinct colour
+    /// family the palette would lose (a small shape in a colour unlike its surroundings,
+    /// at least 0.1 % of the pixels or 400 pixels) is brought back in place of the least
+    /// needed colour, such as one of two near-duplicates in a smooth area. `plain`: plain
+    /// k-means, the pixel-weighted squared error alone (the textbook objective; `sse` is accepted too).
+    #[arg(long, default_value = "families", value_name = "families|plain")]
+    pub objective: crate::families::Objective,
+
+    /// A colour the palette must hold exactly: `#rrggbb`, or CIELAB as `L,a,b`
+    /// (e.g. `--pin '#d62828' --pin 95,0,0`). Repeat for more; pinned colours count
+    /// toward -k and never move.
+    #[arg(long = "pin", value_name = "COLOUR", value_parser = crate::families::parse_colour, conflicts_with = "target_delta_e")]
+    pub pin: Vec<[u8; 3]>,
 }
 
 impl ReduceFlags {
@@ -610,6 +632,8 @@ impl ReduceFlags {
                 self.split_merge.unwrap_or(0)
             },
             target: quality_target(self.target_delta_e, self.target_p95, self.k_max),
+            objective: self.objective,
+            pinned: self.pin.clone(),
         }
     }
 }

@@ -474,6 +474,19 @@ fn mean_variance(data: &Dataset) -> f64 {
 /// rule of `stop` holds. With `accelerate`, Hamerly bounds skip distance work; the
 /// result is the same.
 pub fn lloyd(data: &Dataset, init: &[f32], stop: Stop, accelerate: bool) -> LloydResult {
+    lloyd_fixed(data, init, 0, stop, accelerate)
+}
+
+/// As [`lloyd`], with the first `fixed` means of `init` held where they are: they take
+/// rows as any mean does but are never moved (pinned colours). A fixed mean that no row
+/// is nearest to stays too; only the others are reseeded when empty.
+pub fn lloyd_fixed(
+    data: &Dataset,
+    init: &[f32],
+    fixed: usize,
+    stop: Stop,
+    accelerate: bool,
+) -> LloydResult {
     let dim = data.dim();
     let n = data.len();
     let k = init.len() / dim;
@@ -501,7 +514,7 @@ pub fn lloyd(data: &Dataset, init: &[f32], stop: Stop, accelerate: bool) -> Lloy
         let sse = stats.sse();
         let old = means.clone();
         let mut empty = Vec::new();
-        for j in 0..k {
+        for j in fixed.min(k)..k {
             let w = stats.weight(j);
             if w > 0.0 {
                 let base = j * stats.stride() + 2;

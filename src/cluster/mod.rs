@@ -19,12 +19,13 @@ mod split_merge;
 
 pub use anneal::{anneal, Anneal, AnnealResult};
 pub use choose::{bic, calibration, k_path, silhouette, weighted_sample, CalibrationBin};
-pub use hard::{assign_nearest, lloyd, LloydResult, Stop};
+pub use hard::{assign_nearest, lloyd, lloyd_fixed, LloydResult, Stop};
 pub use init::{kmeans_plus_plus, kmeans_plus_plus_from};
-pub use model::{finish, fit, fit_from, stop_rule, KMeansModel};
+pub use model::{finish, fit, fit_from, fit_hard, stop_rule, KMeansModel};
 pub use params::{Beta, KMeansParams, Mode, ValidParams, MAX_K};
 pub use soft::{
-    auto_beta, responsibility_matrix, soft_assign, soft_kmeans, SoftAssignment, SoftResult,
+    auto_beta, responsibility_matrix, soft_assign, soft_kmeans, soft_kmeans_fixed, SoftAssignment,
+    SoftResult,
 };
 pub use split_merge::{split_merge, SplitMerge};
 

@@ -4,7 +4,7 @@ use super::anneal::anneal;
 use super::hard::{assign_nearest, lloyd, Stop};
 use super::init::kmeans_plus_plus;
 use super::params::{Beta, Mode, ValidParams};
-use super::soft::{auto_beta, soft_assign, soft_kmeans, SoftAssignment};
+use super::soft::{auto_beta, soft_assign, soft_kmeans_fixed, SoftAssignment};
 use super::Dataset;
 use crate::error::{Error, ParamsError, Result};
 use crate::rng::Rng;
@@ -80,7 +80,51 @@ pub fn stop_rule(params: &ValidParams) -> Stop {
 /// `params.anneal`), each polished by Lloyd; the lowest SSE is kept (the earliest on
 /// ties); in soft mode, soft k-means then starts from it.
 pub fn fit(data: &Dataset, params: &ValidParams) -> Result<KMeansModel> {
+    let (restart, hard) = fit_hard(data, params)?;
+    Ok(finish(data, params, restart, hard))
+}
+
+/// Checks pinned means against the data and K: their number of means.
+fn pinned_count(data: &Dataset, params: &ValidParams) -> Result<usize> {
+    let dim = data.dim();
+    if params.pinned.len() % dim != 0 {
+        return Err(ParamsError::BadPinned(format!(
+            "{} values do not make whole means of {dim}",
+            params.pinned.len()
+        ))
+        .into());
+    }
+    let p = params.pinned.len() / dim;
+    if p > params.k {
+        return Err(ParamsError::BadPinned(format!(
+            "{p} pinned but k is {}; pinned colours count toward k",
+            params.k
+        ))
+        .into());
+    }
+    Ok(p)
+}
+
+/// The hard phase of [`fit`]: which start was kept and its Lloyd result, before any soft
+/// phase. With pinned means, every start extends them by k-means++ and Lloyd keeps them
+/// fixed.
+pub fn fit_hard(data: &Dataset, params: &ValidParams) -> Result<(usize, super::LloydResult)> {
     check_data(data)?;
+    let pinned = pinned_count(data, params)?;
+    if pinned > 0 {
+        let start: Vec<f32> = params.pinned.iter().map(|&v| v as f32).collect();
+        let mut best: Option<(usize, super::LloydResult)> = None;
+        for r in 0..params.restarts {
+            let mut rng = Rng::new(params.seed, r as u64);
+            let init = super::init::kmeans_plus_plus_from(data, &start, params.k, &mut rng);
+            let res =
+                super::hard::lloyd_fixed(data, &init, pinned, stop_rule(params), params.accelerate);
+            if best.as_ref().is_none_or(|(_, b)| res.sse < b.sse) {
+                best = Some((r, res));
+            }
+        }
+        return Ok(best.expect("at least one restart"));
+    }
     // Split-and-merge moves after k-means++ starts run on the grid summary annealing's
     // last stage uses (cells σ_max/16 wide), built once for all restarts.
     let grid = (params.anneal.is_none() && params.split_merge > 0).then(|| {
@@ -136,8 +180,7 @@ pub fn fit(data: &Dataset, params: &ValidParams) -> Result<KMeansModel> {
             best = Some((r, res));
         }
     }
-    let (restart, hard) = best.expect("at least one restart");
-    Ok(finish(data, params, restart, hard))
+    Ok(best.expect("at least one restart"))
 }
 
 /// Fits from given initial means (`k × dim`), skipping k-means++ and restarts.
@@ -264,15 +307,23 @@ pub fn finish(
             // photo, 73 coarse iterations on 28 k cells, then 6 on 587 k colours).
             let mut start = model.means.clone();
             let mut coarse_iterations = 0;
+            let fixed = params.pinned.len() / data.dim();
             let (crows, cweights) = coarsen(data, 0.5 / b.sqrt());
             if crows.len() * 2 <= data.rows().len() {
                 if let Ok(cdata) = Dataset::new(&crows, data.dim(), Some(&cweights)) {
-                    let c = soft_kmeans(&cdata, &start, b, params.max_iter, params.tolerance);
+                    let c = soft_kmeans_fixed(
+                        &cdata,
+                        &start,
+                        fixed,
+                        b,
+                        params.max_iter,
+                        params.tolerance,
+                    );
                     start = c.means;
                     coarse_iterations = c.iterations;
                 }
             }
-            let soft = soft_kmeans(data, &start, b, params.max_iter, params.tolerance);
+            let soft = soft_kmeans_fixed(data, &start, fixed, b, params.max_iter, params.tolerance);
             model.means = soft.means;
             model.soft_iterations = coarse_iterations + soft.iterations;
             model.converged = soft.converged;

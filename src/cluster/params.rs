@@ -90,6 +90,11 @@ pub struct KMeansParams {
     pub split_merge: usize,
     /// Use distance bounds (Hamerly 2010) to skip work; same result as plain Lloyd. Default: true.
     pub accelerate: bool,
+    /// Means that must be in the result exactly (`p × dim`, in the feature units): they
+    /// become the first `p` means, count toward `k`, and never move. The other means
+    /// start from k-means++ around them. Annealing and split-and-merge moves are not used
+    /// with pinned means. Default: none.
+    pub pinned: Vec<f64>,
 }
 
 impl KMeansParams {
@@ -107,6 +112,7 @@ impl KMeansParams {
             anneal: None,
             split_merge: 0,
             accelerate: true,
+            pinned: Vec::new(),
         }
     }
     pub fn mode(mut self, mode: Mode) -> Self {
@@ -149,6 +155,10 @@ impl KMeansParams {
         self.accelerate = accelerate;
         self
     }
+    pub fn pinned(mut self, means: Vec<f64>) -> Self {
+        self.pinned = means;
+        self
+    }
 
     /// Validates every rule; only checked parameters can be fitted.
     pub fn check(self) -> Result<ValidParams, ParamsError> {
@@ -180,6 +190,11 @@ impl KMeansParams {
         }
         if self.restarts == 0 {
             return Err(ParamsError::BadRestarts(0));
+        }
+        if self.pinned.iter().any(|v| !v.is_finite()) {
+            return Err(ParamsError::BadPinned(
+                "a pinned mean is not a finite number".into(),
+            ));
         }
         Ok(ValidParams(self))
     }

@@ -117,6 +117,18 @@ pub fn soft_kmeans(
     max_iter: usize,
     tolerance: f64,
 ) -> SoftResult {
+    soft_kmeans_fixed(data, init, 0, beta, max_iter, tolerance)
+}
+
+/// As [`soft_kmeans`], with the first `fixed` means of `init` never moved.
+pub fn soft_kmeans_fixed(
+    data: &Dataset,
+    init: &[f64],
+    fixed: usize,
+    beta: f64,
+    max_iter: usize,
+    tolerance: f64,
+) -> SoftResult {
     let dim = data.dim();
     let k = init.len() / dim;
     let mut means = init.to_vec();
@@ -168,7 +180,7 @@ pub fn soft_kmeans(
             f += pf;
         }
         // F was evaluated at the means before this update.
-        for j in 0..k {
+        for j in fixed.min(k)..k {
             let wj = acc[j * stride];
             if wj > 0.0 {
                 for t in 0..dim {

@@ -1,0 +1,874 @@
+//! Colour families: keeping every distinct colour of an image in its palette, and
+//! reporting the areas a palette still renders far from their colour.
+//!
+//! Pixel-weighted squared error lets a large smooth area outvote a small shape in a
+//! colour unlike anything around it: k-means gives the area two nearly equal colours and
+//! merges the shape into a neighbour. [`keep_families`] runs after the k-means fit and
+//! repairs that, judged where the eye judges it (CIEDE2000 against the palette colours as
+//! written):
+//!
+//! 1. The distinct colours are summarised as cells of a grid in the clustering space
+//!    (2 ΔE*ab wide in CIELAB), each with its weight and CIELAB centroid.
+//! 2. A cell is *lost* when its colour is more than [`LOST_DELTA_E`] from the palette
+//!    colour of its nearest mean. Lost cells that touch (26-neighbours on the grid) form a
+//!    lost area of colour space; one holding at least [`min_family_pixels`] pixels whose
+//!    core (the cells within 6 ΔE*ab of its heaviest cell) is itself more than
+//!    [`LOST_DELTA_E`] from every palette colour is a *lost family*.
+//! 3. While a family is lost, a move gives up one mean (first the lighter of a pair of
+//!    near-duplicate palette colours, closer than [`NEAR_DUPLICATE_DELTA_E`]; then the means
+//!    whose rows would cost least to hand to their second-nearest mean, Σ w·(d₂ − d₁), as in
+//!    split-and-merge) and places it on the family's core; Lloyd re-converges on the cells.
+//!    The move is kept only if fewer families are lost afterwards. This is the relocation
+//!    move of split-and-merge k-means (Kaukoranta, Fränti & Nevalainen 1998) and of random
+//!    swap (Fränti 2018), with the place chosen by the lost family and the judge a count of
+//!    lost families instead of the SSE.
+//! 4. If any move was kept, Lloyd runs on every row from the moved means, and the result is
+//!    kept only if it still loses fewer families than the plain fit.
+//!
+//! Nothing here is random, and sums run in row order, so the result does not depend on the
+//! thread count. Pinned means (the first `fixed`) are never given up.
+
+use crate::cluster::{self, Dataset, LloydResult, Stop};
+use crate::colour::{self, Space};
+use crate::regions;
+use rayon::prelude::*;
+use serde::{Deserialize, Serialize};
+use std::collections::HashMap;
+
+/// A family or area is lost when its colour is more than this CIEDE2000 from its palette
+/// colour.
+pub const LOST_DELTA_E: f64 = 6.0;
+/// Areas of the image farther than this CIEDE2000 from their palette colour are reported.
+pub const REPORT_DELTA_E: f64 = 10.0;
+/// Palette colours closer than this CIEDE2000 count as near duplicates.
+pub const NEAR_DUPLICATE_DELTA_E: f64 = 3.0;
+/// Radius, in ΔE*ab, of a lost family's core around its heaviest cell.
+const CORE_RADIUS: f64 = 6.0;
+
+/// Smallest family or area that counts, in pixels, for `total` opaque pixels: 0.1 % of
+/// them, at most 400 pixels (a 20 × 20 shape in any image) and at least 16.
+pub fn min_family_pixels(total: f64) -> f64 {
+    (total * 0.001).clamp(16.0, 400.0)
+}
+
+/// How colours are chosen.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "lowercase")]
+pub enum Objective {
+    /// k-means, then moves that bring back every distinct colour family the palette lost
+    /// (see the module documentation). The default.
+    Families,
+    /// Plain k-means: the pixel-weighted squared error alone (`sse` is accepted too).
+    Plain,
+}
+
+impl std::str::FromStr for Objective {
+    type Err = String;
+    fn from_str(s: &str) -> Result<Self, String> {
+        match s.to_ascii_lowercase().as_str() {
+            "families" => Ok(Objective::Families),
+            "plain" | "sse" => Ok(Objective::Plain),
+            _ => Err(format!("unknown objective '{s}' (use families or plain)")),
+        }
+    }
+}
+
+impl Objective {
+    /// Lowercase name, as in documents.
+    pub fn name(self) -> &'static str {
+        match self {
+            Objective::Families => "families",
+            Objective::Plain => "plain",
+        }
+    }
+}
+
+/// The distinct colours summarised on a grid of the clustering space.
+struct Cells {
+    /// Centroids in the clustering space, `n × 3`.
+    feat: Vec<f32>,
+    /// Centroids in CIELAB.
+    lab: Vec<[f64; 3]>,
+    weight: Vec<f64>,
+    key: Vec<[i32; 3]>,
+    index: HashMap<[i32; 3], u32>,
+    /// Cell of each entry (`u32::MAX` for entries of no weight).
+    of_entry: Vec<u32>,
+}
+
+impl Cells {
+    fn new(rows: &[f32], labs: &[[f64; 3]], weights: &[f64], space: Space) -> Cells {
+        let side = match space {
+            Space::Cielab => 2.0,
+            Space::Oklab => 0.02,
+        };
+        let mut index: HashMap<[i32; 3], u32> = HashMap::new();
+        let mut key = Vec::new();
+        let mut sums: Vec<([f64; 3], [f64; 3], f64)> = Vec::new();
+        let mut of_entry = vec![u32::MAX; weights.len()];
+        for (e, ((x, lab), &w)) in rows.chunks_exact(3).zip(labs).zip(weights).enumerate() {
+            if w <= 0.0 {
+                continue;
+            }
+            let k = [
+                (x[0] as f64 / side).floor() as i32,
+                (x[1] as f64 / side).floor() as i32,
+                (x[2] as f64 / side).floor() as i32,
+            ];
+            let c = *index.entry(k).or_insert_with(|| {
+                key.push(k);
+                sums.push(([0.0; 3], [0.0; 3], 0.0));
+                (sums.len() - 1) as u32
+            }) as usize;
+            of_entry[e] = c as u32;
+            let s = &mut sums[c];
+            for d in 0..3 {
+                s.0[d] += w * x[d] as f64;
+                s.1[d] += w * lab[d];
+            }
+            s.2 += w;
+        }
+        let mut feat = Vec::with_capacity(sums.len() * 3);
+        let mut lab = Vec::with_capacity(sums.len());
+        let mut weight = Vec::with_capacity(sums.len());
+        for (f, l, w) in sums {
+            feat.extend(f.iter().map(|v| (v / w) as f32));
+            lab.push([l[0] / w, l[1] / w, l[2] / w]);
+            weight.push(w);
+        }
+        Cells {
+            feat,
+            lab,
+            weight,
+            key,
+            index,
+            of_entry,
+        }
+    }
+
+    fn len(&self) -> usize {
+        self.weight.len()
+    }
+}
+
+/// CIELAB of each mean's palette colour, as written (rounded to sRGB8).
+fn palette_labs(means: &[f64], space: Space) -> Vec<[f64; 3]> {
+    means
+        .chunks_exact(3)
+        .map(|m| colour::srgb8_to_lab(colour::space_to_srgb8([m[0], m[1], m[2]], space)))
+        .collect()
+}
+
+/// Every cell judged against a set of means.
+struct Judged {
+    /// CIEDE2000 from each cell to its nearest mean's palette colour.
+    error: Vec<f64>,
+    /// Per mean: Σ w·(d₂ − d₁) over its cells, what giving it up would cost in squared error.
+    give_up_cost: Vec<f64>,
+    /// Per mean: the weight of its cells.
+    mean_weight: Vec<f64>,
+
+    palette_lab: Vec<[f64; 3]>,
+}
+
+fn judge(cells: &Cells, means: &[f64], space: Space) -> Judged {
+    let k = means.len() / 3;
+    let palette_lab = palette_labs(means, space);
+    let m32: Vec<f32> = means.iter().map(|&v| v as f32).collect();
+    let per: Vec<(u32, f64, f64)> = (0..cells.len())
+        .into_par_iter()
+        .with_min_len(1024)
+        .map(|c| {
+            let (j, d1, d2) = cluster::nearest_two(&cells.feat[c * 3..c * 3 + 3], &m32, 3);
+            let e = colour::delta_e2000(cells.lab[c], palette_lab[j]);
+            (j as u32, e, (d2 - d1) as f64)
+        })
+        .collect();
+    let mut give_up_cost = vec![0.0; k];
+    let mut mean_weight = vec![0.0; k];
+    let mut error = Vec::with_capacity(per.len());
+    for (c, (j, e, gap)) in per.into_iter().enumerate() {
+        let w = cells.weight[c];
+        if k > 1 {
+            give_up_cost[j as usize] += w * gap;
+        }
+        mean_weight[j as usize] += w;
+        error.push(e);
+    }
+    Judged {
+        error,
+        give_up_cost,
+        mean_weight,
+        palette_lab,
+    }
+}
+
+/// A distinct colour family of an image.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Family {
+    /// Solid pixels of the family (see [`image_families`]).
+    pub pixels: f64,
+    /// Mean CIELAB (D65) of those pixels.
+    pub lab: [f64; 3],
+    /// Mean in the clustering space.
+    pub feat: [f32; 3],
+}
+
+/// Two neighbouring pixels closer than this ΔE*ab are of one surface.
+pub const SOLID_DELTA_E: f64 = 10.0;
+/// Radius, in ΔE*ab, of the colour group gathered around each heaviest remaining colour.
+const GROUP_RADIUS: f64 = 8.0;
+/// A family is distinct when every other family is at least this CIEDE2000 away.
+pub const DISTINCT_DELTA_E: f64 = 12.0;
+
+/// The pixels of an image as histogram entries: what [`keep_families`] needs to find the
+/// image's colour families.
+#[derive(Debug, Clone, Copy)]
+pub struct ImageEntries<'a> {
+    pub width: u32,
+    pub height: u32,
+    /// Histogram entry of every pixel ([`crate::histogram::TRANSPARENT`] where alpha = 0).
+    pub pixel_entry: &'a [u32],
+}
+
+/// The distinct colour families of an image:
+///
+/// 1. A pixel is *solid* when it has a horizontal and a vertical 4-neighbour within
+///    [`SOLID_DELTA_E`] (ΔE*ab) of it: inside a flat area, a gradient, a rule or a dot two
+///    or more pixels wide, but not on an anti-aliased or blurred border one pixel wide,
+///    whose colours are mixtures.
+/// 2. Solid pixels are counted per cell of colour, and the cells gathered, heaviest first,
+///    into groups of the cells within 8 ΔE*ab of it.
+/// 3. A group of at least half of [`min_family_pixels`] solid pixels (borders and JPEG
+///    blur leave a small shape fewer solid pixels than pixels) is a family. It is
+///    *distinct* when every heavier group is at least [`DISTINCT_DELTA_E`] (ΔE2000) away;
+///    a group near a heavier one shades into it. In a photograph most colours shade into
+///    their neighbours, while a small shape in a colour unlike its surroundings stands
+///    alone. Distinct families are returned, largest first.
+fn image_families(image: ImageEntries, cells: &Cells, labs: &[[f64; 3]]) -> Vec<Family> {
+    let mut ph = crate::trace::Phases::start("image families");
+    let (w, h) = (image.width as usize, image.height as usize);
+    let pixel_entry = image.pixel_entry;
+    if pixel_entry.len() != w * h || pixel_entry.is_empty() {
+        return Vec::new();
+    }
+    let transparent = crate::histogram::TRANSPARENT;
+    let limit = SOLID_DELTA_E * SOLID_DELTA_E;
+    let near = |a: u32, b: u32| {
+        if a == b {
+            return true;
+        }
+        if b == transparent {
+            return false;
+        }
+        let (x, y) = (labs[a as usize], labs[b as usize]);
+        (x[0] - y[0]).powi(2) + (x[1] - y[1]).powi(2) + (x[2] - y[2]).powi(2) <= limit
+    };
+    // Solid pixels per cell, counted over fixed chunks of pixels and added in chunk order.
+    const CHUNK: usize = 1 << 20;
+    let n_cells = cells.len();
+    let parts: Vec<(Vec<u32>, usize)> = pixel_entry
+        .par_chunks(CHUNK)
+        .enumerate()
+        .map(|(c, chunk)| {
+            let mut counts = vec![0u32; n_cells];
+            let mut opaque = 0usize;
+            for (o, &e) in chunk.iter().enumerate() {
+                if e == transparent {
+                    continue;
+                }
+                opaque += 1;
+                let p = c * CHUNK + o;
+                let (x, y) = (p % w, p / w);
+                let solid = ((x > 0 && near(e, pixel_entry[p - 1]))
+                    || (x + 1 < w && near(e, pixel_entry[p + 1])))
+                    && ((y > 0 && near(e, pixel_entry[p - w]))
+                        || (y + 1 < h && near(e, pixel_entry[p + w])));
+                if solid {
+                    let cell = cells.of_entry[e as usize];
+                    if cell != u32::MAX {
+                        counts[cell as usize] += 1;
+                    }
+                }
+            }
+            (counts, opaque)
+        })
+        .collect();
+    let mut solid = vec![0u32; n_cells];
+    let mut opaque = 0;
+    for (counts, o) in parts {
+        opaque += o;
+        for (s, c) in solid.iter_mut().zip(counts) {
+            *s += c;
+        }
+    }
+    ph.mark("solid pixels");
+    let min_pixels = 0.5 * min_family_pixels(opaque as f64);
+
+    // Groups around the heaviest remaining cell (ties: lower cell).
+    let mut order: Vec<usize> = (0..n_cells).filter(|&c| solid[c] > 0).collect();
+    order.sort_by(|&a, &b| solid[b].cmp(&solid[a]).then(a.cmp(&b)));
+    let mut taken = vec![false; n_cells];
+    // Cells are 2 units of the clustering space wide (about 2 ΔE*ab in either space).
+    let reach = (GROUP_RADIUS / 2.0).ceil() as i32 + 1;
+    let mut groups: Vec<Family> = Vec::new();
+    for &seed in &order {
+        if taken[seed] {
+            continue;
+        }
+        let key = cells.key[seed];
+        let centre = cells.lab[seed];
+        let (mut n, mut l, mut f) = (0.0, [0.0f64; 3], [0.0f64; 3]);
+        for dx in -reach..=reach {
+            for dy in -reach..=reach {
+                for dz in -reach..=reach {
+                    let q = [key[0] + dx, key[1] + dy, key[2] + dz];
+                    let Some(&c) = cells.index.get(&q) else {
+                        continue;
+                    };
+                    let c = c as usize;
+                    if taken[c] || solid[c] == 0 {
+                        continue;
+                    }
+                    let cl = cells.lab[c];
+                    let d2: f64 = (0..3).map(|d| (cl[d] - centre[d]).powi(2)).sum();
+                    if d2 <= GROUP_RADIUS * GROUP_RADIUS {
+                        taken[c] = true;
+                        let cw = solid[c] as f64;
+                        n += cw;
+                        for d in 0..3 {
+                            l[d] += cw * cl[d];
+                            f[d] += cw * cells.feat[c * 3 + d] as f64;
+                        }
+                    }
+                }
+            }
+        }
+        if n >= min_pixels {
+            groups.push(Family {
+                pixels: n,
+                lab: [l[0] / n, l[1] / n, l[2] / n],
+                feat: [(f[0] / n) as f32, (f[1] / n) as f32, (f[2] / n) as f32],
+            });
+        }
+    }
+    // Heaviest first (stable). Groups closer than DISTINCT_DELTA_E are linked, and a chain
+    // of links is one family (a long gradient is a chain), headed by its heaviest group.
+    groups.sort_by(|a, b| b.pixels.total_cmp(&a.pixels));
+    let mut head: Vec<usize> = (0..groups.len()).collect();
+    fn root(head: &mut [usize], mut i: usize) -> usize {
+        while head[i] != i {
+            head[i] = head[head[i]];
+            i = head[i];
+        }
+        i
+    }
+    for i in 0..groups.len() {
+        for j in 0..i {
+            if colour::delta_e2000(groups[i].lab, groups[j].lab) < DISTINCT_DELTA_E {
+                let (a, b) = (root(&mut head, i), root(&mut head, j));
+                // The lower index (the heavier group) stays the root.
+                head[a.max(b)] = a.min(b);
+            }
+        }
+    }
+    let distinct: Vec<bool> = (0..groups.len()).map(|i| root(&mut head, i) == i).collect();
+    let families: Vec<Family> = groups
+        .into_iter()
+        .zip(distinct)
+        .filter_map(|(g, d)| d.then_some(g))
+        .collect();
+    ph.mark("groups");
+    families
+}
+
+/// The distinct colour families of an image (see [`image_families`]) from its histogram:
+/// entries' CIELAB values (`labs`, any white point: the families come out in the same
+/// CIELAB) and pixel counts (`weights`).
+pub fn distinct_families(image: ImageEntries, labs: &[[f64; 3]], weights: &[f64]) -> Vec<Family> {
+    let rows: Vec<f32> = labs
+        .iter()
+        .flat_map(|l| [l[0] as f32, l[1] as f32, l[2] as f32])
+        .collect();
+    let cells = Cells::new(&rows, labs, weights, Space::Cielab);
+    image_families(image, &cells, labs)
+}
+
+/// The families (of [`image_families`]) farther than [`LOST_DELTA_E`] from every palette
+/// colour, worst first.
+fn lost_image_families(families: &[Family], palette_lab: &[[f64; 3]]) -> Vec<LostFamily> {
+    let mut out: Vec<LostFamily> = families
+        .iter()
+        .filter_map(|f| {
+            let error = palette_lab
+                .iter()
+                .map(|&p| colour::delta_e2000(f.lab, p))
+                .fold(f64::INFINITY, f64::min);
+            (error > LOST_DELTA_E).then_some(LostFamily {
+                weight: f.pixels,
+                error,
+                feat: f.feat,
+            })
+        })
+        .collect();
+    out.sort_by(|a, b| (b.weight * b.error).total_cmp(&(a.weight * a.error)));
+    out
+}
+
+/// A colour family the palette lost.
+#[derive(Debug, Clone)]
+struct LostFamily {
+    /// Pixels in its lost area.
+    weight: f64,
+    /// CIEDE2000 from its core to the nearest palette colour.
+    error: f64,
+    /// Core centroid in the clustering space.
+    feat: [f32; 3],
+}
+
+fn lost_families(cells: &Cells, judged: &Judged, min_weight: f64) -> Vec<LostFamily> {
+    let n = cells.len();
+    let mut seen = vec![false; n];
+    let mut out = Vec::new();
+    let mut stack = Vec::new();
+    let mut members = Vec::new();
+    for c0 in 0..n {
+        if seen[c0] || judged.error[c0] <= LOST_DELTA_E {
+            continue;
+        }
+        seen[c0] = true;
+        stack.push(c0);
+        members.clear();
+        while let Some(c) = stack.pop() {
+            members.push(c);
+            let k = cells.key[c];
+            for dx in -1..=1 {
+                for dy in -1..=1 {
+                    for dz in -1..=1 {
+                        let q = [k[0] + dx, k[1] + dy, k[2] + dz];
+                        if let Some(&i) = cells.index.get(&q) {
+                            let i = i as usize;
+                            if !seen[i] && judged.error[i] > LOST_DELTA_E {
+                                seen[i] = true;
+                                stack.push(i);
+                            }
+                        }
+                    }
+                }
+            }
+        }
+        let weight: f64 = {
+            members.sort_unstable();
+            members.iter().map(|&c| cells.weight[c]).sum()
+        };
+        if weight < min_weight {
+            continue;
+        }
+        let heaviest = *members
+            .iter()
+            .max_by(|&&a, &&b| cells.weight[a].total_cmp(&cells.weight[b]).then(b.cmp(&a)))
+            .expect("a lost area has a cell");
+        let centre = cells.lab[heaviest];
+        let (mut wf, mut f, mut l) = (0.0, [0.0f64; 3], [0.0f64; 3]);
+        for &c in &members {
+            let lab = cells.lab[c];
+            let d2: f64 = (0..3).map(|d| (lab[d] - centre[d]).powi(2)).sum();
+            if d2 <= CORE_RADIUS * CORE_RADIUS {
+                let w = cells.weight[c];
+                wf += w;
+                for d in 0..3 {
+                    f[d] += w * cells.feat[c * 3 + d] as f64;
+                    l[d] += w * lab[d];
+                }
+            }
+        }
+        let core_lab = [l[0] / wf, l[1] / wf, l[2] / wf];
+        let error = judged
+            .palette_lab
+            .iter()
+            .map(|&p| colour::delta_e2000(core_lab, p))
+            .fold(f64::INFINITY, f64::min);
+        if error > LOST_DELTA_E {
+            out.push(LostFamily {
+                weight,
+                error,
+                feat: [(f[0] / wf) as f32, (f[1] / wf) as f32, (f[2] / wf) as f32],
+            });
+        }
+    }
+    // Worst first: most pixels times error (stable: ties keep cell order).
+    out.sort_by(|a, b| (b.weight * b.error).total_cmp(&(a.weight * a.error)));
+    out
+}
+
+/// Means to give up for a move, best first: with image families, the means no family
+/// needs (none is the only palette colour within [`LOST_DELTA_E`] of a family), cheapest
+/// first; then the lighter of each near-duplicate pair; then the rest, cheapest by
+/// squared-error cost. Pinned means (below `fixed`) are never offered.
+fn give_up_order(
+    judged: &Judged,
+    families: Option<&[Family]>,
+    fixed: usize,
+    most: usize,
+) -> Vec<usize> {
+    let k = judged.palette_lab.len();
+    let mut out: Vec<usize> = Vec::new();
+    let by_cost = |mut v: Vec<usize>| {
+        v.sort_by(|&a, &b| {
+            judged.give_up_cost[a]
+                .total_cmp(&judged.give_up_cost[b])
+                .then(a.cmp(&b))
+        });
+        v
+    };
+    if let Some(families) = families {
+        let mut needed = vec![false; k];
+        for f in families {
+            let near: Vec<usize> = (0..k)
+                .filter(|&j| colour::delta_e2000(f.lab, judged.palette_lab[j]) <= LOST_DELTA_E)
+                .collect();
+            if let [j] = near[..] {
+                needed[j] = true;
+            }
+        }
+        out.extend(by_cost((fixed.min(k)..k).filter(|&j| !needed[j]).collect()));
+    }
+    let mut pairs: Vec<(f64, usize)> = Vec::new();
+    for a in 0..k {
+        for b in a + 1..k {
+            let d = colour::delta_e2000(judged.palette_lab[a], judged.palette_lab[b]);
+            if d < NEAR_DUPLICATE_DELTA_E {
+                let lighter = if judged.mean_weight[b] < judged.mean_weight[a] {
+                    b
+                } else {
+                    a
+                };
+                let other = a + b - lighter;
+                // A pinned mean is never given up; its twin may be.
+                let pick = if lighter >= fixed { lighter } else { other };
+                if pick >= fixed {
+                    pairs.push((d, pick));
+                }
+            }
+        }
+    }
+    pairs.sort_by(|x, y| x.0.total_cmp(&y.0).then(x.1.cmp(&y.1)));
+    for (_, j) in pairs {
+        if !out.contains(&j) {
+            out.push(j);
+        }
+    }
+    for j in by_cost((fixed.min(k)..k).collect()) {
+        if !out.contains(&j) {
+            out.push(j);
+        }
+    }
+    out.truncate(most);
+    out
+}
+
+/// What [`keep_families`] did.
+#[derive(Debug, Clone)]
+pub struct Kept {
+    /// The hard result on every row after the moves.
+    pub hard: LloydResult,
+    /// Moves kept.
+    pub moves: usize,
+    /// Lost families before and after.
+    pub lost_before: usize,
+    pub lost_after: usize,
+}
+
+/// Brings back lost colour families (see the module documentation). `rows` are the
+/// entries' features in `space` (`n × 3`), `labs` their CIELAB values, `weights` their
+/// pixel counts; `start` is the plain k-means result, whose first `fixed` means are pinned.
+/// Returns `None` when the plain result loses no family or no move helps.
+#[allow(clippy::too_many_arguments)]
+pub fn keep_families(
+    data: &Dataset,
+    labs: &[[f64; 3]],
+    space: Space,
+    image: Option<ImageEntries>,
+    start: &LloydResult,
+    fixed: usize,
+    stop: Stop,
+    accelerate: bool,
+) -> Option<Kept> {
+    let mut ph = crate::trace::Phases::start("families");
+    let weights: Vec<f64> = (0..data.len()).map(|i| data.weight(i)).collect();
+    let k = start.means.len() / 3;
+    if data.dim() != 3 || k < 2 || k <= fixed {
+        return None;
+    }
+    let cells = Cells::new(data.rows(), labs, &weights, space);
+    let cdata = Dataset::new(&cells.feat, 3, Some(&cells.weight)).ok()?;
+    let min_weight = min_family_pixels(data.total_weight());
+    ph.mark("cells");
+    let image_families = image.map(|im| image_families(im, &cells, labs));
+    let families = image_families.as_deref();
+    let mut means = start.means.clone();
+    let lost_of = |judged: &Judged| match families {
+        Some(f) => lost_image_families(f, &judged.palette_lab),
+        None => lost_families(&cells, judged, min_weight),
+    };
+    let mut judged = judge(&cells, &means, space);
+    let mut lost = lost_of(&judged);
+    let lost_before = lost.len();
+    if lost.is_empty() {
+        return None;
+    }
+    let trial_stop = Stop {
+        max_iter: stop.max_iter.min(100),
+        tolerance: stop.tolerance,
+        shift_tolerance: stop.shift_tolerance,
+    };
+    // A move must lower 2 × (families clearly lost, more than LOST_DELTA_E + 2 away) +
+    // (families lost): the family colours are estimates, so a family brought to just
+    // past the limit counts as half repaired.
+    let score = |lost: &[LostFamily]| {
+        lost.iter()
+            .map(|l| if l.error > LOST_DELTA_E + 2.0 { 3 } else { 1 })
+            .sum::<usize>()
+    };
+    let score_before = score(&lost);
+    let mut moves = 0;
+    'rounds: for _ in 0..k {
+        if lost.is_empty() {
+            break;
+        }
+        // Trials, in order: every lost family at once (two small families can be closer
+        // to each other than to anything else, and one new colour would sit between
+        // them), then each of the two worst alone, each time giving up the first means
+        // of the give-up order.
+        let order = give_up_order(&judged, families, fixed, lost.len().max(3));
+        let mut trials: Vec<Vec<(usize, [f32; 3])>> = Vec::new();
+        let together = lost.len().min(order.len());
+        if together > 1 {
+            trials.push((0..together).map(|i| (order[i], lost[i].feat)).collect());
+        }
+        for fam in lost.iter().take(2) {
+            for &j in order.iter().take(3) {
+                trials.push(vec![(j, fam.feat)]);
+            }
+        }
+        for trial in trials {
+            let mut init: Vec<f32> = means.iter().map(|&v| v as f32).collect();
+            for (j, feat) in &trial {
+                init[j * 3..j * 3 + 3].copy_from_slice(feat);
+            }
+            let r = cluster::lloyd_fixed(&cdata, &init, fixed, trial_stop, true);
+            let jd = judge(&cells, &r.means, space);
+            let lf = lost_of(&jd);
+            if score(&lf) < score(&lost) {
+                means = r.means;
+                judged = jd;
+                lost = lf;
+                moves += trial.len();
+                continue 'rounds;
+            }
+        }
+        break;
+    }
+    ph.mark("moves");
+    if moves == 0 {
+        return None;
+    }
+    let init: Vec<f32> = means.iter().map(|&v| v as f32).collect();
+    let hard = cluster::lloyd_fixed(data, &init, fixed, stop, accelerate);
+    let after = lost_of(&judge(&cells, &hard.means, space));
+    ph.mark("lloyd");
+    (score(&after) < score_before).then_some(Kept {
+        hard,
+        moves,
+        lost_before,
+        lost_after: after.len(),
+    })
+}
+
+/// An area of the image rendered far from its colour (more than [`REPORT_DELTA_E`]).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct LostArea {
+    /// Pixels in the area (8-connected pixels each farther than the limit).
+    pub pixels: u64,
+    /// Bounding box: left, top, width, height, in pixels.
+    pub x: u32,
+    pub y: u32,
+    pub width: u32,
+    pub height: u32,
+    /// Mean source colour of the area (`#rrggbb`) and its CIELAB (D65).
+    pub source: String,
+    pub source_lab: [f64; 3],
+    /// The palette colour most of the area took.
+    pub rendered: String,
+    /// Mean CIEDE2000 between the area's source pixels and their palette colours.
+    pub delta_e2000: f64,
+}
+
+/// Areas of at least [`min_family_pixels`] pixels whose every pixel is more than
+/// [`REPORT_DELTA_E`] from its palette colour, largest first (ties: raster order).
+/// `entry_error` is each histogram entry's CIEDE2000 to its palette colour,
+/// `entry_slot` its palette colour's index into `palette`.
+pub fn lost_areas(
+    width: u32,
+    height: u32,
+    pixel_entry: &[u32],
+    entry_error: &[f64],
+    entry_slot: &[u16],
+    labs: &[[f64; 3]],
+    palette: &[[u8; 3]],
+) -> Vec<LostArea> {
+    let (w, h) = (width as usize, height as usize);
+    if pixel_entry.len() != w * h || pixel_entry.is_empty() {
+        return Vec::new();
+    }
+    let opaque = pixel_entry
+        .par_iter()
+        .with_min_len(1 << 16)
+        .filter(|&&e| e != crate::histogram::TRANSPARENT)
+        .count();
+    let min_pixels = min_family_pixels(opaque as f64) as usize;
+    let marks: Vec<u16> = pixel_entry
+        .par_iter()
+        .with_min_len(1 << 16)
+        .map(|&e| {
+            if e != crate::histogram::TRANSPARENT && entry_error[e as usize] > REPORT_DELTA_E {
+                0
+            } else {
+                regions::FIXED
+            }
+        })
+        .collect();
+    let mut out = Vec::new();
+    for (_, size, first) in regions::regions(&marks, w, h) {
+        if size < min_pixels {
+            continue;
+        }
+        let pixels = regions::region_pixels(&marks, w, h, first);
+        let (mut x0, mut y0, mut x1, mut y1) = (usize::MAX, usize::MAX, 0, 0);
+        let (mut lab, mut err) = ([0.0f64; 3], 0.0f64);
+        let mut took: HashMap<u16, usize> = HashMap::new();
+        for &p in &pixels {
+            let (x, y) = (p % w, p / w);
+            x0 = x0.min(x);
+            y0 = y0.min(y);
+            x1 = x1.max(x);
+            y1 = y1.max(y);
+            let e = pixel_entry[p] as usize;
+            for d in 0..3 {
+                lab[d] += labs[e][d];
+            }
+            err += entry_error[e];
+            *took.entry(entry_slot[e]).or_insert(0) += 1;
+        }
+        let n = pixels.len() as f64;
+        let lab = [lab[0] / n, lab[1] / n, lab[2] / n];
+        let slot = took
+            .iter()
+            .max_by(|a, b| a.1.cmp(b.1).then(b.0.cmp(a.0)))
+            .map(|(&s, _)| s)
+            .unwrap_or(0);
+        out.push(LostArea {
+            pixels: pixels.len() as u64,
+            x: x0 as u32,
+            y: y0 as u32,
+            width: (x1 - x0 + 1) as u32,
+            height: (y1 - y0 + 1) as u32,
+            source: colour::hex(colour::space_to_srgb8(lab, Space::Cielab)),
+            source_lab: lab,
+            rendered: colour::hex(palette[slot as usize]),
+            delta_e2000: err / n,
+        });
+    }
+    out.sort_by(|a, b| b.pixels.cmp(&a.pixels));
+    out
+}
+
+/// One warning line for lost areas (empty when there are none).
+pub fn lost_areas_warning(areas: &[LostArea]) -> Option<String> {
+    let a = areas.first()?;
+    let more = match areas.len() {
+        1 => String::new(),
+        n => format!(" and {} more", n - 1),
+    };
+    Some(format!(
+        "{} area{} rendered more than ΔE2000 {} from {} colour (largest: {} px at x {}..{}, \
+         y {}..{}, {} shown as {}, ΔE2000 {:.1}{more}); raise k or pin the colour",
+        areas.len(),
+        if areas.len() == 1 { "" } else { "s" },
+        REPORT_DELTA_E,
+        if areas.len() == 1 { "its" } else { "their" },
+        a.pixels,
+        a.x,
+        a.x + a.width - 1,
+        a.y,
+        a.y + a.height - 1,
+        a.source,
+        a.rendered,
+        a.delta_e2000,
+    ))
+}
+
+/// A colour given as `#rrggbb` (or `rrggbb`), or as CIELAB (D65) `L,a,b` (commas or
+/// spaces between the numbers), as the sRGB8 colour that will be written. A CIELAB value
+/// whose nearest sRGB8 colour is more than ΔE2000 1 away is refused as out of gamut.
+pub fn parse_colour(s: &str) -> Result<[u8; 3], String> {
+    let t = s.trim();
+    if t.is_empty() {
+        return Err("empty colour (give #rrggbb or L,a,b)".into());
+    }
+    if t.starts_with('#') || (t.len() == 6 && t.chars().all(|c| c.is_ascii_hexdigit())) {
+        return colour::parse_hex(t);
+    }
+    let parts: Vec<&str> = t
+        .split(|c: char| c == ',' || c.is_whitespace())
+        .filter(|p| !p.is_empty())
+        .collect();
+    let nums: Vec<f64> = parts
+        .iter()
+        .map(|p| p.parse::<f64>())
+        .collect::<Result<_, _>>()
+        .map_err(|_| format!("'{t}' is neither #rrggbb nor three CIELAB numbers L,a,b"))?;
+    if nums.len() != 3 || nums.iter().any(|v| !v.is_finite()) {
+        return Err(format!(
+            "'{t}' is neither #rrggbb nor three CIELAB numbers L,a,b"
+        ));
+    }
+    let lab = [nums[0], nums[1], nums[2]];
+    if !(0.0..=100.0).contains(&lab[0]) {
+        return Err(format!(
+            "CIELAB L must be between 0 and 100 (got {})",
+            lab[0]
+        ));
+    }
+    let c = colour::space_to_srgb8(lab, Space::Cielab);
+    let off = colour::delta_e2000(lab, colour::srgb8_to_lab(c));
+    if off > 1.0 {
+        return Err(format!(
+            "CIELAB {t} is outside sRGB: the nearest sRGB colour, {}, is ΔE2000 {off:.1} away",
+            colour::hex(c)
+        ));
+    }
+    Ok(c)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn thresholds_follow_the_image_size() {
+        assert_eq!(min_family_pixels(1000.0), 16.0);
+        assert_eq!(min_family_pixels(100_000.0), 100.0);
+        assert_eq!(min_family_pixels(12e6), 400.0);
+    }
+
+    #[test]
+    fn objective_parses() {
+        assert_eq!(
+            "families".parse::<Objective>().unwrap(),
+            Objective::Families
+        );
+        assert_eq!("SSE".parse::<Objective>().unwrap(), Objective::Plain);
+        assert!("eye".parse::<Objective>().is_err());
+    }
+}
