@@ -215,7 +215,7 @@ pub struct Family {
 }
 
 /// Two neighbouring pixels closer than this ΔE*ab are of one surface.
-pub const SOLID_DELTA_E: f64 = 10.0;
+pub const SOLID_DELTA_E: f64 = 14.0;
 /// Radius, in ΔE*ab, of the colour group gathered around each heaviest remaining colour.
 const GROUP_RADIUS: f64 = 8.0;
 /// A family is distinct when every other family is at least this CIEDE2000 away.
@@ -253,7 +253,12 @@ fn image_families(image: ImageEntries, cells: &Cells, labs: &[[f64; 3]]) -> Vec<
         return Vec::new();
     }
     let transparent = crate::histogram::TRANSPARENT;
-    let limit = SOLID_DELTA_E * SOLID_DELTA_E;
+    let limit = (SOLID_DELTA_E * SOLID_DELTA_E) as f32;
+    // CIELAB of each entry in single precision: a small table for the many look-ups.
+    let lab32: Vec<[f32; 3]> = labs
+        .iter()
+        .map(|l| [l[0] as f32, l[1] as f32, l[2] as f32])
+        .collect();
     let near = |a: u32, b: u32| {
         if a == b {
             return true;
@@ -261,33 +266,39 @@ fn image_families(image: ImageEntries, cells: &Cells, labs: &[[f64; 3]]) -> Vec<
         if b == transparent {
             return false;
         }
-        let (x, y) = (labs[a as usize], labs[b as usize]);
+        let (x, y) = (lab32[a as usize], lab32[b as usize]);
         (x[0] - y[0]).powi(2) + (x[1] - y[1]).powi(2) + (x[2] - y[2]).powi(2) <= limit
     };
-    // Solid pixels per cell, counted over fixed chunks of pixels and added in chunk order.
-    const CHUNK: usize = 1 << 20;
+    // Solid pixels per cell, counted over fixed bands of rows and added in band order.
+    const BAND: usize = 64;
     let n_cells = cells.len();
-    let parts: Vec<(Vec<u32>, usize)> = pixel_entry
-        .par_chunks(CHUNK)
-        .enumerate()
-        .map(|(c, chunk)| {
+    let parts: Vec<(Vec<u32>, usize)> = (0..h.div_ceil(BAND))
+        .into_par_iter()
+        .map(|band| {
             let mut counts = vec![0u32; n_cells];
             let mut opaque = 0usize;
-            for (o, &e) in chunk.iter().enumerate() {
-                if e == transparent {
-                    continue;
-                }
-                opaque += 1;
-                let p = c * CHUNK + o;
-                let (x, y) = (p % w, p / w);
-                let solid = ((x > 0 && near(e, pixel_entry[p - 1]))
-                    || (x + 1 < w && near(e, pixel_entry[p + 1])))
-                    && ((y > 0 && near(e, pixel_entry[p - w]))
-                        || (y + 1 < h && near(e, pixel_entry[p + w])));
-                if solid {
-                    let cell = cells.of_entry[e as usize];
-                    if cell != u32::MAX {
-                        counts[cell as usize] += 1;
+            for y in band * BAND..((band + 1) * BAND).min(h) {
+                let row = &pixel_entry[y * w..(y + 1) * w];
+                let above = (y > 0).then(|| &pixel_entry[(y - 1) * w..y * w]);
+                let below = (y + 1 < h).then(|| &pixel_entry[(y + 1) * w..(y + 2) * w]);
+                for x in 0..w {
+                    let e = row[x];
+                    if e == transparent {
+                        continue;
+                    }
+                    opaque += 1;
+                    let across =
+                        (x > 0 && near(e, row[x - 1])) || (x + 1 < w && near(e, row[x + 1]));
+                    if !across {
+                        continue;
+                    }
+                    let down = above.is_some_and(|r| near(e, r[x]))
+                        || below.is_some_and(|r| near(e, r[x]));
+                    if down {
+                        let cell = cells.of_entry[e as usize];
+                        if cell != u32::MAX {
+                            counts[cell as usize] += 1;
+                        }
                     }
                 }
             }

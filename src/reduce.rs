@@ -831,6 +831,9 @@ fn reduce_indexed(
     let n_slots = slots.len();
     let mut pixels = vec![0u64; n_slots];
     let mut unc_sum = vec![0.0f64; n_slots];
+    // Each entry's CIEDE2000 to its own palette colour (before dithering), for the
+    // lost-area report; the undithered scores below compute it anyway.
+    let mut entry_error: Vec<f64> = Vec::new();
     let (de76, de2000) = match opts.dither {
         Dither::None => {
             let per_entry: Vec<(f64, f64)> = (0..hist.len())
@@ -852,6 +855,9 @@ fn reduce_indexed(
                 unc_sum[s] += w * entropy[e] as f64;
                 a += w * d76;
                 b += w * d00;
+            }
+            if !pixel_entry.is_empty() {
+                entry_error = per_entry.iter().map(|p| p.1).collect();
             }
             (a, b)
         }
@@ -943,11 +949,13 @@ fn reduce_indexed(
     let lost_areas = if pixel_entry.is_empty() {
         Vec::new()
     } else {
-        let entry_error: Vec<f64> = (0..hist.len())
-            .into_par_iter()
-            .with_min_len(4096)
-            .map(|e| colour::delta_e2000(labs[e], slot_lab[entry_slot[e] as usize]))
-            .collect();
+        if entry_error.is_empty() {
+            entry_error = (0..hist.len())
+                .into_par_iter()
+                .with_min_len(4096)
+                .map(|e| colour::delta_e2000(labs[e], slot_lab[entry_slot[e] as usize]))
+                .collect();
+        }
         let entry_index: Vec<u16> = entry_slot.iter().map(|&s| new_index[s as usize]).collect();
         families::lost_areas(
             width,
