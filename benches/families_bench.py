@@ -25,15 +25,18 @@ One run:
    (default seed) on each photo and prints, per photo, both mean CIEDE2000 values, their
    ratio, `settings.family_moves` and the number of `lost_areas`;
 4. times the 12 MP photo: interleaved whole CLI runs (plain, families, plain, ...,
-   --repeats of each), wall time from `time.perf_counter` around the subprocess, median of
-   each, peak RSS from GNU time (`/usr/bin/time -v`) when it is installed. Before timing it
-   waits (up to --wait-idle seconds) for the 1-minute load average to fall below 0.5 and
-   prints the load it saw.
+   --repeats of each, after --warmup untimed runs of each), wall time from
+   `time.perf_counter` around the subprocess, median of each, peak RSS from GNU time
+   (`/usr/bin/time -v`) when it is installed. Before timing it waits (up to --wait-idle
+   seconds) for the 1-minute load average to fall below 0.5 and prints the load it saw.
 
 Usage (from the repository root):
     CARGO_TARGET_DIR=/tmp/bench-target python3 benches/families_bench.py
     CARGO_TARGET_DIR=/tmp/bench-target python3 benches/families_bench.py --no-lto --repeats 3 \
         --json /tmp/families.json
+Options: --repeats N (timed runs of each objective, default 5), --warmup N (default 1),
+--wait-idle SECONDS (default 60), --no-lto, --commit REV, -k K (default 16, the k of the
+target), --photo PATH and --remake-photo (the 12 MP photo), --json FILE (every figure).
 """
 
 from __future__ import annotations
@@ -59,7 +62,7 @@ REPO = HERE.parent
 sys.path.insert(0, str(HERE))
 import compare_sklearn  # noqa: E402  (make_photo, parse_time_v, Meter)
 
-K = 16
+DEFAULT_K = 16
 TARGET_DE_RATIO = 1.03
 TARGET_TIME_RATIO = 1.3
 IDLE_LOADAVG = 0.5
@@ -209,10 +212,10 @@ def big_photo(path: Path, remake: bool) -> dict:
 # ---------------------------------------------------------------------------------
 
 
-def run_reduce(binary: Path, photo: Path, out_dir: Path, objective: str, measure_memory: bool) -> dict:
+def run_reduce(binary: Path, photo: Path, out_dir: Path, k: int, objective: str, measure_memory: bool) -> dict:
     if out_dir.exists():
         shutil.rmtree(out_dir)
-    cmd = [str(binary), "reduce", str(photo), "-k", str(K), "-o", str(out_dir), "--objective", objective]
+    cmd = [str(binary), "reduce", str(photo), "-k", str(k), "-o", str(out_dir), "--objective", objective]
     if measure_memory:
         cmd = [str(GNU_TIME), "-v", *cmd]
     with compare_sklearn.Meter() as m:
@@ -243,13 +246,13 @@ def run_reduce(binary: Path, photo: Path, out_dir: Path, objective: str, measure
     return r
 
 
-def quality(binary: Path, photos: list[dict], work: Path) -> list[dict]:
+def quality(binary: Path, photos: list[dict], work: Path, k: int) -> list[dict]:
     rows = []
     for ph in photos:
         row = {"photo": ph["name"]}
         for objective in ("plain", "families"):
             log(f"{ph['name']}: --objective {objective}")
-            row[objective] = run_reduce(binary, Path(ph["path"]), work / f"q-{ph['name']}-{objective}", objective, False)
+            row[objective] = run_reduce(binary, Path(ph["path"]), work / f"q-{ph['name']}-{objective}", k, objective, False)
         row["ratio"] = row["families"]["mean_delta_e2000"] / row["plain"]["mean_delta_e2000"]
         rows.append(row)
     return rows
@@ -273,15 +276,21 @@ def wait_quiet(limit_s: float) -> dict:
             "waited_s": round(waited, 1), "quiet": quiet}
 
 
-def timing(binary: Path, photo: Path, work: Path, repeats: int, wait_s: float) -> dict:
+def timing(binary: Path, photo: Path, work: Path, k: int, repeats: int, warmup: int, wait_s: float) -> dict:
     mem = GNU_TIME.exists()
     if not mem:
         log("/usr/bin/time not found (Debian package `time`): peak memory is not measured")
-    res = {"idle": wait_quiet(wait_s), "peak_memory_measured": mem, "runs": {"plain": [], "families": []}}
+    res = {"idle": wait_quiet(wait_s), "peak_memory_measured": mem, "warmup_runs": warmup,
+           "runs": {"plain": [], "families": []}}
+    # Untimed runs first: the first run after a pause is slower (file and CPU caches).
+    for i in range(warmup):
+        for objective in ("plain", "families"):
+            log(f"warm-up {objective} {i + 1}/{warmup}")
+            run_reduce(binary, photo, work / f"w-{objective}", k, objective, False)
     for i in range(repeats):
         for objective in ("plain", "families"):
             log(f"timing {objective} {i + 1}/{repeats}")
-            res["runs"][objective].append(run_reduce(binary, photo, work / f"t-{objective}", objective, mem))
+            res["runs"][objective].append(run_reduce(binary, photo, work / f"t-{objective}", k, objective, mem))
     res["loadavg_after_timing"] = list(os.getloadavg())
     for objective, rs in res["runs"].items():
         s = {
@@ -341,7 +350,7 @@ def report(res: dict) -> str:
     for ph in res["photos"]:
         w(f"  {ph['name']} ({ph['width']}x{ph['height']}, {ph['channels']} channels): {ph['source']}")
     w("")
-    w(f"Mean CIEDE2000 of the reduced image, k = {K}, default seed")
+    w(f"Mean CIEDE2000 of the reduced image, k = {res['k']}, default seed")
     w("")
     w("| photo | plain | families | ratio | family moves | lost areas plain | lost areas families |")
     w("|---|---:|---:|---:|---:|---:|---:|")
@@ -358,7 +367,8 @@ def report(res: dict) -> str:
       f"{verdict(q['worst_ratio'] <= TARGET_DE_RATIO)}")
     if q["over"]:
         w(f"  photos over the target: {', '.join(q['over'])}")
-    w(f"Photos where families made moves: {q['photos_with_moves']} of {q['photos']}")
+    w(f"Photos where families made moves: {q['photos_with_moves']} of {q['photos']}; photos where both "
+      f"objectives gave the same SSE and mean CIEDE2000: {q['photos_same_result']} of {q['photos']}")
     w("")
     t = res["timing"]
     idle = t["idle"]
@@ -376,7 +386,8 @@ def report(res: dict) -> str:
         rss = f"{s['peak_rss_mb']:.0f}" if "peak_rss_mb" in s else "not measured"
         w(f"| {objective} | {s['median_wall_s']:.2f} | {runs} | {cpu} | {rss} | {s['max_other_cores']:.2f} |")
     w("")
-    w(f"Wall time families / plain (medians of {len(t['plain']['wall_all_s'])} interleaved runs each): "
+    w(f"Wall time families / plain (medians of {len(t['plain']['wall_all_s'])} interleaved runs each, after "
+      f"{t['warmup_runs']} untimed run(s) of each): "
       f"{t['ratio']:.3f} (target <= {TARGET_TIME_RATIO}): {verdict(t['ratio'] <= TARGET_TIME_RATIO)}")
     if "cpu_ratio" in t:
         w(f"  CPU time families / plain: {t['cpu_ratio']:.3f}")
@@ -390,6 +401,8 @@ def report(res: dict) -> str:
 def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__, formatter_class=argparse.RawDescriptionHelpFormatter)
     ap.add_argument("--repeats", type=int, default=5, help="timed runs of each objective on the 12 MP photo")
+    ap.add_argument("--warmup", type=int, default=1, help="untimed runs of each objective before timing")
+    ap.add_argument("-k", "--k", type=int, default=DEFAULT_K, help="colours (the target is stated for 16)")
     ap.add_argument("--wait-idle", type=float, default=60.0, metavar="SECONDS",
                     help=f"before timing, wait up to this long for a 1-minute load average below {IDLE_LOADAVG}")
     ap.add_argument("--no-lto", action="store_true", help="build without LTO (faster build, not the shipped profile)")
@@ -399,7 +412,7 @@ def main() -> None:
     ap.add_argument("--json", type=Path, metavar="FILE", help="write every figure as JSON")
     a = ap.parse_args()
 
-    res = {"machine": machine()}
+    res = {"machine": machine(), "k": a.k}
     tree, res["source"] = source_tree(a.commit)
     binary, res["build"] = build_release(tree, a.no_lto)
     with tempfile.TemporaryDirectory(prefix="chromasift-families-") as tmp:
@@ -407,7 +420,7 @@ def main() -> None:
         (work / "photos").mkdir()
         photos = write_samples(work / "photos") + [big_photo(a.photo, a.remake_photo)]
         res["photos"] = photos
-        res["quality"] = quality(binary, photos, work)
+        res["quality"] = quality(binary, photos, work, a.k)
         ratios = [r["ratio"] for r in res["quality"]]
         worst = max(res["quality"], key=lambda r: r["ratio"])
         res["quality_summary"] = {
@@ -417,9 +430,13 @@ def main() -> None:
             "worst_photo": worst["photo"],
             "over": [r["photo"] for r in res["quality"] if r["ratio"] > TARGET_DE_RATIO],
             "photos_with_moves": sum(1 for r in res["quality"] if r["families"]["family_moves"] > 0),
+            "photos_same_result": sum(
+                1 for r in res["quality"]
+                if (r["plain"]["sse"], r["plain"]["mean_delta_e2000"]) == (r["families"]["sse"], r["families"]["mean_delta_e2000"])
+            ),
             "target": TARGET_DE_RATIO,
         }
-        res["timing"] = timing(binary, a.photo, work, a.repeats, a.wait_idle)
+        res["timing"] = timing(binary, a.photo, work, a.k, a.repeats, a.warmup, a.wait_idle)
         res["timing"]["target"] = TARGET_TIME_RATIO
     print(report(res))
     if a.json:

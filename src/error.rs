@@ -76,9 +76,9 @@ pub enum ParamsError {
     BadShiftTolerance(f64),
     #[error("tolerance must be a finite number >= 0 (got {0})")]
     BadTolerance(f64),
-    #[error("max-iter must be at least 1 (got {0})")]
+    #[error("max-iter must be between 1 and 100000 (got {0})")]
     BadMaxIter(usize),
-    #[error("restarts must be at least 1 (got {0})")]
+    #[error("restarts must be between 1 and 1000 (got {0})")]
     BadRestarts(usize),
     #[error("rows have {got} values each but the dimension is {dim}")]
     RaggedRows { got: usize, dim: usize },

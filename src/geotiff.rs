@@ -2382,6 +2382,7 @@ mod tests {
         let limits = Limits {
             max_pixels: 1 << 40,
             max_alloc: 256 << 20,
+            ..Limits::default()
         };
         let r = GeoRaster::open(f.path(), &limits);
         assert!(matches!(r, Err(Error::LimitExceeded { .. })), "{r:?}");
@@ -2451,6 +2452,7 @@ mod tests {
         let limits = Limits {
             max_pixels: 1 << 20,
             max_alloc: 32 << 20,
+            ..Limits::default()
         };
         for name in [
             "utm_u16_4band_strips.tif",

@@ -152,15 +152,27 @@ pub fn parse_library(text: &str, path: &Path) -> Result<Vec<Ink>> {
     Ok(inks)
 }
 
-/// Reads a library file.
+/// Reads a library file under the default limits.
 pub fn read_library(path: &Path) -> Result<Vec<Ink>> {
-    let bytes = std::fs::read(path).map_err(|source| Error::Open {
-        path: path.into(),
-        source,
-    })?;
-    let text = String::from_utf8(bytes)
-        .map_err(|_| table_error(path, None, "the ink library is not UTF-8 text"))?;
-    parse_library(&text, path)
+    read_library_with(path, &crate::Limits::default())
+}
+
+/// Reads a library file of at most `limits.max_text_bytes` bytes and `limits.max_entries`
+/// inks.
+pub fn read_library_with(path: &Path, limits: &crate::Limits) -> Result<Vec<Ink>> {
+    let text = limits.read_text(path, "ink library")?;
+    let inks = parse_library(&text, path)?;
+    if inks.len() > limits.max_entries {
+        return Err(Error::LimitExceeded {
+            path: path.into(),
+            message: format!(
+                "the ink library has {} inks; at most {} are accepted",
+                inks.len(),
+                limits.max_entries
+            ),
+        });
+    }
+    Ok(inks)
 }
 
 fn parse_csv(text: &str, path: &Path) -> Result<Vec<Ink>> {

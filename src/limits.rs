@@ -10,6 +10,11 @@ pub struct Limits {
     pub max_pixels: u64,
     /// Largest single allocation a decoder may make, in bytes.
     pub max_alloc: u64,
+    /// Largest text input (ink library, palette document), in bytes. Default: 16 MiB.
+    pub max_text_bytes: u64,
+    /// Most inks in an ink library, and most colours in a palette document given to
+    /// `apply` or `batch --palette`. Default: 4096.
+    pub max_entries: usize,
 }
 
 impl Default for Limits {
@@ -17,6 +22,8 @@ impl Default for Limits {
         Limits {
             max_pixels: 200_000_000,
             max_alloc: 3 << 30,
+            max_text_bytes: 16 << 20,
+            max_entries: 4096,
         }
     }
 }
@@ -27,6 +34,8 @@ impl Limits {
         Limits {
             max_pixels: u64::MAX,
             max_alloc: u64::MAX,
+            max_text_bytes: u64::MAX,
+            max_entries: usize::MAX,
         }
     }
 
@@ -36,6 +45,44 @@ impl Limits {
             max_pixels,
             ..Limits::default()
         }
+    }
+
+    /// Reads a text file (or a device or pipe) of at most `max_text_bytes`, as UTF-8 with
+    /// any byte-order mark removed. `what` names the input in messages ("ink library").
+    pub fn read_text(&self, path: &std::path::Path, what: &str) -> crate::Result<String> {
+        use std::io::Read;
+        let open = |source| crate::Error::Open {
+            path: path.into(),
+            source,
+        };
+        let file = std::fs::File::open(path).map_err(open)?;
+        if file.metadata().map(|m| m.is_dir()).unwrap_or(false) {
+            return Err(crate::Error::Decode {
+                path: path.into(),
+                message: format!("is a folder, not a {what}"),
+            });
+        }
+        let mut bytes = Vec::new();
+        file.take(self.max_text_bytes.saturating_add(1))
+            .read_to_end(&mut bytes)
+            .map_err(open)?;
+        if bytes.len() as u64 > self.max_text_bytes {
+            return Err(crate::Error::LimitExceeded {
+                path: path.into(),
+                message: format!(
+                    "the {what} is over the limit of {} bytes",
+                    self.max_text_bytes
+                ),
+            });
+        }
+        let text = String::from_utf8(bytes).map_err(|_| crate::Error::Decode {
+            path: path.into(),
+            message: format!("the {what} is not UTF-8 text"),
+        })?;
+        Ok(match text.strip_prefix('\u{feff}') {
+            Some(rest) => rest.to_string(),
+            None => text,
+        })
     }
 
     /// Checks a declared size; returns a message when it is over the limit.

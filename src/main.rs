@@ -30,16 +30,14 @@ const EXIT_INTERRUPTED: u8 = 130;
 static STOP: AtomicBool = AtomicBool::new(false);
 
 fn read_palette(path: &std::path::Path) -> Result<reduce::FixedPalette, chromasift::Error> {
-    let bytes = std::fs::read(path).map_err(|source| chromasift::Error::Open {
-        path: path.into(),
-        source,
-    })?;
+    let limits = chromasift::Limits::default();
+    let text = limits.read_text(path, "palette document")?;
     let bad = |message: String| chromasift::Error::Decode {
         path: path.into(),
         message,
     };
     let value: serde_json::Value =
-        serde_json::from_slice(&bytes).map_err(|e| bad(format!("not a palette document: {e}")))?;
+        serde_json::from_str(&text).map_err(|e| bad(format!("not a palette document: {e}")))?;
     if !value.is_object() {
         return Err(bad(
             "not a palette document: expected a JSON object (a palette.json written by \
@@ -49,6 +47,16 @@ fn read_palette(path: &std::path::Path) -> Result<reduce::FixedPalette, chromasi
     }
     let doc: reduce::PaletteDocument =
         serde_json::from_value(value).map_err(|e| bad(format!("not a palette document: {e}")))?;
+    if doc.colors.len() > limits.max_entries {
+        return Err(chromasift::Error::LimitExceeded {
+            path: path.into(),
+            message: format!(
+                "the palette has {} colours; at most {} are accepted",
+                doc.colors.len(),
+                limits.max_entries
+            ),
+        });
+    }
     reduce::FixedPalette::from_document(&doc).map_err(|message| chromasift::Error::Decode {
         path: path.into(),
         message,
@@ -100,7 +108,8 @@ fn reduce_stream(
         Some(which) => {
             let data = reduce::encode_one(&red, which);
             let mut out = std::io::stdout().lock();
-            out.write_all(&data)
+            stdout_open()
+                .and_then(|()| out.write_all(&data))
                 .and_then(|_| out.flush())
                 .map_err(|e| chromasift::Error::io(std::path::Path::new("standard output"), e))?;
             Vec::new()
@@ -315,8 +324,36 @@ static STDOUT_FAILED: AtomicBool = AtomicBool::new(false);
 /// Writes one document and a newline to standard output; a failure (a full disk, a closed
 /// pipe) is reported once on standard error and makes the exit status 2.
 fn emit(out: &mut impl Write, text: &str) {
-    let result = writeln!(out, "{text}").and_then(|()| out.flush());
+    let result = stdout_open()
+        .and_then(|()| writeln!(out, "{text}"))
+        .and_then(|()| out.flush());
     stdout_result(result);
+}
+
+/// An error when standard output is closed (`>&-`): the standard library would drop what
+/// is written there without a word.
+fn stdout_open() -> std::io::Result<()> {
+    #[cfg(unix)]
+    {
+        // A program started with standard output closed finds /dev/null there, opened for
+        // reading and writing by the Rust runtime; a user's own `>/dev/null` is write-only.
+        // SAFETY: fcntl and fstat only query the descriptor; `st` is plain data.
+        let closed = unsafe {
+            let flags = libc::fcntl(1, libc::F_GETFL);
+            let mut st: libc::stat = std::mem::zeroed();
+            let mut null: libc::stat = std::mem::zeroed();
+            flags == -1
+                || (flags & libc::O_ACCMODE == libc::O_RDWR
+                    && libc::fstat(1, &mut st) == 0
+                    && libc::stat(c"/dev/null".as_ptr(), &mut null) == 0
+                    && (st.st_mode & libc::S_IFMT) == libc::S_IFCHR
+                    && st.st_rdev == null.st_rdev)
+        };
+        if closed {
+            return Err(std::io::Error::other("standard output is closed"));
+        }
+    }
+    Ok(())
 }
 
 /// Records a failed write to standard output. A closed pipe (`… | head`) is not worth a

@@ -63,6 +63,46 @@ impl Decoded {
     }
 }
 
+/// A PNG without its embedded colour profiles (iCCP chunks), or `None` when it has none
+/// (or is not a well-formed chunk sequence, which the decoder then reports). The profile is
+/// not used, and its compressed text could inflate to gigabytes before any pixel limit
+/// applies, so the decoder never sees it.
+pub fn png_without_profile(bytes: &[u8]) -> Option<Vec<u8>> {
+    const PNG_SIG: &[u8] = b"\x89PNG\r\n\x1a\n";
+    if !bytes.starts_with(PNG_SIG) {
+        return None;
+    }
+    let mut pos = 8usize;
+    let mut spans = Vec::new();
+    let mut found = false;
+    while pos + 12 <= bytes.len() {
+        let len = u32::from_be_bytes(bytes[pos..pos + 4].try_into().ok()?) as usize;
+        let end = pos.checked_add(12)?.checked_add(len)?;
+        if end > bytes.len() {
+            return None;
+        }
+        let kind = &bytes[pos + 4..pos + 8];
+        if kind == b"iCCP" {
+            found = true;
+        } else {
+            spans.push(pos..end);
+        }
+        pos = end;
+        if kind == b"IEND" {
+            break;
+        }
+    }
+    if !found {
+        return None;
+    }
+    let mut out = PNG_SIG.to_vec();
+    for span in spans {
+        out.extend_from_slice(&bytes[span]);
+    }
+    out.extend_from_slice(&bytes[pos..]);
+    Some(out)
+}
+
 /// Reads the print resolution from a PNG pHYs chunk (unit: metre) or a JPEG JFIF header,
 /// in dots per inch. Returns `None` when the file records none.
 pub fn sniff_dpi(bytes: &[u8]) -> Option<f64> {
@@ -274,6 +314,9 @@ pub fn decode_bytes(bytes: &[u8], name: &Path, limits: &Limits) -> Result<Decode
             message: "file is empty".into(),
         });
     }
+    let stripped = png_without_profile(bytes);
+    let dpi = sniff_dpi(bytes);
+    let bytes = stripped.as_deref().unwrap_or(bytes);
     let reader = ImageReader::new(Cursor::new(bytes))
         .with_guessed_format()
         .map_err(|e| decode_error(name, e.into()))?;
@@ -330,7 +373,7 @@ pub fn decode_bytes(bytes: &[u8], name: &Path, limits: &Limits) -> Result<Decode
     reader.limits(il);
     let img = reader.decode().map_err(|e| decode_error(name, e))?;
     let mut d = from_dynamic(img);
-    d.dpi = sniff_dpi(bytes);
+    d.dpi = dpi;
     Ok(d)
 }
 

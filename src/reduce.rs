@@ -536,22 +536,40 @@ pub fn entry_features(h: &histogram::Histogram, space: Space) -> (Vec<f32>, Vec<
 pub struct FixedPalette {
     pub colours: Vec<[u8; 3]>,
     pub beta: Option<f64>,
+    /// The space the palette was chosen in: pixels are mapped to it there.
+    pub space: Space,
 }
 
 impl FixedPalette {
-    /// The colours and β of a palette document.
+    /// The colours, β and space of a palette document. Each colour's `lab` must be the
+    /// CIELAB of its `hex` (within ΔE2000 0.5): an edited value that disagrees is refused
+    /// instead of one of the two being chosen silently.
     pub fn from_document(doc: &PaletteDocument) -> std::result::Result<Self, String> {
-        let colours = doc
-            .colors
-            .iter()
-            .map(|c| colour::parse_hex(&c.hex))
-            .collect::<std::result::Result<Vec<_>, _>>()?;
+        let mut colours = Vec::with_capacity(doc.colors.len());
+        for (i, c) in doc.colors.iter().enumerate() {
+            let rgb = colour::parse_hex(&c.hex).map_err(|e| format!("colour {i}: {e}"))?;
+            let lab = colour::srgb8_to_lab(rgb);
+            let off = if c.lab.iter().all(|v| v.is_finite()) {
+                colour::delta_e2000(lab, c.lab)
+            } else {
+                f64::INFINITY
+            };
+            if !(off <= 0.5) {
+                return Err(format!(
+                    "colour {i}: lab [{:.2}, {:.2}, {:.2}] is not the CIELAB of {} \
+                     ([{:.2}, {:.2}, {:.2}], ΔE2000 {off:.2} apart); make the two agree",
+                    c.lab[0], c.lab[1], c.lab[2], c.hex, lab[0], lab[1], lab[2]
+                ));
+            }
+            colours.push(rgb);
+        }
         if colours.is_empty() {
             return Err("the palette has no colours".into());
         }
         Ok(FixedPalette {
             colours,
             beta: doc.beta,
+            space: doc.space,
         })
     }
 }
@@ -613,6 +631,18 @@ fn reduce_indexed(
     opts: &ReduceOptions,
     fixed: Option<&FixedPalette>,
 ) -> Result<Reduction> {
+    // A given palette is applied in the space it was chosen in.
+    let palette_space;
+    let opts = match fixed {
+        Some(fp) if fp.space != opts.space => {
+            palette_space = ReduceOptions {
+                space: fp.space,
+                ..opts.clone()
+            };
+            &palette_space
+        }
+        _ => opts,
+    };
     let params = opts.kmeans_params().check()?;
     let mut ph = crate::trace::Phases::start("reduce");
     if hist.is_empty() {
@@ -770,7 +800,8 @@ fn reduce_indexed(
             ) {
                 notes.push(format!(
                     "moved {} palette colour{} to keep distinct colour families that plain \
-                     k-means merged into a neighbour (families lost: {} before, {} after)",
+                     k-means merged into a neighbour (families more than ΔE2000 6 from the \
+                     palette: {} before, {} after)",
                     kept.moves,
                     if kept.moves == 1 { "" } else { "s" },
                     kept.lost_before,
@@ -970,6 +1001,32 @@ fn reduce_indexed(
     warnings.extend(families::lost_areas_warning(&lost_areas));
     ph.mark("lost areas");
 
+    // Say so when the palette holds fewer colours than asked for although the image has
+    // more: means that collapsed together (a very small β pulls every soft mean to the
+    // centre) or that round to one sRGB colour.
+    if fixed.is_none()
+        && opts.target.is_none()
+        && palette.len() < opts.k
+        && hist.len() > palette.len()
+    {
+        notes.push(format!(
+            "the palette has {} colours, not the {} asked for: the means came together or \
+             round to the same sRGB colour{}",
+            palette.len(),
+            opts.k,
+            match (opts.mode, opts.beta) {
+                (Mode::Soft, Beta::Fixed(_)) => " (try a larger --beta or --beta auto)",
+                _ => "",
+            }
+        ));
+    }
+    if fixed.is_none() && opts.mode == Mode::Soft && beta.is_none() {
+        notes.push(
+            "every colour sits on a palette mean, so soft mode gives the hard result here \
+             (beta is null and the uncertainty is 0)"
+                .into(),
+        );
+    }
     let document = PaletteDocument {
         tool_version: crate::TOOL_VERSION.to_string(),
         input: None,

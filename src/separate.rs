@@ -299,6 +299,22 @@ pub fn separate_image(
             "every pixel is fully transparent; there is nothing to separate".into(),
         ));
     }
+    // The cost table holds 4 bytes per colour and ink: bound it before allocating.
+    let table_bytes = (hist.len() as u64)
+        .saturating_mul(library.len() as u64)
+        .saturating_mul(4);
+    if table_bytes > opts.limits.max_alloc {
+        return Err(Error::LimitExceeded {
+            path: library_path.into(),
+            message: format!(
+                "matching {} artwork colours against {} inks needs {table_bytes} bytes, over \
+                 the limit of {} bytes; use a smaller ink library",
+                hist.len(),
+                library.len(),
+                opts.limits.max_alloc
+            ),
+        });
+    }
     let labs: Vec<[f64; 3]> = hist
         .colours
         .par_iter()
@@ -663,7 +679,7 @@ pub fn separate_file(
             .into());
         }
     }
-    let library = inks::read_library(library_path)?;
+    let library = inks::read_library_with(library_path, &opts.limits)?;
     resolve_inks(&library, opts, library_path)?;
     let stem = crate::reduce::stem_of(input)?;
     let img = raster::decode(input, &opts.limits)?;

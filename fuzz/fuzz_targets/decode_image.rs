@@ -16,6 +16,8 @@ use std::path::Path;
 const LIMITS: Limits = Limits {
     max_pixels: 1 << 20,
     max_alloc: 64 << 20,
+    max_text_bytes: 1 << 20,
+    max_entries: 4096,
 };
 
 fuzz_target!(|data: &[u8]| {

@@ -23,6 +23,8 @@ use std::sync::{Mutex, OnceLock};
 const LIMITS: Limits = Limits {
     max_pixels: 1 << 20,
     max_alloc: 64 << 20,
+    max_text_bytes: 1 << 20,
+    max_entries: 4096,
 };
 
 fn scratch() -> &'static PathBuf {

@@ -467,7 +467,13 @@ pub struct ReduceArgs {
     pub settings: ReduceFlags,
 
     /// Output folder (created if missing).
-    #[arg(short = 'o', long = "out", default_value = ".", value_name = "DIR")]
+    #[arg(
+        short = 'o',
+        long = "out",
+        default_value = ".",
+        value_name = "DIR",
+        conflicts_with = "stdout"
+    )]
     pub out: PathBuf,
 
     /// Print the palette document on standard output.

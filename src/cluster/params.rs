@@ -5,6 +5,10 @@ use crate::rng::DEFAULT_SEED;
 
 /// Largest K accepted.
 pub const MAX_K: usize = 65_535;
+/// Most k-means++ starts accepted.
+pub const MAX_RESTARTS: usize = 1000;
+/// Most iterations per phase accepted.
+pub const MAX_ITER: usize = 100_000;
 
 /// Hard (each row one cluster) or soft (each row a probability over clusters).
 #[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize, serde::Deserialize)]
@@ -185,11 +189,12 @@ impl KMeansParams {
         if let Some(a) = &self.anneal {
             a.check()?;
         }
-        if self.max_iter == 0 {
-            return Err(ParamsError::BadMaxIter(0));
+        // Upper bounds keep a typing slip from running for hours.
+        if self.max_iter == 0 || self.max_iter > MAX_ITER {
+            return Err(ParamsError::BadMaxIter(self.max_iter));
         }
-        if self.restarts == 0 {
-            return Err(ParamsError::BadRestarts(0));
+        if self.restarts == 0 || self.restarts > MAX_RESTARTS {
+            return Err(ParamsError::BadRestarts(self.restarts));
         }
         if self.pinned.iter().any(|v| !v.is_finite()) {
             return Err(ParamsError::BadPinned(

@@ -1,0 +1,302 @@
+//! Bounded memory and honest results under hostile or careless input: sizes a file or a
+//! user sets are bounded before allocation, silent changes of meaning become notes or
+//! refusals. Memory checks run the binary under an address-space limit (`ulimit -v`), so a
+//! regression fails instead of exhausting the machine.
+
+mod common;
+
+use common::{fixture, run, stderr};
+use serde_json::Value;
+use std::path::Path;
+use std::process::Command;
+
+/// Runs the binary under an address-space limit of `kib` KiB through `sh`.
+fn run_limited(kib: u64, args: &[&str]) -> std::process::Output {
+    let bin = env!("CARGO_BIN_EXE_chromasift");
+    let quoted: Vec<String> = args.iter().map(|a| format!("'{a}'")).collect();
+    Command::new("sh")
+        .arg("-c")
+        .arg(format!(
+            "ulimit -v {kib}; exec '{bin}' {}",
+            quoted.join(" ")
+        ))
+        .output()
+        .unwrap()
+}
+
+/// A zlib stream that inflates to `n` zero bytes, written by hand (RFC 1950/1951): one
+/// fixed-Huffman block of a literal 0 and copies of 258 bytes at distance 1. About 13 bits
+/// per 258 bytes, so a few megabytes hold gigabytes.
+fn zlib_zeros(n: u64) -> Vec<u8> {
+    struct Bits {
+        out: Vec<u8>,
+        acc: u64,
+        len: u32,
+    }
+    impl Bits {
+        fn put(&mut self, value: u64, len: u32) {
+            self.acc |= value << self.len;
+            self.len += len;
+            while self.len >= 8 {
+                self.out.push(self.acc as u8);
+                self.acc >>= 8;
+                self.len -= 8;
+            }
+        }
+        // Huffman codes go most significant bit first.
+        fn code(&mut self, code: u64, len: u32) {
+            let mut r = 0;
+            for i in 0..len {
+                r |= ((code >> i) & 1) << (len - 1 - i);
+            }
+            self.put(r, len);
+        }
+    }
+    let mut b = Bits {
+        out: vec![0x78, 0x01],
+        acc: 0,
+        len: 0,
+    };
+    b.put(1, 1); // final block
+    b.put(1, 2); // fixed Huffman
+    b.code(0x30, 8); // literal 0
+    let mut left = n - 1;
+    while left >= 258 {
+        b.code(0b1100_0101, 8); // length 258 (symbol 285)
+        b.code(0, 5); // distance 1
+        left -= 258;
+    }
+    for _ in 0..left {
+        b.code(0x30, 8);
+    }
+    b.code(0, 7); // end of block (256)
+    if b.len > 0 {
+        b.put(0, 8 - b.len);
+    }
+    // Adler-32 of n zeros: a = 1, b = n mod 65521.
+    let adler = ((n % 65521) << 16) | 1;
+    b.out.extend_from_slice(&(adler as u32).to_be_bytes());
+    b.out
+}
+
+fn crc32(bytes: &[u8]) -> u32 {
+    let mut c = 0xffff_ffffu32;
+    for &x in bytes {
+        c ^= x as u32;
+        for _ in 0..8 {
+            c = if c & 1 != 0 {
+                (c >> 1) ^ 0xedb8_8320
+            } else {
+                c >> 1
+            };
+        }
+    }
+    !c
+}
+
+fn chunk(kind: &[u8; 4], data: &[u8]) -> Vec<u8> {
+    let mut v = (data.len() as u32).to_be_bytes().to_vec();
+    v.extend_from_slice(kind);
+    v.extend_from_slice(data);
+    let mut crc_in = kind.to_vec();
+    crc_in.extend_from_slice(data);
+    v.extend_from_slice(&crc32(&crc_in).to_be_bytes());
+    v
+}
+
+/// A 1 × 1 PNG whose colour profile (iCCP) inflates to 1 GiB: decoded under a 400 MB
+/// address-space limit, as a plain 1 × 1 image (the profile is not used and never inflated).
+#[test]
+fn a_compressed_colour_profile_cannot_exhaust_memory() {
+    let mut png = b"\x89PNG\r\n\x1a\n".to_vec();
+    let mut ihdr = Vec::new();
+    ihdr.extend_from_slice(&1u32.to_be_bytes());
+    ihdr.extend_from_slice(&1u32.to_be_bytes());
+    ihdr.extend_from_slice(&[8, 2, 0, 0, 0]); // 8-bit RGB
+    png.extend(chunk(b"IHDR", &ihdr));
+    let mut iccp = b"bomb\0\0".to_vec(); // name, NUL, compression method 0
+    iccp.extend(zlib_zeros(1 << 30));
+    png.extend(chunk(b"iCCP", &iccp));
+    // One scanline: filter byte 0 and one RGB pixel, stored (uncompressed) deflate block.
+    let raw = [0u8, 200, 40, 30];
+    let mut idat = vec![0x78, 0x01, 0x01, 4, 0, !4u8, 0xff];
+    idat.extend_from_slice(&raw);
+    let (mut a, mut b) = (1u32, 0u32);
+    for &x in &raw {
+        a = (a + x as u32) % 65521;
+        b = (b + a) % 65521;
+    }
+    idat.extend_from_slice(&((b << 16) | a).to_be_bytes());
+    png.extend(chunk(b"IDAT", &idat));
+    png.extend(chunk(b"IEND", &[]));
+    let dir = tempfile::tempdir().unwrap();
+    let input = dir.path().join("bomb.png");
+    std::fs::write(&input, &png).unwrap();
+    let o = run_limited(
+        400_000,
+        &[
+            "reduce",
+            input.to_str().unwrap(),
+            "-k",
+            "2",
+            "-o",
+            dir.path().to_str().unwrap(),
+            "--json",
+        ],
+    );
+    assert!(o.status.success(), "{}", stderr(&o));
+    let doc: Value = serde_json::from_slice(&o.stdout).unwrap();
+    assert_eq!(doc["colors"][0]["hex"], "#c8281e");
+}
+
+/// Ink libraries and palette documents: read with a size limit (a device that never ends
+/// is refused), at most 4096 entries, one line naming the file.
+#[test]
+fn text_inputs_and_tables_are_bounded() {
+    let dir = tempfile::tempdir().unwrap();
+    let poster = fixture("demo/harbour-poster.png");
+    let out = dir.path().join("out");
+    let lib = dir.path().join("many.csv");
+    let mut text = String::from("name,hex\n");
+    for i in 0..5000 {
+        text.push_str(&format!("ink {i},#{:06x}\n", i * 3));
+    }
+    std::fs::write(&lib, text).unwrap();
+    for (inks, says) in [
+        (lib.to_str().unwrap(), "at most 4096"),
+        ("/dev/zero", "over the limit of 16777216 bytes"),
+    ] {
+        let o = run_limited(
+            600_000,
+            &[
+                "separate",
+                poster.to_str().unwrap(),
+                "--inks",
+                inks,
+                "-o",
+                out.to_str().unwrap(),
+            ],
+        );
+        assert_eq!(o.status.code(), Some(2), "{}", stderr(&o));
+        let err = stderr(&o);
+        assert_eq!(err.lines().count(), 1, "{err}");
+        assert!(err.contains(inks) && err.contains(says), "{err}");
+    }
+    let o = run(
+        &[
+            "apply",
+            poster.to_str().unwrap(),
+            "--palette",
+            "/dev/zero",
+            "-o",
+            out.to_str().unwrap(),
+        ],
+        &[],
+    );
+    assert_eq!(o.status.code(), Some(2));
+    assert!(stderr(&o).contains("over the limit"), "{}", stderr(&o));
+    assert!(!out.exists());
+}
+
+/// `apply` maps in the space the palette was chosen in, keeps a palette's byte-order mark
+/// out of the way, and refuses a `lab` that disagrees with its `hex`.
+#[test]
+fn apply_uses_the_palettes_space_and_checks_lab_against_hex() {
+    let dir = tempfile::tempdir().unwrap();
+    let poster = fixture("demo/harbour-poster.png");
+    let learnt = dir.path().join("learnt");
+    let o = run(
+        &[
+            "reduce",
+            poster.to_str().unwrap(),
+            "-k",
+            "5",
+            "--space",
+            "oklab",
+            "-o",
+            learnt.to_str().unwrap(),
+        ],
+        &[],
+    );
+    assert!(o.status.success(), "{}", stderr(&o));
+    let doc_path = learnt.join("harbour-poster.palette.json");
+    let applied = dir.path().join("applied");
+    let apply = |palette: &Path| {
+        run(
+            &[
+                "apply",
+                poster.to_str().unwrap(),
+                "--palette",
+                palette.to_str().unwrap(),
+                "-o",
+                applied.to_str().unwrap(),
+                "--json",
+            ],
+            &[],
+        )
+    };
+    let o = apply(&doc_path);
+    assert!(o.status.success(), "{}", stderr(&o));
+    let doc: Value = serde_json::from_slice(&o.stdout).unwrap();
+    assert_eq!(doc["space"], "oklab");
+    // With a byte-order mark in front.
+    let text = std::fs::read_to_string(&doc_path).unwrap();
+    let bom = dir.path().join("bom.json");
+    std::fs::write(&bom, format!("\u{feff}{text}")).unwrap();
+    assert!(apply(&bom).status.success());
+    // An edited lab that no longer matches its hex.
+    let mut v: Value = serde_json::from_str(&text).unwrap();
+    v["colors"][1]["lab"] = serde_json::json!([50.0, 60.0, -20.0]);
+    let edited = dir.path().join("edited.json");
+    std::fs::write(&edited, v.to_string()).unwrap();
+    let o = apply(&edited);
+    assert_eq!(o.status.code(), Some(2));
+    let err = stderr(&o);
+    assert!(
+        err.contains("colour 1") && err.contains("make the two agree"),
+        "{err}"
+    );
+    assert_eq!(err.lines().count(), 1, "{err}");
+}
+
+/// Silent changes of meaning: huge restarts refused, `--stdout` with `-o` refused, a
+/// closed standard output is an error, and a β so small that the means collapse gets a
+/// note.
+#[test]
+fn silent_changes_of_meaning_are_refused_or_noted() {
+    let dir = tempfile::tempdir().unwrap();
+    let poster = fixture("demo/harbour-poster.png");
+    let out = dir.path().to_str().unwrap();
+    let p = poster.to_str().unwrap();
+    let o = run(&["reduce", p, "--restarts", "4294967295", "-o", out], &[]);
+    assert_eq!(o.status.code(), Some(2));
+    assert!(stderr(&o).contains("restarts must be between 1 and 1000"));
+    let o = run(&["reduce", p, "--stdout", "palette", "-o", out], &[]);
+    assert_eq!(o.status.code(), Some(2));
+    let bin = env!("CARGO_BIN_EXE_chromasift");
+    let o = Command::new("sh")
+        .arg("-c")
+        .arg(format!("exec '{bin}' reduce '{p}' --stdout palette >&-"))
+        .output()
+        .unwrap();
+    assert_eq!(o.status.code(), Some(2), "{}", stderr(&o));
+    assert!(stderr(&o).contains("standard output is closed"));
+    // Writing to /dev/null on purpose is fine.
+    let o = Command::new("sh")
+        .arg("-c")
+        .arg(format!(
+            "exec '{bin}' reduce '{p}' --stdout palette >/dev/null"
+        ))
+        .output()
+        .unwrap();
+    assert_eq!(o.status.code(), Some(0), "{}", stderr(&o));
+    let o = run(
+        &[
+            "reduce", p, "-k", "4", "--mode", "soft", "--beta", "1e-300", "-o", out,
+        ],
+        &[],
+    );
+    assert!(o.status.success(), "{}", stderr(&o));
+    let err = stderr(&o);
+    assert!(err.contains("not the 4 asked for"), "{err}");
+}
