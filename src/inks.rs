@@ -114,9 +114,24 @@ fn checked_lab(path: &Path, line: usize, lab: [f64; 3]) -> Result<[f64; 3]> {
     Ok(lab)
 }
 
+/// Longest ink name accepted, in characters (names go into plate file names).
+pub const MAX_NAME_CHARS: usize = 100;
+
 fn check_name(path: &Path, line: usize, name: &str) -> Result<()> {
     if name.is_empty() {
         return Err(table_error(path, Some(line), "field 'name' is empty"));
+    }
+    let chars = name.chars().count();
+    if chars > MAX_NAME_CHARS {
+        return Err(table_error(
+            path,
+            Some(line),
+            format!(
+                "the ink name starting '{}…' is {chars} characters long; at most \
+                 {MAX_NAME_CHARS} are accepted",
+                name.chars().take(24).collect::<String>()
+            ),
+        ));
     }
     Ok(())
 }
@@ -189,8 +204,18 @@ fn parse_csv(text: &str, path: &Path) -> Result<Vec<Ink>> {
         .map(|c| c.to_lowercase())
         .collect();
     let col = |n: &str| cols.iter().position(|c| c == n);
-    let name_c = col("name")
-        .ok_or_else(|| table_error(path, Some(hline + 1), "the header has no 'name' column"))?;
+    let name_c = col("name").ok_or_else(|| {
+        let hint = if header.contains(';') && !header.contains(',') {
+            "; fields must be separated by commas, and this header uses semicolons"
+        } else {
+            ""
+        };
+        table_error(
+            path,
+            Some(hline + 1),
+            format!("the header has no 'name' column{hint}"),
+        )
+    })?;
     let lab_c = match (col("l"), col("a"), col("b")) {
         (Some(l), Some(a), Some(b)) => Some([l, a, b]),
         _ => None,
@@ -258,6 +283,14 @@ fn parse_json(text: &str, path: &Path) -> Result<Vec<Ink>> {
             .ok_or_else(|| entry("field 'name' is missing or not text".into()))?;
         if name.trim().is_empty() {
             return Err(entry("field 'name' is empty".into()));
+        }
+        let chars = name.trim().chars().count();
+        if chars > MAX_NAME_CHARS {
+            return Err(entry(format!(
+                "the ink name starting '{}…' is {chars} characters long; at most \
+                 {MAX_NAME_CHARS} are accepted",
+                name.trim().chars().take(24).collect::<String>()
+            )));
         }
         let mut ink = match (get("l"), get("a"), get("b"), get("hex")) {
             (Some(l), Some(a), Some(b), _) => {

@@ -300,3 +300,39 @@ fn silent_changes_of_meaning_are_refused_or_noted() {
     let err = stderr(&o);
     assert!(err.contains("not the 4 asked for"), "{err}");
 }
+
+/// Ink library messages name the real problem: a semicolon-separated file gets a hint, and
+/// a very long ink name is refused without being echoed whole.
+#[test]
+fn ink_library_messages_name_the_cause() {
+    let dir = tempfile::tempdir().unwrap();
+    let poster = fixture("demo/harbour-poster.png");
+    let semi = dir.path().join("semi.csv");
+    std::fs::write(&semi, "name;hex\nRed;#ff0000\n").unwrap();
+    let long = dir.path().join("long.csv");
+    std::fs::write(
+        &long,
+        format!("name,hex\n{},#ff0000\n", "x".repeat(100_000)),
+    )
+    .unwrap();
+    for (lib, says) in [
+        (&semi, "this header uses semicolons"),
+        (&long, "100000 characters long"),
+    ] {
+        let o = run(
+            &[
+                "separate",
+                poster.to_str().unwrap(),
+                "--inks",
+                lib.to_str().unwrap(),
+                "-o",
+                dir.path().join("out").to_str().unwrap(),
+            ],
+            &[],
+        );
+        assert_eq!(o.status.code(), Some(2));
+        let err = stderr(&o);
+        assert!(err.contains(says), "{err}");
+        assert!(err.len() < 400, "{err}");
+    }
+}
