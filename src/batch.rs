@@ -212,6 +212,122 @@ pub fn check_out_not_inside(input_dir: &Path, out: &Path) -> Result<()> {
     Ok(())
 }
 
+/// Refuses a batch whose mirrored outputs would land inside its own input tree: with the
+/// output folder holding the input folder (`batch P/in -o P`), the outputs of `P/in/in/x.png`
+/// would go to `P/in/`, and the next run would take them for inputs.
+pub fn check_outputs_outside_input(input_dir: &Path, out: &Path, images: &[PathBuf]) -> Result<()> {
+    let i = resolved(input_dir);
+    let o = resolved(out);
+    let Ok(inside) = i.strip_prefix(&o) else {
+        return Ok(());
+    };
+    for img in images {
+        let rel = img.strip_prefix(input_dir).unwrap_or(img);
+        let folder = rel.parent().unwrap_or(Path::new(""));
+        if folder.starts_with(inside) {
+            return Err(Error::output(
+                out,
+                format!(
+                    "the outputs of {} would be written inside the input folder {}; choose an \
+                     output folder that does not hold the input folder",
+                    img.display(),
+                    input_dir.display()
+                ),
+            ));
+        }
+    }
+    Ok(())
+}
+
+/// File in the output folder that marks a running batch.
+pub const LOCK_NAME: &str = ".chromasift-batch.lock";
+
+/// The lock of a batch's output folder: holds this process's id, removed when dropped.
+#[derive(Debug)]
+pub struct OutputLock(PathBuf);
+
+impl OutputLock {
+    /// Takes the lock of `out`. Another running batch's lock is refused; a lock whose
+    /// process no longer runs (left by a killed batch) is taken over.
+    pub fn take(out: &Path) -> Result<OutputLock> {
+        let path = out.join(LOCK_NAME);
+        let me = std::process::id();
+        for _ in 0..2 {
+            match std::fs::OpenOptions::new()
+                .write(true)
+                .create_new(true)
+                .open(&path)
+            {
+                Ok(mut f) => {
+                    use std::io::Write;
+                    let _ = writeln!(f, "{me}");
+                    return Ok(OutputLock(path));
+                }
+                Err(e) if e.kind() == std::io::ErrorKind::AlreadyExists => {
+                    let holder = std::fs::read_to_string(&path)
+                        .ok()
+                        .and_then(|t| t.trim().parse::<u32>().ok());
+                    if let Some(pid) = holder.filter(|&pid| pid != me && process_runs(pid)) {
+                        return Err(Error::output(
+                            out,
+                            format!(
+                                "another batch (process {pid}) is writing into this folder; \
+                                 wait for it to finish, or remove {LOCK_NAME} there if none runs"
+                            ),
+                        ));
+                    }
+                    // Stale: its process has ended.
+                    let _ = std::fs::remove_file(&path);
+                }
+                Err(e) => {
+                    return Err(Error::output(
+                        out,
+                        format!("cannot create {LOCK_NAME}: {e}"),
+                    ))
+                }
+            }
+        }
+        Err(Error::output(out, format!("cannot take {LOCK_NAME}")))
+    }
+}
+
+impl Drop for OutputLock {
+    fn drop(&mut self) {
+        let _ = std::fs::remove_file(&self.0);
+    }
+}
+
+/// Whether a process with this id runs (on Unix; elsewhere assumed to).
+fn process_runs(pid: u32) -> bool {
+    #[cfg(unix)]
+    {
+        // SAFETY: signal 0 only checks that the process exists.
+        let r = unsafe { libc::kill(pid as libc::pid_t, 0) };
+        r == 0 || std::io::Error::last_os_error().raw_os_error() == Some(libc::EPERM)
+    }
+    #[cfg(not(unix))]
+    {
+        let _ = pid;
+        true
+    }
+}
+
+/// Workers a batch may run: the jobs asked for, at most twice the cores and one per 256 MB
+/// of available memory (a worker holds its image, outputs and a 64 MiB colour table).
+pub fn worker_count(jobs: usize) -> usize {
+    let cores = std::thread::available_parallelism().map_or(1, |n| n.get());
+    let by_memory = available_memory().map_or(usize::MAX, |b| (b / (256 << 20)).max(1) as usize);
+    jobs.clamp(1, MAX_JOBS).min(cores * 2).min(by_memory)
+}
+
+/// MemAvailable from /proc/meminfo, in bytes (Linux).
+fn available_memory() -> Option<u64> {
+    let text = std::fs::read_to_string("/proc/meminfo").ok()?;
+    let line = text.lines().find(|l| l.starts_with("MemAvailable:"))?;
+    let kib: u64 = line.split_whitespace().nth(1)?.parse().ok()?;
+    Some(kib * 1024)
+}
+
 /// Removes temporary files left by an interrupted earlier run.
 pub fn remove_stale_temporaries(out: &Path) {
     let mut stack = vec![out.to_path_buf()];
@@ -418,15 +534,18 @@ pub fn run_batch(
     opts.reduce.kmeans_params().check()?;
     check_out_not_inside(input_dir, out)?;
     let (images, others, unreadable) = walk_images(input_dir)?;
+    check_outputs_outside_input(input_dir, out, &images)?;
     std::fs::create_dir_all(out)
         .map_err(|e| Error::output(out, format!("cannot create output folder: {e}")))?;
     // A folder that cannot be written fails now, not after every image was reduced.
     drop(OutputSet::prepare(out, &[])?);
+    // One batch at a time per output folder: two would mix their results.
+    let _lock = OutputLock::take(out)?;
     remove_stale_temporaries(out);
     // Many images: keep each worker's colour-count table from image to image.
     let _keep = crate::histogram::KeepTables::new();
     let pool = rayon::ThreadPoolBuilder::new()
-        .num_threads(opts.jobs.clamp(1, MAX_JOBS))
+        .num_threads(worker_count(opts.jobs))
         .build()
         .map_err(|e| Error::Data(format!("cannot start worker threads: {e}")))?;
     let rel = |p: &Path| {

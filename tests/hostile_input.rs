@@ -336,3 +336,63 @@ fn ink_library_messages_name_the_cause() {
         assert!(err.len() < 400, "{err}");
     }
 }
+
+/// Two batches cannot write into one folder at once (a lock with the process id; a lock
+/// left by a process that has ended is taken over), and a batch whose mirrored outputs
+/// would land inside its own input tree is refused.
+#[test]
+fn batch_output_folders_are_locked_and_kept_out_of_the_input() {
+    let root = tempfile::tempdir().unwrap();
+    let input = root.path().join("in");
+    std::fs::create_dir_all(input.join("in")).unwrap();
+    std::fs::copy(
+        fixture("demo/harbour-poster.png"),
+        input.join("in/poster.png"),
+    )
+    .unwrap();
+    let out = root.path().join("out");
+    std::fs::create_dir_all(&out).unwrap();
+    let lock = out.join(".chromasift-batch.lock");
+    // A running process holds the lock: this test's own.
+    std::fs::write(&lock, format!("{}\n", std::process::id())).unwrap();
+    let args = [
+        "batch",
+        input.to_str().unwrap(),
+        "-k",
+        "3",
+        "-o",
+        out.to_str().unwrap(),
+    ];
+    let o = run(&args, &[]);
+    assert_eq!(o.status.code(), Some(2), "{}", stderr(&o));
+    assert!(stderr(&o).contains("another batch"), "{}", stderr(&o));
+    assert!(!out.join("in/poster.reduced.png").exists());
+    // A process that has ended: the lock is stale and taken over, then removed.
+    let mut child = Command::new("true").spawn().unwrap();
+    let dead = child.id();
+    child.wait().unwrap();
+    std::fs::write(&lock, format!("{dead}\n")).unwrap();
+    let o = run(&args, &[]);
+    assert_eq!(o.status.code(), Some(0), "{}", stderr(&o));
+    assert!(out.join("in/poster.reduced.png").is_file());
+    assert!(!lock.exists());
+    // `batch P/in -o P`: the outputs of P/in/in/poster.png would go to P/in/.
+    let o = run(
+        &[
+            "batch",
+            input.to_str().unwrap(),
+            "-k",
+            "3",
+            "-o",
+            root.path().to_str().unwrap(),
+        ],
+        &[],
+    );
+    assert_eq!(o.status.code(), Some(2), "{}", stderr(&o));
+    assert!(
+        stderr(&o).contains("inside the input folder"),
+        "{}",
+        stderr(&o)
+    );
+    assert!(!input.join("poster.reduced.png").exists());
+}
