@@ -928,6 +928,21 @@ pub fn input_files(inputs: &[PathBuf]) -> Result<Vec<PathBuf>> {
 
 /// Merged histogram of every input: folders (their images), image files and histogram files.
 pub fn gather_histograms(inputs: &[PathBuf], opts: &ReduceOptions) -> Result<Histogram> {
+    let (hist, failures) = gather_histograms_lenient(inputs, opts)?;
+    match failures.into_iter().next() {
+        Some((_, e)) => Err(e),
+        None => Ok(hist),
+    }
+}
+
+/// As [`gather_histograms`], but a file that cannot be read does not stop the others: the
+/// histogram of the files that could be read, and each failure (path and error, in input
+/// order). Fails only when no file could be read (with the first error) or on a merge
+/// that cannot be made.
+pub fn gather_histograms_lenient(
+    inputs: &[PathBuf],
+    opts: &ReduceOptions,
+) -> Result<(Histogram, Vec<(PathBuf, Error)>)> {
     let files = input_files(inputs)?;
     if files.is_empty() {
         let given: Vec<String> = inputs.iter().map(|p| p.display().to_string()).collect();
@@ -947,8 +962,14 @@ pub fn gather_histograms(inputs: &[PathBuf], opts: &ReduceOptions) -> Result<His
         Some(bytes) => decode_histogram(&bytes, f),
         None => histogram_of_file(f, opts),
     };
-    let (parts, failures) = merge_as_they_arrive(&files, read);
-    if let Some((_, e)) = failures.into_iter().min_by_key(|(i, _)| *i) {
+    let (parts, mut failures) = merge_as_they_arrive(&files, read);
+    failures.sort_by_key(|(i, _)| *i);
+    let failures: Vec<(PathBuf, Error)> = failures
+        .into_iter()
+        .map(|(i, e)| (files[i].clone(), e))
+        .collect();
+    if parts.is_empty() && !failures.is_empty() {
+        let (_, e) = failures.into_iter().next().expect("a failure");
         return Err(e);
     }
     let total = parts.iter().fold(0u64, |a, p| a.saturating_add(p.total()));
@@ -958,9 +979,10 @@ pub fn gather_histograms(inputs: &[PathBuf], opts: &ReduceOptions) -> Result<His
              exactly"
         )));
     }
-    Histogram::merge(&parts).ok_or_else(|| {
+    let hist = Histogram::merge(&parts).ok_or_else(|| {
         Error::Data("the histograms mix 8- and 16-bit tables and cannot be merged".into())
-    })
+    })?;
+    Ok((hist, failures))
 }
 
 /// The bytes of `path` when it is a histogram file (it starts with "CSHIST"), or `None`

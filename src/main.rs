@@ -323,6 +323,14 @@ static STDOUT_FAILED: AtomicBool = AtomicBool::new(false);
 
 /// Writes one document and a newline to standard output; a failure (a full disk, a closed
 /// pipe) is reported once on standard error and makes the exit status 2.
+/// Prints one line per input that could not be read (the others were used); their count.
+fn report_failures(failures: &[(std::path::PathBuf, chromasift::Error)]) -> usize {
+    for (_, e) in failures {
+        eprintln!("chromasift: failed: {e}");
+    }
+    failures.len()
+}
+
 fn emit(out: &mut impl Write, text: &str) {
     let result = stdout_open()
         .and_then(|()| writeln!(out, "{text}"))
@@ -541,9 +549,11 @@ fn run() -> ExitCode {
                 );
             }
             let opts = args.settings.options();
+            let mut failed = 0;
             let result = (|| -> Result<reduce::PaletteDocument, chromasift::Error> {
                 opts.kmeans_params().check()?;
-                let hist = batch::gather_histograms(&args.inputs, &opts)?;
+                let (hist, failures) = batch::gather_histograms_lenient(&args.inputs, &opts)?;
+                failed = report_failures(&failures);
                 let doc = reduce::learn_palette(&hist, &opts)?;
                 let json = serde_json::to_string_pretty(&doc).expect("document serialises");
                 let read = batch::input_files(&args.inputs)?;
@@ -573,7 +583,7 @@ fn run() -> ExitCode {
                             &serde_json::to_string_pretty(&doc).expect("document serialises"),
                         );
                     }
-                    ExitCode::SUCCESS
+                    some_failed(failed)
                 }
                 Err(e) => fail(e),
             }
@@ -605,8 +615,10 @@ fn run() -> ExitCode {
                 limits: chromasift::Limits::with_max_pixels(args.max_pixels),
                 ..reduce::ReduceOptions::new(1)
             };
+            let mut failed = 0;
             let result = (|| -> Result<(u64, usize), chromasift::Error> {
-                let hist = batch::gather_histograms(&args.inputs, &opts)?;
+                let (hist, failures) = batch::gather_histograms_lenient(&args.inputs, &opts)?;
+                failed = report_failures(&failures);
                 let read = batch::input_files(&args.inputs)?;
                 chromasift::output::write_file_sparing(
                     &args.out,
@@ -633,10 +645,20 @@ fn run() -> ExitCode {
                             .to_string(),
                         );
                     }
-                    ExitCode::SUCCESS
+                    some_failed(failed)
                 }
                 Err(e) => fail(e),
             }
         }
+    }
+}
+
+/// Exit status 1 when some inputs failed (the others were used), else 0.
+fn some_failed(failed: usize) -> ExitCode {
+    if failed > 0 {
+        eprintln!("chromasift: {failed} input(s) could not be read and were left out");
+        ExitCode::from(EXIT_SOME_FAILED)
+    } else {
+        ExitCode::SUCCESS
     }
 }

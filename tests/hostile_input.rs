@@ -396,3 +396,53 @@ fn batch_output_folders_are_locked_and_kept_out_of_the_input() {
     );
     assert!(!input.join("poster.reduced.png").exists());
 }
+
+/// `histogram` and `learn` report a file they cannot read and carry on with the others
+/// (exit 1, as `batch` does); with no readable file at all they fail (exit 2).
+#[test]
+fn histogram_and_learn_carry_on_past_a_bad_file() {
+    let dir = tempfile::tempdir().unwrap();
+    let bad = dir.path().join("bad.png");
+    std::fs::write(&bad, b"\x89PNG\r\n\x1a\n not really").unwrap();
+    let good = fixture("demo/harbour-poster.png");
+    let hist = dir.path().join("all.hist");
+    let o = run(
+        &[
+            "histogram",
+            good.to_str().unwrap(),
+            bad.to_str().unwrap(),
+            "-o",
+            hist.to_str().unwrap(),
+        ],
+        &[],
+    );
+    assert_eq!(o.status.code(), Some(1), "{}", stderr(&o));
+    assert!(stderr(&o).contains("bad.png"), "{}", stderr(&o));
+    assert!(hist.is_file());
+    let palette = dir.path().join("p.json");
+    let o = run(
+        &[
+            "learn",
+            bad.to_str().unwrap(),
+            hist.to_str().unwrap(),
+            "-k",
+            "4",
+            "-o",
+            palette.to_str().unwrap(),
+        ],
+        &[],
+    );
+    assert_eq!(o.status.code(), Some(1), "{}", stderr(&o));
+    let doc: Value = serde_json::from_str(&std::fs::read_to_string(&palette).unwrap()).unwrap();
+    assert_eq!(doc["k"], 4);
+    let o = run(
+        &[
+            "learn",
+            bad.to_str().unwrap(),
+            "-o",
+            palette.to_str().unwrap(),
+        ],
+        &[],
+    );
+    assert_eq!(o.status.code(), Some(2), "{}", stderr(&o));
+}
