@@ -31,7 +31,17 @@ static STOP: AtomicBool = AtomicBool::new(false);
 
 fn read_palette(path: &std::path::Path) -> Result<reduce::FixedPalette, chromasift::Error> {
     let limits = chromasift::Limits::default();
-    let text = limits.read_text(path, "palette document")?;
+    let text = limits
+        .read_text(path, "palette document")
+        .map_err(|e| match e {
+            chromasift::Error::Decode { path, message } if message.contains("UTF-8") => {
+                chromasift::Error::Decode {
+                    path,
+                    message: "not a palette document: not UTF-8 text".into(),
+                }
+            }
+            e => e,
+        })?;
     let bad = |message: String| chromasift::Error::Decode {
         path: path.into(),
         message,

@@ -77,7 +77,7 @@ fn stdin_to_stdout_equals_the_file_path_result_byte_for_byte() {
     b.as_object_mut().unwrap().remove("input");
     assert_eq!(a, b);
 
-    // A file input with --stdout writes nothing to the output folder.
+    // --stdout and -o contradict each other: refused, nothing written.
     let quiet = dir.path().join("none");
     let o = run(
         &[
@@ -92,12 +92,28 @@ fn stdin_to_stdout_equals_the_file_path_result_byte_for_byte() {
         ],
         &[],
     );
+    assert_eq!(o.status.code(), Some(2));
+    assert!(!quiet.exists());
+    // A file input with --stdout writes nothing to the current folder either.
+    let o = std::process::Command::new(env!("CARGO_BIN_EXE_chromasift"))
+        .args([
+            "reduce",
+            poster.to_str().unwrap(),
+            "-k",
+            "6",
+            "--stdout",
+            "reduced",
+        ])
+        .current_dir(quiet_parent(dir.path()))
+        .output()
+        .unwrap();
     assert_eq!(o.status.code(), Some(0));
     assert_eq!(
         o.stdout,
         std::fs::read(out.join("harbour-poster.reduced.png")).unwrap()
     );
     assert!(!quiet.exists());
+    assert!(common::files_in(&quiet_parent(dir.path())).is_empty());
 }
 
 #[test]
@@ -210,4 +226,11 @@ fn every_workflow_offers_json_and_the_help_states_the_exit_codes() {
             "top-level help lacks exit code {code}: {help}"
         );
     }
+}
+
+/// An empty folder to run in (created under `root`).
+fn quiet_parent(root: &std::path::Path) -> std::path::PathBuf {
+    let p = root.join("cwd");
+    std::fs::create_dir_all(&p).unwrap();
+    p
 }
