@@ -26,6 +26,9 @@ pub struct Decoded {
     /// Print resolution recorded in the file (PNG pHYs in metres, JPEG JFIF density), in
     /// dots per inch.
     pub dpi: Option<f64>,
+    /// True when the file holds more frames or pages than the first, which alone was
+    /// decoded (an animated GIF, PNG or WebP, a multi-page TIFF).
+    pub more_frames: bool,
 }
 
 impl Decoded {
@@ -59,8 +62,128 @@ impl Decoded {
             pixels: Pixels::Rgba8(rgba),
             has_alpha,
             dpi: None,
+            more_frames: false,
         }
     }
+}
+
+/// Whether an image file holds more than one frame or page (only the first is decoded):
+/// a GIF with a second image descriptor, a PNG with an animation control chunk (acTL), a
+/// WebP with an animation chunk (ANIM), a TIFF whose first directory links to a next one.
+pub fn has_more_frames(bytes: &[u8]) -> bool {
+    let u16le = |b: &[u8], o: usize| b.get(o..o + 2).map(|x| u16::from_le_bytes([x[0], x[1]]));
+    if bytes.starts_with(b"GIF8") {
+        // Header (6), logical screen descriptor (7), global colour table, then blocks.
+        let Some(&flags) = bytes.get(10) else {
+            return false;
+        };
+        let mut pos = 13
+            + if flags & 0x80 != 0 {
+                3 << ((flags & 7) + 1)
+            } else {
+                0
+            };
+        let mut images = 0;
+        let skip_sub_blocks = |mut pos: usize| -> Option<usize> {
+            loop {
+                let len = *bytes.get(pos)? as usize;
+                pos += 1 + len;
+                if len == 0 {
+                    return Some(pos);
+                }
+            }
+        };
+        while let Some(&b) = bytes.get(pos) {
+            match b {
+                0x21 => match skip_sub_blocks(pos + 2) {
+                    Some(p) => pos = p,
+                    None => return false,
+                },
+                0x2c => {
+                    images += 1;
+                    if images > 1 {
+                        return true;
+                    }
+                    let Some(&f) = bytes.get(pos + 9) else {
+                        return false;
+                    };
+                    pos += 10 + if f & 0x80 != 0 { 3 << ((f & 7) + 1) } else { 0 };
+                    match skip_sub_blocks(pos + 1) {
+                        Some(p) => pos = p,
+                        None => return false,
+                    }
+                }
+                _ => return false,
+            }
+        }
+        return false;
+    }
+    if bytes.starts_with(b"\x89PNG\r\n\x1a\n") {
+        let mut pos = 8usize;
+        while pos + 8 <= bytes.len() {
+            let len =
+                u32::from_be_bytes([bytes[pos], bytes[pos + 1], bytes[pos + 2], bytes[pos + 3]])
+                    as usize;
+            match &bytes[pos + 4..pos + 8] {
+                b"acTL" => return true,
+                b"IDAT" | b"IEND" => return false,
+                _ => {}
+            }
+            pos = match pos.checked_add(12 + len) {
+                Some(p) => p,
+                None => return false,
+            };
+        }
+        return false;
+    }
+    if bytes.starts_with(b"RIFF") && bytes.get(8..12) == Some(b"WEBP") {
+        let mut pos = 12usize;
+        while pos + 8 <= bytes.len() {
+            let len = u32::from_le_bytes([
+                bytes[pos + 4],
+                bytes[pos + 5],
+                bytes[pos + 6],
+                bytes[pos + 7],
+            ]) as usize;
+            if &bytes[pos..pos + 4] == b"ANIM" {
+                return true;
+            }
+            pos = match pos.checked_add(8 + len + (len & 1)) {
+                Some(p) => p,
+                None => return false,
+            };
+        }
+        return false;
+    }
+    let (le, be) = (bytes.starts_with(b"II*\0"), bytes.starts_with(b"MM\0*"));
+    if le || be {
+        let u32_at = |o: usize| {
+            bytes.get(o..o + 4).map(|x| {
+                let a = [x[0], x[1], x[2], x[3]];
+                if le {
+                    u32::from_le_bytes(a)
+                } else {
+                    u32::from_be_bytes(a)
+                }
+            })
+        };
+        let u16_at = |o: usize| {
+            if le {
+                u16le(bytes, o)
+            } else {
+                bytes
+                    .get(o..o + 2)
+                    .map(|x| u16::from_be_bytes([x[0], x[1]]))
+            }
+        };
+        let Some(ifd) = u32_at(4) else { return false };
+        let Some(n) = u16_at(ifd as usize) else {
+            return false;
+        };
+        let next = (ifd as usize).checked_add(2 + 12 * n as usize);
+        return next.and_then(u32_at).is_some_and(|o| o != 0);
+    }
+    false
 }
 
 /// A PNG without its embedded colour profiles (iCCP chunks), or `None` when it has none
@@ -316,6 +439,7 @@ pub fn decode_bytes(bytes: &[u8], name: &Path, limits: &Limits) -> Result<Decode
     }
     let stripped = png_without_profile(bytes);
     let dpi = sniff_dpi(bytes);
+    let more_frames = has_more_frames(bytes);
     let bytes = stripped.as_deref().unwrap_or(bytes);
     let reader = ImageReader::new(Cursor::new(bytes))
         .with_guessed_format()
@@ -374,6 +498,7 @@ pub fn decode_bytes(bytes: &[u8], name: &Path, limits: &Limits) -> Result<Decode
     let img = reader.decode().map_err(|e| decode_error(name, e))?;
     let mut d = from_dynamic(img);
     d.dpi = dpi;
+    d.more_frames = more_frames;
     Ok(d)
 }
 
@@ -401,6 +526,7 @@ fn from_dynamic(img: DynamicImage) -> Decoded {
         pixels,
         has_alpha,
         dpi: None,
+        more_frames: false,
     }
 }
 

@@ -600,7 +600,7 @@ pub fn reduce_image_with(
     } else {
         None
     };
-    reduce_indexed(
+    let mut red = reduce_indexed(
         &hist,
         pixel_entry,
         img.width,
@@ -608,8 +608,16 @@ pub fn reduce_image_with(
         alpha,
         opts,
         fixed,
-    )
+    )?;
+    if img.more_frames {
+        red.notes.push(MORE_FRAMES_NOTE.into());
+    }
+    Ok(red)
 }
+
+/// The note for a file with more frames or pages than the first.
+pub const MORE_FRAMES_NOTE: &str =
+    "the file holds more frames or pages than the first; only the first was used";
 
 /// Fits a palette to a (possibly merged) histogram without an image: the palette document
 /// of the whole set, as written by `learn` and `batch --shared`.

@@ -327,6 +327,9 @@ pub fn separate_image(
     let table = CostTable::new(&labs, &weights, library, substrate_lab);
     ph.mark("cost table");
     let mut notes = Vec::new();
+    if img.more_frames {
+        notes.push(crate::reduce::MORE_FRAMES_NOTE.to_string());
+    }
     let selection = if opts.all {
         select::Selection {
             chosen: (0..library.len()).collect(),

@@ -446,3 +446,47 @@ fn histogram_and_learn_carry_on_past_a_bad_file() {
     );
     assert_eq!(o.status.code(), Some(2), "{}", stderr(&o));
 }
+
+/// Only the first frame of an animated GIF is used, and a note says so; a still GIF gets no
+/// such note.
+#[test]
+fn extra_frames_are_noted() {
+    use image::codecs::gif::GifEncoder;
+    use image::{Delay, Frame, RgbaImage};
+    let dir = tempfile::tempdir().unwrap();
+    let frame = |c: [u8; 4]| {
+        Frame::from_parts(
+            RgbaImage::from_pixel(8, 8, image::Rgba(c)),
+            0,
+            0,
+            Delay::from_numer_denom_ms(100, 1),
+        )
+    };
+    for (name, frames) in [("moving.gif", 2usize), ("still.gif", 1)] {
+        let path = dir.path().join(name);
+        {
+            let f = std::fs::File::create(&path).unwrap();
+            let mut enc = GifEncoder::new(f);
+            let all = [frame([200, 20, 20, 255]), frame([20, 20, 200, 255])];
+            enc.encode_frames(all.into_iter().take(frames)).unwrap();
+        }
+        let o = run(
+            &[
+                "reduce",
+                path.to_str().unwrap(),
+                "-k",
+                "2",
+                "-o",
+                dir.path().join("out").to_str().unwrap(),
+            ],
+            &[],
+        );
+        assert!(o.status.success(), "{}", stderr(&o));
+        assert_eq!(
+            stderr(&o).contains("only the first was used"),
+            frames > 1,
+            "{name}: {}",
+            stderr(&o)
+        );
+    }
+}
