@@ -487,6 +487,22 @@ pub fn decode_bytes(bytes: &[u8], name: &Path, limits: &Limits) -> Result<Decode
             path: name.into(),
             message,
         })?;
+    // Every 8 × 8 block of a JPEG costs at least a bit or so, even in a progressive file
+    // (DC code, end-of-band runs): a header declaring far more pixels than the data could
+    // hold (below one byte per 2048 pixels) is forged or cut, and would make the decoder
+    // fill gigabytes with grey.
+    if format == Some(image::ImageFormat::Jpeg)
+        && (bytes.len() as u64).saturating_mul(2048) < width as u64 * height as u64
+    {
+        return Err(Error::Decode {
+            path: name.into(),
+            message: format!(
+                "the JPEG header declares {width} x {height} pixels, but the file holds only \
+                 {} bytes, far too few for that many (forged or cut header?)",
+                bytes.len()
+            ),
+        });
+    }
     let mut reader = ImageReader::new(Cursor::new(bytes))
         .with_guessed_format()
         .map_err(|e| decode_error(name, e.into()))?;

@@ -490,3 +490,36 @@ fn extra_frames_are_noted() {
         );
     }
 }
+
+/// A JPEG whose header declares 14000 × 14000 pixels over a few hundred bytes of data is
+/// refused (under a 600 MB address-space limit) before the decoder fills gigabytes with
+/// grey. (A flat 4000 × 3000 JPEG at quality 85 is about 190 KB, 30 times the bound.)
+#[test]
+fn a_forged_jpeg_size_is_refused() {
+    let dir = tempfile::tempdir().unwrap();
+    let mut small = Vec::new();
+    image::codecs::jpeg::JpegEncoder::new_with_quality(&mut small, 85)
+        .encode(
+            &[120u8; 64 * 64 * 3],
+            64,
+            64,
+            image::ExtendedColorType::Rgb8,
+        )
+        .unwrap();
+    let sof = small.windows(2).position(|w| w == [0xff, 0xc0]).unwrap();
+    small[sof + 5..sof + 7].copy_from_slice(&14000u16.to_be_bytes());
+    small[sof + 7..sof + 9].copy_from_slice(&14000u16.to_be_bytes());
+    let forged = dir.path().join("forged.jpg");
+    std::fs::write(&forged, &small).unwrap();
+    let o = run_limited(
+        600_000,
+        &[
+            "reduce",
+            forged.to_str().unwrap(),
+            "-o",
+            dir.path().join("out").to_str().unwrap(),
+        ],
+    );
+    assert_eq!(o.status.code(), Some(2), "{}", stderr(&o));
+    assert!(stderr(&o).contains("far too few"), "{}", stderr(&o));
+}
