@@ -486,7 +486,7 @@ pub fn recommend(rows: &[SweepRow], suggested: &BTreeMap<String, usize>) -> Opti
                 && (r.k == 1 || r.stability.is_some_and(|s| s >= MIN_STABILITY))
                 && r.smallest_share >= MIN_SHARE
         };
-        match rows.iter().filter(|r| passes(r)).next_back() {
+        match rows.iter().rfind(|r| passes(r)) {
             Some(r) => {
                 let mut reason = format!(
                     "K = {} is the largest K {bound} whose partition is stable across subsamples (adjusted Rand index {} ≥ {MIN_STABILITY}) and whose smallest class holds at least {:.1} % of the pixels ({:.1} %).",
@@ -1295,11 +1295,13 @@ fn render_svg(doc: &SweepDocument, space: Space) -> Canvas {
         ),
         "",
     );
-    note(
-        &mut c,
-        &format!("* Dotted grey lines on the ΔE panel: ΔE2000 1 and 3 are rules of thumb (noticeable; print tolerance), common practice, not a standard. On the closest-pair panel: ΔE2000 {FAMILY_DELTA_E2000}, closer colours are one family."),
-        "",
-    );
+    if colour_image {
+        note(
+            &mut c,
+            &format!("* Dotted grey lines on the ΔE panel: ΔE2000 1 and 3 are rules of thumb (noticeable; print tolerance), common practice, not a standard. On the closest-pair panel: ΔE2000 {FAMILY_DELTA_E2000}, closer colours are one family."),
+            "",
+        );
+    }
     c.svg.push_str("</svg>\n");
     c
 }

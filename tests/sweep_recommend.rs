@@ -148,8 +148,8 @@ fn poster(path: &Path, n: usize, look: Look, seed: u64) {
             let cell_x0 = (cx * w as usize / cols) as f64;
             let cell_w = w as f64 / cols as f64;
             let t = 2.0 * (x as f64 - cell_x0) / cell_w - 1.0;
-            for ch in 0..3 {
-                let v = colours[f][ch] as f64 + look.grade * t + look.noise * gauss(&mut r);
+            for c in colours[f] {
+                let v = c as f64 + look.grade * t + look.noise * gauss(&mut r);
                 rgb.push(v.round().clamp(0.0, 255.0) as u8);
             }
         }

@@ -143,7 +143,7 @@ fn cholesky(a: &[f64], d: usize) -> Option<Vec<f64>> {
                 s -= l[i * d + p] * l[j * d + p];
             }
             if i == j {
-                if !(s > 0.0) {
+                if s.is_nan() || s <= 0.0 {
                     return None;
                 }
                 l[i * d + i] = s.sqrt();
@@ -207,8 +207,8 @@ fn e_step(data: &Dataset, comps: &[Component], centres: &[f64]) -> Stats {
                     let mut m2 = 0.0;
                     for i in 0..d {
                         let mut s = x[i] - c.mean[i];
-                        for p in 0..i {
-                            s -= c.chol[i * d + p] * z[p];
+                        for (l, zp) in c.chol[i * d..i * d + i].iter().zip(&z[..i]) {
+                            s -= l * zp;
                         }
                         z[i] = s / c.chol[i * d + i];
                         m2 += z[i] * z[i];
