@@ -883,7 +883,7 @@ fn panel(
         .iter()
         .map(|s| {
             let name = match s.best {
-                Some(k) => format!("{} (best {k})", s.name),
+                Some(k) => format!("{} (suggests {k})", s.name),
                 None => s.name.clone(),
             };
             (Some(s), name)
@@ -1282,7 +1282,7 @@ fn render_svg(doc: &SweepDocument, space: Space) -> Canvas {
     note(
         &mut c,
         &format!(
-            "Silhouette: Rousseeuw (1987), on a seeded sample of {} pixels or rows. Stability: mean adjusted Rand index between {STABILITY_RUNS} k-means fits on seeded subsamples (after Lange, Roth, Braun & Buhmann 2004). Rings mark each criterion's own choice.",
+            "Silhouette: Rousseeuw (1987), on a seeded sample of {} pixels or rows. Stability: mean adjusted Rand index between {STABILITY_RUNS} k-means fits on seeded subsamples (after Lange, Roth, Braun & Buhmann 2004). Rings mark the K each criterion suggested on its own.",
             doc.silhouette_sample
         ),
         "",
