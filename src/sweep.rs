@@ -231,6 +231,7 @@ pub fn sweep_rows(
     // Contributor timings (CHROMASIFT_TIMINGS): fits, ΔE2000, soft entropy, silhouette,
     // mixture, stability.
     let mut spent = [0.0f64; 6];
+    let mut em_iterations = 0usize;
     let mut clock = std::time::Instant::now();
     let mut lap = |slot: usize, spent: &mut [f64; 6]| {
         spent[slot] += clock.elapsed().as_secs_f64();
@@ -270,6 +271,7 @@ pub fn sweep_rows(
             let sil = silhouette(&sample_rows, dim, &sample_labels);
             lap(3, &mut spent);
             let mix = fit_mixture(data, &res.means, &mixture, opts.seed ^ ((k as u64) << 32));
+            em_iterations += mix.iterations;
             let finite = |v: f64| v.is_finite().then_some(v);
             lap(4, &mut spent);
             let stab = stability(
@@ -302,7 +304,7 @@ pub fn sweep_rows(
     );
     if crate::trace::enabled() {
         eprintln!(
-            "chromasift: timing: sweep over K: fits {:.3} s, ΔE2000 {:.3} s, soft entropy {:.3} s, silhouette {:.3} s, mixture {:.3} s, stability {:.3} s",
+            "chromasift: timing: sweep over K: fits {:.3} s, ΔE2000 {:.3} s, soft entropy {:.3} s, silhouette {:.3} s, mixture {:.3} s ({em_iterations} EM iterations), stability {:.3} s",
             spent[0], spent[1], spent[2], spent[3], spent[4], spent[5]
         );
     }

@@ -89,12 +89,13 @@ pub fn free_parameters(k: usize, d: usize) -> usize {
 
 /// Per-component parameters ready for density evaluation.
 struct Component {
-    log_weight: f64,
     mean: Vec<f64>,
     /// Lower Cholesky factor of the covariance, row-major d × d.
     chol: Vec<f64>,
-    /// ln det Σ.
-    log_det: f64,
+    /// 1 / its diagonal.
+    inv_diag: Vec<f64>,
+    /// ln weight − (d·ln 2π + ln det Σ) / 2.
+    log_norm: f64,
 }
 
 /// Weighted sufficient statistics about fixed centres `c_k` (the current means, for
@@ -169,22 +170,22 @@ fn components(weights: &[f64], means: &[f64], covs: &[f64], d: usize) -> Vec<Com
                 l
             });
             let log_det = 2.0 * (0..d).map(|i| chol[i * d + i].ln()).sum::<f64>();
+            let ln2pi = (2.0 * std::f64::consts::PI).ln();
             Component {
-                log_weight: weights[k].ln(),
+                log_norm: weights[k].ln() - 0.5 * (d as f64 * ln2pi + log_det),
                 mean: means[k * d..(k + 1) * d].to_vec(),
+                inv_diag: (0..d).map(|i| 1.0 / chol[i * d + i]).collect(),
                 chol,
-                log_det,
             }
         })
         .collect()
 }
 
-/// One E-step over all rows: log-likelihood, MAP term and the statistics about `centres`
-/// (`K × d`) for the next M-step.
-fn e_step(data: &Dataset, comps: &[Component], centres: &[f64]) -> Stats {
+/// One E-step over all rows: log-likelihood, MAP term and, when `stats` is set, the
+/// statistics about `centres` (`K × d`) for the next M-step.
+fn e_step(data: &Dataset, comps: &[Component], centres: &[f64], stats: bool) -> Stats {
     let d = data.dim();
     let k = comps.len();
-    let ln2pi = (2.0 * std::f64::consts::PI).ln();
     let parts: Vec<Stats> = data
         .rows()
         .par_chunks(CHUNK * d)
@@ -210,20 +211,35 @@ fn e_step(data: &Dataset, comps: &[Component], centres: &[f64]) -> Stats {
                         for (l, zp) in c.chol[i * d..i * d + i].iter().zip(&z[..i]) {
                             s -= l * zp;
                         }
-                        z[i] = s / c.chol[i * d + i];
+                        z[i] = s * c.inv_diag[i];
                         m2 += z[i] * z[i];
                     }
-                    lp[j] = c.log_weight - 0.5 * (d as f64 * ln2pi + c.log_det + m2);
+                    lp[j] = c.log_norm - 0.5 * m2;
                 }
                 let top = lp.iter().copied().fold(f64::NEG_INFINITY, f64::max);
-                let lse = top + lp.iter().map(|v| (v - top).exp()).sum::<f64>().ln();
+                // Components more than 40 nats below the top add less than 5·10⁻¹⁸ of it,
+                // under f64 resolution: skipped, and their responsibility taken as zero.
+                let sum: f64 = lp
+                    .iter()
+                    .map(|v| {
+                        if v - top > -40.0 {
+                            (v - top).exp()
+                        } else {
+                            0.0
+                        }
+                    })
+                    .sum();
+                let lse = top + sum.ln();
                 st.log_l += w * lse;
                 st.log_map += w * (top - lse);
+                if !stats {
+                    continue;
+                }
                 for j in 0..k {
-                    let t = w * (lp[j] - lse).exp();
-                    if t == 0.0 {
+                    if lp[j] - top <= -40.0 {
                         continue;
                     }
+                    let t = w * (lp[j] - lse).exp();
                     st.n[j] += t;
                     let cj = &centres[j * d..(j + 1) * d];
                     for a in 0..d {
@@ -334,7 +350,7 @@ pub fn fit_mixture(
     while iterations < settings.max_iter {
         iterations += 1;
         let comps = components(&weights, &means, &covs, d);
-        let st = e_step(&fit_data, &comps, &means);
+        let st = e_step(&fit_data, &comps, &means, true);
         let mean_ll = st.log_l / fit_total;
         (weights, means, covs) = m_step(&st, &means, d, settings.floor);
         if (mean_ll - prev).abs() < settings.tolerance {
@@ -345,7 +361,7 @@ pub fn fit_mixture(
     }
     // Scores of the final parameters on every row.
     let comps = components(&weights, &means, &covs, d);
-    let fin = e_step(data, &comps, &means);
+    let fin = e_step(data, &comps, &means, false);
     Mixture {
         dim: d,
         weights,
