@@ -424,3 +424,53 @@ fn cli_reports_the_recommendation_the_same_on_any_thread_count() {
         "outputs differ between 1 and 2 threads"
     );
 }
+
+/// Looks and seeds not used while the rule was chosen (first run recorded in
+/// DEVELOPERS.md): stronger grading, noise 6, JPEG quality 70, other family colours.
+#[test]
+fn posters_with_looks_not_used_to_choose_the_rule_recommend_n() {
+    let dir = tempfile::tempdir().unwrap();
+    let mut failures = Vec::new();
+    for (name, look) in [
+        (
+            "graded10-noise6",
+            Look {
+                grade: 10.0,
+                noise: 6.0,
+                jpeg: None,
+            },
+        ),
+        (
+            "flat-noise6-jpeg70",
+            Look {
+                grade: 0.0,
+                noise: 6.0,
+                jpeg: Some(70),
+            },
+        ),
+    ] {
+        for n in 2..=12usize {
+            let ext = if look.jpeg.is_some() { "jpg" } else { "png" };
+            let path = dir.path().join(format!("{name}-{n}.{ext}"));
+            poster(&path, n, look, 7000 + 13 * n as u64);
+            let out = dir.path().join(format!("{name}-{n}"));
+            let doc = sweep_k(
+                &path,
+                &out,
+                KRange {
+                    min: 2,
+                    max: (n + 4).min(16),
+                },
+            );
+            let rec = doc.recommended.clone().unwrap();
+            println!(
+                "{name} N = {n}: recommended {} ({}); suggested {:?}",
+                rec.k, rec.rule, doc.suggested
+            );
+            if rec.k != n {
+                failures.push(format!("{name} N = {n}: got {}: {}", rec.k, rec.reason));
+            }
+        }
+    }
+    assert!(failures.is_empty(), "{failures:#?}");
+}
