@@ -519,6 +519,16 @@ fn run() -> ExitCode {
                         },
                         report.seconds
                     );
+                    if let Some(r) = &d.recommended {
+                        eprintln!(
+                            "chromasift: {}: recommended K = {} (rule: {}); {}. {}",
+                            args.input.display(),
+                            r.k,
+                            r.rule,
+                            r.agreement,
+                            r.reason
+                        );
+                    }
                     if args.json {
                         let mut out = std::io::stdout().lock();
                         emit(

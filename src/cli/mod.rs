@@ -129,9 +129,12 @@ Examples:
   chromasift sweep scene.tif --k 3..12 --bands 1,2,3,4 -o sweep/
 
 Writes sweep.csv, sweep.json and sweep.svg into the output folder: per K the SSE, mean
-and 95th-percentile ΔE2000 (colour images), mean uncertainty, mean silhouette on a seeded
-sample (Rousseeuw 1987) and BIC (Schwarz 1978), with the K each criterion suggests.
-The criteria are evidence, not a verdict: look at the reduced images too.
+and 95th-percentile ΔE2000 and the closest pair of fitted colours (colour images), mean
+uncertainty, mean silhouette on a seeded sample (Rousseeuw 1987), BIC (Schwarz 1978) of a
+spherical and of a full-covariance Gaussian mixture, ICL (Biernacki, Celeux & Govaert
+2000) and stability across subsamples, with the K each criterion suggests and one
+recommended K with its reason. The criteria are evidence, not a verdict: look at the
+reduced images too.
 
 Exit status: 0 success, 2 bad parameters or unreadable input (nothing is written).";
 

@@ -1,8 +1,9 @@
 //! Choosing K: a warm-started path of fits over a range of K, and two published criteria
 //! to compare them, the mean silhouette (Rousseeuw 1987) and the BIC (Schwarz 1978) of
-//! the matching isotropic Gaussian mixture.
+//! the matching isotropic Gaussian mixture, and the stability of a partition across seeded
+//! subsamples (adjusted Rand index, after Lange, Roth, Braun & Buhmann 2004).
 
-use super::hard::{lloyd, LloydResult, Stop};
+use super::hard::{assign_nearest, lloyd, LloydResult, Stop};
 use super::init::{kmeans_plus_plus, kmeans_plus_plus_from};
 use super::{dist2, Dataset};
 use crate::rng::Rng;
@@ -137,6 +138,96 @@ pub fn bic(sse: f64, cluster_weights: &[f64], dim: usize) -> Option<f64> {
     Some(p * n.ln() - 2.0 * log_l)
 }
 
+/// Adjusted Rand index (Hubert & Arabie 1985) between two labellings of the same points:
+/// 1 for identical partitions (whatever the label numbers), about 0 for independent ones.
+/// 1 when both put every point in one cluster (the index is then 0/0).
+pub fn adjusted_rand_index(a: &[u32], b: &[u32]) -> f64 {
+    assert_eq!(a.len(), b.len(), "labellings of the same points");
+    let ka = a.iter().map(|&l| l as usize + 1).max().unwrap_or(0);
+    let kb = b.iter().map(|&l| l as usize + 1).max().unwrap_or(0);
+    let mut table = vec![0u64; ka * kb];
+    let (mut ra, mut rb) = (vec![0u64; ka], vec![0u64; kb]);
+    for (&x, &y) in a.iter().zip(b) {
+        table[x as usize * kb + y as usize] += 1;
+        ra[x as usize] += 1;
+        rb[y as usize] += 1;
+    }
+    let pairs = |c: u64| (c * c.saturating_sub(1)) as f64 / 2.0;
+    let index: f64 = table.iter().map(|&c| pairs(c)).sum();
+    let sa: f64 = ra.iter().map(|&c| pairs(c)).sum();
+    let sb: f64 = rb.iter().map(|&c| pairs(c)).sum();
+    let expected = sa * sb / pairs(a.len() as u64).max(1.0);
+    let max = 0.5 * (sa + sb);
+    if (max - expected).abs() < 1e-12 {
+        return 1.0;
+    }
+    (index - expected) / (max - expected)
+}
+
+/// Stability of k-means at `k` (after Lange, Roth, Braun & Buhmann 2004): `runs` fits,
+/// each on its own seeded sample of `sample` rows drawn in proportion to weight and
+/// started from its own seeded k-means++, label the same `eval` rows (`m × dim`) by
+/// nearest mean; the result is the mean adjusted Rand index over all pairs of runs. Near 1
+/// when every subsample finds the same partition, lower when the partition depends on
+/// which points were drawn or where the fit started. None for k < 2 or runs < 2.
+pub fn stability(
+    data: &Dataset,
+    k: usize,
+    eval: &[f32],
+    sample: usize,
+    runs: usize,
+    seed: u64,
+    stop: Stop,
+) -> Option<f64> {
+    if k < 2 || runs < 2 {
+        return None;
+    }
+    let dim = data.dim();
+    let eval_data = Dataset::new(eval, dim, None).ok()?;
+    let labels: Vec<Vec<u32>> = (0..runs)
+        .into_par_iter()
+        .map(|r| {
+            let tag = ((k as u64) << 8) | r as u64;
+            let picks =
+                weighted_sample(data, sample, seed ^ tag.wrapping_mul(0x9E37_79B9_7F4A_7C15));
+            let mut rows = Vec::with_capacity(picks.len() * dim);
+            let mut w: Vec<f64> = Vec::new();
+            let mut last = usize::MAX;
+            for &i in &picks {
+                if i == last {
+                    *w.last_mut().expect("a row was pushed") += 1.0;
+                } else {
+                    rows.extend_from_slice(data.row(i));
+                    w.push(1.0);
+                    last = i;
+                }
+            }
+            let sub = Dataset::new(&rows, dim, Some(&w)).expect("sampled rows are valid");
+            let mut rng = Rng::new(seed, 0x57AB_0000 ^ tag);
+            let init = kmeans_plus_plus(&sub, k, &mut rng);
+            let means: Vec<f32> = if init.len() / dim < k {
+                init // fewer distinct rows than k in this sample
+            } else {
+                lloyd(&sub, &init, stop, true)
+                    .means
+                    .iter()
+                    .map(|&v| v as f32)
+                    .collect()
+            };
+            assign_nearest(&eval_data, &means).0
+        })
+        .collect();
+    let mut sum = 0.0;
+    let mut n = 0usize;
+    for i in 0..runs {
+        for j in i + 1..runs {
+            sum += adjusted_rand_index(&labels[i], &labels[j]);
+            n += 1;
+        }
+    }
+    Some(sum / n as f64)
+}
+
 /// One bin of a reliability table: predicted probabilities in [lo, hi).
 #[derive(Debug, Clone, PartialEq)]
 pub struct CalibrationBin {
@@ -201,6 +292,17 @@ mod tests {
         let s = silhouette(&rows, 1, &[0, 0, 1]).unwrap();
         assert!((s - (0.75 + 2.0 / 3.0) / 3.0).abs() < 1e-12);
         assert_eq!(silhouette(&rows, 1, &[0, 0, 0]), None);
+    }
+
+    #[test]
+    fn adjusted_rand_index_of_hand_worked_cases() {
+        // Same partition under other label numbers: 1.
+        assert_eq!(adjusted_rand_index(&[0, 0, 1, 1], &[1, 1, 0, 0]), 1.0);
+        // a = {0,1},{2,3}; b = {0,2},{1,3}: no pair agrees. Σ C(n_ij, 2) = 0,
+        // Σ C(a_i, 2) = Σ C(b_j, 2) = 2, C(4, 2) = 6: expected 4/6, max 2,
+        // ARI = (0 − 2/3) / (2 − 2/3) = −0.5.
+        let v = adjusted_rand_index(&[0, 0, 1, 1], &[0, 1, 0, 1]);
+        assert!((v + 0.5).abs() < 1e-12, "{v}");
     }
 
     #[test]

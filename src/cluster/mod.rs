@@ -1,5 +1,6 @@
 //! One clustering engine over plain weighted rows: k-means++ seeding, hard Lloyd
-//! iterations (optionally with Hamerly distance bounds) and soft k-means.
+//! iterations (optionally with Hamerly distance bounds), soft k-means, and Gaussian mixtures
+//! with a full covariance per component (EM started from k-means).
 //!
 //! The engine knows nothing about images or colour: it sees `n × d` f32 rows and
 //! a weight per row. Weighted rows are exact stand-ins for repeated rows, so a
@@ -12,15 +13,20 @@ mod anneal;
 mod choose;
 mod hard;
 mod init;
+mod mixture;
 mod model;
 mod params;
 mod soft;
 mod split_merge;
 
 pub use anneal::{anneal, Anneal, AnnealResult};
-pub use choose::{bic, calibration, k_path, silhouette, weighted_sample, CalibrationBin};
+pub use choose::{
+    adjusted_rand_index, bic, calibration, k_path, silhouette, stability, weighted_sample,
+    CalibrationBin,
+};
 pub use hard::{assign_nearest, lloyd, lloyd_fixed, LloydResult, Stop};
 pub use init::{kmeans_plus_plus, kmeans_plus_plus_from};
+pub use mixture::{fit_mixture, free_parameters, Mixture, MixtureSettings};
 pub use model::{finish, fit, fit_from, fit_hard, stop_rule, KMeansModel};
 pub use params::{Beta, KMeansParams, Mode, ValidParams, MAX_K};
 pub use soft::{
