@@ -219,7 +219,9 @@ pub fn sweep_rows(
     let total = data.total_weight();
     let dim = data.dim();
     let weights: Vec<f64> = (0..data.len()).map(|i| data.weight(i)).collect();
-    let picks = weighted_sample(data, opts.silhouette_sample, opts.seed);
+    // Never more draws than there are pixels (or rows) to draw from.
+    let population = data.total_weight().floor().max(2.0) as usize;
+    let picks = weighted_sample(data, opts.silhouette_sample.min(population), opts.seed);
     let sample_rows: Vec<f32> = picks.iter().flat_map(|&i| data.row(i).to_vec()).collect();
     let stop = crate::cluster::Stop {
         max_iter: opts.max_iter,
@@ -585,12 +587,20 @@ fn is_scene(input: &Path, opts: &SweepOptions) -> Result<bool> {
         ))
 }
 
+/// Largest silhouette sample accepted (the silhouette takes time in its square).
+pub const MAX_SILHOUETTE_SAMPLE: usize = 50_000;
+
 /// Runs a sweep on a file and writes `sweep.csv`, `sweep.json` and `sweep.svg` into
 /// `out_dir` atomically.
 pub fn sweep_file(input: &Path, out_dir: &Path, opts: &SweepOptions) -> Result<SweepReport> {
     let t0 = Instant::now();
-    if opts.silhouette_sample < 2 {
-        return Err(ParamsError::Other("--silhouette-sample must be at least 2".into()).into());
+    // The silhouette costs the square of the sample: bound it before anything is drawn.
+    if !(2..=MAX_SILHOUETTE_SAMPLE).contains(&opts.silhouette_sample) {
+        return Err(ParamsError::Other(format!(
+            "--silhouette-sample must be between 2 and {MAX_SILHOUETTE_SAMPLE} (got {})",
+            opts.silhouette_sample
+        ))
+        .into());
     }
     crate::cluster::KMeansParams::new(opts.range.max)
         .max_iter(opts.max_iter)

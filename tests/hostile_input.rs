@@ -523,3 +523,49 @@ fn a_forged_jpeg_size_is_refused() {
     assert_eq!(o.status.code(), Some(2), "{}", stderr(&o));
     assert!(stderr(&o).contains("far too few"), "{}", stderr(&o));
 }
+
+/// `sweep --silhouette-sample` is bounded (its time grows with the square): huge values are
+/// refused at once, and a sample larger than the image is drawn only as large as the image.
+#[test]
+fn silhouette_samples_are_bounded() {
+    let dir = tempfile::tempdir().unwrap();
+    let poster = fixture("demo/harbour-poster.png");
+    let out = dir.path().join("out");
+    for huge in ["18446744073709551615", "1000000000", "10000000"] {
+        let o = run_limited(
+            600_000,
+            &[
+                "sweep",
+                poster.to_str().unwrap(),
+                "--k",
+                "2..3",
+                "--silhouette-sample",
+                huge,
+                "-o",
+                out.to_str().unwrap(),
+            ],
+        );
+        assert_eq!(o.status.code(), Some(2), "{huge}: {}", stderr(&o));
+        assert!(stderr(&o).contains("between 2 and 50000"), "{}", stderr(&o));
+    }
+    // A 6 × 4 image: 24 pixels, asked for 50 000 draws.
+    let tiny = dir.path().join("tiny.png");
+    let px: Vec<u8> = (0..24u8)
+        .flat_map(|i| [i * 10, 255 - i * 10, 128])
+        .collect();
+    image::save_buffer(&tiny, &px, 6, 4, image::ExtendedColorType::Rgb8).unwrap();
+    let o = run(
+        &[
+            "sweep",
+            tiny.to_str().unwrap(),
+            "--k",
+            "2..3",
+            "--silhouette-sample",
+            "50000",
+            "-o",
+            out.to_str().unwrap(),
+        ],
+        &[],
+    );
+    assert!(o.status.success(), "{}", stderr(&o));
+}
