@@ -790,7 +790,7 @@ pub fn lost_areas(
             delta_e2000: err / n,
         });
     }
-    out.sort_by(|a, b| b.pixels.cmp(&a.pixels));
+    out.sort_by_key(|a| std::cmp::Reverse(a.pixels));
     out
 }
 

@@ -554,7 +554,7 @@ impl FixedPalette {
             } else {
                 f64::INFINITY
             };
-            if !(off <= 0.5) {
+            if off.is_nan() || off > 0.5 {
                 return Err(format!(
                     "colour {i}: lab [{:.2}, {:.2}, {:.2}] is not the CIELAB of {} \
                      ([{:.2}, {:.2}, {:.2}], ΔE2000 {off:.2} apart); make the two agree",
