@@ -502,6 +502,7 @@ pub struct ReduceFlags {
 
     /// Sharpness of the soft assignment in 1/ΔE*ab² (CIELAB) or 1/OKLab-unit² (OKLab),
     /// or `auto` for 1/σ² with σ² the pooled within-cluster variance of the hard solution.
+    /// In hard mode it sets only the sharpness of the uncertainty map.
     #[arg(
         long,
         default_value = "auto",
