@@ -356,7 +356,7 @@ pub fn remove_stale_temporaries(out: &Path) {
 /// agree (a whole name can equal another file's stem: `x.png` and `x.png.jpg`). `None`
 /// for a file name no output name can be made from.
 pub fn output_stems(images: &[PathBuf]) -> Vec<Option<String>> {
-    let whole = |p: &PathBuf| p.file_name().and_then(|n| n.to_str()).map(str::to_string);
+    let whole = |p: &PathBuf| p.file_name().map(|n| n.to_string_lossy().into_owned());
     let mut stems: Vec<Option<String>> = images.iter().map(|p| reduce::stem_of(p).ok()).collect();
     let mut use_whole = vec![false; images.len()];
     loop {

@@ -832,8 +832,15 @@ pub fn landcover_file(
             })?;
             drop(tx);
             let unc_done = writer.join().expect("uncertainty writer thread");
-            result?;
-            unc_out_slot = Some(unc_done?);
+            // When one side fails the other only sees the channel close: report the cause
+            // (a full disk, say), not that the other side stopped early.
+            let stopped = |e: &Error| matches!(e, Error::Data(m) if m.ends_with("stopped early"));
+            match (result, unc_done) {
+                (Ok(()), Ok(u)) => unc_out_slot = Some(u),
+                (Err(e), Err(u)) if stopped(&e) && !stopped(&u) => return Err(u),
+                (Err(e), _) => return Err(e),
+                (Ok(()), Err(u)) => return Err(u),
+            }
             Ok(())
         });
         unc_result?;

@@ -1250,12 +1250,13 @@ pub struct ReduceReport {
 }
 
 /// The file name without its extension, used to name outputs.
+/// A file name that is not valid UTF-8 gives an output name with each invalid sequence
+/// replaced by U+FFFD (the input itself is still read under its own name).
 pub fn stem_of(input: &Path) -> Result<String> {
     input
         .file_stem()
-        .and_then(|s| s.to_str())
+        .map(|s| s.to_string_lossy().into_owned())
         .filter(|s| !s.is_empty())
-        .map(str::to_string)
         .ok_or_else(|| Error::output(input, "cannot derive an output name from this file name"))
 }
 

@@ -569,3 +569,57 @@ fn silhouette_samples_are_bounded() {
     );
     assert!(o.status.success(), "{}", stderr(&o));
 }
+
+/// A file name that is not UTF-8 still gets outputs, named with U+FFFD where its bytes
+/// are invalid.
+#[cfg(unix)]
+#[test]
+fn a_non_utf8_file_name_gets_a_lossy_output_name() {
+    use std::os::unix::ffi::OsStrExt;
+    let dir = tempfile::tempdir().unwrap();
+    let name = std::ffi::OsStr::from_bytes(b"caf\xe9.png");
+    let input = dir.path().join(name);
+    std::fs::copy(fixture("demo/harbour-poster.png"), &input).unwrap();
+    let out = dir.path().join("out");
+    let o = Command::new(env!("CARGO_BIN_EXE_chromasift"))
+        .arg("reduce")
+        .arg(&input)
+        .args(["-k", "3", "-o"])
+        .arg(&out)
+        .output()
+        .unwrap();
+    assert!(o.status.success(), "{}", stderr(&o));
+    assert!(out.join("caf\u{fffd}.reduced.png").is_file());
+}
+
+/// `landcover` on a full disk (here a file-size limit, `ulimit -f`, that the uncertainty
+/// raster passes and the class raster does not) names the file and the cause, not that a
+/// writer "stopped early", and leaves nothing behind.
+#[test]
+fn landcover_names_the_cause_of_a_failed_write() {
+    let dir = tempfile::tempdir().unwrap();
+    let out = dir.path().join("out");
+    let scene = fixture("rasters/utm_u16_4band_strips.tif");
+    let bin = env!("CARGO_BIN_EXE_chromasift");
+    let o = Command::new("sh")
+        .arg("-c")
+        .arg(format!(
+            "ulimit -f 4; exec '{bin}' landcover '{}' -k 3 -o '{}'",
+            scene.display(),
+            out.display()
+        ))
+        .output()
+        .unwrap();
+    assert_eq!(o.status.code(), Some(2), "{}", stderr(&o));
+    let err = stderr(&o);
+    assert!(
+        err.contains("uncertainty.tif") && err.contains("too large"),
+        "{err}"
+    );
+    assert!(!err.contains("stopped early"), "{err}");
+    assert!(
+        common::files_in(&out).is_empty(),
+        "{:?}",
+        common::files_in(&out)
+    );
+}
