@@ -47,25 +47,34 @@ impl Limits {
         }
     }
 
-    /// Reads a text file (or a device or pipe) of at most `max_text_bytes`, as UTF-8 with
-    /// any byte-order mark removed. `what` names the input in messages ("ink library").
+    /// Reads a text file (or a device or pipe; `-` is standard input) of at most
+    /// `max_text_bytes`, as UTF-8 with any byte-order mark removed. `what` names the input in messages ("ink library").
     pub fn read_text(&self, path: &std::path::Path, what: &str) -> crate::Result<String> {
         use std::io::Read;
         let open = |source| crate::Error::Open {
             path: path.into(),
             source,
         };
-        let file = std::fs::File::open(path).map_err(open)?;
-        if file.metadata().map(|m| m.is_dir()).unwrap_or(false) {
-            return Err(crate::Error::Decode {
-                path: path.into(),
-                message: format!("is a folder, not a {what}"),
-            });
-        }
         let mut bytes = Vec::new();
-        file.take(self.max_text_bytes.saturating_add(1))
-            .read_to_end(&mut bytes)
-            .map_err(open)?;
+        if path.as_os_str() == "-" {
+            // `-`: standard input, under the same limit.
+            std::io::stdin()
+                .lock()
+                .take(self.max_text_bytes.saturating_add(1))
+                .read_to_end(&mut bytes)
+                .map_err(open)?;
+        } else {
+            let file = std::fs::File::open(path).map_err(open)?;
+            if file.metadata().map(|m| m.is_dir()).unwrap_or(false) {
+                return Err(crate::Error::Decode {
+                    path: path.into(),
+                    message: format!("is a folder, not a {what}"),
+                });
+            }
+            file.take(self.max_text_bytes.saturating_add(1))
+                .read_to_end(&mut bytes)
+                .map_err(open)?;
+        }
         if bytes.len() as u64 > self.max_text_bytes {
             return Err(crate::Error::LimitExceeded {
                 path: path.into(),

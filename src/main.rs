@@ -333,6 +333,60 @@ static STDOUT_FAILED: AtomicBool = AtomicBool::new(false);
 
 /// Writes one document and a newline to standard output; a failure (a full disk, a closed
 /// pipe) is reported once on standard error and makes the exit status 2.
+/// Writes one output file atomically, sparing the inputs; `-` writes to standard output.
+fn write_or_stdout(
+    out: &std::path::Path,
+    bytes: &[u8],
+    inputs: &[std::path::PathBuf],
+) -> Result<(), chromasift::Error> {
+    if out.as_os_str() == "-" {
+        let mut o = std::io::stdout().lock();
+        return stdout_open()
+            .and_then(|()| o.write_all(bytes))
+            .and_then(|()| o.flush())
+            .map_err(|e| chromasift::Error::io(std::path::Path::new("standard output"), e));
+    }
+    chromasift::output::write_file_sparing(
+        out,
+        bytes,
+        &inputs
+            .iter()
+            .map(std::path::PathBuf::as_path)
+            .collect::<Vec<_>>(),
+    )?;
+    Ok(())
+}
+
+/// Standard input copied into `stdin.tif` (TIFF bytes) or `stdin.img` in a new temporary
+/// folder, at most the default allocation limit.
+fn stdin_to_file() -> Result<(tempfile::TempDir, std::path::PathBuf), chromasift::Error> {
+    use std::io::Read;
+    let name = std::path::Path::new("standard input");
+    let limit = chromasift::Limits::default().max_alloc;
+    let mut bytes = Vec::new();
+    std::io::stdin()
+        .lock()
+        .take(limit + 1)
+        .read_to_end(&mut bytes)
+        .map_err(|e| chromasift::Error::io(name, e))?;
+    if bytes.len() as u64 > limit {
+        return Err(chromasift::Error::LimitExceeded {
+            path: name.into(),
+            message: format!("input is over the limit of {limit} bytes"),
+        });
+    }
+    let tiff = bytes.starts_with(b"II*\0")
+        || bytes.starts_with(b"MM\0*")
+        || bytes.starts_with(b"II+\0")
+        || bytes.starts_with(b"MM\0+");
+    let dir = tempfile::tempdir().map_err(|e| chromasift::Error::io(name, e))?;
+    let path = dir
+        .path()
+        .join(if tiff { "stdin.tif" } else { "stdin.img" });
+    std::fs::write(&path, &bytes).map_err(|e| chromasift::Error::io(&path, e))?;
+    Ok((dir, path))
+}
+
 /// Prints one line per input that could not be read (the others were used); their count.
 fn report_failures(failures: &[(std::path::PathBuf, chromasift::Error)]) -> usize {
     for (_, e) in failures {
@@ -420,6 +474,26 @@ fn run() -> ExitCode {
             chromasift::output::abandon_and_exit(130);
         });
     }
+    // `-` as the input of a command that reads one image or scene: standard input, held in
+    // a temporary file named `stdin.*` (so outputs are named stdin.*) for the run.
+    let mut cli = cli;
+    let stdin_input = match &mut cli.command {
+        Command::Separate(a) => Some(&mut a.input),
+        Command::Landcover(a) => Some(&mut a.input),
+        Command::Sweep(a) => Some(&mut a.input),
+        Command::Apply(a) => Some(&mut a.input),
+        _ => None,
+    };
+    let _stdin_file = match stdin_input.filter(|p| p.as_os_str() == "-") {
+        Some(input) => match stdin_to_file() {
+            Ok((dir, path)) => {
+                *input = path;
+                Some(dir)
+            }
+            Err(e) => return fail(e),
+        },
+        None => None,
+    };
     match cli.command {
         Command::Reduce(args) if args.input.as_os_str() == "-" || args.stdout.is_some() => {
             match reduce_stream(&args) {
@@ -577,14 +651,7 @@ fn run() -> ExitCode {
                 let doc = reduce::learn_palette(&hist, &opts)?;
                 let json = serde_json::to_string_pretty(&doc).expect("document serialises");
                 let read = batch::input_files(&args.inputs)?;
-                chromasift::output::write_file_sparing(
-                    &args.out,
-                    format!("{json}\n").as_bytes(),
-                    &read
-                        .iter()
-                        .map(std::path::PathBuf::as_path)
-                        .collect::<Vec<_>>(),
-                )?;
+                write_or_stdout(&args.out, format!("{json}\n").as_bytes(), &read)?;
                 Ok(doc)
             })();
             match result {
@@ -640,14 +707,7 @@ fn run() -> ExitCode {
                 let (hist, failures) = batch::gather_histograms_lenient(&args.inputs, &opts)?;
                 failed = report_failures(&failures);
                 let read = batch::input_files(&args.inputs)?;
-                chromasift::output::write_file_sparing(
-                    &args.out,
-                    &batch::encode_histogram(&hist),
-                    &read
-                        .iter()
-                        .map(std::path::PathBuf::as_path)
-                        .collect::<Vec<_>>(),
-                )?;
+                write_or_stdout(&args.out, &batch::encode_histogram(&hist), &read)?;
                 Ok((hist.total(), hist.len()))
             })();
             match result {

@@ -623,3 +623,85 @@ fn landcover_names_the_cause_of_a_failed_write() {
         common::files_in(&out)
     );
 }
+
+/// `-` means standard input or output wherever a command reads or writes one file:
+/// `separate -`, `--inks -`, `--palette -`, `learn -o -`, `histogram -o -`.
+#[test]
+fn a_dash_is_standard_input_or_output_everywhere() {
+    use std::io::Write;
+    use std::process::Stdio;
+    let dir = tempfile::tempdir().unwrap();
+    let bin = env!("CARGO_BIN_EXE_chromasift");
+    let poster = fixture("demo/harbour-poster.png");
+    let inks = fixture("demo/quayside-inks.csv");
+    let piped = |args: &[&str], input: &[u8]| {
+        let mut c = Command::new(bin)
+            .args(args)
+            .stdin(Stdio::piped())
+            .stdout(Stdio::piped())
+            .stderr(Stdio::piped())
+            .spawn()
+            .unwrap();
+        c.stdin.take().unwrap().write_all(input).unwrap();
+        c.wait_with_output().unwrap()
+    };
+    let out = dir.path().join("plates");
+    let o = piped(
+        &[
+            "separate",
+            "-",
+            "--inks",
+            inks.to_str().unwrap(),
+            "-k",
+            "3",
+            "-o",
+            out.to_str().unwrap(),
+        ],
+        &std::fs::read(&poster).unwrap(),
+    );
+    assert!(o.status.success(), "{}", stderr(&o));
+    assert!(out.join("stdin.separation.json").is_file());
+    let out2 = dir.path().join("plates2");
+    let o = piped(
+        &[
+            "separate",
+            poster.to_str().unwrap(),
+            "--inks",
+            "-",
+            "-k",
+            "3",
+            "-o",
+            out2.to_str().unwrap(),
+        ],
+        &std::fs::read(&inks).unwrap(),
+    );
+    assert!(o.status.success(), "{}", stderr(&o));
+    assert!(out2.join("harbour-poster.separation.json").is_file());
+    let o = run(
+        &["learn", poster.to_str().unwrap(), "-k", "3", "-o", "-"],
+        &[],
+    );
+    assert!(o.status.success(), "{}", stderr(&o));
+    let doc: Value = serde_json::from_slice(&o.stdout).unwrap();
+    assert_eq!(doc["k"], 3);
+    assert!(!Path::new("-").exists());
+    let palette = dir.path().join("p.json");
+    std::fs::write(&palette, &o.stdout).unwrap();
+    let applied = dir.path().join("applied");
+    let o = piped(
+        &[
+            "apply",
+            poster.to_str().unwrap(),
+            "--palette",
+            "-",
+            "-o",
+            applied.to_str().unwrap(),
+        ],
+        &std::fs::read(&palette).unwrap(),
+    );
+    assert!(o.status.success(), "{}", stderr(&o));
+    assert!(applied.join("harbour-poster.reduced.png").is_file());
+    let o = run(&["histogram", poster.to_str().unwrap(), "-o", "-"], &[]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    assert!(o.stdout.starts_with(b"CSHIST"));
+}
