@@ -705,3 +705,38 @@ fn a_dash_is_standard_input_or_output_everywhere() {
     assert!(o.status.success(), "{}", stderr(&o));
     assert!(o.stdout.starts_with(b"CSHIST"));
 }
+
+/// `batch --jobs 256` runs at most twice as many workers as cores (and one per 256 MB of
+/// available memory), so twelve images fit in a 1 GB address space, where 256 workers
+/// each with a 64 MiB colour table would not.
+#[test]
+fn batch_workers_are_bounded() {
+    let root = tempfile::tempdir().unwrap();
+    let input = root.path().join("in");
+    std::fs::create_dir_all(&input).unwrap();
+    for i in 0..12 {
+        std::fs::copy(
+            fixture("demo/harbour-poster.png"),
+            input.join(format!("p{i:02}.png")),
+        )
+        .unwrap();
+    }
+    let out = root.path().join("out");
+    let o = run_limited(
+        1_000_000,
+        &[
+            "batch",
+            input.to_str().unwrap(),
+            "-k",
+            "4",
+            "--jobs",
+            "256",
+            "-o",
+            out.to_str().unwrap(),
+        ],
+    );
+    assert_eq!(o.status.code(), Some(0), "{}", stderr(&o));
+    let r: Value =
+        serde_json::from_slice(&std::fs::read(out.join("batch-report.json")).unwrap()).unwrap();
+    assert_eq!(r["totals"]["ok"], 12);
+}
