@@ -46,6 +46,25 @@ pub fn k_path(
     }
 }
 
+/// The rows of a [`weighted_sample`] of `n` draws, each drawn row once with the number of
+/// times it was drawn as its weight (rows and weights, in row order).
+pub(crate) fn sampled_rows(data: &Dataset, n: usize, seed: u64) -> (Vec<f32>, Vec<f64>) {
+    let picks = weighted_sample(data, n, seed);
+    let mut rows = Vec::with_capacity(picks.len() * data.dim());
+    let mut w: Vec<f64> = Vec::new();
+    let mut last = usize::MAX;
+    for &i in &picks {
+        if i == last {
+            *w.last_mut().expect("a row was pushed") += 1.0;
+        } else {
+            rows.extend_from_slice(data.row(i));
+            w.push(1.0);
+            last = i;
+        }
+    }
+    (rows, w)
+}
+
 /// Indices of `n` rows drawn with probability proportional to weight, with replacement,
 /// from a seeded generator (a sample of pixels when rows are histogram entries).
 pub fn weighted_sample(data: &Dataset, n: usize, seed: u64) -> Vec<usize> {
@@ -188,20 +207,8 @@ pub fn stability(
         .into_par_iter()
         .map(|r| {
             let tag = ((k as u64) << 8) | r as u64;
-            let picks =
-                weighted_sample(data, sample, seed ^ tag.wrapping_mul(0x9E37_79B9_7F4A_7C15));
-            let mut rows = Vec::with_capacity(picks.len() * dim);
-            let mut w: Vec<f64> = Vec::new();
-            let mut last = usize::MAX;
-            for &i in &picks {
-                if i == last {
-                    *w.last_mut().expect("a row was pushed") += 1.0;
-                } else {
-                    rows.extend_from_slice(data.row(i));
-                    w.push(1.0);
-                    last = i;
-                }
-            }
+            let (rows, w) =
+                sampled_rows(data, sample, seed ^ tag.wrapping_mul(0x9E37_79B9_7F4A_7C15));
             let sub = Dataset::new(&rows, dim, Some(&w)).expect("sampled rows are valid");
             let mut rng = Rng::new(seed, 0x57AB_0000 ^ tag);
             let init = kmeans_plus_plus(&sub, k, &mut rng);

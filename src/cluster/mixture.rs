@@ -7,7 +7,7 @@
 //! fixed chunks of [`CHUNK`] rows and are reduced in chunk order, so results do not depend
 //! on the thread count.
 
-use super::{assign_nearest, weighted_sample, Dataset, CHUNK};
+use super::{assign_nearest, Dataset, CHUNK};
 use rayon::prelude::*;
 
 /// How a mixture is fitted.
@@ -307,19 +307,7 @@ pub fn fit_mixture(
     // than once carry the count as weight).
     let (sample_rows, sample_w);
     let fit_data = if data.len() > settings.fit_rows {
-        let picks = weighted_sample(data, settings.fit_rows, seed);
-        let mut rows = Vec::new();
-        let mut w: Vec<f64> = Vec::new();
-        let mut last = usize::MAX;
-        for &i in &picks {
-            if i == last {
-                *w.last_mut().expect("a row was pushed") += 1.0;
-            } else {
-                rows.extend_from_slice(data.row(i));
-                w.push(1.0);
-                last = i;
-            }
-        }
+        let (rows, w) = super::choose::sampled_rows(data, settings.fit_rows, seed);
         sample_rows = rows;
         sample_w = w;
         Dataset::new(&sample_rows, d, Some(&sample_w)).expect("sampled rows are valid")
