@@ -252,42 +252,44 @@ impl OutputLock {
     pub fn take(out: &Path) -> Result<OutputLock> {
         let path = out.join(LOCK_NAME);
         let me = std::process::id();
-        for _ in 0..2 {
-            match std::fs::OpenOptions::new()
-                .write(true)
-                .create_new(true)
-                .open(&path)
-            {
-                Ok(mut f) => {
-                    use std::io::Write;
-                    let _ = writeln!(f, "{me}");
-                    return Ok(OutputLock(path));
-                }
-                Err(e) if e.kind() == std::io::ErrorKind::AlreadyExists => {
-                    let holder = std::fs::read_to_string(&path)
-                        .ok()
-                        .and_then(|t| t.trim().parse::<u32>().ok());
-                    if let Some(pid) = holder.filter(|&pid| pid != me && process_runs(pid)) {
+        // The lock appears with its process id already in it (a file written aside, then
+        // linked into place), so no other batch can find it empty and take it for stale.
+        let mine = out.join(format!("{LOCK_NAME}.{me}"));
+        std::fs::write(&mine, format!("{me}\n"))
+            .map_err(|e| Error::output(out, format!("cannot create {LOCK_NAME}: {e}")))?;
+        let taken = (|| {
+            for _ in 0..2 {
+                match std::fs::hard_link(&mine, &path) {
+                    Ok(()) => return Ok(OutputLock(path.clone())),
+                    Err(e) if e.kind() == std::io::ErrorKind::AlreadyExists => {
+                        let holder = std::fs::read_to_string(&path)
+                            .ok()
+                            .and_then(|t| t.trim().parse::<u32>().ok());
+                        if let Some(pid) = holder.filter(|&pid| pid != me && process_runs(pid)) {
+                            return Err(Error::output(
+                                out,
+                                format!(
+                                    "another batch (process {pid}) is writing into this folder; \
+                                     wait for it to finish, or remove {LOCK_NAME} there if none \
+                                     runs"
+                                ),
+                            ));
+                        }
+                        // Stale: its process has ended.
+                        let _ = std::fs::remove_file(&path);
+                    }
+                    Err(e) => {
                         return Err(Error::output(
                             out,
-                            format!(
-                                "another batch (process {pid}) is writing into this folder; \
-                                 wait for it to finish, or remove {LOCK_NAME} there if none runs"
-                            ),
-                        ));
+                            format!("cannot create {LOCK_NAME}: {e}"),
+                        ))
                     }
-                    // Stale: its process has ended.
-                    let _ = std::fs::remove_file(&path);
-                }
-                Err(e) => {
-                    return Err(Error::output(
-                        out,
-                        format!("cannot create {LOCK_NAME}: {e}"),
-                    ))
                 }
             }
-        }
-        Err(Error::output(out, format!("cannot take {LOCK_NAME}")))
+            Err(Error::output(out, format!("cannot take {LOCK_NAME}")))
+        })();
+        let _ = std::fs::remove_file(&mine);
+        taken
     }
 }
 

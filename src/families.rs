@@ -18,12 +18,13 @@
 //!    near-duplicate palette colours, closer than [`NEAR_DUPLICATE_DELTA_E`]; then the means
 //!    whose rows would cost least to hand to their second-nearest mean, Σ w·(d₂ − d₁), as in
 //!    split-and-merge) and places it on the family's core; Lloyd re-converges on the cells.
-//!    The move is kept only if fewer families are lost afterwards. This is the relocation
+//!    The move is kept only if the lost families weigh less afterwards: 3 for each
+//!    clearly lost one (more than [`LOST_DELTA_E`] + 2 away), 1 for each just lost one. This is the relocation
 //!    move of split-and-merge k-means (Kaukoranta, Fränti & Nevalainen 1998) and of random
 //!    swap (Fränti 2018), with the place chosen by the lost family and the judge a count of
 //!    lost families instead of the SSE.
 //! 4. If any move was kept, Lloyd runs on every row from the moved means, and the result is
-//!    kept only if it still loses fewer families than the plain fit.
+//!    kept only if its lost families still weigh less than the plain fit's.
 //!
 //! Nothing here is random, and sums run in row order, so the result does not depend on the
 //! thread count. Pinned means (the first `fixed`) are never given up.
@@ -717,14 +718,14 @@ pub struct LostArea {
 
 /// Areas of at least [`min_family_pixels`] pixels whose every pixel is more than
 /// [`REPORT_DELTA_E`] from its palette colour, largest first (ties: raster order).
-/// `entry_error` is each histogram entry's CIEDE2000 to its palette colour,
-/// `entry_slot` its palette colour's index into `palette`.
+/// `entry_error` is each histogram entry's CIEDE2000 to its palette colour;
+/// `pixel_index` is each pixel's index into `palette` as written (after any dithering).
 pub fn lost_areas(
     width: u32,
     height: u32,
     pixel_entry: &[u32],
     entry_error: &[f64],
-    entry_slot: &[u16],
+    pixel_index: &[u16],
     labs: &[[f64; 3]],
     palette: &[[u8; 3]],
 ) -> Vec<LostArea> {
@@ -769,7 +770,12 @@ pub fn lost_areas(
                 lab[d] += labs[e][d];
             }
             err += entry_error[e];
-            *took.entry(entry_slot[e]).or_insert(0) += 1;
+            if let Some(&s) = pixel_index
+                .get(p)
+                .filter(|&&s| (s as usize) < palette.len())
+            {
+                *took.entry(s).or_insert(0) += 1;
+            }
         }
         let n = pixels.len() as f64;
         let lab = [lab[0] / n, lab[1] / n, lab[2] / n];
@@ -786,7 +792,9 @@ pub fn lost_areas(
             height: (y1 - y0 + 1) as u32,
             source: colour::hex(colour::space_to_srgb8(lab, Space::Cielab)),
             source_lab: lab,
-            rendered: colour::hex(palette[slot as usize]),
+            rendered: palette
+                .get(slot as usize)
+                .map_or_else(|| "none".into(), |&c| colour::hex(c)),
             delta_e2000: err / n,
         });
     }

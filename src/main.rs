@@ -331,8 +331,6 @@ fn usage_error_line(text: &str) -> String {
 /// Set when writing to standard output failed; the exit status is then 2.
 static STDOUT_FAILED: AtomicBool = AtomicBool::new(false);
 
-/// Writes one document and a newline to standard output; a failure (a full disk, a closed
-/// pipe) is reported once on standard error and makes the exit status 2.
 /// Writes one output file atomically, sparing the inputs; `-` writes to standard output.
 fn write_or_stdout(
     out: &std::path::Path,
@@ -395,6 +393,8 @@ fn report_failures(failures: &[(std::path::PathBuf, chromasift::Error)]) -> usiz
     failures.len()
 }
 
+/// Writes one document and a newline to standard output; a failure (a full disk, a closed
+/// pipe) is reported once on standard error and makes the exit status 2.
 fn emit(out: &mut impl Write, text: &str) {
     let result = stdout_open()
         .and_then(|()| writeln!(out, "{text}"))
@@ -402,28 +402,29 @@ fn emit(out: &mut impl Write, text: &str) {
     stdout_result(result);
 }
 
-/// An error when standard output is closed (`>&-`): the standard library would drop what
-/// is written there without a word.
-fn stdout_open() -> std::io::Result<()> {
-    #[cfg(unix)]
-    {
-        // A program started with standard output closed finds /dev/null there, opened for
-        // reading and writing by the Rust runtime; a user's own `>/dev/null` is write-only.
-        // SAFETY: fcntl and fstat only query the descriptor; `st` is plain data.
-        let closed = unsafe {
-            let flags = libc::fcntl(1, libc::F_GETFL);
-            let mut st: libc::stat = std::mem::zeroed();
-            let mut null: libc::stat = std::mem::zeroed();
-            flags == -1
-                || (flags & libc::O_ACCMODE == libc::O_RDWR
-                    && libc::fstat(1, &mut st) == 0
-                    && libc::stat(c"/dev/null".as_ptr(), &mut null) == 0
-                    && (st.st_mode & libc::S_IFMT) == libc::S_IFCHR
-                    && st.st_rdev == null.st_rdev)
-        };
-        if closed {
-            return Err(std::io::Error::other("standard output is closed"));
+/// Whether standard output was closed when the process started (`>&-`). The Rust runtime
+/// puts /dev/null in place of a closed descriptor before `main`, so this is recorded by a
+/// constructor that runs before it (ELF `.init_array`, on Linux).
+static STDOUT_CLOSED_AT_START: AtomicBool = AtomicBool::new(false);
+
+#[cfg(target_os = "linux")]
+#[used]
+#[link_section = ".init_array"]
+static RECORD_CLOSED_STDOUT: extern "C" fn() = {
+    extern "C" fn record() {
+        // SAFETY: F_GETFD only queries the descriptor's flags.
+        if unsafe { libc::fcntl(1, libc::F_GETFD) } == -1 {
+            STDOUT_CLOSED_AT_START.store(true, Ordering::SeqCst);
         }
+    }
+    record
+};
+
+/// An error when standard output is closed: what is written there would be lost without a
+/// word.
+fn stdout_open() -> std::io::Result<()> {
+    if STDOUT_CLOSED_AT_START.load(Ordering::SeqCst) {
+        return Err(std::io::Error::other("standard output is closed"));
     }
     Ok(())
 }
@@ -476,6 +477,28 @@ fn run() -> ExitCode {
     }
     // `-` as the input of a command that reads one image or scene: standard input, held in
     // a temporary file named `stdin.*` (so outputs are named stdin.*) for the run.
+    // Standard input can be read once only.
+    let twice = match &cli.command {
+        Command::Separate(a) => a.input.as_os_str() == "-" && a.inks.as_os_str() == "-",
+        Command::Apply(a) => a.input.as_os_str() == "-" && a.palette.as_os_str() == "-",
+        _ => false,
+    };
+    if twice {
+        return fail(
+            "standard input (-) can hold the image or the second input file, not both".to_string(),
+        );
+    }
+    let json_twice = match &cli.command {
+        Command::Learn(a) => a.out.as_os_str() == "-" && a.json,
+        Command::Histogram(a) => a.out.as_os_str() == "-" && a.json,
+        _ => false,
+    };
+    if json_twice {
+        return fail(
+            "--json cannot be combined with -o - (standard output already holds the output)"
+                .to_string(),
+        );
+    }
     let mut cli = cli;
     let stdin_input = match &mut cli.command {
         Command::Separate(a) => Some(&mut a.input),

@@ -200,10 +200,12 @@ pub fn png_without_profile(bytes: &[u8]) -> Option<Vec<u8>> {
     let mut found = false;
     while pos + 12 <= bytes.len() {
         let len = u32::from_be_bytes(bytes[pos..pos + 4].try_into().ok()?) as usize;
-        let end = pos.checked_add(12)?.checked_add(len)?;
-        if end > bytes.len() {
-            return None;
-        }
+        let end = match pos.checked_add(12).and_then(|e| e.checked_add(len)) {
+            Some(end) if end <= bytes.len() => end,
+            // A chunk cut short: the rest goes to the decoder as it is (it reports the cut),
+            // without the profiles found before it.
+            _ => break,
+        };
         let kind = &bytes[pos + 4..pos + 8];
         if kind == b"iCCP" {
             found = true;

@@ -995,13 +995,12 @@ fn reduce_indexed(
                 .map(|e| colour::delta_e2000(labs[e], slot_lab[entry_slot[e] as usize]))
                 .collect();
         }
-        let entry_index: Vec<u16> = entry_slot.iter().map(|&s| new_index[s as usize]).collect();
         families::lost_areas(
             width,
             height,
             &pixel_entry,
             &entry_error,
-            &entry_index,
+            &pixel_index,
             &labs,
             &palette,
         )

@@ -471,7 +471,9 @@ pub struct KeptInks {
 /// family needs (none is the only chosen ink within 6 of a family), cheapest first by
 /// Σ w·(second-nearest − nearest ΔE2000) of their pixels, and takes each lost family's
 /// nearest library ink instead: first all lost families at once, then the worst alone.
-/// A swap is kept only if fewer families are lost. Forced inks are never given up.
+/// A swap is kept only if the lost families weigh less: 3 for each clearly lost (2 past
+/// the limit), 1 for each just lost. Forced inks are never given up, and the number of
+/// inks never changes.
 /// Returns `None` when nothing was lost or no swap helped.
 pub fn keep_families(
     t: &CostTable,
@@ -584,6 +586,10 @@ pub fn keep_families(
                 }
             }
             next.sort_unstable();
+            // Two lost families can share their nearest ink: never end with fewer inks.
+            if next.len() != set.len() {
+                continue;
+            }
             let lf = lost_of(&next);
             if score(&lf) < score(&lost) {
                 set = next;

@@ -130,6 +130,29 @@ fn a_compressed_colour_profile_cannot_exhaust_memory() {
     png.extend(chunk(b"IDAT", &idat));
     png.extend(chunk(b"IEND", &[]));
     let dir = tempfile::tempdir().unwrap();
+    // The same file with a chunk cut short after the image data: the profile must still
+    // be left out (the decoder then reports the cut or ignores it, within the limit).
+    let mut cut = png.clone();
+    cut.truncate(cut.len() - 12);
+    cut.extend_from_slice(&1000u32.to_be_bytes());
+    cut.extend_from_slice(b"tEXtabcdefgh");
+    let cut_input = dir.path().join("cut.png");
+    std::fs::write(&cut_input, &cut).unwrap();
+    let o = run_limited(
+        400_000,
+        &[
+            "reduce",
+            cut_input.to_str().unwrap(),
+            "-o",
+            dir.path().join("cut").to_str().unwrap(),
+        ],
+    );
+    assert!(
+        matches!(o.status.code(), Some(0) | Some(2)),
+        "{}",
+        stderr(&o)
+    );
+    assert!(!stderr(&o).contains("memory allocation"), "{}", stderr(&o));
     let input = dir.path().join("bomb.png");
     std::fs::write(&input, &png).unwrap();
     let o = run_limited(
@@ -739,4 +762,71 @@ fn batch_workers_are_bounded() {
     let r: Value =
         serde_json::from_slice(&std::fs::read(out.join("batch-report.json")).unwrap()).unwrap();
     assert_eq!(r["totals"]["ok"], 12);
+}
+
+/// Mapping onto a given palette with dithering, where the diffused error leaves one palette
+/// colour with no pixel at all: the lost-area report names the colour each area shows as
+/// written (this once indexed past the palette).
+#[test]
+fn dithered_mapping_reports_lost_areas_without_failing() {
+    let dir = tempfile::tempdir().unwrap();
+    // A palette of black, white and a green, from a three-colour image.
+    let pal_img = dir.path().join("pal.png");
+    let px: Vec<u8> = [[0u8, 0, 0], [255, 255, 255], [0x28, 0xaa, 0x3c]]
+        .iter()
+        .flat_map(|c| c.iter().copied())
+        .collect();
+    image::save_buffer(&pal_img, &px, 3, 1, image::ExtendedColorType::Rgb8).unwrap();
+    let pal_out = dir.path().join("pal");
+    let o = run(
+        &[
+            "reduce",
+            pal_img.to_str().unwrap(),
+            "-k",
+            "3",
+            "-o",
+            pal_out.to_str().unwrap(),
+        ],
+        &[],
+    );
+    assert!(o.status.success(), "{}", stderr(&o));
+    // Red everywhere (far outside the palette), a white ring and a small green block.
+    let (w, h) = (200u32, 100u32);
+    let mut img = vec![0u8; (w * h * 3) as usize];
+    for y in 0..h {
+        for x in 0..w {
+            let c = if (95..=106).contains(&x) && (45..=75).contains(&y) {
+                if (99..=101).contains(&x) && (50..=69).contains(&y) {
+                    [0, 255, 0]
+                } else {
+                    [255, 255, 255]
+                }
+            } else {
+                [255, 0, 0]
+            };
+            let i = ((y * w + x) * 3) as usize;
+            img[i..i + 3].copy_from_slice(&c);
+        }
+    }
+    let input = dir.path().join("red.png");
+    image::save_buffer(&input, &img, w, h, image::ExtendedColorType::Rgb8).unwrap();
+    let o = run(
+        &[
+            "apply",
+            input.to_str().unwrap(),
+            "--palette",
+            pal_out.join("pal.palette.json").to_str().unwrap(),
+            "--dither",
+            "floyd-steinberg",
+            "-o",
+            dir.path().join("out").to_str().unwrap(),
+            "--json",
+        ],
+        &[],
+    );
+    assert!(o.status.success(), "{}", stderr(&o));
+    let doc: Value = serde_json::from_slice(&o.stdout).unwrap();
+    for a in doc["lost_areas"].as_array().unwrap() {
+        assert!(a["rendered"].as_str().unwrap().starts_with('#'), "{a}");
+    }
 }
