@@ -1,0 +1,182 @@
+//! What a reduction reports and reads about colours: the areas it rendered far from their
+//! colour (the lost-area report) and the colours a user pins, as text.
+
+use super::{min_family_pixels, REPORT_DELTA_E};
+use crate::colour::{self, Space};
+use crate::regions;
+use rayon::prelude::*;
+use serde::{Deserialize, Serialize};
+use std::collections::HashMap;
+
+/// An area of the image rendered far from its colour (more than [`REPORT_DELTA_E`]).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct LostArea {
+    /// Pixels in the area (8-connected pixels each farther than the limit).
+    pub pixels: u64,
+    /// Bounding box: left, top, width, height, in pixels.
+    pub x: u32,
+    pub y: u32,
+    pub width: u32,
+    pub height: u32,
+    /// Mean source colour of the area (`#rrggbb`) and its CIELAB (D65).
+    pub source: String,
+    pub source_lab: [f64; 3],
+    /// The palette colour most of the area took.
+    pub rendered: String,
+    /// Mean CIEDE2000 between the area's source pixels and their palette colours.
+    pub delta_e2000: f64,
+}
+
+/// Areas of at least [`min_family_pixels`] pixels whose every pixel is more than
+/// [`REPORT_DELTA_E`] from its palette colour, largest first (ties: raster order).
+/// `entry_error` is each histogram entry's CIEDE2000 to its palette colour;
+/// `pixel_index` is each pixel's index into `palette` as written (after any dithering).
+pub fn lost_areas(
+    width: u32,
+    height: u32,
+    pixel_entry: &[u32],
+    entry_error: &[f64],
+    pixel_index: &[u16],
+    labs: &[[f64; 3]],
+    palette: &[[u8; 3]],
+) -> Vec<LostArea> {
+    let (w, h) = (width as usize, height as usize);
+    if pixel_entry.len() != w * h || pixel_entry.is_empty() {
+        return Vec::new();
+    }
+    let opaque = pixel_entry
+        .par_iter()
+        .with_min_len(1 << 16)
+        .filter(|&&e| e != crate::histogram::TRANSPARENT)
+        .count();
+    let min_pixels = min_family_pixels(opaque as f64) as usize;
+    let marks: Vec<u16> = pixel_entry
+        .par_iter()
+        .with_min_len(1 << 16)
+        .map(|&e| {
+            if e != crate::histogram::TRANSPARENT && entry_error[e as usize] > REPORT_DELTA_E {
+                0
+            } else {
+                regions::FIXED
+            }
+        })
+        .collect();
+    let mut out = Vec::new();
+    for (_, size, first) in regions::regions(&marks, w, h) {
+        if size < min_pixels {
+            continue;
+        }
+        let pixels = regions::region_pixels(&marks, w, h, first);
+        let (mut x0, mut y0, mut x1, mut y1) = (usize::MAX, usize::MAX, 0, 0);
+        let (mut lab, mut err) = ([0.0f64; 3], 0.0f64);
+        let mut took: HashMap<u16, usize> = HashMap::new();
+        for &p in &pixels {
+            let (x, y) = (p % w, p / w);
+            x0 = x0.min(x);
+            y0 = y0.min(y);
+            x1 = x1.max(x);
+            y1 = y1.max(y);
+            let e = pixel_entry[p] as usize;
+            for d in 0..3 {
+                lab[d] += labs[e][d];
+            }
+            err += entry_error[e];
+            if let Some(&s) = pixel_index
+                .get(p)
+                .filter(|&&s| (s as usize) < palette.len())
+            {
+                *took.entry(s).or_insert(0) += 1;
+            }
+        }
+        let n = pixels.len() as f64;
+        let lab = [lab[0] / n, lab[1] / n, lab[2] / n];
+        let slot = took
+            .iter()
+            .max_by(|a, b| a.1.cmp(b.1).then(b.0.cmp(a.0)))
+            .map(|(&s, _)| s)
+            .unwrap_or(0);
+        out.push(LostArea {
+            pixels: pixels.len() as u64,
+            x: x0 as u32,
+            y: y0 as u32,
+            width: (x1 - x0 + 1) as u32,
+            height: (y1 - y0 + 1) as u32,
+            source: colour::hex(colour::space_to_srgb8(lab, Space::Cielab)),
+            source_lab: lab,
+            rendered: palette
+                .get(slot as usize)
+                .map_or_else(|| "none".into(), |&c| colour::hex(c)),
+            delta_e2000: err / n,
+        });
+    }
+    out.sort_by_key(|a| std::cmp::Reverse(a.pixels));
+    out
+}
+
+/// One warning line for lost areas (empty when there are none).
+pub fn lost_areas_warning(areas: &[LostArea]) -> Option<String> {
+    let a = areas.first()?;
+    let more = match areas.len() {
+        1 => String::new(),
+        n => format!(" and {} more", n - 1),
+    };
+    Some(format!(
+        "{} area{} rendered more than ΔE2000 {} from {} colour (largest: {} px at x {}..{}, \
+         y {}..{}, {} shown as {}, ΔE2000 {:.1}{more}); raise k or pin the colour",
+        areas.len(),
+        if areas.len() == 1 { "" } else { "s" },
+        REPORT_DELTA_E,
+        if areas.len() == 1 { "its" } else { "their" },
+        a.pixels,
+        a.x,
+        a.x + a.width - 1,
+        a.y,
+        a.y + a.height - 1,
+        a.source,
+        a.rendered,
+        a.delta_e2000,
+    ))
+}
+
+/// A colour given as `#rrggbb` (or `rrggbb`), or as CIELAB (D65) `L,a,b` (commas or
+/// spaces between the numbers), as the sRGB8 colour that will be written. A CIELAB value
+/// whose nearest sRGB8 colour is more than ΔE2000 1 away is refused as out of gamut.
+pub fn parse_colour(s: &str) -> Result<[u8; 3], String> {
+    let t = s.trim();
+    if t.is_empty() {
+        return Err("empty colour (give #rrggbb or L,a,b)".into());
+    }
+    if t.starts_with('#') || (t.len() == 6 && t.chars().all(|c| c.is_ascii_hexdigit())) {
+        return colour::parse_hex(t);
+    }
+    let parts: Vec<&str> = t
+        .split(|c: char| c == ',' || c.is_whitespace())
+        .filter(|p| !p.is_empty())
+        .collect();
+    let nums: Vec<f64> = parts
+        .iter()
+        .map(|p| p.parse::<f64>())
+        .collect::<Result<_, _>>()
+        .map_err(|_| format!("'{t}' is neither #rrggbb nor three CIELAB numbers L,a,b"))?;
+    if nums.len() != 3 || nums.iter().any(|v| !v.is_finite()) {
+        return Err(format!(
+            "'{t}' is neither #rrggbb nor three CIELAB numbers L,a,b"
+        ));
+    }
+    let lab = [nums[0], nums[1], nums[2]];
+    if !(0.0..=100.0).contains(&lab[0]) {
+        return Err(format!(
+            "CIELAB L must be between 0 and 100 (got {})",
+            lab[0]
+        ));
+    }
+    let c = colour::space_to_srgb8(lab, Space::Cielab);
+    let off = colour::delta_e2000(lab, colour::srgb8_to_lab(c));
+    if off > 1.0 {
+        return Err(format!(
+            "CIELAB {t} is outside sRGB: the nearest sRGB colour, {}, is ΔE2000 {off:.1} away",
+            colour::hex(c)
+        ));
+    }
+    Ok(c)
+}
