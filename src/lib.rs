@@ -78,21 +78,23 @@ pub mod cluster;
 pub mod colour;
 pub mod error;
 pub mod families;
-pub mod geotiff;
-pub mod histogram;
-pub mod inks;
+pub mod features;
 pub mod landcover;
 pub mod limits;
 pub mod output;
 pub mod raster;
 pub mod reduce;
-pub mod regions;
 pub mod render;
 pub mod rng;
-pub mod select;
 pub mod separate;
 pub mod sweep;
 pub mod trace;
+
+// Paths of earlier releases, kept for callers of the library.
+pub use colour::inks;
+pub use features::histogram;
+pub use raster::geotiff;
+pub use separate::{regions, select};
 
 pub use error::{Error, ParamsError, Result};
 pub use limits::Limits;

@@ -7,6 +7,7 @@
 
 pub mod adapt;
 pub mod delta_e;
+pub mod inks;
 
 use palette::{FromColor, IntoColor, Lab, LinSrgb, Oklab, Srgb, Xyz};
 use std::sync::OnceLock;

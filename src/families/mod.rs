@@ -227,7 +227,7 @@ pub const DISTINCT_DELTA_E: f64 = 12.0;
 pub struct ImageEntries<'a> {
     pub width: u32,
     pub height: u32,
-    /// Histogram entry of every pixel ([`crate::histogram::TRANSPARENT`] where alpha = 0).
+    /// Histogram entry of every pixel ([`crate::features::histogram::TRANSPARENT`] where alpha = 0).
     pub pixel_entry: &'a [u32],
 }
 
@@ -252,7 +252,7 @@ fn image_families(image: ImageEntries, cells: &Cells, labs: &[[f64; 3]]) -> Vec<
     if pixel_entry.len() != w * h || pixel_entry.is_empty() {
         return Vec::new();
     }
-    let transparent = crate::histogram::TRANSPARENT;
+    let transparent = crate::features::histogram::TRANSPARENT;
     let limit = (SOLID_DELTA_E * SOLID_DELTA_E) as f32;
     // CIELAB of each entry in single precision: a small table for the many look-ups.
     let lab32: Vec<[f32; 3]> = labs

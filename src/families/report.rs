@@ -3,7 +3,7 @@
 
 use super::{min_family_pixels, REPORT_DELTA_E};
 use crate::colour::{self, Space};
-use crate::regions;
+use crate::separate::regions;
 use rayon::prelude::*;
 use serde::{Deserialize, Serialize};
 use std::collections::HashMap;
@@ -47,14 +47,14 @@ pub fn lost_areas(
     let opaque = pixel_entry
         .par_iter()
         .with_min_len(1 << 16)
-        .filter(|&&e| e != crate::histogram::TRANSPARENT)
+        .filter(|&&e| e != crate::features::histogram::TRANSPARENT)
         .count();
     let min_pixels = min_family_pixels(opaque as f64) as usize;
     let marks: Vec<u16> = pixel_entry
         .par_iter()
         .with_min_len(1 << 16)
         .map(|&e| {
-            if e != crate::histogram::TRANSPARENT && entry_error[e as usize] > REPORT_DELTA_E {
+            if e != crate::features::histogram::TRANSPARENT && entry_error[e as usize] > REPORT_DELTA_E {
                 0
             } else {
                 regions::FIXED

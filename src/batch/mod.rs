@@ -3,7 +3,7 @@
 //! that lets a large archive be summarised in shards, and the batch report.
 
 use crate::error::{Error, Result};
-use crate::histogram::{self, Histogram};
+use crate::features::histogram::{self, Histogram};
 use crate::output::{OutputSet, TEMP_PREFIX};
 use crate::raster::{self, Pixels};
 use crate::reduce::{self, fnv1a, FixedPalette, PaletteDocument, ReduceOptions, SourceStamp};
@@ -545,7 +545,7 @@ pub fn run_batch(
     let _lock = OutputLock::take(out)?;
     remove_stale_temporaries(out);
     // Many images: keep each worker's colour-count table from image to image.
-    let _keep = crate::histogram::KeepTables::new();
+    let _keep = crate::features::histogram::KeepTables::new();
     let pool = rayon::ThreadPoolBuilder::new()
         .num_threads(worker_count(opts.jobs))
         .build()
@@ -957,7 +957,7 @@ pub fn gather_histograms_lenient(
             }
         )));
     }
-    let _keep = (files.len() > 1).then(crate::histogram::KeepTables::new);
+    let _keep = (files.len() > 1).then(crate::features::histogram::KeepTables::new);
     // Merged as they arrive (see `squash`), so memory stays bounded however many files
     // there are; the first failing file in input order is the error reported.
     let read = |f: &PathBuf| match read_histogram_file(f, opts.limits.max_alloc)? {

@@ -8,7 +8,7 @@ use crate::cluster::{
 use crate::colour::{self, Space};
 use crate::error::{Error, Result};
 use crate::families::{self, LostArea, Objective};
-use crate::histogram::{self, IndexedHistogram};
+use crate::features::histogram::{self, IndexedHistogram};
 use crate::limits::Limits;
 use crate::output::OutputSet;
 use crate::raster::{self, Decoded, Pixels};

@@ -1,5 +1,7 @@
 //! Reading images through the decode limits, and writing PNG and TIFF outputs.
 
+pub mod geotiff;
+
 use crate::error::{Error, Result};
 use crate::limits::Limits;
 use image::{ColorType, DynamicImage, ImageReader};

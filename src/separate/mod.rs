@@ -2,15 +2,18 @@
 //! shop's library to minimise CIEDE2000, small specks merged away, optional trapping,
 //! a proof and a swatch sheet.
 
+pub mod regions;
+pub mod select;
+
 use crate::colour::{self, adapt, delta_e2000};
 use crate::error::{Error, Result};
-use crate::histogram;
-use crate::inks::{self, Ink};
+use crate::features::histogram;
+use crate::colour::inks::{self, Ink};
 use crate::limits::Limits;
 use crate::output::OutputSet;
 use crate::raster::{self, Decoded, Pixels};
-use crate::regions::{self, FIXED};
-use crate::select::{self, CostTable, Method};
+use regions::FIXED;
+use select::{CostTable, Method};
 use rayon::prelude::*;
 use serde::{Deserialize, Serialize};
 use std::path::{Path, PathBuf};

@@ -12,7 +12,7 @@
 use crate::cluster::{fit, soft_assign, Beta, Dataset, KMeansParams, Mode};
 use crate::colour::{self, Space};
 use crate::error::{Error, ParamsError, Result};
-use crate::geotiff::{self, GeoRaster, RasterInfo};
+use crate::raster::geotiff::{self, GeoRaster, RasterInfo};
 use crate::limits::Limits;
 use crate::output::{OutputSet, PendingOutput};
 use crate::raster;

@@ -1,7 +1,7 @@
 //! Rendering from per-entry results: remapping to palette indices, Floyd–Steinberg
 //! dithering, and uncertainty maps. Per-pixel work is table look-ups.
 
-use crate::histogram::TRANSPARENT;
+use crate::features::histogram::TRANSPARENT;
 use rayon::prelude::*;
 
 /// Palette index of a pixel that takes no part (alpha = 0).

@@ -8,7 +8,7 @@
 
 use crate::cluster::{fit, Dataset, KMeansParams};
 use crate::colour::delta_e2000;
-use crate::inks::Ink;
+use crate::colour::inks::Ink;
 use rayon::prelude::*;
 
 const CHUNK: usize = 4096;

@@ -16,7 +16,7 @@ use crate::cluster::{
 };
 use crate::colour::{self, Space};
 use crate::error::{Error, ParamsError, Result};
-use crate::histogram::{self, IndexedHistogram};
+use crate::features::histogram::{self, IndexedHistogram};
 use crate::landcover::{scene_sample, LandcoverOptions};
 use crate::limits::Limits;
 use crate::output::OutputSet;
@@ -577,13 +577,13 @@ fn is_scene(input: &Path, opts: &SweepOptions) -> Result<bool> {
     if !matches!(ext.as_deref(), Some("tif") | Some("tiff")) {
         return Ok(false);
     }
-    let r = crate::geotiff::GeoRaster::open(input, &opts.limits)?;
+    let r = crate::raster::geotiff::GeoRaster::open(input, &opts.limits)?;
     let info = r.info();
     Ok(!info.geo.is_empty()
         || info.bands > 4
         || !matches!(
             info.sample,
-            crate::geotiff::SampleKind::U8 | crate::geotiff::SampleKind::U16
+            crate::raster::geotiff::SampleKind::U8 | crate::raster::geotiff::SampleKind::U16
         ))
 }
 
