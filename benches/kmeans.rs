@@ -291,7 +291,7 @@ fn bench_reduce(c: &mut Criterion) {
         g.bench_function(id, |b| {
             let p = synthetic(mp);
             let mut opts = ReduceOptions::new(K);
-            opts.mode = mode;
+            opts.engine.mode = mode;
             b.iter(|| reduce_image(black_box(&p.image), black_box(&opts)).expect("reduce"))
         });
     }
@@ -393,7 +393,7 @@ fn phase_group(c: &mut Criterion, group: &str, get: fn() -> &'static Prepared, s
             g.bench_function(id, |b| {
                 let p = get();
                 let mut opts = ReduceOptions::new(K);
-                opts.mode = mode;
+                opts.engine.mode = mode;
                 b.iter(|| reduce_image(black_box(&p.image), black_box(&opts)).expect("reduce"))
             });
         }

@@ -80,6 +80,7 @@ pub mod error;
 pub mod families;
 pub mod features;
 pub mod landcover;
+pub mod learn;
 pub mod limits;
 pub mod output;
 pub mod raster;

@@ -108,7 +108,7 @@ impl Limits {
         }
         if pixels > self.max_pixels {
             return Err(format!(
-                "image is {width} x {height} = {pixels} pixels, over the limit of {} pixels (raise it with --max-pixels)",
+                "image is {width} x {height} = {pixels} pixels, over the limit of {} pixels (raise it with `max_pixels`)",
                 self.max_pixels
             ));
         }

@@ -43,11 +43,11 @@ fn decoded(bytes: &[u8], name: &str) -> Decoded {
 }
 
 fn reduce(img: &Decoded, k: usize, seed: u64, objective: Objective) -> Reduction {
-    let opts = ReduceOptions {
-        seed,
+    let mut opts = ReduceOptions {
         objective,
         ..ReduceOptions::new(k)
     };
+    opts.engine.seed = seed;
     reduce_image(img, &opts).unwrap()
 }
 
@@ -228,11 +228,11 @@ fn pinned_colours_stay_exact() {
         chromasift::cluster::Mode::Hard,
         chromasift::cluster::Mode::Soft,
     ] {
-        let opts = ReduceOptions {
+        let mut opts = ReduceOptions {
             pinned: pins.to_vec(),
-            mode,
             ..ReduceOptions::new(5)
         };
+        opts.engine.mode = mode;
         let red = reduce_image(&img, &opts).unwrap();
         assert!(red.palette.len() <= 5);
         for p in pins {
@@ -340,11 +340,11 @@ fn learnt_palette_keeps_families_too() {
         };
         let hist = chromasift::histogram::from_rgba8(&rgba).histogram;
         let count = |objective| {
-            let opts = ReduceOptions {
+            let mut opts = ReduceOptions {
                 objective,
-                seed: 2,
                 ..ReduceOptions::new(a.k)
             };
+            opts.engine.seed = 2;
             let doc = chromasift::reduce::learn_palette(&hist, &opts).unwrap();
             let palette: Vec<[f64; 3]> = doc.colors.iter().map(|c| c.lab).collect();
             a.families

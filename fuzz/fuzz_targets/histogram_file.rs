@@ -27,7 +27,7 @@ fn check(bytes: &[u8]) {
         return;
     }
     let mut opts = ReduceOptions::new(3);
-    opts.max_iter = 20;
+    opts.engine.max_iter = 20;
     let Ok(doc) = learn_palette(&h, &opts) else {
         return;
     };

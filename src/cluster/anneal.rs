@@ -27,7 +27,7 @@ use crate::error::ParamsError;
 use crate::rng::Rng;
 
 /// The annealing schedule.
-#[derive(Debug, Clone, Copy, PartialEq)]
+#[derive(Debug, Clone, Copy, PartialEq, serde::Serialize, serde::Deserialize)]
 pub struct Anneal {
     /// First β, as a multiple of β_c = 1/λ_max. Default: 0.5 (all means together).
     pub start: f64,

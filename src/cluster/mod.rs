@@ -10,6 +10,7 @@
 //! and per-chunk partial sums are reduced in chunk order.
 
 mod anneal;
+mod engine;
 mod choose;
 mod hard;
 mod init;
@@ -20,6 +21,7 @@ mod soft;
 mod split_merge;
 
 pub use anneal::{anneal, Anneal, AnnealResult};
+pub use engine::EngineOptions;
 pub use choose::{
     adjusted_rand_index, bic, calibration, k_path, silhouette, stability, weighted_sample,
     CalibrationBin,

@@ -52,6 +52,31 @@ pub enum Beta {
     Fixed(f64),
 }
 
+/// Written as `"auto"` or the number.
+impl serde::Serialize for Beta {
+    fn serialize<S: serde::Serializer>(&self, s: S) -> Result<S::Ok, S::Error> {
+        match self {
+            Beta::Auto => s.serialize_str("auto"),
+            Beta::Fixed(b) => s.serialize_f64(*b),
+        }
+    }
+}
+
+impl<'de> serde::Deserialize<'de> for Beta {
+    fn deserialize<D: serde::Deserializer<'de>>(d: D) -> Result<Self, D::Error> {
+        #[derive(serde::Deserialize)]
+        #[serde(untagged)]
+        enum Written {
+            Number(f64),
+            Text(String),
+        }
+        match Written::deserialize(d)? {
+            Written::Number(b) => Ok(Beta::Fixed(b)),
+            Written::Text(t) => t.parse().map_err(serde::de::Error::custom),
+        }
+    }
+}
+
 impl std::str::FromStr for Beta {
     type Err = String;
     fn from_str(s: &str) -> Result<Self, String> {

@@ -2,3 +2,7 @@
 //! scene samples and histogram files.
 
 pub mod histogram;
+pub mod quality;
+pub mod rows;
+pub mod scene;
+pub mod histogram_file;

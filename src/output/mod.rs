@@ -1,6 +1,11 @@
 //! Outputs written safely: each to a temporary file in the target folder, all renamed
 //! into place only when every one of them was written; nothing partial is left behind.
 
+mod document;
+mod stamp;
+pub use document::DocumentHeader;
+pub use stamp::{fnv1a, SourceStamp};
+
 use crate::error::{Error, Result};
 use std::fs;
 use std::io::{BufWriter, Write};
@@ -307,6 +312,17 @@ impl Drop for OutputSet {
             drop(live);
         }
     }
+}
+
+/// The file name without its extension, used to name outputs.
+/// A file name that is not valid UTF-8 gives an output name with each invalid sequence
+/// replaced by U+FFFD (the input itself is still read under its own name).
+pub fn stem_of(input: &Path) -> Result<String> {
+    input
+        .file_stem()
+        .map(|s| s.to_string_lossy().into_owned())
+        .filter(|s| !s.is_empty())
+        .ok_or_else(|| Error::output(input, "cannot derive an output name from this file name"))
 }
 
 #[cfg(test)]

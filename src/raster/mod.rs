@@ -1,6 +1,7 @@
 //! Reading images through the decode limits, and writing PNG and TIFF outputs.
 
 pub mod geotiff;
+pub mod walk;
 
 use crate::error::{Error, Result};
 use crate::limits::Limits;
@@ -677,6 +678,10 @@ fn tiff_error(e: tiff::TiffError) -> std::io::Error {
         other => std::io::Error::other(other.to_string()),
     }
 }
+
+/// The note for a file with more frames or pages than the first.
+pub const MORE_FRAMES_NOTE: &str =
+    "the file holds more frames or pages than the first; only the first was used";
 
 #[cfg(test)]
 mod tests {

@@ -5,6 +5,8 @@
 pub mod regions;
 pub mod select;
 
+use crate::output::DocumentHeader;
+use crate::cluster::EngineOptions;
 use crate::colour::{self, adapt, delta_e2000};
 use crate::error::{Error, Result};
 use crate::features::histogram;
@@ -40,13 +42,13 @@ pub struct SeparateOptions {
     pub trap: u32,
     /// Print resolution in dots per inch; default: from the file, if it records one.
     pub dpi: Option<f64>,
-    /// Seed of the k-means start of the ink search.
-    pub seed: u64,
+    /// The k-means engine's settings, for the k-means start of the ink search.
+    pub engine: EngineOptions,
     /// Decode limits.
     pub limits: Limits,
     /// Choose the number of inks as the smallest meeting a ΔE2000 target (then `k` is
     /// unused). Default: off.
-    pub target: Option<crate::reduce::QualityTarget>,
+    pub target: Option<crate::features::quality::QualityTarget>,
     /// How inks are chosen: keep every distinct colour family the library can match
     /// (default) or the pixel-weighted ΔE2000 alone.
     pub objective: crate::families::Objective,
@@ -62,7 +64,7 @@ impl Default for SeparateOptions {
             min_area: DEFAULT_MIN_AREA,
             trap: 0,
             dpi: None,
-            seed: crate::rng::DEFAULT_SEED,
+            engine: EngineOptions::default(),
             limits: Limits::default(),
             target: None,
             objective: crate::families::Objective::Families,
@@ -93,10 +95,10 @@ pub struct InkReport {
 /// The separation document (`STEM.separation.json`).
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct SeparationDocument {
-    pub tool_version: String,
-    pub input: Option<String>,
+    /// Tool version, input, seed and every engine setting.
+    #[serde(flatten)]
+    pub header: DocumentHeader,
     pub ink_library: Option<String>,
-    pub seed: u64,
     /// How the inks were chosen: exhaustive (best subset), swaps (local optimum) or all.
     pub selection: String,
     /// `#rrggbb` of the substrate, or null.
@@ -154,7 +156,7 @@ pub fn resolve_inks(
             .ok_or_else(|| {
                 table_error(
                     library_path,
-                    format!("no ink named '{name}' (asked for with --use)"),
+                    format!("no ink named '{name}' (asked for with `use_inks`)"),
                 )
             })?;
         if !forced.contains(&i) {
@@ -175,7 +177,7 @@ pub fn resolve_inks(
         return Err(table_error(
             library_path,
             format!(
-                "-k {} asks for more inks than the {} in the library",
+                "`k` {} asks for more inks than the {} in the library",
                 opts.k,
                 library.len()
             ),
@@ -184,7 +186,7 @@ pub fn resolve_inks(
     if forced.len() > opts.k {
         return Err(table_error(
             library_path,
-            format!("--use names {} inks but -k is {}", forced.len(), opts.k),
+            format!("`use_inks` names {} inks but `k` is {}", forced.len(), opts.k),
         ));
     }
     Ok((opts.k, forced))
@@ -202,7 +204,7 @@ fn choose_for_target(
     library: &[Ink],
     forced: &[usize],
     opts: &SeparateOptions,
-    target: &crate::reduce::QualityTarget,
+    target: &crate::features::quality::QualityTarget,
 ) -> (select::Selection, String) {
     let total: f64 = weights.iter().sum();
     let lo = forced.len().max(1);
@@ -210,7 +212,7 @@ fn choose_for_target(
     let mut tried: Vec<(usize, f64)> = Vec::new();
     let mut last = None;
     for k in lo..=hi {
-        let sel = select::choose(table, labs, library, k, forced, opts.seed);
+        let sel = select::choose(table, labs, library, k, forced, &opts.engine);
         let per_entry: Vec<f64> = (0..table.n)
             .map(|e| {
                 let best = sel
@@ -224,10 +226,10 @@ fn choose_for_target(
                 }
             })
             .collect();
-        let (mean, p95) = crate::reduce::mean_and_p95(&per_entry, weights, total);
+        let (mean, p95) = crate::features::quality::mean_and_p95(&per_entry, weights, total);
         let value = match target.statistic {
-            crate::reduce::TargetStatistic::Mean => mean,
-            crate::reduce::TargetStatistic::P95 => p95,
+            crate::features::quality::TargetStatistic::Mean => mean,
+            crate::features::quality::TargetStatistic::P95 => p95,
         };
         tried.push((k, value));
         let met = value <= target.delta_e;
@@ -331,7 +333,7 @@ pub fn separate_image(
     ph.mark("cost table");
     let mut notes = Vec::new();
     if img.more_frames {
-        notes.push(crate::reduce::MORE_FRAMES_NOTE.to_string());
+        notes.push(crate::raster::MORE_FRAMES_NOTE.to_string());
     }
     let selection = if opts.all {
         select::Selection {
@@ -346,7 +348,7 @@ pub fn separate_image(
         notes.push(note);
         selection
     } else {
-        let mut selection = select::choose(&table, &labs, library, k, &forced, opts.seed);
+        let mut selection = select::choose(&table, &labs, library, k, &forced, &opts.engine);
         if opts.objective == crate::families::Objective::Families {
             let families = crate::families::distinct_families(
                 crate::families::ImageEntries {
@@ -484,12 +486,10 @@ pub fn separate_image(
         .collect();
     ph.mark("statistics");
     let document = SeparationDocument {
-        tool_version: crate::TOOL_VERSION.into(),
-        input: None,
+        header: DocumentHeader::new(None, opts.engine),
         ink_library: library_path
             .file_name()
             .map(|n| n.to_string_lossy().into_owned()),
-        seed: opts.seed,
         selection: match selection.method {
             Method::Exhaustive => "exhaustive",
             Method::Swaps => "swaps",
@@ -591,7 +591,7 @@ pub fn swatches_svg(doc: &SeparationDocument) -> String {
          <rect width=\"100%\" height=\"100%\" fill=\"#fafafa\"/>\n\
          <text x=\"10\" y=\"24\" font-size=\"16\">{} — {} inks, mean ΔE2000 {:.2}</text>\n\
          <text x=\"10\" y=\"44\" font-size=\"11\" fill=\"#555\">substrate {}, min area {} px, trap {} px</text>\n",
-        xml_escape(doc.input.as_deref().unwrap_or("artwork")),
+        xml_escape(doc.header.input.as_deref().unwrap_or("artwork")),
         doc.inks.len(),
         doc.mean_delta_e2000,
         doc.substrate.as_deref().unwrap_or("none"),
@@ -687,7 +687,7 @@ pub fn separate_file(
     }
     let library = inks::read_library_with(library_path, &opts.limits)?;
     resolve_inks(&library, opts, library_path)?;
-    let stem = crate::reduce::stem_of(input)?;
+    let stem = crate::output::stem_of(input)?;
     let img = raster::decode(input, &opts.limits)?;
     let mut set = OutputSet::prepare(out_dir, &[input, library_path])?;
     let mut sep =
@@ -699,7 +699,7 @@ pub fn separate_file(
             other => other,
         })?;
     drop(img);
-    sep.document.input = input.file_name().map(|n| n.to_string_lossy().into_owned());
+    sep.document.header.input = input.file_name().map(|n| n.to_string_lossy().into_owned());
     let json = serde_json::to_string_pretty(&sep.document).expect("document serialises");
     set.write_bytes(
         &format!("{stem}.separation.json"),

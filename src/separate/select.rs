@@ -6,7 +6,7 @@
 //! that one round costs O(entries × candidates)), started from k-means centres matched to
 //! inks and from greedy forward selection, keeping the better.
 
-use crate::cluster::{fit, Dataset, KMeansParams};
+use crate::cluster::{fit, Dataset, EngineOptions};
 use crate::colour::delta_e2000;
 use crate::colour::inks::Ink;
 use rayon::prelude::*;
@@ -361,7 +361,7 @@ pub fn kmeans_start(
     inks: &[Ink],
     k: usize,
     forced: &[usize],
-    seed: u64,
+    engine: &EngineOptions,
 ) -> Vec<usize> {
     let mut set = forced.to_vec();
     let rows: Vec<f32> = entry_labs
@@ -369,7 +369,7 @@ pub fn kmeans_start(
         .flat_map(|l| l.map(|v| v as f32))
         .collect();
     if let Ok(data) = Dataset::new(&rows, 3, Some(weights)) {
-        if let Ok(params) = KMeansParams::new(k).seed(seed).check() {
+        if let Ok(params) = engine.params(k).check() {
             if let Ok(model) = fit(&data, &params) {
                 let labels = model.predict(&data);
                 let mut mass = vec![0.0f64; model.k()];
@@ -421,13 +421,13 @@ pub fn choose(
     inks: &[Ink],
     k: usize,
     forced: &[usize],
-    seed: u64,
+    engine: &EngineOptions,
 ) -> Selection {
     let subsets = binomial(t.m - forced.len(), k - forced.len());
     if subsets * t.n as f64 <= EXHAUSTIVE_BUDGET {
         return choose_exhaustive(t, k, forced);
     }
-    choose_by_swaps(t, entry_labs, inks, k, forced, seed)
+    choose_by_swaps(t, entry_labs, inks, k, forced, engine)
 }
 
 /// Swap descent from the k-means start and from the greedy start; the better is kept.
@@ -437,11 +437,11 @@ pub fn choose_by_swaps(
     inks: &[Ink],
     k: usize,
     forced: &[usize],
-    seed: u64,
+    engine: &EngineOptions,
 ) -> Selection {
     let a = swap_descent(
         t,
-        &kmeans_start(entry_labs, &t.weights, inks, k, forced, seed),
+        &kmeans_start(entry_labs, &t.weights, inks, k, forced, engine),
         forced,
     );
     let b = swap_descent(t, &greedy_start(t, k, forced), forced);

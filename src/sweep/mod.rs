@@ -10,18 +10,22 @@
 //! warm-started path ([`crate::cluster::k_path`]), the same path `reduce --target-delta-e`
 //! walks, so the two always agree. [`recommend`] weighs the criteria into one K.
 
+use crate::output::DocumentHeader;
 use crate::cluster::{
+    EngineOptions,
     auto_beta, bic, fit_mixture, k_path, silhouette, soft_assign, stability, weighted_sample,
     Dataset, MixtureSettings,
 };
 use crate::colour::{self, Space};
 use crate::error::{Error, ParamsError, Result};
 use crate::features::histogram::{self, IndexedHistogram};
-use crate::landcover::{scene_sample, LandcoverOptions};
+use crate::features::scene::{scene_sample, SceneOptions};
 use crate::limits::Limits;
 use crate::output::OutputSet;
 use crate::raster::{self, Pixels};
-use crate::reduce::{entry_delta_e2000, entry_features, mean_and_p95, stem_of};
+use crate::features::quality::{entry_delta_e2000, mean_and_p95};
+use crate::features::rows::entry_features;
+use crate::output::stem_of;
 use serde::{Deserialize, Serialize};
 use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};
@@ -66,30 +70,26 @@ pub struct SweepOptions {
     pub range: KRange,
     /// Clustering space for colour images. Default: CIELAB.
     pub space: Space,
-    pub seed: u64,
-    pub max_iter: usize,
-    pub tolerance: f64,
-    pub shift_tolerance: f64,
+    /// The k-means engine's settings. A sweep fits every K along one warm-started path
+    /// (Lloyd from the previous K's means), so it uses the seed, iteration limit and
+    /// tolerances; the other settings are reported as ignored.
+    pub engine: EngineOptions,
     /// Pixels drawn (seeded, in proportion to their count) for the silhouette, which
     /// costs O(n²). Default: 2000.
     pub silhouette_sample: usize,
     pub limits: Limits,
     /// Multi-band scene settings (bands, indices, scaling, nodata, fitting sample): when
     /// set, the input is read as a raster scene as `landcover` reads it.
-    pub scene: Option<LandcoverOptions>,
+    pub scene: Option<SceneOptions>,
 }
 
 impl SweepOptions {
     /// Defaults for a range.
     pub fn new(range: KRange) -> Self {
-        let p = crate::cluster::KMeansParams::new(1);
         SweepOptions {
             range,
             space: Space::Cielab,
-            seed: p.seed,
-            max_iter: p.max_iter,
-            tolerance: p.tolerance,
-            shift_tolerance: p.shift_tolerance,
+            engine: EngineOptions::default(),
             silhouette_sample: 2000,
             limits: Limits::default(),
             scene: None,
@@ -150,11 +150,11 @@ pub struct Recommendation {
 /// `sweep.json`.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct SweepDocument {
-    pub tool_version: String,
-    pub input: Option<String>,
+    /// Tool version, input, seed and every engine setting.
+    #[serde(flatten)]
+    pub header: DocumentHeader,
     /// What was clustered: "cielab", "oklab", or the scene's feature names.
     pub features: String,
-    pub seed: u64,
     pub silhouette_sample: usize,
     /// Diagonal floor added to every mixture covariance, in squared feature units.
     #[serde(default)]
@@ -221,12 +221,12 @@ pub fn sweep_rows(
     let weights: Vec<f64> = (0..data.len()).map(|i| data.weight(i)).collect();
     // Never more draws than there are pixels (or rows) to draw from.
     let population = data.total_weight().floor().max(2.0) as usize;
-    let picks = weighted_sample(data, opts.silhouette_sample.min(population), opts.seed);
+    let picks = weighted_sample(data, opts.silhouette_sample.min(population), opts.engine.seed);
     let sample_rows: Vec<f32> = picks.iter().flat_map(|&i| data.row(i).to_vec()).collect();
     let stop = crate::cluster::Stop {
-        max_iter: opts.max_iter,
-        tolerance: opts.tolerance,
-        shift_tolerance: opts.shift_tolerance,
+        max_iter: opts.engine.max_iter,
+        tolerance: opts.engine.tolerance,
+        shift_tolerance: opts.engine.shift_tolerance,
     };
     let mixture = MixtureSettings::new(covariance_floor(data, labs.map(|_| space)));
     let mut rows = Vec::new();
@@ -243,7 +243,7 @@ pub fn sweep_rows(
         data,
         opts.range.min,
         opts.range.max,
-        opts.seed,
+        opts.engine.seed,
         stop,
         true,
         |k, res| {
@@ -272,7 +272,7 @@ pub fn sweep_rows(
             let sample_labels: Vec<u32> = picks.iter().map(|&i| res.labels[i]).collect();
             let sil = silhouette(&sample_rows, dim, &sample_labels);
             lap(3, &mut spent);
-            let mix = fit_mixture(data, &res.means, &mixture, opts.seed ^ ((k as u64) << 32));
+            let mix = fit_mixture(data, &res.means, &mixture, opts.engine.seed ^ ((k as u64) << 32));
             em_iterations += mix.iterations;
             let finite = |v: f64| v.is_finite().then_some(v);
             lap(4, &mut spent);
@@ -282,7 +282,7 @@ pub fn sweep_rows(
                 &sample_rows,
                 opts.silhouette_sample,
                 STABILITY_RUNS,
-                opts.seed,
+                opts.engine.seed,
                 stop,
             );
             lap(5, &mut spent);
@@ -597,33 +597,35 @@ pub fn sweep_file(input: &Path, out_dir: &Path, opts: &SweepOptions) -> Result<S
     // The silhouette costs the square of the sample: bound it before anything is drawn.
     if !(2..=MAX_SILHOUETTE_SAMPLE).contains(&opts.silhouette_sample) {
         return Err(ParamsError::Other(format!(
-            "--silhouette-sample must be between 2 and {MAX_SILHOUETTE_SAMPLE} (got {})",
+            "`silhouette_sample` must be between 2 and {MAX_SILHOUETTE_SAMPLE} (got {})",
             opts.silhouette_sample
         ))
         .into());
     }
-    crate::cluster::KMeansParams::new(opts.range.max)
-        .max_iter(opts.max_iter)
-        .tolerance(opts.tolerance)
-        .shift_tolerance(opts.shift_tolerance)
-        .check()?;
+    opts.engine.params(opts.range.max).check()?;
     stem_of(input)?;
     let mut set = OutputSet::prepare(out_dir, &[input])?;
     for n in OUTPUT_NAMES {
         set.check_target(n)?;
     }
     let mut notes = Vec::new();
+    let ignored: Vec<String> = opts
+        .engine
+        .changed()
+        .into_iter()
+        .filter(|n| !matches!(*n, "seed" | "max_iter" | "tolerance" | "shift_tolerance"))
+        .map(|n| format!("`{n}`"))
+        .collect();
+    if !ignored.is_empty() {
+        notes.push(format!(
+            "a sweep fits every K along one warm-started path of Lloyd iterations, so {} \
+             have no effect here",
+            ignored.join(", ")
+        ));
+    }
     let (rows, features, floor) = if is_scene(input, opts)? {
         let scene_opts = opts.scene.clone().unwrap_or_default();
-        let s = scene_sample(
-            input,
-            &LandcoverOptions {
-                limits: opts.limits,
-                seed: opts.seed,
-                ..scene_opts
-            },
-            opts.range.min,
-        )?;
+        let s = scene_sample(input, &scene_opts, opts.engine.seed, &opts.limits, opts.range.min)?;
         let data = Dataset::new(&s.sample, s.dim, None)?;
         let rows = sweep_rows(&data, None, opts.space, opts);
         (
@@ -671,10 +673,11 @@ pub fn sweep_file(input: &Path, out_dir: &Path, opts: &SweepOptions) -> Result<S
     }
     let suggested = suggest(&rows);
     let document = SweepDocument {
-        tool_version: crate::TOOL_VERSION.into(),
-        input: input.file_name().map(|n| n.to_string_lossy().into_owned()),
+        header: DocumentHeader::new(
+            input.file_name().map(|n| n.to_string_lossy().into_owned()),
+            opts.engine,
+        ),
         features,
-        seed: opts.seed,
         silhouette_sample: opts.silhouette_sample,
         covariance_floor: floor,
         recommended: recommend(&rows, &suggested),
@@ -1117,7 +1120,7 @@ fn render_svg(doc: &SweepDocument, space: Space) -> Canvas {
     };
     let heading = format!(
         "chromasift sweep: {}  (K {}..{}, {})",
-        doc.input.as_deref().unwrap_or("input"),
+        doc.header.input.as_deref().unwrap_or("input"),
         ks.0,
         ks.1,
         doc.features
@@ -1468,10 +1471,13 @@ mod tests {
                 .collect();
             let suggested = suggest(&rows);
             let doc = SweepDocument {
-                tool_version: "test".into(),
-                input: Some("a-rather-long-file-name-for-the-heading.png".into()),
+                header: DocumentHeader {
+                    tool_version: "test".into(),
+                    input: Some("a-rather-long-file-name-for-the-heading.png".into()),
+                    seed: 1,
+                    engine: EngineOptions::default(),
+                },
                 features: "cielab".into(),
-                seed: 1,
                 silhouette_sample: 2000,
                 covariance_floor: 0.25,
                 recommended: recommend(&rows, &suggested),

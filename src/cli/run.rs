@@ -1,0 +1,523 @@
+//! Dispatch: each command's library call, its summary on standard error, its document on
+//! standard output, and the exit status.
+
+use super::help::{flag_wording, manual_pages, parse, usage_error};
+use super::stdio::{
+    emit, emit_json, read_stdin, set_stdout_closed_at_start, stdin_to_file, stdout_result,
+    write_or_stdout, write_stdout, STDOUT_FAILED,
+};
+use super::{
+    ApplyArgs, BatchArgs, Cli, Command, HistogramArgs, LearnArgs, ManpageArgs, ReduceArgs,
+};
+use crate::error::Error;
+use crate::{batch, features, landcover, learn, reduce, separate, sweep};
+use std::io::Write;
+use std::path::{Path, PathBuf};
+use std::process::ExitCode;
+use std::sync::atomic::{AtomicBool, Ordering};
+
+/// Exit codes: 0 success, 1 some inputs failed (batches), 2 usage or input error.
+const EXIT_USAGE: u8 = 2;
+/// Exit code when some inputs of a batch failed.
+const EXIT_SOME_FAILED: u8 = 1;
+/// Exit code after Ctrl-C (128 + SIGINT).
+const EXIT_INTERRUPTED: u8 = 130;
+
+static STOP: AtomicBool = AtomicBool::new(false);
+
+fn fail(message: impl std::fmt::Display) -> ExitCode {
+    eprintln!(
+        "chromasift: error: {}",
+        flag_wording(&batch::one_line(&message.to_string()))
+    );
+    ExitCode::from(EXIT_USAGE)
+}
+
+fn note(input: &Path, n: &str) {
+    eprintln!("chromasift: note: {}: {}", input.display(), flag_wording(n));
+}
+
+/// Runs the tool on its command line. `stdout_closed_at_start`: standard output was closed
+/// when the process started (the binary records it before the runtime hides it).
+pub fn run(stdout_closed_at_start: bool) -> ExitCode {
+    set_stdout_closed_at_start(stdout_closed_at_start);
+    let code = dispatch(std::env::args().collect());
+    if STDOUT_FAILED.load(Ordering::SeqCst) {
+        return ExitCode::from(EXIT_USAGE);
+    }
+    code
+}
+
+fn dispatch(argv: Vec<String>) -> ExitCode {
+    #[cfg(unix)]
+    ignore_file_size_signal();
+    let cli = match parse(&argv) {
+        Ok(c) => c,
+        Err(e) => {
+            use clap::error::ErrorKind as K;
+            if matches!(e.kind(), K::DisplayHelp | K::DisplayVersion) {
+                stdout_result(e.print());
+                return ExitCode::SUCCESS;
+            }
+            if e.kind() == K::DisplayHelpOnMissingArgumentOrSubcommand {
+                // No command given: the help goes to standard error, and it is a usage error.
+                let _ = e.print();
+                return ExitCode::from(EXIT_USAGE);
+            }
+            return fail(usage_error(&e, &argv));
+        }
+    };
+    if !matches!(cli.command, Command::Batch(_)) {
+        // Ctrl-C or SIGTERM: remove the temporary files being written and stop (a batch
+        // has its own handler, which finishes the images under way and writes its report).
+        let _ = ctrlc::set_handler(|| {
+            eprintln!("chromasift: interrupted; unfinished outputs removed");
+            crate::output::abandon_and_exit(130);
+        });
+    }
+    if let Err(message) = check_standard_streams(&cli.command) {
+        return fail(message);
+    }
+    // `-` as the input of a command that reads one image or scene: standard input, held in
+    // a temporary file named `stdin.*` (so outputs are named stdin.*) for the run.
+    let mut cli = cli;
+    let stdin_input = match &mut cli.command {
+        Command::Separate(a) => Some(&mut a.input),
+        Command::Landcover(a) => Some(&mut a.input),
+        Command::Sweep(a) => Some(&mut a.input),
+        Command::Apply(a) => Some(&mut a.input),
+        _ => None,
+    };
+    let _stdin_file = match stdin_input.filter(|p| p.as_os_str() == "-") {
+        Some(input) => match stdin_to_file() {
+            Ok((dir, path)) => {
+                *input = path;
+                Some(dir)
+            }
+            Err(e) => return fail(e),
+        },
+        None => None,
+    };
+    let result = match cli.command {
+        Command::Reduce(args) => run_reduce(&args),
+        Command::Separate(args) => run_separate(&args),
+        Command::Landcover(args) => run_landcover(&args),
+        Command::Sweep(args) => run_sweep(&args),
+        Command::Batch(args) => return run_batch(args),
+        Command::Learn(args) => run_learn(&args),
+        Command::Apply(args) => run_apply(&args),
+        Command::Histogram(args) => run_histogram(&args),
+        Command::Completions(args) => {
+            use clap::CommandFactory;
+            let mut script = Vec::new();
+            clap_complete::generate(args.shell, &mut Cli::command(), "chromasift", &mut script);
+            let mut out = std::io::stdout().lock();
+            stdout_result(out.write_all(&script).and_then(|()| out.flush()));
+            Ok(ExitCode::SUCCESS)
+        }
+        Command::Manpage(args) => run_manpage(&args),
+    };
+    result.unwrap_or_else(fail)
+}
+
+/// Standard input can be read once, and standard output holds one thing.
+fn check_standard_streams(command: &Command) -> Result<(), String> {
+    let twice = match command {
+        Command::Separate(a) => a.input.as_os_str() == "-" && a.inks.as_os_str() == "-",
+        Command::Apply(a) => a.input.as_os_str() == "-" && a.palette.as_os_str() == "-",
+        _ => false,
+    };
+    if twice {
+        return Err("standard input (-) can hold the image or the second input file, not both".into());
+    }
+    let json_twice = match command {
+        Command::Learn(a) => a.out.as_os_str() == "-" && a.json,
+        Command::Histogram(a) => a.out.as_os_str() == "-" && a.json,
+        _ => false,
+    };
+    if json_twice {
+        return Err(
+            "--json cannot be combined with -o - (standard output already holds the output)".into(),
+        );
+    }
+    Ok(())
+}
+
+fn print_reduce_summary(input: &Path, report: &reduce::ReduceReport, json: bool) {
+    for n in &report.notes {
+        note(input, n);
+    }
+    for w in &report.warnings {
+        eprintln!("chromasift: warning: {}: {}", input.display(), flag_wording(w));
+    }
+    let d = &report.document;
+    eprintln!(
+        "chromasift: {}: {} colours, {} iterations, SSE {:.6e}, mean ΔE2000 {:.3}, {:.2} s",
+        input.display(),
+        d.k,
+        d.iterations,
+        d.sse,
+        d.mean_delta_e2000,
+        report.seconds
+    );
+    if json {
+        emit_json(d);
+    }
+}
+
+fn run_reduce(args: &ReduceArgs) -> Result<ExitCode, Error> {
+    let report = if args.input.as_os_str() == "-" || args.stdout.is_some() {
+        reduce_stream(args)?
+    } else {
+        reduce::reduce_file(&args.input, &args.output.out, &args.options())?
+    };
+    print_reduce_summary(&args.input, &report, args.output.json);
+    Ok(ExitCode::SUCCESS)
+}
+
+/// `reduce` with standard input (`-`) as input and/or one output on standard output.
+fn reduce_stream(args: &ReduceArgs) -> Result<reduce::ReduceReport, Error> {
+    let t0 = std::time::Instant::now();
+    let opts = args.options();
+    let from_stdin = args.input.as_os_str() == "-";
+    let (name, bytes) = if from_stdin {
+        (PathBuf::from("standard input"), read_stdin(opts.limits.max_alloc)?)
+    } else {
+        let bytes = std::fs::read(&args.input).map_err(|source| Error::Open {
+            path: args.input.clone(),
+            source,
+        })?;
+        (args.input.clone(), bytes)
+    };
+    let mut red = reduce::reduce_bytes(&bytes, &name, &opts)?;
+    drop(bytes);
+    if !from_stdin {
+        red.document.header.input = args.input.file_name().map(|n| n.to_string_lossy().into_owned());
+    }
+    let outputs = match args.stdout {
+        Some(which) => {
+            write_stdout(&reduce::encode_one(&red, which))?;
+            Vec::new()
+        }
+        None => {
+            let mut set = crate::output::OutputSet::prepare(&args.output.out, &[])?;
+            reduce::write_reduction(&red, "stdin", &mut set, opts.uncertainty_raw)?;
+            set.commit()?
+        }
+    };
+    Ok(reduce::ReduceReport {
+        input: name,
+        outputs,
+        document: red.document,
+        notes: red.notes,
+        warnings: red.warnings,
+        seconds: t0.elapsed().as_secs_f64(),
+    })
+}
+
+fn run_separate(args: &super::SeparateArgs) -> Result<ExitCode, Error> {
+    let report = separate::separate_file(&args.input, &args.inks, &args.output.out, &args.options())?;
+    for n in &report.document.notes {
+        note(&args.input, n);
+    }
+    eprintln!("{}", separate::summary_table(&report.document));
+    eprintln!(
+        "chromasift: {}: {} plates written in {:.2} s",
+        args.input.display(),
+        report.document.inks.len(),
+        report.seconds
+    );
+    if args.output.json {
+        emit_json(&report.document);
+    }
+    Ok(ExitCode::SUCCESS)
+}
+
+fn run_landcover(args: &super::LandcoverArgs) -> Result<ExitCode, Error> {
+    let report = landcover::landcover_file(&args.input, &args.output.out, &args.options())?;
+    let d = &report.document;
+    eprintln!(
+        "chromasift: {}: {} classes over {} valid pixels ({} nodata), SSE {:.6e}, {:.2} s",
+        args.input.display(),
+        d.k,
+        d.valid_pixels,
+        d.nodata_pixels,
+        d.sse,
+        report.seconds
+    );
+    eprintln!("chromasift: caution: {}", landcover::CAUTION);
+    if args.output.json {
+        emit_json(d);
+    }
+    Ok(ExitCode::SUCCESS)
+}
+
+fn run_sweep(args: &super::SweepArgs) -> Result<ExitCode, Error> {
+    let report = sweep::sweep_file(&args.input, &args.output.out, &args.options())?;
+    for n in &report.notes {
+        note(&args.input, n);
+    }
+    let d = &report.document;
+    let suggested: Vec<String> = d.suggested.iter().map(|(c, k)| format!("{c} K = {k}")).collect();
+    eprintln!(
+        "chromasift: {}: swept K {}..{}; suggested: {}; {:.2} s",
+        args.input.display(),
+        d.rows.first().map_or(0, |r| r.k),
+        d.rows.last().map_or(0, |r| r.k),
+        if suggested.is_empty() {
+            "none".to_string()
+        } else {
+            suggested.join(", ")
+        },
+        report.seconds
+    );
+    if let Some(r) = &d.recommended {
+        eprintln!(
+            "chromasift: {}: recommended K = {} (rule: {}); {}. {}",
+            args.input.display(),
+            r.k,
+            r.rule,
+            r.agreement,
+            r.reason
+        );
+    }
+    if args.output.json {
+        emit_json(d);
+    }
+    Ok(ExitCode::SUCCESS)
+}
+
+fn run_learn(args: &LearnArgs) -> Result<ExitCode, Error> {
+    let opts = args.options();
+    let learnt = learn::learn(&args.inputs, &opts)?;
+    let failed = report_failures(&learnt.failures);
+    let json = serde_json::to_string_pretty(&learnt.document).expect("document serialises");
+    write_or_stdout(&args.out, format!("{json}\n").as_bytes(), &learnt.read)?;
+    let doc = &learnt.document;
+    eprintln!(
+        "chromasift: learned {} colours from {} pixels, mean ΔE2000 {:.3}; wrote {}",
+        doc.k,
+        doc.colors.iter().map(|c| c.pixels).sum::<u64>(),
+        doc.mean_delta_e2000,
+        args.out.display()
+    );
+    if args.json {
+        emit_json(doc);
+    }
+    Ok(some_failed(failed))
+}
+
+fn run_apply(args: &ApplyArgs) -> Result<ExitCode, Error> {
+    let palette = learn::read_palette(&args.palette)?;
+    let report = reduce::reduce_file_with(
+        &args.input,
+        &args.output.out,
+        &args.options(),
+        Some(&palette),
+        false,
+        &[args.palette.as_path()],
+    )?;
+    print_reduce_summary(&args.input, &report, args.output.json);
+    Ok(ExitCode::SUCCESS)
+}
+
+fn run_histogram(args: &HistogramArgs) -> Result<ExitCode, Error> {
+    let limits = args.limit.limits();
+    let (hist, failures) = features::histogram_file::gather_lenient(&args.inputs, &limits)?;
+    let failed = report_failures(&failures);
+    let read = features::histogram_file::input_files(&args.inputs)?;
+    write_or_stdout(&args.out, &features::histogram_file::encode(&hist), &read)?;
+    let (n, distinct) = (hist.total(), hist.len());
+    eprintln!("chromasift: wrote {} ({n} pixels)", args.out.display());
+    if args.json {
+        emit(
+            &serde_json::json!({
+                "file": args.out.to_string_lossy(),
+                "pixels": n,
+                "distinct_colours": distinct,
+            })
+            .to_string(),
+        );
+    }
+    Ok(some_failed(failed))
+}
+
+fn run_manpage(args: &ManpageArgs) -> Result<ExitCode, Error> {
+    let pages = manual_pages();
+    if args.all {
+        let dir = args.out.as_deref().expect("clap requires -o with --all");
+        let mut set = crate::output::OutputSet::prepare(dir, &[])?;
+        for (name, roff) in &pages {
+            set.write_bytes(name, roff)?;
+        }
+        let written = set.commit()?;
+        eprintln!("chromasift: wrote {} manual pages into {}", written.len(), dir.display());
+        return Ok(ExitCode::SUCCESS);
+    }
+    let wanted = match &args.command {
+        None => "chromasift.1".to_string(),
+        Some(c) => format!("chromasift-{c}.1"),
+    };
+    match pages.iter().find(|(n, _)| *n == wanted) {
+        Some((_, roff)) => {
+            write_stdout(roff)?;
+            Ok(ExitCode::SUCCESS)
+        }
+        None => {
+            let names = super::help::command_names();
+            let hint = super::help::suggest(
+                args.command.as_deref().unwrap_or_default(),
+                names.iter().map(String::as_str),
+            )
+            .map(|n| format!("; did you mean '{n}'?"))
+            .unwrap_or_default();
+            Ok(fail(format!(
+                "no manual page for '{}'{hint} (commands: {})",
+                args.command.as_deref().unwrap_or_default(),
+                names.join(", ")
+            )))
+        }
+    }
+}
+
+/// With a given palette (`batch --palette`), says which of the flags that only shape how
+/// a palette is fitted were given anyway.
+fn note_fitting_flags(command: &str, args: &BatchArgs) {
+    let p = &args.palette;
+    let mut ignored: Vec<String> = [
+        (p.k != 8, "-k"),
+        (p.target_delta_e.is_some(), "--target-delta-e"),
+        (!p.pin.is_empty(), "--pin"),
+    ]
+    .into_iter()
+    .filter_map(|(set, name)| set.then(|| name.to_string()))
+    .collect();
+    ignored.extend(
+        args.engine
+            .options()
+            .changed()
+            .into_iter()
+            .filter(|n| *n != "beta")
+            .map(|n| flag_wording(&format!("`{n}`"))),
+    );
+    if !ignored.is_empty() {
+        eprintln!(
+            "chromasift: note: {command} maps onto the palette's colours as they are; {} \
+             only change how a palette is fitted, so they have no effect here",
+            ignored.join(", ")
+        );
+    }
+}
+
+fn run_batch(args: BatchArgs) -> ExitCode {
+    use std::io::IsTerminal;
+    let _ = ctrlc::set_handler(|| STOP.store(true, Ordering::SeqCst));
+    if args.palette_file.is_some() {
+        note_fitting_flags("batch --palette", &args);
+    }
+    let palette = match args.palette_file.as_deref().map(learn::read_palette).transpose() {
+        Ok(p) => p,
+        Err(e) => return fail(e),
+    };
+    let opts = batch::BatchOptions {
+        reduce: args.options(),
+        shared: args.shared,
+        jobs: args
+            .jobs
+            .map(usize::from)
+            .unwrap_or_else(|| std::thread::available_parallelism().map_or(1, |n| n.get())),
+        force: args.force,
+        contact_sheet: args.contact_sheet,
+        palette,
+        palette_file: args.palette_file.clone(),
+    };
+    let bar = (!args.quiet && std::io::stderr().is_terminal()).then(|| {
+        let b = indicatif::ProgressBar::new(0);
+        b.set_style(
+            indicatif::ProgressStyle::with_template(
+                "{bar:30} {pos}/{len} images  {per_sec}  about {eta} left",
+            )
+            .unwrap_or_else(|_| indicatif::ProgressStyle::default_bar()),
+        );
+        b
+    });
+    let last_line = std::sync::Mutex::new(std::time::Instant::now());
+    let progress = |done: usize, total: usize| {
+        if args.quiet {
+            return;
+        }
+        if let Some(b) = &bar {
+            b.set_length(total as u64);
+            b.set_position(done as u64);
+        } else {
+            let mut t = last_line.lock().unwrap_or_else(|p| p.into_inner());
+            if done == total || t.elapsed().as_secs() >= 5 {
+                eprintln!("chromasift: batch: {done}/{total} images");
+                *t = std::time::Instant::now();
+            }
+        }
+    };
+    let result = batch::run_batch(&args.input, &args.out, &opts, &STOP, &progress);
+    if let Some(b) = &bar {
+        b.finish_and_clear();
+    }
+    let r = match result {
+        Ok(r) => r,
+        Err(e) => return fail(e),
+    };
+    for f in r.files.iter().filter(|f| f.status == batch::Status::Failed) {
+        eprintln!("chromasift: failed: {}", f.error.as_deref().unwrap_or(&f.input));
+    }
+    let t = &r.totals;
+    eprintln!(
+        "chromasift: batch: {} images: {} reduced, {} up to date, {} failed{}; {} other files skipped; {:.1} s",
+        t.files,
+        t.ok,
+        t.skipped,
+        t.failed,
+        if t.interrupted > 0 { format!(", {} not started (interrupted)", t.interrupted) } else { String::new() },
+        t.not_images,
+        t.seconds
+    );
+    if args.json {
+        emit_json(&r);
+    }
+    if STOP.load(Ordering::SeqCst) {
+        ExitCode::from(EXIT_INTERRUPTED)
+    } else if t.failed > 0 {
+        ExitCode::from(EXIT_SOME_FAILED)
+    } else {
+        ExitCode::SUCCESS
+    }
+}
+
+/// Prints one line per input that could not be read (the others were used); their count.
+fn report_failures(failures: &[(PathBuf, Error)]) -> usize {
+    for (_, e) in failures {
+        eprintln!("chromasift: failed: {e}");
+    }
+    failures.len()
+}
+
+/// Exit status 1 when some inputs failed (the others were used), else 0.
+fn some_failed(failed: usize) -> ExitCode {
+    if failed > 0 {
+        eprintln!("chromasift: {failed} input(s) could not be read and were left out");
+        ExitCode::from(EXIT_SOME_FAILED)
+    } else {
+        ExitCode::SUCCESS
+    }
+}
+
+/// With a file-size limit set (`ulimit -f`), the kernel kills a process that writes past
+/// it (SIGXFSZ), leaving its temporary file behind. Ignoring the signal turns that into a
+/// write error (EFBIG) that is reported like a full disk, and the temporary file is
+/// removed.
+#[cfg(unix)]
+fn ignore_file_size_signal() {
+    // SAFETY: setting a signal's disposition to "ignore" at start-up, before any other
+    // thread exists, has no memory-safety requirement.
+    unsafe {
+        libc::signal(libc::SIGXFSZ, libc::SIG_IGN);
+    }
+}

@@ -1,0 +1,158 @@
+//! The palette document (`STEM.palette.json`) and palettes given in advance.
+
+use crate::output::DocumentHeader;
+use crate::colour::{self, Space};
+use crate::cluster::Mode;
+use crate::families::{LostArea, Objective};
+use crate::features::quality::QualityTarget;
+use crate::output::SourceStamp;
+use serde::{Deserialize, Serialize};
+
+/// One palette colour in the palette document.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct PaletteColour {
+    /// Position in the palette (also the index in the indexed PNG).
+    pub index: usize,
+    /// `#rrggbb`, the sRGB colour written to the reduced image.
+    pub hex: String,
+    /// CIELAB (D65) of that sRGB colour.
+    pub lab: [f64; 3],
+    /// Pixels that took this colour.
+    pub pixels: u64,
+    /// Fraction of the clustered (non-transparent) pixels.
+    pub share: f64,
+    /// Mean normalised entropy (0..1) of those pixels.
+    pub mean_uncertainty: f64,
+}
+
+/// Settings recorded so a result can be reproduced.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct ReduceSettings {
+    pub k_requested: usize,
+    pub beta_setting: String,
+    pub restarts: usize,
+    pub max_iter: usize,
+    pub tolerance: f64,
+    #[serde(default)]
+    pub shift_tolerance: f64,
+    pub dither: String,
+    /// The annealing schedule, when used.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub anneal: Option<AnnealSetting>,
+    /// The colour-difference target K was chosen by, when used.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub target: Option<QualityTarget>,
+    /// Most split-and-merge moves after each k-means++ start (`--split-merge`), when used.
+    #[serde(default, skip_serializing_if = "is_zero")]
+    pub split_merge: usize,
+    /// How colours were chosen (`families` or `sse`); documents written before the choice
+    /// existed read as `sse`.
+    #[serde(default = "objective_plain")]
+    pub objective: Objective,
+    /// Moves that brought back lost colour families (objective `families`).
+    #[serde(default, skip_serializing_if = "is_zero")]
+    pub family_moves: usize,
+    /// Pinned colours (`#rrggbb`), when any.
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub pinned: Vec<String>,
+}
+
+fn objective_plain() -> Objective {
+    Objective::Plain
+}
+
+fn is_zero(n: &usize) -> bool {
+    *n == 0
+}
+
+/// The annealing schedule as recorded in the palette document.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct AnnealSetting {
+    pub start: f64,
+    pub end: f64,
+    pub factor: f64,
+    /// Most split-and-merge moves allowed after the last stage (`--split-merge`); absent
+    /// in documents written before the moves existed, which read as 0.
+    #[serde(default)]
+    pub max_moves: usize,
+}
+
+/// The palette document (`STEM.palette.json`).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct PaletteDocument {
+    /// Tool version, input, seed and every engine setting.
+    #[serde(flatten)]
+    pub header: DocumentHeader,
+    pub space: Space,
+    pub mode: Mode,
+    /// Colours actually returned.
+    pub k: usize,
+    /// β used (1/ΔE*ab² in CIELAB, 1/OKLab-unit² in OKLab); null when infinite
+    /// (every colour sits on a palette mean).
+    pub beta: Option<f64>,
+    pub iterations: usize,
+    /// k-means objective: Σ over clustered pixels of the squared distance, in the
+    /// clustering space, to the nearest final mean (scikit-learn's `inertia_`).
+    pub sse: f64,
+    /// Mean CIE76 ΔE*ab between each source pixel and its reduced pixel.
+    pub mean_delta_e76: f64,
+    /// Mean CIEDE2000 between each source pixel and its reduced pixel.
+    pub mean_delta_e2000: f64,
+    pub colors: Vec<PaletteColour>,
+    /// Areas of the image (at least 0.1 % of the opaque pixels or 400 pixels) whose every
+    /// pixel is more than ΔE2000 10 from its palette colour: what the palette lost.
+    /// Empty for a palette learnt from histograms alone, which has no image.
+    #[serde(default)]
+    pub lost_areas: Vec<LostArea>,
+    pub settings: ReduceSettings,
+    /// Size and modification time of the input (batch runs use it to resume).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub source: Option<SourceStamp>,
+    /// Fingerprint of every setting that shapes the outputs (batch runs use it to resume).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub settings_fingerprint: Option<String>,
+}
+
+/// A palette given in advance (from a palette document): its colours and, optionally,
+/// the β to use for the uncertainty map (default: automatic for the image at hand).
+#[derive(Debug, Clone, PartialEq)]
+pub struct FixedPalette {
+    pub colours: Vec<[u8; 3]>,
+    pub beta: Option<f64>,
+    /// The space the palette was chosen in: pixels are mapped to it there.
+    pub space: Space,
+}
+
+impl FixedPalette {
+    /// The colours, β and space of a palette document. Each colour's `lab` must be the
+    /// CIELAB of its `hex` (within ΔE2000 0.5): an edited value that disagrees is refused
+    /// instead of one of the two being chosen silently.
+    pub fn from_document(doc: &PaletteDocument) -> std::result::Result<Self, String> {
+        let mut colours = Vec::with_capacity(doc.colors.len());
+        for (i, c) in doc.colors.iter().enumerate() {
+            let rgb = colour::parse_hex(&c.hex).map_err(|e| format!("colour {i}: {e}"))?;
+            let lab = colour::srgb8_to_lab(rgb);
+            let off = if c.lab.iter().all(|v| v.is_finite()) {
+                colour::delta_e2000(lab, c.lab)
+            } else {
+                f64::INFINITY
+            };
+            if off.is_nan() || off > 0.5 {
+                return Err(format!(
+                    "colour {i}: lab [{:.2}, {:.2}, {:.2}] is not the CIELAB of {} \
+                     ([{:.2}, {:.2}, {:.2}], ΔE2000 {off:.2} apart); make the two agree",
+                    c.lab[0], c.lab[1], c.lab[2], c.hex, lab[0], lab[1], lab[2]
+                ));
+            }
+            colours.push(rgb);
+        }
+        if colours.is_empty() {
+            return Err("the palette has no colours".into());
+        }
+        Ok(FixedPalette {
+            colours,
+            beta: doc.beta,
+            space: doc.space,
+        })
+    }
+}
