@@ -1,6 +1,8 @@
 //! Rendering from per-entry results: remapping to palette indices, Floyd–Steinberg
 //! dithering, and uncertainty maps. Per-pixel work is table look-ups.
 
+pub mod chart;
+
 use crate::features::histogram::TRANSPARENT;
 use rayon::prelude::*;
 
