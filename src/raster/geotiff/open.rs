@@ -1,0 +1,456 @@
+//! Opening a raster: TIFF/GeoTIFF header checks (bands, sample type, strip or tile layout,
+//! sizes against the limits and the file), or another image format decoded whole.
+
+use super::blocks::{image_block, read_tiff_block, TiffSource};
+use super::decoder::{
+    check_tag_fits, decode, file_len, guarded, is_tiff_magic, over_limit, read_up_to, tiff_decoder,
+    tiff_error, unsupported,
+};
+use super::tags::{read_geo, read_nodata, GeoTags};
+use super::types::{Block, RasterInfo, SampleKind};
+use crate::error::{Error, Result};
+use crate::limits::Limits;
+use std::fs::File;
+use std::io::{BufReader, Read, Seek, SeekFrom};
+use std::path::{Path, PathBuf};
+use tiff::decoder::{ChunkType, Decoder};
+use tiff::tags::Tag;
+use tiff::ColorType;
+
+/// Largest number of bands accepted from a TIFF.
+pub const MAX_BANDS: usize = 16;
+
+/// An open raster, read one block at a time.
+pub struct GeoRaster {
+    path: PathBuf,
+    info: RasterInfo,
+    source: Source,
+}
+
+impl std::fmt::Debug for GeoRaster {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.debug_struct("GeoRaster")
+            .field("path", &self.path)
+            .field("info", &self.info)
+            .field("blocks", &self.block_count())
+            .finish()
+    }
+}
+
+enum Source {
+    Tiff(Box<TiffSource>),
+    Image(crate::raster::Decoded),
+}
+
+impl GeoRaster {
+    /// Opens a TIFF/GeoTIFF (1–16 bands; u8/u16/i16/u32/i32/f32/f64; chunky or planar; strips or
+    /// tiles; uncompressed, LZW, Deflate, PackBits — whatever the `tiff` crate decodes). Other
+    /// formats (PNG, JPEG, …) open through the `image` crate as RGB (3 bands, u8 or u16) with
+    /// empty GeoTags and one block.
+    ///
+    /// Checks width × height against `limits.max_pixels`, and the largest buffer needed (one
+    /// block as `f32`, one decoded strip or tile) against `limits.max_alloc`, before reading any
+    /// pixel data: a header claiming 100000 × 100000 pixels is refused at once.
+    pub fn open(path: &Path, limits: &Limits) -> Result<GeoRaster> {
+        let mut file = File::open(path).map_err(|source| Error::Open {
+            path: path.into(),
+            source,
+        })?;
+        let meta = file.metadata().map_err(|source| Error::Open {
+            path: path.into(),
+            source,
+        })?;
+        if meta.is_dir() {
+            return Err(decode(path, "is a folder, not an image file"));
+        }
+        let mut magic = [0u8; 4];
+        let n = read_up_to(&mut file, &mut magic).map_err(|source| Error::Open {
+            path: path.into(),
+            source,
+        })?;
+        drop(file);
+        if is_tiff_magic(&magic[..n]) {
+            guarded(path, "opening the TIFF", || open_tiff(path, limits))
+        } else {
+            open_image(path, limits)
+        }
+    }
+
+    /// What is known about the raster.
+    pub fn info(&self) -> &RasterInfo {
+        &self.info
+    }
+
+    /// The path the raster was opened from.
+    pub fn path(&self) -> &Path {
+        &self.path
+    }
+
+    /// Number of blocks (strips, or rows of tiles), top to bottom.
+    pub fn block_count(&self) -> usize {
+        match &self.source {
+            Source::Tiff(t) => t.down as usize,
+            Source::Image(_) => 1,
+        }
+    }
+
+    /// Rows in every block but possibly the last.
+    pub fn block_rows(&self) -> u32 {
+        match &self.source {
+            Source::Tiff(t) => t.chunk_h,
+            Source::Image(_) => self.info.height,
+        }
+    }
+
+    /// Reads block `i` (all bands, full width; for planar files each band's chunks are read;
+    /// for tiled files the tiles of one tile-row are stitched and the padding at the right and
+    /// bottom edges cropped). Blocks may be read in any order, and more than once.
+    pub fn read_block(&mut self, i: usize) -> Result<Block> {
+        let count = self.block_count();
+        if i >= count {
+            return Err(decode(
+                &self.path,
+                format!("block {i} does not exist (the raster has {count} blocks)"),
+            ));
+        }
+        match &mut self.source {
+            Source::Image(d) => Ok(image_block(d)),
+            Source::Tiff(t) => read_tiff_block(&self.path, &self.info, t, i as u32),
+        }
+    }
+}
+
+/// Finds where the PhotometricInterpretation value of the first directory is stored, when it
+/// is one inline SHORT. Returns the file offset and the bytes of the value 1 (BlackIsZero) in
+/// the file's byte order.
+fn photometric_patch(path: &Path) -> Option<(u64, [u8; 2])> {
+    let mut f = BufReader::new(File::open(path).ok()?);
+    let mut head = [0u8; 16];
+    if read_up_to(&mut f, &mut head).ok()? < 8 {
+        return None;
+    }
+    let big_endian = match &head[..2] {
+        b"II" => false,
+        b"MM" => true,
+        _ => return None,
+    };
+    let u16_at = |b: &[u8]| {
+        let a = [b[0], b[1]];
+        if big_endian {
+            u16::from_be_bytes(a)
+        } else {
+            u16::from_le_bytes(a)
+        }
+    };
+    let u32_at = |b: &[u8]| {
+        let a = [b[0], b[1], b[2], b[3]];
+        if big_endian {
+            u32::from_be_bytes(a)
+        } else {
+            u32::from_le_bytes(a)
+        }
+    };
+    let u64_at = |b: &[u8]| {
+        let mut a = [0u8; 8];
+        a.copy_from_slice(&b[..8]);
+        if big_endian {
+            u64::from_be_bytes(a)
+        } else {
+            u64::from_le_bytes(a)
+        }
+    };
+    let bigtiff = match u16_at(&head[2..4]) {
+        42 => false,
+        43 => true,
+        _ => return None,
+    };
+    let ifd = if bigtiff {
+        u64_at(&head[8..16])
+    } else {
+        u32_at(&head[4..8]) as u64
+    };
+    f.seek(SeekFrom::Start(ifd)).ok()?;
+    let (entries, entry_len, value_at) = if bigtiff {
+        let mut c = [0u8; 8];
+        f.read_exact(&mut c).ok()?;
+        (u64_at(&c), 20u64, 12u64)
+    } else {
+        let mut c = [0u8; 2];
+        f.read_exact(&mut c).ok()?;
+        (u16_at(&c) as u64, 12u64, 8u64)
+    };
+    let first = ifd + if bigtiff { 8 } else { 2 };
+    let mut e = [0u8; 20];
+    for k in 0..entries.min(4096) {
+        f.read_exact(&mut e[..entry_len as usize]).ok()?;
+        let tag = u16_at(&e[0..2]);
+        if tag != 262 {
+            continue;
+        }
+        let ty = u16_at(&e[2..4]);
+        let count = if bigtiff {
+            u64_at(&e[4..12])
+        } else {
+            u32_at(&e[4..8]) as u64
+        };
+        if ty != 3 || count != 1 {
+            return None;
+        }
+        let at = first + k * entry_len + value_at;
+        let one = if big_endian { [0, 1] } else { [1, 0] };
+        return Some((at, one));
+    }
+    None
+}
+
+fn open_tiff(path: &Path, limits: &Limits) -> Result<GeoRaster> {
+    let mut decoder = tiff_decoder(path, None, limits)?;
+    for (tag, what) in [
+        (Tag::SamplesPerPixel, "SamplesPerPixel (277)"),
+        (
+            Tag::PhotometricInterpretation,
+            "PhotometricInterpretation (262)",
+        ),
+        (Tag::Compression, "Compression (259)"),
+        (Tag::SampleFormat, "SampleFormat (339)"),
+        (Tag::PlanarConfiguration, "PlanarConfiguration (284)"),
+        (Tag::StripOffsets, "StripOffsets (273)"),
+        (Tag::StripByteCounts, "StripByteCounts (279)"),
+        (Tag::TileOffsets, "TileOffsets (324)"),
+        (Tag::TileByteCounts, "TileByteCounts (325)"),
+    ] {
+        check_tag_fits(&mut decoder, tag, what, path)?;
+    }
+    let samples: u16 = decoder
+        .find_tag_unsigned(Tag::SamplesPerPixel)
+        .map_err(|e| tiff_error(path, e))?
+        .unwrap_or(1);
+    let fits = |d: &mut Decoder<_>| matches!(d.colortype(), Ok(c) if c.num_samples() == samples);
+    if !fits(&mut decoder) {
+        let photometric: Option<u16> = decoder
+            .find_tag_unsigned(Tag::PhotometricInterpretation)
+            .map_err(|e| tiff_error(path, e))?;
+        let compression: Option<u16> = decoder
+            .find_tag_unsigned(Tag::Compression)
+            .map_err(|e| tiff_error(path, e))?;
+        // RGB with extra bands (and not JPEG, whose decoder depends on the colour space).
+        if photometric == Some(2) && !matches!(compression, Some(6 | 7)) {
+            if let Some(patch) = photometric_patch(path) {
+                let patched = tiff_decoder(path, Some(patch), limits)?;
+                decoder = patched;
+            }
+        }
+    }
+    let colour = decoder.colortype().map_err(|e| tiff_error(path, e))?;
+    match colour {
+        ColorType::YCbCr(_) => {
+            return Err(unsupported(
+                path,
+                "YCbCr (JPEG-compressed) TIFF; convert it to RGB first",
+            ))
+        }
+        ColorType::Palette(_) => {
+            return Err(unsupported(path, "palette (indexed-colour) TIFF"));
+        }
+        _ => {}
+    }
+    let bands = colour.num_samples() as usize;
+    if bands != samples as usize {
+        return Err(unsupported(
+            path,
+            format!(
+                "the file has {samples} samples per pixel but the TIFF decoder exposes only \
+                 {bands} of them ({colour:?})"
+            ),
+        ));
+    }
+    if !(1..=MAX_BANDS).contains(&bands) {
+        return Err(unsupported(
+            path,
+            format!("{bands} bands; at most {MAX_BANDS} are supported"),
+        ));
+    }
+    let bits = colour.bit_depth();
+    let format: u16 = decoder
+        .find_tag_unsigned_vec::<u16>(Tag::SampleFormat)
+        .map_err(|e| tiff_error(path, e))?
+        .and_then(|v| v.first().copied())
+        .unwrap_or(1);
+    let sample = SampleKind::from_tiff(format, bits).ok_or_else(|| {
+        let kind = match format {
+            1 => "unsigned integer",
+            2 => "signed integer",
+            3 => "floating-point",
+            _ => "unknown-format",
+        };
+        unsupported(
+            path,
+            format!("{bits}-bit {kind} samples; supported are u8, u16, i16, u32, i32, f32 and f64"),
+        )
+    })?;
+    let (width, height) = decoder.dimensions().map_err(|e| tiff_error(path, e))?;
+    limits
+        .check_dimensions(width, height, 1, 1)
+        .map_err(|m| over_limit(path, m))?;
+    check_chunks_fit(&mut decoder, path)?;
+
+    let planar = decoder
+        .find_tag_unsigned::<u16>(Tag::PlanarConfiguration)
+        .map_err(|e| tiff_error(path, e))?
+        == Some(2);
+    let tiled = decoder.get_chunk_type() == ChunkType::Tile;
+    let (chunk_w, raw_h) = decoder.chunk_dimensions();
+    if chunk_w == 0 || raw_h == 0 {
+        return Err(decode(path, "TIFF strips or tiles have zero size"));
+    }
+    let (chunk_w, chunk_h) = if tiled {
+        (chunk_w, raw_h)
+    } else {
+        (width, raw_h.min(height))
+    };
+    let across = width.div_ceil(chunk_w);
+    let down = height.div_ceil(chunk_h);
+    let planes = if planar { bands as u32 } else { 1 };
+    let expected = (across as u64) * (down as u64) * planes as u64;
+    // Counted from the offsets tag: the decoder's own strip count overflows when RowsPerStrip
+    // is 2^32 - 1 ("one strip"), which some writers use.
+    let offsets = if tiled {
+        Tag::TileOffsets
+    } else {
+        Tag::StripOffsets
+    };
+    let actual = decoder
+        .image_ifd()
+        .find_entry(offsets)
+        .map_or(0, |e| e.count());
+    if actual != expected || expected > u32::MAX as u64 {
+        return Err(decode(
+            path,
+            format!("the TIFF lists {actual} strips or tiles; its layout needs {expected}"),
+        ));
+    }
+
+    // Memory: one block as f32, and one decoded chunk in its stored type.
+    let block_bytes = (chunk_h.min(height) as u64)
+        .saturating_mul(width as u64)
+        .saturating_mul(bands as u64)
+        .saturating_mul(4);
+    let chunk_samples = if planar { 1 } else { bands as u64 };
+    let chunk_bytes = (chunk_w as u64)
+        .saturating_mul(if tiled { raw_h } else { chunk_h } as u64)
+        .saturating_mul(chunk_samples)
+        .saturating_mul(sample.bytes() as u64);
+    let need = block_bytes.max(chunk_bytes);
+    if need > limits.max_alloc {
+        return Err(over_limit(
+            path,
+            format!(
+                "reading this TIFF needs {need} bytes at a time ({} of {chunk_w} x {raw_h} pixels, \
+                 {bands} bands), over the limit of {} bytes; re-save it with smaller strips or tiles",
+                if tiled { "tiles" } else { "strips" },
+                limits.max_alloc
+            ),
+        ));
+    }
+
+    let geo = read_geo(&mut decoder, path)?;
+    let nodata = read_nodata(&mut decoder, path)?;
+    Ok(GeoRaster {
+        path: path.into(),
+        info: RasterInfo {
+            width,
+            height,
+            bands,
+            sample,
+            planar,
+            tiled,
+            geo,
+            nodata,
+        },
+        source: Source::Tiff(Box::new(TiffSource {
+            decoder,
+            chunk_w,
+            chunk_h,
+            across,
+            down,
+            poisoned: false,
+        })),
+    })
+}
+
+fn open_image(path: &Path, limits: &Limits) -> Result<GeoRaster> {
+    // Header probe: refuse before decoding when the f32 block would be over the limit. Errors
+    // here are left to the decoder below, which words them for the user.
+    if let Ok((w, h)) = image::ImageReader::open(path)
+        .and_then(|r| r.with_guessed_format())
+        .map_err(image::ImageError::from)
+        .and_then(|r| r.into_dimensions())
+    {
+        limits
+            .check_dimensions(w, h, 1, 1)
+            .map_err(|m| over_limit(path, m))?;
+        let bytes = (w as u64).saturating_mul(h as u64).saturating_mul(3 * 4);
+        if bytes > limits.max_alloc {
+            return Err(over_limit(
+                path,
+                format!(
+                    "{w} x {h} x 3 bands as f32 needs {bytes} bytes, over the limit of {} bytes",
+                    limits.max_alloc
+                ),
+            ));
+        }
+    }
+    let d = crate::raster::decode(path, limits)?;
+    let sample = match d.pixels {
+        crate::raster::Pixels::Rgba8(_) => SampleKind::U8,
+        crate::raster::Pixels::Rgba16(_) => SampleKind::U16,
+    };
+    Ok(GeoRaster {
+        path: path.into(),
+        info: RasterInfo {
+            width: d.width,
+            height: d.height,
+            bands: 3,
+            sample,
+            planar: false,
+            tiled: false,
+            geo: GeoTags::default(),
+            nodata: None,
+        },
+        source: Source::Image(d),
+    })
+}
+
+/// Refuses a file whose strips or tiles, as its offsets and byte counts declare them, run
+/// past its end: a truncated file is then refused before a block buffer is allocated for
+/// data that is not there.
+fn check_chunks_fit<R: Read + Seek>(decoder: &mut Decoder<R>, path: &Path) -> Result<()> {
+    let file_len = file_len(path)?;
+    for (offsets, counts) in [
+        (Tag::StripOffsets, Tag::StripByteCounts),
+        (Tag::TileOffsets, Tag::TileByteCounts),
+    ] {
+        let (Ok(o), Ok(c)) = (
+            decoder.get_tag_u64_vec(offsets),
+            decoder.get_tag_u64_vec(counts),
+        ) else {
+            continue;
+        };
+        if let Some((i, (off, n))) = o
+            .iter()
+            .zip(&c)
+            .enumerate()
+            .find(|(_, (&off, &n))| off.saturating_add(n) > file_len)
+        {
+            return Err(decode(
+                path,
+                format!(
+                    "TIFF data ends early (truncated file?): strip/tile {i} spans bytes {off} to \
+                     {} of a {file_len}-byte file",
+                    off.saturating_add(*n)
+                ),
+            ));
+        }
+    }
+    Ok(())
+}

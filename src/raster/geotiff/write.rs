@@ -1,0 +1,150 @@
+//! Writing single-band GeoTIFFs strip by strip, with the source's GeoTIFF tags and an
+//! optional GDAL_NODATA value.
+
+use super::tags::{geo_tag_name, parse_nodata, GeoTagValue, GeoTags, TAG_GDAL_NODATA};
+use crate::error::{Error, Result};
+use std::io::{Seek, Write};
+use tiff::encoder::colortype;
+use tiff::encoder::TiffEncoder;
+use tiff::tags::Tag;
+use tiff::TiffError;
+
+/// Target size of one written strip, in bytes (the writer holds one strip at a time).
+const STRIP_TARGET_BYTES: u64 = 256 * 1024;
+
+/// Name used in error messages about the output of the writers (which see only a stream).
+const OUTPUT_NAME: &str = "GeoTIFF output";
+
+fn writer_error(e: TiffError) -> Error {
+    match e {
+        TiffError::IoError(source) => Error::io(OUTPUT_NAME, source),
+        other => Error::output(OUTPUT_NAME, format!("cannot write GeoTIFF: {other}")),
+    }
+}
+
+/// Rows per strip for a row of `row_bytes` bytes: strips of about 256 KiB, at least one row.
+pub(super) fn rows_per_strip(row_bytes: u64, height: u32) -> u32 {
+    let rows = (STRIP_TARGET_BYTES / row_bytes.max(1)).max(1);
+    rows.min(height as u64) as u32
+}
+
+fn check_ascii_value(what: &str, s: &str) -> Result<()> {
+    if !s.is_ascii() || s.bytes().any(|b| b == 0) {
+        return Err(Error::output(
+            OUTPUT_NAME,
+            format!("{what} must be ASCII text without NUL characters"),
+        ));
+    }
+    Ok(())
+}
+
+pub(super) fn write_band<W, C>(
+    w: W,
+    width: u32,
+    height: u32,
+    geo: &GeoTags,
+    nodata: Option<&str>,
+    strip_rows: Option<u32>,
+    next_rows: &mut dyn FnMut(u32, u32) -> Result<Vec<C::Inner>>,
+) -> Result<()>
+where
+    W: Write + Seek,
+    C: colortype::ColorType,
+    [C::Inner]: tiff::encoder::TiffValue,
+{
+    if width == 0 || height == 0 {
+        return Err(Error::output(
+            OUTPUT_NAME,
+            format!("cannot write an empty raster ({width} x {height})"),
+        ));
+    }
+    if let Some(text) = nodata {
+        check_ascii_value("the nodata value", text)?;
+        if parse_nodata(text).is_none() {
+            return Err(Error::output(
+                OUTPUT_NAME,
+                format!("the nodata value {text:?} is not a number"),
+            ));
+        }
+    }
+    for (code, value) in geo.entries() {
+        if let GeoTagValue::Ascii(s) = value {
+            check_ascii_value(geo_tag_name(code), s)?;
+        }
+    }
+    let sample_bytes = std::mem::size_of::<C::Inner>() as u64;
+    let rps = strip_rows
+        .unwrap_or_else(|| rows_per_strip(width as u64 * sample_bytes, height))
+        .clamp(1, height);
+
+    let mut encoder = TiffEncoder::new(w).map_err(writer_error)?;
+    let mut image = encoder
+        .new_image::<C>(width, height)
+        .map_err(writer_error)?;
+    image.rows_per_strip(rps).map_err(writer_error)?;
+    {
+        let dir = image.encoder();
+        for (code, value) in geo.entries() {
+            let tag = Tag::from_u16_exhaustive(code);
+            match value {
+                GeoTagValue::Short(v) => dir.write_tag(tag, &v[..]),
+                GeoTagValue::Long(v) => dir.write_tag(tag, &v[..]),
+                GeoTagValue::Float(v) => dir.write_tag(tag, &v[..]),
+                GeoTagValue::Double(v) => dir.write_tag(tag, &v[..]),
+                GeoTagValue::Ascii(s) => dir.write_tag(tag, s.as_str()),
+            }
+            .map_err(writer_error)?;
+        }
+        if let Some(text) = nodata {
+            dir.write_tag(Tag::from_u16_exhaustive(TAG_GDAL_NODATA), text)
+                .map_err(writer_error)?;
+        }
+    }
+    let mut y0 = 0u32;
+    while y0 < height {
+        let rows = rps.min(height - y0);
+        let values = next_rows(y0, rows)?;
+        let expected = rows as usize * width as usize;
+        if values.len() != expected {
+            return Err(Error::output(
+                OUTPUT_NAME,
+                format!(
+                    "rows {y0}..{} came with {} values; {expected} ({rows} rows x {width}) were expected",
+                    y0 + rows,
+                    values.len()
+                ),
+            ));
+        }
+        image.write_strip(&values).map_err(writer_error)?;
+        y0 += rows;
+    }
+    image.finish().map_err(writer_error)
+}
+
+/// Writes a single-band 8-bit unsigned GeoTIFF strip by strip (memory bounded by one strip of
+/// about 256 KiB), uncompressed, with the GeoTags written back unchanged and an optional
+/// GDAL_NODATA (42113) ASCII value (must parse as a number). `next_rows(y0, rows)` is called
+/// for each strip in order, top to bottom, and must return exactly `rows × width` values
+/// (row-major); the last strip may be shorter than the others.
+pub fn write_u8_band<W: Write + Seek>(
+    w: W,
+    width: u32,
+    height: u32,
+    geo: &GeoTags,
+    nodata: Option<&str>,
+    next_rows: &mut dyn FnMut(u32, u32) -> Result<Vec<u8>>,
+) -> Result<()> {
+    write_band::<W, colortype::Gray8>(w, width, height, geo, nodata, None, next_rows)
+}
+
+/// Writes a single-band 32-bit float GeoTIFF strip by strip; otherwise as [`write_u8_band`].
+pub fn write_f32_band<W: Write + Seek>(
+    w: W,
+    width: u32,
+    height: u32,
+    geo: &GeoTags,
+    nodata: Option<&str>,
+    next_rows: &mut dyn FnMut(u32, u32) -> Result<Vec<f32>>,
+) -> Result<()> {
+    write_band::<W, colortype::Gray32Float>(w, width, height, geo, nodata, None, next_rows)
+}
