@@ -3,7 +3,7 @@
 
 use super::{min_family_pixels, REPORT_DELTA_E};
 use crate::colour::{self, Space};
-use crate::separate::regions;
+use crate::features::components;
 use rayon::prelude::*;
 use serde::{Deserialize, Serialize};
 use std::collections::HashMap;
@@ -57,16 +57,16 @@ pub fn lost_areas(
             if e != crate::features::histogram::TRANSPARENT && entry_error[e as usize] > REPORT_DELTA_E {
                 0
             } else {
-                regions::FIXED
+                components::FIXED
             }
         })
         .collect();
     let mut out = Vec::new();
-    for (_, size, first) in regions::regions(&marks, w, h) {
+    for (_, size, first) in components::regions(&marks, w, h) {
         if size < min_pixels {
             continue;
         }
-        let pixels = regions::region_pixels(&marks, w, h, first);
+        let pixels = components::region_pixels(&marks, w, h, first);
         let (mut x0, mut y0, mut x1, mut y1) = (usize::MAX, usize::MAX, 0, 0);
         let (mut lab, mut err) = ([0.0f64; 3], 0.0f64);
         let mut took: HashMap<u16, usize> = HashMap::new();
