@@ -268,6 +268,8 @@ fn allowed(from: &str, to: &str) -> Result<(), &'static str> {
         "raster" | "output" | "features" | "render" | "families" if WORKFLOWS.contains(&to) => {
             Err("shared parts never import a workflow")
         }
+        // The document header records the engine's options (a plain value of cluster/).
+        "output" if to == "cluster" => Ok(()),
         "raster" | "output" if to != "colour" && to != "raster" && to != "output" => {
             Err("raster/ and output/ import only colour, each other and support")
         }
