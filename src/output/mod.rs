@@ -314,6 +314,36 @@ impl Drop for OutputSet {
     }
 }
 
+/// The one path from an input to its outputs, shared by the workflows. `load` reads the
+/// input (nothing is created when it fails); then the output folder is prepared (no output
+/// may replace `input` or a file in `spare`) and every output name known in advance is
+/// checked; then `write` computes and writes into the set, which is renamed into place
+/// only when `write` succeeded. A data error (`Error::Data`) of either step names `input`.
+pub fn one_input<L, T>(
+    input: &Path,
+    out_dir: &Path,
+    spare: &[&Path],
+    names: &[String],
+    load: impl FnOnce() -> Result<L>,
+    write: impl FnOnce(L, &mut OutputSet) -> Result<T>,
+) -> Result<(T, Vec<PathBuf>)> {
+    let name_input = |e: Error| match e {
+        Error::Data(message) => Error::InputData {
+            path: input.into(),
+            message,
+        },
+        other => other,
+    };
+    let loaded = load().map_err(name_input)?;
+    let keep: Vec<&Path> = std::iter::once(input).chain(spare.iter().copied()).collect();
+    let mut set = OutputSet::prepare(out_dir, &keep)?;
+    for n in names {
+        set.check_target(n)?;
+    }
+    let made = write(loaded, &mut set).map_err(name_input)?;
+    Ok((made, set.commit()?))
+}
+
 /// The file name without its extension, used to name outputs.
 /// A file name that is not valid UTF-8 gives an output name with each invalid sequence
 /// replaced by U+FFFD (the input itself is still read under its own name).

@@ -24,7 +24,6 @@ use crate::error::{Error, Result};
 use crate::families::Objective;
 use crate::features::histogram::{self, IndexedHistogram};
 use crate::limits::Limits;
-use crate::output::OutputSet;
 use crate::raster::{self, Decoded, Pixels};
 use crate::render::Dither;
 use std::path::Path;
@@ -247,34 +246,29 @@ pub fn reduce_file_as(
     let t0 = Instant::now();
     let mut ph = crate::trace::Phases::start("reduce file");
     opts.kmeans_params().check()?;
-    let img = raster::decode(input, &opts.limits)?;
-    ph.mark("decode");
-    let mut set = OutputSet::prepare(
+    let names = output_names(stem);
+    let (red, outputs) = crate::output::one_input(
+        input,
         out_dir,
-        &std::iter::once(input)
-            .chain(spare.iter().copied())
-            .collect::<Vec<_>>(),
-    )?;
-    for name in output_names(stem) {
-        set.check_target(&name)?;
-    }
-    let mut red = reduce_image_with(&img, opts, fixed).map_err(|e| match e {
-        Error::Data(message) => Error::InputData {
-            path: input.into(),
-            message,
+        spare,
+        &names,
+        || raster::decode(input, &opts.limits),
+        |img, set| {
+            ph.mark("decode");
+            let mut red = reduce_image_with(&img, opts, fixed)?;
+            drop(img);
+            red.document.header.input =
+                input.file_name().map(|n| n.to_string_lossy().into_owned());
+            if stamp {
+                red.document.source = SourceStamp::of(input);
+                red.document.settings_fingerprint = Some(opts.fingerprint(fixed));
+            }
+            ph.mark("reduce in memory");
+            write_reduction(&red, stem, set, opts.uncertainty_raw)?;
+            ph.mark("encode and write");
+            Ok(red)
         },
-        other => other,
-    })?;
-    drop(img);
-    red.document.header.input = input.file_name().map(|n| n.to_string_lossy().into_owned());
-    if stamp {
-        red.document.source = SourceStamp::of(input);
-        red.document.settings_fingerprint = Some(opts.fingerprint(fixed));
-    }
-    ph.mark("reduce in memory");
-    write_reduction(&red, stem, &mut set, opts.uncertainty_raw)?;
-    ph.mark("encode and write");
-    let outputs = set.commit()?;
+    )?;
     ph.mark("rename into place");
     Ok(ReduceReport {
         input: input.into(),

@@ -19,7 +19,6 @@ use crate::error::{Error, Result};
 use crate::features::histogram;
 use crate::colour::inks::{self, Ink};
 use crate::limits::Limits;
-use crate::output::OutputSet;
 use crate::raster::{self, Decoded, Pixels};
 use regions::FIXED;
 use select::{CostTable, Method};
@@ -399,36 +398,31 @@ pub fn separate_file(
     let library = inks::read_library_with(library_path, &opts.limits)?;
     resolve_inks(&library, opts, library_path)?;
     let stem = crate::output::stem_of(input)?;
-    let img = raster::decode(input, &opts.limits)?;
-    let mut set = OutputSet::prepare(out_dir, &[input, library_path])?;
-    let mut sep =
-        separate_image(&img, &library, opts, library_path, &stem).map_err(|e| match e {
-            Error::Data(message) => Error::InputData {
-                path: input.into(),
-                message,
-            },
-            other => other,
-        })?;
-    drop(img);
-    sep.document.header.input = input.file_name().map(|n| n.to_string_lossy().into_owned());
-    let json = serde_json::to_string_pretty(&sep.document).expect("document serialises");
-    set.write_bytes(
-        &format!("{stem}.separation.json"),
-        format!("{json}\n").as_bytes(),
+    let (sep, outputs) = crate::output::one_input(
+        input,
+        out_dir,
+        &[library_path],
+        &[],
+        || raster::decode(input, &opts.limits),
+        |img, set| {
+            let mut sep = separate_image(&img, &library, opts, library_path, &stem)?;
+            drop(img);
+            sep.document.header.input =
+                input.file_name().map(|n| n.to_string_lossy().into_owned());
+            let json = serde_json::to_string_pretty(&sep.document).expect("document serialises");
+            set.write_bytes(&format!("{stem}.separation.json"), format!("{json}\n").as_bytes())?;
+            for (i, ink) in sep.document.inks.iter().enumerate() {
+                let mask = &sep.masks[i];
+                set.write(&ink.plate, |w| write_plate(w, sep.width, sep.height, mask))?;
+            }
+            let proof = proof_rgba(&sep, opts.substrate);
+            set.write(&format!("{stem}.proof.png"), |w| {
+                raster::write_rgba_png(w, sep.width, sep.height, &proof)
+            })?;
+            set.write_bytes(&format!("{stem}.swatches.svg"), swatches_svg(&sep.document).as_bytes())?;
+            Ok(sep)
+        },
     )?;
-    for (i, ink) in sep.document.inks.iter().enumerate() {
-        let mask = &sep.masks[i];
-        set.write(&ink.plate, |w| write_plate(w, sep.width, sep.height, mask))?;
-    }
-    let proof = proof_rgba(&sep, opts.substrate);
-    set.write(&format!("{stem}.proof.png"), |w| {
-        raster::write_rgba_png(w, sep.width, sep.height, &proof)
-    })?;
-    set.write_bytes(
-        &format!("{stem}.swatches.svg"),
-        swatches_svg(&sep.document).as_bytes(),
-    )?;
-    let outputs = set.commit()?;
     Ok(SeparateReport {
         outputs,
         document: sep.document,
