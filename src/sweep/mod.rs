@@ -27,7 +27,6 @@ use crate::error::{Error, ParamsError, Result};
 use crate::features::histogram::{self, IndexedHistogram};
 use crate::features::scene::{scene_sample, SceneOptions};
 use crate::limits::Limits;
-use crate::output::OutputSet;
 use crate::raster::{self, Pixels};
 use crate::features::rows::entry_features;
 use crate::output::stem_of;
@@ -226,11 +225,28 @@ pub fn sweep_file(input: &Path, out_dir: &Path, opts: &SweepOptions) -> Result<S
     }
     opts.engine.params(opts.range.max).check()?;
     stem_of(input)?;
-    let mut set = OutputSet::prepare(out_dir, &[input])?;
-    for n in OUTPUT_NAMES {
-        set.check_target(n)?;
-    }
     let mut notes = Vec::new();
+    let names = OUTPUT_NAMES.map(String::from);
+    let (document, outputs) =
+        crate::output::one_input(input, out_dir, &[], &names, || Ok(()), |(), set| {
+            let document = sweep_document(input, opts, &mut notes)?;
+            set.write_bytes(OUTPUT_NAMES[0], sweep_csv(&document).as_bytes())?;
+            let json = serde_json::to_string_pretty(&document).expect("sweep document serialises");
+            set.write_bytes(OUTPUT_NAMES[1], format!("{json}\n").as_bytes())?;
+            set.write_bytes(OUTPUT_NAMES[2], sweep_svg(&document, opts.space).as_bytes())?;
+            Ok(document)
+        })?;
+    Ok(SweepReport {
+        outputs,
+        document,
+        notes,
+        seconds: t0.elapsed().as_secs_f64(),
+    })
+}
+
+/// The sweep document of one input: every K's measures, the suggestions and the
+/// recommendation; remarks for the user go to `notes`.
+fn sweep_document(input: &Path, opts: &SweepOptions, notes: &mut Vec<String>) -> Result<SweepDocument> {
     let ignored: Vec<String> = opts
         .engine
         .changed()
@@ -306,17 +322,7 @@ pub fn sweep_file(input: &Path, out_dir: &Path, opts: &SweepOptions) -> Result<S
         suggested,
         rows,
     };
-    set.write_bytes(OUTPUT_NAMES[0], sweep_csv(&document).as_bytes())?;
-    let json = serde_json::to_string_pretty(&document).expect("sweep document serialises");
-    set.write_bytes(OUTPUT_NAMES[1], format!("{json}\n").as_bytes())?;
-    set.write_bytes(OUTPUT_NAMES[2], sweep_svg(&document, opts.space).as_bytes())?;
-    let outputs = set.commit()?;
-    Ok(SweepReport {
-        outputs,
-        document,
-        notes,
-        seconds: t0.elapsed().as_secs_f64(),
-    })
+    Ok(document)
 }
 
 fn opt(v: Option<f64>) -> String {
