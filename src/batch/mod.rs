@@ -360,7 +360,13 @@ fn reduce_one(
             ));
         }
     }
-    reduce::reduce_file_as(input, stem, out_dir, &opts.reduce, fixed, true, &[])
+    let run = reduce::FileRun {
+        fixed,
+        stamp: true,
+        spare: &[],
+        stem: Some(stem),
+    };
+    reduce::reduce_file_run(input, out_dir, &opts.reduce, &run)
 }
 
 /// Learns the shared palette from the merged histograms and writes `shared.palette.json`.

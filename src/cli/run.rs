@@ -314,7 +314,6 @@ fn run_apply(args: &ApplyArgs) -> Result<ExitCode, Error> {
         &args.output.out,
         &args.options(),
         Some(&palette),
-        false,
         &[args.palette.as_path()],
     )?;
     print_reduce_summary(&args.input, &report, args.output.json);

@@ -381,23 +381,27 @@ fn not_an_image(path: &Path) -> Error {
     }
 }
 
-/// Reads and decodes an image file, refusing over-limit images before any pixel
-/// buffer is allocated.
-pub fn decode(path: &Path, limits: &Limits) -> Result<Decoded> {
-    let mut file = std::fs::File::open(path).map_err(|source| Error::Open {
+/// Opens an input file and reads its metadata; a folder is refused.
+pub(crate) fn open_file(path: &Path) -> Result<(std::fs::File, std::fs::Metadata)> {
+    let open_error = |source| Error::Open {
         path: path.into(),
         source,
-    })?;
-    let meta = file.metadata().map_err(|source| Error::Open {
-        path: path.into(),
-        source,
-    })?;
+    };
+    let file = std::fs::File::open(path).map_err(open_error)?;
+    let meta = file.metadata().map_err(open_error)?;
     if meta.is_dir() {
         return Err(Error::Decode {
             path: path.into(),
             message: "is a folder, not an image file".into(),
         });
     }
+    Ok((file, meta))
+}
+
+/// Reads and decodes an image file, refusing over-limit images before any pixel
+/// buffer is allocated.
+pub fn decode(path: &Path, limits: &Limits) -> Result<Decoded> {
+    let (mut file, meta) = open_file(path)?;
     if meta.len() > limits.max_alloc {
         return Err(Error::LimitExceeded {
             path: path.into(),

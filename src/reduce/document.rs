@@ -92,7 +92,7 @@ pub struct PaletteDocument {
     pub beta: Option<f64>,
     pub iterations: usize,
     /// k-means objective: Σ over clustered pixels of the squared distance, in the
-    /// clustering space, to the nearest final mean (scikit-learn's `inertia_`).
+    /// clustering space, to the nearest final mean.
     pub sse: f64,
     /// Mean CIE76 ΔE*ab between each source pixel and its reduced pixel.
     pub mean_delta_e76: f64,

@@ -212,45 +212,62 @@ pub fn reduce_bytes(bytes: &[u8], name: &Path, opts: &ReduceOptions) -> Result<R
 
 /// Reads `input`, reduces it and writes all outputs into `out_dir` atomically.
 pub fn reduce_file(input: &Path, out_dir: &Path, opts: &ReduceOptions) -> Result<ReduceReport> {
-    reduce_file_with(input, out_dir, opts, None, false, &[])
+    reduce_file_run(input, out_dir, opts, &FileRun::default())
 }
 
-/// As [`reduce_file`], mapping onto `fixed` colours when given (the `apply` workflow).
-/// With `stamp`, the palette document records the input's size and time and the settings
-/// fingerprint, so a batch can tell later whether the outputs are up to date. No output
-/// may replace a file in `spare`.
+/// How [`reduce_file_run`] treats one input beyond the options.
+#[derive(Debug, Clone, Copy, Default)]
+pub struct FileRun<'a> {
+    /// Map onto these colours instead of fitting (the `apply` workflow).
+    pub fixed: Option<&'a FixedPalette>,
+    /// Record the input's size and time and the settings fingerprint in the palette
+    /// document, so a batch can tell later whether the outputs are up to date.
+    pub stamp: bool,
+    /// Files no output may replace (besides the input), such as `apply`'s palette document.
+    pub spare: &'a [&'a Path],
+    /// Name the outputs `{stem}.reduced.png` and so on (default: the input's file stem; a
+    /// batch names two images of one folder that share a stem by their whole file names).
+    pub stem: Option<&'a str>,
+}
+
+/// As [`reduce_file`], mapping onto `fixed` colours (the `apply` workflow); no output may
+/// replace a file in `spare`.
 pub fn reduce_file_with(
     input: &Path,
     out_dir: &Path,
     opts: &ReduceOptions,
     fixed: Option<&FixedPalette>,
-    stamp: bool,
     spare: &[&Path],
 ) -> Result<ReduceReport> {
-    opts.kmeans_params().check()?;
-    reduce_file_as(input, &stem_of(input)?, out_dir, opts, fixed, stamp, spare)
+    let run = FileRun {
+        fixed,
+        spare,
+        ..FileRun::default()
+    };
+    reduce_file_run(input, out_dir, opts, &run)
 }
 
-/// As [`reduce_file_with`], naming the outputs `{stem}.reduced.png` and so on (a batch
-/// names two images of one folder that share a file stem by their whole file names).
-/// No output may replace `input` or any file in `spare` (the palette document of `apply`).
-pub fn reduce_file_as(
+/// Reads `input`, reduces it (or maps it onto a given palette) and writes all outputs into
+/// `out_dir` atomically.
+pub fn reduce_file_run(
     input: &Path,
-    stem: &str,
     out_dir: &Path,
     opts: &ReduceOptions,
-    fixed: Option<&FixedPalette>,
-    stamp: bool,
-    spare: &[&Path],
+    run: &FileRun<'_>,
 ) -> Result<ReduceReport> {
     let t0 = Instant::now();
     let mut ph = crate::trace::Phases::start("reduce file");
     opts.kmeans_params().check()?;
-    let names = output_names(stem);
+    let stem = match run.stem {
+        Some(s) => s.to_string(),
+        None => stem_of(input)?,
+    };
+    let (fixed, stamp) = (run.fixed, run.stamp);
+    let names = output_names(&stem);
     let (red, outputs) = crate::output::one_input(
         input,
         out_dir,
-        spare,
+        run.spare,
         &names,
         || raster::decode(input, &opts.limits),
         |img, set| {
@@ -264,7 +281,7 @@ pub fn reduce_file_as(
                 red.document.settings_fingerprint = Some(opts.fingerprint(fixed));
             }
             ph.mark("reduce in memory");
-            write_reduction(&red, stem, set, opts.uncertainty_raw)?;
+            write_reduction(&red, &stem, set, opts.uncertainty_raw)?;
             ph.mark("encode and write");
             Ok(red)
         },

@@ -348,6 +348,18 @@ struct Scores {
     entry_error: Vec<f64>,
 }
 
+impl Scores {
+    fn new(n_slots: usize) -> Scores {
+        Scores {
+            pixels: vec![0u64; n_slots],
+            uncertainty: vec![0.0f64; n_slots],
+            de76: 0.0,
+            de2000: 0.0,
+            entry_error: Vec::new(),
+        }
+    }
+}
+
 /// Scores without dithering: per entry, weighted by its pixel count.
 fn score_entries(en: &Entries<'_>, slots: &Slots, entropy: &[f32]) -> Scores {
     let n_slots = slots.colours.len();
@@ -362,13 +374,7 @@ fn score_entries(en: &Entries<'_>, slots: &Slots, entropy: &[f32]) -> Scores {
             )
         })
         .collect();
-    let mut sc = Scores {
-        pixels: vec![0u64; n_slots],
-        uncertainty: vec![0.0f64; n_slots],
-        de76: 0.0,
-        de2000: 0.0,
-        entry_error: Vec::new(),
-    };
+    let mut sc = Scores::new(n_slots);
     for (e, (d76, d00)) in per_entry.iter().enumerate() {
         let w = en.weights[e];
         let s = slots.entry_slot[e] as usize;
@@ -411,13 +417,7 @@ fn score_pixels(
             (px, un, a, b)
         })
         .collect();
-    let mut sc = Scores {
-        pixels: vec![0u64; n_slots],
-        uncertainty: vec![0.0f64; n_slots],
-        de76: 0.0,
-        de2000: 0.0,
-        entry_error: Vec::new(),
-    };
+    let mut sc = Scores::new(n_slots);
     for (px, un, pa, pb) in parts {
         for s in 0..n_slots {
             sc.pixels[s] += px[s];

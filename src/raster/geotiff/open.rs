@@ -52,17 +52,7 @@ impl GeoRaster {
     /// block as `f32`, one decoded strip or tile) against `limits.max_alloc`, before reading any
     /// pixel data: a header claiming 100000 × 100000 pixels is refused at once.
     pub fn open(path: &Path, limits: &Limits) -> Result<GeoRaster> {
-        let mut file = File::open(path).map_err(|source| Error::Open {
-            path: path.into(),
-            source,
-        })?;
-        let meta = file.metadata().map_err(|source| Error::Open {
-            path: path.into(),
-            source,
-        })?;
-        if meta.is_dir() {
-            return Err(decode(path, "is a folder, not an image file"));
-        }
+        let (mut file, _) = crate::raster::open_file(path)?;
         let mut magic = [0u8; 4];
         let n = read_up_to(&mut file, &mut magic).map_err(|source| Error::Open {
             path: path.into(),
