@@ -332,8 +332,6 @@ fn shared_palette_learn_apply_and_histogram_shards_agree() {
             s.join("poster.png").to_str().unwrap(),
             "--palette",
             learned.to_str().unwrap(),
-            "-k",
-            "6",
             "-o",
             applied.to_str().unwrap(),
         ],
@@ -511,7 +509,7 @@ fn batch_spares_its_palette_document() {
 
 /// `apply` says when fitting flags cannot change its result (the palette is fixed).
 #[test]
-fn apply_notes_fitting_flags_it_cannot_use() {
+fn apply_refuses_fitting_flags_and_batch_notes_them() {
     let root = tempfile::tempdir().unwrap();
     let s = shoot(root.path());
     let pal_dir = root.path().join("pal");
@@ -539,20 +537,23 @@ fn apply_notes_fitting_flags_it_cannot_use() {
     let plain = run(&[&base[..], &["-o", out.to_str().unwrap()]].concat(), &[]);
     assert!(plain.status.success(), "{}", stderr(&plain));
     assert!(!stderr(&plain).contains("no effect"), "{}", stderr(&plain));
+    // `apply` shows only the flags it uses: a fitting flag is refused in one line that
+    // names it, and nothing is written.
+    let fresh = root.path().join("applied-k");
     let with_k = run(
         &[
             &base[..],
-            &["-k", "3", "--restarts", "4", "-o", out.to_str().unwrap()],
+            &["--restarts", "4", "-o", fresh.to_str().unwrap()],
         ]
         .concat(),
         &[],
     );
-    assert!(with_k.status.success(), "{}", stderr(&with_k));
+    assert_eq!(with_k.status.code(), Some(2), "{}", stderr(&with_k));
     let err = stderr(&with_k);
-    assert!(
-        err.contains("-k, --restarts") && err.contains("no effect"),
-        "{err}"
-    );
+    assert!(err.contains("--restarts") && err.trim_end().lines().count() == 1, "{err}");
+    assert!(!fresh.exists());
+    // A batch given a palette takes the fitting flags (they shape per-image palettes
+    // without --palette) and says they have no effect.
     // The same note from a batch given a palette.
     let batch_out = root.path().join("batch-applied");
     let b = run(

@@ -234,3 +234,37 @@ fn quiet_parent(root: &std::path::Path) -> std::path::PathBuf {
     std::fs::create_dir_all(&p).unwrap();
     p
 }
+
+/// A mistyped command or flag is answered with the nearest one, in one line, and nothing
+/// runs; every command has its own manual page.
+#[test]
+fn typos_get_the_nearest_name_and_every_command_has_a_page() {
+    let o = run(&["seperate", "a.png"], &[]);
+    assert_eq!(o.status.code(), Some(2));
+    let err = stderr(&o);
+    assert!(err.contains("did you mean 'separate'"), "{err}");
+    assert_eq!(err.trim_end().lines().count(), 1, "{err}");
+    let poster = fixture("demo/harbour-poster.png");
+    let o = run(&["reduce", poster.to_str().unwrap(), "--colors", "6"], &[]);
+    assert_eq!(o.status.code(), Some(2));
+    assert!(stderr(&o).contains("did you mean '-k'"), "{}", stderr(&o));
+    let o = run(&["landcover", "s.tif", "--restart", "3"], &[]);
+    assert!(stderr(&o).contains("did you mean '--restarts'"), "{}", stderr(&o));
+
+    let dir = tempfile::tempdir().unwrap();
+    let out = dir.path().join("man");
+    let o = run(&["manpage", "--all", "-o", out.to_str().unwrap()], &[]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    for cmd in ["reduce", "separate", "landcover", "batch", "learn", "apply", "histogram", "sweep"] {
+        let page = std::fs::read_to_string(out.join(format!("chromasift-{cmd}.1"))).unwrap();
+        assert!(page.starts_with(".ie") || page.contains(".TH"), "{cmd}");
+        assert!(page.contains(&format!("chromasift\\-{cmd}")), "{cmd}");
+    }
+    let one = run(&["manpage", "sweep"], &[]);
+    assert!(one.status.success());
+    let text = String::from_utf8_lossy(&one.stdout);
+    assert!(text.contains("silhouette\\-sample"), "{text}");
+    let bad = run(&["manpage", "sweap"], &[]);
+    assert_eq!(bad.status.code(), Some(2));
+    assert!(stderr(&bad).contains("did you mean 'sweep'"), "{}", stderr(&bad));
+}

@@ -210,7 +210,7 @@ pub(super) fn usage_error(e: &clap::Error, argv: &[String]) -> String {
 
 /// Parses the command line. Every option that takes a value accepts a negative number as
 /// that value: `-k -3` is refused by the option's own rule, not taken for an unknown flag.
-pub(super) fn parse(argv: &[String]) -> Result<Cli, clap::Error> {
+pub(super) fn parse(argv: &[std::ffi::OsString]) -> Result<Cli, clap::Error> {
     use clap::FromArgMatches;
     fn negatives(a: clap::Arg) -> clap::Arg {
         if a.get_action().takes_values() && !a.is_positional() {

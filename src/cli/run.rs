@@ -41,14 +41,14 @@ fn note(input: &Path, n: &str) {
 /// when the process started (the binary records it before the runtime hides it).
 pub fn run(stdout_closed_at_start: bool) -> ExitCode {
     set_stdout_closed_at_start(stdout_closed_at_start);
-    let code = dispatch(std::env::args().collect());
+    let code = dispatch(std::env::args_os().collect());
     if STDOUT_FAILED.load(Ordering::SeqCst) {
         return ExitCode::from(EXIT_USAGE);
     }
     code
 }
 
-fn dispatch(argv: Vec<String>) -> ExitCode {
+fn dispatch(argv: Vec<std::ffi::OsString>) -> ExitCode {
     #[cfg(unix)]
     ignore_file_size_signal();
     let cli = match parse(&argv) {
@@ -64,7 +64,8 @@ fn dispatch(argv: Vec<String>) -> ExitCode {
                 let _ = e.print();
                 return ExitCode::from(EXIT_USAGE);
             }
-            return fail(usage_error(&e, &argv));
+            let words: Vec<String> = argv.iter().map(|a| a.to_string_lossy().into_owned()).collect();
+            return fail(usage_error(&e, &words));
         }
     };
     if !matches!(cli.command, Command::Batch(_)) {

@@ -92,7 +92,7 @@ impl std::str::FromStr for OneOutput {
             "uncertainty" => Ok(OneOutput::Uncertainty),
             "palette" => Ok(OneOutput::Palette),
             _ => Err(format!(
-                "the single output is reduced, uncertainty or palette (got '{s}')"
+                "`stdout` takes reduced, uncertainty or palette (got '{s}')"
             )),
         }
     }
