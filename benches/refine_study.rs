@@ -11,8 +11,8 @@
 //!     [--dump DIR] [--json FILE]
 //! ```
 //!
-//! A variant is a refinement as `Refine` parses it, optionally followed by `*R` for R
-//! k-means++ starts (restarts). `--dump DIR` also writes each set as
+//! A variant is a refinement as `Refine` parses it (or `default`), optionally followed by
+//! `*R` for R k-means++ starts (restarts); `truth` is Lloyd from the true centres. `--dump DIR` also writes each set as
 //! `DIR/NAME-sSEED.csv` (x,y per line) with its true centres in `DIR/NAME-sSEED.centres.csv`,
 //! for `benches/refine_sklearn.py`.
 
@@ -45,7 +45,11 @@ fn parse_variant(s: &str) -> Variant {
         Some((a, b)) => (a, b.parse().expect("restarts after *")),
         None => (s, 1),
     };
-    let refine: Refine = r.parse().expect("a refinement");
+    let refine: Refine = if r == "default" {
+        Refine::default()
+    } else {
+        r.parse().expect("a refinement")
+    };
     Variant {
         label: s.to_string(),
         refine,
