@@ -65,6 +65,7 @@ fn main() {
     let mut json: Option<String> = None;
     let mut only: Option<String> = None;
     let mut photos = false;
+    let mut image_path: Option<String> = None;
     let mut args = std::env::args().skip(1);
     while let Some(a) = args.next() {
         match a.as_str() {
@@ -74,6 +75,7 @@ fn main() {
             "--json" => json = args.next(),
             "--sets" => only = args.next(),
             "--photos" => photos = true,
+            "--image" => image_path = args.next(),
             "--bench" => {}
             _ => {}
         }
@@ -81,6 +83,10 @@ fn main() {
     let variants: Vec<Variant> = variants.split(',').map(parse_variant).collect();
     if photos {
         photo_study(&variants, seeds);
+        return;
+    }
+    if let Some(path) = image_path {
+        image_study(&path, &variants, seeds);
         return;
     }
     let specs: Vec<gauss::Spec> = gauss::SPECS
@@ -278,4 +284,36 @@ fn photo_study(variants: &[Variant], seeds: u64) {
         print!("{:>16.3}", t);
     }
     println!();
+}
+
+/// `--image PATH`: the fit alone (K = 16, CIELAB, weighted colour histogram) of each
+/// variant on one image, seeds 0..seeds: SSE and time of each fit.
+fn image_study(path: &str, variants: &[Variant], seeds: u64) {
+    use chromasift::{histogram, reduce};
+    let img = image::open(path).unwrap().to_rgba8();
+    let ih = histogram::from_rgba8(img.as_raw());
+    let (rows, _) = reduce::entry_features(&ih.histogram, chromasift::colour::Space::Cielab);
+    let weights = ih.histogram.weights();
+    let data = Dataset::new(&rows, 3, Some(&weights)).unwrap();
+    println!("{path}: {} colours", data.len());
+    for v in variants {
+        for seed in 0..seeds {
+            let params = KMeansParams::new(16)
+                .seed(seed)
+                .refine(v.refine)
+                .restarts(v.restarts)
+                .check()
+                .unwrap();
+            let load = std::fs::read_to_string("/proc/loadavg").unwrap_or_default();
+            let t0 = Instant::now();
+            let model = fit(&data, &params).unwrap();
+            println!(
+                "{:<16} seed {seed}: SSE {:.6e}, {:.3} s (load {})",
+                v.label,
+                model.sse,
+                t0.elapsed().as_secs_f64(),
+                load.split_whitespace().next().unwrap_or("?")
+            );
+        }
+    }
 }
