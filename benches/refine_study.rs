@@ -92,12 +92,17 @@ fn main() {
     let specs: Vec<gauss::Spec> = gauss::SPECS
         .iter()
         .copied()
-        .filter(|s| only.as_ref().is_none_or(|o| o.split(',').any(|n| n == s.name)))
+        .filter(|s| {
+            only.as_ref()
+                .is_none_or(|o| o.split(',').any(|n| n == s.name))
+        })
         .collect();
     println!(
         "threads: {}, seeds 0..{seeds}, load average at start: {}",
         rayon::current_num_threads(),
-        std::fs::read_to_string("/proc/loadavg").unwrap_or_default().trim()
+        std::fs::read_to_string("/proc/loadavg")
+            .unwrap_or_default()
+            .trim()
     );
     // ci[v][set] summed over seeds, misses[v], time[v], sse ratio product[v]
     let nv = variants.len();
@@ -143,7 +148,10 @@ fn main() {
                 time[vi][si] += dt;
                 sses.push(model.sse);
                 if std::env::var_os("REFINE_STUDY_VERBOSE").is_some() && c > 0 {
-                    eprintln!("{} seed {seed} {}: CI {c}, SSE {:.6e}", spec.name, v.label, model.sse);
+                    eprintln!(
+                        "{} seed {seed} {}: CI {c}, SSE {:.6e}",
+                        spec.name, v.label, model.sse
+                    );
                 }
                 records.push(serde_json::json!({
                     "set": spec.name, "seed": seed, "variant": v.label,
@@ -168,7 +176,11 @@ fn main() {
         for vi in 0..nv {
             print!(
                 "{:>16}",
-                format!("{} {:.0}ms", ci[vi][si], 1000.0 * time[vi][si] / seeds as f64)
+                format!(
+                    "{} {:.0}ms",
+                    ci[vi][si],
+                    1000.0 * time[vi][si] / seeds as f64
+                )
             );
         }
         println!();
@@ -184,10 +196,10 @@ fn main() {
     }
     println!();
     print!("{:<18}", "runs with CI>0");
-    for vi in 0..nv {
+    for v in &variants {
         let m = records
             .iter()
-            .filter(|r| r["variant"] == variants[vi].label.as_str() && r["ci"].as_u64() > Some(0))
+            .filter(|r| r["variant"] == v.label.as_str() && r["ci"].as_u64() > Some(0))
             .count();
         print!("{:>16}", format!("{m}/{runs}"));
     }
@@ -204,7 +216,9 @@ fn main() {
     println!();
     println!(
         "load average at end: {}",
-        std::fs::read_to_string("/proc/loadavg").unwrap_or_default().trim()
+        std::fs::read_to_string("/proc/loadavg")
+            .unwrap_or_default()
+            .trim()
     );
     if let Some(path) = json {
         std::fs::write(
@@ -223,7 +237,8 @@ fn photo_study(variants: &[Variant], seeds: u64) {
     use chromasift::{histogram, raster::Decoded, reduce};
     let root = std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("fixtures");
     let doc: serde_json::Value = serde_json::from_slice(
-        &std::fs::read(root.join("reference/engine_sklearn.json")).expect("run tests/reference/engine_sklearn.py"),
+        &std::fs::read(root.join("reference/engine_sklearn.json"))
+            .expect("run tests/reference/engine_sklearn.py"),
     )
     .unwrap();
     let photos = doc["photos"].as_array().unwrap();
@@ -237,7 +252,9 @@ fn photo_study(variants: &[Variant], seeds: u64) {
     }
     println!("{:>16}", "reduce");
     for p in photos {
-        let img = image::open(root.join(p["file"].as_str().unwrap())).unwrap().to_rgba8();
+        let img = image::open(root.join(p["file"].as_str().unwrap()))
+            .unwrap()
+            .to_rgba8();
         let (w, h) = img.dimensions();
         let rgba = img.into_raw();
         let ih = histogram::from_rgba8(&rgba);
@@ -262,7 +279,8 @@ fn photo_study(variants: &[Variant], seeds: u64) {
             let mut opts = reduce::ReduceOptions::new(16);
             opts.seed = seed;
             let t0 = Instant::now();
-            let red = reduce::reduce_image(&Decoded::from_rgba8(w, h, rgba.clone()), &opts).unwrap();
+            let red =
+                reduce::reduce_image(&Decoded::from_rgba8(w, h, rgba.clone()), &opts).unwrap();
             times[nv] += t0.elapsed().as_secs_f64();
             line[nv] += (red.document.sse / want).ln();
         }

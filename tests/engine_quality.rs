@@ -121,23 +121,37 @@ fn default_finds_every_cluster_and_textbook_kmeans_does_not() {
 /// k25-unbalanced set (by seed) where textbook k-means++ and Lloyd misses one.
 #[test]
 fn every_refinement_beats_textbook_kmeans_on_an_unbalanced_set() {
-    let spec = gauss::SPECS.iter().find(|s| s.name == "k25-unbalanced").unwrap();
+    let spec = gauss::SPECS
+        .iter()
+        .find(|s| s.name == "k25-unbalanced")
+        .unwrap();
     let (seed, set) = (0..SEEDS)
         .map(|seed| (seed, gauss::draw(*spec, seed)))
         .find(|(seed, set)| {
             gauss::centroid_index(&fit_set(set, Refine::None, *seed).means, &set.centres, 2) > 0
         })
         .expect("textbook k-means misses a cluster at some seed");
-    for r in [Refine::Swap(4), Refine::RandomSwap(50), Refine::SplitMerge(32)] {
+    for r in [
+        Refine::Swap(4),
+        Refine::RandomSwap(50),
+        Refine::SplitMerge(32),
+    ] {
         let m = fit_set(&set, r, seed);
-        assert_eq!(gauss::centroid_index(&m.means, &set.centres, 2), 0, "{r} seed {seed}");
+        assert_eq!(
+            gauss::centroid_index(&m.means, &set.centres, 2),
+            0,
+            "{r} seed {seed}"
+        );
     }
 }
 
 /// Same input and seed, same bits, on one thread and on four.
 #[test]
 fn refinement_is_the_same_on_any_thread_count() {
-    let spec = gauss::SPECS.iter().find(|s| s.name == "k100-touching").unwrap();
+    let spec = gauss::SPECS
+        .iter()
+        .find(|s| s.name == "k100-touching")
+        .unwrap();
     let set = gauss::draw(*spec, 2);
     let run = |threads: usize, refine: Refine| {
         rayon::ThreadPoolBuilder::new()
@@ -162,7 +176,10 @@ fn pinned_means_stay_put_with_the_default() {
     let set = gauss::draw(*spec, 1);
     let data = Dataset::new(&set.points, 2, None).unwrap();
     let pinned = vec![1.5, 2.5, 400.0, 700.0];
-    let params = KMeansParams::new(20).pinned(pinned.clone()).check().unwrap();
+    let params = KMeansParams::new(20)
+        .pinned(pinned.clone())
+        .check()
+        .unwrap();
     let m = fit(&data, &params).unwrap();
     assert_eq!(&m.means[..4], &pinned[..]);
 }
@@ -179,12 +196,16 @@ fn landcover_finds_every_cluster_of_a_raster() {
         type Inner = f32;
         const TIFF_VALUE: PhotometricInterpretation = PhotometricInterpretation::BlackIsZero;
         const BITS_PER_SAMPLE: &'static [u16] = &[32, 32];
-        const SAMPLE_FORMAT: &'static [SampleFormat] = &[SampleFormat::IEEEFP, SampleFormat::IEEEFP];
+        const SAMPLE_FORMAT: &'static [SampleFormat] =
+            &[SampleFormat::IEEEFP, SampleFormat::IEEEFP];
         fn horizontal_predict(row: &[f32], result: &mut Vec<f32>) {
             result.extend_from_slice(row);
         }
     }
-    let spec = gauss::SPECS.iter().find(|s| s.name == "k50-unbalanced").unwrap();
+    let spec = gauss::SPECS
+        .iter()
+        .find(|s| s.name == "k50-unbalanced")
+        .unwrap();
     let set = gauss::draw(*spec, 0);
     let n = set.points.len() / 2;
     let (w, h) = (100u32, n.div_ceil(100) as u32);
@@ -226,7 +247,10 @@ fn landcover_finds_every_cluster_of_a_raster() {
         .iter()
         .flat_map(|c| {
             let b = c["bands"].as_array().unwrap();
-            [b[0]["mean"].as_f64().unwrap(), b[1]["mean"].as_f64().unwrap()]
+            [
+                b[0]["mean"].as_f64().unwrap(),
+                b[1]["mean"].as_f64().unwrap(),
+            ]
         })
         .collect();
     assert_eq!(means.len(), 2 * spec.k);
@@ -245,7 +269,10 @@ fn photo(p: &Value) -> Decoded {
         .unwrap()
         .to_rgba8();
     let (w, h) = img.dimensions();
-    assert_eq!((w as u64, h as u64), (p["width"].as_u64().unwrap(), p["height"].as_u64().unwrap()));
+    assert_eq!(
+        (w as u64, h as u64),
+        (p["width"].as_u64().unwrap(), p["height"].as_u64().unwrap())
+    );
     Decoded::from_rgba8(w, h, img.into_raw())
 }
 
@@ -285,11 +312,19 @@ fn reduce_sse_against_scikit_learn_on_photographs() {
             chromasift::reduce::entry_features(&ih.histogram, chromasift::colour::Space::Cielab);
         let weights = ih.histogram.weights();
         let data = Dataset::new(&rows, 3, Some(&weights)).unwrap();
-        let plain = fit(&data, &KMeansParams::new(16).refine(Refine::None).check().unwrap()).unwrap();
+        let plain = fit(
+            &data,
+            &KMeansParams::new(16).refine(Refine::None).check().unwrap(),
+        )
+        .unwrap();
         log_textbook += (plain.sse / one).ln();
     }
     let n = photos.len() as f64;
-    let (one, ten, textbook) = ((log_one / n).exp(), (log_ten / n).exp(), (log_textbook / n).exp());
+    let (one, ten, textbook) = (
+        (log_one / n).exp(),
+        (log_ten / n).exp(),
+        (log_textbook / n).exp(),
+    );
     assert!(one <= 0.99, "reduce / one scikit-learn run: {one}");
     assert!(ten <= 1.005, "reduce / scikit-learn n_init=10: {ten}");
     assert!(textbook > one, "textbook {textbook} vs default {one}");

@@ -114,7 +114,10 @@ impl std::str::FromStr for Refine {
         let (name, count) = match t.split_once(':') {
             Some((a, b)) => {
                 let n = b.trim().parse::<usize>().map_err(|_| {
-                    format!("refinement count must be a whole number (got '{}')", b.trim())
+                    format!(
+                        "refinement count must be a whole number (got '{}')",
+                        b.trim()
+                    )
                 })?;
                 (a.trim().to_string(), Some(n))
             }
@@ -302,7 +305,11 @@ fn cheapest_merge(means: &[f32], mass: &[f64], dim: usize) -> (usize, f64) {
                 }
                 let (wa, wb) = (mass[a], mass[b]);
                 let d = dist2(ma, &means[b * dim..(b + 1) * dim]) as f64;
-                let c = if wa + wb > 0.0 { wa * wb / (wa + wb) * d } else { 0.0 };
+                let c = if wa + wb > 0.0 {
+                    wa * wb / (wa + wb) * d
+                } else {
+                    0.0
+                };
                 best = best.min(c);
             }
             best
