@@ -102,8 +102,8 @@ pub struct KMeansParams {
     pub accelerate: bool,
     /// Means that must be in the result exactly (`p × dim`, in the feature units): they
     /// become the first `p` means, count toward `k`, and never move. The other means
-    /// start from k-means++ around them. Annealing and split-and-merge moves are not used
-    /// with pinned means. Default: none.
+    /// start from k-means++ around them. Annealing, the refinement ([`Self::refine`]) and
+    /// split-and-merge moves are not used with pinned means. Default: none.
     pub pinned: Vec<f64>,
 }
 
