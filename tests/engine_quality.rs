@@ -9,9 +9,9 @@
 //!   the reference SSE by tests/reference/engine_sklearn.py): `reduce` at K = 16 against
 //!   scikit-learn 1.9.1 KMeans on the same CIELAB pixels.
 //!
-//! Fränti's published S- and A-sets (with ground-truth centroids) could not be found in
-//! the offline sources available when these tests were written, so only generated sets
-//! are used.
+//! Fränti's published S- and A-sets with their ground-truth centroid files were not
+//! available offline when these tests were written (DEVELOPERS.md, "Global refinement"),
+//! so only generated sets are used.
 
 mod common;
 #[path = "support/gauss.rs"]
