@@ -9,7 +9,7 @@ use rayon::prelude::*;
 /// means 1), given the per-chunk sums of that mass. The chunk is found on the running
 /// sum of chunk sums, then the row by the same running sum inside the chunk, so only one
 /// chunk is scanned and the result does not depend on the thread count.
-fn draw(data: &Dataset, d: Option<&[f32]>, chunk_sums: &[f64], rng: &mut Rng) -> usize {
+pub(super) fn draw(data: &Dataset, d: Option<&[f32]>, chunk_sums: &[f64], rng: &mut Rng) -> usize {
     let total: f64 = chunk_sums.iter().sum();
     let mut u = rng.uniform() * total;
     let mut c = 0;

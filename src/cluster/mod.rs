@@ -17,6 +17,7 @@ mod init;
 mod mixture;
 mod model;
 mod params;
+mod refine;
 mod soft;
 mod split_merge;
 
@@ -31,6 +32,10 @@ pub use init::{kmeans_plus_plus, kmeans_plus_plus_from};
 pub use mixture::{fit_mixture, free_parameters, Mixture, MixtureSettings};
 pub use model::{finish, fit, fit_from, fit_hard, stop_rule, KMeansModel};
 pub use params::{Beta, KMeansParams, Mode, ValidParams, MAX_K};
+pub use refine::{
+    refine_means, Refine, Refined, DEFAULT_RANDOM_SWAP_TRIALS, DEFAULT_SPLIT_MERGE_MOVES,
+    DEFAULT_SWAP_TRIALS, MAX_REFINE,
+};
 pub use soft::{
     auto_beta, responsibility_matrix, soft_assign, soft_kmeans, soft_kmeans_fixed, SoftAssignment,
     SoftResult,

@@ -4,10 +4,15 @@ use super::anneal::anneal;
 use super::hard::{assign_nearest, lloyd, Stop};
 use super::init::kmeans_plus_plus;
 use super::params::{Beta, Mode, ValidParams};
+use super::refine::refine_means;
 use super::soft::{auto_beta, soft_assign, soft_kmeans_fixed, SoftAssignment};
 use super::Dataset;
 use crate::error::{Error, ParamsError, Result};
 use crate::rng::Rng;
+
+/// Generator streams of the refinement: this bit plus the restart number (k-means++ uses
+/// the restart number alone).
+const REFINE_STREAM: u64 = 1 << 32;
 
 /// A fitted k-means model: results only (the parameters live in [`ValidParams`]).
 #[derive(Debug, Clone, PartialEq)]
@@ -77,8 +82,9 @@ pub fn stop_rule(params: &ValidParams) -> Stop {
 }
 
 /// Fits k-means: `restarts` seeded k-means++ starts (or annealing runs, with
-/// `params.anneal`), each polished by Lloyd; the lowest SSE is kept (the earliest on
-/// ties); in soft mode, soft k-means then starts from it.
+/// `params.anneal`), each refined by `params.refine` (on a grid summary of the rows) and
+/// polished by Lloyd on every row; the lowest SSE is kept (the earliest on ties); in soft
+/// mode, soft k-means then starts from it.
 pub fn fit(data: &Dataset, params: &ValidParams) -> Result<KMeansModel> {
     let (restart, hard) = fit_hard(data, params)?;
     Ok(finish(data, params, restart, hard))
@@ -107,7 +113,8 @@ fn pinned_count(data: &Dataset, params: &ValidParams) -> Result<usize> {
 
 /// The hard phase of [`fit`]: which start was kept and its Lloyd result, before any soft
 /// phase. With pinned means, every start extends them by k-means++ and Lloyd keeps them
-/// fixed.
+/// fixed, and no refinement or split-and-merge move runs (they would move the pinned
+/// means).
 pub fn fit_hard(data: &Dataset, params: &ValidParams) -> Result<(usize, super::LloydResult)> {
     check_data(data)?;
     let pinned = pinned_count(data, params)?;
@@ -135,6 +142,20 @@ pub fn fit_hard(data: &Dataset, params: &ValidParams) -> Result<(usize, super::L
         ph.mark("grid summary");
         grid
     });
+    // The refinement runs on its own grid summary, when that is at most half the rows.
+    let refine = params.anneal.is_none() && !params.refine.is_none();
+    let refine_grid = if refine {
+        let mut ph = crate::trace::Phases::start("fit");
+        let cell = refine_cell(data, params.k);
+        let g = coarsen(data, cell);
+        ph.mark("refinement summary");
+        Some(g).filter(|(rows, _)| rows.len() * 2 <= data.rows().len())
+    } else {
+        None
+    };
+    let summary = refine_grid
+        .as_ref()
+        .and_then(|(rows, weights)| Dataset::new(rows, data.dim(), Some(weights)).ok());
     let mut best = None;
     for r in 0..params.restarts {
         let mut ph = crate::trace::Phases::start("fit");
@@ -152,10 +173,17 @@ pub fn fit_hard(data: &Dataset, params: &ValidParams) -> Result<(usize, super::L
             }
             None => {
                 let mut rng = Rng::new(params.seed, r as u64);
-                let init = kmeans_plus_plus(data, params.k, &mut rng);
+                let mut init = kmeans_plus_plus(data, params.k, &mut rng);
                 ph.mark("k-means++");
+                if refine && init.len() / data.dim() >= 2 {
+                    // Its own generator stream per start, apart from k-means++'s.
+                    let mut rng = Rng::new(params.seed, REFINE_STREAM | r as u64);
+                    let on = summary.as_ref().unwrap_or(data);
+                    init = refine_means(on, &init, params.refine, params.tolerance, &mut rng).means;
+                    ph.mark("refinement");
+                }
                 match &grid {
-                    Some((rows, weights)) => {
+                    Some((rows, weights)) if params.split_merge > 0 => {
                         let moved = super::split_merge::moves_on_grid(
                             rows,
                             weights,
@@ -167,7 +195,7 @@ pub fn fit_hard(data: &Dataset, params: &ValidParams) -> Result<(usize, super::L
                         ph.mark("split-and-merge");
                         moved
                     }
-                    None => init,
+                    _ => init,
                 }
             }
         };
@@ -182,6 +210,19 @@ pub fn fit_hard(data: &Dataset, params: &ValidParams) -> Result<(usize, super::L
     }
     Ok(best.expect("at least one restart"))
 }
+
+/// Side of the grid cells the refinement runs on: σ_max / (F · k^(1/dim)), σ_max² the
+/// largest variance along a principal axis of the rows. The clusters of k equal parts of
+/// the data span about σ_max / k^(1/dim) along that axis, so each is summarised by some
+/// F^dim cells whatever K and the dimension (F = 8 by default, see DEVELOPERS.md,
+/// "Global refinement").
+fn refine_cell(data: &Dataset, k: usize) -> f64 {
+    let sigma = super::anneal::centroid_and_lambda_max(data).1.sqrt();
+    sigma / (REFINE_CELLS * (k.max(1) as f64).powf(1.0 / data.dim() as f64))
+}
+
+/// F of [`refine_cell`].
+const REFINE_CELLS: f64 = 8.0;
 
 /// Fits from given initial means (`k × dim`), skipping k-means++ and restarts.
 pub fn fit_from(data: &Dataset, init: &[f32], params: &ValidParams) -> Result<KMeansModel> {

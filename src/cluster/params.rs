@@ -117,12 +117,18 @@ pub struct KMeansParams {
     /// a grid summary of the rows; annealing has its own, `Anneal::split_merge`).
     /// Default: 0 (none).
     pub split_merge: usize,
+    /// Global refinement after each k-means++ start ([`super::Refine`]), run on a grid
+    /// summary of the rows and polished by Lloyd on every row. Not used with pinned means
+    /// (the moves would move them), after annealing (which has its own moves), or by
+    /// [`super::fit_from`]. `Refine::None` gives the textbook k-means++ and Lloyd.
+    /// Default: [`super::Refine::default`] (split-and-merge, at most 32 moves).
+    pub refine: super::Refine,
     /// Use distance bounds (Hamerly 2010) to skip work; same result as plain Lloyd. Default: true.
     pub accelerate: bool,
     /// Means that must be in the result exactly (`p × dim`, in the feature units): they
     /// become the first `p` means, count toward `k`, and never move. The other means
-    /// start from k-means++ around them. Annealing and split-and-merge moves are not used
-    /// with pinned means. Default: none.
+    /// start from k-means++ around them. Annealing, the refinement ([`Self::refine`]) and
+    /// split-and-merge moves are not used with pinned means. Default: none.
     pub pinned: Vec<f64>,
 }
 
@@ -140,6 +146,7 @@ impl KMeansParams {
             shift_tolerance: 1e-4,
             anneal: None,
             split_merge: 0,
+            refine: super::Refine::default(),
             accelerate: true,
             pinned: Vec::new(),
         }
@@ -180,6 +187,10 @@ impl KMeansParams {
         self.split_merge = moves;
         self
     }
+    pub fn refine(mut self, refine: super::Refine) -> Self {
+        self.refine = refine;
+        self
+    }
     pub fn accelerate(mut self, accelerate: bool) -> Self {
         self.accelerate = accelerate;
         self
@@ -214,6 +225,7 @@ impl KMeansParams {
         if let Some(a) = &self.anneal {
             a.check()?;
         }
+        self.refine.check()?;
         // Upper bounds keep a typing slip from running for hours.
         if self.max_iter == 0 || self.max_iter > MAX_ITER {
             return Err(ParamsError::BadMaxIter(self.max_iter));
@@ -277,6 +289,10 @@ mod tests {
             KMeansParams::new(3).restarts(0).check(),
             Err(ParamsError::BadRestarts(0))
         ));
+        assert!(KMeansParams::new(3)
+            .refine(crate::cluster::Refine::Swap(0))
+            .check()
+            .is_err());
         assert!(KMeansParams::new(3).beta(Beta::Fixed(0.5)).check().is_ok());
     }
 
