@@ -277,7 +277,7 @@ fn photo_study(variants: &[Variant], seeds: u64) {
                 line[vi] += (model.sse / want).ln();
             }
             let mut opts = reduce::ReduceOptions::new(16);
-            opts.seed = seed;
+            opts.engine.seed = seed;
             let t0 = Instant::now();
             let red =
                 reduce::reduce_image(&Decoded::from_rgba8(w, h, rgba.clone()), &opts).unwrap();

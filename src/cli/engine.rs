@@ -1,7 +1,7 @@
 //! Flag groups shared by several commands, each declared once: the k-means engine, the
 //! scene features of multi-band rasters, the pixel limit and the output folder.
 
-use crate::cluster::{Anneal, Beta, EngineOptions, Mode};
+use crate::cluster::{Anneal, Beta, EngineOptions, Mode, Refine};
 use crate::features::scene::{IndexSpec, Scale, SceneOptions};
 use crate::limits::Limits;
 use crate::rng::DEFAULT_SEED;
@@ -57,6 +57,14 @@ pub struct EngineFlags {
     #[arg(long = "shift-tolerance", default_value_t = 1e-4, value_name = "FRACTION")]
     pub shift_tolerance: f64,
 
+    /// Global refinement after each k-means++ start, so that the fit does not stop in the
+    /// first local minimum: split-merge[:N] (default; at most N moves, each giving up the
+    /// mean least needed to split the cluster that gains most, kept only if the SSE falls),
+    /// swap[:N] (N trials per mean), random-swap[:N] (N trials per mean), or none (plain
+    /// k-means++ and Lloyd, the textbook algorithm).
+    #[arg(long, default_value_t = Refine::default(), value_name = "none|split-merge[:N]|swap[:N]|random-swap[:N]")]
+    pub refine: Refine,
+
     /// Start from deterministic annealing (Rose, Gurewitz & Fox 1990) instead of
     /// k-means++: soft k-means with β raised geometrically from --anneal-start to
     /// --anneal-end, then split-and-merge moves (--split-merge), then a hard Lloyd polish.
@@ -94,6 +102,7 @@ impl EngineFlags {
             max_iter: self.max_iter,
             tolerance: self.tolerance,
             shift_tolerance: self.shift_tolerance,
+            refine: self.refine,
             anneal: self.anneal.then(|| Anneal {
                 start: self.anneal_start,
                 end: self.anneal_end,

@@ -50,6 +50,9 @@ fn each_flag_parses() {
     assert_eq!(e(&["--shift-tolerance", "0"]).shift_tolerance, 0.0);
     assert_eq!(e(&["--split-merge", "5"]).split_merge, 5);
     assert!(e(&["--anneal"]).anneal.is_some());
+    assert_eq!(e(&["--refine", "none"]).refine, crate::cluster::Refine::None);
+    assert_eq!(e(&["--refine", "swap:3"]).refine, crate::cluster::Refine::Swap(3));
+    assert_eq!(e(&[]).refine, crate::cluster::Refine::default());
     assert_eq!(
         reduce(&["--dither", "floyd-steinberg"]).image.dither,
         Dither::FloydSteinberg
@@ -66,7 +69,7 @@ fn each_flag_parses() {
 fn every_fitting_command_has_the_same_engine_flags() {
     let engine_flags = [
         "mode", "beta", "seed", "restarts", "max-iter", "tolerance", "shift-tolerance",
-        "anneal", "anneal-start", "anneal-end", "anneal-factor", "split-merge",
+        "refine", "anneal", "anneal-start", "anneal-end", "anneal-factor", "split-merge",
     ];
     let top = Cli::command();
     for name in ["reduce", "separate", "landcover", "batch", "learn", "sweep"] {

@@ -19,7 +19,7 @@
 //! [`Anneal::split_merge`] split-and-merge moves ([`super::split_merge`]) run on the finest
 //! grid summary; each is kept only if it lowers the SSE there.
 
-use super::model::coarsen;
+use super::grid::coarsen;
 use super::soft::soft_kmeans;
 use super::split_merge::{split_merge, trial_stop};
 use super::Dataset;

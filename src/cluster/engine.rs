@@ -1,7 +1,7 @@
 //! One engine-options value: every setting of the k-means engine except K and pinned
 //! means, shared unchanged by every workflow and recorded whole in every document.
 
-use super::{Anneal, Beta, KMeansParams, Mode};
+use super::{Anneal, Beta, KMeansParams, Mode, Refine};
 use serde::{Deserialize, Serialize};
 
 /// Settings of the k-means engine; defaults are [`KMeansParams::new`]'s.
@@ -23,6 +23,9 @@ pub struct EngineOptions {
     /// Summed squared moves of the means, relative to the data's mean variance per
     /// dimension, that end the hard phase. Default: 1e-4.
     pub shift_tolerance: f64,
+    /// Global refinement after each k-means++ start, so that a fit does not stop in the
+    /// first local minimum. Default: split-and-merge, at most 32 moves ([`Refine`]).
+    pub refine: Refine,
     /// Start from deterministic annealing instead of k-means++. Default: off.
     pub anneal: Option<Anneal>,
     /// Most split-and-merge moves after each k-means++ start. Default: 0.
@@ -46,6 +49,7 @@ impl EngineOptions {
             max_iter: p.max_iter,
             tolerance: p.tolerance,
             shift_tolerance: p.shift_tolerance,
+            refine: p.refine,
             anneal: p.anneal,
             split_merge: p.split_merge,
         }
@@ -62,6 +66,7 @@ impl EngineOptions {
             .max_iter(self.max_iter)
             .tolerance(self.tolerance)
             .shift_tolerance(self.shift_tolerance)
+            .refine(self.refine)
             .anneal(self.anneal)
             .split_merge(self.split_merge)
     }
@@ -83,6 +88,7 @@ impl EngineOptions {
         note(self.max_iter != d.max_iter, "max_iter");
         note(self.tolerance != d.tolerance, "tolerance");
         note(self.shift_tolerance != d.shift_tolerance, "shift_tolerance");
+        note(self.refine != d.refine, "refine");
         note(self.anneal != d.anneal, "anneal");
         note(self.split_merge != d.split_merge, "split_merge");
         out

@@ -428,8 +428,7 @@ pub struct Stop {
     /// Stop when one iteration lowers the SSE by at most this fraction of it.
     pub tolerance: f64,
     /// Stop when the summed squared moves of all means in one update are at most this
-    /// times the mean per-dimension weighted variance of the data (the rule and default,
-    /// 1e-4, that scikit-learn's KMeans uses for its `tol`). 0 turns the rule off.
+    /// times the mean per-dimension weighted variance of the data. 0 turns the rule off.
     pub shift_tolerance: f64,
 }
 

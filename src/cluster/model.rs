@@ -1,6 +1,7 @@
 //! Fitting: restarts of k-means++ and Lloyd, an optional soft phase, and the fitted model.
 
 use super::anneal::anneal;
+use super::grid::coarsen;
 use super::hard::{assign_nearest, lloyd, Stop};
 use super::init::kmeans_plus_plus;
 use super::params::{Beta, Mode, ValidParams};
@@ -238,84 +239,6 @@ pub fn fit_from(data: &Dataset, init: &[f32], params: &ValidParams) -> Result<KM
     Ok(finish(data, params, 0, hard))
 }
 
-/// Weighted centroids of the occupied cells of a grid of side `cell`, in cell order
-/// (deterministic): a small stand-in for many rows when the scale of interest is coarser.
-pub(crate) fn coarsen(data: &Dataset, cell: f64) -> (Vec<f32>, Vec<f64>) {
-    let dim = data.dim();
-    if !(cell.is_finite() && cell > 0.0) {
-        return (
-            data.rows().to_vec(),
-            (0..data.len()).map(|i| data.weight(i)).collect(),
-        );
-    }
-    // Each row's cell key; rows sorted by (key, row) so that each cell's rows are
-    // consecutive and in row order: the same sums, in the same order, and the same cell
-    // order (keys compared as sequences) as a map from key to running sums would give.
-    let n = data.len();
-    let mut keys = vec![0i64; n * dim];
-    for (i, k) in keys.chunks_exact_mut(dim.max(1)).enumerate().take(n) {
-        for (kv, &v) in k.iter_mut().zip(data.row(i)) {
-            *kv = (v as f64 / cell).floor() as i64;
-        }
-    }
-    let mut order: Vec<u32> = (0..n as u32)
-        .filter(|&i| data.weight(i as usize) != 0.0)
-        .collect();
-    let key = |i: u32| &keys[i as usize * dim..(i as usize + 1) * dim];
-    // When every key fits in 64 bits (offset from its dimension's least value, first
-    // dimension most significant), sort packed integers: the same order, much faster.
-    let mut lo = vec![i64::MAX; dim];
-    let mut hi = vec![i64::MIN; dim];
-    for &i in &order {
-        for ((l, h), &k) in lo.iter_mut().zip(hi.iter_mut()).zip(key(i)) {
-            *l = (*l).min(k);
-            *h = (*h).max(k);
-        }
-    }
-    let bits: Vec<u32> = lo
-        .iter()
-        .zip(&hi)
-        .map(|(&l, &h)| 64 - ((h as i128 - l as i128).max(0) as u64).leading_zeros())
-        .collect();
-    if !order.is_empty() && bits.iter().sum::<u32>() <= 64 {
-        let mut packed: Vec<(u64, u32)> = order
-            .iter()
-            .map(|&i| {
-                let mut p = 0u64;
-                for ((&k, &l), &b) in key(i).iter().zip(&lo).zip(&bits) {
-                    p = if b == 64 { 0 } else { p << b } | (k as i128 - l as i128) as u64;
-                }
-                (p, i)
-            })
-            .collect();
-        packed.sort_unstable();
-        order = packed.into_iter().map(|(_, i)| i).collect();
-    } else {
-        order.sort_unstable_by(|&a, &b| key(a).cmp(key(b)).then(a.cmp(&b)));
-    }
-    let mut rows = Vec::new();
-    let mut weights = Vec::new();
-    let mut sum = vec![0.0f64; dim];
-    let mut start = 0;
-    while start < order.len() {
-        let mut end = start;
-        let mut w = 0.0;
-        sum.iter_mut().for_each(|s| *s = 0.0);
-        while end < order.len() && key(order[end]) == key(order[start]) {
-            let i = order[end] as usize;
-            let wi = data.weight(i);
-            w += wi;
-            for (s, &v) in sum.iter_mut().zip(data.row(i)) {
-                *s += wi * v as f64;
-            }
-            end += 1;
-        }
-        rows.extend(sum.iter().map(|v| (v / w) as f32));
-        weights.push(w);
-        start = end;
-    }
-    (rows, weights)
-}
 
 /// The model of a finished hard fit (`restart` records which start it came from): β
 /// resolved, and in soft mode the soft phase run from its means.

@@ -108,8 +108,8 @@ pub struct KMeansParams {
     /// Stop when the relative objective change of one iteration is at most this. Default: 1e-6.
     pub tolerance: f64,
     /// Hard phase also stops when the summed squared moves of the means in one update
-    /// are at most this times the data's mean per-dimension variance (scikit-learn's
-    /// `tol` rule). 0 turns it off. Default: 1e-4.
+    /// are at most this times the data's mean per-dimension variance. 0 turns it off.
+    /// Default: 1e-4.
     pub shift_tolerance: f64,
     /// Start from deterministic annealing instead of k-means++. Default: off.
     pub anneal: Option<super::Anneal>,

@@ -104,6 +104,20 @@ impl std::fmt::Display for Refine {
     }
 }
 
+/// Written as its text form (`"split-merge:32"`, `"none"`, …).
+impl serde::Serialize for Refine {
+    fn serialize<S: serde::Serializer>(&self, s: S) -> Result<S::Ok, S::Error> {
+        s.collect_str(self)
+    }
+}
+
+impl<'de> serde::Deserialize<'de> for Refine {
+    fn deserialize<D: serde::Deserializer<'de>>(d: D) -> Result<Self, D::Error> {
+        let text = String::deserialize(d)?;
+        text.parse().map_err(serde::de::Error::custom)
+    }
+}
+
 impl std::str::FromStr for Refine {
     type Err = String;
     /// `none`, `swap`, `random-swap`, `split-merge`, each but `none` optionally with

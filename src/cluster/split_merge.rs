@@ -163,7 +163,7 @@ pub(crate) fn trial_stop(tolerance: f64) -> Stop {
 }
 
 /// Split-and-merge moves from a start (`k × dim`) on a grid summary (`rows`, `weights`,
-/// from `model::coarsen`): what `fit` runs after each k-means++ start when asked to. The
+/// from `grid::coarsen`): what `fit` runs after each k-means++ start when asked to. The
 /// caller polishes the result on every row.
 pub(crate) fn moves_on_grid(
     rows: &[f32],

@@ -110,9 +110,10 @@ impl ReduceOptions {
             text
         };
         let text = format!(
-            "{text}|objective {}|pinned {:?}",
+            "{text}|objective {}|pinned {:?}|refine {}",
             self.objective.name(),
-            self.pinned
+            self.pinned,
+            self.engine.refine
         );
         format!("{:016x}", fnv1a(text.as_bytes()))
     }
