@@ -290,6 +290,9 @@ fn bounded_pass(
     }
 }
 
+// Kernel twin of `full_pass_dim` (deliberate): the same loop skeleton, with the bound
+// tests in front. Kept as two functions so that the full pass carries no bound branches
+// in its inner loop; both are instantiated per dimension for the compiler to unroll.
 #[inline(always)]
 fn bounded_pass_dim(
     data: &Dataset,

@@ -89,6 +89,8 @@ fn evaluate_fixed<const D: usize>(
     sums
 }
 
+// Kernel twin of `evaluate_fixed` (deliberate): the same arithmetic for any dimension;
+// the fixed-dimension copy lets the compiler unroll the distance loop for d ≤ 8.
 fn evaluate_any(
     data: &Dataset,
     closest: &[f32],

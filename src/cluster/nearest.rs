@@ -184,6 +184,8 @@ pub(crate) fn nearest_two_by_dim(x: &[f32], m: &MeansByDim) -> (usize, f32, f32)
     }
 }
 
+// Kernel twin of `nearest_two_fixed` (deliberate): the any-dimension fallback, same
+// comparisons in the same order (ties to the lowest index) as the unrolled copies.
 /// Index and squared distance of the nearest of `k` means (lowest index on ties),
 /// and the squared distance of the second nearest (infinite when k = 1).
 #[inline(always)]

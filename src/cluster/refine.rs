@@ -406,13 +406,14 @@ fn swap(data: &Dataset, init: &[f32], trials: usize, stop: Stop, rng: &mut Rng) 
 
 /// Random swap (Fränti 2018): `trials` draws in all.
 fn random_swap(data: &Dataset, init: &[f32], trials: usize, stop: Stop, rng: &mut Rng) -> Refined {
-    let dim = data.dim();
-    let k = init.len() / dim;
-    let first = lloyd(data, init, stop, true);
-    let mut means: Vec<f32> = first.means.iter().map(|&v| v as f32).collect();
-    let mut sse = first.sse;
+    let super::split_merge::TrialStart {
+        dim,
+        k,
+        mut means,
+        mut sse,
+        margin,
+    } = super::split_merge::TrialStart::new(data, init, stop);
     let start_sse = sse;
-    let margin = 1.0 - stop.tolerance.clamp(1e-9, 0.5);
     let weight_sums: Vec<f64> = (0..data.len().div_ceil(CHUNK))
         .map(|c| {
             (c * CHUNK..((c + 1) * CHUNK).min(data.len()))

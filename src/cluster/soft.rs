@@ -58,6 +58,8 @@ fn half_d2_fixed<const D: usize>(x: &[f32], means: &[f64], out: &mut [f64]) -> u
     best
 }
 
+// Kernel twin of `half_d2_fixed` (deliberate): the fallback for dimensions above 6, with
+// the same arithmetic in the same order, so results do not depend on which one ran.
 /// Half squared distances from `x` to each mean, into `out`; returns the minimum's index.
 #[inline]
 fn half_d2(x: &[f32], means: &[f64], dim: usize, out: &mut [f64]) -> usize {

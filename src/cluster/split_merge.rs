@@ -181,18 +181,44 @@ pub(crate) fn moves_on_grid(
     }
 }
 
+/// The start of a search by trial moves (split-and-merge, random swap): Lloyd to a fixed
+/// point from `init`, and the margin a trial's SSE must beat.
+pub(crate) struct TrialStart {
+    pub dim: usize,
+    pub k: usize,
+    pub means: Vec<f32>,
+    pub sse: f64,
+    /// A trial is kept only when its SSE is below `margin × sse`.
+    pub margin: f64,
+}
+
+impl TrialStart {
+    pub(crate) fn new(data: &Dataset, init: &[f32], stop: Stop) -> TrialStart {
+        let dim = data.dim();
+        let first = lloyd(data, init, stop, true);
+        TrialStart {
+            dim,
+            k: init.len() / dim,
+            means: first.means.iter().map(|&v| v as f32).collect(),
+            sse: first.sse,
+            margin: 1.0 - stop.tolerance.clamp(1e-9, 0.5),
+        }
+    }
+}
+
 /// Runs Lloyd from `init` (`k × dim`), then up to `max_moves` split-and-merge moves, each
 /// re-converged by Lloyd with `stop`; the SSE never rises. A move is kept only if it lowers
 /// the SSE by more than `stop.tolerance` of it (at least 1e-9), so Lloyd merely running on
 /// is not counted as a move.
 pub fn split_merge(data: &Dataset, init: &[f32], max_moves: usize, stop: Stop) -> SplitMerge {
-    let dim = data.dim();
-    let k = init.len() / dim;
-    let first = lloyd(data, init, stop, true);
-    let mut means: Vec<f32> = first.means.iter().map(|&v| v as f32).collect();
-    let mut sse = first.sse;
+    let TrialStart {
+        dim,
+        k,
+        mut means,
+        mut sse,
+        margin,
+    } = TrialStart::new(data, init, stop);
     let start_sse = sse;
-    let margin = 1.0 - stop.tolerance.clamp(1e-9, 0.5);
     let mut moves = 0;
     while moves < max_moves && k >= 2 {
         // Each row's nearest mean, and what giving that mean up would cost it.

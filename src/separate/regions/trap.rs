@@ -381,6 +381,8 @@ impl Job<'_> {
                     );
                 }
             }
+            // The same call on 128-bit envelope words (deliberate twin: the word type is a
+            // type parameter, and each arm names its own scratch buffer).
             Method::Envelope { wide: true } => {
                 for &l in &active {
                     self.spread_envelope(
