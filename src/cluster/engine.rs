@@ -1,7 +1,9 @@
 //! One engine-options value: every setting of the k-means engine except K and pinned
 //! means, shared unchanged by every workflow and recorded whole in every document.
 
+use super::params::{MAX_ITER, MAX_RESTARTS};
 use super::{Anneal, Beta, KMeansParams, Mode, Refine};
+use crate::error::ParamsError;
 use serde::{Deserialize, Serialize};
 
 /// Settings of the k-means engine; defaults are [`KMeansParams::new`]'s.
@@ -34,41 +36,56 @@ pub struct EngineOptions {
 
 impl Default for EngineOptions {
     fn default() -> Self {
-        EngineOptions::from_params(&KMeansParams::new(1))
+        EngineOptions {
+            mode: Mode::Hard,
+            beta: Beta::Auto,
+            seed: crate::rng::DEFAULT_SEED,
+            restarts: 1,
+            max_iter: 300,
+            tolerance: 1e-6,
+            shift_tolerance: 1e-4,
+            refine: Refine::default(),
+            anneal: None,
+            split_merge: 0,
+        }
     }
 }
 
 impl EngineOptions {
-    /// The engine settings of a parameter set.
-    pub fn from_params(p: &KMeansParams) -> Self {
-        EngineOptions {
-            mode: p.mode,
-            beta: p.beta,
-            seed: p.seed,
-            restarts: p.restarts,
-            max_iter: p.max_iter,
-            tolerance: p.tolerance,
-            shift_tolerance: p.shift_tolerance,
-            refine: p.refine,
-            anneal: p.anneal,
-            split_merge: p.split_merge,
-        }
-    }
-
     /// Parameters for `k` clusters with these settings (check them with
     /// [`KMeansParams::check`]).
     pub fn params(&self, k: usize) -> KMeansParams {
-        KMeansParams::new(k)
-            .mode(self.mode)
-            .beta(self.beta)
-            .seed(self.seed)
-            .restarts(self.restarts)
-            .max_iter(self.max_iter)
-            .tolerance(self.tolerance)
-            .shift_tolerance(self.shift_tolerance)
-            .refine(self.refine)
-            .anneal(self.anneal)
-            .split_merge(self.split_merge)
+        KMeansParams {
+            engine: *self,
+            ..KMeansParams::new(k)
+        }
+    }
+
+    /// Checks every rule of the settings: the same checks wherever they are given.
+    pub fn check(&self) -> Result<(), ParamsError> {
+        if let Beta::Fixed(b) = self.beta {
+            if !(b.is_finite() && b > 0.0) {
+                return Err(ParamsError::BadBeta(b));
+            }
+        }
+        if !(self.tolerance.is_finite() && self.tolerance >= 0.0) {
+            return Err(ParamsError::BadTolerance(self.tolerance));
+        }
+        if !(self.shift_tolerance.is_finite() && self.shift_tolerance >= 0.0) {
+            return Err(ParamsError::BadShiftTolerance(self.shift_tolerance));
+        }
+        if let Some(a) = &self.anneal {
+            a.check()?;
+        }
+        self.refine.check()?;
+        // Upper bounds keep a typing slip from running for hours.
+        if self.max_iter == 0 || self.max_iter > MAX_ITER {
+            return Err(ParamsError::BadMaxIter(self.max_iter));
+        }
+        if self.restarts == 0 || self.restarts > MAX_RESTARTS {
+            return Err(ParamsError::BadRestarts(self.restarts));
+        }
+        Ok(())
     }
 
     /// The settings that differ from the defaults, by their names in documents: what a

@@ -76,14 +76,14 @@ fn check_data(data: &Dataset) -> Result<()> {
 /// The stopping rule of the hard phase that `params` ask for.
 pub fn stop_rule(params: &ValidParams) -> Stop {
     Stop {
-        max_iter: params.max_iter,
-        tolerance: params.tolerance,
-        shift_tolerance: params.shift_tolerance,
+        max_iter: params.engine.max_iter,
+        tolerance: params.engine.tolerance,
+        shift_tolerance: params.engine.shift_tolerance,
     }
 }
 
 /// Fits k-means: `restarts` seeded k-means++ starts (or annealing runs, with
-/// `params.anneal`), each refined by `params.refine` (on a grid summary of the rows) and
+/// `params.engine.anneal`), each refined by `params.engine.refine` (on a grid summary of the rows) and
 /// polished by Lloyd on every row; the lowest SSE is kept (the earliest on ties); in soft
 /// mode, soft k-means then starts from it.
 pub fn fit(data: &Dataset, params: &ValidParams) -> Result<KMeansModel> {
@@ -122,8 +122,8 @@ pub fn fit_hard(data: &Dataset, params: &ValidParams) -> Result<(usize, super::L
     if pinned > 0 {
         let start: Vec<f32> = params.pinned.iter().map(|&v| v as f32).collect();
         let mut best: Option<(usize, super::LloydResult)> = None;
-        for r in 0..params.restarts {
-            let mut rng = Rng::new(params.seed, r as u64);
+        for r in 0..params.engine.restarts {
+            let mut rng = Rng::new(params.engine.seed, r as u64);
             let init = super::init::kmeans_plus_plus_from(data, &start, params.k, &mut rng);
             let res =
                 super::hard::lloyd_fixed(data, &init, pinned, stop_rule(params), params.accelerate);
@@ -135,7 +135,7 @@ pub fn fit_hard(data: &Dataset, params: &ValidParams) -> Result<(usize, super::L
     }
     // Split-and-merge moves after k-means++ starts run on the grid summary annealing's
     // last stage uses (cells σ_max/16 wide), built once for all restarts.
-    let grid = (params.anneal.is_none() && params.split_merge > 0).then(|| {
+    let grid = (params.engine.anneal.is_none() && params.engine.split_merge > 0).then(|| {
         let mut ph = crate::trace::Phases::start("fit");
         let sigma = super::anneal::centroid_and_lambda_max(data).1.sqrt();
         ph.mark("principal axis");
@@ -144,7 +144,7 @@ pub fn fit_hard(data: &Dataset, params: &ValidParams) -> Result<(usize, super::L
         grid
     });
     // The refinement runs on its own grid summary, when that is at most half the rows.
-    let refine = params.anneal.is_none() && !params.refine.is_none();
+    let refine = params.engine.anneal.is_none() && !params.engine.refine.is_none();
     let refine_grid = if refine {
         let mut ph = crate::trace::Phases::start("fit");
         let cell = refine_cell(data, params.k);
@@ -158,40 +158,40 @@ pub fn fit_hard(data: &Dataset, params: &ValidParams) -> Result<(usize, super::L
         .as_ref()
         .and_then(|(rows, weights)| Dataset::new(rows, data.dim(), Some(weights)).ok());
     let mut best = None;
-    for r in 0..params.restarts {
+    for r in 0..params.engine.restarts {
         let mut ph = crate::trace::Phases::start("fit");
-        let init = match &params.anneal {
+        let init = match &params.engine.anneal {
             Some(schedule) => {
                 let a = anneal(
                     data,
                     params.k,
                     schedule,
-                    params.seed ^ r as u64,
-                    params.tolerance,
+                    params.engine.seed ^ r as u64,
+                    params.engine.tolerance,
                 );
                 ph.mark("annealing");
                 a.means.iter().map(|&v| v as f32).collect()
             }
             None => {
-                let mut rng = Rng::new(params.seed, r as u64);
+                let mut rng = Rng::new(params.engine.seed, r as u64);
                 let mut init = kmeans_plus_plus(data, params.k, &mut rng);
                 ph.mark("k-means++");
                 if refine && init.len() / data.dim() >= 2 {
                     // Its own generator stream per start, apart from k-means++'s.
-                    let mut rng = Rng::new(params.seed, REFINE_STREAM | r as u64);
+                    let mut rng = Rng::new(params.engine.seed, REFINE_STREAM | r as u64);
                     let on = summary.as_ref().unwrap_or(data);
-                    init = refine_means(on, &init, params.refine, params.tolerance, &mut rng).means;
+                    init = refine_means(on, &init, params.engine.refine, params.engine.tolerance, &mut rng).means;
                     ph.mark("refinement");
                 }
                 match &grid {
-                    Some((rows, weights)) if params.split_merge > 0 => {
+                    Some((rows, weights)) if params.engine.split_merge > 0 => {
                         let moved = super::split_merge::moves_on_grid(
                             rows,
                             weights,
                             data.dim(),
                             &init,
-                            params.split_merge,
-                            params.tolerance,
+                            params.engine.split_merge,
+                            params.engine.tolerance,
                         );
                         ph.mark("split-and-merge");
                         moved
@@ -248,14 +248,14 @@ pub fn finish(
     restart: usize,
     hard: super::LloydResult,
 ) -> KMeansModel {
-    let beta = match params.beta {
+    let beta = match params.engine.beta {
         Beta::Fixed(b) => Some(b),
         Beta::Auto => auto_beta(hard.sse, data.total_weight(), data.dim()),
     };
     let mut model = KMeansModel {
         dim: data.dim(),
         means: hard.means,
-        mode: params.mode,
+        mode: params.engine.mode,
         beta,
         sse: hard.sse,
         hard_iterations: hard.iterations,
@@ -263,7 +263,7 @@ pub fn finish(
         restart,
         converged: hard.converged,
     };
-    if params.mode == Mode::Soft {
+    if params.engine.mode == Mode::Soft {
         if let Some(b) = beta {
             // Most soft iterations run on a coarse summary of the rows (weighted centroids of
             // grid cells half of σ = 1/√β wide, below the assignment's own scale), then the
@@ -280,14 +280,14 @@ pub fn finish(
                         &start,
                         fixed,
                         b,
-                        params.max_iter,
-                        params.tolerance,
+                        params.engine.max_iter,
+                        params.engine.tolerance,
                     );
                     start = c.means;
                     coarse_iterations = c.iterations;
                 }
             }
-            let soft = soft_kmeans_fixed(data, &start, fixed, b, params.max_iter, params.tolerance);
+            let soft = soft_kmeans_fixed(data, &start, fixed, b, params.engine.max_iter, params.engine.tolerance);
             model.means = soft.means;
             model.soft_iterations = coarse_iterations + soft.iterations;
             model.converged = soft.converged;

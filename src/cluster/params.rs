@@ -1,7 +1,6 @@
 //! Checked k-means parameters: a builder with documented defaults and `check()`.
 
 use crate::error::ParamsError;
-use crate::rng::DEFAULT_SEED;
 
 /// Largest K accepted.
 pub const MAX_K: usize = 65_535;
@@ -95,34 +94,9 @@ impl std::str::FromStr for Beta {
 pub struct KMeansParams {
     /// Number of clusters (no default; at least 1).
     pub k: usize,
-    /// Hard or soft. Default: hard.
-    pub mode: Mode,
-    /// Soft-assignment sharpness. Default: auto.
-    pub beta: Beta,
-    /// Seed of the ChaCha8 generator. Default: [`DEFAULT_SEED`].
-    pub seed: u64,
-    /// Independent k-means++ starts; the lowest SSE is kept. Default: 1.
-    pub restarts: usize,
-    /// Most iterations for each of the hard and soft phases. Default: 300.
-    pub max_iter: usize,
-    /// Stop when the relative objective change of one iteration is at most this. Default: 1e-6.
-    pub tolerance: f64,
-    /// Hard phase also stops when the summed squared moves of the means in one update
-    /// are at most this times the data's mean per-dimension variance. 0 turns it off.
-    /// Default: 1e-4.
-    pub shift_tolerance: f64,
-    /// Start from deterministic annealing instead of k-means++. Default: off.
-    pub anneal: Option<super::Anneal>,
-    /// Most split-and-merge moves after each k-means++ start ([`super::split_merge`], on
-    /// a grid summary of the rows; annealing has its own, `Anneal::split_merge`).
-    /// Default: 0 (none).
-    pub split_merge: usize,
-    /// Global refinement after each k-means++ start ([`super::Refine`]), run on a grid
-    /// summary of the rows and polished by Lloyd on every row. Not used with pinned means
-    /// (the moves would move them), after annealing (which has its own moves), or by
-    /// [`super::fit_from`]. `Refine::None` gives the textbook k-means++ and Lloyd.
-    /// Default: [`super::Refine::default`] (split-and-merge, at most 32 moves).
-    pub refine: super::Refine,
+    /// Every other setting of the engine (mode, β, seed, restarts, iteration limit,
+    /// tolerances, refinement, annealing, split-and-merge moves), with its defaults.
+    pub engine: super::EngineOptions,
     /// Use distance bounds (Hamerly 2010) to skip work; same result as plain Lloyd. Default: true.
     pub accelerate: bool,
     /// Means that must be in the result exactly (`p × dim`, in the feature units): they
@@ -137,58 +111,49 @@ impl KMeansParams {
     pub fn new(k: usize) -> Self {
         KMeansParams {
             k,
-            mode: Mode::Hard,
-            beta: Beta::Auto,
-            seed: DEFAULT_SEED,
-            restarts: 1,
-            max_iter: 300,
-            tolerance: 1e-6,
-            shift_tolerance: 1e-4,
-            anneal: None,
-            split_merge: 0,
-            refine: super::Refine::default(),
+            engine: super::EngineOptions::default(),
             accelerate: true,
             pinned: Vec::new(),
         }
     }
     pub fn mode(mut self, mode: Mode) -> Self {
-        self.mode = mode;
+        self.engine.mode = mode;
         self
     }
     pub fn beta(mut self, beta: Beta) -> Self {
-        self.beta = beta;
+        self.engine.beta = beta;
         self
     }
     pub fn seed(mut self, seed: u64) -> Self {
-        self.seed = seed;
+        self.engine.seed = seed;
         self
     }
     pub fn restarts(mut self, restarts: usize) -> Self {
-        self.restarts = restarts;
+        self.engine.restarts = restarts;
         self
     }
     pub fn max_iter(mut self, max_iter: usize) -> Self {
-        self.max_iter = max_iter;
+        self.engine.max_iter = max_iter;
         self
     }
     pub fn tolerance(mut self, tolerance: f64) -> Self {
-        self.tolerance = tolerance;
+        self.engine.tolerance = tolerance;
         self
     }
     pub fn shift_tolerance(mut self, shift_tolerance: f64) -> Self {
-        self.shift_tolerance = shift_tolerance;
+        self.engine.shift_tolerance = shift_tolerance;
         self
     }
     pub fn anneal(mut self, anneal: Option<super::Anneal>) -> Self {
-        self.anneal = anneal;
+        self.engine.anneal = anneal;
         self
     }
     pub fn split_merge(mut self, moves: usize) -> Self {
-        self.split_merge = moves;
+        self.engine.split_merge = moves;
         self
     }
     pub fn refine(mut self, refine: super::Refine) -> Self {
-        self.refine = refine;
+        self.engine.refine = refine;
         self
     }
     pub fn accelerate(mut self, accelerate: bool) -> Self {
@@ -211,28 +176,7 @@ impl KMeansParams {
                 max: MAX_K,
             });
         }
-        if let Beta::Fixed(b) = self.beta {
-            if !(b.is_finite() && b > 0.0) {
-                return Err(ParamsError::BadBeta(b));
-            }
-        }
-        if !(self.tolerance.is_finite() && self.tolerance >= 0.0) {
-            return Err(ParamsError::BadTolerance(self.tolerance));
-        }
-        if !(self.shift_tolerance.is_finite() && self.shift_tolerance >= 0.0) {
-            return Err(ParamsError::BadShiftTolerance(self.shift_tolerance));
-        }
-        if let Some(a) = &self.anneal {
-            a.check()?;
-        }
-        self.refine.check()?;
-        // Upper bounds keep a typing slip from running for hours.
-        if self.max_iter == 0 || self.max_iter > MAX_ITER {
-            return Err(ParamsError::BadMaxIter(self.max_iter));
-        }
-        if self.restarts == 0 || self.restarts > MAX_RESTARTS {
-            return Err(ParamsError::BadRestarts(self.restarts));
-        }
+        self.engine.check()?;
         if self.pinned.iter().any(|v| !v.is_finite()) {
             return Err(ParamsError::BadPinned(
                 "a pinned mean is not a finite number".into(),

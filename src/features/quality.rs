@@ -171,7 +171,7 @@ pub fn search_k(
         data,
         1,
         target.k_max,
-        params.seed,
+        params.engine.seed,
         crate::cluster::stop_rule(params),
         params.accelerate,
         |k, res| {
