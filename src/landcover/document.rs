@@ -1,0 +1,188 @@
+//! The classes document (`STEM.classes.json`) and its CSV table, built from the fitted
+//! scene and the statistics of pass 2.
+
+use super::fit::FittedScene;
+use super::stats::{ClassStats, ClassTally};
+use super::{LandcoverOptions, CAUTION, UNCERTAINTY_NODATA};
+use crate::cluster::Mode;
+use crate::colour;
+use crate::features::scene::{IndexSpec, Scale};
+use crate::output::DocumentHeader;
+use serde::{Deserialize, Serialize};
+use std::path::Path;
+
+/// Mean and standard deviation of one feature, in its own units.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct FeatureStats {
+    /// Band number (as text) or index name.
+    pub feature: String,
+    pub mean: f64,
+    pub std: f64,
+}
+
+/// One class of the classes document.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct ClassReport {
+    pub class: usize,
+    pub pixels: u64,
+    pub share: f64,
+    pub area_m2: Option<f64>,
+    pub hectares: Option<f64>,
+    pub mean_uncertainty: f64,
+    /// Display colour in the preview.
+    pub hex: String,
+    pub bands: Vec<FeatureStats>,
+}
+
+/// The classes document (`STEM.classes.json`).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct ClassesDocument {
+    /// Tool version, input, seed and every engine setting.
+    #[serde(flatten)]
+    pub header: DocumentHeader,
+    pub caution: String,
+    pub k: usize,
+    pub mode: Mode,
+    pub beta: Option<f64>,
+    /// Σ over valid pixels of the squared distance (in the scaled feature space) to the
+    /// nearest class mean.
+    pub sse: f64,
+    pub bands: Vec<usize>,
+    pub indices: Vec<String>,
+    pub scale: Scale,
+    pub nodata: Option<f64>,
+    pub valid_pixels: u64,
+    pub nodata_pixels: u64,
+    pub sample_pixels: usize,
+    pub pixel_area_m2: Option<f64>,
+    /// Value of nodata pixels in the uncertainty raster.
+    pub uncertainty_nodata: f32,
+    pub classes: Vec<ClassReport>,
+}
+
+impl ClassesDocument {
+    /// The document of a split of `input`: settings from `opts`, counts from `scene`,
+    /// per-class figures from `stats`, display colours `colours` (one per class).
+    pub(super) fn build(
+        input: &Path,
+        opts: &LandcoverOptions,
+        scene: &FittedScene,
+        stats: &ClassStats,
+        colours: &[[u8; 3]],
+    ) -> Self {
+        let feats = scene.classes.features();
+        let pixel_area = scene.info.geo.pixel_area_m2();
+        let classes = stats
+            .classes
+            .iter()
+            .zip(colours)
+            .enumerate()
+            .map(|(i, (tally, &col))| {
+                class_report(
+                    i + 1,
+                    tally,
+                    col,
+                    &feats.names,
+                    scene.valid_pixels,
+                    pixel_area,
+                )
+            })
+            .collect();
+        ClassesDocument {
+            header: DocumentHeader::new(
+                input.file_name().map(|n| n.to_string_lossy().into_owned()),
+                opts.engine,
+            ),
+            caution: CAUTION.into(),
+            k: scene.classes.k,
+            mode: opts.engine.mode,
+            beta: scene.classes.beta,
+            sse: stats.sse,
+            bands: feats.bands.iter().map(|b| b + 1).collect(),
+            indices: opts.scene.indices.iter().map(IndexSpec::name).collect(),
+            scale: opts.scene.scale,
+            nodata: feats.nodata.map(|v| v as f64),
+            valid_pixels: scene.valid_pixels,
+            nodata_pixels: scene.total_pixels - scene.valid_pixels,
+            sample_pixels: scene.sample_pixels,
+            pixel_area_m2: pixel_area,
+            uncertainty_nodata: UNCERTAINTY_NODATA,
+            classes,
+        }
+    }
+
+    /// The document as pretty JSON with a final newline.
+    pub(super) fn to_json(&self) -> String {
+        let json = serde_json::to_string_pretty(self).expect("document serialises");
+        format!("{json}\n")
+    }
+}
+
+/// The report of class number `class` from its tally.
+fn class_report(
+    class: usize,
+    tally: &ClassTally,
+    colour: [u8; 3],
+    feature_names: &[String],
+    valid_pixels: u64,
+    pixel_area: Option<f64>,
+) -> ClassReport {
+    let pixels = tally.pixels;
+    ClassReport {
+        class,
+        pixels,
+        share: pixels as f64 / valid_pixels as f64,
+        area_m2: pixel_area.map(|a| a * pixels as f64),
+        hectares: pixel_area.map(|a| a * pixels as f64 / 10_000.0),
+        mean_uncertainty: if pixels > 0 {
+            tally.uncertainty / pixels as f64
+        } else {
+            0.0
+        },
+        hex: colour::hex(colour),
+        bands: tally
+            .moments
+            .iter()
+            .zip(feature_names)
+            .map(|(m, n)| FeatureStats {
+                feature: n.clone(),
+                mean: m.mean,
+                std: m.std(),
+            })
+            .collect(),
+    }
+}
+
+/// The classes as CSV: one row per class, per-feature mean and std columns.
+pub fn classes_csv(doc: &ClassesDocument) -> String {
+    let mut s = String::from("class,pixels,share,area_m2,hectares,mean_uncertainty");
+    if let Some(c) = doc.classes.first() {
+        for f in &c.bands {
+            // Column names stay CSV-safe: `ndvi:3,4` becomes `ndvi_3_4`.
+            let n: String = f
+                .feature
+                .chars()
+                .map(|ch| if ch.is_alphanumeric() { ch } else { '_' })
+                .collect();
+            s.push_str(&format!(",mean_{n},std_{n}"));
+        }
+    }
+    s.push('\n');
+    let opt = |v: Option<f64>| v.map(|x| format!("{x:.4}")).unwrap_or_default();
+    for c in &doc.classes {
+        s.push_str(&format!(
+            "{},{},{:.6},{},{},{:.6}",
+            c.class,
+            c.pixels,
+            c.share,
+            opt(c.area_m2),
+            opt(c.hectares),
+            c.mean_uncertainty
+        ));
+        for f in &c.bands {
+            s.push_str(&format!(",{:.6},{:.6}", f.mean, f.std));
+        }
+        s.push('\n');
+    }
+    s
+}

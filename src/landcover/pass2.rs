@@ -1,0 +1,124 @@
+//! Pass 2: every pixel is assigned strip by strip while the class raster is written; the
+//! uncertainty rows go over a bounded channel to a second thread that writes the
+//! uncertainty raster, so the scene is read and assigned once.
+
+use super::fit::FittedScene;
+use super::preview::PreviewGrid;
+use super::stats::ClassStats;
+use super::UNCERTAINTY_NODATA;
+use crate::error::{Error, Result};
+use crate::features::scene::RowReader;
+use crate::output::{OutputSet, PendingOutput};
+use crate::raster::geotiff;
+use std::fs::File;
+use std::io::BufWriter;
+use std::sync::mpsc::{sync_channel, Receiver};
+
+/// Strips of uncertainty rows the channel holds before the class pass waits.
+const CHANNEL_STRIPS: usize = 4;
+
+/// What pass 2 gathers besides the two rasters.
+pub(super) struct Pass2 {
+    pub(super) stats: ClassStats,
+    pub(super) preview: PreviewGrid,
+}
+
+/// Runs pass 2 over `scene`: writes the class raster as `class_name` and the uncertainty
+/// raster as `uncertainty_name` into `set`, and returns the statistics and the preview.
+pub(super) fn classify_scene(
+    scene: &mut FittedScene,
+    set: &mut OutputSet,
+    class_name: &str,
+    uncertainty_name: &str,
+) -> Result<Pass2> {
+    let (w, h) = (scene.info.width, scene.info.height);
+    let geo = &scene.info.geo;
+    let fitted = &scene.classes;
+    let mut stats = ClassStats::new(fitted.k, fitted.dim);
+    let mut preview = PreviewGrid::for_scene(w, h);
+    let mut reader = RowReader::new(&mut scene.raster);
+    // One strip: read, assign, sample the preview, add to the statistics.
+    let mut strip = |y0: u32, rows: u32| -> Result<(Vec<u8>, Vec<f32>)> {
+        let raw = reader.rows(y0, rows)?;
+        let assigned = fitted.assign_rows(&raw);
+        preview.take_rows(y0, rows, w, &assigned.classes);
+        stats.add_rows(fitted, &raw, &assigned, w as usize);
+        Ok((assigned.classes, assigned.uncertainty))
+    };
+    let (tx, rx) = sync_channel::<Vec<f32>>(CHANNEL_STRIPS);
+    let unc_out = set.begin(uncertainty_name)?;
+    let mut cls_out = set.begin(class_name)?;
+    let unc_out = std::thread::scope(|scope| -> Result<PendingOutput> {
+        let writer = scope.spawn(move || write_uncertainty(unc_out, rx, w, h, geo));
+        let mut send = |y0: u32, rows: u32| -> Result<Vec<u8>> {
+            let (classes, unc) = strip(y0, rows)?;
+            tx.send(unc)
+                .map_err(|_| Error::Data("the uncertainty writer stopped early".into()))?;
+            Ok(classes)
+        };
+        let classes_done = write_band(&mut cls_out, |wr| {
+            geotiff::write_u8_band(wr, w, h, geo, Some("0"), &mut send)
+        });
+        drop(tx);
+        let unc_done = writer.join().expect("uncertainty writer thread");
+        first_cause(classes_done, unc_done)
+    })?;
+    set.finish(cls_out)?;
+    set.finish(unc_out)?;
+    Ok(Pass2 { stats, preview })
+}
+
+/// The second thread: writes the uncertainty raster from the rows received.
+fn write_uncertainty(
+    mut out: PendingOutput,
+    rx: Receiver<Vec<f32>>,
+    w: u32,
+    h: u32,
+    geo: &geotiff::GeoTags,
+) -> Result<PendingOutput> {
+    let mut buf: Vec<f32> = Vec::new();
+    let mut pull = |_y0: u32, rows: u32| -> Result<Vec<f32>> {
+        let need = rows as usize * w as usize;
+        while buf.len() < need {
+            let more = rx
+                .recv()
+                .map_err(|_| Error::Data("the class pass stopped early".into()))?;
+            buf.extend_from_slice(&more);
+        }
+        Ok(buf.drain(..need).collect())
+    };
+    let nodata = format!("{UNCERTAINTY_NODATA}");
+    write_band(&mut out, |wr| {
+        geotiff::write_f32_band(wr, w, h, geo, Some(&nodata), &mut pull)
+    })?;
+    Ok(out)
+}
+
+/// Writes one raster into `out` and flushes it; a failed flush is reported before a
+/// failed write.
+fn write_band(
+    out: &mut PendingOutput,
+    write: impl FnOnce(&mut BufWriter<&mut File>) -> Result<()>,
+) -> Result<()> {
+    let mut result = Ok(());
+    out.write_with(|wr| {
+        result = write(wr);
+        Ok(())
+    })?;
+    result
+}
+
+/// The outcome of the two writers. When one side fails the other only sees the channel
+/// close: report the cause (a full disk, say), not that the other side stopped early.
+pub(super) fn first_cause(
+    classes: Result<()>,
+    uncertainty: Result<PendingOutput>,
+) -> Result<PendingOutput> {
+    let stopped = |e: &Error| matches!(e, Error::Data(m) if m.ends_with("stopped early"));
+    match (classes, uncertainty) {
+        (Ok(()), Ok(u)) => Ok(u),
+        (Err(e), Err(u)) if stopped(&e) && !stopped(&u) => Err(u),
+        (Err(e), _) => Err(e),
+        (Ok(()), Err(u)) => Err(u),
+    }
+}
