@@ -78,6 +78,7 @@ pub mod cluster;
 pub mod colour;
 pub mod error;
 pub mod families;
+pub mod film;
 pub mod geotiff;
 pub mod histogram;
 pub mod inks;
