@@ -289,15 +289,23 @@ fn mirror_flips_the_whole_page() {
     // Mirrored: the pixel is at the artwork's top-right corner.
     assert!(b.get((art.x + art.w - 1) as i64, art.y as i64));
     assert!(!b.get(art.x as i64, art.y as i64));
-    let mut differ = 0;
-    for y in 0..a.height() as i64 {
+    // Outside the label line (whose words differ), the mirrored page is the plain page
+    // flipped left to right.
+    let (ly, lh) = (plain.layout.label_at.1 as i64, 8 * plain.layout.text_scale as i64);
+    let in_label = |y: i64| y >= ly && y < ly + lh;
+    for y in (0..a.height() as i64).filter(|&y| !in_label(y)) {
         for x in 0..w {
-            assert_eq!(a.get(x, y), b.get(w - 1 - x, y));
-            differ += (a.get(x, y) != b.get(x, y)) as u32;
+            assert_eq!(a.get(x, y), b.get(w - 1 - x, y), "({x}, {y})");
         }
     }
-    assert!(differ > 100, "the label reads backwards: {differ} pixels differ");
-    assert!(mirrored.pages[0].label.contains("emulsion down"));
+    // The label reads backwards: it starts at the right edge of the mirrored page.
+    let lx = plain.layout.label_at.0;
+    let (lw, lh) = (200, lh as u32);
+    assert!(a.count_ink(lx, ly as u32, lw, lh) > 50);
+    assert_eq!(b.count_ink(lx, ly as u32, lw, lh), 0);
+    assert!(b.count_ink(a.width() - lx - lw, ly as u32, lw, lh) > 50);
+    assert!(mirrored.pages[0].label.ends_with("mirrored, emulsion down"));
+    assert!(plain.pages[0].label.ends_with("right reading, emulsion up"));
 }
 
 #[test]
@@ -308,7 +316,8 @@ fn the_label_names_ink_plate_order_and_job_and_fits_the_page() {
     let page = &films.pages[2];
     assert!(page.label.starts_with("Test job  |  A very long ink name"));
     assert!(page.label.contains("plate 3 of 3") && page.label.contains("print 3"));
-    assert!(page.label.contains("55 lpi 15° round"), "{}", page.label);
+    // The only plate with tints takes the first angle of the sequence, 45°.
+    assert!(page.label.contains("55 lpi 45° round"), "{}", page.label);
     assert!(films.pages[0].label.contains("solid"), "no tints on the red plate");
     // The label is inked and lies left of the top registration mark, within the page.
     let (lx, ly) = films.layout.label_at;
@@ -399,8 +408,11 @@ fn the_round_dot_has_the_geometry_of_its_spot_function() {
         for x in 0..240 {
             let (u, v) = cell(x, y);
             let margin = (u.abs() + v.abs() - 0.5).abs();
-            if margin < 0.5 / p {
-                continue; // pixel centre within half a pixel of the edge
+            // Each cell samples its dot shifted by up to half a pixel along each axis (see
+            // the screen's notes), and the cell table has 128 positions a side: skip pixel
+            // centres within 1.1 pixels (in |x| + |y|) of the edge.
+            if margin < 1.1 / p {
+                continue;
             }
             total += 1;
             wrong += (sc.ink(x, y, 128) != (u.abs() + v.abs() < 0.5)) as u32;
@@ -414,9 +426,10 @@ fn the_round_dot_has_the_geometry_of_its_spot_function() {
         for x in 0..120 {
             let (u, v) = cell(x, y);
             let d = (u * u + v * v).sqrt();
-            if d < r - 0.5 / p {
+            // Shifted by at most √2 / 2 pixel, plus the table's spacing.
+            if d < r - 0.85 / p {
                 assert!(sc.ink(x, y, a20), "({x}, {y}) inside the disc");
-            } else if d > r + 0.5 / p {
+            } else if d > r + 0.85 / p {
                 assert!(!sc.ink(x, y, a20), "({x}, {y}) outside the disc");
             }
         }
@@ -594,7 +607,7 @@ fn thin_long_lines_survive_and_small_specks_go() {
             (f.x, f.y, f.width, f.height)
         })
         .collect();
-    assert_eq!(removed, vec![(170, 74, 3, 3), (10, 50, 10, 1), (80, 50, 2, 2), (100, 50, 5, 5)]);
+    assert_eq!(removed, vec![(10, 50, 10, 1), (80, 50, 2, 2), (100, 50, 5, 5), (170, 74, 3, 3)]);
     // Only those pixels changed.
     let changed = original.amount.iter().zip(&plates[0].amount).filter(|(a, b)| a != b).count();
     assert_eq!(changed, 9 + 10 + 4 + 25);

@@ -22,6 +22,10 @@ const EDGE_MM: f64 = 2.0;
 const TEXT_MM: f64 = 2.0;
 const PATCH_W_MM: f64 = 4.0;
 const PATCH_H_MM: f64 = 3.0;
+/// The last words of the label. The layout leaves room for the longer of the two, so a
+/// mirrored set and a right-reading set of one job have the same page.
+const MIRRORED: &str = "mirrored, emulsion down";
+const RIGHT_READING: &str = "right reading, emulsion up";
 /// Steps of the strip, in per cent.
 pub const STRIP_STEPS: [u8; 11] = [0, 10, 20, 30, 40, 50, 60, 70, 80, 90, 100];
 
@@ -77,9 +81,16 @@ impl FilmLayout {
         let (patch_w, patch_h) = (mm(PATCH_W_MM, dpi).max(4.0), mm(PATCH_H_MM, dpi).max(3.0));
         if opts.marks {
             // Label: from `edge` to the left of the top registration mark.
+            // Measured as if every label ended with the longer of the two last phrases.
+            let (long, short) = if MIRRORED.len() > RIGHT_READING.len() {
+                (MIRRORED, RIGHT_READING)
+            } else {
+                (RIGHT_READING, MIRRORED)
+            };
+            let pad = (long.len() - short.len()) as u64 * 8 * text_scale as u64;
             let longest = labels
                 .iter()
-                .map(|l| text_width(l, text_scale))
+                .map(|l| text_width(l, text_scale) + if l.ends_with(short) { pad } else { 0 })
                 .max()
                 .unwrap_or(0) as f64;
             let need_label = 2.0 * (edge + longest + edge + reg_reach);
@@ -204,11 +215,7 @@ pub fn label_text(
         None => "solid".into(),
     });
     parts.push(format!("{} dpi", super::screen::trim_number(opts.dpi)));
-    parts.push(if opts.mirror {
-        "emulsion down (mirrored)".into()
-    } else {
-        "right reading".into()
-    });
+    parts.push(if opts.mirror { MIRRORED } else { RIGHT_READING }.into());
     parts.join("  |  ")
 }
 

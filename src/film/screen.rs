@@ -5,7 +5,13 @@
 //!   angle. Within a cell a *spot function* orders the positions (the centre inks first);
 //!   the threshold of a position is the share of the cell whose spot value is lower, so a
 //!   tint of t covers exactly the share t of every cell (up to the sampling of the cell
-//!   into [`CELL_SAMPLES`]² positions and the film's pixels).
+//!   into [`CELL_SAMPLES`]² positions and the film's pixels). Film pixels sample the cell
+//!   at their centres; where a cell is only a few pixels wide, or the grid lines up with
+//!   the pixels (0°, 45°), the centres fall on the same few positions of every cell and
+//!   whole rows of them flip together, so a tint could be off by several per cent. Each
+//!   cell's sampling is therefore shifted by a fixed pseudo-random fraction of a pixel
+//!   (at most ½ pixel along each axis, the same on every run for a seed): the dots stay
+//!   whole and in place within a pixel, and the covered share is right on average.
 //!   - Round: inside the diamond |x| + |y| ≤ ½ (cell coordinates in −½..½) the spot is the
 //!     squared distance to the cell centre, outside it 1 − the squared distance to the
 //!     nearest cell corner. Up to π/8 ≈ 39.3 % the dot is a disc, at 50 % exactly the
@@ -154,6 +160,8 @@ pub struct Screener {
     table: Vec<f32>,
     /// FM: film pixels per matrix cell.
     dot: usize,
+    /// AM: seed of the cells' sampling shifts.
+    seed: u64,
 }
 
 impl Screener {
@@ -180,6 +188,7 @@ impl Screener {
             sin: rad.sin(),
             table,
             dot,
+            seed: ht.seed,
         })
     }
 
@@ -192,9 +201,13 @@ impl Screener {
                 let (px, py) = (x as f64 + 0.5, y as f64 + 0.5);
                 let u = (px * self.cos - py * self.sin) / self.period;
                 let v = (px * self.sin + py * self.cos) / self.period;
+                let (cu, cv) = (u.floor(), v.floor());
+                let (du, dv) = cell_shift(cu as i64, cv as i64, self.seed);
+                let fu = (u - cu + du / self.period).rem_euclid(1.0);
+                let fv = (v - cv + dv / self.period).rem_euclid(1.0);
                 let n = CELL_SAMPLES as f64;
-                let i = (((u - u.floor()) * n) as usize).min(CELL_SAMPLES - 1);
-                let j = (((v - v.floor()) * n) as usize).min(CELL_SAMPLES - 1);
+                let i = ((fu * n) as usize).min(CELL_SAMPLES - 1);
+                let j = ((fv * n) as usize).min(CELL_SAMPLES - 1);
                 self.table[j * CELL_SAMPLES + i]
             }
             ScreenKind::Stochastic => {
@@ -236,6 +249,21 @@ impl Screener {
             ScreenKind::Stochastic => format!("stochastic {} px dot", self.dot),
         }
     }
+}
+
+/// The sampling shift of AM cell (cu, cv), in film pixels along the cell's axes, each in
+/// −½..½: a fixed pseudo-random value (SplitMix64 of the cell and the seed).
+fn cell_shift(cu: i64, cv: i64, seed: u64) -> (f64, f64) {
+    let mix = |mut z: u64| {
+        z = z.wrapping_add(0x9E37_79B9_7F4A_7C15);
+        z = (z ^ (z >> 30)).wrapping_mul(0xBF58_476D_1CE4_E5B9);
+        z = (z ^ (z >> 27)).wrapping_mul(0x94D0_49BB_1331_11EB);
+        z ^ (z >> 31)
+    };
+    let h = mix(mix(mix(seed) ^ cu as u64) ^ (cv as u64).rotate_left(32));
+    let a = (h >> 40) as f64 / (1u64 << 24) as f64 - 0.5;
+    let b = ((h >> 16) & 0xFF_FFFF) as f64 / (1u64 << 24) as f64 - 0.5;
+    (a, b)
 }
 
 /// A number with at most two decimals and no trailing zeros.
