@@ -291,7 +291,8 @@ fn mirror_flips_the_whole_page() {
     assert!(!b.get(art.x as i64, art.y as i64));
     // Outside the label line (whose words differ), the mirrored page is the plain page
     // flipped left to right.
-    let (ly, lh) = (plain.layout.label_at.1 as i64, 8 * plain.layout.text_scale as i64);
+    let l = &plain.layout;
+    let (ly, lh) = (l.label_at.1 as i64, (10 * l.label_lines * l.text_scale) as i64);
     let in_label = |y: i64| y >= ly && y < ly + lh;
     for y in (0..a.height() as i64).filter(|&y| !in_label(y)) {
         for x in 0..w {
@@ -314,17 +315,30 @@ fn the_label_names_ink_plate_order_and_job_and_fits_the_page() {
     plates[2].ink = "A very long ink name that needs more room than the artwork gives".into();
     let films = make_films(&plates, None, &opts(300.0)).unwrap();
     let page = &films.pages[2];
-    assert!(page.label.starts_with("Test job  |  A very long ink name"));
+    assert!(page.label.starts_with("Test job  /  A very long ink name"));
     assert!(page.label.contains("plate 3 of 3") && page.label.contains("print 3"));
     // The only plate with tints takes the first angle of the sequence, 45°.
     assert!(page.label.contains("55 lpi 45° round"), "{}", page.label);
     assert!(films.pages[0].label.contains("solid"), "no tints on the red plate");
-    // The label is inked and lies left of the top registration mark, within the page.
-    let (lx, ly) = films.layout.label_at;
-    let text_w = page.label.chars().count() as u32 * 8 * films.layout.text_scale;
-    let top = films.layout.registration[0];
-    assert!(((lx + text_w) as f64) < top.0 - films.layout.registration_radius);
-    assert!(page.bitmap.count_ink(lx, ly, text_w, 8 * films.layout.text_scale) > 100);
+    // The label is wrapped onto the lines the top margin holds (20 mm: 4 lines of 2 mm
+    // text), each inked, left of the top registration mark.
+    let l = &films.layout;
+    assert_eq!(l.label_lines, 4);
+    let lines = film::wrap_label(&page.label, l.label_width, l.text_scale);
+    assert!(lines.len() > 1 && lines.len() <= 4, "{lines:?}");
+    // Nothing lost: the same words in the same order.
+    let words = |s: &str| s.split_whitespace().filter(|w| *w != "/").collect::<Vec<_>>().join(" ");
+    assert_eq!(words(&lines.join(" ")), words(&page.label));
+    let top = l.registration[0];
+    let (lx, ly) = l.label_at;
+    for (k, line) in lines.iter().enumerate() {
+        let text_w = line.chars().count() as u32 * 8 * l.text_scale;
+        assert!(((lx + text_w) as f64) < top.0 - l.registration_radius);
+        let y = ly + k as u32 * 10 * l.text_scale;
+        assert!(page.bitmap.count_ink(lx, y, text_w, 8 * l.text_scale) > 50, "line {k}");
+    }
+    // Nothing of the label reaches the artwork.
+    assert!(ly + 4 * 10 * l.text_scale < l.art.y);
 }
 
 // ---------------------------------------------------------------------------------------

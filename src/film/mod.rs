@@ -58,7 +58,7 @@ pub use cleanup::{
     CleanupReport, MinFeature, SmallFeature,
 };
 pub use distance::squared_distance_to_background;
-pub use page::{FilmLayout, FilmPage, Rect};
+pub use page::{label_text, wrap_label, FilmLayout, FilmPage, Rect, LABEL_SEPARATOR, STRIP_STEPS};
 pub use screen::{auto_angles, DotShape, Halftone, ScreenKind, Screener};
 pub use underbase::{add_underbase, highlight_white, underbase, UnderbaseFill, UnderbaseOptions};
 pub use write::{

@@ -1,6 +1,7 @@
 //! The film page: the screened plate on a clear margin with registration marks (a ring
 //! and cross at the middle of each side, the same on every plate), crop marks at the
-//! artwork's corners, a label line at the top left and a step strip (0–100 % in 10 %
+//! artwork's corners, a label (ink, plate, print order, job, screen; wrapped onto as many
+//! lines as the top margin holds) at the top left and a step strip (0–100 % in 10 %
 //! steps, screened like the plate, in a frame) at the bottom right.
 //!
 //! Every mark is drawn about centres that are symmetric about the page's vertical centre
@@ -54,14 +55,80 @@ pub struct FilmLayout {
     pub registration_radius: f64,
     /// The step strip's patches, left to right (empty without marks).
     pub strip: Vec<Rect>,
-    /// Top-left corner of the label line and its scale (film pixels per glyph pixel).
+    /// Top-left corner of the label, the width its lines may take, how many lines fit,
+    /// and its scale (film pixels per glyph pixel; a line is 10 glyph pixels high).
     pub label_at: (u32, u32),
+    pub label_width: u64,
+    pub label_lines: u32,
     pub text_scale: u32,
     pub line_px: f64,
 }
 
 fn mm(v: f64, dpi: f64) -> f64 {
     v / MM_PER_INCH * dpi
+}
+
+/// Where crop marks start and end, measured from the artwork's edge, for a margin of `m`
+/// film pixels: 1.5 mm off the artwork, 5 mm long or shorter to stay 1 mm inside the page.
+fn crop_reach(m: f64, dpi: f64) -> (f64, f64) {
+    let gap = mm(CROP_GAP_MM, dpi).max(1.0);
+    let len = mm(CROP_LENGTH_MM, dpi).min(m - gap - mm(1.0, dpi)).max(1.0);
+    (gap, gap + len)
+}
+
+/// Separator of the label's fields.
+pub const LABEL_SEPARATOR: &str = "  /  ";
+
+/// Breaks a label into lines of at most `width` film pixels at `scale`: between fields
+/// where possible, a field longer than a line between its words, a word longer than a
+/// line cut.
+pub fn wrap_label(label: &str, width: u64, scale: u32) -> Vec<String> {
+    let per_line = (width / (8 * scale as u64)).max(1) as usize;
+    let mut lines: Vec<String> = Vec::new();
+    let mut cur = String::new();
+    for field in label.split(LABEL_SEPARATOR) {
+        let joined = if cur.is_empty() {
+            field.to_string()
+        } else {
+            format!("{cur}{LABEL_SEPARATOR}{field}")
+        };
+        if joined.chars().count() <= per_line {
+            cur = joined;
+            continue;
+        }
+        if !cur.is_empty() {
+            lines.push(std::mem::take(&mut cur));
+        }
+        // The field alone on lines: broken between words, a word longer than a line cut.
+        for word in field.split(' ') {
+            let joined = if cur.is_empty() {
+                word.to_string()
+            } else {
+                format!("{cur} {word}")
+            };
+            if joined.chars().count() <= per_line {
+                cur = joined;
+                continue;
+            }
+            if !cur.is_empty() {
+                lines.push(std::mem::take(&mut cur));
+            }
+            let chars: Vec<char> = word.chars().collect();
+            let mut chunks = chars.chunks(per_line).peekable();
+            while let Some(c) = chunks.next() {
+                let c: String = c.iter().collect();
+                if chunks.peek().is_some() {
+                    lines.push(c);
+                } else {
+                    cur = c;
+                }
+            }
+        }
+    }
+    if !cur.is_empty() {
+        lines.push(cur);
+    }
+    lines
 }
 
 impl FilmLayout {
@@ -79,25 +146,44 @@ impl FilmLayout {
         let reg_reach = reg_r + mm(REG_OVERRUN_MM, dpi) + line_px;
         let edge = mm(EDGE_MM, dpi).max(2.0);
         let (patch_w, patch_h) = (mm(PATCH_W_MM, dpi).max(4.0), mm(PATCH_H_MM, dpi).max(3.0));
+        let mut label_lines = 1u32;
+        let mut label_width = 0u64;
         if opts.marks {
-            // Label: from `edge` to the left of the top registration mark.
-            // Measured as if every label ended with the longer of the two last phrases.
+            // Strip: right of the bottom registration mark.
+            let strip_w = patch_w * STRIP_STEPS.len() as f64 + 2.0 * line_px;
+            let need_strip = 2.0 * (reg_reach + edge + strip_w + edge);
+            width = width.max(need_strip.ceil() as u64);
+            // Label: lines from `edge` down to above the top crop marks, from `edge` to the
+            // left of the top registration mark. Measured as if every label ended with the
+            // longer of the two last phrases. The page widens until every label fits.
+            let line_h = 10 * text_scale as u64;
+            let (_, crop_end) = crop_reach(m as f64, dpi);
+            let room = (m as f64 - crop_end - mm(1.0, dpi) - edge).max(0.0) as u64;
+            label_lines = (((room + 2 * text_scale as u64) / line_h) as u32).max(1);
             let (long, short) = if MIRRORED.len() > RIGHT_READING.len() {
                 (MIRRORED, RIGHT_READING)
             } else {
                 (RIGHT_READING, MIRRORED)
             };
-            let pad = (long.len() - short.len()) as u64 * 8 * text_scale as u64;
-            let longest = labels
+            let measured: Vec<String> = labels
                 .iter()
-                .map(|l| text_width(l, text_scale) + if l.ends_with(short) { pad } else { 0 })
-                .max()
-                .unwrap_or(0) as f64;
-            let need_label = 2.0 * (edge + longest + edge + reg_reach);
-            // Strip: right of the bottom registration mark.
-            let strip_w = patch_w * STRIP_STEPS.len() as f64 + 2.0 * line_px;
-            let need_strip = 2.0 * (reg_reach + edge + strip_w + edge);
-            width = width.max(need_label.ceil() as u64).max(need_strip.ceil() as u64);
+                .map(|l| match l.strip_suffix(short) {
+                    Some(head) => format!("{head}{long}"),
+                    None => l.clone(),
+                })
+                .collect();
+            let step = 16 * text_scale as u64;
+            loop {
+                let avail = (width as f64 / 2.0 - reg_reach - 2.0 * edge).max(0.0) as u64;
+                let fits = measured
+                    .iter()
+                    .all(|l| wrap_label(l, avail, text_scale).len() as u32 <= label_lines);
+                if fits {
+                    label_width = avail;
+                    break;
+                }
+                width += step;
+            }
         }
         // Equal margins left and right.
         if (width - art_w as u64) % 2 == 1 {
@@ -131,6 +217,8 @@ impl FilmLayout {
             registration_radius: 0.0,
             strip: Vec::new(),
             label_at: (edge.round() as u32, edge.round() as u32),
+            label_width,
+            label_lines,
             text_scale,
             line_px,
         };
@@ -147,12 +235,14 @@ impl FilmLayout {
             layout.registration_radius = reg_r;
             let x0 = (w / 2.0 + reg_reach + edge + line_px).round() as u32;
             let y0 = (h - edge - line_px - patch_h).round() as u32;
+            // Patches with a clear line between them.
             let pw = patch_w.round() as u32;
+            let gap = (line_px.round() as u32).min(pw / 2);
             layout.strip = (0..STRIP_STEPS.len() as u32)
                 .map(|k| Rect {
-                    x: x0 + k * pw,
+                    x: x0 + k * pw + gap.div_ceil(2),
                     y: y0,
-                    w: pw,
+                    w: pw - gap,
                     h: patch_h.round() as u32,
                 })
                 .collect();
@@ -162,9 +252,8 @@ impl FilmLayout {
 
     /// Crop marks: (x0, y0, x1, y1) segments in continuous film coordinates.
     fn crop_marks(&self) -> Vec<(f64, f64, f64, f64)> {
-        let gap = mm(CROP_GAP_MM, self.dpi).max(1.0);
-        let m = self.art.y as f64;
-        let len = mm(CROP_LENGTH_MM, self.dpi).min(m - gap - mm(1.0, self.dpi)).max(1.0);
+        let (gap, end) = crop_reach(self.art.y as f64, self.dpi);
+        let len = end - gap;
         let (l, t) = (self.art.x as f64, self.art.y as f64);
         let (r, b) = (l + self.art.w as f64, t + self.art.h as f64);
         let mut v = Vec::new();
@@ -216,7 +305,7 @@ pub fn label_text(
     });
     parts.push(format!("{} dpi", super::screen::trim_number(opts.dpi)));
     parts.push(if opts.mirror { MIRRORED } else { RIGHT_READING }.into());
-    parts.join("  |  ")
+    parts.join(LABEL_SEPARATOR)
 }
 
 /// Pixels whose centres lie in a segment of width `lw` (axis-aligned) or a ring.
@@ -299,13 +388,16 @@ impl FilmPage {
             for seg in layout.crop_marks() {
                 stroke_segment(&mut b, seg, lw);
             }
-            draw_text(
-                &mut b,
-                layout.label_at.0 as i64,
-                layout.label_at.1 as i64,
-                layout.text_scale,
-                &label,
-            );
+            let lines = wrap_label(&label, layout.label_width, layout.text_scale);
+            for (k, line) in lines.iter().take(layout.label_lines as usize).enumerate() {
+                draw_text(
+                    &mut b,
+                    layout.label_at.0 as i64,
+                    layout.label_at.1 as i64 + k as i64 * 10 * layout.text_scale as i64,
+                    layout.text_scale,
+                    line,
+                );
+            }
             let sc = screen.unwrap_or(strip_screen);
             for (patch, &step) in layout.strip.iter().zip(STRIP_STEPS.iter()) {
                 let a = (step as f64 / 100.0 * 255.0).round() as u8;
@@ -319,8 +411,9 @@ impl FilmPage {
             }
             // A frame around the strip, outside the patches.
             if let (Some(first), Some(last)) = (layout.strip.first(), layout.strip.last()) {
-                let (x0, y0) = (first.x as f64, first.y as f64);
-                let (x1, y1) = ((last.x + last.w) as f64, (last.y + last.h) as f64);
+                let gap = ((layout.line_px.round() as u32).min(first.w) as f64 / 2.0).ceil();
+                let (x0, y0) = (first.x as f64 - gap, first.y as f64);
+                let (x1, y1) = ((last.x + last.w) as f64 + gap, (last.y + last.h) as f64);
                 fill_box(&mut b, x0 - lw, y0 - lw, x1 + lw, y0);
                 fill_box(&mut b, x0 - lw, y1, x1 + lw, y1 + lw);
                 fill_box(&mut b, x0 - lw, y0, x0, y1);
