@@ -18,15 +18,18 @@
 use chromasift::film::{
     self, auto_angles, make_films, pdf_bytes, png_bytes, squared_distance_to_background,
     tiff_bytes, write_films, AlphaRule, CleanupAction, DotShape, FilmFormats, FilmOptions,
-    Halftone, Length, MinFeature, PlateImage, ScreenKind, Screener, SmallFeature,
-    UnderbaseFill, UnderbaseOptions,
+    Halftone, Length, MinFeature, PlateImage, ScreenKind, Screener, SmallFeature, UnderbaseFill,
+    UnderbaseOptions,
 };
 use chromasift::Error;
 use std::io::Cursor;
 
 /// A plate of `w × h` whose amount is `f(x, y)`.
 fn plate(ink: &str, n: usize, w: u32, h: u32, f: impl Fn(u32, u32) -> u8) -> PlateImage {
-    let amount = (0..h).flat_map(|y| (0..w).map(move |x| (x, y))).map(|(x, y)| f(x, y)).collect();
+    let amount = (0..h)
+        .flat_map(|y| (0..w).map(move |x| (x, y)))
+        .map(|(x, y)| f(x, y))
+        .collect();
     PlateImage::new(ink, n, n, w, h, amount).unwrap()
 }
 
@@ -34,12 +37,28 @@ fn plate(ink: &str, n: usize, w: u32, h: u32, f: impl Fn(u32, u32) -> u8) -> Pla
 fn three_plates() -> Vec<PlateImage> {
     let (w, h) = (240, 160);
     vec![
-        plate("Warm red", 1, w, h, |x, y| if x < 100 && y < 80 { 255 } else { 0 }),
+        plate(
+            "Warm red",
+            1,
+            w,
+            h,
+            |x, y| if x < 100 && y < 80 { 255 } else { 0 },
+        ),
         plate("Process blue", 2, w, h, |x, y| {
             let d = ((x as f64 - 170.0).powi(2) + (y as f64 - 90.0).powi(2)).sqrt();
-            if (30.0..50.0).contains(&d) { 255 } else { 0 }
+            if (30.0..50.0).contains(&d) {
+                255
+            } else {
+                0
+            }
         }),
-        plate("Black", 3, w, h, |x, y| if y > 120 { (x * 255 / (w - 1)) as u8 } else { 0 }),
+        plate("Black", 3, w, h, |x, y| {
+            if y > 120 {
+                (x * 255 / (w - 1)) as u8
+            } else {
+                0
+            }
+        }),
     ]
 }
 
@@ -82,7 +101,10 @@ fn tiff_carries_size_resolution_and_the_bits() {
             // Physical size = pixels / dpi: the artwork plus two 20 mm margins tall.
             let height_mm = h as f64 / dpi * 25.4;
             let expected = 160.0 / dpi * 25.4 + 2.0 * 20.0;
-            assert!((height_mm - expected).abs() <= 25.4 / dpi, "{height_mm} vs {expected}");
+            assert!(
+                (height_mm - expected).abs() <= 25.4 / dpi,
+                "{height_mm} vs {expected}"
+            );
             // The decoder returns black-is-zero samples, rows padded to whole bytes.
             let DecodingResult::U8(data) = d.read_image().unwrap() else {
                 panic!("8-bit buffer expected for a 1-bit image")
@@ -115,7 +137,10 @@ fn png_carries_pixels_per_metre() {
     assert_eq!((dims.xppu, dims.yppu), (11811, 11811));
     let mut buf = vec![0; reader.output_buffer_size().unwrap()];
     let frame = reader.next_frame(&mut buf).unwrap();
-    assert_eq!((frame.width, frame.height), (page.bitmap.width(), page.bitmap.height()));
+    assert_eq!(
+        (frame.width, frame.height),
+        (page.bitmap.width(), page.bitmap.height())
+    );
     // 0 is black in PNG greyscale: ink.
     let rb = frame.line_size;
     let ink = |x: usize, y: usize| buf[y * rb + x / 8] & (0x80 >> (x % 8)) == 0;
@@ -151,7 +176,10 @@ fn pdf_has_one_true_size_page_per_film() {
         let w_pt = film.bitmap.width() as f64 / 300.0 * 72.0;
         let h_pt = film.bitmap.height() as f64 / 300.0 * 72.0;
         assert!(media[0] == 0.0 && media[1] == 0.0);
-        assert!((media[2] - w_pt).abs() < 0.01 && (media[3] - h_pt).abs() < 0.01, "{media:?}");
+        assert!(
+            (media[2] - w_pt).abs() < 0.01 && (media[3] - h_pt).abs() < 0.01,
+            "{media:?}"
+        );
         // TrimBox: the artwork, 240 × 160 px, i.e. 57.6 × 38.4 pt, 20 mm (56.69 pt) from
         // the bottom.
         let trim = boxed(b"TrimBox");
@@ -166,11 +194,21 @@ fn pdf_has_one_true_size_page_per_film() {
             .as_dict()
             .unwrap();
         let (_, r) = xobjects.iter().next().unwrap();
-        let stream = doc.get_object(r.as_reference().unwrap()).unwrap().as_stream().unwrap();
+        let stream = doc
+            .get_object(r.as_reference().unwrap())
+            .unwrap()
+            .as_stream()
+            .unwrap();
         let d = &stream.dict;
         assert_eq!(d.get(b"BitsPerComponent").unwrap().as_i64().unwrap(), 1);
-        assert_eq!(d.get(b"Width").unwrap().as_i64().unwrap(), film.bitmap.width() as i64);
-        assert_eq!(d.get(b"Height").unwrap().as_i64().unwrap(), film.bitmap.height() as i64);
+        assert_eq!(
+            d.get(b"Width").unwrap().as_i64().unwrap(),
+            film.bitmap.width() as i64
+        );
+        assert_eq!(
+            d.get(b"Height").unwrap().as_i64().unwrap(),
+            film.bitmap.height() as i64
+        );
         assert_eq!(d.get(b"Filter").unwrap().as_name().unwrap(), b"FlateDecode");
         assert_eq!(stream.decompressed_content().unwrap(), film.bitmap.bytes());
     }
@@ -187,8 +225,14 @@ fn write_films_lands_every_file_and_no_temporary_one() {
     let films = make_films(&plates, None, &o).unwrap();
     // An earlier run's file of the same name is replaced.
     std::fs::write(dir.path().join("poster.films.pdf"), b"old").unwrap();
-    let written = write_films(dir.path(), "poster", &films, FilmFormats::default(), "Test job")
-        .unwrap();
+    let written = write_films(
+        dir.path(),
+        "poster",
+        &films,
+        FilmFormats::default(),
+        "Test job",
+    )
+    .unwrap();
     let mut names: Vec<String> = std::fs::read_dir(dir.path())
         .unwrap()
         .map(|e| e.unwrap().file_name().into_string().unwrap())
@@ -209,7 +253,9 @@ fn write_films_lands_every_file_and_no_temporary_one() {
         ]
     );
     assert_eq!(written.len(), names.len());
-    assert!(std::fs::read(dir.path().join("poster.films.pdf")).unwrap().starts_with(b"%PDF-"));
+    assert!(std::fs::read(dir.path().join("poster.films.pdf"))
+        .unwrap()
+        .starts_with(b"%PDF-"));
     let csv = std::fs::read_to_string(dir.path().join("poster.cleanup.csv")).unwrap();
     assert!(csv.contains("1,Warm red,removed,200,150,1,1,1,0"), "{csv}");
     if let Ok(keep) = std::env::var("CHROMASIFT_KEEP_FILMS") {
@@ -241,13 +287,21 @@ fn registration_marks_sit_at_the_same_place_on_every_plate() {
             // Outside the artwork.
             let a = layout.art;
             let inside = |x: i64, y: i64| {
-                x >= a.x as i64 && y >= a.y as i64 && x < (a.x + a.w) as i64 && y < (a.y + a.h) as i64
+                x >= a.x as i64
+                    && y >= a.y as i64
+                    && x < (a.x + a.w) as i64
+                    && y < (a.y + a.h) as i64
             };
             for page in &films.pages {
                 assert_eq!(page.bitmap.width(), first.width());
                 for y in cj - reach..=cj + reach {
                     for x in ci - reach..=ci + reach {
-                        assert_eq!(page.bitmap.get(x, y), first.get(x, y), "({x}, {y}) on {}", page.ink);
+                        assert_eq!(
+                            page.bitmap.get(x, y),
+                            first.get(x, y),
+                            "({x}, {y}) on {}",
+                            page.ink
+                        );
                     }
                 }
             }
@@ -277,7 +331,13 @@ fn registration_marks_sit_at_the_same_place_on_every_plate() {
 #[test]
 fn mirror_flips_the_whole_page() {
     // One solid pixel at the artwork's top-left corner.
-    let p = plate("Black", 1, 50, 30, |x, y| if x == 0 && y == 0 { 255 } else { 0 });
+    let p = plate(
+        "Black",
+        1,
+        50,
+        30,
+        |x, y| if x == 0 && y == 0 { 255 } else { 0 },
+    );
     let mut o = opts(300.0);
     let plain = make_films(std::slice::from_ref(&p), None, &o).unwrap();
     o.mirror = true;
@@ -292,7 +352,10 @@ fn mirror_flips_the_whole_page() {
     // Outside the label line (whose words differ), the mirrored page is the plain page
     // flipped left to right.
     let l = &plain.layout;
-    let (ly, lh) = (l.label_at.1 as i64, (10 * l.label_lines * l.text_scale) as i64);
+    let (ly, lh) = (
+        l.label_at.1 as i64,
+        (10 * l.label_lines * l.text_scale) as i64,
+    );
     let in_label = |y: i64| y >= ly && y < ly + lh;
     for y in (0..a.height() as i64).filter(|&y| !in_label(y)) {
         for x in 0..w {
@@ -319,7 +382,10 @@ fn the_label_names_ink_plate_order_and_job_and_fits_the_page() {
     assert!(page.label.contains("plate 3 of 3") && page.label.contains("print 3"));
     // The only plate with tints takes the first angle of the sequence, 45°.
     assert!(page.label.contains("55 lpi 45° round"), "{}", page.label);
-    assert!(films.pages[0].label.contains("solid"), "no tints on the red plate");
+    assert!(
+        films.pages[0].label.contains("solid"),
+        "no tints on the red plate"
+    );
     // The label is wrapped onto the lines the top margin holds (20 mm: 4 lines of 2 mm
     // text), each inked, left of the top registration mark.
     let l = &films.layout;
@@ -327,7 +393,12 @@ fn the_label_names_ink_plate_order_and_job_and_fits_the_page() {
     let lines = film::wrap_label(&page.label, l.label_width, l.text_scale);
     assert!(lines.len() > 1 && lines.len() <= 4, "{lines:?}");
     // Nothing lost: the same words in the same order.
-    let words = |s: &str| s.split_whitespace().filter(|w| *w != "/").collect::<Vec<_>>().join(" ");
+    let words = |s: &str| {
+        s.split_whitespace()
+            .filter(|w| *w != "/")
+            .collect::<Vec<_>>()
+            .join(" ")
+    };
     assert_eq!(words(&lines.join(" ")), words(&page.label));
     let top = l.registration[0];
     let (lx, ly) = l.label_at;
@@ -335,7 +406,10 @@ fn the_label_names_ink_plate_order_and_job_and_fits_the_page() {
         let text_w = line.chars().count() as u32 * 8 * l.text_scale;
         assert!(((lx + text_w) as f64) < top.0 - l.registration_radius);
         let y = ly + k as u32 * 10 * l.text_scale;
-        assert!(page.bitmap.count_ink(lx, y, text_w, 8 * l.text_scale) > 50, "line {k}");
+        assert!(
+            page.bitmap.count_ink(lx, y, text_w, 8 * l.text_scale) > 50,
+            "line {k}"
+        );
     }
     // Nothing of the label reaches the artwork.
     assert!(ly + 4 * 10 * l.text_scale < l.art.y);
@@ -362,7 +436,11 @@ fn dot_area_matches_the_tint_on_a_wedge() {
         for lpi in [45.0, 55.0, 65.0] {
             for shape in [DotShape::Round, DotShape::Elliptical] {
                 for angle in [0.0, 15.0, 22.5, 45.0, 75.0] {
-                    let ht = Halftone { kind: ScreenKind::Am(shape), lpi, ..Halftone::default() };
+                    let ht = Halftone {
+                        kind: ScreenKind::Am(shape),
+                        lpi,
+                        ..Halftone::default()
+                    };
                     let sc = Screener::new(&ht, angle, dpi).unwrap();
                     for step in 1..=9 {
                         let t = step as f64 / 10.0;
@@ -376,12 +454,18 @@ fn dot_area_matches_the_tint_on_a_wedge() {
                 }
             }
         }
-        let ht = Halftone { kind: ScreenKind::Stochastic, ..Halftone::default() };
+        let ht = Halftone {
+            kind: ScreenKind::Stochastic,
+            ..Halftone::default()
+        };
         let sc = Screener::new(&ht, 0.0, dpi).unwrap();
         for step in 1..=9 {
             let a = (step as f64 / 10.0 * 255.0).round() as u8;
             let got = share(&sc, a, 256);
-            assert!((got - a as f64 / 255.0).abs() <= 0.02, "stochastic {step}0 %: {got}");
+            assert!(
+                (got - a as f64 / 255.0).abs() <= 0.02,
+                "stochastic {step}0 %: {got}"
+            );
         }
     }
 }
@@ -390,14 +474,19 @@ fn dot_area_matches_the_tint_on_a_wedge() {
 fn the_wedge_through_the_whole_film_path() {
     // Nine bands of 10 %..90 %, 120 px wide each, screened on the film page.
     for dpi in [300.0, 600.0] {
-        let p = plate("Black", 1, 9 * 120, 200, |x, _| ((x / 120 + 1) as f64 * 25.5).round() as u8);
+        let p = plate("Black", 1, 9 * 120, 200, |x, _| {
+            ((x / 120 + 1) as f64 * 25.5).round() as u8
+        });
         let films = make_films(&[p], None, &opts(dpi)).unwrap();
         let (page, art) = (&films.pages[0], films.layout.art);
         for band in 0..9u32 {
             let inked = page.bitmap.count_ink(art.x + band * 120, art.y, 120, 200);
             let got = inked as f64 / (120.0 * 200.0);
             let want = ((band + 1) as f64 * 25.5).round() / 255.0;
-            assert!((got - want).abs() <= 0.02, "{dpi} dpi band {band}: {got} vs {want}");
+            assert!(
+                (got - want).abs() <= 0.02,
+                "{dpi} dpi band {band}: {got} vs {want}"
+            );
         }
         assert_eq!(films.plates[0].angle, Some(45.0));
     }
@@ -406,7 +495,10 @@ fn the_wedge_through_the_whole_film_path() {
 #[test]
 fn the_round_dot_has_the_geometry_of_its_spot_function() {
     // 600 dpi, 50 lpi, 0°: cells of exactly 12 × 12 pixels starting at the origin.
-    let ht = Halftone { lpi: 50.0, ..Halftone::default() };
+    let ht = Halftone {
+        lpi: 50.0,
+        ..Halftone::default()
+    };
     let sc = Screener::new(&ht, 0.0, 600.0).unwrap();
     let p = 12.0;
     // Cell coordinates of a pixel centre, in -1/2..1/2.
@@ -452,10 +544,24 @@ fn the_round_dot_has_the_geometry_of_its_spot_function() {
 
 #[test]
 fn solid_stays_solid_and_clear_stays_clear_under_every_screen() {
-    let p = plate("Black", 1, 64, 64, |x, y| if (x / 8 + y / 8) % 2 == 0 { 255 } else { 0 });
-    for kind in [ScreenKind::Am(DotShape::Round), ScreenKind::Am(DotShape::Elliptical), ScreenKind::Stochastic] {
+    let p = plate("Black", 1, 64, 64, |x, y| {
+        if (x / 8 + y / 8) % 2 == 0 {
+            255
+        } else {
+            0
+        }
+    });
+    for kind in [
+        ScreenKind::Am(DotShape::Round),
+        ScreenKind::Am(DotShape::Elliptical),
+        ScreenKind::Stochastic,
+    ] {
         for angle in [0.0, 15.0, 45.0, 75.0] {
-            let ht = Halftone { kind, angles: vec![angle], ..Halftone::default() };
+            let ht = Halftone {
+                kind,
+                angles: vec![angle],
+                ..Halftone::default()
+            };
             let sc = Screener::new(&ht, angle, 300.0).unwrap();
             for y in 0..64 {
                 for x in 0..64 {
@@ -473,7 +579,15 @@ fn tinted_plates_get_angles_thirty_degrees_apart() {
     assert_eq!(auto_angles(3), vec![45.0, 75.0, 15.0]);
     let (w, h) = (40, 40);
     let plates: Vec<PlateImage> = (1..=4)
-        .map(|n| plate(&format!("Ink {n}"), n, w, h, |x, _| if n == 2 { 255 } else { (x * 6) as u8 }))
+        .map(|n| {
+            plate(&format!("Ink {n}"), n, w, h, |x, _| {
+                if n == 2 {
+                    255
+                } else {
+                    (x * 6) as u8
+                }
+            })
+        })
         .collect();
     let films = make_films(&plates, None, &opts(300.0)).unwrap();
     let angles: Vec<Option<f64>> = films.plates.iter().map(|p| p.angle).collect();
@@ -486,11 +600,19 @@ fn tinted_plates_get_angles_thirty_degrees_apart() {
 fn stochastic_screens_repeat_for_a_seed() {
     let p = plate("Black", 1, 80, 80, |x, _| (x * 3) as u8);
     let mut o = opts(300.0);
-    o.halftone = Some(Halftone { kind: ScreenKind::Stochastic, seed: 7, ..Halftone::default() });
+    o.halftone = Some(Halftone {
+        kind: ScreenKind::Stochastic,
+        seed: 7,
+        ..Halftone::default()
+    });
     let a = make_films(std::slice::from_ref(&p), None, &o).unwrap();
     let b = make_films(std::slice::from_ref(&p), None, &o).unwrap();
     assert_eq!(a.pages[0].bitmap, b.pages[0].bitmap);
-    o.halftone = Some(Halftone { kind: ScreenKind::Stochastic, seed: 8, ..Halftone::default() });
+    o.halftone = Some(Halftone {
+        kind: ScreenKind::Stochastic,
+        seed: 8,
+        ..Halftone::default()
+    });
     let c = make_films(&[p], None, &o).unwrap();
     assert_ne!(a.pages[0].bitmap, c.pages[0].bitmap);
     assert!(a.plates[0].angle.is_none());
@@ -505,14 +627,31 @@ fn the_underbase_is_choked_by_the_given_distance() {
     // A disc, a bar touching the image edge, a 6 px wide line and some tint.
     let shapes = plate("Yellow", 1, w, h, |x, y| {
         let d = ((x as f64 - 50.0).powi(2) + (y as f64 - 60.0).powi(2)).sqrt();
-        if d < 35.0 || (x >= 120 && y < 40) || (y >= 100 && y < 106 && x > 20) { 255 } else { 0 }
+        if d < 35.0 || (x >= 120 && y < 40) || ((100..106).contains(&y) && x > 20) {
+            255
+        } else {
+            0
+        }
     });
-    let tint = plate("Cyan", 2, w, h, |x, y| if (100..118).contains(&x) && (50..90).contains(&y) { 90 } else { 0 });
-    for (choke, dpi) in [(Length::Mm(0.5), 300.0), (Length::Px(3.0), 300.0), (Length::Mm(0.2), 600.0)] {
+    let tint = plate("Cyan", 2, w, h, |x, y| {
+        if (100..118).contains(&x) && (50..90).contains(&y) {
+            90
+        } else {
+            0
+        }
+    });
+    for (choke, dpi) in [
+        (Length::Mm(0.5), 300.0),
+        (Length::Px(3.0), 300.0),
+        (Length::Mm(0.2), 600.0),
+    ] {
         let r = choke.to_px(dpi, "choke").unwrap();
         let ub = film::underbase(
             &[shapes.clone(), tint.clone()],
-            &UnderbaseOptions { choke, fill: UnderbaseFill::FollowInk },
+            &UnderbaseOptions {
+                choke,
+                fill: UnderbaseFill::FollowInk,
+            },
             dpi,
         )
         .unwrap();
@@ -605,8 +744,14 @@ fn thin_long_lines_survive_and_small_specks_go() {
     let report = film::clean_plates(&mut plates, &MinFeature::new(Length::Mm(0.5)), 300.0).unwrap();
     assert_eq!(report.limit_px, 6);
     let at = |x: u32, y: u32| plates[0].amount[(y * w + x) as usize] > 0;
-    assert!(at(10, 10) && at(39, 10), "1 px horizontal line of 5 x the limit kept");
-    assert!(at(60, 10) && at(60, 34), "1 px vertical line of 4 x the limit kept");
+    assert!(
+        at(10, 10) && at(39, 10),
+        "1 px horizontal line of 5 x the limit kept"
+    );
+    assert!(
+        at(60, 10) && at(60, 34),
+        "1 px vertical line of 4 x the limit kept"
+    );
     assert!(at(100, 10) && at(119, 29), "diagonal line kept");
     assert!(at(140, 50) && at(145, 55), "6 × 6 square holds the limit");
     assert!(at(171, 90), "the stem of the i is long");
@@ -621,9 +766,22 @@ fn thin_long_lines_survive_and_small_specks_go() {
             (f.x, f.y, f.width, f.height)
         })
         .collect();
-    assert_eq!(removed, vec![(10, 50, 10, 1), (80, 50, 2, 2), (100, 50, 5, 5), (170, 74, 3, 3)]);
+    assert_eq!(
+        removed,
+        vec![
+            (10, 50, 10, 1),
+            (80, 50, 2, 2),
+            (100, 50, 5, 5),
+            (170, 74, 3, 3)
+        ]
+    );
     // Only those pixels changed.
-    let changed = original.amount.iter().zip(&plates[0].amount).filter(|(a, b)| a != b).count();
+    let changed = original
+        .amount
+        .iter()
+        .zip(&plates[0].amount)
+        .filter(|(a, b)| a != b)
+        .count();
     assert_eq!(changed, 9 + 10 + 4 + 25);
     // The picture marks removed ink in red.
     let pic = film::cleanup_picture(&report, &plates);
@@ -639,7 +797,10 @@ fn thin_long_lines_survive_and_small_specks_go() {
 
     // Grow instead of remove: the i-dot becomes the smallest square the stencil holds.
     let mut plates = vec![original];
-    let rule = MinFeature { small: SmallFeature::Grow, ..MinFeature::new(Length::Mm(0.5)) };
+    let rule = MinFeature {
+        small: SmallFeature::Grow,
+        ..MinFeature::new(Length::Mm(0.5))
+    };
     film::clean_plates(&mut plates, &rule, 300.0).unwrap();
     let dot: usize = (68..80u32)
         .flat_map(|y| (160..180u32).map(move |x| (x, y)))
@@ -652,9 +813,17 @@ fn thin_long_lines_survive_and_small_specks_go() {
 fn the_limit_can_be_a_multiple_of_the_thread_spacing() {
     // Thread spacing of a 230 threads-per-inch mesh: 25.4 / 230 = 0.1104 mm (common
     // practice: spacing = 1 inch / mesh count). Two spacings at 600 dpi = 5.22 px → 5.
-    let rule = MinFeature::new(Length::Threads { mesh_count: 230.0, multiple: 2.0 });
+    let rule = MinFeature::new(Length::Threads {
+        mesh_count: 230.0,
+        multiple: 2.0,
+    });
     assert_eq!(rule.limit_px(600.0).unwrap(), 5);
-    let px = Length::Threads { mesh_count: 230.0, multiple: 2.0 }.to_px(600.0, "x").unwrap();
+    let px = Length::Threads {
+        mesh_count: 230.0,
+        multiple: 2.0,
+    }
+    .to_px(600.0, "x")
+    .unwrap();
     assert!((px - 2.0 * 600.0 / 230.0).abs() < 1e-9);
 }
 
@@ -670,8 +839,15 @@ fn the_alpha_threshold_defaults_to_half() {
     o.margin_mm = 0.0;
     let films = make_films(std::slice::from_ref(&p), Some(&alpha), &o).unwrap();
     let b = &films.pages[0].bitmap;
-    assert_eq!((0..4).map(|x| b.get(x, 0)).collect::<Vec<_>>(), [false, false, true, true]);
-    assert!(films.notes[0].contains("alpha threshold 50 %"), "{:?}", films.notes);
+    assert_eq!(
+        (0..4).map(|x| b.get(x, 0)).collect::<Vec<_>>(),
+        [false, false, true, true]
+    );
+    assert!(
+        films.notes[0].contains("alpha threshold 50 %"),
+        "{:?}",
+        films.notes
+    );
     // As tints: 127/255 of solid becomes a halftone dot pattern instead.
     o.alpha = AlphaRule::Tint;
     let films = make_films(&[p], Some(&alpha), &o).unwrap();
@@ -689,42 +865,84 @@ fn bad_options_are_refused_with_a_message_naming_them() {
         (FilmOptions::new(-300.0), "dpi"),
         (FilmOptions::new(f64::NAN), "dpi"),
         (FilmOptions::new(1e9), "dpi"),
-        (FilmOptions { margin_mm: -1.0, ..FilmOptions::new(300.0) }, "margin"),
-        (FilmOptions { margin_mm: 5.0, ..FilmOptions::new(300.0) }, "margin"),
         (
-            FilmOptions { halftone: Some(Halftone { lpi: 151.0, ..Halftone::default() }), ..FilmOptions::new(300.0) },
-            "lines per inch",
+            FilmOptions {
+                margin_mm: -1.0,
+                ..FilmOptions::new(300.0)
+            },
+            "margin",
         ),
         (
-            FilmOptions { halftone: Some(Halftone { lpi: 0.0, ..Halftone::default() }), ..FilmOptions::new(300.0) },
+            FilmOptions {
+                margin_mm: 5.0,
+                ..FilmOptions::new(300.0)
+            },
+            "margin",
+        ),
+        (
+            FilmOptions {
+                halftone: Some(Halftone {
+                    lpi: 151.0,
+                    ..Halftone::default()
+                }),
+                ..FilmOptions::new(300.0)
+            },
             "lines per inch",
         ),
         (
             FilmOptions {
-                halftone: Some(Halftone { angles: vec![f64::INFINITY], ..Halftone::default() }),
+                halftone: Some(Halftone {
+                    lpi: 0.0,
+                    ..Halftone::default()
+                }),
+                ..FilmOptions::new(300.0)
+            },
+            "lines per inch",
+        ),
+        (
+            FilmOptions {
+                halftone: Some(Halftone {
+                    angles: vec![f64::INFINITY],
+                    ..Halftone::default()
+                }),
                 ..FilmOptions::new(300.0)
             },
             "angle",
         ),
         (
             FilmOptions {
-                underbase: Some(UnderbaseOptions { choke: Length::Mm(-0.1), ..UnderbaseOptions::default() }),
+                underbase: Some(UnderbaseOptions {
+                    choke: Length::Mm(-0.1),
+                    ..UnderbaseOptions::default()
+                }),
                 ..FilmOptions::new(300.0)
             },
             "choke",
         ),
         (
-            FilmOptions { min_feature: Some(MinFeature::new(Length::Mm(-1.0))), ..FilmOptions::new(300.0) },
+            FilmOptions {
+                min_feature: Some(MinFeature::new(Length::Mm(-1.0))),
+                ..FilmOptions::new(300.0)
+            },
             "minimum feature",
         ),
         (
             FilmOptions {
-                min_feature: Some(MinFeature::new(Length::Threads { mesh_count: 0.0, multiple: 1.0 })),
+                min_feature: Some(MinFeature::new(Length::Threads {
+                    mesh_count: 0.0,
+                    multiple: 1.0,
+                })),
                 ..FilmOptions::new(300.0)
             },
             "mesh count",
         ),
-        (FilmOptions { alpha: AlphaRule::Threshold(1.5), ..FilmOptions::new(300.0) }, "alpha"),
+        (
+            FilmOptions {
+                alpha: AlphaRule::Threshold(1.5),
+                ..FilmOptions::new(300.0)
+            },
+            "alpha",
+        ),
     ];
     for (o, word) in cases {
         let e = make_films(&plates, None, &o).unwrap_err();
@@ -737,11 +955,29 @@ fn bad_options_are_refused_with_a_message_naming_them() {
     assert!(make_films(&[], None, &o).is_err());
     let mut odd = three_plates();
     odd[1] = plate("Small", 2, 10, 10, |_, _| 255);
-    assert!(make_films(&odd, None, &o).unwrap_err().to_string().contains("same size"));
+    assert!(make_films(&odd, None, &o)
+        .unwrap_err()
+        .to_string()
+        .contains("same size"));
     assert!(PlateImage::new("X", 1, 1, 10, 10, vec![0; 99]).is_err());
     assert!(PlateImage::new("X", 1, 1, 0, 10, vec![]).is_err());
     assert!(make_films(&three_plates(), Some(&[255u8; 3]), &o).is_err());
+    // An absurd ink name widens the page past the limit: refused, promptly.
+    let mut long = three_plates();
+    long[0].ink = "x".repeat(2_000_000);
+    let t = std::time::Instant::now();
+    assert!(make_films(&long, None, &o)
+        .unwrap_err()
+        .to_string()
+        .contains("limit"));
+    assert!(t.elapsed().as_secs() < 20);
     // A page over the size limit is refused before any allocation.
-    let huge = FilmOptions { margin_mm: 9000.0, ..FilmOptions::new(2400.0) };
-    assert!(make_films(&three_plates(), None, &huge).unwrap_err().to_string().contains("limit"));
+    let huge = FilmOptions {
+        margin_mm: 9000.0,
+        ..FilmOptions::new(2400.0)
+    };
+    assert!(make_films(&three_plates(), None, &huge)
+        .unwrap_err()
+        .to_string()
+        .contains("limit"));
 }

@@ -256,7 +256,11 @@ fn clean_plate_into(
                 }
             }
             SmallFeature::Grow => {
-                let most = members.iter().map(|&p| plate.amount[p]).max().unwrap_or(255);
+                let most = members
+                    .iter()
+                    .map(|&p| plate.amount[p])
+                    .max()
+                    .unwrap_or(255);
                 // The square of side L centred on the bounding box, moved inside the plate.
                 let l = limit.min(w).min(h);
                 let cx2 = x0 + x1; // twice the centre
@@ -324,7 +328,9 @@ pub fn cleanup_picture(report: &CleanupReport, plates: &[PlateImage]) -> Vec<u8>
     let (w, h) = (report.width as usize, report.height as usize);
     let mut rgba = vec![255u8; w * h * 4];
     for p in 0..w * h {
-        let inked = plates.iter().any(|pl| pl.amount.get(p).is_some_and(|&a| a > 0));
+        let inked = plates
+            .iter()
+            .any(|pl| pl.amount.get(p).is_some_and(|&a| a > 0));
         let c: [u8; 3] = match report.changes.get(p) {
             Some(1) => [220, 30, 30],
             Some(2) => [30, 60, 220],

@@ -50,9 +50,8 @@ fn envelope(f: &[f64], v: &mut [usize], z: &mut [f64], dt: &mut [f64]) {
     z[0] = f64::NEG_INFINITY;
     z[1] = f64::INFINITY;
     for q in 1..n {
-        let meet = |p: usize| {
-            ((f[q] + (q * q) as f64) - (f[p] + (p * p) as f64)) / (2.0 * (q - p) as f64)
-        };
+        let meet =
+            |p: usize| ((f[q] + (q * q) as f64) - (f[p] + (p * p) as f64)) / (2.0 * (q - p) as f64);
         let mut s = meet(v[k]);
         // z[0] is -inf, so k never goes below 0.
         while s <= z[k] {
@@ -104,7 +103,10 @@ mod tests {
         let mut rng = crate::rng::Rng::new(5, 1);
         for &(w, h, fill) in &[(1, 1, 0.9), (7, 3, 0.8), (23, 17, 0.85), (30, 30, 0.97)] {
             let ink: Vec<bool> = (0..w * h).map(|_| rng.uniform() < fill).collect();
-            assert_eq!(squared_distance_to_background(&ink, w, h), brute(&ink, w, h));
+            assert_eq!(
+                squared_distance_to_background(&ink, w, h),
+                brute(&ink, w, h)
+            );
         }
     }
 }

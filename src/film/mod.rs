@@ -481,26 +481,31 @@ pub fn make_films(
         .map(|(p, sc)| page::label_text(p, count, sc.as_ref(), opts))
         .collect();
     let layout = FilmLayout::new(w, h, &labels, opts)?;
-    let mut pages = Vec::with_capacity(count);
-    let mut infos = Vec::with_capacity(count);
-    for (p, sc) in plates.iter().zip(&screeners) {
-        let page = FilmPage::compose(p, count, sc.as_ref(), &strip_screen, &layout, opts)?;
-        let art = layout.art;
-        let inked = page.bitmap.count_ink(art.x, art.y, art.w, art.h);
-        infos.push(PlateFilm {
-            ink: p.ink.clone(),
-            number: p.number,
-            print_order: p.print_order,
-            role: p.role,
-            screen: sc
-                .as_ref()
-                .map(|s| s.describe())
-                .unwrap_or_else(|| "solid".into()),
-            angle: sc.as_ref().and_then(|s| s.angle()),
-            coverage: inked as f64 / (w as f64 * h as f64),
-        });
-        pages.push(page);
-    }
+    // Pages in parallel: each is independent of the others.
+    use rayon::prelude::*;
+    let made: Vec<(FilmPage, PlateFilm)> = plates
+        .par_iter()
+        .zip(screeners.par_iter())
+        .map(|(p, sc)| {
+            let page = FilmPage::compose(p, count, sc.as_ref(), &strip_screen, &layout, opts)?;
+            let art = layout.art;
+            let inked = page.bitmap.count_ink(art.x, art.y, art.w, art.h);
+            let info = PlateFilm {
+                ink: p.ink.clone(),
+                number: p.number,
+                print_order: p.print_order,
+                role: p.role,
+                screen: sc
+                    .as_ref()
+                    .map(|s| s.describe())
+                    .unwrap_or_else(|| "solid".into()),
+                angle: sc.as_ref().and_then(|s| s.angle()),
+                coverage: inked as f64 / (w as f64 * h as f64),
+            };
+            Ok((page, info))
+        })
+        .collect::<Result<_>>()?;
+    let (pages, infos): (Vec<FilmPage>, Vec<PlateFilm>) = made.into_iter().unzip();
     Ok(FilmSet {
         pages,
         plates: infos,

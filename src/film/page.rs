@@ -172,18 +172,33 @@ impl FilmLayout {
                     None => l.clone(),
                 })
                 .collect();
-            let step = 16 * text_scale as u64;
-            loop {
-                let avail = (width as f64 / 2.0 - reg_reach - 2.0 * edge).max(0.0) as u64;
-                let fits = measured
+            let avail = |width: u64| (width as f64 / 2.0 - reg_reach - 2.0 * edge).max(0.0) as u64;
+            let fits = |width: u64| {
+                measured
                     .iter()
-                    .all(|l| wrap_label(l, avail, text_scale).len() as u32 <= label_lines);
-                if fits {
-                    label_width = avail;
-                    break;
+                    .all(|l| wrap_label(l, avail(width), text_scale).len() as u32 <= label_lines)
+            };
+            // Every label fits on one line at `hi`; lines only get fewer as the page widens,
+            // so the narrowest page that fits is found by bisection.
+            let longest = measured
+                .iter()
+                .map(|l| text_width(l, text_scale))
+                .max()
+                .unwrap_or(0);
+            let hi = (2.0 * (2.0 * edge + longest as f64 + reg_reach + 1.0)).ceil() as u64;
+            if !fits(width) {
+                let (mut lo, mut hi) = (width, hi.max(width));
+                while hi - lo > 1 {
+                    let mid = lo + (hi - lo) / 2;
+                    if fits(mid) {
+                        hi = mid;
+                    } else {
+                        lo = mid;
+                    }
                 }
-                width += step;
+                width = hi;
             }
+            label_width = avail(width);
         }
         // Equal margins left and right.
         if (width - art_w as u64) % 2 == 1 {

@@ -368,10 +368,8 @@ fn void_and_cluster(m: usize, seed: u64) -> Vec<f32> {
         }
     }
     let mut energy = vec![0f64; n];
-    for p in 0..n {
-        if ink[p] {
-            update(&mut energy, p, 1.0);
-        }
+    for (p, _) in ink.iter().enumerate().filter(|(_, &i)| i) {
+        update(&mut energy, p, 1.0);
     }
     // Spread the initial pattern: move the tightest cluster into the largest void until
     // they coincide (bounded, in case of a cycle).

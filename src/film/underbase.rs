@@ -151,8 +151,12 @@ mod tests {
     #[test]
     fn underbase_follows_the_colours_and_renumbers() {
         let (w, h) = (20u32, 10u32);
-        let a: Vec<u8> = (0..w * h).map(|i| if i % w < 10 { 255 } else { 0 }).collect();
-        let b: Vec<u8> = (0..w * h).map(|i| if i % w >= 10 { 100 } else { 0 }).collect();
+        let a: Vec<u8> = (0..w * h)
+            .map(|i| if i % w < 10 { 255 } else { 0 })
+            .collect();
+        let b: Vec<u8> = (0..w * h)
+            .map(|i| if i % w >= 10 { 100 } else { 0 })
+            .collect();
         let mut plates = vec![
             PlateImage::new("A", 1, 1, w, h, a).unwrap(),
             PlateImage::new("B", 2, 2, w, h, b).unwrap(),
@@ -173,7 +177,17 @@ mod tests {
         assert_eq!(underbase(&plates, &solid, 300.0).unwrap().amount[15], 255);
         // Only the colour plates count: an underbase alone is refused.
         assert!(underbase(&plates[..1], &opts, 300.0).is_err());
-        assert!(highlight_white(&[255, 255, 255, 255], 1, 1, 90.0, 4, 4).unwrap().amount == [255]);
-        assert!(highlight_white(&[20, 20, 20, 255], 1, 1, 90.0, 4, 4).unwrap().amount == [0]);
+        assert!(
+            highlight_white(&[255, 255, 255, 255], 1, 1, 90.0, 4, 4)
+                .unwrap()
+                .amount
+                == [255]
+        );
+        assert!(
+            highlight_white(&[20, 20, 20, 255], 1, 1, 90.0, 4, 4)
+                .unwrap()
+                .amount
+                == [0]
+        );
     }
 }

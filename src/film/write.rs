@@ -132,7 +132,13 @@ pub fn write_tiff<W: Write + Seek>(w: W, page: &FilmPage, job: &str) -> std::io:
 /// TIFF ASCII fields hold 7-bit text: other characters become '?'.
 fn ascii(s: &str) -> String {
     s.chars()
-        .map(|c| if c.is_ascii() && !c.is_ascii_control() { c } else { '?' })
+        .map(|c| {
+            if c.is_ascii() && !c.is_ascii_control() {
+                c
+            } else {
+                '?'
+            }
+        })
         .collect()
 }
 
@@ -250,8 +256,7 @@ pub fn write_films_into(
     for page in &films.pages {
         if formats.tiff {
             let name = film_name(stem, page, "tif");
-            let bytes =
-                tiff_bytes(page, job).map_err(|e| Error::io(set.path_of(&name), e))?;
+            let bytes = tiff_bytes(page, job).map_err(|e| Error::io(set.path_of(&name), e))?;
             out.push(set.write_bytes(&name, &bytes)?);
         }
         if formats.png {
