@@ -362,12 +362,20 @@ fn mirror_flips_the_whole_page() {
             assert_eq!(a.get(x, y), b.get(w - 1 - x, y), "({x}, {y})");
         }
     }
-    // The label reads backwards: it starts at the right edge of the mirrored page.
-    let lx = plain.layout.label_at.0;
-    let (lw, lh) = (200, lh as u32);
-    assert!(a.count_ink(lx, ly as u32, lw, lh) > 50);
-    assert_eq!(b.count_ink(lx, ly as u32, lw, lh), 0);
-    assert!(b.count_ink(a.width() - lx - lw, ly as u32, lw, lh) > 50);
+    // The label reads backwards: its first line (the same words on both films, "Test
+    // job  /  Black ...") is the plain page's first line flipped, at the right edge.
+    let lx = l.label_at.0 as i64;
+    let line_h = 8 * l.text_scale as i64;
+    assert!(a.count_ink(lx as u32, ly as u32, 200, line_h as u32) > 50);
+    for y in ly..ly + line_h {
+        for x in lx..lx + 200 {
+            assert_eq!(a.get(x, y), b.get(w - 1 - x, y), "label ({x}, {y})");
+        }
+    }
+    assert_ne!(
+        (0..200).map(|x| a.get(lx + x, ly + 3)).collect::<Vec<_>>(),
+        (0..200).map(|x| b.get(lx + x, ly + 3)).collect::<Vec<_>>()
+    );
     assert!(mirrored.pages[0].label.ends_with("mirrored, emulsion down"));
     assert!(plain.pages[0].label.ends_with("right reading, emulsion up"));
 }
@@ -387,11 +395,12 @@ fn the_label_names_ink_plate_order_and_job_and_fits_the_page() {
         "no tints on the red plate"
     );
     // The label is wrapped onto the lines the top margin holds (20 mm: 4 lines of 2 mm
-    // text), each inked, left of the top registration mark.
+    // text in each of two columns, left and right of the top registration mark), each
+    // line inked and clear of the mark.
     let l = &films.layout;
     assert_eq!(l.label_lines, 4);
     let lines = film::wrap_label(&page.label, l.label_width, l.text_scale);
-    assert!(lines.len() > 1 && lines.len() <= 4, "{lines:?}");
+    assert!(lines.len() > 4 && lines.len() <= 8, "{lines:?}");
     // Nothing lost: the same words in the same order.
     let words = |s: &str| {
         s.split_whitespace()
@@ -401,13 +410,20 @@ fn the_label_names_ink_plate_order_and_job_and_fits_the_page() {
     };
     assert_eq!(words(&lines.join(" ")), words(&page.label));
     let top = l.registration[0];
-    let (lx, ly) = l.label_at;
+    let reach = l.registration_radius + 1.5 / 25.4 * 300.0;
+    let ly = l.label_at.1;
     for (k, line) in lines.iter().enumerate() {
         let text_w = line.chars().count() as u32 * 8 * l.text_scale;
-        assert!(((lx + text_w) as f64) < top.0 - l.registration_radius);
-        let y = ly + k as u32 * 10 * l.text_scale;
+        let x = if k < 4 { l.label_at.0 } else { l.label_right_x };
+        if k < 4 {
+            assert!(((x + text_w) as f64) < top.0 - reach);
+        } else {
+            assert!((x as f64) > top.0 + reach);
+            assert!(x + text_w <= page.bitmap.width());
+        }
+        let y = ly + (k as u32 % 4) * 10 * l.text_scale;
         assert!(
-            page.bitmap.count_ink(lx, y, text_w, 8 * l.text_scale) > 50,
+            page.bitmap.count_ink(x, y, text_w, 8 * l.text_scale) > 50,
             "line {k}"
         );
     }

@@ -1,7 +1,7 @@
 //! The film page: the screened plate on a clear margin with registration marks (a ring
 //! and cross at the middle of each side, the same on every plate), crop marks at the
 //! artwork's corners, a label (ink, plate, print order, job, screen; wrapped onto as many
-//! lines as the top margin holds) at the top left and a step strip (0–100 % in 10 %
+//! lines as the top margin holds, left and right of the top registration mark) and a step strip (0–100 % in 10 %
 //! steps, screened like the plate, in a frame) at the bottom right.
 //!
 //! Every mark is drawn about centres that are symmetric about the page's vertical centre
@@ -55,9 +55,12 @@ pub struct FilmLayout {
     pub registration_radius: f64,
     /// The step strip's patches, left to right (empty without marks).
     pub strip: Vec<Rect>,
-    /// Top-left corner of the label, the width its lines may take, how many lines fit,
-    /// and its scale (film pixels per glyph pixel; a line is 10 glyph pixels high).
+    /// The label is set in two columns of the top margin, left and right of the top
+    /// registration mark: their left edges and top, the width a line may take, how many
+    /// lines a column holds, and the scale (film pixels per glyph pixel; a line is 10 glyph
+    /// pixels high). Lines fill the left column first.
     pub label_at: (u32, u32),
+    pub label_right_x: u32,
     pub label_width: u64,
     pub label_lines: u32,
     pub text_scale: u32,
@@ -174,9 +177,9 @@ impl FilmLayout {
                 .collect();
             let avail = |width: u64| (width as f64 / 2.0 - reg_reach - 2.0 * edge).max(0.0) as u64;
             let fits = |width: u64| {
-                measured
-                    .iter()
-                    .all(|l| wrap_label(l, avail(width), text_scale).len() as u32 <= label_lines)
+                measured.iter().all(|l| {
+                    wrap_label(l, avail(width), text_scale).len() as u32 <= 2 * label_lines
+                })
             };
             // Every label fits on one line at `hi`; lines only get fewer as the page widens,
             // so the narrowest page that fits is found by bisection.
@@ -232,6 +235,7 @@ impl FilmLayout {
             registration_radius: 0.0,
             strip: Vec::new(),
             label_at: (edge.round() as u32, edge.round() as u32),
+            label_right_x: (width as f64 / 2.0 + reg_reach + edge).round() as u32,
             label_width,
             label_lines,
             text_scale,
@@ -404,11 +408,18 @@ impl FilmPage {
                 stroke_segment(&mut b, seg, lw);
             }
             let lines = wrap_label(&label, layout.label_width, layout.text_scale);
-            for (k, line) in lines.iter().take(layout.label_lines as usize).enumerate() {
+            let per_column = layout.label_lines as usize;
+            for (k, line) in lines.iter().take(2 * per_column).enumerate() {
+                let x = if k < per_column {
+                    layout.label_at.0
+                } else {
+                    layout.label_right_x
+                };
+                let row = (k % per_column) as i64;
                 draw_text(
                     &mut b,
-                    layout.label_at.0 as i64,
-                    layout.label_at.1 as i64 + k as i64 * 10 * layout.text_scale as i64,
+                    x as i64,
+                    layout.label_at.1 as i64 + row * 10 * layout.text_scale as i64,
                     layout.text_scale,
                     line,
                 );
