@@ -79,6 +79,7 @@ pub mod colour;
 pub mod error;
 pub mod families;
 pub mod features;
+pub mod film;
 pub mod landcover;
 pub mod learn;
 pub mod limits;

@@ -265,7 +265,7 @@ fn allowed(from: &str, to: &str) -> Result<(), &'static str> {
         "cluster" => Err("cluster/ knows rows and weights only (support files excepted)"),
         "colour" => Err("colour/ imports no other part"),
         "error" | "limits" | "rng" | "trace" => Err("support files import no part"),
-        "raster" | "output" | "features" | "render" | "families" if WORKFLOWS.contains(&to) => {
+        "raster" | "output" | "features" | "render" | "families" | "film" if WORKFLOWS.contains(&to) => {
             Err("shared parts never import a workflow")
         }
         // The document header records the engine's options (a plain value of cluster/).
