@@ -64,8 +64,13 @@ pub enum Error {
 pub enum ParamsError {
     #[error("k must be at least 1 (got {0})")]
     KTooSmall(usize),
-    #[error("k must be at most {max} (got {got})")]
-    KTooLarge { got: usize, max: usize },
+    /// K above the most this use of it allows; `why` says what sets the bound.
+    #[error("k must be at most {max} (got {got}){why}")]
+    KTooLarge {
+        got: usize,
+        max: usize,
+        why: &'static str,
+    },
     #[error("beta must be a positive finite number (got {0})")]
     BadBeta(f64),
     #[error("{0}")]

@@ -268,3 +268,31 @@ fn typos_get_the_nearest_name_and_every_command_has_a_page() {
     assert_eq!(bad.status.code(), Some(2));
     assert!(stderr(&bad).contains("did you mean 'sweep'"), "{}", stderr(&bad));
 }
+
+/// K is bounded and worded the same wherever it is given: "k must be at least 1" and
+/// "k must be at most N (got M)", with what sets the bound.
+#[test]
+fn k_bounds_read_the_same_in_every_command() {
+    let poster = fixture("demo/harbour-poster.png");
+    let p = poster.to_str().unwrap();
+    let inks = fixture("demo/quayside-inks.csv");
+    let dir = tempfile::tempdir().unwrap();
+    let out = dir.path().join("o");
+    let o = out.to_str().unwrap();
+    let cases: [(&[&str], &str); 6] = [
+        (&["reduce", p, "-k", "0", "-o", o], "k must be at least 1 (got 0)"),
+        (&["reduce", p, "-k", "70000", "-o", o], "k must be at most 65535 (got 70000)"),
+        (&["landcover", p, "-k", "300", "-o", o], "k must be at most 255 (got 300)"),
+        (&["sweep", p, "--k", "2..300", "-o", o], "k must be at most 256 (got 300)"),
+        (&["sweep", p, "--k", "0..3", "-o", o], "k must be at least 1 (got 0)"),
+        (&["separate", p, "--inks", inks.to_str().unwrap(), "-k", "99", "-o", o], "k must be at most"),
+    ];
+    for (args, want) in cases {
+        let r = run(args, &[]);
+        assert_eq!(r.status.code(), Some(2), "{args:?}");
+        let err = stderr(&r);
+        assert!(err.contains(want), "{args:?}: {err}");
+        assert_eq!(err.trim_end().lines().count(), 1, "{err}");
+        assert!(!out.exists(), "{args:?} wrote outputs");
+    }
+}

@@ -174,6 +174,7 @@ impl KMeansParams {
             return Err(ParamsError::KTooLarge {
                 got: self.k,
                 max: MAX_K,
+                why: "",
             });
         }
         self.engine.check()?;

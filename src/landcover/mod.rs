@@ -72,10 +72,11 @@ impl LandcoverOptions {
     /// Checks the class count against the 8-bit class raster.
     fn check_k(&self) -> Result<()> {
         if self.k > MAX_CLASSES {
-            return Err(ParamsError::Other(format!(
-                "k = {} classes: the 8-bit class raster holds at most {MAX_CLASSES} (0 is nodata)",
-                self.k
-            ))
+            return Err(ParamsError::KTooLarge {
+                got: self.k,
+                max: MAX_CLASSES,
+                why: ": the 8-bit class raster numbers classes 1 to 255 (0 is nodata)",
+            }
             .into());
         }
         Ok(())

@@ -6,7 +6,10 @@ use super::{
     AnnealSetting, FixedPalette, PaletteColour, PaletteDocument, ReduceOptions,
     ReduceSettings, Reduction,
 };
-use crate::cluster::{finish, fit_hard, stop_rule, Beta, Dataset, KMeansModel, Mode, ValidParams};
+use crate::cluster::{
+    finish, fit_hard, stop_rule, Beta, Dataset, EngineOptions, KMeansModel, Mode, Refine,
+    ValidParams,
+};
 use crate::colour::{self, Space};
 use crate::error::{Error, ParamsError, Result};
 use crate::families::{self, Objective};
@@ -185,6 +188,7 @@ fn fit_to_target(
         (opts.engine.anneal.is_some(), "`anneal`"),
         (opts.engine.split_merge > 0, "`split_merge`"),
         (opts.engine.restarts > 1, "`restarts`"),
+        (opts.engine.refine != Refine::default(), "`refine`"),
     ]
     .into_iter()
     .filter_map(|(set, name)| set.then_some(name))
@@ -525,7 +529,7 @@ fn render_and_score(
     let warnings = families::lost_areas_warning(&lost_areas);
     notes.extend(palette_notes(opts, fixed.is_some(), palette.len(), en.hist.len(), fitted.beta));
     let document = PaletteDocument {
-        header: DocumentHeader::new(None, opts.engine),
+        header: DocumentHeader::new(None, engine_used(opts, fixed.is_some())),
         space: opts.space,
         mode: opts.engine.mode,
         k: palette.len(),
@@ -551,6 +555,31 @@ fn render_and_score(
         document,
         notes,
         warnings: warnings.into_iter().collect(),
+    }
+}
+
+/// The engine settings as the document records them: a ΔE2000 target follows the
+/// warm-started K path (no restarts, refinement, annealing or moves); a given palette is
+/// mapped, not fitted (only β, for the uncertainty map, applies).
+fn engine_used(opts: &ReduceOptions, fixed: bool) -> EngineOptions {
+    let e = opts.engine;
+    if fixed {
+        EngineOptions {
+            beta: e.beta,
+            seed: e.seed,
+            refine: Refine::None,
+            ..EngineOptions::default()
+        }
+    } else if opts.target.is_some() {
+        EngineOptions {
+            restarts: 1,
+            refine: Refine::None,
+            anneal: None,
+            split_merge: 0,
+            ..e
+        }
+    } else {
+        e
     }
 }
 

@@ -50,11 +50,12 @@ pub fn resolve_inks(
     if opts.k > library.len() {
         return Err(table_error(
             library_path,
-            format!(
-                "`k` {} asks for more inks than the {} in the library",
-                opts.k,
-                library.len()
-            ),
+            crate::error::ParamsError::KTooLarge {
+                got: opts.k,
+                max: library.len(),
+                why: ": the library has no more inks",
+            }
+            .to_string(),
         ));
     }
     if forced.len() > opts.k {

@@ -45,6 +45,9 @@ pub struct KRange {
     pub max: usize,
 }
 
+/// The largest K of a sweep's range (it fits and scores every K).
+pub const MAX_SWEEP_K: usize = 256;
+
 impl std::str::FromStr for KRange {
     type Err = String;
     fn from_str(s: &str) -> std::result::Result<Self, String> {
@@ -54,15 +57,18 @@ impl std::str::FromStr for KRange {
         let min: usize = a.trim().parse().map_err(|_| bad())?;
         let max: usize = b.trim().parse().map_err(|_| bad())?;
         if min == 0 {
-            return Err(format!("K range must start at 1 or more, got '{s}'"));
+            return Err(crate::error::ParamsError::KTooSmall(0).to_string());
         }
         if max < min {
             return Err(format!("K range end is below its start in '{s}'"));
         }
-        if max > 256 {
-            return Err(format!(
-                "K range end {max} is above 256, the most a sweep fits"
-            ));
+        if max > MAX_SWEEP_K {
+            return Err(crate::error::ParamsError::KTooLarge {
+                got: max,
+                max: MAX_SWEEP_K,
+                why: ": a sweep fits every K of its range",
+            }
+            .to_string());
         }
         Ok(KRange { min, max })
     }
@@ -244,6 +250,21 @@ pub fn sweep_file(input: &Path, out_dir: &Path, opts: &SweepOptions) -> Result<S
     })
 }
 
+/// The engine settings a sweep uses, as its document records them: the warm-started K
+/// path runs Lloyd from the previous K's means, with no restarts, refinement, annealing or
+/// split-and-merge moves, in hard mode.
+fn used_engine(e: &EngineOptions) -> EngineOptions {
+    let d = EngineOptions::default();
+    EngineOptions {
+        seed: e.seed,
+        max_iter: e.max_iter,
+        tolerance: e.tolerance,
+        shift_tolerance: e.shift_tolerance,
+        refine: crate::cluster::Refine::None,
+        ..d
+    }
+}
+
 /// The sweep document of one input: every K's measures, the suggestions and the
 /// recommendation; remarks for the user go to `notes`.
 fn sweep_document(input: &Path, opts: &SweepOptions, notes: &mut Vec<String>) -> Result<SweepDocument> {
@@ -313,7 +334,7 @@ fn sweep_document(input: &Path, opts: &SweepOptions, notes: &mut Vec<String>) ->
     let document = SweepDocument {
         header: DocumentHeader::new(
             input.file_name().map(|n| n.to_string_lossy().into_owned()),
-            opts.engine,
+            used_engine(&opts.engine),
         ),
         features,
         silhouette_sample: opts.silhouette_sample,
