@@ -73,6 +73,7 @@
 //! ```
 
 pub mod batch;
+#[cfg(feature = "cli")]
 pub mod cli;
 pub mod cluster;
 pub mod colour;
