@@ -17,9 +17,9 @@ fuzz_target!(|data: &[u8]| {
     };
     let reduce = match &cli.command {
         Command::Reduce(a) => Some(a.options()),
-        Command::Batch(a) => Some(a.settings.options()),
-        Command::Learn(a) => Some(a.settings.options()),
-        Command::Apply(a) => Some(a.settings.options()),
+        Command::Batch(a) => Some(a.options()),
+        Command::Learn(a) => Some(a.options()),
+        Command::Apply(a) => Some(a.options()),
         Command::Separate(a) => {
             let _ = a.options();
             None

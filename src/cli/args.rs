@@ -280,7 +280,7 @@ pub struct SeparateArgs {
     pub all: bool,
 
     /// Paper or garment colour (#rrggbb): pixels nearer to it than to any ink get no ink.
-    #[arg(long, value_name = "COLOUR", value_parser = crate::colour::parse_hex)]
+    #[arg(long, value_name = "COLOUR", value_parser = parse_colour)]
     pub substrate: Option<[u8; 3]>,
 
     /// Smallest region (8-connected) any plate may hold, in pixels; smaller islands join
@@ -435,6 +435,11 @@ impl SweepArgs {
             scene: Some(self.scene.options()),
         }
     }
+}
+
+/// Parses `#rrggbb` (the substrate colour).
+pub fn parse_colour(s: &str) -> Result<[u8; 3], String> {
+    crate::colour::parse_hex(s)
 }
 
 /// The `--target-delta-e`, `--target-p95` and `--k-max` flags as a quality target.

@@ -9,8 +9,8 @@ mod run;
 mod stdio;
 
 pub use args::{
-    ApplyArgs, BatchArgs, HistogramArgs, ImageFlags, LandcoverArgs, LearnArgs, PaletteFlags,
-    ReduceArgs, SeparateArgs, SweepArgs,
+    parse_colour, ApplyArgs, BatchArgs, HistogramArgs, ImageFlags, LandcoverArgs, LearnArgs,
+    PaletteFlags, ReduceArgs, SeparateArgs, SweepArgs,
 };
 pub use engine::{BandList, BetaFlag, EngineFlags, FolderOutput, LimitFlag, SceneFlags};
 pub use help::{flag_wording, manual_pages, suggest};
