@@ -49,7 +49,7 @@ pub fn film_name(stem: &str, page: &FilmPage, ext: &str) -> String {
     format!(
         "{stem}.film-{:02}-{}.{ext}",
         page.number,
-        crate::separate::file_safe(&page.ink)
+        crate::output::file_safe(&page.ink)
     )
 }
 

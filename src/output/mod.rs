@@ -344,6 +344,24 @@ pub fn one_input<L, T>(
     Ok((made, set.commit()?))
 }
 
+/// A file-safe form of a name (an ink's, say): lowercase letters and digits, other runs as '-'.
+pub fn file_safe(name: &str) -> String {
+    let mut s = String::new();
+    for c in name.chars() {
+        if c.is_alphanumeric() {
+            s.extend(c.to_lowercase());
+        } else if !s.ends_with('-') {
+            s.push('-');
+        }
+    }
+    let s = s.trim_matches('-').to_string();
+    if s.is_empty() {
+        "ink".into()
+    } else {
+        s
+    }
+}
+
 /// The file name without its extension, used to name outputs.
 /// A file name that is not valid UTF-8 gives an output name with each invalid sequence
 /// replaced by U+FFFD (the input itself is still read under its own name).

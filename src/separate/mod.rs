@@ -10,7 +10,8 @@ mod write;
 pub use ink_choice::resolve_inks;
 use ink_choice::choose_for_target;
 use write::write_plate;
-pub use write::{file_safe, plate_name, proof_rgba, summary_table, swatches_svg};
+pub use crate::output::file_safe;
+pub use write::{plate_name, proof_rgba, summary_table, swatches_svg};
 
 use crate::output::DocumentHeader;
 use crate::cluster::EngineOptions;
