@@ -364,9 +364,6 @@ pub struct LandcoverArgs {
     #[arg(short = 'k', long = "k", default_value_t = 6, value_name = "K")]
     pub k: usize,
 
-    #[command(flatten)]
-    pub scene: SceneFlags,
-
     /// Refuse rasters with more pixels than this (checked from the header). Scenes are
     /// read strip by strip, so the limit is higher than for images.
     #[arg(long = "max-pixels", default_value_t = crate::landcover::MAX_SCENE_PIXELS, value_name = "N")]
@@ -374,6 +371,9 @@ pub struct LandcoverArgs {
 
     #[command(flatten)]
     pub output: FolderOutput,
+
+    #[command(flatten)]
+    pub scene: SceneFlags,
 
     #[command(flatten)]
     pub engine: EngineFlags,
@@ -411,13 +411,14 @@ pub struct SweepArgs {
     pub silhouette_sample: usize,
 
     #[command(flatten)]
-    pub scene: SceneFlags,
-
-    #[command(flatten)]
     pub limit: LimitFlag,
 
     #[command(flatten)]
     pub output: FolderOutput,
+
+    /// Features of multi-band rasters (colour images ignore them).
+    #[command(flatten)]
+    pub scene: SceneFlags,
 
     #[command(flatten)]
     pub engine: EngineFlags,
