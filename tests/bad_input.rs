@@ -404,7 +404,7 @@ fn rows(s: &Scene) -> Vec<Row> {
     add(
         "landcover more classes than the class raster holds",
         &["landcover", &scene, "-k", "256", "-o", &new_out],
-        &["k = 256", "255"],
+        &["k must be at most 255 (got 256)", "8-bit class raster"],
     );
     add(
         "reduce --k-max without a target",

@@ -481,7 +481,7 @@ fn k_larger_than_the_library() {
     refused(
         GOOD,
         &["-k", "5"],
-        &["shop-inks.csv", "more inks than the 3"],
+        &["shop-inks.csv", "k must be at most 3 (got 5)"],
     );
 }
 
