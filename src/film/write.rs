@@ -44,12 +44,30 @@ impl Default for FilmFormats {
     }
 }
 
+/// A file-safe form of an ink name: lowercase letters and digits, other runs as '-'.
+pub fn file_safe(name: &str) -> String {
+    let mut s = String::new();
+    for c in name.chars() {
+        if c.is_alphanumeric() {
+            s.extend(c.to_lowercase());
+        } else if !s.ends_with('-') {
+            s.push('-');
+        }
+    }
+    let s = s.trim_matches('-').to_string();
+    if s.is_empty() {
+        "ink".into()
+    } else {
+        s
+    }
+}
+
 /// File name of one film: `STEM.film-NN-INK.EXT`.
 pub fn film_name(stem: &str, page: &FilmPage, ext: &str) -> String {
     format!(
         "{stem}.film-{:02}-{}.{ext}",
         page.number,
-        crate::separate::file_safe(&page.ink)
+        file_safe(&page.ink)
     )
 }
 

@@ -6,23 +6,7 @@ use crate::colour::{self};
 use super::regions::FIXED;
 use rayon::prelude::*;
 
-/// A file-safe form of an ink name: lowercase letters and digits, other runs as '-'.
-pub fn file_safe(name: &str) -> String {
-    let mut s = String::new();
-    for c in name.chars() {
-        if c.is_alphanumeric() {
-            s.extend(c.to_lowercase());
-        } else if !s.ends_with('-') {
-            s.push('-');
-        }
-    }
-    let s = s.trim_matches('-').to_string();
-    if s.is_empty() {
-        "ink".into()
-    } else {
-        s
-    }
-}
+pub use crate::film::file_safe;
 
 /// Plate file name.
 pub fn plate_name(stem: &str, number: usize, ink: &str) -> String {
