@@ -292,9 +292,77 @@ pub struct SeparateArgs {
     #[arg(long, default_value_t = 0, value_name = "PX")]
     pub trap: u32,
 
-    /// Print resolution in dots per inch, for areas in cm² (default: from the file).
+    /// Print resolution in dots per inch, for areas in cm² and the films (default: from
+    /// the file; films are refused when neither gives one).
     #[arg(long, value_name = "DPI")]
     pub dpi: Option<f64>,
+
+    /// Pixels less opaque than this get no ink; the others are separated as if opaque
+    /// (default 50 %, common practice).
+    #[arg(long = "alpha-threshold", default_value = "50", value_name = "PERCENT", value_parser = percent)]
+    pub alpha_threshold: f64,
+
+    /// Also write films to expose screens from, in these formats: 1-bit TIFF and PNG per
+    /// plate, one PDF with every film at true size (e.g. `tiff,pdf`; `all` for the three).
+    /// With films come a stacked proof (STEM.stack.png) and per-plate previews.
+    #[arg(long, value_name = "tiff,pdf,png", value_parser = film_formats)]
+    pub films: Option<crate::film::FilmFormats>,
+
+    /// Clear film around the artwork on every side, for the marks, label and step strip.
+    #[arg(long = "margin-mm", default_value_t = crate::film::DEFAULT_MARGIN_MM, value_name = "MM", requires = "films")]
+    pub margin_mm: f64,
+
+    /// Flip the films left to right, for exposure with the emulsion side down.
+    #[arg(long, requires = "films")]
+    pub mirror: bool,
+
+    /// Job name printed on every film (default: the input's file name without extension).
+    #[arg(long, value_name = "NAME", requires = "films")]
+    pub job: Option<String>,
+
+    /// Screening of tints on the films: round or elliptical dots on a grid (lines per inch
+    /// and an angle per plate), or stochastic dots; `none` prints a tint solid from 50 %.
+    #[arg(long, default_value = "none", value_name = "none|round|elliptical|stochastic", value_parser = screen_kind, requires = "films")]
+    pub halftone: HalftoneChoice,
+
+    /// Lines per inch of the halftone grid (default 55, common practice for fine meshes).
+    #[arg(long, default_value_t = crate::film::DEFAULT_LPI, value_name = "LPI", requires = "films")]
+    pub lpi: f64,
+
+    /// Screen angles in degrees, one per tinted plate in order, separated by commas
+    /// (default: 45, 75, 15, 0, common practice).
+    #[arg(long = "screen-angles", value_name = "DEGREES", value_delimiter = ',', requires = "films")]
+    pub screen_angles: Vec<f64>,
+
+    /// Print each ink as a tint where the artwork is between the ink and the substrate
+    /// (Murray–Davies dot area), screened with --halftone; without it plates are solid.
+    #[arg(long, requires = "films")]
+    pub tints: bool,
+
+    /// Smallest shape the films keep: millimetres (`0.3` or `0.3mm`), film pixels (`4px`)
+    /// or thread spacings of a mesh (`3threads@230`: 3 × 25.4 mm / 230). Thinner shapes
+    /// longer than 3 times it (lines, letters) stay; what goes is listed in
+    /// STEM.cleanup.csv and drawn in STEM.cleanup.png.
+    #[arg(long = "min-feature", value_name = "SIZE", value_parser = min_feature, requires = "films")]
+    pub min_feature: Option<crate::film::Length>,
+
+    /// Add an underbase white plate, printed first under every colour (for dark substrates).
+    #[arg(long, requires = "films")]
+    pub underbase: bool,
+
+    /// How far the underbase is pulled back from the colours' edges (default 0.2 mm).
+    #[arg(long = "choke-mm", default_value_t = 0.2, value_name = "MM", requires = "underbase")]
+    pub choke_mm: f64,
+
+    /// Add a highlight white plate, printed last where the artwork's CIE L* is at least
+    /// this (default 90).
+    #[arg(long = "highlight-white", value_name = "L*", num_args = 0..=1, default_missing_value = "90", requires = "films")]
+    pub highlight_white: Option<f64>,
+
+    /// Remove plate, film and preview files of an earlier run of the same artwork with
+    /// other plates (after the new ones are in place) instead of refusing.
+    #[arg(long)]
+    pub replace: bool,
 
     /// Choose the number of inks instead of giving it: the fewest (up to --k-max) whose
     /// mean CIEDE2000 to the artwork is at most this (rules of thumb, common practice:
@@ -349,8 +417,113 @@ impl SeparateArgs {
             limits: self.limit.limits(),
             target: quality_target(self.target_delta_e, self.target_p95, self.k_max),
             objective: self.objective,
+            alpha_threshold: self.alpha_threshold,
+            films: self.films.map(|formats| crate::separate::FilmSettings {
+                formats,
+                margin_mm: self.margin_mm,
+                mirror: self.mirror,
+                job: self.job.clone(),
+                halftone: self.halftone.0.map(|kind| crate::film::Halftone {
+                    kind,
+                    lpi: self.lpi,
+                    angles: self.screen_angles.clone(),
+                    ..Default::default()
+                }),
+                tints: self.tints,
+                min_feature: self.min_feature.map(crate::film::MinFeature::new),
+                underbase: self.underbase.then(|| crate::film::UnderbaseOptions {
+                    choke: crate::film::Length::Mm(self.choke_mm),
+                    ..Default::default()
+                }),
+                highlight_white: self.highlight_white,
+            }),
+            replace: self.replace,
         }
     }
+}
+
+/// `50` or `50%`.
+fn percent(s: &str) -> Result<f64, String> {
+    let v: f64 = s
+        .trim()
+        .trim_end_matches('%')
+        .trim()
+        .parse()
+        .map_err(|_| format!("'{s}' is not a percentage (e.g. 50 or 50%)"))?;
+    if !(v.is_finite() && (0.0..=100.0).contains(&v)) {
+        return Err(format!("'{s}' is not between 0 and 100 %"));
+    }
+    Ok(v)
+}
+
+/// `tiff,pdf,png` in any order, or `all`.
+fn film_formats(s: &str) -> Result<crate::film::FilmFormats, String> {
+    let mut f = crate::film::FilmFormats {
+        tiff: false,
+        png: false,
+        pdf: false,
+    };
+    for part in s.split(',').map(|p| p.trim().to_ascii_lowercase()) {
+        match part.as_str() {
+            "tiff" | "tif" => f.tiff = true,
+            "png" => f.png = true,
+            "pdf" => f.pdf = true,
+            "all" => f = crate::film::FilmFormats::default(),
+            other => {
+                return Err(format!(
+                    "'{other}' is not a film format; use tiff, pdf, png or all, separated by commas"
+                ))
+            }
+        }
+    }
+    Ok(f)
+}
+
+/// The `--halftone` choice: a screen, or none.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct HalftoneChoice(pub Option<crate::film::ScreenKind>);
+
+/// `none`, `round`, `elliptical` or `stochastic`.
+fn screen_kind(s: &str) -> Result<HalftoneChoice, String> {
+    use crate::film::{DotShape, ScreenKind};
+    match s.trim().to_ascii_lowercase().as_str() {
+        "none" => Ok(HalftoneChoice(None)),
+        "round" => Ok(HalftoneChoice(Some(ScreenKind::Am(DotShape::Round)))),
+        "elliptical" => Ok(HalftoneChoice(Some(ScreenKind::Am(DotShape::Elliptical)))),
+        "stochastic" => Ok(HalftoneChoice(Some(ScreenKind::Stochastic))),
+        other => Err(format!(
+            "'{other}' is not a halftone; use none, round, elliptical or stochastic"
+        )),
+    }
+}
+
+/// `0.3`, `0.3mm`, `4px` or `3threads@230`.
+fn min_feature(s: &str) -> Result<crate::film::Length, String> {
+    use crate::film::Length;
+    let t = s.trim().to_ascii_lowercase();
+    let number = |v: &str| -> Result<f64, String> {
+        v.trim()
+            .parse::<f64>()
+            .ok()
+            .filter(|v| v.is_finite() && *v >= 0.0)
+            .ok_or_else(|| {
+                format!("'{s}' is not a size; give millimetres (0.3mm), pixels (4px) or thread spacings of a mesh (3threads@230)")
+            })
+    };
+    if let Some((m, mesh)) = t.split_once("threads@") {
+        let mesh_count = number(mesh)?;
+        if mesh_count == 0.0 {
+            return Err(format!("'{s}': the mesh count must be more than 0 threads per inch"));
+        }
+        return Ok(Length::Threads {
+            mesh_count,
+            multiple: number(m)?,
+        });
+    }
+    if let Some(px) = t.strip_suffix("px") {
+        return Ok(Length::Px(number(px)?));
+    }
+    Ok(Length::Mm(number(t.strip_suffix("mm").unwrap_or(&t))?))
 }
 
 /// Flags of `landcover`.

@@ -59,10 +59,10 @@ pub use cleanup::{
 };
 pub use distance::squared_distance_to_background;
 pub use page::{label_text, wrap_label, FilmLayout, FilmPage, Rect, LABEL_SEPARATOR, STRIP_STEPS};
-pub use screen::{auto_angles, DotShape, Halftone, ScreenKind, Screener};
+pub use screen::{auto_angles, DotShape, Halftone, ScreenKind, Screener, DEFAULT_LPI};
 pub use underbase::{add_underbase, highlight_white, underbase, UnderbaseFill, UnderbaseOptions};
 pub use write::{
-    film_name, pdf_bytes, png_bytes, tiff_bytes, write_films, write_films_into, FilmFormats,
+    file_safe, film_name, pdf_bytes, png_bytes, tiff_bytes, write_films, write_films_into, FilmFormats,
 };
 
 use crate::error::{ParamsError, Result};

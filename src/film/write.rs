@@ -44,6 +44,8 @@ impl Default for FilmFormats {
     }
 }
 
+pub use crate::output::file_safe;
+
 /// File name of one film: `STEM.film-NN-INK.EXT`.
 pub fn film_name(stem: &str, page: &FilmPage, ext: &str) -> String {
     format!(

@@ -1,7 +1,10 @@
 //! The `separate` workflow: artwork to one plate per ink, with the inks chosen from a
 //! shop's library to minimise CIEDE2000, small specks merged away, optional trapping,
-//! a proof and a swatch sheet.
+//! a proof and a swatch sheet; on request, films a shop can expose screens from (see
+//! [`films`]).
 
+mod film_output;
+pub mod films;
 mod ink_choice;
 pub mod regions;
 pub mod select;
@@ -11,6 +14,7 @@ pub use ink_choice::resolve_inks;
 use ink_choice::choose_for_target;
 use write::write_plate;
 pub use crate::output::file_safe;
+pub use films::FilmSettings;
 pub use write::{plate_name, proof_rgba, summary_table, swatches_svg};
 
 use crate::output::DocumentHeader;
@@ -31,6 +35,10 @@ use std::time::Instant;
 /// Default smallest region a plate may hold, in pixels: a 4 × 4 speck (about 0.34 mm
 /// at 300 dpi). Our choice for ordinary screen meshes; raise it for coarse ones.
 pub const DEFAULT_MIN_AREA: usize = 16;
+
+/// Default alpha threshold in per cent: pixels less opaque than this get no ink (common
+/// practice: half opaque).
+pub const DEFAULT_ALPHA_THRESHOLD: f64 = 50.0;
 
 /// Settings of a separation.
 #[derive(Debug, Clone, PartialEq)]
@@ -59,6 +67,14 @@ pub struct SeparateOptions {
     /// How inks are chosen: keep every distinct colour family the library can match
     /// (default) or the pixel-weighted ΔE2000 alone.
     pub objective: crate::families::Objective,
+    /// Pixels whose alpha is below this share of opaque, in per cent, get no ink; the
+    /// others are separated as if opaque. Default: [`DEFAULT_ALPHA_THRESHOLD`].
+    pub alpha_threshold: f64,
+    /// Films (and the stacked proof and per-plate previews); `None`: none. Default: none.
+    pub films: Option<FilmSettings>,
+    /// Remove plate, film, preview and cleanup files of an earlier run with other plates
+    /// (after this run's outputs are in place) instead of refusing to run. Default: off.
+    pub replace: bool,
 }
 
 impl Default for SeparateOptions {
@@ -75,6 +91,9 @@ impl Default for SeparateOptions {
             limits: Limits::default(),
             target: None,
             objective: crate::families::Objective::Families,
+            alpha_threshold: DEFAULT_ALPHA_THRESHOLD,
+            films: None,
+            replace: false,
         }
     }
 }
@@ -97,6 +116,57 @@ pub struct InkReport {
     pub mean_delta_e2000: f64,
     /// File name of the plate.
     pub plate: String,
+    /// Pixels this plate prints as printed: after trapping and, with films, after the
+    /// minimum-feature cleanup (a tinted pixel counts once).
+    #[serde(default)]
+    pub pixels_printed: u64,
+    /// `pixels_printed` over the same inked area as `coverage` (so the two compare
+    /// directly; with trapping, the plates' sum exceeds 1).
+    #[serde(default)]
+    pub coverage_printed: f64,
+    /// Ink on the film (after screening), over the same inked area as `coverage`; only
+    /// when films were made.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub film_coverage: Option<f64>,
+}
+
+/// One film of the separation document.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct FilmReport {
+    /// Film number (the underbase, when made, is 1) and print order.
+    pub number: usize,
+    pub print_order: usize,
+    pub ink: String,
+    /// `colour`, `underbase` or `highlight white`.
+    pub role: String,
+    /// Screen of its tints, or `solid`.
+    pub screen: String,
+    pub angle: Option<f64>,
+    /// Share of the artwork area that is ink on the film.
+    pub coverage_of_artwork: f64,
+    /// Files of this film.
+    pub files: Vec<String>,
+}
+
+/// The films part of the separation document.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct FilmsReport {
+    pub dpi: f64,
+    pub job: String,
+    pub mirror: bool,
+    pub margin_mm: f64,
+    /// Page size in millimetres.
+    pub page_mm: [f64; 2],
+    pub tints: bool,
+    /// Minimum feature in film pixels and millimetres, and what cleanup did.
+    pub min_feature_px: Option<usize>,
+    pub min_feature_mm: Option<f64>,
+    pub cleanup_removed: usize,
+    pub cleanup_grown: usize,
+    pub films: Vec<FilmReport>,
+    /// The PDF with every film, when written.
+    pub pdf: Option<String>,
+    pub notes: Vec<String>,
 }
 
 /// The separation document (`STEM.separation.json`).
@@ -121,9 +191,19 @@ pub struct SeparationDocument {
     pub regions_kept_isolated: usize,
     /// Inks in print order (lightest first).
     pub inks: Vec<InkReport>,
+    /// Alpha threshold in per cent (see [`SeparateOptions::alpha_threshold`]).
+    #[serde(default = "default_alpha_threshold")]
+    pub alpha_threshold: f64,
+    /// The films, when made.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub films: Option<FilmsReport>,
     /// How the number of inks was chosen, when a ΔE2000 target chose it.
     #[serde(default, skip_serializing_if = "Vec::is_empty")]
     pub notes: Vec<String>,
+}
+
+fn default_alpha_threshold() -> f64 {
+    DEFAULT_ALPHA_THRESHOLD
 }
 
 /// A separation in memory.
@@ -270,6 +350,29 @@ pub fn separate_image(
     const _: () = assert!(crate::render::NO_INDEX == FIXED);
     let mut labels: Vec<u16> = crate::render::remap(&ih.pixel_entry, &entry_label);
     let (w, h) = (img.width as usize, img.height as usize);
+    if img.has_alpha {
+        let (partial, dropped) =
+            films::apply_alpha_threshold(&mut labels, &img.alpha8(), opts.alpha_threshold / 100.0);
+        if partial > 0 {
+            notes.push(format!(
+                "transparency: {partial} pixels are partly transparent; {dropped} of them, less \
+                 opaque than the `alpha_threshold` of {} %, get no ink, the other {} are \
+                 separated as if opaque",
+                opts.alpha_threshold,
+                partial - dropped
+            ));
+        }
+    }
+    if let Some(lab) = substrate_lab {
+        let underbase = opts.films.as_ref().is_some_and(|f| f.underbase.is_some());
+        if lab[0] < films::DARK_SUBSTRATE_LIGHTNESS && !underbase {
+            notes.push(format!(
+                "the substrate is dark (L* {:.0}); colours printed straight onto it lose most \
+                 of their brightness: with films, `underbase` lays a white under them",
+                lab[0]
+            ));
+        }
+    }
     ph.mark("labels");
     let merge = regions::merge_small_regions(&mut labels, w, h, opts.min_area);
     ph.mark("min-area merge");
@@ -280,6 +383,10 @@ pub fn separate_image(
     let mut masks = regions::trap(&labels, w, h, &lightness, &is_ink, opts.trap);
     masks.truncate(n_inks);
     ph.mark("trapping");
+    let printed: Vec<u64> = masks
+        .iter()
+        .map(|m| m.iter().filter(|&&v| v).count() as u64)
+        .collect();
 
     // Statistics per plate from the final labels (after merging, before trapping). The
     // ΔE2000 of each (entry, ink) pair is already in the cost table.
@@ -338,6 +445,13 @@ pub fn separate_image(
             area_cm2: cm2_per_px.map(|a| a * px[p] as f64),
             mean_delta_e2000: if px[p] > 0 { de[p] / px[p] as f64 } else { 0.0 },
             plate: plate_name(stem, p + 1, &ink.name),
+            pixels_printed: printed[p],
+            coverage_printed: if inked > 0 {
+                printed[p] as f64 / inked as f64
+            } else {
+                0.0
+            },
+            film_coverage: None,
         })
         .collect();
     ph.mark("statistics");
@@ -360,6 +474,8 @@ pub fn separate_image(
         regions_merged: merge.merged,
         regions_kept_isolated: merge.kept_isolated,
         inks: inks_report,
+        alpha_threshold: opts.alpha_threshold,
+        films: None,
         notes,
     };
     Ok(Separation {
@@ -376,11 +492,15 @@ pub fn separate_image(
 #[derive(Debug, Clone)]
 pub struct SeparateReport {
     pub outputs: Vec<PathBuf>,
+    /// Files of an earlier run with other plates, removed with `replace`.
+    pub removed: Vec<PathBuf>,
     pub document: SeparationDocument,
     pub seconds: f64,
 }
 
-/// Reads artwork and library, separates, and writes every output atomically.
+/// Reads artwork and library, separates, and writes every output atomically. Plate,
+/// film, preview and cleanup files of the same stem left by an earlier run with other
+/// plates make the run refuse, or with `replace` are removed once the new set is in place.
 pub fn separate_file(
     input: &Path,
     library_path: &Path,
@@ -391,15 +511,25 @@ pub fn separate_file(
     if let Some(d) = opts.dpi {
         if !(d.is_finite() && d > 0.0) {
             return Err(crate::error::ParamsError::Other(format!(
-                "dpi must be a positive number (got {d})"
+                "`dpi` must be a positive number (got {d})"
             ))
             .into());
         }
     }
+    if !(opts.alpha_threshold.is_finite() && (0.0..=100.0).contains(&opts.alpha_threshold)) {
+        return Err(crate::error::ParamsError::Other(format!(
+            "`alpha_threshold` must be between 0 and 100 per cent (got {})",
+            opts.alpha_threshold
+        ))
+        .into());
+    }
+    if let (Some(f), Some(d)) = (&opts.films, opts.dpi) {
+        f.check(d)?;
+    }
     let library = inks::read_library_with(library_path, &opts.limits)?;
     resolve_inks(&library, opts, library_path)?;
     let stem = crate::output::stem_of(input)?;
-    let (sep, outputs) = crate::output::one_input(
+    let ((sep, stale), outputs) = crate::output::one_input(
         input,
         out_dir,
         &[library_path],
@@ -407,9 +537,21 @@ pub fn separate_file(
         || raster::decode(input, &opts.limits),
         |img, set| {
             let mut sep = separate_image(&img, &library, opts, library_path, &stem)?;
-            drop(img);
             sep.document.header.input =
                 input.file_name().map(|n| n.to_string_lossy().into_owned());
+            let made = match &opts.films {
+                Some(f) => Some(film_output::make(&mut sep, &img, f, opts, &stem)?),
+                None => None,
+            };
+            drop(img);
+            let mut names: Vec<String> = sep.document.inks.iter().map(|i| i.plate.clone()).collect();
+            if let Some(m) = &made {
+                names.extend(m.names.iter().cloned());
+            }
+            let stale = films::stale_files(set.dir(), &stem, &names);
+            if !stale.is_empty() && !opts.replace {
+                return Err(films::stale_error(set.dir(), &stale));
+            }
             let json = serde_json::to_string_pretty(&sep.document).expect("document serialises");
             set.write_bytes(&format!("{stem}.separation.json"), format!("{json}\n").as_bytes())?;
             for (i, ink) in sep.document.inks.iter().enumerate() {
@@ -421,11 +563,21 @@ pub fn separate_file(
                 raster::write_rgba_png(w, sep.width, sep.height, &proof)
             })?;
             set.write_bytes(&format!("{stem}.swatches.svg"), swatches_svg(&sep.document).as_bytes())?;
-            Ok(sep)
+            if let Some(m) = &made {
+                film_output::write(set, m, &sep, opts, &stem)?;
+            }
+            Ok((sep, stale))
         },
     )?;
+    // The new set is in place: only now may the earlier run's files go.
+    let mut removed = Vec::new();
+    for p in stale {
+        std::fs::remove_file(&p).map_err(|e| Error::io(&p, e))?;
+        removed.push(p);
+    }
     Ok(SeparateReport {
         outputs,
+        removed,
         document: sep.document,
         seconds: t0.elapsed().as_secs_f64(),
     })

@@ -132,18 +132,19 @@ pub fn swatches_svg(doc: &SeparationDocument) -> String {
 /// The summary table printed on standard error.
 pub fn summary_table(doc: &SeparationDocument) -> String {
     let mut s = format!(
-        "{:<5} {:<24} {:>6} {:>6} {:>6} {:>9} {:>9} {:>9}\n",
-        "plate", "ink", "L*", "a*", "b*", "coverage", "area cm²", "ΔE2000"
+        "{:<5} {:<24} {:>6} {:>6} {:>6} {:>9} {:>9} {:>9} {:>9}\n",
+        "plate", "ink", "L*", "a*", "b*", "coverage", "printed", "area cm²", "ΔE2000"
     );
     for (i, ink) in doc.inks.iter().enumerate() {
         s.push_str(&format!(
-            "{:<5} {:<24} {:>6.1} {:>6.1} {:>6.1} {:>8.1}% {:>9} {:>9.2}\n",
+            "{:<5} {:<24} {:>6.1} {:>6.1} {:>6.1} {:>8.1}% {:>8.1}% {:>9} {:>9.2}\n",
             format!("{:02}", i + 1),
             ink.name,
             ink.lab_d50[0],
             ink.lab_d50[1],
             ink.lab_d50[2],
             ink.coverage * 100.0,
+            ink.coverage_printed * 100.0,
             ink.area_cm2
                 .map(|a| format!("{a:.1}"))
                 .unwrap_or_else(|| "-".into()),
@@ -151,8 +152,24 @@ pub fn summary_table(doc: &SeparationDocument) -> String {
         ));
     }
     s.push_str(&format!(
-        "mean ΔE2000 {:.2} over the artwork; selection: {}; {} small regions merged",
-        doc.mean_delta_e2000, doc.selection, doc.regions_merged
+        "mean ΔE2000 {:.2} over the artwork; selection: {}; {} small regions merged; \
+         coverage is of the inked area before trapping, printed after trapping{}",
+        doc.mean_delta_e2000,
+        doc.selection,
+        doc.regions_merged,
+        if doc.films.is_some() { " and cleanup" } else { "" }
     ));
+    if let Some(f) = &doc.films {
+        for film in &f.films {
+            s.push_str(&format!(
+                "\nfilm {:02} {:<24} order {:>2}  {:<22} {:>5.1}% of the artwork",
+                film.number,
+                film.ink,
+                film.print_order,
+                film.screen,
+                film.coverage_of_artwork * 100.0
+            ));
+        }
+    }
     s
 }
