@@ -114,7 +114,18 @@ fn ink_choice_matches_brute_force_on_small_libraries() {
         let forced: Vec<usize> = if seed % 3 == 0 { vec![1] } else { vec![] };
         let t = CostTable::new(&entries, &weights, &inks, substrate);
         let best = select::choose_exhaustive(&t, k, &forced);
-        let swaps = select::choose_by_swaps(&t, &entries, &inks, k, &forced, &chromasift::cluster::EngineOptions { seed, ..Default::default() });
+        let engine = chromasift::cluster::EngineOptions {
+            seed,
+            ..Default::default()
+        };
+        let swaps = select::choose_by_swaps(&select::InkSearch {
+            t: &t,
+            entry_labs: &entries,
+            inks: &inks,
+            k,
+            forced: &forced,
+            engine: &engine,
+        });
         assert!(forced.iter().all(|f| swaps.chosen.contains(f)));
         assert_eq!(swaps.chosen.len(), k);
         assert!(

@@ -166,6 +166,18 @@ pub struct Refined {
     pub trials: usize,
 }
 
+impl Refined {
+    fn new(means: Vec<f32>, sse: f64, start_sse: f64, moves: usize, trials: usize) -> Refined {
+        Refined {
+            means,
+            sse,
+            start_sse,
+            moves,
+            trials,
+        }
+    }
+}
+
 /// Runs Lloyd from `init` (`k × dim`) on `data`, then the moves of `refine`; random draws
 /// from `rng`. Lloyd runs stop by [`trial_stop`] with `tolerance`.
 pub fn refine_means(
@@ -395,13 +407,7 @@ fn swap(data: &Dataset, init: &[f32], trials: usize, stop: Stop, rng: &mut Rng) 
             moves += 1;
         }
     }
-    Refined {
-        means,
-        sse,
-        start_sse,
-        moves,
-        trials: made,
-    }
+    Refined::new(means, sse, start_sse, moves, made)
 }
 
 /// Random swap (Fränti 2018): `trials` draws in all.
@@ -447,13 +453,7 @@ fn random_swap(data: &Dataset, init: &[f32], trials: usize, stop: Stop, rng: &mu
         means = r.means.iter().map(|&v| v as f32).collect();
         sse = r.sse;
     }
-    Refined {
-        means,
-        sse,
-        start_sse,
-        moves,
-        trials: made,
-    }
+    Refined::new(means, sse, start_sse, moves, made)
 }
 
 #[cfg(test)]

@@ -330,7 +330,7 @@ pub fn region_pixels(labels: &[u16], width: usize, height: usize, seed: usize) -
         return Vec::new();
     }
     let mut flood = Flood::new(labels.len());
-    flood.fill(labels, width, height, seed, usize::MAX);
+    flood.small_region(labels, width, height, seed, usize::MAX);
     flood.pixels
 }
 
@@ -381,58 +381,48 @@ impl Flood {
         seed: usize,
         min_area: usize,
     ) -> bool {
-        let small = self.fill(labels, width, height, seed, min_area);
+        // A neighbour with the region's label is inside the region and one with another
+        // label is outside, so each border pair (inside, outside) is counted once, when its
+        // inside pixel is taken off the stack. Every pixel marked is in `self.pixels`.
+        let small = 'fill: {
+            let l = labels[seed];
+            let mut nb = [0usize; 8];
+            self.stack.clear();
+            self.pixels.clear();
+            self.borders.clear();
+            self.mark(seed);
+            self.stack.push(seed);
+            self.pixels.push(seed);
+            if self.pixels.len() >= min_area {
+                break 'fill false;
+            }
+            while let Some(p) = self.stack.pop() {
+                let k = neighbours8(p, width, height, &mut nb);
+                for &q in &nb[..k] {
+                    let m = labels[q];
+                    if m == l {
+                        if !self.seen(q) {
+                            self.mark(q);
+                            self.pixels.push(q);
+                            if self.pixels.len() >= min_area {
+                                break 'fill false;
+                            }
+                            self.stack.push(q);
+                        }
+                    } else if m != FIXED {
+                        match self.borders.iter_mut().find(|(lab, _)| *lab == m) {
+                            Some(entry) => entry.1 += 1,
+                            None => self.borders.push((m, 1)),
+                        }
+                    }
+                }
+            }
+            true
+        };
         for &p in &self.pixels {
             self.visited[p / 64] = 0;
         }
         small
-    }
-
-    /// The fill of [`Flood::small_region`]; every pixel it marks is in `self.pixels`. A
-    /// neighbour with the region's label is inside the region and one with another label is
-    /// outside, so each border pair (inside, outside) is counted once, when its inside pixel is
-    /// taken off the stack.
-    fn fill(
-        &mut self,
-        labels: &[u16],
-        width: usize,
-        height: usize,
-        seed: usize,
-        min_area: usize,
-    ) -> bool {
-        let l = labels[seed];
-        let mut nb = [0usize; 8];
-        self.stack.clear();
-        self.pixels.clear();
-        self.borders.clear();
-        self.mark(seed);
-        self.stack.push(seed);
-        self.pixels.push(seed);
-        if self.pixels.len() >= min_area {
-            return false;
-        }
-        while let Some(p) = self.stack.pop() {
-            let k = neighbours8(p, width, height, &mut nb);
-            for &q in &nb[..k] {
-                let m = labels[q];
-                if m == l {
-                    if !self.seen(q) {
-                        self.mark(q);
-                        self.pixels.push(q);
-                        if self.pixels.len() >= min_area {
-                            return false;
-                        }
-                        self.stack.push(q);
-                    }
-                } else if m != FIXED {
-                    match self.borders.iter_mut().find(|(lab, _)| *lab == m) {
-                        Some(entry) => entry.1 += 1,
-                        None => self.borders.push((m, 1)),
-                    }
-                }
-            }
-        }
-        true
     }
 
     /// The neighbouring label with the longest border (ties → the lower label), if any.

@@ -56,17 +56,8 @@ pub(super) struct Assigned {
 impl FittedScene {
     /// Fits k-means on the scene's sample and numbers the classes; the sample is dropped.
     pub(super) fn fit(scene: SceneSample, params: &ValidParams) -> Result<FittedScene> {
-        let SceneSample {
-            raster,
-            info,
-            feats,
-            dim,
-            sample,
-            valid_pixels,
-            total_pixels,
-            scaler,
-        } = scene;
-        let data = Dataset::new(&sample, dim, None)?;
+        let dim = scene.dim;
+        let data = Dataset::new(&scene.sample, dim, None)?;
         let model = fit(&data, params)?;
         let k = model.k();
         // Class numbers: largest share of the sample first.
@@ -81,9 +72,9 @@ impl FittedScene {
             class_of[j] = (c + 1) as u8;
         }
         let classes = FittedClasses {
-            feats,
-            scaler,
-            bands: info.bands,
+            feats: scene.feats,
+            scaler: scene.scaler,
+            bands: scene.info.bands,
             dim,
             k,
             means: model.means,
@@ -92,11 +83,11 @@ impl FittedScene {
             order,
         };
         Ok(FittedScene {
-            raster,
-            info,
-            valid_pixels,
-            total_pixels,
-            sample_pixels: sample.len() / dim,
+            raster: scene.raster,
+            info: scene.info,
+            valid_pixels: scene.valid_pixels,
+            total_pixels: scene.total_pixels,
+            sample_pixels: scene.sample.len() / dim,
             classes,
         })
     }

@@ -87,7 +87,14 @@ pub(super) fn choose_for_target(
     let mut tried: Vec<(usize, f64)> = Vec::new();
     let mut last = None;
     for k in lo..=hi {
-        let sel = select::choose(table, labs, library, k, forced, &opts.engine);
+        let sel = select::choose(&select::InkSearch {
+            t: table,
+            entry_labs: labs,
+            inks: library,
+            k,
+            forced,
+            engine: &opts.engine,
+        });
         let per_entry: Vec<f64> = (0..table.n)
             .map(|e| {
                 let best = sel

@@ -284,7 +284,14 @@ pub fn separate_image(
         notes.push(note);
         selection
     } else {
-        let mut selection = select::choose(&table, &labs, library, k, &forced, &opts.engine);
+        let mut selection = select::choose(&select::InkSearch {
+            t: &table,
+            entry_labs: &labs,
+            inks: library,
+            k,
+            forced: &forced,
+            engine: &opts.engine,
+        });
         if opts.objective == crate::families::Objective::Families {
             let families = crate::families::distinct_families(
                 crate::families::ImageEntries {

@@ -413,32 +413,38 @@ pub fn kmeans_start(
     set
 }
 
+/// What an ink search works on: the cost table, each entry's CIELAB (D50), the library,
+/// how many inks, the inks that must be in, and the engine for the k-means start.
+#[derive(Clone, Copy)]
+pub struct InkSearch<'a> {
+    pub t: &'a CostTable,
+    pub entry_labs: &'a [[f64; 3]],
+    pub inks: &'a [Ink],
+    pub k: usize,
+    pub forced: &'a [usize],
+    pub engine: &'a EngineOptions,
+}
+
 /// Chooses `k` inks (forced ones included): exhaustive when affordable, else swaps from
 /// two starts.
-pub fn choose(
-    t: &CostTable,
-    entry_labs: &[[f64; 3]],
-    inks: &[Ink],
-    k: usize,
-    forced: &[usize],
-    engine: &EngineOptions,
-) -> Selection {
-    let subsets = binomial(t.m - forced.len(), k - forced.len());
-    if subsets * t.n as f64 <= EXHAUSTIVE_BUDGET {
-        return choose_exhaustive(t, k, forced);
+pub fn choose(s: &InkSearch<'_>) -> Selection {
+    let subsets = binomial(s.t.m - s.forced.len(), s.k - s.forced.len());
+    if subsets * s.t.n as f64 <= EXHAUSTIVE_BUDGET {
+        return choose_exhaustive(s.t, s.k, s.forced);
     }
-    choose_by_swaps(t, entry_labs, inks, k, forced, engine)
+    choose_by_swaps(s)
 }
 
 /// Swap descent from the k-means start and from the greedy start; the better is kept.
-pub fn choose_by_swaps(
-    t: &CostTable,
-    entry_labs: &[[f64; 3]],
-    inks: &[Ink],
-    k: usize,
-    forced: &[usize],
-    engine: &EngineOptions,
-) -> Selection {
+pub fn choose_by_swaps(s: &InkSearch<'_>) -> Selection {
+    let InkSearch {
+        t,
+        entry_labs,
+        inks,
+        k,
+        forced,
+        engine,
+    } = *s;
     let a = swap_descent(
         t,
         &kmeans_start(entry_labs, &t.weights, inks, k, forced, engine),
