@@ -543,6 +543,14 @@ pub struct LandcoverArgs {
     pub max_pixels: u64,
 
     #[command(flatten)]
+    pub rest: SceneRunFlags,
+}
+
+/// The output, scene-feature and engine flags of a command that reads a scene
+/// (`landcover`, `sweep`), in that order in the help.
+#[derive(Debug, Args, Clone)]
+pub struct SceneRunFlags {
+    #[command(flatten)]
     pub output: FolderOutput,
 
     #[command(flatten)]
@@ -557,8 +565,8 @@ impl LandcoverArgs {
     pub fn options(&self) -> crate::landcover::LandcoverOptions {
         crate::landcover::LandcoverOptions {
             k: self.k,
-            scene: self.scene.options(),
-            engine: self.engine.options(),
+            scene: self.rest.scene.options(),
+            engine: self.rest.engine.options(),
             limits: Limits::with_max_pixels(self.max_pixels),
         }
     }
@@ -586,15 +594,9 @@ pub struct SweepArgs {
     #[command(flatten)]
     pub limit: LimitFlag,
 
+    /// Scene features apply to multi-band rasters (colour images ignore them).
     #[command(flatten)]
-    pub output: FolderOutput,
-
-    /// Features of multi-band rasters (colour images ignore them).
-    #[command(flatten)]
-    pub scene: SceneFlags,
-
-    #[command(flatten)]
-    pub engine: EngineFlags,
+    pub rest: SceneRunFlags,
 }
 
 impl SweepArgs {
@@ -603,10 +605,10 @@ impl SweepArgs {
         crate::sweep::SweepOptions {
             range: self.k,
             space: self.space,
-            engine: self.engine.options(),
+            engine: self.rest.engine.options(),
             silhouette_sample: self.silhouette_sample,
             limits: self.limit.limits(),
-            scene: Some(self.scene.options()),
+            scene: Some(self.rest.scene.options()),
         }
     }
 }

@@ -235,7 +235,7 @@ fn run_separate(args: &super::SeparateArgs) -> Result<ExitCode, Error> {
 }
 
 fn run_landcover(args: &super::LandcoverArgs) -> Result<ExitCode, Error> {
-    let report = landcover::landcover_file(&args.input, &args.output.out, &args.options())?;
+    let report = landcover::landcover_file(&args.input, &args.rest.output.out, &args.options())?;
     let d = &report.document;
     eprintln!(
         "chromasift: {}: {} classes over {} valid pixels ({} nodata), SSE {:.6e}, {:.2} s",
@@ -247,14 +247,14 @@ fn run_landcover(args: &super::LandcoverArgs) -> Result<ExitCode, Error> {
         report.seconds
     );
     eprintln!("chromasift: caution: {}", landcover::CAUTION);
-    if args.output.json {
+    if args.rest.output.json {
         emit_json(d);
     }
     Ok(ExitCode::SUCCESS)
 }
 
 fn run_sweep(args: &super::SweepArgs) -> Result<ExitCode, Error> {
-    let report = sweep::sweep_file(&args.input, &args.output.out, &args.options())?;
+    let report = sweep::sweep_file(&args.input, &args.rest.output.out, &args.options())?;
     for n in &report.notes {
         note(&args.input, n);
     }
@@ -282,7 +282,7 @@ fn run_sweep(args: &super::SweepArgs) -> Result<ExitCode, Error> {
             r.reason
         );
     }
-    if args.output.json {
+    if args.rest.output.json {
         emit_json(d);
     }
     Ok(ExitCode::SUCCESS)

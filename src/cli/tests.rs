@@ -195,16 +195,16 @@ fn landcover_flags_parse() {
     assert_eq!(d, crate::landcover::LandcoverOptions::default());
     assert_eq!(lc(&["-k", "8"]).k, 8);
     assert_eq!(lc(&["--bands", "2,3,4,8"]).options().scene.bands, Some(vec![2, 3, 4, 8]));
-    let ix = lc(&["--index", "ndvi:3,4", "--index", "nd:2,4"]).scene.index;
+    let ix = lc(&["--index", "ndvi:3,4", "--index", "nd:2,4"]).rest.scene.index;
     assert_eq!(ix.len(), 2);
     assert_eq!(ix[1].name(), "nd:2,4");
-    assert_eq!(lc(&["--scale", "none"]).scene.scale, crate::landcover::Scale::None);
-    assert_eq!(lc(&["--nodata", "-9999"]).scene.nodata, Some(-9999.0));
-    assert_eq!(lc(&["--sample", "1000"]).scene.sample, 1000);
+    assert_eq!(lc(&["--scale", "none"]).rest.scene.scale, crate::landcover::Scale::None);
+    assert_eq!(lc(&["--nodata", "-9999"]).rest.scene.nodata, Some(-9999.0));
+    assert_eq!(lc(&["--sample", "1000"]).rest.scene.sample, 1000);
     assert_eq!(lc(&["--restarts", "3"]).options().engine.restarts, 3);
-    assert_eq!(lc(&["-o", "c"]).output.out, PathBuf::from("c"));
+    assert_eq!(lc(&["-o", "c"]).rest.output.out, PathBuf::from("c"));
     assert_eq!(lc(&["--max-pixels", "10"]).max_pixels, 10);
-    assert!(lc(&["--json"]).output.json);
+    assert!(lc(&["--json"]).rest.output.json);
     assert!(Cli::try_parse_from(["chromasift", "landcover", "s.tif", "--bands", "0"]).is_err());
     assert!(Cli::try_parse_from(["chromasift", "landcover", "s.tif", "--index", "evi:1,2"]).is_err());
 }

@@ -198,6 +198,9 @@ fn nearest_two(t: &CostTable, set: &[usize]) -> (Vec<f32>, Vec<usize>, Vec<f32>)
             for o in 0..a.len() {
                 let e = c * CHUNK + o;
                 let row = t.row(e);
+                // The two-smallest scan of the engine's nearest-mean kernel (deliberate
+                // twin, `cluster::nearest`), here over a subset of one entry's ink costs
+                // with the substrate as the floor.
                 let (mut best, mut bi, mut second) = (t.floor(e), usize::MAX, f32::INFINITY);
                 for &i in set {
                     let v = row[i];
