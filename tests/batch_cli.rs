@@ -550,7 +550,10 @@ fn apply_refuses_fitting_flags_and_batch_notes_them() {
     );
     assert_eq!(with_k.status.code(), Some(2), "{}", stderr(&with_k));
     let err = stderr(&with_k);
-    assert!(err.contains("--restarts") && err.trim_end().lines().count() == 1, "{err}");
+    assert!(
+        err.contains("--restarts") && err.trim_end().lines().count() == 1,
+        "{err}"
+    );
     assert!(!fresh.exists());
     // A batch given a palette takes the fitting flags (they shape per-image palettes
     // without --palette) and says they have no effect.

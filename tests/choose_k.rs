@@ -224,7 +224,10 @@ fn sweep_reads_a_multi_band_scene_and_refuses_bad_ranges() {
         );
         assert_eq!(o.status.code(), Some(2), "{bad}");
         let e = stderr(&o);
-        assert!((e.contains("K range") || e.contains("k must be")) && !e.contains("panicked"), "{e}");
+        assert!(
+            (e.contains("K range") || e.contains("k must be")) && !e.contains("panicked"),
+            "{e}"
+        );
         assert!(!out.exists());
     }
 }

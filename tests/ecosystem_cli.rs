@@ -249,13 +249,26 @@ fn typos_get_the_nearest_name_and_every_command_has_a_page() {
     assert_eq!(o.status.code(), Some(2));
     assert!(stderr(&o).contains("did you mean '-k'"), "{}", stderr(&o));
     let o = run(&["landcover", "s.tif", "--restart", "3"], &[]);
-    assert!(stderr(&o).contains("did you mean '--restarts'"), "{}", stderr(&o));
+    assert!(
+        stderr(&o).contains("did you mean '--restarts'"),
+        "{}",
+        stderr(&o)
+    );
 
     let dir = tempfile::tempdir().unwrap();
     let out = dir.path().join("man");
     let o = run(&["manpage", "--all", "-o", out.to_str().unwrap()], &[]);
     assert!(o.status.success(), "{}", stderr(&o));
-    for cmd in ["reduce", "separate", "landcover", "batch", "learn", "apply", "histogram", "sweep"] {
+    for cmd in [
+        "reduce",
+        "separate",
+        "landcover",
+        "batch",
+        "learn",
+        "apply",
+        "histogram",
+        "sweep",
+    ] {
         let page = std::fs::read_to_string(out.join(format!("chromasift-{cmd}.1"))).unwrap();
         assert!(page.starts_with(".ie") || page.contains(".TH"), "{cmd}");
         assert!(page.contains(&format!("chromasift\\-{cmd}")), "{cmd}");
@@ -266,7 +279,11 @@ fn typos_get_the_nearest_name_and_every_command_has_a_page() {
     assert!(text.contains("silhouette\\-sample"), "{text}");
     let bad = run(&["manpage", "sweap"], &[]);
     assert_eq!(bad.status.code(), Some(2));
-    assert!(stderr(&bad).contains("did you mean 'sweep'"), "{}", stderr(&bad));
+    assert!(
+        stderr(&bad).contains("did you mean 'sweep'"),
+        "{}",
+        stderr(&bad)
+    );
 }
 
 /// K is bounded and worded the same wherever it is given: "k must be at least 1" and
@@ -280,12 +297,39 @@ fn k_bounds_read_the_same_in_every_command() {
     let out = dir.path().join("o");
     let o = out.to_str().unwrap();
     let cases: [(&[&str], &str); 6] = [
-        (&["reduce", p, "-k", "0", "-o", o], "k must be at least 1 (got 0)"),
-        (&["reduce", p, "-k", "70000", "-o", o], "k must be at most 65535 (got 70000)"),
-        (&["landcover", p, "-k", "300", "-o", o], "k must be at most 255 (got 300)"),
-        (&["sweep", p, "--k", "2..300", "-o", o], "k must be at most 256 (got 300)"),
-        (&["sweep", p, "--k", "0..3", "-o", o], "k must be at least 1 (got 0)"),
-        (&["separate", p, "--inks", inks.to_str().unwrap(), "-k", "99", "-o", o], "k must be at most"),
+        (
+            &["reduce", p, "-k", "0", "-o", o],
+            "k must be at least 1 (got 0)",
+        ),
+        (
+            &["reduce", p, "-k", "70000", "-o", o],
+            "k must be at most 65535 (got 70000)",
+        ),
+        (
+            &["landcover", p, "-k", "300", "-o", o],
+            "k must be at most 255 (got 300)",
+        ),
+        (
+            &["sweep", p, "--k", "2..300", "-o", o],
+            "k must be at most 256 (got 300)",
+        ),
+        (
+            &["sweep", p, "--k", "0..3", "-o", o],
+            "k must be at least 1 (got 0)",
+        ),
+        (
+            &[
+                "separate",
+                p,
+                "--inks",
+                inks.to_str().unwrap(),
+                "-k",
+                "99",
+                "-o",
+                o,
+            ],
+            "k must be at most",
+        ),
     ];
     for (args, want) in cases {
         let r = run(args, &[]);

@@ -28,7 +28,10 @@ fn src_dir() -> PathBuf {
 }
 
 fn walk(dir: &Path, out: &mut Vec<PathBuf>) {
-    let mut entries: Vec<_> = std::fs::read_dir(dir).unwrap().map(|e| e.unwrap().path()).collect();
+    let mut entries: Vec<_> = std::fs::read_dir(dir)
+        .unwrap()
+        .map(|e| e.unwrap().path())
+        .collect();
     entries.sort();
     for p in entries {
         if p.is_dir() {
@@ -54,16 +57,28 @@ fn sources() -> Vec<SourceFile> {
     walk(&root, &mut paths);
     let mut files = Vec::new();
     for p in paths {
-        let rel = p.strip_prefix(&root).unwrap().to_string_lossy().replace('\\', "/");
+        let rel = p
+            .strip_prefix(&root)
+            .unwrap()
+            .to_string_lossy()
+            .replace('\\', "/");
         if rel == "main.rs" || rel.ends_with("/tests.rs") || rel.ends_with("_tests.rs") {
             continue;
         }
-        let mut module: Vec<String> = rel.trim_end_matches(".rs").split('/').map(String::from).collect();
+        let mut module: Vec<String> = rel
+            .trim_end_matches(".rs")
+            .split('/')
+            .map(String::from)
+            .collect();
         if module.last().is_some_and(|m| m == "mod" || m == "lib") {
             module.pop();
         }
         let text = std::fs::read_to_string(&p).unwrap();
-        files.push(SourceFile { rel, module, code: without_tests(&text) });
+        files.push(SourceFile {
+            rel,
+            module,
+            code: without_tests(&text),
+        });
     }
     files
 }
@@ -128,10 +143,12 @@ fn referenced_paths(code: &str) -> Vec<(String, Vec<String>)> {
             from = at + start.len();
             if at > 0 {
                 let prev = code.as_bytes()[at - 1];
-                if prev.is_ascii_alphanumeric() || prev == b'_' || prev == b':' && start == "super::" {
-                    if !(start == "super::" && code[..at].ends_with("super::")) {
-                        continue;
-                    }
+                let inside_a_name = prev.is_ascii_alphanumeric()
+                    || prev == b'_'
+                    || prev == b':' && start == "super::";
+                // `super::super::x` is read from its first `super::`.
+                if inside_a_name && !(start == "super::" && code[..at].ends_with("super::")) {
+                    continue;
                 }
             }
             let mut prefix = vec![start.trim_end_matches("::").to_string()];
@@ -144,10 +161,7 @@ fn referenced_paths(code: &str) -> Vec<(String, Vec<String>)> {
             expand(rest, &prefix, &mut found);
         }
     }
-    found
-        .into_iter()
-        .map(|p| (p[0].clone(), p))
-        .collect()
+    found.into_iter().map(|p| (p[0].clone(), p)).collect()
 }
 
 fn expand(rest: &str, prefix: &[String], out: &mut Vec<Vec<String>>) {
@@ -173,7 +187,10 @@ fn expand(rest: &str, prefix: &[String], out: &mut Vec<Vec<String>>) {
         }
         return;
     }
-    let ident: String = rest.chars().take_while(|c| c.is_ascii_alphanumeric() || *c == '_').collect();
+    let ident: String = rest
+        .chars()
+        .take_while(|c| c.is_ascii_alphanumeric() || *c == '_')
+        .collect();
     if ident.is_empty() {
         return;
     }
@@ -196,7 +213,11 @@ fn expand(rest: &str, prefix: &[String], out: &mut Vec<Vec<String>>) {
 
 /// The module path a reference points into, resolved against the known modules (the
 /// longest known prefix).
-fn resolve(file: &SourceFile, path: &[String], modules: &BTreeSet<Vec<String>>) -> Option<Vec<String>> {
+fn resolve(
+    file: &SourceFile,
+    path: &[String],
+    modules: &BTreeSet<Vec<String>>,
+) -> Option<Vec<String>> {
     let mut abs: Vec<String> = Vec::new();
     let mut segs = path.iter();
     match segs.next().map(String::as_str) {
@@ -265,7 +286,9 @@ fn allowed(from: &str, to: &str) -> Result<(), &'static str> {
         "cluster" => Err("cluster/ knows rows and weights only (support files excepted)"),
         "colour" => Err("colour/ imports no other part"),
         "error" | "limits" | "rng" | "trace" => Err("support files import no part"),
-        "raster" | "output" | "features" | "render" | "families" | "film" if WORKFLOWS.contains(&to) => {
+        "raster" | "output" | "features" | "render" | "families" | "film"
+            if WORKFLOWS.contains(&to) =>
+        {
             Err("shared parts never import a workflow")
         }
         // The document header records the engine's options (a plain value of cluster/).
@@ -297,14 +320,22 @@ fn parts_import_only_what_the_map_allows() {
             }
         }
     }
-    assert!(broken.is_empty(), "layout rules broken:\n{}", broken.join("\n"));
+    assert!(
+        broken.is_empty(),
+        "layout rules broken:\n{}",
+        broken.join("\n")
+    );
 }
 
 #[test]
 fn files_form_no_cycle() {
     let g = graph();
-    let index: BTreeMap<&Vec<String>, usize> =
-        g.files.iter().enumerate().map(|(i, f)| (&f.module, i)).collect();
+    let index: BTreeMap<&Vec<String>, usize> = g
+        .files
+        .iter()
+        .enumerate()
+        .map(|(i, f)| (&f.module, i))
+        .collect();
     // A file that re-exports its children (a folder's mod.rs, lib.rs) is a table of
     // contents, not a dependency: edges from a parent module into its own children are
     // not counted.
@@ -320,7 +351,12 @@ fn files_form_no_cycle() {
         })
         .collect();
     // Depth-first search with colours; report the first cycle found.
-    fn visit(v: usize, adj: &[Vec<usize>], state: &mut [u8], stack: &mut Vec<usize>) -> Option<Vec<usize>> {
+    fn visit(
+        v: usize,
+        adj: &[Vec<usize>],
+        state: &mut [u8],
+        stack: &mut Vec<usize>,
+    ) -> Option<Vec<usize>> {
         state[v] = 1;
         stack.push(v);
         for &w in &adj[v] {
@@ -343,7 +379,10 @@ fn files_form_no_cycle() {
         if state[v] == 0 {
             let mut stack = Vec::new();
             if let Some(c) = visit(v, &adj, &mut state, &mut stack) {
-                let names: Vec<_> = c.iter().map(|&i| format!("src/{}", g.files[i].rel)).collect();
+                let names: Vec<_> = c
+                    .iter()
+                    .map(|&i| format!("src/{}", g.files[i].rel))
+                    .collect();
                 panic!("files import each other in a cycle: {}", names.join(" → "));
             }
         }
@@ -362,7 +401,11 @@ fn no_file_is_over_the_size_limit() {
         .filter(|(_, n)| *n > MAX_CODE_LINES)
         .map(|(rel, n)| format!("src/{rel}: {n} lines of code"))
         .collect();
-    assert!(big.is_empty(), "files over {MAX_CODE_LINES} lines of code:\n{}", big.join("\n"));
+    assert!(
+        big.is_empty(),
+        "files over {MAX_CODE_LINES} lines of code:\n{}",
+        big.join("\n")
+    );
 }
 
 /// Library messages name settings; only cli/ (and main.rs) speak of flags.
@@ -387,9 +430,14 @@ fn no_library_message_names_a_flag() {
                 }
                 if in_str
                     && bytes[i] == b'-'
-                    && (i == 0 || bytes[i - 1] == b' ' || bytes[i - 1] == b'"' || bytes[i - 1] == b'(')
-                    && (bytes.get(i + 1) == Some(&b'-') && bytes.get(i + 2).is_some_and(u8::is_ascii_lowercase)
-                        || bytes.get(i + 1) == Some(&b'k') && bytes.get(i + 2).is_some_and(|c| !c.is_ascii_alphanumeric()))
+                    && (i == 0
+                        || bytes[i - 1] == b' '
+                        || bytes[i - 1] == b'"'
+                        || bytes[i - 1] == b'(')
+                    && (bytes.get(i + 1) == Some(&b'-')
+                        && bytes.get(i + 2).is_some_and(u8::is_ascii_lowercase)
+                        || bytes.get(i + 1) == Some(&b'k')
+                            && bytes.get(i + 2).is_some_and(|c| !c.is_ascii_alphanumeric()))
                 {
                     found.push(format!("src/{}:{}: {}", f.rel, n + 1, t));
                     break;
@@ -397,17 +445,30 @@ fn no_library_message_names_a_flag() {
             }
         }
     }
-    assert!(found.is_empty(), "library messages that name a flag:\n{}", found.join("\n"));
+    assert!(
+        found.is_empty(),
+        "library messages that name a flag:\n{}",
+        found.join("\n")
+    );
 }
 
 #[test]
 fn the_reader_finds_paths_in_groups_and_code() {
     let code = "use crate::{colour::{self, Lab}, cluster::fit};\nfn f() { crate::raster::decode(x); super::sibling::g(); }\n// crate::cli in a comment\nconst S: &str = \"crate::cli\";";
-    let mut paths: Vec<String> = referenced_paths(code).into_iter().map(|(_, p)| p.join("::")).collect();
+    let mut paths: Vec<String> = referenced_paths(code)
+        .into_iter()
+        .map(|(_, p)| p.join("::"))
+        .collect();
     paths.sort();
     assert_eq!(
         paths,
-        ["crate::cluster::fit", "crate::colour", "crate::colour::Lab", "crate::raster::decode", "super::sibling::g"]
+        [
+            "crate::cluster::fit",
+            "crate::colour",
+            "crate::colour::Lab",
+            "crate::raster::decode",
+            "super::sibling::g"
+        ]
     );
     assert_eq!(code_lines("// c\n\nfn a() {}\n  /// d\nlet x = 1;"), 2);
     assert!(allowed("sweep", "landcover").is_err());

@@ -15,17 +15,30 @@ fn json(path: &Path) -> Value {
 }
 
 fn poster() -> String {
-    fixture("demo/harbour-poster.png").to_str().unwrap().to_string()
+    fixture("demo/harbour-poster.png")
+        .to_str()
+        .unwrap()
+        .to_string()
 }
 
 fn quayside() -> String {
-    fixture("demo/quayside-inks.csv").to_str().unwrap().to_string()
+    fixture("demo/quayside-inks.csv")
+        .to_str()
+        .unwrap()
+        .to_string()
 }
 
 /// Runs `separate` on the demo poster with extra flags into `out`.
 fn separate_poster(out: &Path, extra: &[&str]) -> std::process::Output {
     let (p, q) = (poster(), quayside());
-    let mut args = vec!["separate", p.as_str(), "--inks", q.as_str(), "-o", out.to_str().unwrap()];
+    let mut args = vec![
+        "separate",
+        p.as_str(),
+        "--inks",
+        q.as_str(),
+        "-o",
+        out.to_str().unwrap(),
+    ];
     args.extend_from_slice(extra);
     run(&args, &[])
 }
@@ -110,19 +123,35 @@ fn the_dark_garment_demo_writes_true_size_films_with_an_underbase() {
     let o = separate_poster(
         &out,
         &[
-            "-k", "5", "--substrate", "#101010", "--underbase", "--halftone", "round", "--tints",
-            "--films", "tiff,pdf", "--dpi", "300",
+            "-k",
+            "5",
+            "--substrate",
+            "#101010",
+            "--underbase",
+            "--halftone",
+            "round",
+            "--tints",
+            "--films",
+            "tiff,pdf",
+            "--dpi",
+            "300",
         ],
     );
     assert!(o.status.success(), "{}", stderr(&o));
     let doc = json(&out.join("harbour-poster.separation.json"));
     let films = doc["films"]["films"].as_array().unwrap();
     let inks = doc["inks"].as_array().unwrap();
-    assert_eq!(films.len(), inks.len() + 1, "one film per ink plus the underbase");
+    assert_eq!(
+        films.len(),
+        inks.len() + 1,
+        "one film per ink plus the underbase"
+    );
     assert_eq!(films[0]["role"], "underbase");
     assert_eq!(films[0]["print_order"], 1, "the underbase prints first");
     assert!(
-        films.iter().any(|f| f["screen"].as_str().unwrap().contains("lpi")),
+        films
+            .iter()
+            .any(|f| f["screen"].as_str().unwrap().contains("lpi")),
         "the tints are halftoned: {films:?}"
     );
     let mut size = None;
@@ -134,21 +163,40 @@ fn the_dark_garment_demo_writes_true_size_films_with_an_underbase() {
         // The artwork (320 × 240 px) plus at least the 20 mm default margin on each side.
         let margin = 20.0 / 25.4 * 300.0;
         assert!(w as f64 >= 320.0 + 2.0 * margin - 1.0 && h as f64 >= 240.0 + 2.0 * margin - 1.0);
-        assert_eq!(*size.get_or_insert((w, h)), (w, h), "every film has one size");
+        assert_eq!(
+            *size.get_or_insert((w, h)),
+            (w, h),
+            "every film has one size"
+        );
     }
     let (w, h) = size.unwrap();
     let boxes = pdf_boxes(&out.join("harbour-poster.films.pdf"), 300.0);
     assert_eq!(boxes.len(), films.len(), "one PDF page per film");
     for (trim, media) in boxes {
-        assert!((media[0] - w as f64 / 300.0 * 72.0).abs() < 0.01, "{media:?}");
-        assert!((media[1] - h as f64 / 300.0 * 72.0).abs() < 0.01, "{media:?}");
-        assert_eq!((trim[2], trim[3]), (320.0, 240.0), "the artwork box is the artwork");
+        assert!(
+            (media[0] - w as f64 / 300.0 * 72.0).abs() < 0.01,
+            "{media:?}"
+        );
+        assert!(
+            (media[1] - h as f64 / 300.0 * 72.0).abs() < 0.01,
+            "{media:?}"
+        );
+        assert_eq!(
+            (trim[2], trim[3]),
+            (320.0, 240.0),
+            "the artwork box is the artwork"
+        );
     }
     // The stacked proof and a preview per film.
     let names = files_in(&out);
     assert!(names.contains(&"harbour-poster.stack.png".to_string()));
-    assert_eq!(names.iter().filter(|n| n.contains(".preview-")).count(), films.len());
-    let stack = image::open(out.join("harbour-poster.stack.png")).unwrap().to_rgb8();
+    assert_eq!(
+        names.iter().filter(|n| n.contains(".preview-")).count(),
+        films.len()
+    );
+    let stack = image::open(out.join("harbour-poster.stack.png"))
+        .unwrap()
+        .to_rgb8();
     assert_eq!(stack.dimensions(), (320, 240));
     // Every pixel is the garment, the white or one of the chosen inks, and all show.
     let mut allowed: Vec<[u8; 3]> = vec![[0x10, 0x10, 0x10], [255, 255, 255]];
@@ -174,8 +222,17 @@ fn the_underbase_is_the_union_of_the_colours_eroded_by_the_choke() {
     let o = separate_poster(
         &out,
         &[
-            "-k", "4", "--substrate", "#101010", "--underbase", "--choke-mm", "0.5", "--films",
-            "tiff,pdf", "--dpi", "300",
+            "-k",
+            "4",
+            "--substrate",
+            "#101010",
+            "--underbase",
+            "--choke-mm",
+            "0.5",
+            "--films",
+            "tiff,pdf",
+            "--dpi",
+            "300",
         ],
     );
     assert!(o.status.success(), "{}", stderr(&o));
@@ -233,7 +290,10 @@ fn the_underbase_is_the_union_of_the_colours_eroded_by_the_choke() {
     }
     let differ = ub.iter().zip(&expected).filter(|(a, b)| a != b).count();
     assert_eq!(differ, 0, "underbase vs erosion of the colours");
-    assert!(ub.iter().filter(|&&v| v).count() > w * h / 4, "an underbase is there");
+    assert!(
+        ub.iter().filter(|&&v| v).count() > w * h / 4,
+        "an underbase is there"
+    );
 }
 
 #[test]
@@ -243,7 +303,10 @@ fn an_earlier_run_with_other_plates_is_refused_unless_replaced() {
     let o = separate_poster(&out, &["-k", "5", "--films", "tiff", "--dpi", "300"]);
     assert!(o.status.success(), "{}", stderr(&o));
     let before = files_in(&out);
-    let stamp: Vec<Vec<u8>> = before.iter().map(|n| std::fs::read(out.join(n)).unwrap()).collect();
+    let stamp: Vec<Vec<u8>> = before
+        .iter()
+        .map(|n| std::fs::read(out.join(n)).unwrap())
+        .collect();
     // The same run again is no conflict.
     let o = separate_poster(&out, &["-k", "5", "--films", "tiff", "--dpi", "300"]);
     assert!(o.status.success(), "{}", stderr(&o));
@@ -252,20 +315,31 @@ fn an_earlier_run_with_other_plates_is_refused_unless_replaced() {
     assert_eq!(o.status.code(), Some(2));
     let err = stderr(&o);
     assert_eq!(err.trim_end().lines().count(), 1, "{err}");
-    assert!(err.contains("earlier run") && err.contains("--replace"), "{err}");
     assert!(
-        before.iter().any(|n| n.contains(".plate-") && err.contains(n.as_str())),
+        err.contains("earlier run") && err.contains("--replace"),
+        "{err}"
+    );
+    assert!(
+        before
+            .iter()
+            .any(|n| n.contains(".plate-") && err.contains(n.as_str())),
         "the message names the earlier plates: {err}"
     );
     assert_eq!(files_in(&out), before, "nothing written or removed");
-    let again: Vec<Vec<u8>> = before.iter().map(|n| std::fs::read(out.join(n)).unwrap()).collect();
+    let again: Vec<Vec<u8>> = before
+        .iter()
+        .map(|n| std::fs::read(out.join(n)).unwrap())
+        .collect();
     assert_eq!(again, stamp);
     // Films of an earlier run count too: no films this time would leave them behind.
     let o = separate_poster(&out, &["-k", "5"]);
     assert_eq!(o.status.code(), Some(2), "{}", stderr(&o));
     assert!(stderr(&o).contains(".film-"), "{}", stderr(&o));
     // With --replace the new set lands and the stale files go.
-    let o = separate_poster(&out, &["-k", "3", "--films", "tiff", "--dpi", "300", "--replace"]);
+    let o = separate_poster(
+        &out,
+        &["-k", "3", "--films", "tiff", "--dpi", "300", "--replace"],
+    );
     assert!(o.status.success(), "{}", stderr(&o));
     let after = files_in(&out);
     let plates: Vec<&String> = after.iter().filter(|n| n.contains(".plate-")).collect();
@@ -275,7 +349,12 @@ fn an_earlier_run_with_other_plates_is_refused_unless_replaced() {
     for ink in doc["inks"].as_array().unwrap() {
         assert!(after.contains(&ink["plate"].as_str().unwrap().to_string()));
     }
-    assert!(!after.iter().any(|n| n.starts_with(".chromasift") || n.contains(".tmp")), "{after:?}");
+    assert!(
+        !after
+            .iter()
+            .any(|n| n.starts_with(".chromasift") || n.contains(".tmp")),
+        "{after:?}"
+    );
 }
 
 #[test]
@@ -357,15 +436,25 @@ fn coverage_as_printed_counts_the_trap() {
     let doc = json(&trapped.join("harbour-poster.separation.json"));
     let mut spread = 0;
     for ink in doc["inks"].as_array().unwrap() {
-        let (c, cp) = (ink["coverage"].as_f64().unwrap(), ink["coverage_printed"].as_f64().unwrap());
+        let (c, cp) = (
+            ink["coverage"].as_f64().unwrap(),
+            ink["coverage_printed"].as_f64().unwrap(),
+        );
         assert!(cp >= c, "{ink}");
         // pixels_printed is what the plate file holds.
         let (_, _, mask) = read_plate(&trapped.join(ink["plate"].as_str().unwrap()));
-        assert_eq!(mask.iter().filter(|&&m| m).count() as u64, ink["pixels_printed"].as_u64().unwrap());
+        assert_eq!(
+            mask.iter().filter(|&&m| m).count() as u64,
+            ink["pixels_printed"].as_u64().unwrap()
+        );
         spread += ink["pixels_printed"].as_u64().unwrap() - ink["pixels"].as_u64().unwrap();
     }
     assert!(spread > 0, "a 2 px trap spreads some ink");
-    assert!(stderr(&o).contains("printed"), "the summary table shows it: {}", stderr(&o));
+    assert!(
+        stderr(&o).contains("printed"),
+        "the summary table shows it: {}",
+        stderr(&o)
+    );
 }
 
 #[test]
@@ -376,9 +465,26 @@ fn films_are_the_same_on_any_thread_count() {
         let out = dir.path().join(threads);
         let (p, q) = (poster(), quayside());
         let args = [
-            "separate", p.as_str(), "--inks", q.as_str(), "-k", "4", "--substrate", "#101010",
-            "--underbase", "--halftone", "round", "--tints", "--min-feature", "3threads@230",
-            "--films", "all", "--dpi", "300", "-o", out.to_str().unwrap(),
+            "separate",
+            p.as_str(),
+            "--inks",
+            q.as_str(),
+            "-k",
+            "4",
+            "--substrate",
+            "#101010",
+            "--underbase",
+            "--halftone",
+            "round",
+            "--tints",
+            "--min-feature",
+            "3threads@230",
+            "--films",
+            "all",
+            "--dpi",
+            "300",
+            "-o",
+            out.to_str().unwrap(),
         ];
         let o = run(&args, &[("RAYON_NUM_THREADS", threads)]);
         assert!(o.status.success(), "{}", stderr(&o));

@@ -2,18 +2,18 @@
 //! `learn` (a palette from many images or histogram files), the histogram file format
 //! that lets a large archive be summarised in shards, and the batch report.
 
-use crate::output::DocumentHeader;
 use crate::error::{Error, Result};
 use crate::features::histogram::Histogram;
-use crate::output::{OutputSet, TEMP_PREFIX};
-use crate::output::{stem_of, SourceStamp};
-use crate::reduce::{self, FixedPalette, PaletteDocument, ReduceOptions};
+use crate::features::histogram_file::merge_as_they_arrive;
 pub use crate::features::histogram_file::{
     decode as decode_histogram, encode as encode_histogram, histogram_of_file, input_files,
     HIST_MAGIC,
 };
+use crate::output::DocumentHeader;
+use crate::output::{stem_of, SourceStamp};
+use crate::output::{OutputSet, TEMP_PREFIX};
 pub use crate::raster::walk::{collect_images, walk_images, IMAGE_EXTENSIONS};
-use crate::features::histogram_file::merge_as_they_arrive;
+use crate::reduce::{self, FixedPalette, PaletteDocument, ReduceOptions};
 use rayon::prelude::*;
 use serde::{Deserialize, Serialize};
 use std::path::{Path, PathBuf};
@@ -758,5 +758,4 @@ mod tests {
             want.iter().map(|s| Some(s.to_string())).collect::<Vec<_>>()
         );
     }
-
 }

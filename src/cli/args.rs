@@ -33,7 +33,12 @@ pub struct PaletteFlags {
     pub target_p95: bool,
 
     /// With --target-delta-e: the largest K tried.
-    #[arg(long = "k-max", default_value_t = 16, value_name = "K", requires = "target_delta_e")]
+    #[arg(
+        long = "k-max",
+        default_value_t = 16,
+        value_name = "K",
+        requires = "target_delta_e"
+    )]
     pub k_max: usize,
 
     /// How colours are chosen. `families` (default): k-means, then every distinct colour
@@ -113,7 +118,12 @@ pub struct ReduceArgs {
 impl ReduceArgs {
     /// The library options these flags ask for.
     pub fn options(&self) -> ReduceOptions {
-        reduce_options(&self.palette, Some(&self.image), &self.engine, self.image.limit.limits())
+        reduce_options(
+            &self.palette,
+            Some(&self.image),
+            &self.engine,
+            self.image.limit.limits(),
+        )
     }
 }
 
@@ -168,7 +178,12 @@ pub struct BatchArgs {
 impl BatchArgs {
     /// The reduction options of each image.
     pub fn options(&self) -> ReduceOptions {
-        reduce_options(&self.palette, Some(&self.image), &self.engine, self.image.limit.limits())
+        reduce_options(
+            &self.palette,
+            Some(&self.image),
+            &self.engine,
+            self.image.limit.limits(),
+        )
     }
 }
 
@@ -331,7 +346,12 @@ pub struct SeparateArgs {
 
     /// Screen angles in degrees, one per tinted plate in order, separated by commas
     /// (default: 45, 75, 15, 0, common practice).
-    #[arg(long = "screen-angles", value_name = "DEGREES", value_delimiter = ',', requires = "films")]
+    #[arg(
+        long = "screen-angles",
+        value_name = "DEGREES",
+        value_delimiter = ',',
+        requires = "films"
+    )]
     pub screen_angles: Vec<f64>,
 
     /// Print each ink as a tint where the artwork is between the ink and the substrate
@@ -351,7 +371,12 @@ pub struct SeparateArgs {
     pub underbase: bool,
 
     /// How far the underbase is pulled back from the colours' edges (default 0.2 mm).
-    #[arg(long = "choke-mm", default_value_t = 0.2, value_name = "MM", requires = "underbase")]
+    #[arg(
+        long = "choke-mm",
+        default_value_t = 0.2,
+        value_name = "MM",
+        requires = "underbase"
+    )]
     pub choke_mm: f64,
 
     /// Add a highlight white plate, printed last where the artwork's CIE L* is at least
@@ -513,7 +538,9 @@ fn min_feature(s: &str) -> Result<crate::film::Length, String> {
     if let Some((m, mesh)) = t.split_once("threads@") {
         let mesh_count = number(mesh)?;
         if mesh_count == 0.0 {
-            return Err(format!("'{s}': the mesh count must be more than 0 threads per inch"));
+            return Err(format!(
+                "'{s}': the mesh count must be more than 0 threads per inch"
+            ));
         }
         return Ok(Length::Threads {
             mesh_count,

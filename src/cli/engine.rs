@@ -54,7 +54,11 @@ pub struct EngineFlags {
 
     /// The hard phase also stops when the means' summed squared move in one iteration is
     /// at most this times the data's mean variance per dimension (0 = off).
-    #[arg(long = "shift-tolerance", default_value_t = 1e-4, value_name = "FRACTION")]
+    #[arg(
+        long = "shift-tolerance",
+        default_value_t = 1e-4,
+        value_name = "FRACTION"
+    )]
     pub shift_tolerance: f64,
 
     /// Global refinement after each k-means++ start, so that the fit does not stop in the

@@ -59,13 +59,15 @@ fn distance(a: &str, b: &str) -> usize {
     for (i, row) in d.iter_mut().enumerate() {
         row[0] = i;
     }
-    for j in 0..=b.len() {
-        d[0][j] = j;
+    for (j, cell) in d[0].iter_mut().enumerate() {
+        *cell = j;
     }
     for i in 1..=a.len() {
         for j in 1..=b.len() {
             let cost = usize::from(a[i - 1] != b[j - 1]);
-            d[i][j] = (d[i - 1][j] + 1).min(d[i][j - 1] + 1).min(d[i - 1][j - 1] + cost);
+            d[i][j] = (d[i - 1][j] + 1)
+                .min(d[i][j - 1] + 1)
+                .min(d[i - 1][j - 1] + cost);
             if i > 1 && j > 1 && a[i - 1] == b[j - 2] && a[i - 2] == b[j - 1] {
                 d[i][j] = d[i][j].min(d[i - 2][j - 2] + 1);
             }
@@ -91,7 +93,9 @@ pub fn suggest<'a>(typed: &str, candidates: impl IntoIterator<Item = &'a str>) -
     candidates
         .iter()
         .map(|c| (distance(&bare, c.trim_start_matches('-')), *c))
-        .filter(|&(d, c)| d > 0 && d <= 2 && 3 * d < bare.len().max(c.trim_start_matches('-').len()))
+        .filter(|&(d, c)| {
+            d > 0 && d <= 2 && 3 * d < bare.len().max(c.trim_start_matches('-').len())
+        })
         .min()
         .map(|(_, c)| c.to_string())
 }
@@ -183,7 +187,10 @@ pub(super) fn usage_error_line(text: &str) -> String {
 pub(super) fn usage_error(e: &clap::Error, argv: &[String]) -> String {
     use clap::error::{ContextKind, ContextValue, ErrorKind};
     let line = usage_error_line(&e.to_string());
-    let invalid = match e.get(ContextKind::InvalidSubcommand).or(e.get(ContextKind::InvalidArg)) {
+    let invalid = match e
+        .get(ContextKind::InvalidSubcommand)
+        .or(e.get(ContextKind::InvalidArg))
+    {
         Some(ContextValue::String(s)) => s.clone(),
         _ => return format!("{line} (see --help)"),
     };
@@ -233,15 +240,27 @@ mod tests {
     fn typos_find_the_nearest_command_or_flag() {
         let names = command_names();
         let cmds = names.iter().map(String::as_str);
-        assert_eq!(suggest("seperate", cmds.clone()).as_deref(), Some("separate"));
+        assert_eq!(
+            suggest("seperate", cmds.clone()).as_deref(),
+            Some("separate")
+        );
         assert_eq!(suggest("redcue", cmds.clone()).as_deref(), Some("reduce"));
-        assert_eq!(suggest("landcovr", cmds.clone()).as_deref(), Some("landcover"));
+        assert_eq!(
+            suggest("landcovr", cmds.clone()).as_deref(),
+            Some("landcover")
+        );
         assert_eq!(suggest("zebra", cmds), None);
         let flags = flags_of(Some("reduce"));
         let flags = flags.iter().map(String::as_str);
         assert_eq!(suggest("--colors", flags.clone()).as_deref(), Some("-k"));
-        assert_eq!(suggest("--restart", flags.clone()).as_deref(), Some("--restarts"));
-        assert_eq!(suggest("--dihter", flags.clone()).as_deref(), Some("--dither"));
+        assert_eq!(
+            suggest("--restart", flags.clone()).as_deref(),
+            Some("--restarts")
+        );
+        assert_eq!(
+            suggest("--dihter", flags.clone()).as_deref(),
+            Some("--dither")
+        );
         assert_eq!(suggest("--colors=6", flags.clone()).as_deref(), Some("-k"));
         assert_eq!(suggest("--frobnicate", flags), None);
     }
@@ -252,9 +271,15 @@ mod tests {
             flag_wording("`k_max` must be between 1 and 9; see `sample` and `k`"),
             "--k-max must be between 1 and 9; see --sample and -k"
         );
-        assert_eq!(flag_wording("no ink named 'x' (asked for with `use_inks`)"), "no ink named 'x' (asked for with --use)");
+        assert_eq!(
+            flag_wording("no ink named 'x' (asked for with `use_inks`)"),
+            "no ink named 'x' (asked for with --use)"
+        );
         // Backquotes around anything else are left alone.
-        assert_eq!(flag_wording("a `Mixed Case` name and a lone ` tick"), "a `Mixed Case` name and a lone ` tick");
+        assert_eq!(
+            flag_wording("a `Mixed Case` name and a lone ` tick"),
+            "a `Mixed Case` name and a lone ` tick"
+        );
     }
 
     #[test]
@@ -264,7 +289,11 @@ mod tests {
         for c in command_names() {
             assert!(names.contains(&format!("chromasift-{c}.1").as_str()), "{c}");
         }
-        let reduce = &pages.iter().find(|(n, _)| n == "chromasift-reduce.1").unwrap().1;
+        let reduce = &pages
+            .iter()
+            .find(|(n, _)| n == "chromasift-reduce.1")
+            .unwrap()
+            .1;
         let text = String::from_utf8_lossy(reduce);
         assert!(text.contains("chromasift\\-reduce"), "{text}");
         assert!(text.contains("max\\-iter") && text.contains("target\\-delta\\-e"));

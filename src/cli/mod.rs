@@ -148,7 +148,9 @@ pub enum Command {
 
     /// Print the manual page (roff) of the tool, or of one command, on standard output;
     /// or write every page into a folder.
-    #[command(after_help = "Examples:\n  chromasift manpage > chromasift.1 && man ./chromasift.1\n  chromasift manpage reduce > chromasift-reduce.1\n  chromasift manpage --all -o man/")]
+    #[command(
+        after_help = "Examples:\n  chromasift manpage > chromasift.1 && man ./chromasift.1\n  chromasift manpage reduce > chromasift-reduce.1\n  chromasift manpage --all -o man/"
+    )]
     Manpage(ManpageArgs),
 }
 

@@ -64,7 +64,10 @@ fn dispatch(argv: Vec<std::ffi::OsString>) -> ExitCode {
                 let _ = e.print();
                 return ExitCode::from(EXIT_USAGE);
             }
-            let words: Vec<String> = argv.iter().map(|a| a.to_string_lossy().into_owned()).collect();
+            let words: Vec<String> = argv
+                .iter()
+                .map(|a| a.to_string_lossy().into_owned())
+                .collect();
             return fail(usage_error(&e, &words));
         }
     };
@@ -129,7 +132,9 @@ fn check_standard_streams(command: &Command) -> Result<(), String> {
         _ => false,
     };
     if twice {
-        return Err("standard input (-) can hold the image or the second input file, not both".into());
+        return Err(
+            "standard input (-) can hold the image or the second input file, not both".into(),
+        );
     }
     let json_twice = match command {
         Command::Learn(a) => a.out.as_os_str() == "-" && a.json,
@@ -149,7 +154,11 @@ fn print_reduce_summary(input: &Path, report: &reduce::ReduceReport, json: bool)
         note(input, n);
     }
     for w in &report.warnings {
-        eprintln!("chromasift: warning: {}: {}", input.display(), flag_wording(w));
+        eprintln!(
+            "chromasift: warning: {}: {}",
+            input.display(),
+            flag_wording(w)
+        );
     }
     let d = &report.document;
     eprintln!(
@@ -182,7 +191,10 @@ fn reduce_stream(args: &ReduceArgs) -> Result<reduce::ReduceReport, Error> {
     let opts = args.options();
     let from_stdin = args.input.as_os_str() == "-";
     let (name, bytes) = if from_stdin {
-        (PathBuf::from("standard input"), read_stdin(opts.limits.max_alloc)?)
+        (
+            PathBuf::from("standard input"),
+            read_stdin(opts.limits.max_alloc)?,
+        )
     } else {
         let bytes = std::fs::read(&args.input).map_err(|source| Error::Open {
             path: args.input.clone(),
@@ -193,7 +205,10 @@ fn reduce_stream(args: &ReduceArgs) -> Result<reduce::ReduceReport, Error> {
     let mut red = reduce::reduce_bytes(&bytes, &name, &opts)?;
     drop(bytes);
     if !from_stdin {
-        red.document.header.input = args.input.file_name().map(|n| n.to_string_lossy().into_owned());
+        red.document.header.input = args
+            .input
+            .file_name()
+            .map(|n| n.to_string_lossy().into_owned());
     }
     let outputs = match args.stdout {
         Some(which) => {
@@ -217,7 +232,8 @@ fn reduce_stream(args: &ReduceArgs) -> Result<reduce::ReduceReport, Error> {
 }
 
 fn run_separate(args: &super::SeparateArgs) -> Result<ExitCode, Error> {
-    let report = separate::separate_file(&args.input, &args.inks, &args.output.out, &args.options())?;
+    let report =
+        separate::separate_file(&args.input, &args.inks, &args.output.out, &args.options())?;
     for n in &report.document.notes {
         note(&args.input, n);
     }
@@ -259,7 +275,11 @@ fn run_sweep(args: &super::SweepArgs) -> Result<ExitCode, Error> {
         note(&args.input, n);
     }
     let d = &report.document;
-    let suggested: Vec<String> = d.suggested.iter().map(|(c, k)| format!("{c} K = {k}")).collect();
+    let suggested: Vec<String> = d
+        .suggested
+        .iter()
+        .map(|(c, k)| format!("{c} K = {k}"))
+        .collect();
     eprintln!(
         "chromasift: {}: swept K {}..{}; suggested: {}; {:.2} s",
         args.input.display(),
@@ -351,7 +371,11 @@ fn run_manpage(args: &ManpageArgs) -> Result<ExitCode, Error> {
             set.write_bytes(name, roff)?;
         }
         let written = set.commit()?;
-        eprintln!("chromasift: wrote {} manual pages into {}", written.len(), dir.display());
+        eprintln!(
+            "chromasift: wrote {} manual pages into {}",
+            written.len(),
+            dir.display()
+        );
         return Ok(ExitCode::SUCCESS);
     }
     let wanted = match &args.command {
@@ -390,7 +414,8 @@ fn note_fitting_flags(command: &str, args: &BatchArgs) {
         (!p.pin.is_empty(), "--pin"),
     ]
     .into_iter()
-    .filter_map(|(set, name)| set.then(|| name.to_string()))
+    .filter(|&(set, _)| set)
+    .map(|(_, name)| name.to_string())
     .collect();
     ignored.extend(
         args.engine
@@ -415,7 +440,12 @@ fn run_batch(args: BatchArgs) -> ExitCode {
     if args.palette_file.is_some() {
         note_fitting_flags("batch --palette", &args);
     }
-    let palette = match args.palette_file.as_deref().map(learn::read_palette).transpose() {
+    let palette = match args
+        .palette_file
+        .as_deref()
+        .map(learn::read_palette)
+        .transpose()
+    {
         Ok(p) => p,
         Err(e) => return fail(e),
     };
@@ -466,7 +496,10 @@ fn run_batch(args: BatchArgs) -> ExitCode {
         Err(e) => return fail(e),
     };
     for f in r.files.iter().filter(|f| f.status == batch::Status::Failed) {
-        eprintln!("chromasift: failed: {}", f.error.as_deref().unwrap_or(&f.input));
+        eprintln!(
+            "chromasift: failed: {}",
+            f.error.as_deref().unwrap_or(&f.input)
+        );
     }
     let t = &r.totals;
     eprintln!(

@@ -100,7 +100,9 @@ pub(super) fn stdin_to_file() -> Result<(tempfile::TempDir, PathBuf), Error> {
         || bytes.starts_with(b"II+\0")
         || bytes.starts_with(b"MM\0+");
     let dir = tempfile::tempdir().map_err(|e| Error::io(name, e))?;
-    let path = dir.path().join(if tiff { "stdin.tif" } else { "stdin.img" });
+    let path = dir
+        .path()
+        .join(if tiff { "stdin.tif" } else { "stdin.img" });
     std::fs::write(&path, &bytes).map_err(|e| Error::io(&path, e))?;
     Ok((dir, path))
 }

@@ -50,17 +50,34 @@ fn each_flag_parses() {
     assert_eq!(e(&["--shift-tolerance", "0"]).shift_tolerance, 0.0);
     assert_eq!(e(&["--split-merge", "5"]).split_merge, 5);
     assert!(e(&["--anneal"]).anneal.is_some());
-    assert_eq!(e(&["--refine", "none"]).refine, crate::cluster::Refine::None);
-    assert_eq!(e(&["--refine", "swap:3"]).refine, crate::cluster::Refine::Swap(3));
+    assert_eq!(
+        e(&["--refine", "none"]).refine,
+        crate::cluster::Refine::None
+    );
+    assert_eq!(
+        e(&["--refine", "swap:3"]).refine,
+        crate::cluster::Refine::Swap(3)
+    );
     assert_eq!(e(&[]).refine, crate::cluster::Refine::default());
     assert_eq!(
         reduce(&["--dither", "floyd-steinberg"]).image.dither,
         Dither::FloydSteinberg
     );
-    assert_eq!(reduce(&["--max-pixels", "100"]).options().limits.max_pixels, 100);
+    assert_eq!(
+        reduce(&["--max-pixels", "100"]).options().limits.max_pixels,
+        100
+    );
     assert!(reduce(&["--uncertainty-raw"]).image.uncertainty_raw);
     assert!(reduce(&["--json"]).output.json);
-    assert!(Cli::try_parse_from(["chromasift", "reduce", "a.png", "--stdout", "palette", "--json"]).is_err());
+    assert!(Cli::try_parse_from([
+        "chromasift",
+        "reduce",
+        "a.png",
+        "--stdout",
+        "palette",
+        "--json"
+    ])
+    .is_err());
 }
 
 /// Every command that fits clusters takes the same engine flags, with the same defaults,
@@ -68,8 +85,19 @@ fn each_flag_parses() {
 #[test]
 fn every_fitting_command_has_the_same_engine_flags() {
     let engine_flags = [
-        "mode", "beta", "seed", "restarts", "max-iter", "tolerance", "shift-tolerance",
-        "refine", "anneal", "anneal-start", "anneal-end", "anneal-factor", "split-merge",
+        "mode",
+        "beta",
+        "seed",
+        "restarts",
+        "max-iter",
+        "tolerance",
+        "shift-tolerance",
+        "refine",
+        "anneal",
+        "anneal-start",
+        "anneal-end",
+        "anneal-factor",
+        "split-merge",
     ];
     let top = Cli::command();
     for name in ["reduce", "separate", "landcover", "batch", "learn", "sweep"] {
@@ -85,10 +113,25 @@ fn every_fitting_command_has_the_same_engine_flags() {
                 .get_arguments()
                 .find(|a| a.get_long() == Some(flag))
                 .unwrap();
-            assert_eq!(arg.get_default_values(), reference.get_default_values(), "{name} --{flag}");
+            assert_eq!(
+                arg.get_default_values(),
+                reference.get_default_values(),
+                "{name} --{flag}"
+            );
         }
     }
-    let given = ["--seed", "9", "--restarts", "3", "--mode", "soft", "--beta", "0.5", "--max-iter", "40"];
+    let given = [
+        "--seed",
+        "9",
+        "--restarts",
+        "3",
+        "--mode",
+        "soft",
+        "--beta",
+        "0.5",
+        "--max-iter",
+        "40",
+    ];
     let want = EngineOptions {
         seed: 9,
         restarts: 3,
@@ -134,19 +177,46 @@ fn apply_shows_only_what_it_uses() {
     let top = Cli::command();
     let apply = top.find_subcommand("apply").unwrap();
     let longs: Vec<&str> = apply.get_arguments().filter_map(|a| a.get_long()).collect();
-    for used in ["palette", "beta", "dither", "uncertainty-raw", "max-pixels", "out", "json"] {
+    for used in [
+        "palette",
+        "beta",
+        "dither",
+        "uncertainty-raw",
+        "max-pixels",
+        "out",
+        "json",
+    ] {
         assert!(longs.contains(&used), "apply lacks --{used}");
     }
-    for unused in ["restarts", "anneal", "k", "target-delta-e", "split-merge", "space", "seed"] {
+    for unused in [
+        "restarts",
+        "anneal",
+        "k",
+        "target-delta-e",
+        "split-merge",
+        "space",
+        "seed",
+    ] {
         assert!(!longs.contains(&unused), "apply lists --{unused}");
     }
     match parse(&["apply", "a.png", "--palette", "p.json", "--beta", "0.1"]) {
         Command::Apply(a) => assert_eq!(a.options().engine.beta, Beta::Fixed(0.1)),
         _ => unreachable!(),
     }
-    assert!(Cli::try_parse_from(["chromasift", "apply", "a.png", "--palette", "p.json", "--restarts", "3"]).is_err());
+    assert!(Cli::try_parse_from([
+        "chromasift",
+        "apply",
+        "a.png",
+        "--palette",
+        "p.json",
+        "--restarts",
+        "3"
+    ])
+    .is_err());
     let learn = top.find_subcommand("learn").unwrap();
-    assert!(!learn.get_arguments().any(|a| a.get_long() == Some("dither")));
+    assert!(!learn
+        .get_arguments()
+        .any(|a| a.get_long() == Some("dither")));
 }
 
 fn separate(args: &[&str]) -> SeparateArgs {
@@ -165,19 +235,38 @@ fn separate_flags_parse() {
     assert_eq!(d.inks, PathBuf::from("inks.csv"));
     assert_eq!(separate(&["-k", "3"]).k, 3);
     assert_eq!(
-        separate(&["--use", "Night Black, Harbour Blue"]).options().use_inks,
+        separate(&["--use", "Night Black, Harbour Blue"])
+            .options()
+            .use_inks,
         vec!["Night Black", "Harbour Blue"]
     );
     assert!(separate(&["--all"]).all);
-    assert_eq!(separate(&["--substrate", "#ffeedd"]).substrate, Some([0xff, 0xee, 0xdd]));
+    assert_eq!(
+        separate(&["--substrate", "#ffeedd"]).substrate,
+        Some([0xff, 0xee, 0xdd])
+    );
     assert_eq!(separate(&["--min-area", "24"]).min_area, 24);
     assert_eq!(separate(&["--trap", "2"]).trap, 2);
     assert_eq!(separate(&["--dpi", "300"]).dpi, Some(300.0));
     assert_eq!(separate(&["--seed", "5"]).options().engine.seed, 5);
-    assert_eq!(separate(&["-o", "plates"]).output.out, PathBuf::from("plates"));
-    assert_eq!(separate(&["--max-pixels", "9"]).options().limits.max_pixels, 9);
+    assert_eq!(
+        separate(&["-o", "plates"]).output.out,
+        PathBuf::from("plates")
+    );
+    assert_eq!(
+        separate(&["--max-pixels", "9"]).options().limits.max_pixels,
+        9
+    );
     assert!(separate(&["--json"]).output.json);
-    let bad = ["chromasift", "separate", "a.png", "--inks", "i.csv", "--substrate", "white"];
+    let bad = [
+        "chromasift",
+        "separate",
+        "a.png",
+        "--inks",
+        "i.csv",
+        "--substrate",
+        "white",
+    ];
     assert!(Cli::try_parse_from(bad).is_err());
 }
 
@@ -194,11 +283,20 @@ fn landcover_flags_parse() {
     let d = lc(&[]).options();
     assert_eq!(d, crate::landcover::LandcoverOptions::default());
     assert_eq!(lc(&["-k", "8"]).k, 8);
-    assert_eq!(lc(&["--bands", "2,3,4,8"]).options().scene.bands, Some(vec![2, 3, 4, 8]));
-    let ix = lc(&["--index", "ndvi:3,4", "--index", "nd:2,4"]).rest.scene.index;
+    assert_eq!(
+        lc(&["--bands", "2,3,4,8"]).options().scene.bands,
+        Some(vec![2, 3, 4, 8])
+    );
+    let ix = lc(&["--index", "ndvi:3,4", "--index", "nd:2,4"])
+        .rest
+        .scene
+        .index;
     assert_eq!(ix.len(), 2);
     assert_eq!(ix[1].name(), "nd:2,4");
-    assert_eq!(lc(&["--scale", "none"]).rest.scene.scale, crate::landcover::Scale::None);
+    assert_eq!(
+        lc(&["--scale", "none"]).rest.scene.scale,
+        crate::landcover::Scale::None
+    );
     assert_eq!(lc(&["--nodata", "-9999"]).rest.scene.nodata, Some(-9999.0));
     assert_eq!(lc(&["--sample", "1000"]).rest.scene.sample, 1000);
     assert_eq!(lc(&["--restarts", "3"]).options().engine.restarts, 3);
@@ -206,7 +304,9 @@ fn landcover_flags_parse() {
     assert_eq!(lc(&["--max-pixels", "10"]).max_pixels, 10);
     assert!(lc(&["--json"]).rest.output.json);
     assert!(Cli::try_parse_from(["chromasift", "landcover", "s.tif", "--bands", "0"]).is_err());
-    assert!(Cli::try_parse_from(["chromasift", "landcover", "s.tif", "--index", "evi:1,2"]).is_err());
+    assert!(
+        Cli::try_parse_from(["chromasift", "landcover", "s.tif", "--index", "evi:1,2"]).is_err()
+    );
 }
 
 #[test]

@@ -10,26 +10,26 @@
 //! and per-chunk partial sums are reduced in chunk order.
 
 mod anneal;
+mod choose;
 mod dataset;
 mod engine;
 mod grid;
-mod nearest;
-mod choose;
 mod hard;
 mod init;
 mod mixture;
 mod model;
+mod nearest;
 mod params;
 mod refine;
 mod soft;
 mod split_merge;
 
 pub use anneal::{anneal, Anneal, AnnealResult};
-pub use engine::EngineOptions;
 pub use choose::{
     adjusted_rand_index, bic, calibration, k_path, silhouette, stability, weighted_sample,
     CalibrationBin,
 };
+pub use engine::EngineOptions;
 pub use hard::{assign_nearest, lloyd, lloyd_fixed, LloydResult, Stop};
 pub use init::{kmeans_plus_plus, kmeans_plus_plus_from};
 pub use mixture::{fit_mixture, free_parameters, Mixture, MixtureSettings};

@@ -180,7 +180,14 @@ pub fn fit_hard(data: &Dataset, params: &ValidParams) -> Result<(usize, super::L
                     // Its own generator stream per start, apart from k-means++'s.
                     let mut rng = Rng::new(params.engine.seed, REFINE_STREAM | r as u64);
                     let on = summary.as_ref().unwrap_or(data);
-                    init = refine_means(on, &init, params.engine.refine, params.engine.tolerance, &mut rng).means;
+                    init = refine_means(
+                        on,
+                        &init,
+                        params.engine.refine,
+                        params.engine.tolerance,
+                        &mut rng,
+                    )
+                    .means;
                     ph.mark("refinement");
                 }
                 match &grid {
@@ -239,7 +246,6 @@ pub fn fit_from(data: &Dataset, init: &[f32], params: &ValidParams) -> Result<KM
     Ok(finish(data, params, 0, hard))
 }
 
-
 /// The model of a finished hard fit (`restart` records which start it came from): β
 /// resolved, and in soft mode the soft phase run from its means.
 pub fn finish(
@@ -287,7 +293,14 @@ pub fn finish(
                     coarse_iterations = c.iterations;
                 }
             }
-            let soft = soft_kmeans_fixed(data, &start, fixed, b, params.engine.max_iter, params.engine.tolerance);
+            let soft = soft_kmeans_fixed(
+                data,
+                &start,
+                fixed,
+                b,
+                params.engine.max_iter,
+                params.engine.tolerance,
+            );
             model.means = soft.means;
             model.soft_iterations = coarse_iterations + soft.iterations;
             model.converged = soft.converged;

@@ -54,7 +54,9 @@ pub fn lost_areas(
         .par_iter()
         .with_min_len(1 << 16)
         .map(|&e| {
-            if e != crate::features::histogram::TRANSPARENT && entry_error[e as usize] > REPORT_DELTA_E {
+            if e != crate::features::histogram::TRANSPARENT
+                && entry_error[e as usize] > REPORT_DELTA_E
+            {
                 0
             } else {
                 components::FIXED

@@ -3,7 +3,7 @@
 
 pub mod components;
 pub mod histogram;
+pub mod histogram_file;
 pub mod quality;
 pub mod rows;
 pub mod scene;
-pub mod histogram_file;

@@ -287,7 +287,11 @@ impl<'a> RowReader<'a> {
     }
 }
 
-pub(crate) fn check_options(opts: &SceneOptions, info: &RasterInfo, path: &Path) -> Result<Features> {
+pub(crate) fn check_options(
+    opts: &SceneOptions,
+    info: &RasterInfo,
+    path: &Path,
+) -> Result<Features> {
     let bands: Vec<usize> = match &opts.bands {
         Some(b) => b.clone(),
         None => (1..=info.bands).collect(),

@@ -62,7 +62,8 @@ pub use page::{label_text, wrap_label, FilmLayout, FilmPage, Rect, LABEL_SEPARAT
 pub use screen::{auto_angles, DotShape, Halftone, ScreenKind, Screener, DEFAULT_LPI};
 pub use underbase::{add_underbase, highlight_white, underbase, UnderbaseFill, UnderbaseOptions};
 pub use write::{
-    file_safe, film_name, pdf_bytes, png_bytes, tiff_bytes, write_films, write_films_into, FilmFormats,
+    file_safe, film_name, pdf_bytes, png_bytes, tiff_bytes, write_films, write_films_into,
+    FilmFormats,
 };
 
 use crate::error::{ParamsError, Result};

@@ -335,7 +335,9 @@ pub fn one_input<L, T>(
         other => other,
     };
     let loaded = load().map_err(name_input)?;
-    let keep: Vec<&Path> = std::iter::once(input).chain(spare.iter().copied()).collect();
+    let keep: Vec<&Path> = std::iter::once(input)
+        .chain(spare.iter().copied())
+        .collect();
     let mut set = OutputSet::prepare(out_dir, &keep)?;
     for n in names {
         set.check_target(n)?;

@@ -1,10 +1,10 @@
 //! The palette document (`STEM.palette.json`) and palettes given in advance.
 
-use crate::output::DocumentHeader;
-use crate::colour::{self, Space};
 use crate::cluster::Mode;
+use crate::colour::{self, Space};
 use crate::families::{LostArea, Objective};
 use crate::features::quality::QualityTarget;
+use crate::output::DocumentHeader;
 use crate::output::SourceStamp;
 use serde::{Deserialize, Serialize};
 

@@ -1,14 +1,13 @@
 //! The `reduce` workflow: an image to a K-colour palette chosen in CIELAB or OKLab,
 //! with CIEDE2000 scores and an uncertainty map.
 
-mod pipeline;
 mod document;
+mod pipeline;
 mod write;
 
 pub use document::{AnnealSetting, FixedPalette, PaletteColour, PaletteDocument, ReduceSettings};
 pub use write::{
-    encode_one, encode_reduced, output_names, palette_csv, write_reduction, OneOutput,
-    ReduceReport,
+    encode_one, encode_reduced, output_names, palette_csv, write_reduction, OneOutput, ReduceReport,
 };
 // Shared helpers that earlier releases offered here.
 pub use crate::features::quality::{
@@ -74,11 +73,11 @@ impl ReduceOptions {
     /// The clustering parameters these options imply.
     pub fn kmeans_params(&self) -> KMeansParams {
         self.engine.params(self.k).pinned(
-                self.pinned
-                    .iter()
-                    .flat_map(|&c| colour::linear_to_space(colour::srgb8_to_linear(c), self.space))
-                    .collect(),
-            )
+            self.pinned
+                .iter()
+                .flat_map(|&c| colour::linear_to_space(colour::srgb8_to_linear(c), self.space))
+                .collect(),
+        )
     }
 }
 
@@ -275,8 +274,7 @@ pub fn reduce_file_run(
             ph.mark("decode");
             let mut red = reduce_image_with(&img, opts, fixed)?;
             drop(img);
-            red.document.header.input =
-                input.file_name().map(|n| n.to_string_lossy().into_owned());
+            red.document.header.input = input.file_name().map(|n| n.to_string_lossy().into_owned());
             if stamp {
                 red.document.source = SourceStamp::of(input);
                 red.document.settings_fingerprint = Some(opts.fingerprint(fixed));

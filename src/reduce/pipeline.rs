@@ -1,10 +1,9 @@
 //! The shared core of `reduce`, `apply` and `learn`: means for the histogram's entries
 //! (fitted, searched for a target, or given), quantised to sRGB, rendered and scored.
 
-use crate::output::DocumentHeader;
 use super::{
-    AnnealSetting, FixedPalette, PaletteColour, PaletteDocument, ReduceOptions,
-    ReduceSettings, Reduction,
+    AnnealSetting, FixedPalette, PaletteColour, PaletteDocument, ReduceOptions, ReduceSettings,
+    Reduction,
 };
 use crate::cluster::{
     finish, fit_hard, stop_rule, Beta, Dataset, EngineOptions, KMeansModel, Mode, Refine,
@@ -16,6 +15,7 @@ use crate::families::{self, Objective};
 use crate::features::histogram::Histogram;
 use crate::features::quality::{search_k, TargetStatistic};
 use crate::features::rows::entry_features;
+use crate::output::DocumentHeader;
 use crate::render::{self, Dither, NO_INDEX};
 use crate::trace::Phases;
 use rayon::prelude::*;
@@ -200,7 +200,14 @@ fn fit_to_target(
             unused.join(", ")
         ));
     }
-    let search = search_k(data, &en.labs, en.hist.total() as f64, opts.space, params, target)?;
+    let search = search_k(
+        data,
+        &en.labs,
+        en.hist.total() as f64,
+        opts.space,
+        params,
+        target,
+    )?;
     let (k, mean, p95) = *search.tried.last().expect("at least one K tried");
     let shown = |(k, m, p): &(usize, f64, f64)| match target.statistic {
         TargetStatistic::Mean => format!("K = {k}: {m:.2}"),
@@ -455,9 +462,7 @@ fn render_and_score(
     };
     let mut sc = match opts.dither {
         Dither::None => score_entries(en, &slots, &fitted.entropy),
-        Dither::FloydSteinberg => {
-            score_pixels(en, &slots, &fitted.entropy, &px.entry, &pixel_slot)
-        }
+        Dither::FloydSteinberg => score_pixels(en, &slots, &fitted.entropy, &px.entry, &pixel_slot),
     };
     let total = en.hist.total() as f64;
 
@@ -485,7 +490,13 @@ fn render_and_score(
     let pixel_index: Vec<u16> = pixel_slot
         .par_iter()
         .with_min_len(1 << 14)
-        .map(|&s| if s == NO_INDEX { NO_INDEX } else { new_index[s as usize] })
+        .map(|&s| {
+            if s == NO_INDEX {
+                NO_INDEX
+            } else {
+                new_index[s as usize]
+            }
+        })
         .collect();
     let palette: Vec<[u8; 3]> = order.iter().map(|&s| slots.colours[s]).collect();
     let colors: Vec<PaletteColour> = order
@@ -527,7 +538,13 @@ fn render_and_score(
         )
     };
     let warnings = families::lost_areas_warning(&lost_areas);
-    notes.extend(palette_notes(opts, fixed.is_some(), palette.len(), en.hist.len(), fitted.beta));
+    notes.extend(palette_notes(
+        opts,
+        fixed.is_some(),
+        palette.len(),
+        en.hist.len(),
+        fitted.beta,
+    ));
     let document = PaletteDocument {
         header: DocumentHeader::new(None, engine_used(opts, fixed.is_some())),
         space: opts.space,

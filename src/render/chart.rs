@@ -72,7 +72,15 @@ pub(crate) struct Canvas {
 impl Canvas {
     /// A text at baseline `y`, anchored at `x` ("start", "middle" or "end").
     #[allow(clippy::too_many_arguments)]
-    pub(crate) fn text(&mut self, x: f64, y: f64, size: f64, anchor: &str, style: &str, text: &str) {
+    pub(crate) fn text(
+        &mut self,
+        x: f64,
+        y: f64,
+        size: f64,
+        anchor: &str,
+        style: &str,
+        text: &str,
+    ) {
         let w = text_width(text, size);
         let x0 = match anchor {
             "end" => x - w,

@@ -38,11 +38,16 @@ pub(super) fn make(
     })?;
     settings.check(dpi)?;
     let rgba = films::rgba8(img);
-    let rgb: Vec<u8> = rgba.chunks_exact(4).flat_map(|p| [p[0], p[1], p[2]]).collect();
+    let rgb: Vec<u8> = rgba
+        .chunks_exact(4)
+        .flat_map(|p| [p[0], p[1], p[2]])
+        .collect();
     let mut plates = films::plate_images(sep, &rgb, settings.tints, opts.substrate)?;
     if let Some(l) = settings.highlight_white {
         let n = plates.len() + 1;
-        plates.push(film::highlight_white(&rgba, sep.width, sep.height, l, n, n)?);
+        plates.push(film::highlight_white(
+            &rgba, sep.width, sep.height, l, n, n,
+        )?);
     }
     let fopts = settings.film_options(dpi, stem);
     let set = film::make_films(&plates, None, &fopts)?;
@@ -55,7 +60,11 @@ pub(super) fn make(
         .filter(|&i| set.plates[i].role == PlateRole::Colour)
         .collect();
     for (ink, &page) in sep.document.inks.iter_mut().zip(&colour_pages) {
-        let printed = set.plates_in[page].amount.iter().filter(|&&a| a > 0).count() as u64;
+        let printed = set.plates_in[page]
+            .amount
+            .iter()
+            .filter(|&&a| a > 0)
+            .count() as u64;
         ink.pixels_printed = printed;
         if inked > 0 {
             ink.coverage_printed = printed as f64 / inked as f64;

@@ -85,7 +85,9 @@ impl FilmSettings {
         }
         let f = self.formats;
         if !(f.tiff || f.png || f.pdf) {
-            return Err(bad("`films` must name at least one of tiff, pdf, png".into()));
+            return Err(bad(
+                "`films` must name at least one of tiff, pdf, png".into()
+            ));
         }
         if !(self.margin_mm.is_finite() && self.margin_mm >= film::MIN_MARGIN_WITH_MARKS_MM) {
             return Err(bad(format!(
@@ -105,7 +107,9 @@ impl FilmSettings {
                 )));
             }
             if let Some(a) = h.angles.iter().find(|a| !a.is_finite()) {
-                return Err(bad(format!("`screen_angles` must be finite degrees (got {a})")));
+                return Err(bad(format!(
+                    "`screen_angles` must be finite degrees (got {a})"
+                )));
             }
         }
         if let Some(m) = &self.min_feature {
@@ -289,13 +293,22 @@ fn preview_background(ink: [u8; 3], substrate: Option<[u8; 3]>) -> [u8; 3] {
 }
 
 /// One film as its ink colour on a background (see [`preview_background`]). RGBA.
-pub fn plate_preview(films: &FilmSet, page: usize, colour: [u8; 3], substrate: Option<[u8; 3]>) -> Vec<u8> {
+pub fn plate_preview(
+    films: &FilmSet,
+    page: usize,
+    colour: [u8; 3],
+    substrate: Option<[u8; 3]>,
+) -> Vec<u8> {
     let art = films.layout.art;
     let bg = preview_background(colour, substrate);
     let mut out = vec![0u8; art.w as usize * art.h as usize * 4];
     for y in 0..art.h {
         for x in 0..art.w {
-            let c = if film_ink(films, page, x, y) { colour } else { bg };
+            let c = if film_ink(films, page, x, y) {
+                colour
+            } else {
+                bg
+            };
             let o = (y as usize * art.w as usize + x as usize) * 4;
             out[o..o + 3].copy_from_slice(&c);
             out[o + 3] = 255;
@@ -383,7 +396,9 @@ pub fn stale_error(dir: &Path, stale: &[PathBuf]) -> crate::Error {
 pub fn rgba8(img: &crate::raster::Decoded) -> Vec<u8> {
     match &img.pixels {
         crate::raster::Pixels::Rgba8(p) => p.clone(),
-        crate::raster::Pixels::Rgba16(p) => p.iter().map(|&v| ((v as u32 + 128) / 257) as u8).collect(),
+        crate::raster::Pixels::Rgba16(p) => {
+            p.iter().map(|&v| ((v as u32 + 128) / 257) as u8).collect()
+        }
     }
 }
 
@@ -435,16 +450,21 @@ mod tests {
         assert!(of_a_separation("poster", "poster.preview-03-sand.png"));
         assert!(!of_a_separation("poster", "poster.separation.json"));
         assert!(!of_a_separation("poster", "poster.proof.png"));
-        assert!(!of_a_separation("poster", "poster.plate-01-x.plate-01-y.png"));
+        assert!(!of_a_separation(
+            "poster",
+            "poster.plate-01-x.plate-01-y.png"
+        ));
         assert!(!of_a_separation("post", "poster.plate-01-x.png"));
-        assert!(!of_a_separation("poster.plate-01-x", "poster.plate-01-x.png"));
+        assert!(!of_a_separation(
+            "poster.plate-01-x",
+            "poster.plate-01-x.png"
+        ));
     }
 
     #[test]
     fn the_alpha_threshold_keeps_half_opaque_pixels() {
         let mut labels = vec![0u16, 0, 0, 0, FIXED];
-        let (partial, dropped) =
-            apply_alpha_threshold(&mut labels, &[255, 128, 127, 10, 0], 0.5);
+        let (partial, dropped) = apply_alpha_threshold(&mut labels, &[255, 128, 127, 10, 0], 0.5);
         assert_eq!(labels, [0, 0, FIXED, FIXED, FIXED]);
         assert_eq!((partial, dropped), (3, 2));
     }

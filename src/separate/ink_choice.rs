@@ -1,10 +1,10 @@
 //! Which inks: the library read, the inks asked for by name, and the number of inks
 //! chosen for a colour-difference target.
 
-use super::SeparateOptions;
-use crate::error::{Error, Result};
-use crate::colour::inks::Ink;
 use super::select::{self, CostTable};
+use super::SeparateOptions;
+use crate::colour::inks::Ink;
+use crate::error::{Error, Result};
 use std::path::Path;
 
 pub(super) fn table_error(path: &Path, message: String) -> Error {
@@ -61,7 +61,11 @@ pub fn resolve_inks(
     if forced.len() > opts.k {
         return Err(table_error(
             library_path,
-            format!("`use_inks` names {} inks but `k` is {}", forced.len(), opts.k),
+            format!(
+                "`use_inks` names {} inks but `k` is {}",
+                forced.len(),
+                opts.k
+            ),
         ));
     }
     Ok((opts.k, forced))

@@ -10,24 +10,24 @@ pub mod regions;
 pub mod select;
 mod write;
 
-pub use ink_choice::resolve_inks;
-use ink_choice::choose_for_target;
-use write::write_plate;
 pub use crate::output::file_safe;
 pub use films::FilmSettings;
+use ink_choice::choose_for_target;
+pub use ink_choice::resolve_inks;
+use write::write_plate;
 pub use write::{plate_name, proof_rgba, summary_table, swatches_svg};
 
-use crate::output::DocumentHeader;
 use crate::cluster::EngineOptions;
+use crate::colour::inks::{self, Ink};
 use crate::colour::{self, adapt, delta_e2000};
 use crate::error::{Error, Result};
 use crate::features::histogram;
-use crate::colour::inks::{self, Ink};
 use crate::limits::Limits;
+use crate::output::DocumentHeader;
 use crate::raster::{self, Decoded, Pixels};
+use rayon::prelude::*;
 use regions::FIXED;
 use select::{CostTable, Method};
-use rayon::prelude::*;
 use serde::{Deserialize, Serialize};
 use std::path::{Path, PathBuf};
 use std::time::Instant;
@@ -544,14 +544,14 @@ pub fn separate_file(
         || raster::decode(input, &opts.limits),
         |img, set| {
             let mut sep = separate_image(&img, &library, opts, library_path, &stem)?;
-            sep.document.header.input =
-                input.file_name().map(|n| n.to_string_lossy().into_owned());
+            sep.document.header.input = input.file_name().map(|n| n.to_string_lossy().into_owned());
             let made = match &opts.films {
                 Some(f) => Some(film_output::make(&mut sep, &img, f, opts, &stem)?),
                 None => None,
             };
             drop(img);
-            let mut names: Vec<String> = sep.document.inks.iter().map(|i| i.plate.clone()).collect();
+            let mut names: Vec<String> =
+                sep.document.inks.iter().map(|i| i.plate.clone()).collect();
             if let Some(m) = &made {
                 names.extend(m.names.iter().cloned());
             }
@@ -560,7 +560,10 @@ pub fn separate_file(
                 return Err(films::stale_error(set.dir(), &stale));
             }
             let json = serde_json::to_string_pretty(&sep.document).expect("document serialises");
-            set.write_bytes(&format!("{stem}.separation.json"), format!("{json}\n").as_bytes())?;
+            set.write_bytes(
+                &format!("{stem}.separation.json"),
+                format!("{json}\n").as_bytes(),
+            )?;
             for (i, ink) in sep.document.inks.iter().enumerate() {
                 let mask = &sep.masks[i];
                 set.write(&ink.plate, |w| write_plate(w, sep.width, sep.height, mask))?;
@@ -569,7 +572,10 @@ pub fn separate_file(
             set.write(&format!("{stem}.proof.png"), |w| {
                 raster::write_rgba_png(w, sep.width, sep.height, &proof)
             })?;
-            set.write_bytes(&format!("{stem}.swatches.svg"), swatches_svg(&sep.document).as_bytes())?;
+            set.write_bytes(
+                &format!("{stem}.swatches.svg"),
+                swatches_svg(&sep.document).as_bytes(),
+            )?;
             if let Some(m) = &made {
                 film_output::write(set, m, &sep, opts, &stem)?;
             }

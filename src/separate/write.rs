@@ -1,9 +1,9 @@
 //! What a separation writes: plate names, plates, the proof, the swatches and the
 //! summary table.
 
+use super::regions::FIXED;
 use super::{Separation, SeparationDocument};
 use crate::colour::{self};
-use super::regions::FIXED;
 use crate::output::file_safe;
 use rayon::prelude::*;
 
@@ -157,7 +157,11 @@ pub fn summary_table(doc: &SeparationDocument) -> String {
         doc.mean_delta_e2000,
         doc.selection,
         doc.regions_merged,
-        if doc.films.is_some() { " and cleanup" } else { "" }
+        if doc.films.is_some() {
+            " and cleanup"
+        } else {
+            ""
+        }
     ));
     if let Some(f) = &doc.films {
         for film in &f.films {

@@ -61,7 +61,11 @@ pub fn sweep_rows(
     let weights: Vec<f64> = (0..data.len()).map(|i| data.weight(i)).collect();
     // Never more draws than there are pixels (or rows) to draw from.
     let population = data.total_weight().floor().max(2.0) as usize;
-    let picks = weighted_sample(data, opts.silhouette_sample.min(population), opts.engine.seed);
+    let picks = weighted_sample(
+        data,
+        opts.silhouette_sample.min(population),
+        opts.engine.seed,
+    );
     let sample_rows: Vec<f32> = picks.iter().flat_map(|&i| data.row(i).to_vec()).collect();
     let stop = crate::cluster::Stop {
         max_iter: opts.engine.max_iter,
@@ -112,7 +116,12 @@ pub fn sweep_rows(
             let sample_labels: Vec<u32> = picks.iter().map(|&i| res.labels[i]).collect();
             let sil = silhouette(&sample_rows, dim, &sample_labels);
             lap(3, &mut spent);
-            let mix = fit_mixture(data, &res.means, &mixture, opts.engine.seed ^ ((k as u64) << 32));
+            let mix = fit_mixture(
+                data,
+                &res.means,
+                &mixture,
+                opts.engine.seed ^ ((k as u64) << 32),
+            );
             em_iterations += mix.iterations;
             let finite = |v: f64| v.is_finite().then_some(v);
             lap(4, &mut spent);

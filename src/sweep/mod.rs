@@ -14,22 +14,21 @@ mod chart;
 mod measures;
 mod recommend;
 
-pub use chart::sweep_svg;
-pub use measures::{covariance_floor, sweep_rows, FAMILY_DELTA_E2000, MIN_SHARE, MIN_STABILITY, STABILITY_RUNS};
-pub use recommend::{recommend, suggest};
-use crate::output::DocumentHeader;
-use crate::cluster::{
-    EngineOptions,
-    Dataset,
-};
+use crate::cluster::{Dataset, EngineOptions};
 use crate::colour::Space;
 use crate::error::{Error, ParamsError, Result};
 use crate::features::histogram::{self, IndexedHistogram};
+use crate::features::rows::entry_features;
 use crate::features::scene::{scene_sample, SceneOptions};
 use crate::limits::Limits;
-use crate::raster::{self, Pixels};
-use crate::features::rows::entry_features;
 use crate::output::stem_of;
+use crate::output::DocumentHeader;
+use crate::raster::{self, Pixels};
+pub use chart::sweep_svg;
+pub use measures::{
+    covariance_floor, sweep_rows, FAMILY_DELTA_E2000, MIN_SHARE, MIN_STABILITY, STABILITY_RUNS,
+};
+pub use recommend::{recommend, suggest};
 use serde::{Deserialize, Serialize};
 use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};
@@ -233,15 +232,21 @@ pub fn sweep_file(input: &Path, out_dir: &Path, opts: &SweepOptions) -> Result<S
     stem_of(input)?;
     let mut notes = Vec::new();
     let names = OUTPUT_NAMES.map(String::from);
-    let (document, outputs) =
-        crate::output::one_input(input, out_dir, &[], &names, || Ok(()), |(), set| {
+    let (document, outputs) = crate::output::one_input(
+        input,
+        out_dir,
+        &[],
+        &names,
+        || Ok(()),
+        |(), set| {
             let document = sweep_document(input, opts, &mut notes)?;
             set.write_bytes(OUTPUT_NAMES[0], sweep_csv(&document).as_bytes())?;
             let json = serde_json::to_string_pretty(&document).expect("sweep document serialises");
             set.write_bytes(OUTPUT_NAMES[1], format!("{json}\n").as_bytes())?;
             set.write_bytes(OUTPUT_NAMES[2], sweep_svg(&document, opts.space).as_bytes())?;
             Ok(document)
-        })?;
+        },
+    )?;
     Ok(SweepReport {
         outputs,
         document,
@@ -267,7 +272,11 @@ fn used_engine(e: &EngineOptions) -> EngineOptions {
 
 /// The sweep document of one input: every K's measures, the suggestions and the
 /// recommendation; remarks for the user go to `notes`.
-fn sweep_document(input: &Path, opts: &SweepOptions, notes: &mut Vec<String>) -> Result<SweepDocument> {
+fn sweep_document(
+    input: &Path,
+    opts: &SweepOptions,
+    notes: &mut Vec<String>,
+) -> Result<SweepDocument> {
     let ignored: Vec<String> = opts
         .engine
         .changed()
@@ -284,7 +293,13 @@ fn sweep_document(input: &Path, opts: &SweepOptions, notes: &mut Vec<String>) ->
     }
     let (rows, features, floor) = if is_scene(input, opts)? {
         let scene_opts = opts.scene.clone().unwrap_or_default();
-        let s = scene_sample(input, &scene_opts, opts.engine.seed, &opts.limits, opts.range.min)?;
+        let s = scene_sample(
+            input,
+            &scene_opts,
+            opts.engine.seed,
+            &opts.limits,
+            opts.range.min,
+        )?;
         let data = Dataset::new(&s.sample, s.dim, None)?;
         let rows = sweep_rows(&data, None, opts.space, opts);
         (
