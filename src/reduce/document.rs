@@ -1,6 +1,7 @@
 //! The palette document (`STEM.palette.json`) and palettes given in advance.
 
-use crate::cluster::Mode;
+use super::ReduceOptions;
+use crate::cluster::{Beta, EngineOptions, Mode, Refine};
 use crate::colour::{self, Space};
 use crate::families::{LostArea, Objective};
 use crate::features::quality::QualityTarget;
@@ -154,5 +155,67 @@ impl FixedPalette {
             beta: doc.beta,
             space: doc.space,
         })
+    }
+}
+
+/// The engine settings as the document records them: a ΔE2000 target follows the
+/// warm-started K path (no restarts, refinement, annealing or moves); a given palette is
+/// mapped, not fitted (only β, for the uncertainty map, applies).
+pub(super) fn engine_used(opts: &ReduceOptions, fixed: bool) -> EngineOptions {
+    let e = opts.engine;
+    if fixed {
+        EngineOptions {
+            beta: e.beta,
+            seed: e.seed,
+            refine: Refine::None,
+            ..EngineOptions::default()
+        }
+    } else if opts.target.is_some() {
+        EngineOptions {
+            restarts: 1,
+            refine: Refine::None,
+            anneal: None,
+            split_merge: 0,
+            ..e
+        }
+    } else {
+        e
+    }
+}
+
+/// The settings as recorded in the palette document.
+pub(super) fn settings(opts: &ReduceOptions, fixed: bool, family_moves: usize) -> ReduceSettings {
+    ReduceSettings {
+        k_requested: opts.k,
+        beta_setting: match opts.engine.beta {
+            Beta::Auto => "auto".into(),
+            Beta::Fixed(b) => b.to_string(),
+        },
+        restarts: opts.engine.restarts,
+        max_iter: opts.engine.max_iter,
+        tolerance: opts.engine.tolerance,
+        shift_tolerance: opts.engine.shift_tolerance,
+        dither: opts.dither.name().into(),
+        anneal: opts.engine.anneal.map(|a| AnnealSetting {
+            start: a.start,
+            end: a.end,
+            factor: a.factor,
+            max_moves: a.split_merge,
+        }),
+        target: opts.target,
+        // Recorded only where it acted: after k-means++ starts, not with annealing (which
+        // records its own), a ΔE2000 target's K path, or a fixed palette.
+        split_merge: if opts.engine.anneal.is_none() && opts.target.is_none() && !fixed {
+            opts.engine.split_merge
+        } else {
+            0
+        },
+        objective: opts.objective,
+        family_moves,
+        pinned: if fixed {
+            Vec::new()
+        } else {
+            opts.pinned.iter().map(|&c| colour::hex(c)).collect()
+        },
     }
 }

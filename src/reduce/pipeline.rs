@@ -1,13 +1,9 @@
 //! The shared core of `reduce`, `apply` and `learn`: means for the histogram's entries
 //! (fitted, searched for a target, or given), quantised to sRGB, rendered and scored.
 
-use super::{
-    AnnealSetting, FixedPalette, PaletteColour, PaletteDocument, ReduceOptions, ReduceSettings,
-    Reduction,
-};
+use super::{FixedPalette, PaletteColour, PaletteDocument, ReduceOptions, Reduction};
 use crate::cluster::{
-    finish, fit_hard, stop_rule, Beta, Dataset, EngineOptions, KMeansModel, Mode, Refine,
-    ValidParams,
+    finish, fit_hard, stop_rule, Beta, Dataset, KMeansModel, Mode, Refine, ValidParams,
 };
 use crate::colour::{self, Space};
 use crate::error::{Error, ParamsError, Result};
@@ -546,7 +542,7 @@ fn render_and_score(
         fitted.beta,
     ));
     let document = PaletteDocument {
-        header: DocumentHeader::new(None, engine_used(opts, fixed.is_some())),
+        header: DocumentHeader::new(None, super::document::engine_used(opts, fixed.is_some())),
         space: opts.space,
         mode: opts.engine.mode,
         k: palette.len(),
@@ -557,7 +553,7 @@ fn render_and_score(
         mean_delta_e2000: sc.de2000 / total,
         colors,
         lost_areas,
-        settings: settings(opts, fixed.is_some(), fitted.family_moves),
+        settings: super::document::settings(opts, fixed.is_some(), fitted.family_moves),
         source: None,
         settings_fingerprint: None,
     };
@@ -572,31 +568,6 @@ fn render_and_score(
         document,
         notes,
         warnings: warnings.into_iter().collect(),
-    }
-}
-
-/// The engine settings as the document records them: a ΔE2000 target follows the
-/// warm-started K path (no restarts, refinement, annealing or moves); a given palette is
-/// mapped, not fitted (only β, for the uncertainty map, applies).
-fn engine_used(opts: &ReduceOptions, fixed: bool) -> EngineOptions {
-    let e = opts.engine;
-    if fixed {
-        EngineOptions {
-            beta: e.beta,
-            seed: e.seed,
-            refine: Refine::None,
-            ..EngineOptions::default()
-        }
-    } else if opts.target.is_some() {
-        EngineOptions {
-            restarts: 1,
-            refine: Refine::None,
-            anneal: None,
-            split_merge: 0,
-            ..e
-        }
-    } else {
-        e
     }
 }
 
@@ -631,41 +602,4 @@ fn palette_notes(
         );
     }
     notes
-}
-
-/// The settings as recorded in the palette document.
-fn settings(opts: &ReduceOptions, fixed: bool, family_moves: usize) -> ReduceSettings {
-    ReduceSettings {
-        k_requested: opts.k,
-        beta_setting: match opts.engine.beta {
-            Beta::Auto => "auto".into(),
-            Beta::Fixed(b) => b.to_string(),
-        },
-        restarts: opts.engine.restarts,
-        max_iter: opts.engine.max_iter,
-        tolerance: opts.engine.tolerance,
-        shift_tolerance: opts.engine.shift_tolerance,
-        dither: opts.dither.name().into(),
-        anneal: opts.engine.anneal.map(|a| AnnealSetting {
-            start: a.start,
-            end: a.end,
-            factor: a.factor,
-            max_moves: a.split_merge,
-        }),
-        target: opts.target,
-        // Recorded only where it acted: after k-means++ starts, not with annealing (which
-        // records its own), a ΔE2000 target's K path, or a fixed palette.
-        split_merge: if opts.engine.anneal.is_none() && opts.target.is_none() && !fixed {
-            opts.engine.split_merge
-        } else {
-            0
-        },
-        objective: opts.objective,
-        family_moves,
-        pinned: if fixed {
-            Vec::new()
-        } else {
-            opts.pinned.iter().map(|&c| colour::hex(c)).collect()
-        },
-    }
 }
