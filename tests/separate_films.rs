@@ -502,3 +502,89 @@ fn films_are_the_same_on_any_thread_count() {
     }
     assert_eq!(sets[0], sets[1]);
 }
+
+/// sRGB transfer (IEC 61966-2-1) and its inverse, for building the tint wedge.
+fn to_linear(v: u8) -> f64 {
+    let c = v as f64 / 255.0;
+    if c <= 0.04045 {
+        c / 12.92
+    } else {
+        ((c + 0.055) / 1.055).powf(2.4)
+    }
+}
+
+fn to_srgb8(l: f64) -> u8 {
+    let c = if l <= 0.0031308 {
+        12.92 * l
+    } else {
+        1.055 * l.powf(1.0 / 2.4) - 0.055
+    };
+    (c * 255.0).round() as u8
+}
+
+#[test]
+fn tints_are_chosen_and_scored_as_they_print() {
+    // A wedge of one ink over white paper at dot areas 1/8 .. 8/8, mixed by the
+    // Murray–Davies relation (A. Murray, 1936: R = a·R_ink + (1 − a)·R_paper) in linear
+    // sRGB, the model the README states. With tints, one ink reproduces every step; solid,
+    // it cannot.
+    let dir = tempfile::tempdir().unwrap();
+    let ink = [0x1fu8, 0x4e, 0x9c];
+    let (w, h) = (80u32, 20u32);
+    let mut rgba = Vec::new();
+    let mut expected = Vec::new();
+    for _y in 0..h {
+        for x in 0..w {
+            let a = (x / 10 + 1) as f64 / 8.0;
+            let px = ink.map(|c| to_srgb8(a * to_linear(c) + (1.0 - a)));
+            rgba.extend_from_slice(&[px[0], px[1], px[2], 255]);
+            expected.push(px);
+        }
+    }
+    let art = dir.path().join("wedge.png");
+    write_rgba(&art, w, h, &rgba);
+    let lib = dir.path().join("inks.csv");
+    std::fs::write(
+        &lib,
+        "name,hex\nHarbour Blue,#1f4e9c\nSignal Red,#c8102e\nPale Sky,#a9c4e8\n",
+    )
+    .unwrap();
+    let sep = |out: &str, extra: &[&str]| -> Value {
+        let o = dir.path().join(out);
+        let mut args = vec![
+            "separate",
+            art.to_str().unwrap(),
+            "--inks",
+            lib.to_str().unwrap(),
+            "-k",
+            "1",
+            "--dpi",
+            "300",
+            "--films",
+            "png",
+            "-o",
+            o.to_str().unwrap(),
+        ];
+        args.extend_from_slice(extra);
+        let r = run(&args, &[]);
+        assert!(r.status.success(), "{}", stderr(&r));
+        json(&o.join("wedge.separation.json"))
+    };
+    let tinted = sep("tinted", &["--tints"]);
+    let solid = sep("solid", &[]);
+    assert_eq!(tinted["inks"][0]["name"], "Harbour Blue");
+    let de_tinted = tinted["mean_delta_e2000"].as_f64().unwrap();
+    let de_solid = solid["mean_delta_e2000"].as_f64().unwrap();
+    // 8-bit rounding of the wedge leaves well under one ΔE2000 unit.
+    assert!(de_tinted < 1.0, "tinted mean ΔE2000 {de_tinted}");
+    assert!(de_solid > 10.0, "solid mean ΔE2000 {de_solid}");
+    // The proof shows the tints as they print: each step within 2 levels of the wedge.
+    let proof = image::open(dir.path().join("tinted/wedge.proof.png"))
+        .unwrap()
+        .to_rgb8();
+    for (p, want) in proof.pixels().zip(&expected) {
+        for c in 0..3 {
+            assert!((p.0[c] as i32 - want[c] as i32).abs() <= 2, "{:?} vs {want:?}", p.0);
+        }
+    }
+}
