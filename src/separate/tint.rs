@@ -58,8 +58,9 @@ pub fn printed(amount: u8, ink: [f64; 3], paper: [f64; 3]) -> [f64; 3] {
 }
 
 /// Turns a cost table of solid inks into one of tinted inks: the cost of colour `e` with
-/// ink `i` becomes the ΔE2000 between `e` and what ink `i` prints for it (solid, a tint, or
-/// nothing: the substrate). Returns each pair's amount, `n × m`, row-major.
+/// ink `i` becomes the ΔE2000 between `e` and what ink `i` prints for it: the tint of the
+/// best dot area in linear light (or nothing: the substrate), unless the solid ink is
+/// nearer. No cost grows, so tints never make the ink choice worse. Returns each pair's amount, `n × m`, row-major.
 pub fn tinted_costs(
     table: &mut CostTable,
     entry_linear: &[[f64; 3]],
@@ -85,8 +86,7 @@ pub fn tinted_costs(
                 let e = c * 1024 + o;
                 for j in 0..m {
                     let a = amount(area_linear(entry_linear[e], ink_lin[j], paper_lin));
-                    arow[j] = a;
-                    row[j] = match a {
+                    let tinted = match a {
                         255 => row[j],
                         0 => delta_e2000(entry_labs[e], paper_lab) as f32,
                         _ => delta_e2000(
@@ -94,6 +94,9 @@ pub fn tinted_costs(
                             adapt::linear_to_lab_d50(printed(a, ink_lin[j], paper_lin)),
                         ) as f32,
                     };
+                    // The closest tint in linear light is not always the closest to the
+                    // eye: where the solid ink is nearer, it prints solid.
+                    (arow[j], row[j]) = if tinted < row[j] { (a, tinted) } else { (255, row[j]) };
                 }
             }
         });
