@@ -499,8 +499,7 @@ pub fn separate_image(
         films: None,
         notes,
     };
-    let tints = amounts
-        .map(|a| tint::pixel_amounts(&labels, &ih.pixel_entry, &a, table.m, &order));
+    let tints = amounts.map(|a| tint::pixel_amounts(&labels, &ih.pixel_entry, &a, table.m, &order));
     Ok(Separation {
         width: img.width,
         height: img.height,

@@ -96,7 +96,11 @@ pub fn tinted_costs(
                     };
                     // The closest tint in linear light is not always the closest to the
                     // eye: where the solid ink is nearer, it prints solid.
-                    (arow[j], row[j]) = if tinted < row[j] { (a, tinted) } else { (255, row[j]) };
+                    (arow[j], row[j]) = if tinted < row[j] {
+                        (a, tinted)
+                    } else {
+                        (255, row[j])
+                    };
                 }
             }
         });

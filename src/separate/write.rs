@@ -1,8 +1,8 @@
 //! What a separation writes: plate names, plates, the proof, the swatches and the
 //! summary table.
 
-use super::tint;
 use super::regions::FIXED;
+use super::tint;
 use super::{Separation, SeparationDocument};
 use crate::colour;
 use crate::output::file_safe;
