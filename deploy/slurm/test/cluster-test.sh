@@ -1,0 +1,277 @@
+#!/usr/bin/env bash
+# Brings up a one-node Slurm cluster on this machine, runs the sharded archive and scene
+# pipelines of deploy/slurm/ on the bundled fixtures, and checks that every output is
+# byte-identical to the same work done on one machine without sharding. Then runs the
+# archive pipeline with GNU parallel (deploy/parallel/) and checks it the same way.
+#
+#   deploy/slurm/test/cluster-test.sh [CHROMASIFT_BINARY]
+#
+# The binary defaults to $CHROMASIFT_BIN, else target/release/chromasift. Needs root on
+# Debian 12 (or a Debian-like system with Slurm 22.05): installs slurm-wlm, munge and
+# parallel with apt-get when they are missing. Starts its own munged (as the munge user,
+# with its own key and socket in /run/munge), slurmctld and slurmd, with the
+# configuration slurm.conf.in of this folder and state, spool and logs in a temporary
+# folder, and stops exactly those processes, by process id, when it ends, whatever
+# happened. CS_TEST_KEEP=1 keeps the temporary folder.
+set -euo pipefail
+export PATH="$PATH:/usr/sbin:/sbin"
+t_start=$SECONDS
+
+here=$(cd "$(dirname "$0")" && pwd)
+repo=$(cd "$here/../../.." && pwd)
+bin=${1:-${CHROMASIFT_BIN:-$repo/target/release/chromasift}}
+
+say() { printf 'cluster-test: %s\n' "$*" >&2; }
+fail() {
+  say "FAILED: $*"
+  exit 1
+}
+
+[ "$(id -u)" -eq 0 ] || fail "must run as root (it installs packages and starts slurmd and munged)"
+[ -x "$bin" ] || fail "$bin: no chromasift binary (build it, or give its path)"
+bin=$(realpath "$bin")
+
+# --- packages ------------------------------------------------------------------------
+
+missing=()
+for c in slurmctld slurmd sbatch munged parallel; do
+  command -v "$c" >/dev/null || missing+=("$c")
+done
+if [ ${#missing[@]} -gt 0 ]; then
+  say "installing slurm-wlm, munge and parallel (missing: ${missing[*]})"
+  t0=$SECONDS
+  export DEBIAN_FRONTEND=noninteractive
+  apt-get update -qq
+  apt-get install -y -qq --no-install-recommends slurm-wlm munge parallel >/dev/null
+  say "installed in $((SECONDS - t0)) s"
+fi
+t_cluster=$SECONDS
+
+# --- processes we start, stopped on any exit -----------------------------------------
+
+work=$(mktemp -d /tmp/chromasift-slurm.XXXXXX)
+chmod 0755 "$work"
+munged_pid="" slurmctld_pid="" slurmd_pid=""
+munge_socket=/run/munge/chromasift-test-$$.socket
+
+stop_pid() { # name pid
+  local name=$1 pid=$2 i
+  [ -n "$pid" ] && kill -0 "$pid" 2>/dev/null || return 0
+  kill -TERM "$pid" 2>/dev/null || true
+  for ((i = 0; i < 100; i++)); do
+    kill -0 "$pid" 2>/dev/null || break
+    sleep 0.1
+  done
+  if kill -0 "$pid" 2>/dev/null; then
+    say "$name ($pid) did not stop on SIGTERM; sending SIGKILL"
+    kill -KILL "$pid" 2>/dev/null || true
+  fi
+  wait "$pid" 2>/dev/null || true
+}
+
+cleanup() {
+  local status=$?
+  set +e
+  trap - EXIT INT TERM
+  if [ -n "$slurmctld_pid" ] && kill -0 "$slurmctld_pid" 2>/dev/null; then
+    # Jobs still queued or running are ended through Slurm, before the daemons.
+    scancel --quiet --full --user=root 2>/dev/null
+    for ((i = 0; i < 50; i++)); do
+      [ -z "$(squeue -h -o %i 2>/dev/null)" ] && break
+      sleep 0.2
+    done
+  fi
+  stop_pid slurmd "$slurmd_pid"
+  stop_pid slurmctld "$slurmctld_pid"
+  stop_pid munged "$munged_pid"
+  rm -f "$munge_socket" "$munge_socket.lock"
+  if [ "$status" -ne 0 ]; then
+    for log in "$work"/log/*.log "$work"/munge/munged.log; do
+      [ -f "$log" ] || continue
+      say "last lines of $log:"
+      tail -n 15 "$log" >&2
+    done
+  fi
+  if [ "${CS_TEST_KEEP:-0}" = 1 ]; then
+    say "kept $work"
+  else
+    rm -rf "$work"
+  fi
+  exit "$status"
+}
+trap cleanup EXIT
+trap 'exit 130' INT TERM
+
+wait_until() { # seconds what command...
+  local limit=$1 what=$2 i
+  shift 2
+  for ((i = 0; i < limit * 5; i++)); do
+    "$@" >/dev/null 2>&1 && return 0
+    sleep 0.2
+  done
+  fail "$what did not happen within $limit s"
+}
+
+# --- munge ---------------------------------------------------------------------------
+
+install -d -o munge -g munge -m 0755 /run/munge
+chown munge:munge /run/munge
+install -d -o munge -g munge -m 0700 "$work/munge"
+dd if=/dev/urandom of="$work/munge/munge.key" bs=1024 count=1 status=none
+chown munge:munge "$work/munge/munge.key"
+chmod 0400 "$work/munge/munge.key"
+setpriv --reuid=munge --regid=munge --init-groups -- munged --foreground \
+  --socket="$munge_socket" --key-file="$work/munge/munge.key" \
+  --log-file="$work/munge/munged.log" --pid-file="$work/munge/munged.pid" \
+  --seed-file="$work/munge/munged.seed" 2>"$work/munge/munged.err" &
+munged_pid=$!
+munge_works() { munge -n -S "$munge_socket" | unmunge -S "$munge_socket"; }
+wait_until 20 "munged answering on $munge_socket" munge_works
+
+# --- slurmctld and slurmd ------------------------------------------------------------
+
+mkdir -p "$work/state" "$work/spool" "$work/run" "$work/log"
+mem_mb=$(awk '/^MemTotal:/ { print int($2 / 1024 * 0.9) }' /proc/meminfo)
+[ "$mem_mb" -ge 2500 ] || fail "the node needs at least 2.5 GB of memory for the jobs' requests ($mem_mb MB usable)"
+sed -e "s#@HOST@#$(hostname -s)#" -e "s#@DIR@#$work#g" -e "s#@MUNGE_SOCKET@#$munge_socket#" \
+  -e "s#@CTLD_PORT@#${CS_TEST_CTLD_PORT:-16817}#" -e "s#@SLURMD_PORT@#${CS_TEST_SLURMD_PORT:-16818}#" \
+  -e "s#@MEMORY_MB@#$mem_mb#" "$here/slurm.conf.in" >"$work/slurm.conf"
+! grep -v '^#' "$work/slurm.conf" | grep -q '@[A-Z_]*@' || fail "slurm.conf.in has a placeholder the test does not fill"
+export SLURM_CONF=$work/slurm.conf
+
+slurmctld -D -i -f "$SLURM_CONF" >"$work/log/slurmctld.out" 2>&1 &
+slurmctld_pid=$!
+ctld_up() { scontrol ping | grep -q 'is UP'; }
+wait_until 30 "slurmctld answering" ctld_up
+slurmd -D -N csnode1 -f "$SLURM_CONF" >"$work/log/slurmd.out" 2>&1 &
+slurmd_pid=$!
+node_idle() { [ "$(sinfo -h -n csnode1 -o %T)" = idle ]; }
+wait_until 60 "node csnode1 becoming idle" node_idle
+say "one-node cluster up in $((SECONDS - t_cluster)) s ($(sinfo -h -o '%P %D node, %c CPUs, %m MB'))"
+
+# --- helpers -------------------------------------------------------------------------
+
+# Waits for the jobs whose ids submit.sh printed (lines "STEP JOBID" in $1), then checks
+# that every job and array task completed.
+wait_jobs() {
+  local ids state
+  ids=$(awk '{ print $2 }' "$1" | paste -sd, -)
+  jobs_gone() { [ -z "$(squeue -h -j "$ids" -o %i 2>/dev/null)" ]; }
+  wait_until "${CS_TEST_JOB_LIMIT:-300}" "jobs $ids finishing" jobs_gone
+  for id in ${ids//,/ }; do
+    state=$(scontrol -o show job "$id" | grep -o 'JobState=[A-Z_]*' | sort | uniq -c | tr -s ' ')
+    [ "$state" = " $(scontrol -o show job "$id" | wc -l) JobState=COMPLETED" ] ||
+      fail "job $id did not complete: $state (logs: $(dirname "$1")/logs)"
+  done
+}
+
+# cmp of every file of the one-machine folder $1 with the file of the same name in the
+# folders given after it (exactly one copy), and no output more.
+compare_outputs() {
+  local ref=$1 n=0 f name d found all
+  shift
+  for f in "$ref"/*; do
+    name=$(basename "$f")
+    case $name in batch-report.*) continue ;; esac
+    found=()
+    for d in "$@"; do
+      [ ! -e "$d/$name" ] || found+=("$d/$name")
+    done
+    [ ${#found[@]} -eq 1 ] || fail "$name: ${#found[@]} copies in $*, expected one"
+    cmp "$f" "${found[0]}" || fail "$name differs from the one-machine run"
+    n=$((n + 1))
+  done
+  all=$(find "$@" -type f ! -name 'batch-report.*' | wc -l)
+  [ "$all" -eq "$n" ] || fail "$* hold $all outputs, the one-machine run $n"
+  echo "$n"
+}
+
+cd "$repo"
+k=8
+photos=(fixtures/photos/*.png)
+printf '%s\n' "${photos[@]}" >"$work/photos.txt"
+one="$work/one-machine"
+
+# --- archive: one machine ------------------------------------------------------------
+
+t0=$SECONDS
+"$bin" learn fixtures/photos -k $k -o "$one/archive/palette.json" 2>/dev/null
+"$bin" batch fixtures/photos --palette "$one/archive/palette.json" --quiet -o "$one/archive/out" 2>/dev/null
+say "archive on one machine: ${#photos[@]} images in $((SECONDS - t0)) s"
+
+# --- archive: Slurm ------------------------------------------------------------------
+
+t0=$SECONDS
+run="$work/slurm-archive"
+# 9 images, 4 per shard: shards of 4, 4 and 1.
+deploy/slurm/submit.sh archive "$work/photos.txt" "$run" --per-shard 4 --root fixtures/photos \
+  --bin "$bin" -k $k >"$work/archive-jobs.txt"
+wait_jobs "$work/archive-jobs.txt"
+[ "$(deploy/shards.sh count "$run")" -eq 3 ] || fail "expected 3 archive shards"
+cmp "$one/archive/palette.json" "$run/palette.json" || fail "the palette learned from shard histograms differs"
+n=$(compare_outputs "$one/archive/out" "$run"/out/shard-*)
+say "archive on Slurm: 3 shards, palette and $n outputs identical to one machine ($((SECONDS - t0)) s)"
+
+# A lost output of shard 1: resubmit the apply step of that shard alone. Its other images
+# are skipped as up to date (their files are not rewritten) and the lost one comes back.
+t0=$SECONDS
+lost=$(find "$run/out/shard-00001" -name '*.reduced.png' | sort | head -n 1)
+kept=$(find "$run/out/shard-00001" -name '*.reduced.png' | sort | tail -n 1)
+kept_before=$(stat -c '%i %y' "$kept")
+rm "$lost"
+deploy/slurm/submit.sh archive "$work/photos.txt" "$run" --per-shard 4 --root fixtures/photos \
+  --bin "$bin" -k $k --from 3 --shards 1 >"$work/resubmit-jobs.txt"
+wait_jobs "$work/resubmit-jobs.txt"
+[ -f "$lost" ] || fail "resubmitting shard 1 did not write $lost again"
+[ "$(stat -c '%i %y' "$kept")" = "$kept_before" ] ||
+  fail "resubmitting shard 1 rewrote $kept, which was up to date"
+n=$(compare_outputs "$one/archive/out" "$run"/out/shard-*)
+ls "$run"/logs/chromasift-archive-apply-"$(awk '{ print $2 }' "$work/resubmit-jobs.txt")"_* |
+  grep -q '_1.log$' || fail "the resubmitted job did not run array task 1"
+[ "$(ls "$run"/logs/chromasift-archive-apply-"$(awk '{ print $2 }' "$work/resubmit-jobs.txt")"_* | wc -l)" -eq 1 ] ||
+  fail "the resubmitted job ran more than array task 1"
+say "archive on Slurm: shard 1 resubmitted alone, lost output rewritten, the rest skipped ($((SECONDS - t0)) s)"
+
+# --- scene tiles: one machine and Slurm ----------------------------------------------
+
+if [ "${CS_TEST_SCENE:-run}" = skip ]; then
+  say "scene pipeline SKIPPED (CS_TEST_SCENE=skip)"
+else
+  "$bin" landcover-sample --help >/dev/null 2>&1 ||
+    fail "$bin has no landcover-sample command (the scene pipeline needs the land-cover model commands)"
+  tiles=(fixtures/tiles/*.tif)
+  printf '%s\n' "${tiles[@]}" >"$work/tiles.txt"
+  scene_flags=(-k 5 --seed 7)
+  sample=4000
+  t0=$SECONDS
+  "$bin" landcover-fit "${tiles[@]}" "${scene_flags[@]}" --sample $sample -o "$one/scene/model.json" 2>/dev/null
+  for t in "${tiles[@]}"; do
+    "$bin" landcover "$t" --model "$one/scene/model.json" -o "$one/scene/classes" 2>/dev/null
+  done
+  say "scene on one machine: ${#tiles[@]} tiles in $((SECONDS - t0)) s"
+  t0=$SECONDS
+  run="$work/slurm-scene"
+  # 6 tiles, 2 per shard: 3 shards.
+  deploy/slurm/submit.sh scene "$work/tiles.txt" "$run" --per-shard 2 --bin "$bin" \
+    "${scene_flags[@]}" --sample $sample >"$work/scene-jobs.txt"
+  wait_jobs "$work/scene-jobs.txt"
+  [ "$(deploy/shards.sh count "$run")" -ge 3 ] || fail "expected at least 3 scene shards"
+  cmp "$one/scene/model.json" "$run/model.json" || fail "the model fitted from tile samples differs"
+  n=$(compare_outputs "$one/scene/classes" "$run/classes")
+  say "scene on Slurm: $(deploy/shards.sh count "$run") shards, model and $n outputs identical to one machine ($((SECONDS - t0)) s)"
+fi
+
+# --- archive: GNU parallel -----------------------------------------------------------
+
+t0=$SECONDS
+run="$work/parallel-archive"
+deploy/parallel/archive.sh "$work/photos.txt" "$run" --jobs 2 --per-shard 4 --root fixtures/photos \
+  --bin "$bin" -k $k 2>"$work/parallel.err" || {
+  cat "$work/parallel.err" >&2
+  fail "the GNU parallel run failed"
+}
+cmp "$one/archive/palette.json" "$run/palette.json" || fail "the palette of the GNU parallel run differs"
+n=$(compare_outputs "$one/archive/out" "$run"/out/shard-*)
+say "archive with GNU parallel: 3 shards, palette and $n outputs identical to one machine ($((SECONDS - t0)) s)"
+
+say "ok: cluster up and both pipelines checked in $((SECONDS - t_cluster)) s (whole test $((SECONDS - t_start)) s)"
