@@ -151,17 +151,27 @@ say "one-node cluster up in $((SECONDS - t_cluster)) s ($(sinfo -h -o '%P %D nod
 
 # --- helpers -------------------------------------------------------------------------
 
-# Waits for the jobs whose ids submit.sh printed (lines "STEP JOBID" in $1), then checks
-# that every job and array task completed.
-wait_jobs() {
-  local ids state
+# Waits for the jobs whose ids submit.sh printed (lines "STEP JOBID" in $1).
+wait_gone() {
+  local ids
   ids=$(awk '{ print $2 }' "$1" | paste -sd, -)
   jobs_gone() { [ -z "$(squeue -h -j "$ids" -o %i 2>/dev/null)" ]; }
   wait_until "${CS_TEST_JOB_LIMIT:-300}" "jobs $ids finishing" jobs_gone
-  for id in ${ids//,/ }; do
-    state=$(scontrol -o show job "$id" | grep -o 'JobState=[A-Z_]*' | sort | uniq -c | tr -s ' ')
-    [ "$state" = " $(scontrol -o show job "$id" | wc -l) JobState=COMPLETED" ] ||
-      fail "job $id did not complete: $state (logs: $(dirname "$1")/logs)"
+}
+
+# The states of job $1's tasks, counted: "3 COMPLETED", "1 COMPLETED 1 FAILED", ...
+job_states() {
+  scontrol -o show job "$1" | grep -o 'JobState=[A-Z_]*' | cut -d= -f2 | sort | uniq -c |
+    awk '{ printf "%s%s %s", (NR > 1 ? " " : ""), $1, $2 }'
+}
+
+# wait_gone, then checks that every job and array task completed.
+wait_jobs() {
+  local id state
+  wait_gone "$1"
+  for id in $(awk '{ print $2 }' "$1"); do
+    state=$(job_states "$id")
+    [[ $state =~ ^[0-9]+\ COMPLETED$ ]] || fail "job $id did not complete: $state (logs in $(dirname "$1"))"
   done
 }
 
@@ -231,6 +241,37 @@ ls "$run"/logs/chromasift-archive-apply-"$(awk '{ print $2 }' "$work/resubmit-jo
 [ "$(ls "$run"/logs/chromasift-archive-apply-"$(awk '{ print $2 }' "$work/resubmit-jobs.txt")"_* | wc -l)" -eq 1 ] ||
   fail "the resubmitted job ran more than array task 1"
 say "archive on Slurm: shard 1 resubmitted alone, lost output rewritten, the rest skipped ($((SECONDS - t0)) s)"
+
+# A task that fails: shard 1 of three holds a cut-off image. Its histogram task fails,
+# and the learn and apply jobs waiting for it are cancelled rather than left pending.
+# Once the image is replaced, resubmitting shard 1 alone finishes the run, with the same
+# result as one machine on the mended folder.
+t0=$SECONDS
+mkdir -p "$work/mended"
+cp fixtures/photos/chelsea.png fixtures/photos/coffee.png fixtures/photos/rocket.png "$work/mended/"
+head -c 3000 fixtures/photos/coffee.png >"$work/mended/coffee.png"
+printf '%s\n' "$work"/mended/*.png >"$work/mended.txt"
+run="$work/slurm-failing"
+deploy/slurm/submit.sh archive "$work/mended.txt" "$run" --root "$work/mended" --bin "$bin" -k $k \
+  >"$work/failing-jobs.txt"
+wait_gone "$work/failing-jobs.txt"
+ids=($(awk '{ print $2 }' "$work/failing-jobs.txt"))
+[ "$(job_states "${ids[0]}")" = "2 COMPLETED 1 FAILED" ] ||
+  fail "histogram job with a cut-off image: $(job_states "${ids[0]}"), expected 2 COMPLETED 1 FAILED"
+[ "$(job_states "${ids[1]}")" = "1 CANCELLED" ] || fail "learn job after a failed task: $(job_states "${ids[1]}")"
+[[ "$(job_states "${ids[2]}")" =~ ^[0-9]+\ CANCELLED$ ]] || fail "apply job after a failed task: $(job_states "${ids[2]}")"
+[ ! -e "$run/hist/shard-00001.hist" ] || fail "the failed histogram task left its file"
+grep -q 'coffee.png' "$run"/logs/chromasift-archive-histogram-"${ids[0]}"_1.log ||
+  fail "the failed task's log does not name the cut-off image"
+cp fixtures/photos/coffee.png "$work/mended/coffee.png"
+deploy/slurm/submit.sh archive "$work/mended.txt" "$run" --root "$work/mended" --bin "$bin" -k $k \
+  --shards 1 >"$work/mended-jobs.txt"
+wait_jobs "$work/mended-jobs.txt"
+"$bin" learn "$work/mended" -k $k -o "$one/mended/palette.json" 2>/dev/null
+"$bin" batch "$work/mended" --palette "$one/mended/palette.json" --quiet -o "$one/mended/out" 2>/dev/null
+cmp "$one/mended/palette.json" "$run/palette.json" || fail "the palette after the resubmission differs"
+n=$(compare_outputs "$one/mended/out" "$run"/out/shard-*)
+say "archive on Slurm: a failed task cancelled the later jobs; resubmitted alone, $n outputs identical to one machine ($((SECONDS - t0)) s)"
 
 # --- scene tiles: one machine and Slurm ----------------------------------------------
 
