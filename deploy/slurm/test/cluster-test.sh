@@ -100,7 +100,7 @@ cleanup() {
   exit "$status"
 }
 trap cleanup EXIT
-trap 'exit 130' INT TERM
+trap 'say "interrupted"; exit 130' INT TERM
 
 wait_until() { # seconds what command...
   local limit=$1 what=$2 i
@@ -175,22 +175,21 @@ wait_jobs() {
   done
 }
 
-# cmp of every file of the one-machine folder $1 with the file of the same name in the
-# folders given after it (exactly one copy), and no output more.
+# cmp of every output under the one-machine folder $1 with the file at the same path
+# below exactly one of the folders given after it, and no output more.
 compare_outputs() {
-  local ref=$1 n=0 f name d found all
+  local ref=$1 n=0 f rel d found all
   shift
-  for f in "$ref"/*; do
-    name=$(basename "$f")
-    case $name in batch-report.*) continue ;; esac
+  while IFS= read -r -d '' f; do
+    rel=${f#"$ref"/}
     found=()
     for d in "$@"; do
-      [ ! -e "$d/$name" ] || found+=("$d/$name")
+      [ ! -e "$d/$rel" ] || found+=("$d/$rel")
     done
-    [ ${#found[@]} -eq 1 ] || fail "$name: ${#found[@]} copies in $*, expected one"
-    cmp "$f" "${found[0]}" || fail "$name differs from the one-machine run"
+    [ ${#found[@]} -eq 1 ] || fail "$rel: ${#found[@]} copies in $*, expected one"
+    cmp "$f" "${found[0]}" || fail "$rel differs from the one-machine run"
     n=$((n + 1))
-  done
+  done < <(find "$ref" -type f ! -name 'batch-report.*' -print0)
   all=$(find "$@" -type f ! -name 'batch-report.*' | wc -l)
   [ "$all" -eq "$n" ] || fail "$* hold $all outputs, the one-machine run $n"
   echo "$n"
@@ -304,15 +303,27 @@ fi
 
 # --- archive: GNU parallel -----------------------------------------------------------
 
+# The photos in sub-folders; the manifest names two folders and three images, two lines
+# per shard: 3 shards, whose outputs mirror the sub-folders.
 t0=$SECONDS
+nested="$work/nested"
+mkdir -p "$nested/harbour" "$nested/survey/2026"
+cp fixtures/photos/{astronaut,chelsea,china}.png "$nested/harbour/"
+cp fixtures/photos/{coffee,flower,hubble_deep_field}.png "$nested/survey/2026/"
+cp fixtures/photos/{immunohistochemistry,retina,rocket}.png "$nested/"
+printf '%s\n' "$nested/harbour" "$nested/survey" "$nested"/*.png >"$work/nested.txt"
+"$bin" learn "$nested" -k $k -o "$one/nested/palette.json" 2>/dev/null
+"$bin" batch "$nested" --palette "$one/nested/palette.json" --quiet -o "$one/nested/out" 2>/dev/null
+cmp "$one/nested/palette.json" "$one/archive/palette.json" || fail "moving the photos into sub-folders changed the palette"
 run="$work/parallel-archive"
-deploy/parallel/archive.sh "$work/photos.txt" "$run" --jobs 2 --per-shard 4 --root fixtures/photos \
+deploy/parallel/archive.sh "$work/nested.txt" "$run" --jobs 2 --per-shard 2 --root "$nested" \
   --bin "$bin" -k $k 2>"$work/parallel.err" || {
   cat "$work/parallel.err" >&2
   fail "the GNU parallel run failed"
 }
-cmp "$one/archive/palette.json" "$run/palette.json" || fail "the palette of the GNU parallel run differs"
-n=$(compare_outputs "$one/archive/out" "$run"/out/shard-*)
-say "archive with GNU parallel: 3 shards, palette and $n outputs identical to one machine ($((SECONDS - t0)) s)"
+[ "$(deploy/shards.sh count "$run")" -eq 3 ] || fail "expected 3 shards in the GNU parallel run"
+cmp "$one/nested/palette.json" "$run/palette.json" || fail "the palette of the GNU parallel run differs"
+n=$(compare_outputs "$one/nested/out" "$run"/out/shard-*)
+say "archive with GNU parallel: folders and images in 3 shards, palette and $n outputs identical to one machine ($((SECONDS - t0)) s)"
 
 say "ok: cluster up and both pipelines checked in $((SECONDS - t_cluster)) s (whole test $((SECONDS - t_start)) s)"
