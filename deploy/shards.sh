@@ -48,7 +48,7 @@ prepare() {
   shift 3
   case $pipeline in archive | scene) ;; *) die "prepare: pipeline must be archive or scene, not '$pipeline'" ;; esac
   [ -f "$manifest" ] || die "$manifest: manifest not found"
-  local per_shard=1 root=$PWD bin="" k=8 seed=0 sample=2000000
+  local per_shard=1 root=$PWD bin="" k=8 seed="" sample=""
   local learn_flags="" apply_flags="" scene_flags="" fit_flags=""
   while [ $# -gt 0 ]; do
     [ $# -ge 2 ] || die "prepare: $1 needs a value"
@@ -268,8 +268,8 @@ scene_sample() {
       say "$name: $base: sample already written, skipped"
       continue
     fi
-    "$CS_BIN" landcover-sample "$tile" --seed "$CS_SEED" --sample "$CS_SAMPLE" "${flags[@]}" \
-      -o "$RUN/samples/$base.sample"
+    "$CS_BIN" landcover-sample "$tile" ${CS_SEED:+--seed "$CS_SEED"} ${CS_SAMPLE:+--sample "$CS_SAMPLE"} \
+      "${flags[@]}" -o "$RUN/samples/$base.sample"
   done < <(shard_lines "$2")
 }
 
@@ -293,8 +293,8 @@ scene_fit() {
   fi
   local flags=()
   read -r -a flags <<<"$CS_FIT_FLAGS"
-  "$CS_BIN" landcover-fit --list "$RUN/samples.list" -k "$CS_K" --seed "$CS_SEED" "${flags[@]}" \
-    -o "$RUN/model.json"
+  "$CS_BIN" landcover-fit --list "$RUN/samples.list" -k "$CS_K" ${CS_SEED:+--seed "$CS_SEED"} \
+    "${flags[@]}" -o "$RUN/model.json"
 }
 
 scene_apply() {
