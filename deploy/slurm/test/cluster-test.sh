@@ -301,6 +301,17 @@ else
   cmp "$one/scene/model.json" "$run/model.json" || fail "the model fitted from tile samples differs"
   n=$(compare_outputs "$one/scene/classes" "$run/classes")
   say "scene on Slurm: $(deploy/shards.sh count "$run") shards, model and $n outputs identical to one machine ($((SECONDS - t0)) s)"
+  # The same submission again: every step finds its work done and rewrites nothing.
+  t0=$SECONDS
+  before=$(stat -c '%n %i %y' "$run/model.json" "$run"/samples/* "$run"/classes/*)
+  deploy/slurm/submit.sh scene "$work/tiles.txt" "$run" --per-shard 2 --bin "$bin" \
+    "${scene_flags[@]}" --sample $sample --sbatch-flags "$small" >"$work/scene-again-jobs.txt"
+  wait_jobs "$work/scene-again-jobs.txt"
+  [ "$(stat -c '%n %i %y' "$run/model.json" "$run"/samples/* "$run"/classes/*)" = "$before" ] ||
+    fail "submitting the finished scene run again rewrote some of its files"
+  grep -q 'skipped' "$run"/logs/chromasift-scene-fit-"$(awk 'NR == 2 { print $2 }' "$work/scene-again-jobs.txt")".log ||
+    fail "the fit job of the repeated scene run did not say it skipped"
+  say "scene on Slurm: the finished run submitted again skips every step ($((SECONDS - t0)) s)"
 fi
 
 # --- archive: GNU parallel -----------------------------------------------------------
