@@ -182,10 +182,10 @@ job_states() {
 wait_jobs() {
   local id state
   wait_gone "$1"
-  for id in $(awk '{ print $2 }' "$1"); do
+  while read -r _ id; do
     state=$(job_states "$id")
-    [[ $state =~ ^[0-9]+\ COMPLETED$ ]] || fail "job $id did not complete: $state (logs in $(dirname "$1"))"
-  done
+    [[ $state =~ ^[0-9]+\ COMPLETED$ ]] || fail "job $id did not complete: $state (see logs/ in its run folder)"
+  done <"$1"
 }
 
 # cmp of every output under the one-machine folder $1 with the file at the same path
@@ -249,10 +249,10 @@ wait_jobs "$work/resubmit-jobs.txt"
 [ "$(stat -c '%i %y' "$kept")" = "$kept_before" ] ||
   fail "resubmitting shard 1 rewrote $kept, which was up to date"
 n=$(compare_outputs "$one/archive/out" "$run"/out/shard-*)
-ls "$run"/logs/chromasift-archive-apply-"$(awk '{ print $2 }' "$work/resubmit-jobs.txt")"_* |
-  grep -q '_1.log$' || fail "the resubmitted job did not run array task 1"
-[ "$(ls "$run"/logs/chromasift-archive-apply-"$(awk '{ print $2 }' "$work/resubmit-jobs.txt")"_* | wc -l)" -eq 1 ] ||
-  fail "the resubmitted job ran more than array task 1"
+resubmitted=$(awk '{ print $2 }' "$work/resubmit-jobs.txt")
+task_logs=("$run"/logs/chromasift-archive-apply-"$resubmitted"_*.log)
+[ "${task_logs[*]}" = "$run/logs/chromasift-archive-apply-${resubmitted}_1.log" ] ||
+  fail "the resubmitted job ran other tasks than array task 1: ${task_logs[*]}"
 say "archive on Slurm: shard 1 resubmitted alone, lost output rewritten, the rest skipped ($((SECONDS - t0)) s)"
 
 # A task that fails: shard 1 of three holds a cut-off image. Its histogram task fails,
@@ -268,7 +268,7 @@ run="$work/slurm-failing"
 deploy/slurm/submit.sh archive "$work/mended.txt" "$run" --root "$work/mended" --bin "$bin" -k $k \
   --sbatch-flags "$small" >"$work/failing-jobs.txt"
 wait_gone "$work/failing-jobs.txt"
-ids=($(awk '{ print $2 }' "$work/failing-jobs.txt"))
+mapfile -t ids < <(awk '{ print $2 }' "$work/failing-jobs.txt")
 [ "$(job_states "${ids[0]}")" = "2 COMPLETED 1 FAILED" ] ||
   fail "histogram job with a cut-off image: $(job_states "${ids[0]}"), expected 2 COMPLETED 1 FAILED"
 [ "$(job_states "${ids[1]}")" = "1 CANCELLED" ] || fail "learn job after a failed task: $(job_states "${ids[1]}")"
