@@ -93,6 +93,11 @@ cleanup() {
       sleep 0.2
     done
   fi
+  # Each job step's slurmstepd keeps a socket in the spool folder until it has ended.
+  for ((i = 0; i < 100; i++)); do
+    [ -z "$(find "$work/spool" -type s 2>/dev/null)" ] && break
+    sleep 0.1
+  done
   stop_pid slurmd "$slurmd_pid"
   stop_pid slurmctld "$slurmctld_pid"
   stop_pid munged "$munged_pid"
