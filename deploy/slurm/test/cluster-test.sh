@@ -12,7 +12,10 @@
 # with its own key and socket in /run/munge), slurmctld and slurmd, with the
 # configuration slurm.conf.in of this folder and state, spool and logs in a temporary
 # folder, and stops exactly those processes, by process id, when it ends, whatever
-# happened. CS_TEST_KEEP=1 keeps the temporary folder.
+# happened. Settings: CS_TEST_KEEP=1 keeps the temporary folder; CS_TEST_CTLD_PORT and
+# CS_TEST_SLURMD_PORT move the daemons' ports (default 16817, 16818); CS_TEST_JOB_LIMIT is
+# the most seconds a submission may take (default 300); CS_TEST_SCENE=skip leaves out the
+# scene pipeline.
 set -euo pipefail
 export PATH="$PATH:/usr/sbin:/sbin"
 t_start=$SECONDS
