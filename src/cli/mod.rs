@@ -5,6 +5,7 @@
 mod args;
 mod engine;
 mod help;
+mod landcover;
 mod run;
 mod stdio;
 
@@ -12,6 +13,7 @@ pub use args::{
     parse_colour, ApplyArgs, BatchArgs, HistogramArgs, ImageFlags, LandcoverArgs, LearnArgs,
     PaletteFlags, ReduceArgs, SeparateArgs, SweepArgs,
 };
+pub use landcover::{LandcoverFitArgs, LandcoverSampleArgs};
 pub use engine::{BandList, BetaFlag, EngineFlags, FolderOutput, LimitFlag, SceneFlags};
 pub use help::{flag_wording, manual_pages, suggest};
 pub use run::run;
@@ -121,6 +123,15 @@ pub enum Command {
     /// aligned to the map, with an uncertainty map. Not a validated classification.
     #[command(after_help = LANDCOVER_EXAMPLES)]
     Landcover(LandcoverArgs),
+
+    /// Draw one raster's seeded land-cover sample into a file, for `landcover-fit` (one
+    /// job per raster on a cluster).
+    #[command(name = "landcover-sample", after_help = landcover::SAMPLE_EXAMPLES)]
+    LandcoverSample(LandcoverSampleArgs),
+
+    /// Fit one land-cover model from sample files or rasters, for `landcover --model`.
+    #[command(name = "landcover-fit", after_help = landcover::FIT_EXAMPLES)]
+    LandcoverFit(LandcoverFitArgs),
 
     /// Reduce every image of a folder, each with its own palette or all with one shared palette.
     #[command(after_help = BATCH_EXAMPLES)]

@@ -3,7 +3,10 @@
 
 use super::UNCERTAINTY_NODATA;
 use crate::cluster::{fit, soft_assign, Dataset, ValidParams};
+use super::model::LandcoverModel;
 use crate::error::Result;
+use crate::limits::Limits;
+use std::path::Path;
 use crate::features::scene::{Features, Scaler, SceneSample};
 use crate::raster::geotiff::{GeoRaster, RasterInfo};
 use rayon::prelude::*;
@@ -20,6 +23,8 @@ pub(super) struct FittedScene {
     /// Pixels in the sample the classes were fitted on.
     pub(super) sample_pixels: usize,
     pub(super) classes: FittedClasses,
+    /// What the fit said about the sample (none when the classes come from a saved model).
+    pub(super) summary: Option<FitSummary>,
 }
 
 /// The fitted classes, numbered 1..=k by their share of the sample (largest first).
@@ -33,14 +38,10 @@ pub(super) struct FittedClasses {
     pub(super) dim: usize,
     /// Number of classes.
     pub(super) k: usize,
-    /// The fit's means, k × dim in the scaled feature space, in the fit's own order.
+    /// The means, k × dim in the scaled feature space, in class order (class 1 first).
     means: Vec<f64>,
     /// The soft assignment's β (None for hard k-means).
     pub(super) beta: Option<f64>,
-    /// Class number (1..=k) of each of the fit's means.
-    class_of: Vec<u8>,
-    /// The fit's mean of each class number − 1 (the inverse of `class_of`).
-    order: Vec<usize>,
 }
 
 /// Rows of pixels assigned to the classes.
@@ -54,10 +55,65 @@ pub(super) struct Assigned {
 }
 
 impl FittedScene {
+    /// Opens `input` for a saved model: its classes come from the model (refused when
+    /// the raster does not match it). Its valid pixels are counted in pass 2.
+    pub(super) fn from_model(
+        input: &Path,
+        model: &LandcoverModel,
+        limits: &Limits,
+    ) -> Result<FittedScene> {
+        let raster = GeoRaster::open(input, limits)?;
+        let info = raster.info().clone();
+        let classes = model.classes_for(input, &info)?;
+        Ok(FittedScene {
+            raster,
+            total_pixels: info.width as u64 * info.height as u64,
+            info,
+            valid_pixels: 0,
+            sample_pixels: 0,
+            classes,
+            summary: None,
+        })
+    }
+
     /// Fits k-means on the scene's sample and numbers the classes; the sample is dropped.
     pub(super) fn fit(scene: SceneSample, params: &ValidParams) -> Result<FittedScene> {
         let dim = scene.dim;
-        let data = Dataset::new(&scene.sample, dim, None)?;
+        let bands = scene.info.bands;
+        let (classes, summary) =
+            FittedClasses::fit(&scene.sample, dim, scene.feats, scene.scaler, bands, params)?;
+        Ok(FittedScene {
+            raster: scene.raster,
+            info: scene.info,
+            valid_pixels: scene.valid_pixels,
+            total_pixels: scene.total_pixels,
+            sample_pixels: scene.sample.len() / dim,
+            classes,
+            summary: Some(summary),
+        })
+    }
+}
+
+/// What the fit says about its own sample besides the classes.
+pub(super) struct FitSummary {
+    /// Rows of the sample in each class (index `class − 1`).
+    pub(super) counts: Vec<u64>,
+    /// The fit's SSE on the (scaled) sample.
+    pub(super) sse: f64,
+}
+
+impl FittedClasses {
+    /// Fits k-means on scaled `rows` (`n × dim`) and numbers the classes by their share of
+    /// the rows, largest first (ties: the fit's own order).
+    pub(super) fn fit(
+        rows: &[f32],
+        dim: usize,
+        feats: Features,
+        scaler: Scaler,
+        bands: usize,
+        params: &ValidParams,
+    ) -> Result<(FittedClasses, FitSummary)> {
+        let data = Dataset::new(rows, dim, None)?;
         let model = fit(&data, params)?;
         let k = model.k();
         // Class numbers: largest share of the sample first.
@@ -67,29 +123,49 @@ impl FittedScene {
         }
         let mut order: Vec<usize> = (0..k).collect();
         order.sort_by(|&a, &b| counts[b].cmp(&counts[a]).then(a.cmp(&b)));
-        let mut class_of = vec![0u8; k];
-        for (c, &j) in order.iter().enumerate() {
-            class_of[j] = (c + 1) as u8;
-        }
-        let classes = FittedClasses {
-            feats: scene.feats,
-            scaler: scene.scaler,
-            bands: scene.info.bands,
+        let summary = FitSummary {
+            counts: order.iter().map(|&j| counts[j]).collect(),
+            sse: model.sse,
+        };
+        // The means are kept in class order, so a saved model applied later computes
+        // exactly what this run computes.
+        let means = order
+            .iter()
+            .flat_map(|&j| model.means[j * dim..(j + 1) * dim].iter().copied())
+            .collect();
+        let classes = FittedClasses::from_means(feats, scaler, bands, means, model.beta);
+        Ok((classes, summary))
+    }
+
+    /// Classes given whole, already numbered (`means` in class order, `k × dim`).
+    pub(super) fn from_means(
+        feats: Features,
+        scaler: Scaler,
+        bands: usize,
+        means: Vec<f64>,
+        beta: Option<f64>,
+    ) -> FittedClasses {
+        let dim = feats.dim();
+        let k = means.len() / dim;
+        FittedClasses {
+            feats,
+            scaler,
+            bands,
             dim,
             k,
-            means: model.means,
-            beta: model.beta,
-            class_of,
-            order,
-        };
-        Ok(FittedScene {
-            raster: scene.raster,
-            info: scene.info,
-            valid_pixels: scene.valid_pixels,
-            total_pixels: scene.total_pixels,
-            sample_pixels: scene.sample.len() / dim,
-            classes,
-        })
+            means,
+            beta,
+        }
+    }
+
+    /// The means in class order (`k × dim`, scaled features).
+    pub(super) fn means_by_class(&self) -> &[f64] {
+        &self.means
+    }
+
+    /// The scaling applied to features before the means.
+    pub(super) fn scaler(&self) -> &Scaler {
+        &self.scaler
     }
 }
 
@@ -122,7 +198,7 @@ impl FittedClasses {
         let classes = (0..n)
             .map(|p| {
                 if ok[p] {
-                    self.class_of[a.labels[p] as usize]
+                    (a.labels[p] + 1) as u8
                 } else {
                     0
                 }
@@ -152,7 +228,7 @@ impl FittedClasses {
 
     /// Squared distance of scaled features to the mean of class number `class` (1..=k).
     pub(super) fn squared_distance(&self, class: usize, scaled: &[f32]) -> f64 {
-        let j = self.order[class - 1];
+        let j = class - 1;
         (0..self.dim)
             .map(|d| (scaled[d] as f64 - self.means[j * self.dim + d]).powi(2))
             .sum::<f64>()

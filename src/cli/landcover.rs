@@ -1,0 +1,197 @@
+//! Land-cover models on the command line: `landcover-sample` (one raster's sample to a
+//! file), `landcover-fit` (one model from sample files or rasters), and the model flags of
+//! `landcover` (`--model`, `--save-model`).
+
+use super::engine::{EngineFlags, SceneFlags};
+use super::stdio::emit_json;
+use crate::error::Error;
+use crate::landcover;
+use crate::limits::Limits;
+use crate::rng::DEFAULT_SEED;
+use clap::Args;
+use std::path::PathBuf;
+use std::process::ExitCode;
+
+/// Flags a saved model fixes: `landcover --model` refuses them.
+pub(super) const MODEL_FIXES: [&str; 19] = [
+    "k",
+    "bands",
+    "index",
+    "scale",
+    "nodata",
+    "sample",
+    "mode",
+    "beta",
+    "seed",
+    "restarts",
+    "max_iter",
+    "tolerance",
+    "shift_tolerance",
+    "refine",
+    "anneal",
+    "anneal_start",
+    "anneal_end",
+    "anneal_factor",
+    "split_merge",
+];
+
+pub(super) const SAMPLE_EXAMPLES: &str = "\
+Examples:
+  chromasift landcover-sample tiles/t03.tif --seed 7 --sample 200000 -o samples/t03.sample
+
+Writes one file: the raster's seeded grid sample and the statistics of every feature over
+its valid pixels, for `landcover-fit`. --scale is the fit's setting: a sample is unscaled.";
+
+pub(super) const FIT_EXAMPLES: &str = "\
+Examples:
+  chromasift landcover-fit samples/t01.sample samples/t02.sample -k 6 --seed 7 -o valley.model.json
+  chromasift landcover-fit --list samples.txt -k 6 --seed 7 -o valley.model.json
+  chromasift landcover-fit tiles/t01.tif tiles/t02.tif -k 6 --seed 7 --sample 200000 -o valley.model.json
+  chromasift landcover tiles/t02.tif --model valley.model.json -o classes/
+
+Inputs are sample files (from landcover-sample) or rasters, sampled here exactly as
+landcover-sample would: the same inputs in the same order give the same model file.";
+
+/// Flags of `landcover-sample`.
+#[derive(Debug, Args, Clone)]
+pub struct LandcoverSampleArgs {
+    /// Raster: TIFF/GeoTIFF, or PNG/JPEG (R, G, B).
+    pub input: PathBuf,
+
+    /// The sample file to write.
+    #[arg(short = 'o', long = "out", value_name = "FILE")]
+    pub out: PathBuf,
+
+    /// Seed of the grid sample; `landcover-fit` must use the same seed.
+    #[arg(long, default_value_t = DEFAULT_SEED)]
+    pub seed: u64,
+
+    /// Refuse rasters with more pixels than this (checked from the header).
+    #[arg(long = "max-pixels", default_value_t = landcover::MAX_SCENE_PIXELS, value_name = "N")]
+    pub max_pixels: u64,
+
+    #[command(flatten)]
+    pub scene: SceneFlags,
+}
+
+/// Flags of `landcover-fit`.
+#[derive(Debug, Args, Clone)]
+pub struct LandcoverFitArgs {
+    /// Sample files (from landcover-sample) or rasters, in the order they are combined.
+    pub inputs: Vec<PathBuf>,
+
+    /// A text file listing inputs, one path per line (blank lines and lines starting with
+    /// '#' are skipped); they come after any inputs given on the command line.
+    #[arg(long, value_name = "FILE")]
+    pub list: Option<PathBuf>,
+
+    /// The model file to write (JSON).
+    #[arg(short = 'o', long = "out", value_name = "FILE")]
+    pub out: PathBuf,
+
+    /// Number of classes (at most 255).
+    #[arg(short = 'k', long = "k", default_value_t = 6, value_name = "K")]
+    pub k: usize,
+
+    /// Most rows the fit runs on; when the samples together hold more, a seeded draw keeps
+    /// exactly this many.
+    #[arg(long = "fit-rows", default_value_t = 2_000_000, value_name = "N", value_parser = super::engine::positive_count)]
+    pub fit_rows: usize,
+
+    /// Refuse rasters with more pixels than this (checked from the header).
+    #[arg(long = "max-pixels", default_value_t = landcover::MAX_SCENE_PIXELS, value_name = "N")]
+    pub max_pixels: u64,
+
+    /// Also print the model on standard output.
+    #[arg(long)]
+    pub json: bool,
+
+    /// For raster inputs; with sample files, --bands, --index and --nodata must be left out
+    /// or equal what the files record.
+    #[command(flatten)]
+    pub scene: SceneFlags,
+
+    #[command(flatten)]
+    pub engine: EngineFlags,
+}
+
+pub(super) fn run_sample(args: &LandcoverSampleArgs) -> Result<ExitCode, Error> {
+    let opts = landcover::SampleOptions {
+        scene: args.scene.options(),
+        seed: args.seed,
+        limits: Limits::with_max_pixels(args.max_pixels),
+    };
+    let h = landcover::write_sample_file(&args.input, &args.out, &opts)?;
+    eprintln!(
+        "chromasift: {}: {} sample rows of {} features from {} valid pixels -> {}",
+        args.input.display(),
+        h.rows,
+        h.dim,
+        h.valid_pixels,
+        args.out.display()
+    );
+    Ok(ExitCode::SUCCESS)
+}
+
+pub(super) fn run_fit(args: &LandcoverFitArgs) -> Result<ExitCode, Error> {
+    let limits = Limits::with_max_pixels(args.max_pixels);
+    let mut inputs = args.inputs.clone();
+    if let Some(list) = &args.list {
+        inputs.extend(landcover::read_list_file(list, &limits)?);
+    }
+    let opts = landcover::FitModelOptions {
+        k: args.k,
+        scene: args.scene.options(),
+        engine: args.engine.options(),
+        fit_rows: args.fit_rows,
+        limits,
+    };
+    let model = landcover::fit_model(&inputs, &opts)?;
+    let json = model.to_json();
+    let spare: Vec<&std::path::Path> = inputs.iter().map(PathBuf::as_path).collect();
+    crate::output::write_file_sparing(&args.out, json.as_bytes(), &spare)?;
+    eprintln!(
+        "chromasift: model of {} classes fitted on {} rows from {} inputs -> {}",
+        model.k,
+        model.fit_rows,
+        model.sources.len(),
+        args.out.display()
+    );
+    eprintln!("chromasift: caution: {}", landcover::CAUTION);
+    if args.json {
+        emit_json(&model);
+    }
+    Ok(ExitCode::SUCCESS)
+}
+
+/// `landcover`, fitting or applying a saved model.
+pub(super) fn run_landcover(args: &super::LandcoverArgs) -> Result<ExitCode, Error> {
+    let out = &args.rest.output.out;
+    let report = match &args.model {
+        Some(path) => {
+            let limits = Limits::with_max_pixels(args.max_pixels);
+            let model = landcover::LandcoverModel::read(path, &limits)?;
+            let name = landcover::source_file_name(path);
+            landcover::landcover_with_model(&args.input, out, &model, &name, &limits)?
+        }
+        None => landcover::landcover_file(&args.input, out, &args.options())?,
+    };
+    if let (Some(path), Some(model)) = (&args.save_model, &report.model) {
+        crate::output::write_file_sparing(path, model.to_json().as_bytes(), &[&args.input])?;
+    }
+    let d = &report.document;
+    eprintln!(
+        "chromasift: {}: {} classes over {} valid pixels ({} nodata), SSE {:.6e}, {:.2} s",
+        args.input.display(),
+        d.k,
+        d.valid_pixels,
+        d.nodata_pixels,
+        d.sse,
+        report.seconds
+    );
+    eprintln!("chromasift: caution: {}", landcover::CAUTION);
+    if args.rest.output.json {
+        emit_json(d);
+    }
+    Ok(ExitCode::SUCCESS)
+}
