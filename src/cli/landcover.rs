@@ -195,3 +195,72 @@ pub(super) fn run_landcover(args: &super::LandcoverArgs) -> Result<ExitCode, Err
     }
     Ok(ExitCode::SUCCESS)
 }
+
+pub(super) const ASSESS_EXAMPLES: &str = "\
+Examples:
+  chromasift landcover-assess classes/valley.classes.tif --reference survey.tif -o check/
+  chromasift landcover-assess classes/valley.classes.tif --points field-points.csv --match majority -o check/
+
+Writes STEM.assessment.json (matching, confusion matrix, overall accuracy, kappa, producer's
+and user's accuracy, adjusted Rand index, error-adjusted areas with 95 % intervals after
+Olofsson et al. 2014) and STEM.confusion.csv. Points: a CSV with x, y (in the raster's CRS)
+and label columns.";
+
+/// Flags of `landcover-assess`.
+#[derive(Debug, Args, Clone)]
+#[command(group(clap::ArgGroup::new("source").required(true).args(["reference", "points"])))]
+pub struct LandcoverAssessArgs {
+    /// The class raster (STEM.classes.tif).
+    pub classes: PathBuf,
+
+    /// A reference raster on the same grid: whole-number labels, 0 or its nodata value
+    /// where there is no reference.
+    #[arg(long, value_name = "FILE")]
+    pub reference: Option<PathBuf>,
+
+    /// Reference points: CSV with x, y (in the raster's CRS) and label columns.
+    #[arg(long, value_name = "FILE")]
+    pub points: Option<PathBuf>,
+
+    /// How clusters get reference labels: hungarian (one label per cluster, most agreement;
+    /// clusters left over take their majority label), majority, or same (class numbers
+    /// are the labels already).
+    #[arg(long = "match", default_value = "hungarian", value_name = "hungarian|majority|same")]
+    pub matching: landcover::Matching,
+
+    /// Refuse rasters with more pixels than this (checked from the header).
+    #[arg(long = "max-pixels", default_value_t = landcover::MAX_SCENE_PIXELS, value_name = "N")]
+    pub max_pixels: u64,
+
+    #[command(flatten)]
+    pub output: super::engine::FolderOutput,
+}
+
+pub(super) fn run_assess(args: &LandcoverAssessArgs) -> Result<ExitCode, Error> {
+    let reference = match (&args.reference, &args.points) {
+        (Some(r), _) => landcover::Reference::Raster(r.clone()),
+        (None, Some(p)) => landcover::Reference::Points(p.clone()),
+        (None, None) => unreachable!("clap requires one"),
+    };
+    let limits = Limits::with_max_pixels(args.max_pixels);
+    let (doc, _) =
+        landcover::assess_file(&args.classes, &reference, args.matching, &args.output.out, &limits)?;
+    let pct = |v: Option<f64>| v.map(|x| format!("{:.1} %", 100.0 * x)).unwrap_or("-".into());
+    eprintln!(
+        "chromasift: {}: {} reference units, overall accuracy {}, kappa {}",
+        args.classes.display(),
+        doc.units,
+        pct(doc.overall_accuracy),
+        doc.kappa.map(|k| format!("{k:.3}")).unwrap_or("-".into())
+    );
+    if doc.points_outside + doc.points_on_nodata > 0 {
+        eprintln!(
+            "chromasift: note: {} points outside the raster and {} on nodata were left out",
+            doc.points_outside, doc.points_on_nodata
+        );
+    }
+    if args.output.json {
+        emit_json(&doc);
+    }
+    Ok(ExitCode::SUCCESS)
+}

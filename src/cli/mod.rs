@@ -13,7 +13,7 @@ pub use args::{
     parse_colour, ApplyArgs, BatchArgs, HistogramArgs, ImageFlags, LandcoverArgs, LearnArgs,
     PaletteFlags, ReduceArgs, SeparateArgs, SweepArgs,
 };
-pub use landcover::{LandcoverFitArgs, LandcoverSampleArgs};
+pub use landcover::{LandcoverAssessArgs, LandcoverFitArgs, LandcoverSampleArgs};
 pub use engine::{BandList, BetaFlag, EngineFlags, FolderOutput, LimitFlag, SceneFlags};
 pub use help::{flag_wording, manual_pages, suggest};
 pub use run::run;
@@ -132,6 +132,11 @@ pub enum Command {
     /// Fit one land-cover model from sample files or rasters, for `landcover --model`.
     #[command(name = "landcover-fit", after_help = landcover::FIT_EXAMPLES)]
     LandcoverFit(LandcoverFitArgs),
+
+    /// Check a class raster against reference data (a raster on the same grid, or points):
+    /// confusion matrix, accuracies, kappa and error-adjusted areas.
+    #[command(name = "landcover-assess", after_help = landcover::ASSESS_EXAMPLES)]
+    LandcoverAssess(LandcoverAssessArgs),
 
     /// Reduce every image of a folder, each with its own palette or all with one shared palette.
     #[command(after_help = BATCH_EXAMPLES)]

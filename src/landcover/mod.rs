@@ -16,6 +16,8 @@
 //!   `preview` grid;
 //! - `document`: the classes document and CSV; `preview`: the PNG with its legend.
 
+mod accuracy;
+mod assess;
 mod combine;
 mod document;
 mod fit;
@@ -27,6 +29,12 @@ mod stats;
 
 pub use crate::features::scene::{
     normalised_difference, parse_bands, IndexSpec, Scale, SceneOptions,
+};
+pub use accuracy::{
+    adjusted_rand_index, hungarian_max, AreaEstimate, AreaEstimates, Confusion, LabelAccuracy,
+};
+pub use assess::{
+    assess, assess_file, assessment_names, AssessmentDocument, ClusterLabel, Matching, Reference,
 };
 pub use combine::{fit_model, read_list_file, FitModelOptions};
 pub use document::{classes_csv, ClassReport, ClassesDocument, FeatureStats};
