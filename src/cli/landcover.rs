@@ -264,3 +264,63 @@ pub(super) fn run_assess(args: &LandcoverAssessArgs) -> Result<ExitCode, Error> 
     }
     Ok(ExitCode::SUCCESS)
 }
+
+pub(super) const LABEL_EXAMPLES: &str = "\
+Examples:
+  chromasift landcover-label classes/valley.classes.tif --labels valley-labels.csv -o map/
+  chromasift landcover-label classes/valley.classes.tif --labels valley-labels.csv --min-unit 0.5ha -o map/
+
+The label file is CSV with a header: class,label[,colour], e.g. `2,woodland,#2e7d32`.
+Classes given one label merge. Writes STEM.labelled.tif (label numbers, 0 = nodata, the class
+raster's georeferencing), STEM.labelled.png (with the label legend), STEM.labels.json and
+STEM.labels.csv (pixels and areas per label, what the minimum mapping unit changed).";
+
+/// Flags of `landcover-label`.
+#[derive(Debug, Args, Clone)]
+#[command(group(clap::ArgGroup::new("what").required(true).multiple(true).args(["labels", "min_unit"])))]
+pub struct LandcoverLabelArgs {
+    /// The class raster (STEM.classes.tif).
+    pub classes: PathBuf,
+
+    /// Label file: CSV with class, label and optional colour (#rrggbb) columns.
+    #[arg(long, value_name = "FILE")]
+    pub labels: Option<PathBuf>,
+
+    /// Minimum mapping unit: patches (8-connected) smaller than this merge into the
+    /// neighbouring label they share the longest border with. In ha, m2 or px (0.5ha,
+    /// 5000m2, 12px); ha and m2 need a projected CRS in metres.
+    #[arg(long = "min-unit", value_name = "SIZE")]
+    pub min_unit: Option<landcover::MinUnit>,
+
+    /// Refuse rasters with more pixels than this (checked from the header).
+    #[arg(long = "max-pixels", default_value_t = landcover::MAX_SCENE_PIXELS, value_name = "N")]
+    pub max_pixels: u64,
+
+    #[command(flatten)]
+    pub output: super::engine::FolderOutput,
+}
+
+pub(super) fn run_label(args: &LandcoverLabelArgs) -> Result<ExitCode, Error> {
+    let opts = landcover::LabelOptions {
+        labels: args.labels.clone(),
+        min_unit: args.min_unit,
+        limits: Limits::with_max_pixels(args.max_pixels),
+    };
+    let doc = landcover::label_file(&args.classes, &args.output.out, &opts)?;
+    eprintln!(
+        "chromasift: {}: {} labels",
+        args.classes.display(),
+        doc.labels.len()
+    );
+    if let Some(px) = doc.min_unit_pixels {
+        eprintln!(
+            "chromasift: minimum mapping unit {px} pixels: {} patches merged, {} pixels changed, \
+             {} smaller patches kept (only nodata or the edge around them)",
+            doc.patches_merged, doc.pixels_changed, doc.patches_kept_isolated
+        );
+    }
+    if args.output.json {
+        emit_json(&doc);
+    }
+    Ok(ExitCode::SUCCESS)
+}

@@ -13,7 +13,9 @@ pub use args::{
     parse_colour, ApplyArgs, BatchArgs, HistogramArgs, ImageFlags, LandcoverArgs, LearnArgs,
     PaletteFlags, ReduceArgs, SeparateArgs, SweepArgs,
 };
-pub use landcover::{LandcoverAssessArgs, LandcoverFitArgs, LandcoverSampleArgs};
+pub use landcover::{
+    LandcoverAssessArgs, LandcoverFitArgs, LandcoverLabelArgs, LandcoverSampleArgs,
+};
 pub use engine::{BandList, BetaFlag, EngineFlags, FolderOutput, LimitFlag, SceneFlags};
 pub use help::{flag_wording, manual_pages, suggest};
 pub use run::run;
@@ -137,6 +139,11 @@ pub enum Command {
     /// confusion matrix, accuracies, kappa and error-adjusted areas.
     #[command(name = "landcover-assess", after_help = landcover::ASSESS_EXAMPLES)]
     LandcoverAssess(LandcoverAssessArgs),
+
+    /// Name and merge the classes of a class raster with a label file, and remove patches
+    /// below a minimum mapping unit.
+    #[command(name = "landcover-label", after_help = landcover::LABEL_EXAMPLES)]
+    LandcoverLabel(LandcoverLabelArgs),
 
     /// Reduce every image of a folder, each with its own palette or all with one shared palette.
     #[command(after_help = BATCH_EXAMPLES)]

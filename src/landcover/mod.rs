@@ -20,7 +20,9 @@ mod accuracy;
 mod assess;
 mod combine;
 mod document;
+mod finish;
 mod fit;
+mod labels;
 mod model;
 mod pass2;
 mod preview;
@@ -36,6 +38,8 @@ pub use accuracy::{
 pub use assess::{
     assess, assess_file, assessment_names, AssessmentDocument, ClusterLabel, Matching, Reference,
 };
+pub use finish::{label_file, label_names, LabelOptions, LabelReport, LabelsDocument, MinUnit};
+pub use labels::{labelled_preview, read_labels, Label, LabelSet};
 pub use combine::{fit_model, read_list_file, FitModelOptions};
 pub use document::{classes_csv, ClassReport, ClassesDocument, FeatureStats};
 pub use model::{
