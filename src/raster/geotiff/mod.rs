@@ -15,6 +15,7 @@ mod area;
 mod blocks;
 mod crs;
 mod decoder;
+mod mask;
 mod open;
 mod tags;
 mod tm;
@@ -41,3 +42,6 @@ mod tests;
 
 #[cfg(test)]
 mod crs_tests;
+
+#[cfg(test)]
+mod gdal_tests;

@@ -6,6 +6,7 @@ use super::decoder::{
     check_tag_fits, decode, file_len, guarded, is_tiff_magic, over_limit, read_up_to, tiff_decoder,
     tiff_error, unsupported,
 };
+use super::mask::MaskSource;
 use super::tags::{read_geo, read_nodata, GeoTags};
 use super::types::{Block, RasterInfo, SampleKind};
 use crate::error::{Error, Result};
@@ -18,7 +19,7 @@ use tiff::tags::Tag;
 use tiff::ColorType;
 
 /// Largest number of bands accepted from a TIFF.
-pub const MAX_BANDS: usize = 16;
+pub const MAX_BANDS: usize = 256;
 
 /// An open raster, read one block at a time.
 pub struct GeoRaster {
@@ -345,17 +346,56 @@ fn open_tiff(path: &Path, limits: &Limits) -> Result<GeoRaster> {
 
     let geo = read_geo(&mut decoder, path)?;
     let nodata = read_nodata(&mut decoder, path)?;
+    let extra: Vec<u16> = decoder
+        .find_tag_unsigned_vec::<u16>(Tag::ExtraSamples)
+        .map_err(|e| tiff_error(path, e))?
+        .unwrap_or_default();
+    // ExtraSamples describes the last samples; 1 = associated, 2 = unassociated alpha.
+    let alpha = extra
+        .iter()
+        .position(|&v| v == 1 || v == 2)
+        .filter(|_| extra.len() <= bands)
+        .map(|k| bands - extra.len() + k);
+    if alpha.is_some() && bands == 1 {
+        return Err(unsupported(
+            path,
+            "the only band is alpha; there is nothing to classify",
+        ));
+    }
+    let offsets_tag = if tiled {
+        Tag::TileOffsets
+    } else {
+        Tag::StripOffsets
+    };
+    let counts_tag = if tiled {
+        Tag::TileByteCounts
+    } else {
+        Tag::StripByteCounts
+    };
+    let offsets = decoder
+        .get_tag_u64_vec(offsets_tag)
+        .map_err(|e| tiff_error(path, e))?;
+    let counts = decoder
+        .get_tag_u64_vec(counts_tag)
+        .map_err(|e| tiff_error(path, e))?;
+    let chunks: Vec<(u64, u64)> = offsets.into_iter().zip(counts).collect();
+    let sparse_chunks = chunks.iter().filter(|c| c.0 == 0 || c.1 == 0).count();
+    let mask = MaskSource::find(path, width, height, limits)?;
+    let mask_origin = mask.as_ref().map(|m| m.origin.clone());
     Ok(GeoRaster {
         path: path.into(),
         info: RasterInfo {
             width,
             height,
-            bands,
+            bands: bands - alpha.is_some() as usize,
             sample,
             planar,
             tiled,
             geo,
             nodata,
+            alpha_band: alpha.map(|a| a + 1),
+            mask: mask_origin,
+            sparse_chunks,
         },
         source: Source::Tiff(Box::new(TiffSource {
             decoder,
@@ -364,6 +404,10 @@ fn open_tiff(path: &Path, limits: &Limits) -> Result<GeoRaster> {
             across,
             down,
             poisoned: false,
+            chunks,
+            stored_bands: bands,
+            alpha,
+            mask: mask.map(Box::new),
         })),
     })
 }
@@ -406,6 +450,9 @@ fn open_image(path: &Path, limits: &Limits) -> Result<GeoRaster> {
             tiled: false,
             geo: GeoTags::default(),
             nodata: None,
+            alpha_band: None,
+            mask: None,
+            sparse_chunks: 0,
         },
         source: Source::Image(d),
     })
