@@ -118,3 +118,53 @@ fn zstd_with_twenty_bands() {
     assert!(r.info().tiled);
     assert_eq!(r.info().alpha_band, None);
 }
+
+#[test]
+fn scale_offset_file_reads_raw_values() {
+    // Raw stored values; scale and offset are applied by the features (see `scale` below).
+    let mut r = GeoRaster::open(&dir().join("scale_offset.tif"), &Limits::default()).unwrap();
+    let b = r.read_block(0).unwrap();
+    assert_eq!(b.data[0], 0.0, "nodata stays as stored");
+}
+
+#[test]
+fn exclusion_raster_on_the_same_grid_leaves_its_pixels_out() {
+    let e = expected("scale_offset.tif + clouds_same_grid.tif");
+    let mut r = GeoRaster::open(&dir().join("scale_offset.tif"), &Limits::default()).unwrap();
+    r.exclude_where(&dir().join("clouds_same_grid.tif"), &Limits::default())
+        .unwrap();
+    let nodata = r.info().nodata.unwrap() as f32;
+    let mut valid = 0u64;
+    for i in 0..r.block_count() {
+        let b = r.read_block(i).unwrap();
+        valid += b
+            .data
+            .chunks_exact(4)
+            .filter(|px| px.iter().all(|&v| v.is_finite() && v != nodata))
+            .count() as u64;
+    }
+    assert_eq!(valid, e["valid"].as_u64().unwrap());
+}
+
+#[test]
+fn exclusion_raster_off_the_grid_is_refused() {
+    let mut r = GeoRaster::open(&dir().join("scale_offset.tif"), &Limits::default()).unwrap();
+    let err = r
+        .exclude_where(&dir().join("clouds_other_grid.tif"), &Limits::default())
+        .unwrap_err()
+        .to_string();
+    assert!(
+        err.contains("clouds_other_grid.tif") && err.contains("not on the grid"),
+        "{err}"
+    );
+    assert!(err.contains("transform"), "{err}");
+    let err = r
+        .exclude_where(
+            &Path::new(env!("CARGO_MANIFEST_DIR"))
+                .join("fixtures/rasters/utm_u16_4band_strips.tif"),
+            &Limits::default(),
+        )
+        .unwrap_err()
+        .to_string();
+    assert!(err.contains("40 x 30 pixels, the scene 64 x 48"), "{err}");
+}

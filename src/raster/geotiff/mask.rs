@@ -94,7 +94,8 @@ pub(super) fn ifd_chain(path: &Path) -> Option<Vec<IfdSummary>> {
     Some(out)
 }
 
-fn one_bytes(path: &Path) -> Option<[u8; 2]> {
+/// The value 1 as a SHORT in the byte order of the TIFF at `path`.
+pub(super) fn one_bytes(path: &Path) -> Option<[u8; 2]> {
     let mut f = File::open(path).ok()?;
     let mut b = [0u8; 2];
     f.read_exact(&mut b).ok()?;

@@ -88,6 +88,9 @@ pub struct RasterInfo {
     pub mask: Option<String>,
     /// Strips or tiles left out of the file (offset or byte count 0), read as no data.
     pub sparse_chunks: usize,
+    /// A raster on the same grid whose non-zero pixels are left out (see
+    /// `GeoRaster::exclude_where`).
+    pub excluded_by: Option<std::path::PathBuf>,
 }
 
 impl RasterInfo {
