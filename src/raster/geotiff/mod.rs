@@ -11,21 +11,37 @@
 //! (shared `tiff` decoder plumbing), `open` (opening and checking a file), `blocks`
 //! (reading one block) and `write` (writing GeoTIFFs).
 
+mod area;
 mod blocks;
+mod crs;
 mod decoder;
+mod mask;
 mod open;
 mod tags;
+mod tm;
 mod types;
 mod write;
 
+pub use area::{footprint_area, AreaMethod, PixelAreas, LATTICE_STEP};
+pub use crs::{
+    ellipsoid_by_code, ellipsoid_of_crs, geo_key_double, is_equal_area_epsg, Crs, Ellipsoid,
+    GridCrs, PixelToModel,
+};
 pub use open::{GeoRaster, MAX_BANDS};
 pub use tags::{
     parse_nodata, read_geotags, GeoTagValue, GeoTags, TAG_GDAL_NODATA, TAG_GEO_ASCII_PARAMS,
     TAG_GEO_DOUBLE_PARAMS, TAG_GEO_KEY_DIRECTORY, TAG_MODEL_PIXEL_SCALE, TAG_MODEL_TIEPOINT,
     TAG_MODEL_TRANSFORMATION,
 };
+pub use tm::TransverseMercator;
 pub use types::{Block, RasterInfo, SampleKind};
 pub use write::{write_f32_band, write_u8_band};
 
 #[cfg(test)]
 mod tests;
+
+#[cfg(test)]
+mod crs_tests;
+
+#[cfg(test)]
+mod gdal_tests;
