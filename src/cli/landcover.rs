@@ -277,7 +277,7 @@ STEM.labels.csv (pixels and areas per label, what the minimum mapping unit chang
 
 /// Flags of `landcover-label`.
 #[derive(Debug, Args, Clone)]
-#[command(group(clap::ArgGroup::new("what").required(true).multiple(true).args(["labels", "min_unit"])))]
+#[command(group(clap::ArgGroup::new("what").required(true).multiple(true).args(["labels", "min_unit", "polygons"])))]
 pub struct LandcoverLabelArgs {
     /// The class raster (STEM.classes.tif).
     pub classes: PathBuf,
@@ -292,6 +292,17 @@ pub struct LandcoverLabelArgs {
     #[arg(long = "min-unit", value_name = "SIZE")]
     pub min_unit: Option<landcover::MinUnit>,
 
+    /// Also write each patch as a polygon: geojson (STEM.patches.geojson, longitude and
+    /// latitude on WGS 84) and/or gpkg (STEM.patches.gpkg, the raster's CRS), separated by
+    /// commas. Each polygon has its class, label, area_m2 and mean_uncertainty.
+    #[arg(long, value_name = "geojson,gpkg", value_delimiter = ',')]
+    pub polygons: Vec<PolygonFormat>,
+
+    /// Uncertainty raster for the polygons' mean uncertainty (default: STEM.uncertainty.tif
+    /// beside the class raster, when there is one).
+    #[arg(long, value_name = "FILE")]
+    pub uncertainty: Option<PathBuf>,
+
     /// Refuse rasters with more pixels than this (checked from the header).
     #[arg(long = "max-pixels", default_value_t = landcover::MAX_SCENE_PIXELS, value_name = "N")]
     pub max_pixels: u64,
@@ -300,10 +311,20 @@ pub struct LandcoverLabelArgs {
     pub output: super::engine::FolderOutput,
 }
 
+/// A polygon file format.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
+pub enum PolygonFormat {
+    Geojson,
+    Gpkg,
+}
+
 pub(super) fn run_label(args: &LandcoverLabelArgs) -> Result<ExitCode, Error> {
     let opts = landcover::LabelOptions {
         labels: args.labels.clone(),
         min_unit: args.min_unit,
+        geojson: args.polygons.contains(&PolygonFormat::Geojson),
+        geopackage: args.polygons.contains(&PolygonFormat::Gpkg),
+        uncertainty: args.uncertainty.clone(),
         limits: Limits::with_max_pixels(args.max_pixels),
     };
     let doc = landcover::label_file(&args.classes, &args.output.out, &opts)?;

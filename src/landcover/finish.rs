@@ -85,16 +85,23 @@ pub struct LabelsDocument {
 }
 
 /// Settings of [`label_file`].
-#[derive(Debug, Clone, PartialEq)]
+#[derive(Debug, Clone, PartialEq, Default)]
 pub struct LabelOptions {
     pub labels: Option<PathBuf>,
     pub min_unit: Option<MinUnit>,
+    /// Polygons to write: GeoJSON (WGS 84) and/or GeoPackage (the raster's CRS).
+    pub geojson: bool,
+    pub geopackage: bool,
+    /// The uncertainty raster for the polygons' mean uncertainty (default: the class
+    /// raster's sibling `STEM.uncertainty.tif`, when there is one).
+    pub uncertainty: Option<PathBuf>,
     pub limits: Limits,
 }
 
-/// Output names: `STEM.labelled.tif`, `.labelled.png`, `.labels.json`, `.labels.csv`, STEM
+/// Output names: `STEM.labelled.tif`, `.labelled.png`, `.labels.json`, `.labels.csv`, and
+/// with polygons `.patches.geojson` and `.patches.gpkg`, STEM
 /// the class raster's stem without a final `.classes`.
-pub fn label_names(classes: &Path) -> Result<[String; 4]> {
+pub fn label_names(classes: &Path) -> Result<[String; 6]> {
     let stem = crate::output::stem_of(classes)?;
     let stem = stem.strip_suffix(".classes").unwrap_or(&stem).to_string();
     Ok([
@@ -102,6 +109,8 @@ pub fn label_names(classes: &Path) -> Result<[String; 4]> {
         format!("{stem}.labelled.png"),
         format!("{stem}.labels.json"),
         format!("{stem}.labels.csv"),
+        format!("{stem}.patches.geojson"),
+        format!("{stem}.patches.gpkg"),
     ])
 }
 
@@ -260,11 +269,26 @@ impl LabelsDocument {
 /// raster (georeferencing copied, 0 = nodata), its preview with the label legend, and the
 /// labels document and CSV into `out_dir`, atomically.
 pub fn label_file(classes: &Path, out_dir: &Path, opts: &LabelOptions) -> Result<LabelsDocument> {
-    if opts.labels.is_none() && opts.min_unit.is_none() {
-        return Err(ParamsError::Other("give a label file (`labels`) or a minimum mapping unit (`min_unit`)".into()).into());
+    if opts.labels.is_none() && opts.min_unit.is_none() && !opts.geojson && !opts.geopackage {
+        return Err(ParamsError::Other(
+            "give a label file (`labels`), a minimum mapping unit (`min_unit`) or polygons".into(),
+        )
+        .into());
     }
-    let names = label_names(classes)?;
-    let spare: Vec<&Path> = opts.labels.iter().map(PathBuf::as_path).collect();
+    let all = label_names(classes)?;
+    let mut names: Vec<String> = all[..4].to_vec();
+    if opts.geojson {
+        names.push(all[4].clone());
+    }
+    if opts.geopackage {
+        names.push(all[5].clone());
+    }
+    let uncertainty = opts.uncertainty.clone().or_else(|| {
+        let sibling = classes.with_file_name(all[0].replace(".labelled.tif", ".uncertainty.tif"));
+        sibling.is_file().then_some(sibling)
+    });
+    let mut spare: Vec<&Path> = opts.labels.iter().map(PathBuf::as_path).collect();
+    spare.extend(uncertainty.as_deref());
     let load = || -> Result<(ClassRaster, Vec<u8>, LabelsDocument, LabelSet)> {
         let raster = read_class_raster(classes, &opts.limits)?;
         let set = match &opts.labels {
@@ -277,7 +301,8 @@ pub fn label_file(classes: &Path, out_dir: &Path, opts: &LabelOptions) -> Result
         let (labelled, doc) = apply(classes, &raster, &set, opts)?;
         Ok((raster, labelled, doc, set))
     };
-    let (doc, _) = crate::output::one_input(classes, out_dir, &spare, &names, load, |(raster, labelled, doc, set), out| {
+    let write = |(raster, labelled, doc, set): (ClassRaster, Vec<u8>, LabelsDocument, LabelSet),
+                 out: &mut crate::output::OutputSet| {
         let (w, h) = (raster.width as u32, raster.height as u32);
         let mut next = 0usize;
         out.write(&names[0], |wr| {
@@ -296,9 +321,48 @@ pub fn label_file(classes: &Path, out_dir: &Path, opts: &LabelOptions) -> Result
         out.write(&names[1], |wr| crate::raster::write_rgb_png(wr, lw as u32, lh as u32, &rgb))?;
         out.write_bytes(&names[2], format!("{}\n", serde_json::to_string_pretty(&doc).expect("serialises")).as_bytes())?;
         out.write_bytes(&names[3], doc.to_csv().as_bytes())?;
+        if opts.geojson || opts.geopackage {
+            let unc = match &uncertainty {
+                Some(p) => Some(read_uncertainty(p, &raster, &opts.limits)?),
+                None => None,
+            };
+            let (patches, attrs) = super::patch_out::patches_with_attributes(&raster, &labelled, &set, unc.as_deref());
+            let grid = crate::raster::geotiff::GridCrs::from_tags(&raster.geo);
+            let mut k = 4;
+            if opts.geojson {
+                let text = super::vector_out::geojson(classes, &grid, &patches, &attrs)?;
+                out.write_bytes(&names[k], text.as_bytes())?;
+                k += 1;
+            }
+            if opts.geopackage {
+                let tmp = tempfile::tempdir().map_err(|e| Error::io(out.dir(), e))?;
+                let db = tmp.path().join("patches.gpkg");
+                super::vector_out::write_geopackage(&db, classes, &grid, &patches, &attrs)?;
+                let bytes = std::fs::read(&db).map_err(|e| Error::io(&db, e))?;
+                out.write_bytes(&names[k], &bytes)?;
+            }
+        }
         Ok(doc)
-    })?;
+    };
+    let (doc, _) = crate::output::one_input(classes, out_dir, &spare, &names, load, write)?;
     Ok(doc)
+}
+
+/// The uncertainty raster, whole, refused when it is not on the class raster's grid.
+fn read_uncertainty(path: &Path, classes: &ClassRaster, limits: &Limits) -> Result<Vec<f32>> {
+    let mut r = GeoRaster::open(path, limits)?;
+    let info = r.info().clone();
+    if (info.width as usize, info.height as usize, info.bands) != (classes.width, classes.height, 1) {
+        return Err(Error::InputData {
+            path: path.into(),
+            message: "is not a one-band raster on the class raster's grid".into(),
+        });
+    }
+    let mut v = Vec::with_capacity(classes.width * classes.height);
+    for b in 0..r.block_count() {
+        v.extend(r.read_block(b)?.data);
+    }
+    Ok(v)
 }
 
 /// Every `step`-th pixel, so the longest side is at most 2048.

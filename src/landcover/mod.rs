@@ -25,9 +25,12 @@ mod fit;
 mod labels;
 mod model;
 mod pass2;
+mod patch_out;
+mod polygons;
 mod preview;
 mod sample;
 mod stats;
+mod vector_out;
 
 pub use crate::features::scene::{
     normalised_difference, parse_bands, IndexSpec, Scale, SceneOptions,
@@ -39,6 +42,8 @@ pub use assess::{
     assess, assess_file, assessment_names, AssessmentDocument, ClusterLabel, Matching, Reference,
 };
 pub use finish::{label_file, label_names, LabelOptions, LabelReport, LabelsDocument, MinUnit};
+pub use polygons::{patch_ids, ring_pixels, vectorise, Patch};
+pub use vector_out::{geojson, gpkg_geometry, write_geopackage, PatchAttributes, GPKG_TABLE};
 pub use labels::{labelled_preview, read_labels, Label, LabelSet};
 pub use combine::{fit_model, read_list_file, FitModelOptions};
 pub use document::{classes_csv, ClassReport, ClassesDocument, FeatureStats};
