@@ -142,14 +142,19 @@ pub fn vectorise(values: &[u8], w: usize, h: usize) -> Vec<Patch> {
                 prev = cur;
                 cur = next;
             }
-            rings[i as usize].push(simplify(&ring));
+            for part in split_pinches(&ring) {
+                rings[i as usize].push(simplify(&part));
+            }
         }
     }
     (1..=n as usize)
         .map(|i| {
             let mut rs = std::mem::take(&mut rings[i]);
-            // The outer ring is the one of largest area; the others are holes.
-            let k = (0..rs.len()).max_by_key(|&k| twice_area(&rs[k]).abs()).unwrap_or(0);
+            // The outer ring goes round the way a single pixel does (negative shoelace sum
+            // in column/row coordinates); holes go the other way.
+            let k = (0..rs.len())
+                .min_by_key(|&k| twice_area(&rs[k]))
+                .unwrap_or(0);
             rs.swap(0, k);
             Patch {
                 value: values[first[i]],
@@ -159,6 +164,29 @@ pub fn vectorise(values: &[u8], w: usize, h: usize) -> Vec<Patch> {
             }
         })
         .collect()
+}
+
+/// Splits a closed ring that passes through one vertex more than once into rings that do
+/// not (OGC simple features allow rings to touch at a point, not a ring to touch itself).
+fn split_pinches(ring: &[(u32, u32)]) -> Vec<Vec<(u32, u32)>> {
+    let mut parts = Vec::new();
+    let mut path: Vec<(u32, u32)> = Vec::with_capacity(ring.len());
+    let mut at: HashMap<(u32, u32), usize> = HashMap::new();
+    for &v in &ring[..ring.len() - 1] {
+        if let Some(&k) = at.get(&v) {
+            let mut part: Vec<(u32, u32)> = path.drain(k..).collect();
+            for u in &part {
+                at.remove(u);
+            }
+            part.push(v);
+            parts.push(part);
+        }
+        at.insert(v, path.len());
+        path.push(v);
+    }
+    path.push(path[0]);
+    parts.push(path);
+    parts
 }
 
 /// Drops vertices where the ring goes straight on (keeping one every [`MAX_RUN`] pixels);
@@ -215,19 +243,45 @@ mod tests {
             3, 1, 1, 1, 3,
         ];
         let patches = vectorise(&v, 5, 5);
-        // Patches: the big ring of 1 (16 px), the 2s inside (3 px), the 2s on the right
+        // Patches: the big ring of 1 (17 px), the 2s inside (3 px), the 2s on the right
         // (2 px), the 3 inside (1 px), the two 3s in the corners (1 px each).
         let mut sizes: Vec<(u8, u64)> = patches.iter().map(|p| (p.value, p.pixels)).collect();
         sizes.sort();
-        assert_eq!(sizes, vec![(1, 16), (2, 2), (2, 3), (3, 1), (3, 1), (3, 1)]);
+        assert_eq!(sizes, vec![(1, 17), (2, 2), (2, 3), (3, 1), (3, 1), (3, 1)]);
         for p in &patches {
             assert_eq!(ring_pixels(p), p.pixels as i64, "{p:?}");
             for r in &p.rings {
                 assert_eq!(r.first(), r.last());
             }
         }
-        let big = patches.iter().find(|p| p.pixels == 16).unwrap();
+        let big = patches.iter().find(|p| p.pixels == 17).unwrap();
         assert_eq!(big.rings.len(), 3, "outer ring and holes for the 2s and the inner 3");
+    }
+
+    /// A hole that touches the outside at one corner: the ring would pass that corner
+    /// twice; it is split into an outer ring and a hole that touch there, as OGC simple
+    /// features require (checked with GDAL/shapely by tests/reference/check_landcover_polygons.py).
+    #[test]
+    fn a_ring_never_passes_a_vertex_twice() {
+        #[rustfmt::skip]
+        let v: Vec<u8> = vec![
+            1, 1, 1, 0,
+            1, 0, 1, 0,
+            1, 1, 0, 0,
+        ];
+        let patches = vectorise(&v, 4, 3);
+        assert_eq!(patches.len(), 1);
+        let p = &patches[0];
+        assert_eq!(p.pixels, 7);
+        assert_eq!(ring_pixels(p), 7);
+        assert_eq!(p.rings.len(), 2, "{p:?}");
+        for r in &p.rings {
+            let mut inner = r[..r.len() - 1].to_vec();
+            inner.sort_unstable();
+            inner.dedup();
+            assert_eq!(inner.len(), r.len() - 1, "a vertex repeats in {r:?}");
+        }
+        assert!(twice_area(&p.rings[0]) < 0 && twice_area(&p.rings[1]) > 0);
     }
 
     #[test]
