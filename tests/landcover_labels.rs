@@ -33,7 +33,19 @@ fn labels_name_and_merge_the_classes_of_the_valley() {
     let scene = d.join("valley.tif");
     write_scene_u16(&scene, w, h, &data, 10.0, &GEOKEYS, Some("0"));
     let out = d.join("classes");
-    let o = run(&["landcover", s(&scene), "-k", "5", "--index", "ndvi:3,4", "-o", s(&out)], &[]);
+    let o = run(
+        &[
+            "landcover",
+            s(&scene),
+            "-k",
+            "5",
+            "--index",
+            "ndvi:3,4",
+            "-o",
+            s(&out),
+        ],
+        &[],
+    );
     assert!(o.status.success(), "{}", stderr(&o));
     let classes_tif = out.join("valley.classes.tif");
     let (_, _, classes) = read_u8_tiff(&classes_tif);
@@ -60,18 +72,34 @@ fn labels_name_and_merge_the_classes_of_the_valley() {
     let labels = d.join("valley-labels.csv");
     std::fs::write(&labels, &csv).unwrap();
     let map = d.join("map");
-    let o = run(&["landcover-label", s(&classes_tif), "--labels", s(&labels), "-o", s(&map)], &[]);
+    let o = run(
+        &[
+            "landcover-label",
+            s(&classes_tif),
+            "--labels",
+            s(&labels),
+            "-o",
+            s(&map),
+        ],
+        &[],
+    );
     assert!(o.status.success(), "{}", stderr(&o));
     let (_, _, labelled) = read_u8_tiff(&map.join("valley.labelled.tif"));
     let doc = json(&map.join("valley.labels.json"));
     let list = doc["labels"].as_array().unwrap();
     assert_eq!(list.len(), 4, "five classes, two merged: {csv}");
     let number_of = |name: &str| {
-        list.iter().find(|l| l["name"] == name).unwrap()["number"].as_u64().unwrap() as u8
+        list.iter().find(|l| l["name"] == name).unwrap()["number"]
+            .as_u64()
+            .unwrap() as u8
     };
     // Every pixel carries its class's label; nodata stays 0.
     for p in 0..classes.len() {
-        let want = if classes[p] == 0 { 0 } else { number_of(expect_label[classes[p] as usize]) };
+        let want = if classes[p] == 0 {
+            0
+        } else {
+            number_of(expect_label[classes[p] as usize])
+        };
         assert_eq!(labelled[p], want, "pixel {p}");
     }
     // Against the scene's surfaces: ≥ 95 % of valid pixels carry their surface's label.
@@ -89,7 +117,10 @@ fn labels_name_and_merge_the_classes_of_the_valley() {
     assert!(hit as f64 >= 0.95 * valid as f64, "{hit} of {valid}");
     // Counts and areas (10 m pixels) per label; the file's colour is kept.
     for l in list {
-        let n = labelled.iter().filter(|&&v| v as u64 == l["number"].as_u64().unwrap()).count();
+        let n = labelled
+            .iter()
+            .filter(|&&v| v as u64 == l["number"].as_u64().unwrap())
+            .count();
         assert_eq!(l["pixels"].as_u64().unwrap(), n as u64);
         assert!((l["area_m2"].as_f64().unwrap() - n as f64 * 100.0).abs() < 1e-6);
     }
@@ -103,10 +134,23 @@ fn labels_name_and_merge_the_classes_of_the_valley() {
     // A class the file does not name is refused, naming both files.
     let short = d.join("short.csv");
     std::fs::write(&short, "class,label\n1,water\n").unwrap();
-    let o = run(&["landcover-label", s(&classes_tif), "--labels", s(&short), "-o", s(&d.join("x"))], &[]);
+    let o = run(
+        &[
+            "landcover-label",
+            s(&classes_tif),
+            "--labels",
+            s(&short),
+            "-o",
+            s(&d.join("x")),
+        ],
+        &[],
+    );
     let e = stderr(&o);
     assert_eq!(o.status.code(), Some(2), "{e}");
-    assert!(e.contains("valley.classes.tif") && e.contains("short.csv"), "{e}");
+    assert!(
+        e.contains("valley.classes.tif") && e.contains("short.csv"),
+        "{e}"
+    );
     assert!(!d.join("x").exists() || common::files_in(&d.join("x")).is_empty());
 }
 
@@ -152,11 +196,26 @@ fn minimum_mapping_unit_merges_specks_into_their_surroundings() {
     v[..w].iter_mut().for_each(|x| *x = 0);
     let mut expected = v.clone();
     // Specks of class 3 inside class 1 (1, 2 and 4 pixels): below 5 pixels, they go.
-    for &p in &[5 * w + 5, 10 * w + 8, 10 * w + 9, 20 * w + 3, 20 * w + 4, 21 * w + 3, 21 * w + 4] {
+    for &p in &[
+        5 * w + 5,
+        10 * w + 8,
+        10 * w + 9,
+        20 * w + 3,
+        20 * w + 4,
+        21 * w + 3,
+        21 * w + 4,
+    ] {
         v[p] = 3;
     }
     // A 6-pixel patch of class 3 inside class 2: kept.
-    for &p in &[8 * w + 30, 8 * w + 31, 8 * w + 32, 9 * w + 30, 9 * w + 31, 9 * w + 32] {
+    for &p in &[
+        8 * w + 30,
+        8 * w + 31,
+        8 * w + 32,
+        9 * w + 30,
+        9 * w + 31,
+        9 * w + 32,
+    ] {
         v[p] = 3;
         expected[p] = 3;
     }
@@ -166,41 +225,95 @@ fn minimum_mapping_unit_merges_specks_into_their_surroundings() {
     let classes = dir.path().join("specks.classes.tif");
     {
         let mut enc = TiffEncoder::new(std::fs::File::create(&classes).unwrap()).unwrap();
-        let mut img = enc.new_image::<colortype::Gray8>(w as u32, h as u32).unwrap();
-        img.encoder().write_tag(Tag::Unknown(33550), &[10.0f64, 10.0, 0.0][..]).unwrap();
-        img.encoder()
-            .write_tag(Tag::Unknown(33922), &[0.0f64, 0.0, 0.0, 500_000.0, 5_000_000.0, 0.0][..])
+        let mut img = enc
+            .new_image::<colortype::Gray8>(w as u32, h as u32)
             .unwrap();
-        img.encoder().write_tag(Tag::Unknown(34735), &GEOKEYS[..]).unwrap();
+        img.encoder()
+            .write_tag(Tag::Unknown(33550), &[10.0f64, 10.0, 0.0][..])
+            .unwrap();
+        img.encoder()
+            .write_tag(
+                Tag::Unknown(33922),
+                &[0.0f64, 0.0, 0.0, 500_000.0, 5_000_000.0, 0.0][..],
+            )
+            .unwrap();
+        img.encoder()
+            .write_tag(Tag::Unknown(34735), &GEOKEYS[..])
+            .unwrap();
         img.write_data(&v).unwrap();
     }
     let out = dir.path().join("map");
     // 0.05 ha = 500 m² = 5 pixels of 10 m × 10 m.
-    let o = run(&["landcover-label", s(&classes), "--min-unit", "0.05ha", "-o", s(&out)], &[]);
+    let o = run(
+        &[
+            "landcover-label",
+            s(&classes),
+            "--min-unit",
+            "0.05ha",
+            "-o",
+            s(&out),
+        ],
+        &[],
+    );
     assert!(o.status.success(), "{}", stderr(&o));
     let (_, _, got) = read_u8_tiff(&out.join("specks.labelled.tif"));
     assert_eq!(got, expected);
-    let small: Vec<_> = patches(&got, w, h).into_iter().filter(|&(_, n)| n < 5).collect();
+    let small: Vec<_> = patches(&got, w, h)
+        .into_iter()
+        .filter(|&(_, n)| n < 5)
+        .collect();
     assert!(small.is_empty(), "patches below the unit remain: {small:?}");
     let doc = json(&out.join("specks.labels.json"));
     assert_eq!(doc["min_unit_pixels"], 5);
     assert_eq!(doc["patches_merged"], 4);
     assert_eq!(doc["pixels_changed"], 9);
-    let by = |n: u64| doc["labels"].as_array().unwrap().iter().find(|l| l["number"] == n).unwrap().clone();
+    let by = |n: u64| {
+        doc["labels"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .find(|l| l["number"] == n)
+            .unwrap()
+            .clone()
+    };
     assert_eq!(by(3)["pixels_labelled"], 13);
     assert_eq!(by(3)["pixels"], 6);
     // In pixels, the same; without a projected CRS, m² and ha are refused.
     let out2 = dir.path().join("map2");
-    let o = run(&["landcover-label", s(&classes), "--min-unit", "5px", "-o", s(&out2)], &[]);
+    let o = run(
+        &[
+            "landcover-label",
+            s(&classes),
+            "--min-unit",
+            "5px",
+            "-o",
+            s(&out2),
+        ],
+        &[],
+    );
     assert!(o.status.success(), "{}", stderr(&o));
     assert_eq!(read_u8_tiff(&out2.join("specks.labelled.tif")).2, expected);
     let plain = dir.path().join("plain.classes.tif");
     {
         let mut enc = TiffEncoder::new(std::fs::File::create(&plain).unwrap()).unwrap();
-        enc.write_image::<colortype::Gray8>(w as u32, h as u32, &v).unwrap();
+        enc.write_image::<colortype::Gray8>(w as u32, h as u32, &v)
+            .unwrap();
     }
-    let o = run(&["landcover-label", s(&plain), "--min-unit", "0.05ha", "-o", s(&out2)], &[]);
+    let o = run(
+        &[
+            "landcover-label",
+            s(&plain),
+            "--min-unit",
+            "0.05ha",
+            "-o",
+            s(&out2),
+        ],
+        &[],
+    );
     let e = stderr(&o);
     assert_eq!(o.status.code(), Some(2), "{e}");
-    assert!(e.contains("plain.classes.tif") && e.contains("projected"), "{e}");
+    assert!(
+        e.contains("plain.classes.tif") && e.contains("projected"),
+        "{e}"
+    );
 }

@@ -225,7 +225,11 @@ pub struct LandcoverAssessArgs {
     /// How clusters get reference labels: hungarian (one label per cluster, most agreement;
     /// clusters left over take their majority label), majority, or same (class numbers
     /// are the labels already).
-    #[arg(long = "match", default_value = "hungarian", value_name = "hungarian|majority|same")]
+    #[arg(
+        long = "match",
+        default_value = "hungarian",
+        value_name = "hungarian|majority|same"
+    )]
     pub matching: landcover::Matching,
 
     /// Refuse rasters with more pixels than this (checked from the header).
@@ -243,9 +247,17 @@ pub(super) fn run_assess(args: &LandcoverAssessArgs) -> Result<ExitCode, Error> 
         (None, None) => unreachable!("clap requires one"),
     };
     let limits = Limits::with_max_pixels(args.max_pixels);
-    let (doc, _) =
-        landcover::assess_file(&args.classes, &reference, args.matching, &args.output.out, &limits)?;
-    let pct = |v: Option<f64>| v.map(|x| format!("{:.1} %", 100.0 * x)).unwrap_or("-".into());
+    let (doc, _) = landcover::assess_file(
+        &args.classes,
+        &reference,
+        args.matching,
+        &args.output.out,
+        &limits,
+    )?;
+    let pct = |v: Option<f64>| {
+        v.map(|x| format!("{:.1} %", 100.0 * x))
+            .unwrap_or("-".into())
+    };
     eprintln!(
         "chromasift: {}: {} reference units, overall accuracy {}, kappa {}",
         args.classes.display(),

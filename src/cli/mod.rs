@@ -13,11 +13,11 @@ pub use args::{
     parse_colour, ApplyArgs, BatchArgs, HistogramArgs, ImageFlags, LandcoverArgs, LearnArgs,
     PaletteFlags, ReduceArgs, SeparateArgs, SweepArgs,
 };
+pub use engine::{BandList, BetaFlag, EngineFlags, FolderOutput, LimitFlag, SceneFlags};
+pub use help::{flag_wording, manual_pages, suggest};
 pub use landcover::{
     LandcoverAssessArgs, LandcoverFitArgs, LandcoverLabelArgs, LandcoverSampleArgs,
 };
-pub use engine::{BandList, BetaFlag, EngineFlags, FolderOutput, LimitFlag, SceneFlags};
-pub use help::{flag_wording, manual_pages, suggest};
 pub use run::run;
 
 use clap::{Args, Parser, Subcommand};

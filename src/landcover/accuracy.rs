@@ -136,7 +136,13 @@ impl Confusion {
             }
         };
         // Within-stratum variance term of a proportion: x(1 − x)/(n_i. − 1).
-        let var_term = |x: f64, n: f64| if n > 1.0 { x * (1.0 - x) / (n - 1.0) } else { 0.0 };
+        let var_term = |x: f64, n: f64| {
+            if n > 1.0 {
+                x * (1.0 - x) / (n - 1.0)
+            } else {
+                0.0
+            }
+        };
         let share = |i: usize, j: usize| {
             if n_row[i] > 0.0 {
                 self.counts[i][j] as f64 / n_row[i]
@@ -300,7 +306,9 @@ mod tests {
     fn hungarian_equals_brute_force_on_small_tables() {
         let mut seed = 12345u64;
         let mut next = || {
-            seed = seed.wrapping_mul(6364136223846793005).wrapping_add(1442695040888963407);
+            seed = seed
+                .wrapping_mul(6364136223846793005)
+                .wrapping_add(1442695040888963407);
             (seed >> 33) % 50
         };
         for _ in 0..200 {

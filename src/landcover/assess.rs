@@ -44,7 +44,9 @@ impl std::str::FromStr for Matching {
             "hungarian" => Ok(Matching::Hungarian),
             "majority" => Ok(Matching::Majority),
             "same" => Ok(Matching::Same),
-            other => Err(format!("unknown matching '{other}' (use hungarian, majority or same)")),
+            other => Err(format!(
+                "unknown matching '{other}' (use hungarian, majority or same)"
+            )),
         }
     }
 }
@@ -147,12 +149,23 @@ fn affine(geo: &GeoTags) -> Option<[f64; 6]> {
         _ => None,
     };
     // GTRasterTypeGeoKey 1025: 2 = pixel is point (tie points at pixel centres).
-    let shift = if geo.geo_key(1025) == Some(2) { 0.5 } else { 0.0 };
+    let shift = if geo.geo_key(1025) == Some(2) {
+        0.5
+    } else {
+        0.0
+    };
     let t = if let (Some(s), Some(tp)) = (&geo.pixel_scale, &geo.tiepoint) {
         let (s, tp) = (reals(s)?, reals(tp)?);
         let (sx, sy) = (*s.first()?, *s.get(1)?);
         let (i, j, x, y) = (*tp.first()?, *tp.get(1)?, *tp.get(3)?, *tp.get(4)?);
-        [x - (i - shift) * sx, sx, 0.0, y + (j - shift) * sy, 0.0, -sy]
+        [
+            x - (i - shift) * sx,
+            sx,
+            0.0,
+            y + (j - shift) * sy,
+            0.0,
+            -sy,
+        ]
     } else {
         let m = reals(geo.transformation.as_ref()?)?;
         if m.len() != 16 {
@@ -203,7 +216,8 @@ fn tally_raster(classes: &Path, reference: &Path, limits: &Limits, t: &mut Tally
             ),
         });
     }
-    let same = |a: &Option<GeoTagValue>, b: &Option<GeoTagValue>| a.is_none() || b.is_none() || a == b;
+    let same =
+        |a: &Option<GeoTagValue>, b: &Option<GeoTagValue>| a.is_none() || b.is_none() || a == b;
     if !(same(&ci.geo.pixel_scale, &ri.geo.pixel_scale)
         && same(&ci.geo.tiepoint, &ri.geo.tiepoint)
         && same(&ci.geo.transformation, &ri.geo.transformation))
@@ -252,13 +266,24 @@ fn read_points(path: &Path, limits: &Limits) -> Result<Vec<(f64, f64, String)>> 
         line: Some(line),
         message,
     };
-    let mut lines = text.lines().enumerate().filter(|(_, l)| !l.trim().is_empty());
-    let (_, head) = lines.next().ok_or_else(|| table(1, "the table is empty".into()))?;
-    let cols: Vec<String> = head.split(',').map(|c| c.trim().to_ascii_lowercase()).collect();
+    let mut lines = text
+        .lines()
+        .enumerate()
+        .filter(|(_, l)| !l.trim().is_empty());
+    let (_, head) = lines
+        .next()
+        .ok_or_else(|| table(1, "the table is empty".into()))?;
+    let cols: Vec<String> = head
+        .split(',')
+        .map(|c| c.trim().to_ascii_lowercase())
+        .collect();
     let find = |n: &str| {
-        cols.iter()
-            .position(|c| c == n)
-            .ok_or_else(|| table(1, format!("no `{n}` column (the header needs x, y and label)")))
+        cols.iter().position(|c| c == n).ok_or_else(|| {
+            table(
+                1,
+                format!("no `{n}` column (the header needs x, y and label)"),
+            )
+        })
     };
     let (ix, iy, il) = (find("x")?, find("y")?, find("label")?);
     let mut out = Vec::new();
@@ -423,7 +448,10 @@ pub fn assess(
         Some(a) => ("m2", a),
         None => ("pixels", 1.0),
     };
-    let mapped_area: Vec<f64> = mapped_pixels.iter().map(|&n| n as f64 * per_pixel).collect();
+    let mapped_area: Vec<f64> = mapped_pixels
+        .iter()
+        .map(|&n| n as f64 * per_pixel)
+        .collect();
     let name = |p: &Path| super::sample::source_name(p);
     Ok(AssessmentDocument {
         tool_version: crate::TOOL_VERSION.into(),
@@ -449,7 +477,10 @@ pub fn assess(
 impl AssessmentDocument {
     /// Pretty JSON with a final newline.
     pub fn to_json(&self) -> String {
-        format!("{}\n", serde_json::to_string_pretty(self).expect("document serialises"))
+        format!(
+            "{}\n",
+            serde_json::to_string_pretty(self).expect("document serialises")
+        )
     }
 
     /// The confusion matrix as CSV: a header of reference labels, one row per map label
@@ -497,7 +528,10 @@ impl AssessmentDocument {
 pub fn assessment_names(classes: &Path) -> Result<[String; 2]> {
     let stem = crate::output::stem_of(classes)?;
     let stem = stem.strip_suffix(".classes").unwrap_or(&stem);
-    Ok([format!("{stem}.assessment.json"), format!("{stem}.confusion.csv")])
+    Ok([
+        format!("{stem}.assessment.json"),
+        format!("{stem}.confusion.csv"),
+    ])
 }
 
 /// Assesses and writes both outputs into `out_dir` (atomically).

@@ -164,7 +164,11 @@ pub(super) fn apply(
     for &c in &raster.values {
         let l = if c == 0 { 0 } else { set.of_class[c as usize] };
         if c != 0 && l == 0 {
-            let file = opts.labels.as_deref().map(super::sample::source_name).unwrap_or_default();
+            let file = opts
+                .labels
+                .as_deref()
+                .map(super::sample::source_name)
+                .unwrap_or_default();
             return Err(Error::InputData {
                 path: classes.into(),
                 message: format!("holds class {c}, which {file} gives no label"),
@@ -196,7 +200,10 @@ pub(super) fn apply(
     };
     let (mut merged, mut isolated, mut changed) = (0, 0, 0u64);
     if let Some(min) = min_pixels {
-        let mut wide: Vec<u16> = out.iter().map(|&l| if l == 0 { FIXED } else { l as u16 }).collect();
+        let mut wide: Vec<u16> = out
+            .iter()
+            .map(|&l| if l == 0 { FIXED } else { l as u16 })
+            .collect();
         let stats = merge_small_regions(&mut wide, raster.width, raster.height, min);
         merged = stats.merged;
         isolated = stats.kept_isolated;
@@ -240,7 +247,8 @@ pub(super) fn apply(
 impl LabelsDocument {
     /// The labels as CSV, one row per label.
     pub fn to_csv(&self) -> String {
-        let mut s = String::from("label,name,colour,classes,pixels_labelled,pixels,area_m2,hectares\n");
+        let mut s =
+            String::from("label,name,colour,classes,pixels_labelled,pixels,area_m2,hectares\n");
         let opt = |v: Option<f64>| v.map(|x| format!("{x:.4}")).unwrap_or_default();
         for l in &self.labels {
             let name = if l.label.name.contains([',', '"']) {
@@ -307,26 +315,47 @@ pub fn label_file(classes: &Path, out_dir: &Path, opts: &LabelOptions) -> Result
         let mut next = 0usize;
         out.write(&names[0], |wr| {
             let mut cursor = std::io::Cursor::new(Vec::new());
-            geotiff::write_u8_band(&mut cursor, w, h, &raster.geo, Some("0"), &mut |_y0, rows| {
-                let n = rows as usize * raster.width;
-                let part = labelled[next..next + n].to_vec();
-                next += n;
-                Ok(part)
-            })
+            geotiff::write_u8_band(
+                &mut cursor,
+                w,
+                h,
+                &raster.geo,
+                Some("0"),
+                &mut |_y0, rows| {
+                    let n = rows as usize * raster.width;
+                    let part = labelled[next..next + n].to_vec();
+                    next += n;
+                    Ok(part)
+                },
+            )
             .map_err(|e| std::io::Error::other(e.to_string()))?;
             std::io::Write::write_all(wr, &cursor.into_inner())
         })?;
         let (pw, ph, small) = shrink(&labelled, raster.width, raster.height);
         let (lw, lh, rgb) = labelled_preview(&small, pw, ph, &set);
-        out.write(&names[1], |wr| crate::raster::write_rgb_png(wr, lw as u32, lh as u32, &rgb))?;
-        out.write_bytes(&names[2], format!("{}\n", serde_json::to_string_pretty(&doc).expect("serialises")).as_bytes())?;
+        out.write(&names[1], |wr| {
+            crate::raster::write_rgb_png(wr, lw as u32, lh as u32, &rgb)
+        })?;
+        out.write_bytes(
+            &names[2],
+            format!(
+                "{}\n",
+                serde_json::to_string_pretty(&doc).expect("serialises")
+            )
+            .as_bytes(),
+        )?;
         out.write_bytes(&names[3], doc.to_csv().as_bytes())?;
         if opts.geojson || opts.geopackage {
             let unc = match &uncertainty {
                 Some(p) => Some(read_uncertainty(p, &raster, &opts.limits)?),
                 None => None,
             };
-            let (patches, attrs) = super::patch_out::patches_with_attributes(&raster, &labelled, &set, unc.as_deref());
+            let (patches, attrs) = super::patch_out::patches_with_attributes(
+                (raster.width, raster.height, &raster.geo),
+                &labelled,
+                &set,
+                unc.as_deref(),
+            );
             let grid = crate::raster::geotiff::GridCrs::from_tags(&raster.geo);
             let mut k = 4;
             if opts.geojson {
@@ -352,7 +381,8 @@ pub fn label_file(classes: &Path, out_dir: &Path, opts: &LabelOptions) -> Result
 fn read_uncertainty(path: &Path, classes: &ClassRaster, limits: &Limits) -> Result<Vec<f32>> {
     let mut r = GeoRaster::open(path, limits)?;
     let info = r.info().clone();
-    if (info.width as usize, info.height as usize, info.bands) != (classes.width, classes.height, 1) {
+    if (info.width as usize, info.height as usize, info.bands) != (classes.width, classes.height, 1)
+    {
         return Err(Error::InputData {
             path: path.into(),
             message: "is not a one-band raster on the class raster's grid".into(),

@@ -3,10 +3,7 @@
 
 use super::UNCERTAINTY_NODATA;
 use crate::cluster::{fit, soft_assign, Dataset, ValidParams};
-use super::model::LandcoverModel;
 use crate::error::Result;
-use crate::limits::Limits;
-use std::path::Path;
 use crate::features::scene::{Features, Scaler, SceneSample};
 use crate::raster::geotiff::{GeoRaster, RasterInfo};
 use rayon::prelude::*;
@@ -55,27 +52,6 @@ pub(super) struct Assigned {
 }
 
 impl FittedScene {
-    /// Opens `input` for a saved model: its classes come from the model (refused when
-    /// the raster does not match it). Its valid pixels are counted in pass 2.
-    pub(super) fn from_model(
-        input: &Path,
-        model: &LandcoverModel,
-        limits: &Limits,
-    ) -> Result<FittedScene> {
-        let raster = GeoRaster::open(input, limits)?;
-        let info = raster.info().clone();
-        let classes = model.classes_for(input, &info)?;
-        Ok(FittedScene {
-            raster,
-            total_pixels: info.width as u64 * info.height as u64,
-            info,
-            valid_pixels: 0,
-            sample_pixels: 0,
-            classes,
-            summary: None,
-        })
-    }
-
     /// Fits k-means on the scene's sample and numbers the classes; the sample is dropped.
     pub(super) fn fit(scene: SceneSample, params: &ValidParams) -> Result<FittedScene> {
         let dim = scene.dim;
@@ -196,13 +172,7 @@ impl FittedClasses {
         let ds = Dataset::new(&feat, dim, None).expect("finite features");
         let a = soft_assign(&ds, &self.means, self.beta);
         let classes = (0..n)
-            .map(|p| {
-                if ok[p] {
-                    (a.labels[p] + 1) as u8
-                } else {
-                    0
-                }
-            })
+            .map(|p| if ok[p] { (a.labels[p] + 1) as u8 } else { 0 })
             .collect();
         let uncertainty = (0..n)
             .map(|p| {

@@ -75,12 +75,22 @@ pub fn read_labels(path: &Path, limits: &Limits) -> Result<LabelSet> {
         .lines()
         .enumerate()
         .filter(|(_, l)| !l.trim().is_empty() && !l.trim_start().starts_with('#'));
-    let (_, head) = lines.next().ok_or_else(|| err(1, "the file is empty".into()))?;
-    let cols: Vec<String> = head.split(',').map(|c| c.trim().to_ascii_lowercase()).collect();
+    let (_, head) = lines
+        .next()
+        .ok_or_else(|| err(1, "the file is empty".into()))?;
+    let cols: Vec<String> = head
+        .split(',')
+        .map(|c| c.trim().to_ascii_lowercase())
+        .collect();
     let col = |n: &str| cols.iter().position(|c| c == n);
     let (ic, il) = match (col("class"), col("label")) {
         (Some(c), Some(l)) => (c, l),
-        _ => return Err(err(1, "the header needs `class` and `label` columns".into())),
+        _ => {
+            return Err(err(
+                1,
+                "the header needs `class` and `label` columns".into(),
+            ))
+        }
     };
     let icol = col("colour").or_else(|| col("color"));
     let mut labels: Vec<Label> = Vec::new();
@@ -158,7 +168,12 @@ const LINE: usize = 16;
 
 /// A preview (`labels` per pixel, 0 black) of `w × h` with a legend below: one line per
 /// label, a swatch and the label's number and name. RGB, at least 240 pixels wide.
-pub fn labelled_preview(labels: &[u8], w: usize, h: usize, set: &LabelSet) -> (usize, usize, Vec<u8>) {
+pub fn labelled_preview(
+    labels: &[u8],
+    w: usize,
+    h: usize,
+    set: &LabelSet,
+) -> (usize, usize, Vec<u8>) {
     let colours = set.colours();
     let width = w.max(240);
     let height = h + 6 + set.labels.len() * LINE;

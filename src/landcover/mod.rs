@@ -41,21 +41,21 @@ pub use accuracy::{
 pub use assess::{
     assess, assess_file, assessment_names, AssessmentDocument, ClusterLabel, Matching, Reference,
 };
-pub use finish::{label_file, label_names, LabelOptions, LabelReport, LabelsDocument, MinUnit};
-pub use polygons::{patch_ids, ring_pixels, vectorise, Patch};
-pub use vector_out::{geojson, gpkg_geometry, write_geopackage, PatchAttributes, GPKG_TABLE};
-pub use labels::{labelled_preview, read_labels, Label, LabelSet};
 pub use combine::{fit_model, read_list_file, FitModelOptions};
 pub use document::{classes_csv, ClassReport, ClassesDocument, FeatureStats};
+pub use finish::{label_file, label_names, LabelOptions, LabelReport, LabelsDocument, MinUnit};
+pub use labels::{labelled_preview, read_labels, Label, LabelSet};
 pub use model::{
     LandcoverModel, ModelClass, ModelSource, ScalingRecord, MODEL_FORMAT, MODEL_FORMAT_VERSION,
 };
+pub use polygons::{patch_ids, ring_pixels, vectorise, Patch};
+pub use preview::{class_colours, preview_with_legend};
 pub use sample::source_name as source_file_name;
 pub use sample::{
     read_sample_file, sample_scene, write_sample_file, SampleHeader, SampleOptions,
     SceneSampleData, SAMPLE_FORMAT_VERSION,
 };
-pub use preview::{class_colours, preview_with_legend};
+pub use vector_out::{geojson, gpkg_geometry, write_geopackage, PatchAttributes, GPKG_TABLE};
 
 use crate::cluster::{EngineOptions, KMeansParams};
 use crate::error::{ParamsError, Result};
@@ -186,7 +186,7 @@ pub fn landcover_with_model(
         limits: *limits,
     };
     let load = |mark: &dyn Fn(&str)| -> Result<FittedScene> {
-        let fitted = FittedScene::from_model(input, model, limits)?;
+        let fitted = model.open_for(input, limits)?;
         mark("pass 1 (statistics)");
         Ok(fitted)
     };

@@ -194,7 +194,10 @@ fn split_pinches(ring: &[(u32, u32)]) -> Vec<Vec<(u32, u32)>> {
 fn simplify(ring: &[(u32, u32)]) -> Vec<(u32, u32)> {
     let n = ring.len() - 1; // closed: last == first
     let dir = |a: (u32, u32), b: (u32, u32)| {
-        ((b.0 as i64 - a.0 as i64).signum(), (b.1 as i64 - a.1 as i64).signum())
+        (
+            (b.0 as i64 - a.0 as i64).signum(),
+            (b.1 as i64 - a.1 as i64).signum(),
+        )
     };
     // Start at a corner so the closing vertex is a real one.
     let start = (0..n)
@@ -255,7 +258,11 @@ mod tests {
             }
         }
         let big = patches.iter().find(|p| p.pixels == 17).unwrap();
-        assert_eq!(big.rings.len(), 3, "outer ring and holes for the 2s and the inner 3");
+        assert_eq!(
+            big.rings.len(),
+            3,
+            "outer ring and holes for the 2s and the inner 3"
+        );
     }
 
     /// A hole that touches the outside at one corner: the ring would pass that corner
@@ -291,7 +298,11 @@ mod tests {
         assert_eq!(patches.len(), 4);
         for p in &patches {
             assert_eq!(p.rings.len(), 1);
-            assert_eq!(p.rings[0].len(), 5, "a square: 4 corners and the closing vertex");
+            assert_eq!(
+                p.rings[0].len(),
+                5,
+                "a square: 4 corners and the closing vertex"
+            );
         }
     }
 }

@@ -22,7 +22,10 @@ pub struct PatchAttributes {
 }
 
 fn signed_area(ring: &[(f64, f64)]) -> f64 {
-    ring.windows(2).map(|s| s[0].0 * s[1].1 - s[1].0 * s[0].1).sum::<f64>() / 2.0
+    ring.windows(2)
+        .map(|s| s[0].0 * s[1].1 - s[1].0 * s[0].1)
+        .sum::<f64>()
+        / 2.0
 }
 
 /// The rings of a patch through `f`, outer ring counterclockwise and holes clockwise in the
@@ -82,7 +85,11 @@ pub fn geojson(
             .ok_or_else(|| refuse("a pixel corner has no longitude and latitude".into()))?;
         let coords: Vec<Vec<[f64; 2]>> = rings
             .iter()
-            .map(|r| r.iter().map(|&(lon, lat)| [round7(lon), round7(lat)]).collect())
+            .map(|r| {
+                r.iter()
+                    .map(|&(lon, lat)| [round7(lon), round7(lat)])
+                    .collect()
+            })
             .collect();
         features.push(json!({
             "type": "Feature",
@@ -96,7 +103,10 @@ pub fn geojson(
         }));
     }
     let doc = json!({ "type": "FeatureCollection", "features": features });
-    Ok(format!("{}\n", serde_json::to_string(&doc).expect("serialises")))
+    Ok(format!(
+        "{}\n",
+        serde_json::to_string(&doc).expect("serialises")
+    ))
 }
 
 /// Seven decimals of a degree: about a centimetre.
@@ -186,7 +196,13 @@ pub fn write_geopackage(
     if srs_id > 0 && srs_id != 4326 {
         tx.execute(
             "INSERT INTO gpkg_spatial_ref_sys VALUES (?1, ?2, ?3, ?4, 'undefined', ?5)",
-            rusqlite::params![name, srs_id, org, org_id, "definition: see the EPSG registry"],
+            rusqlite::params![
+                name,
+                srs_id,
+                org,
+                org_id,
+                "definition: see the EPSG registry"
+            ],
         )
         .map_err(sql)?;
     }

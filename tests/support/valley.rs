@@ -23,7 +23,16 @@ pub fn write_scene_u16(
     geokeys: &[u16],
     nodata: Option<&str>,
 ) {
-    write_scene_u16_at(path, w, h, bands4, pixel_m, (500_000.0, 5_000_000.0), geokeys, nodata);
+    write_scene_u16_at(
+        path,
+        w,
+        h,
+        bands4,
+        pixel_m,
+        (500_000.0, 5_000_000.0),
+        geokeys,
+        nodata,
+    );
 }
 
 /// A 4-band scene whose top-left corner is at `origin` (easting, northing) in UTM 33N.
@@ -163,4 +172,3 @@ pub fn read_f32_tiff(path: &Path) -> Vec<f32> {
     };
     v
 }
-
