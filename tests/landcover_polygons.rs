@@ -205,7 +205,7 @@ fn polygons_hold_the_rasters_areas_in_both_formats() {
         }
         *geodesic.entry(class).or_default() += total;
     }
-    for (&c, _) in &pixels {
+    for &c in pixels.keys() {
         let (g, a) = (geodesic[&c], attr[&c]);
         assert!(
             (g - a).abs() <= 1e-3 * a,

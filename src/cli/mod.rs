@@ -55,6 +55,8 @@ const LANDCOVER_EXAMPLES: &str = "\
 Examples:
   chromasift landcover scene.tif -k 6 -o classes/
   chromasift landcover scene.tif -k 8 --bands 2,3,4,8 --index ndvi:3,4 --nodata 0 --mode soft -o classes/
+  chromasift landcover scene.tif -k 6 --save-model scene.model.json -o classes/
+  chromasift landcover other-tile.tif --model scene.model.json -o classes/
 
 Writes STEM.classes.tif (class 1..K, 0 = nodata) and STEM.uncertainty.tif (0..1, -1 =
 nodata), both with the input's georeferencing, plus STEM.classes.png (preview and legend),

@@ -288,9 +288,8 @@ pub fn hungarian_max(table: &[Vec<u64>]) -> Vec<Option<usize>> {
         }
     }
     let mut out = vec![None; rows];
-    for j in 1..=n {
-        let i = p[j];
-        if i >= 1 && i <= rows && j <= cols {
+    for (j, &i) in p.iter().enumerate().skip(1) {
+        if (1..=rows).contains(&i) && j <= cols {
             out[i - 1] = Some(j - 1);
         }
     }

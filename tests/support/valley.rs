@@ -36,6 +36,7 @@ pub fn write_scene_u16(
 }
 
 /// A 4-band scene whose top-left corner is at `origin` (easting, northing) in UTM 33N.
+#[allow(clippy::too_many_arguments)]
 pub fn write_scene_u16_at(
     path: &Path,
     w: u32,
