@@ -5,7 +5,7 @@ use super::UNCERTAINTY_NODATA;
 use crate::cluster::{fit, soft_assign, Dataset, ValidParams};
 use crate::error::Result;
 use crate::features::scene::{Features, Scaler, SceneSample};
-use crate::raster::geotiff::{GeoRaster, RasterInfo};
+use crate::raster::geotiff::{GeoRaster, PixelAreas, RasterInfo};
 use rayon::prelude::*;
 
 /// What pass 1 and the fit hand to pass 2: the raster still to be read, its counts and the
@@ -19,6 +19,12 @@ pub(super) struct FittedScene {
     pub(super) total_pixels: u64,
     /// Pixels in the sample the classes were fitted on.
     pub(super) sample_pixels: usize,
+    /// Valid pixels with an undefined index.
+    pub(super) undefined_index_pixels: u64,
+    /// Each feature's band description (`None` for indices and bands without one).
+    pub(super) descriptions: Vec<Option<String>>,
+    /// Ground area of every pixel.
+    pub(super) areas: PixelAreas,
     pub(super) classes: FittedClasses,
 }
 
@@ -71,6 +77,8 @@ impl FittedScene {
         for (c, &j) in order.iter().enumerate() {
             class_of[j] = (c + 1) as u8;
         }
+        let descriptions = scene.feature_descriptions();
+        let areas = PixelAreas::new(&scene.info.geo, scene.info.width, scene.info.height);
         let classes = FittedClasses {
             feats: scene.feats,
             scaler: scene.scaler,
@@ -83,6 +91,9 @@ impl FittedScene {
             order,
         };
         Ok(FittedScene {
+            undefined_index_pixels: scene.undefined_index_pixels,
+            descriptions,
+            areas,
             raster: scene.raster,
             info: scene.info,
             valid_pixels: scene.valid_pixels,

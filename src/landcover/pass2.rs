@@ -36,13 +36,22 @@ pub(super) fn classify_scene(
     let fitted = &scene.classes;
     let mut stats = ClassStats::new(fitted.k, fitted.dim);
     let mut preview = PreviewGrid::for_scene(w, h);
+    let areas = &scene.areas;
+    let mut area_rows: Vec<f64> = Vec::new();
     let mut reader = RowReader::new(&mut scene.raster);
     // One strip: read, assign, sample the preview, add to the statistics.
     let mut strip = |y0: u32, rows: u32| -> Result<(Vec<u8>, Vec<f32>)> {
         let raw = reader.rows(y0, rows)?;
         let assigned = fitted.assign_rows(&raw);
         preview.take_rows(y0, rows, w, &assigned.classes);
-        stats.add_rows(fitted, &raw, &assigned, w as usize);
+        area_rows.clear();
+        if areas.is_known() {
+            area_rows.resize(rows as usize * w as usize, 0.0);
+            for (r, line) in area_rows.chunks_exact_mut(w as usize).enumerate() {
+                areas.row_into(y0 + r as u32, line);
+            }
+        }
+        stats.add_rows(fitted, &raw, &assigned, &area_rows, w as usize);
         Ok((assigned.classes, assigned.uncertainty))
     };
     let (tx, rx) = sync_channel::<Vec<f32>>(CHANNEL_STRIPS);

@@ -16,6 +16,7 @@ mod blocks;
 mod crs;
 mod decoder;
 mod mask;
+mod metadata;
 mod open;
 mod tags;
 mod tm;
@@ -27,6 +28,7 @@ pub use crs::{
     ellipsoid_by_code, ellipsoid_of_crs, geo_key_double, is_equal_area_epsg, Crs, Ellipsoid,
     GridCrs, PixelToModel,
 };
+pub use metadata::{parse_gdal_metadata, BandMetadata, TAG_GDAL_METADATA};
 pub use open::{GeoRaster, MAX_BANDS};
 pub use tags::{
     parse_nodata, read_geotags, GeoTagValue, GeoTags, TAG_GDAL_NODATA, TAG_GEO_ASCII_PARAMS,
