@@ -136,12 +136,16 @@ fn adjusted_rand(a: &[u8], b: &[u8]) -> f64 {
     (index - expected) / (0.5 * (sa + sb) - expected)
 }
 
+/// The class raster's values, through the project's reader (the `tiff` crate's own
+/// `read_image` does not decode palette images).
 fn read_u8_tiff(path: &Path) -> (u32, u32, Vec<u8>) {
-    let mut d = tiff::decoder::Decoder::new(std::fs::File::open(path).unwrap()).unwrap();
-    let (w, h) = d.dimensions().unwrap();
-    let tiff::decoder::DecodingResult::U8(v) = d.read_image().unwrap() else {
-        panic!("8-bit class raster expected")
-    };
+    let mut r = geotiff::GeoRaster::open(path, &chromasift::limits::Limits::default()).unwrap();
+    let (w, h) = (r.info().width, r.info().height);
+    assert_eq!(r.info().bands, 1);
+    let mut v = Vec::new();
+    for i in 0..r.block_count() {
+        v.extend(r.read_block(i).unwrap().data.iter().map(|&x| x as u8));
+    }
     (w, h, v)
 }
 

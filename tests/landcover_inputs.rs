@@ -201,3 +201,89 @@ fn undefined_index_is_a_missing_feature_not_nodata() {
     assert_eq!(doc["undefined_index_pixels"], e["undefined_ndvi_3_4"]);
     assert_eq!(doc["undefined_index_value"], 0.0);
 }
+
+/// The tags of the first image of a TIFF, read with the `tiff` crate's decoder.
+fn tags(path: &Path) -> (bool, u16, u16, Option<u16>, Option<Vec<u16>>) {
+    use tiff::tags::Tag;
+    let bytes = std::fs::read(path).unwrap();
+    let big = bytes[2] == 43 || bytes[3] == 43;
+    let mut d = tiff::decoder::Decoder::new(std::fs::File::open(path).unwrap()).unwrap();
+    let compression = d.get_tag_u32(Tag::Compression).unwrap() as u16;
+    let photometric = d.get_tag_u32(Tag::PhotometricInterpretation).unwrap() as u16;
+    let predictor = d.find_tag_unsigned::<u16>(Tag::Predictor).unwrap();
+    let map = d.find_tag_unsigned_vec::<u16>(Tag::ColorMap).unwrap();
+    (big, compression, photometric, predictor, map)
+}
+
+#[test]
+fn output_rasters_are_compressed_with_a_colour_table_and_bigtiff_when_large() {
+    for (env, big) in [(None, false), (Some("1000"), true)] {
+        let dir = tempfile::tempdir().unwrap();
+        let out = dir.path().join("out");
+        let input = gdal("scale_offset.tif");
+        let envs: Vec<(&str, &str)> = env
+            .map(|v| ("CHROMASIFT_BIGTIFF_ABOVE", v))
+            .into_iter()
+            .collect();
+        let o = run(
+            &[
+                "landcover",
+                input.to_str().unwrap(),
+                "-k",
+                "3",
+                "-o",
+                out.to_str().unwrap(),
+            ],
+            &envs,
+        );
+        assert!(o.status.success(), "{}", stderr(&o));
+        let doc: Value =
+            serde_json::from_slice(&std::fs::read(out.join("scale_offset.classes.json")).unwrap())
+                .unwrap();
+        // Class raster: TIFF 6.0 palette image (PhotometricInterpretation 3, ColorMap of
+        // 3 × 256 SHORTs scaled to 0..65535), Deflate (8, the code GDAL writes) with the
+        // horizontal predictor (2); BigTIFF (version 43) only past the size limit.
+        let (b, compression, photometric, predictor, map) =
+            tags(&out.join("scale_offset.classes.tif"));
+        assert_eq!(
+            (b, compression, photometric, predictor),
+            (big, 8, 3, Some(2))
+        );
+        let map = map.expect("a colour table");
+        assert_eq!(map.len(), 768);
+        assert_eq!(
+            (map[0], map[256], map[512]),
+            (0, 0, 0),
+            "class 0 (nodata) is black"
+        );
+        for c in doc["classes"].as_array().unwrap() {
+            let i = c["class"].as_u64().unwrap() as usize;
+            let hex = c["hex"].as_str().unwrap().trim_start_matches('#');
+            let rgb: Vec<u16> = (0..3)
+                .map(|k| u16::from_str_radix(&hex[2 * k..2 * k + 2], 16).unwrap() * 257)
+                .collect();
+            assert_eq!(vec![map[i], map[256 + i], map[512 + i]], rgb, "class {i}");
+        }
+        let (b, compression, photometric, predictor, _) =
+            tags(&out.join("scale_offset.uncertainty.tif"));
+        assert_eq!((b, compression, photometric), (big, 8, 1));
+        assert!(matches!(predictor, None | Some(1)));
+        // Both read back through the project's reader with the input's valid pixel count.
+        let mut r = chromasift::geotiff::GeoRaster::open(
+            &out.join("scale_offset.classes.tif"),
+            &chromasift::limits::Limits::default(),
+        )
+        .unwrap();
+        let mut classed = 0u64;
+        for i in 0..r.block_count() {
+            classed += r
+                .read_block(i)
+                .unwrap()
+                .data
+                .iter()
+                .filter(|&&v| v > 0.0)
+                .count() as u64;
+        }
+        assert_eq!(classed, doc["valid_pixels"].as_u64().unwrap());
+    }
+}

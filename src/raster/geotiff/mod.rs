@@ -22,6 +22,7 @@ mod tags;
 mod tm;
 mod types;
 mod write;
+mod write_deflate;
 
 pub use area::{footprint_area, AreaMethod, PixelAreas, LATTICE_STEP};
 pub use crs::{
@@ -37,7 +38,10 @@ pub use tags::{
 };
 pub use tm::TransverseMercator;
 pub use types::{Block, RasterInfo, SampleKind};
-pub use write::{write_f32_band, write_u8_band};
+pub use write::{
+    bigtiff_needed, write_f32_band, write_f32_band_with, write_u8_band, write_u8_band_with,
+    WriteOptions, BIGTIFF_ABOVE,
+};
 
 #[cfg(test)]
 mod tests;

@@ -232,8 +232,9 @@ fn open_tiff(path: &Path, limits: &Limits) -> Result<GeoRaster> {
         let compression: Option<u16> = decoder
             .find_tag_unsigned(Tag::Compression)
             .map_err(|e| tiff_error(path, e))?;
-        // RGB with extra bands (and not JPEG, whose decoder depends on the colour space).
-        if photometric == Some(2) && !matches!(compression, Some(6 | 7)) {
+        // RGB with extra bands (and not JPEG, whose decoder depends on the colour space), or
+        // a palette image, read as its index values (a class raster with a colour table).
+        if matches!(photometric, Some(2 | 3)) && !matches!(compression, Some(6 | 7)) {
             if let Some(patch) = photometric_patch(path) {
                 let patched = tiff_decoder(path, Some(patch), limits)?;
                 decoder = patched;
