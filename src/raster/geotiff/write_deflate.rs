@@ -4,27 +4,14 @@
 //! (TIFF 6.0 §14) for integer samples, and written with the directory encoder.
 
 use super::tags::GeoTags;
-use super::write::{colour_map, write_geo_tags, writer_error, WriteOptions, OUTPUT_NAME};
+use super::write_common::{
+    colour_map, write_geo_tags, writer_error, NativeBytes, WriteOptions, OUTPUT_NAME,
+};
 use crate::error::{Error, Result};
 use std::io::{Seek, Write};
 use tiff::encoder::colortype::ColorType;
 use tiff::encoder::{TiffEncoder, TiffKind};
 use tiff::tags::{SampleFormat, Tag};
-
-/// Bytes of one sample in native order (the order the `tiff` crate's header declares).
-pub(super) trait NativeBytes: Copy {
-    fn extend_bytes(self, out: &mut Vec<u8>);
-}
-impl NativeBytes for u8 {
-    fn extend_bytes(self, out: &mut Vec<u8>) {
-        out.push(self);
-    }
-}
-impl NativeBytes for f32 {
-    fn extend_bytes(self, out: &mut Vec<u8>) {
-        out.extend_from_slice(&self.to_ne_bytes());
-    }
-}
 
 #[allow(clippy::too_many_arguments)]
 pub(super) fn write_deflate<W, C, K>(
