@@ -287,3 +287,55 @@ fn output_rasters_are_compressed_with_a_colour_table_and_bigtiff_when_large() {
         assert_eq!(classed, doc["valid_pixels"].as_u64().unwrap());
     }
 }
+
+/// Writes a 96 × 96 four-band u16 TIFF of hash noise (no structure: k-means has many equal
+/// local optima on it).
+fn noise_scene(path: &Path) {
+    use tiff::encoder::{colortype, TiffEncoder};
+    let data: Vec<u16> = (0..96u64 * 96 * 4)
+        .map(|i| ((i.wrapping_mul(0x9E37_79B9_7F4A_7C15) >> 40) % 60_000) as u16)
+        .collect();
+    let mut enc = TiffEncoder::new(std::fs::File::create(path).unwrap()).unwrap();
+    enc.write_image::<colortype::RGBA16>(96, 96, &data).unwrap();
+}
+
+#[test]
+fn disagreeing_starts_are_reported() {
+    let dir = tempfile::tempdir().unwrap();
+    let scene = dir.path().join("noise.tif");
+    noise_scene(&scene);
+    let out = dir.path().join("out");
+    // Textbook k-means (no refinement) on structureless noise: a second start lands in a
+    // different partition (adjusted Rand index about 0.75 with this engine).
+    let o = run(
+        &[
+            "landcover",
+            scene.to_str().unwrap(),
+            "-k",
+            "4",
+            "--refine",
+            "none",
+            "-o",
+            out.to_str().unwrap(),
+        ],
+        &[],
+    );
+    assert!(o.status.success(), "{}", stderr(&o));
+    let doc: Value =
+        serde_json::from_slice(&std::fs::read(out.join("noise.classes.json")).unwrap()).unwrap();
+    let check = &doc["restart_check"];
+    assert_eq!(check["disagree"], true, "{check}");
+    assert!(check["ari"].as_f64().unwrap() < 0.8);
+    assert_eq!(doc["warnings"].as_array().unwrap().len(), 1);
+    let err = stderr(&o);
+    assert!(
+        err.lines()
+            .any(|l| l.starts_with("chromasift: warning:") && l.contains("--restarts")),
+        "{err}"
+    );
+    // A scene with clear classes: the two starts agree and nothing is said.
+    let (doc, err) = landcover("scale_offset.tif", &[]);
+    assert_eq!(doc["restart_check"]["disagree"], false);
+    assert!(doc["restart_check"]["ari"].as_f64().unwrap() >= 0.99);
+    assert!(!err.contains("warning"), "{err}");
+}

@@ -262,6 +262,13 @@ fn run_landcover(args: &super::LandcoverArgs) -> Result<ExitCode, Error> {
         d.sse,
         report.seconds
     );
+    for w in &d.warnings {
+        eprintln!(
+            "chromasift: warning: {}: {}",
+            args.input.display(),
+            flag_wording(w)
+        );
+    }
     eprintln!("chromasift: caution: {}", landcover::CAUTION);
     if args.rest.output.json {
         emit_json(d);

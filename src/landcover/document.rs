@@ -78,6 +78,10 @@ pub struct ClassesDocument {
     /// `projected-pixel-size-uncorrected`, `none`), and the CRS as read.
     pub area_method: String,
     pub crs: String,
+    /// A second start from another seed compared with the kept solution on the sample.
+    pub restart_check: Option<super::RestartCheck>,
+    /// Things the reader should know (for example that two starts disagree).
+    pub warnings: Vec<String>,
     /// Value of nodata pixels in the uncertainty raster.
     pub uncertainty_nodata: f32,
     pub classes: Vec<ClassReport>,
@@ -154,6 +158,8 @@ impl ClassesDocument {
             pixel_area_m2: pixel_area,
             area_method: scene.areas.method.name().into(),
             crs: scene.areas.note.clone(),
+            restart_check: scene.restart_check.clone(),
+            warnings: warnings(scene),
             uncertainty_nodata: UNCERTAINTY_NODATA,
             classes,
         }
@@ -164,6 +170,28 @@ impl ClassesDocument {
         let json = serde_json::to_string_pretty(self).expect("document serialises");
         format!("{json}\n")
     }
+}
+
+fn warnings(scene: &FittedScene) -> Vec<String> {
+    let mut w = Vec::new();
+    if let Some(c) = scene.restart_check.as_ref().filter(|c| c.disagree) {
+        w.push(format!(
+            "two starts of the fit disagree (adjusted Rand index {:.2} < {}; SSE {:.6e} kept, \
+             {:.6e} from seed {}): the split is not stable; try more `restarts` and compare",
+            c.ari,
+            super::RESTART_AGREEMENT_MIN,
+            c.sse,
+            c.sse_second,
+            c.seed
+        ));
+    }
+    if scene.areas.method == crate::raster::geotiff::AreaMethod::ProjectedPlane {
+        w.push(format!(
+            "areas are the projected pixel size of {}, which is not known to be equal-area",
+            scene.areas.note
+        ));
+    }
+    w
 }
 
 /// The report of class number `class` from its tally.

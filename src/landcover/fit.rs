@@ -25,6 +25,8 @@ pub(super) struct FittedScene {
     pub(super) descriptions: Vec<Option<String>>,
     /// Ground area of every pixel.
     pub(super) areas: PixelAreas,
+    /// The second start's comparison with the kept solution, when one was made.
+    pub(super) restart_check: Option<RestartCheck>,
     pub(super) classes: FittedClasses,
 }
 
@@ -59,12 +61,56 @@ pub(super) struct Assigned {
     pub(super) features: Vec<f32>,
 }
 
+/// Below this adjusted Rand index between the kept solution and a second start (Hubert &
+/// Arabie 1985; 1 = the same partition), the two starts are said to disagree. Our own
+/// choice: 0.8 separates "the same classes with a few boundary pixels moved" from a
+/// different split.
+pub const RESTART_AGREEMENT_MIN: f64 = 0.8;
+
+/// A second start of the fit from another seed, compared with the kept solution on the
+/// sample.
+#[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
+pub struct RestartCheck {
+    /// Seed of the second start.
+    pub seed: u64,
+    /// Adjusted Rand index between the two partitions of the sample.
+    pub ari: f64,
+    /// SSE of the kept solution and of the second start, on the sample.
+    pub sse: f64,
+    pub sse_second: f64,
+    /// True when `ari` < [`RESTART_AGREEMENT_MIN`].
+    pub disagree: bool,
+}
+
 impl FittedScene {
     /// Fits k-means on the scene's sample and numbers the classes; the sample is dropped.
-    pub(super) fn fit(scene: SceneSample, params: &ValidParams) -> Result<FittedScene> {
+    /// With `second` (the same settings with another seed, one start), a second start is
+    /// fitted and compared with the kept solution.
+    pub(super) fn fit(
+        scene: SceneSample,
+        params: &ValidParams,
+        second: Option<(u64, &ValidParams)>,
+    ) -> Result<FittedScene> {
         let dim = scene.dim;
         let data = Dataset::new(&scene.sample, dim, None)?;
         let model = fit(&data, params)?;
+        let restart_check = match second {
+            Some((seed, p)) if model.k() > 1 => {
+                let other = fit(&data, p)?;
+                let ari = crate::cluster::adjusted_rand_index(
+                    &model.predict(&data),
+                    &other.predict(&data),
+                );
+                Some(RestartCheck {
+                    seed,
+                    ari,
+                    sse: model.sse,
+                    sse_second: other.sse,
+                    disagree: ari < RESTART_AGREEMENT_MIN,
+                })
+            }
+            _ => None,
+        };
         let k = model.k();
         // Class numbers: largest share of the sample first.
         let mut counts = vec![0u64; k];
@@ -91,6 +137,7 @@ impl FittedScene {
             order,
         };
         Ok(FittedScene {
+            restart_check,
             undefined_index_pixels: scene.undefined_index_pixels,
             descriptions,
             areas,

@@ -26,6 +26,7 @@ pub use crate::features::scene::{
     normalised_difference, parse_bands, IndexSpec, Scale, SceneOptions,
 };
 pub use document::{classes_csv, ClassReport, ClassesDocument, FeatureStats};
+pub use fit::{RestartCheck, RESTART_AGREEMENT_MIN};
 pub use preview::{class_colours, preview_with_legend};
 
 use crate::cluster::{EngineOptions, KMeansParams};
@@ -126,11 +127,21 @@ pub fn landcover_file(
     let mark = |name: &str| phases.borrow_mut().mark(name);
     let params = opts.params().check()?;
     opts.check_k()?;
+    // A second start from another seed, compared with the kept solution (see
+    // `RestartCheck`).
+    let second_seed = opts.engine.seed ^ 0x5eed_0000_0000_0001;
+    let second = EngineOptions {
+        seed: second_seed,
+        restarts: 1,
+        ..opts.engine
+    }
+    .params(opts.k)
+    .check()?;
     let names = output_names(&crate::output::stem_of(input)?);
     let load = || -> Result<FittedScene> {
         let scene = scene_sample(input, &opts.scene, opts.engine.seed, &opts.limits, opts.k)?;
         mark("pass 1 (statistics, sample)");
-        let fitted = FittedScene::fit(scene, &params)?;
+        let fitted = FittedScene::fit(scene, &params, Some((second_seed, &second)))?;
         mark("fit");
         Ok(fitted)
     };
