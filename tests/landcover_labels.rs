@@ -126,6 +126,17 @@ fn labels_name_and_merge_the_classes_of_the_valley() {
     }
     let water = list.iter().find(|l| l["name"] == "water").unwrap();
     assert_eq!(water["colour"], "#2a6fb0");
+    // The raster's colour table (TIFF 6.0 ColorMap, 320: all reds, greens, blues, 16-bit)
+    // holds the water colour at the water label's number.
+    let mut dec =
+        tiff::decoder::Decoder::new(std::fs::File::open(map.join("valley.labelled.tif")).unwrap())
+            .unwrap();
+    let cmap = dec.get_tag_u16_vec(Tag::ColorMap).unwrap();
+    let n = water["number"].as_u64().unwrap() as usize;
+    assert_eq!(
+        [cmap[n] / 257, cmap[256 + n] / 257, cmap[512 + n] / 257],
+        [0x2a, 0x6f, 0xb0]
+    );
     // The labelled raster keeps the class raster's georeferencing.
     let a = chromasift::geotiff::read_geotags(&classes_tif).unwrap();
     let b = chromasift::geotiff::read_geotags(&map.join("valley.labelled.tif")).unwrap();

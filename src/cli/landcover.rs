@@ -189,6 +189,13 @@ pub(super) fn run_landcover(args: &super::LandcoverArgs) -> Result<ExitCode, Err
         d.sse,
         report.seconds
     );
+    for w in &d.warnings {
+        eprintln!(
+            "chromasift: warning: {}: {}",
+            args.input.display(),
+            super::help::flag_wording(w)
+        );
+    }
     eprintln!("chromasift: caution: {}", landcover::CAUTION);
     if args.rest.output.json {
         emit_json(d);

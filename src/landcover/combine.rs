@@ -224,7 +224,7 @@ pub fn fit_model(inputs: &[PathBuf], opts: &FitModelOptions) -> Result<Landcover
     rows.par_chunks_mut(dim).for_each(|r| scaler.apply(r));
     let feats = features_of(&first);
     let (classes, summary) =
-        FittedClasses::fit(&rows, dim, feats, scaler, first.raster_bands, &params)?;
+        FittedClasses::fit(&rows, dim, feats, scaler, first.raster_bands, &params, None)?;
     Ok(LandcoverModel::build(
         &classes,
         &summary,
@@ -238,7 +238,7 @@ pub fn fit_model(inputs: &[PathBuf], opts: &FitModelOptions) -> Result<Landcover
 /// The features a sample header describes (nodata as set; each raster applies its own).
 fn features_of(h: &SampleHeader) -> Features {
     let indices: Vec<IndexSpec> = h.indices.iter().filter_map(|s| s.parse().ok()).collect();
-    Features::new(&h.bands, &indices, h.nodata_setting)
+    Features::new(&h.bands, &indices, h.nodata_setting, Vec::new())
 }
 
 /// Keeps exactly `keep` of the rows (all when there are no more), chosen by a seeded hash

@@ -315,12 +315,21 @@ pub fn label_file(classes: &Path, out_dir: &Path, opts: &LabelOptions) -> Result
         let mut next = 0usize;
         out.write(&names[0], |wr| {
             let mut cursor = std::io::Cursor::new(Vec::new());
-            geotiff::write_u8_band(
+            // The labels' colours as the raster's colour table (0, nodata, black).
+            let mut colours = vec![[0u8; 3]];
+            colours.extend(set.colours());
+            let wopts = geotiff::WriteOptions {
+                big: geotiff::bigtiff_needed(w, h, 1, geotiff::BIGTIFF_ABOVE),
+                deflate: true,
+                colour_map: Some(colours),
+            };
+            geotiff::write_u8_band_with(
                 &mut cursor,
                 w,
                 h,
                 &raster.geo,
                 Some("0"),
+                &wopts,
                 &mut |_y0, rows| {
                     let n = rows as usize * raster.width;
                     let part = labelled[next..next + n].to_vec();

@@ -44,6 +44,7 @@ pub use assess::{
 pub use combine::{fit_model, read_list_file, FitModelOptions};
 pub use document::{classes_csv, ClassReport, ClassesDocument, FeatureStats};
 pub use finish::{label_file, label_names, LabelOptions, LabelReport, LabelsDocument, MinUnit};
+pub use fit::{RestartCheck, RESTART_AGREEMENT_MIN};
 pub use labels::{labelled_preview, read_labels, Label, LabelSet};
 pub use model::{
     LandcoverModel, ModelClass, ModelSource, ScalingRecord, MODEL_FORMAT, MODEL_FORMAT_VERSION,
@@ -155,11 +156,21 @@ pub fn landcover_file(
 ) -> Result<LandcoverReport> {
     let params = opts.params().check()?;
     opts.check_k()?;
+    // A second start from another seed, compared with the kept solution (see
+    // `RestartCheck`).
+    let second_seed = opts.engine.seed ^ 0x5eed_0000_0000_0001;
+    let second = EngineOptions {
+        seed: second_seed,
+        restarts: 1,
+        ..opts.engine
+    }
+    .params(opts.k)
+    .check()?;
     let mut model = None;
     let load = |mark: &dyn Fn(&str)| -> Result<FittedScene> {
         let scene = scene_sample(input, &opts.scene, opts.engine.seed, &opts.limits, opts.k)?;
         mark("pass 1 (statistics, sample)");
-        let fitted = FittedScene::fit(scene, &params)?;
+        let fitted = FittedScene::fit(scene, &params, Some((second_seed, &second)))?;
         mark("fit");
         model = Some(model_of_scene(input, opts, &fitted));
         Ok(fitted)

@@ -8,8 +8,8 @@ use crate::cluster::EngineOptions;
 use crate::error::{Error, Result};
 use crate::features::scene::{check_options, IndexSpec, Scale, Scaler, SceneOptions};
 use crate::limits::Limits;
-use crate::raster::geotiff::GeoRaster;
 use crate::raster::geotiff::RasterInfo;
+use crate::raster::geotiff::{GeoRaster, PixelAreas};
 use serde::{Deserialize, Serialize};
 use std::path::Path;
 
@@ -95,12 +95,18 @@ impl LandcoverModel {
         let raster = GeoRaster::open(input, limits)?;
         let info = raster.info().clone();
         let classes = self.classes_for(input, &info)?;
+        let descriptions = classes.features().descriptions(&info);
+        let areas = PixelAreas::new(&info.geo, info.width, info.height);
         Ok(FittedScene {
             raster,
             total_pixels: info.width as u64 * info.height as u64,
             info,
             valid_pixels: 0,
             sample_pixels: 0,
+            undefined_index_pixels: 0,
+            descriptions,
+            areas,
+            restart_check: None,
             classes,
             summary: None,
         })
@@ -251,6 +257,7 @@ impl LandcoverModel {
             scale: self.scale,
             nodata: self.nodata,
             sample: self.sample,
+            ..SceneOptions::default()
         }
     }
 
@@ -274,6 +281,14 @@ impl LandcoverModel {
                 info.sample.name(),
                 self.sample_type
             )));
+        }
+        let described = super::sample::band_descriptions(info);
+        if let (Some(m), Some(r)) = (&self.band_descriptions, &described) {
+            if m != r {
+                return Err(refuse(format!(
+                    "its band descriptions are {r:?}, the model's are {m:?}"
+                )));
+            }
         }
         let feats = check_options(&self.scene_options(), info, raster)?;
         let names: Vec<String> = feats.names.clone();

@@ -95,7 +95,7 @@ impl SampleHeader {
             height: info.height,
             raster_bands: info.bands,
             sample_type: info.sample.name().to_string(),
-            band_descriptions: None,
+            band_descriptions: band_descriptions(info),
             bands: feats.bands.iter().map(|b| b + 1).collect(),
             indices: opts.indices.iter().map(IndexSpec::name).collect(),
             features: feats.names.clone(),
@@ -214,6 +214,16 @@ impl SceneSampleData {
             moments,
         })
     }
+}
+
+/// The raster's band descriptions (GDAL_METADATA), when it has any ("" for a band without).
+pub(super) fn band_descriptions(info: &RasterInfo) -> Option<Vec<String>> {
+    info.descriptions.iter().any(Option::is_some).then(|| {
+        info.descriptions
+            .iter()
+            .map(|d| d.clone().unwrap_or_default())
+            .collect()
+    })
 }
 
 /// True when `bytes` start like a sample file.

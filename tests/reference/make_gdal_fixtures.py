@@ -39,6 +39,11 @@ zstd_20band.tif
 scale_offset.tif
     4 x u16 with SCALE 0.0001 / OFFSET -0.1 on every band (reflectance), band
     descriptions "blue", "green", "red", "nir", nodata 0.
+undefined_ndvi.tif
+    4 x u16, bands 3 and 4 both 0 on an 8 x 8 block, no nodata: NDVI (3, 4) undefined there.
+webmercator_scene.tif / geographic_scene.tif
+    4 x u16 in EPSG 3857 (10 m pixels at 47.8 N) and EPSG 4326 (0.0001 degree pixels), with
+    the geodesic area of the whole footprint from pyproj.Geod.
 clouds_same_grid.tif / clouds_other_grid.tif
     1 x u8 cloud masks (1 = cloud) for scale_offset.tif: one on its grid, one shifted by
     half a pixel.
@@ -211,6 +216,44 @@ def main():
     s, ws = sums(data, cvalid, scales, offsets)
     entries.append({"file": "scale_offset.tif + clouds_same_grid.tif", "valid": int(cvalid.sum()),
                     "sums": s, "wsums": ws})
+
+    # Red and NIR both 0 on an 8 x 8 block (no nodata set): NDVI undefined there.
+    data = base()
+    data[2:4, 0:8, 0:8] = 0
+    name = "undefined_ndvi.tif"
+    with rasterio.open(os.path.join(OUT, name), "w", **profile(4, compress="deflate")) as d:
+        d.write(data)
+    red, nir = data[2].astype(float), data[3].astype(float)
+    record(entries, name, data, np.ones((H, W), bool), {},
+           undefined_ndvi_3_4=int(((red + nir) == 0).sum()))
+
+    # Scenes in Web Mercator and geographic coordinates, with the geodesic area of their whole
+    # footprint (pyproj.Geod on WGS 84, i.e. GeographicLib, Karney 2013; each side split into
+    # 256 pieces along the grid's own edges).
+    import math
+    import pyproj
+    geod = pyproj.Geod(ellps="WGS84")
+    merc_y = 6378137.0 * math.log(math.tan(math.pi / 4 + math.radians(47.8) / 2))
+    for name, crs, t in [
+        ("webmercator_scene.tif", CRS.from_epsg(3857),
+         Affine(10.0, 0.0, 1_300_000.0, 0.0, -10.0, merc_y)),
+        ("geographic_scene.tif", CRS.from_epsg(4326),
+         Affine(0.0001, 0.0, 11.0, 0.0, -0.0001, 47.81)),
+    ]:
+        data = base()
+        with rasterio.open(os.path.join(OUT, name), "w",
+                           **profile(4, crs=crs, transform=t, compress="deflate")) as d:
+            d.write(data)
+        to_ll = pyproj.Transformer.from_crs(crs, "EPSG:4326", always_xy=True)
+        ring = []
+        for (c0, r0), (c1, r1) in [((0, 0), (W, 0)), ((W, 0), (W, H)), ((W, H), (0, H)),
+                                   ((0, H), (0, 0))]:
+            for k in range(256):
+                f = k / 256
+                ring.append(to_ll.transform(*(t * (c0 + (c1 - c0) * f, r0 + (r1 - r0) * f))))
+        area, _ = geod.polygon_area_perimeter([p[0] for p in ring], [p[1] for p in ring])
+        record(entries, name, data, np.ones((H, W), bool), {"crs": crs.to_string()},
+               footprint_area_m2=abs(area))
 
     meta = {"gdal": rasterio.__gdal_version__, "rasterio": rasterio.__version__,
             "numpy": np.__version__, "weight": "1 + (31*y + 17*x) % 101", "files": entries}

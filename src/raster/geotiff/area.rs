@@ -122,7 +122,10 @@ impl PixelAreas {
             }
             Crs::Unknown { .. } => none(note),
             Crs::Geographic { .. } | Crs::WebMercator { .. } | Crs::TransverseMercator { .. } => {
-                let e = grid.crs.ellipsoid().unwrap_or(super::crs::Ellipsoid::WGS84);
+                let e = grid
+                    .crs
+                    .ellipsoid()
+                    .unwrap_or(super::ellipsoid::Ellipsoid::WGS84);
                 let geodesic = Geodesic::new(e.a, e.f);
                 let per_row =
                     t.is_north_up() && !matches!(grid.crs, Crs::TransverseMercator { .. });

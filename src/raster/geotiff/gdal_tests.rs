@@ -121,10 +121,21 @@ fn zstd_with_twenty_bands() {
 
 #[test]
 fn scale_offset_file_reads_raw_values() {
-    // Raw stored values; scale and offset are applied by the features (see `scale` below).
+    // Raw stored values; scale and offset are carried in the info for the features.
     let mut r = GeoRaster::open(&dir().join("scale_offset.tif"), &Limits::default()).unwrap();
     let b = r.read_block(0).unwrap();
     assert_eq!(b.data[0], 0.0, "nodata stays as stored");
+    let e = expected("scale_offset.tif");
+    let info = r.info();
+    for k in 0..4 {
+        let (s, o) = info.scale_offset[k];
+        assert_eq!(s, e["scales"][k].as_f64().unwrap());
+        assert_eq!(o, e["offsets"][k].as_f64().unwrap());
+        assert_eq!(
+            info.descriptions[k].as_deref(),
+            e["descriptions"][k].as_str()
+        );
+    }
 }
 
 #[test]

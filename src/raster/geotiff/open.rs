@@ -8,6 +8,7 @@ use super::decoder::{
     tiff_error, unsupported,
 };
 use super::mask::{ifd_chain, one_bytes, MaskSource};
+use super::metadata::read_gdal_metadata;
 use super::tags::{read_geo, read_nodata, GeoTags};
 use super::types::{Block, RasterInfo, SampleKind};
 use crate::error::{Error, Result};
@@ -231,8 +232,9 @@ fn open_tiff(path: &Path, limits: &Limits) -> Result<GeoRaster> {
         let compression: Option<u16> = decoder
             .find_tag_unsigned(Tag::Compression)
             .map_err(|e| tiff_error(path, e))?;
-        // RGB with extra bands (and not JPEG, whose decoder depends on the colour space).
-        if photometric == Some(2) && !matches!(compression, Some(6 | 7)) {
+        // RGB with extra bands (and not JPEG, whose decoder depends on the colour space), or
+        // a palette image, read as its index values (a class raster with a colour table).
+        if matches!(photometric, Some(2 | 3)) && !matches!(compression, Some(6 | 7)) {
             if let Some(patch) = photometric_patch(path) {
                 let patched = tiff_decoder(path, Some(patch), limits)?;
                 decoder = patched;
@@ -387,6 +389,11 @@ fn open_tiff(path: &Path, limits: &Limits) -> Result<GeoRaster> {
         .map_err(|e| tiff_error(path, e))?;
     let chunks: Vec<(u64, u64)> = offsets.into_iter().zip(counts).collect();
     let sparse_chunks = chunks.iter().filter(|c| c.0 == 0 || c.1 == 0).count();
+    let mut meta = read_gdal_metadata(&mut decoder, path, bands)?;
+    if let Some(a) = alpha {
+        meta.scale_offset.remove(a);
+        meta.descriptions.remove(a);
+    }
     let mask = MaskSource::find(path, width, height, limits)?;
     let mask_origin = mask.as_ref().map(|m| m.origin.clone());
     Ok(GeoRaster {
@@ -404,6 +411,8 @@ fn open_tiff(path: &Path, limits: &Limits) -> Result<GeoRaster> {
             mask: mask_origin,
             sparse_chunks,
             excluded_by: None,
+            scale_offset: meta.scale_offset,
+            descriptions: meta.descriptions,
         },
         source: Source::Tiff(Box::new(TiffSource {
             decoder,
@@ -463,6 +472,8 @@ fn open_image(path: &Path, limits: &Limits) -> Result<GeoRaster> {
             mask: None,
             sparse_chunks: 0,
             excluded_by: None,
+            scale_offset: vec![(1.0, 0.0); 3],
+            descriptions: vec![None; 3],
         },
         source: Source::Image(d),
         exclusion: None,

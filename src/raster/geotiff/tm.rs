@@ -6,7 +6,7 @@
 //! eqs. 7–9) rather than by a further series. The forward series, used only for the northing
 //! of a latitude of origin other than the equator, is taken to n³ (sub-millimetre).
 
-use super::crs::Ellipsoid;
+use super::ellipsoid::Ellipsoid;
 
 /// A transverse Mercator projection: ellipsoid, central meridian, latitude of origin, scale on
 /// the central meridian, false easting and northing.

@@ -91,6 +91,11 @@ pub struct RasterInfo {
     /// A raster on the same grid whose non-zero pixels are left out (see
     /// `GeoRaster::exclude_where`).
     pub excluded_by: Option<std::path::PathBuf>,
+    /// Per band (alpha left out): physical value = stored × scale + offset, from
+    /// GDAL_METADATA ((1, 0) when not given). No-data values compare with stored values.
+    pub scale_offset: Vec<(f64, f64)>,
+    /// Per band (alpha left out): the band's description from GDAL_METADATA.
+    pub descriptions: Vec<Option<String>>,
 }
 
 impl RasterInfo {
