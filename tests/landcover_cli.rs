@@ -136,12 +136,16 @@ fn adjusted_rand(a: &[u8], b: &[u8]) -> f64 {
     (index - expected) / (0.5 * (sa + sb) - expected)
 }
 
+/// The class raster's values, through the project's reader (the `tiff` crate's own
+/// `read_image` does not decode palette images).
 fn read_u8_tiff(path: &Path) -> (u32, u32, Vec<u8>) {
-    let mut d = tiff::decoder::Decoder::new(std::fs::File::open(path).unwrap()).unwrap();
-    let (w, h) = d.dimensions().unwrap();
-    let tiff::decoder::DecodingResult::U8(v) = d.read_image().unwrap() else {
-        panic!("8-bit class raster expected")
-    };
+    let mut r = geotiff::GeoRaster::open(path, &chromasift::limits::Limits::default()).unwrap();
+    let (w, h) = (r.info().width, r.info().height);
+    assert_eq!(r.info().bands, 1);
+    let mut v = Vec::new();
+    for i in 0..r.block_count() {
+        v.extend(r.read_block(i).unwrap().data.iter().map(|&x| x as u8));
+    }
     (w, h, v)
 }
 
@@ -218,20 +222,23 @@ fn river_valley_is_recovered_and_stays_on_the_map() {
         geo_in
     );
 
-    // Areas: 10 m pixels are 100 m² each; 1 ha = 10 000 m².
+    // Areas: 10 m UTM pixels on the central meridian, where the UTM scale factor is 0.9996
+    // (the UTM definition), cover 100 / 0.9996² m² of ground; 1 ha = 10 000 m².
     let doc: Value =
         serde_json::from_slice(&std::fs::read(out.join("valley.classes.json")).unwrap()).unwrap();
-    assert_eq!(doc["pixel_area_m2"].as_f64().unwrap(), 100.0);
+    assert_eq!(doc["area_method"], "ellipsoid-geodesic-lattice");
+    let ground = 100.0 / (0.9996f64 * 0.9996);
     assert_eq!(doc["nodata_pixels"].as_u64().unwrap(), 6 * 120);
     let mut total = 0;
     for cl in doc["classes"].as_array().unwrap() {
         let px = cl["pixels"].as_u64().unwrap();
         total += px;
-        assert_eq!(cl["area_m2"].as_f64().unwrap(), px as f64 * 100.0);
-        assert_eq!(
-            cl["hectares"].as_f64().unwrap(),
-            px as f64 * 100.0 / 10_000.0
+        let area = cl["area_m2"].as_f64().unwrap();
+        assert!(
+            (area - px as f64 * ground).abs() < 1e-6 * area,
+            "{area} m² for {px} px"
         );
+        assert!((cl["hectares"].as_f64().unwrap() - area / 10_000.0).abs() < 1e-9 * area);
         let n = classes
             .iter()
             .filter(|&&v| v as u64 == cl["class"].as_u64().unwrap())

@@ -11,7 +11,9 @@ mod valley;
 
 use common::{run, stderr};
 use std::path::{Path, PathBuf};
-use valley::{adjusted_rand, read_f32_tiff, read_u8_tiff, river_valley, write_scene_u16_at, GEOKEYS};
+use valley::{
+    adjusted_rand, read_f32_tiff, read_u8_tiff, river_valley, write_scene_u16_at, GEOKEYS,
+};
 
 const W: u32 = 160;
 const H: u32 = 120;
@@ -43,7 +45,16 @@ fn tiles(dir: &Path, cuts: &[u32]) -> (Vec<u8>, PathBuf, Vec<PathBuf>) {
         let p = dir.join(format!("t{}.tif", i + 1));
         let part = crop(&data, W, pair[0], pair[1]);
         let o = (origin.0 + pair[0] as f64 * PIXEL_M, origin.1);
-        write_scene_u16_at(&p, pair[1] - pair[0], H, &part, PIXEL_M, o, &GEOKEYS, Some("0"));
+        write_scene_u16_at(
+            &p,
+            pair[1] - pair[0],
+            H,
+            &part,
+            PIXEL_M,
+            o,
+            &GEOKEYS,
+            Some("0"),
+        );
         paths.push(p);
     }
     (truth, whole, paths)
@@ -80,13 +91,24 @@ fn one_model_gives_the_same_class_numbers_on_both_sides_of_a_seam() {
     let model = d.join("valley.model.json");
     ok(
         &[
-            "landcover-fit", s(&t[0]), s(&t[1]), "-k", "5", "--index", "ndvi:3,4", "-o", s(&model),
+            "landcover-fit",
+            s(&t[0]),
+            s(&t[1]),
+            "-k",
+            "5",
+            "--index",
+            "ndvi:3,4",
+            "-o",
+            s(&model),
         ],
         &[],
     );
     let out = d.join("out");
     for input in [&t[0], &t[1], &whole] {
-        ok(&["landcover", s(input), "--model", s(&model), "-o", s(&out)], &[]);
+        ok(
+            &["landcover", s(input), "--model", s(&model), "-o", s(&out)],
+            &[],
+        );
     }
     let (_, _, left) = read_u8_tiff(&out.join("t1.classes.tif"));
     let (_, _, right) = read_u8_tiff(&out.join("t2.classes.tif"));
@@ -114,15 +136,24 @@ fn one_model_gives_the_same_class_numbers_on_both_sides_of_a_seam() {
     let mut across = 0;
     for y in 0..H as i64 {
         let (a, b) = (seam as i64 - 1, seam as i64);
-        let (ta, tb) = (truth[(y * W as i64 + a) as usize], truth[(y * W as i64 + b) as usize]);
+        let (ta, tb) = (
+            truth[(y * W as i64 + a) as usize],
+            truth[(y * W as i64 + b) as usize],
+        );
         if ta == tb && pure(a, y) && pure(b, y) {
             across += 1;
             let ca = left[y as usize * wl + wl - 1];
             let cb = right[y as usize * wr];
-            assert_eq!(ca, cb, "row {y}: class {ca} left of the seam, {cb} right of it");
+            assert_eq!(
+                ca, cb,
+                "row {y}: class {ca} left of the seam, {cb} right of it"
+            );
         }
     }
-    assert!(across >= 60, "the seam crosses surfaces on {across} rows only");
+    assert!(
+        across >= 60,
+        "the seam crosses surfaces on {across} rows only"
+    );
     // Each surface present in both tiles has one class number in both (majority).
     let majority = |classes: &[u8], width: usize, x0: usize, surface: u8| {
         let mut n = [0usize; 256];
@@ -142,7 +173,10 @@ fn one_model_gives_the_same_class_numbers_on_both_sides_of_a_seam() {
         let (nr, cr) = majority(&right, wr, wl, surface);
         if nl >= 50 && nr >= 50 {
             shared += 1;
-            assert_eq!(cl, cr, "surface {surface}: class {cl} in tile 1, {cr} in tile 2");
+            assert_eq!(
+                cl, cr,
+                "surface {surface}: class {cl} in tile 1, {cr} in tile 2"
+            );
         }
     }
     assert!(shared >= 2, "only {shared} surfaces span both tiles");
@@ -188,11 +222,21 @@ fn samples_fitted_together_equal_one_fit_on_the_rasters() {
         let mut a = vec!["landcover-fit", "--list", s(&list), "-o", s(&from_samples)];
         a.extend_from_slice(&fit);
         ok(&a, &[("RAYON_NUM_THREADS", "1")]);
-        let mut b = vec!["landcover-fit", s(&t[0]), s(&t[1]), s(&t[2]), "-o", s(&from_rasters)];
+        let mut b = vec![
+            "landcover-fit",
+            s(&t[0]),
+            s(&t[1]),
+            s(&t[2]),
+            "-o",
+            s(&from_rasters),
+        ];
         b.extend_from_slice(&fit);
         b.extend_from_slice(&scene);
         ok(&b, &[("RAYON_NUM_THREADS", "2")]);
-        let (ma, mb) = (std::fs::read(&from_samples).unwrap(), std::fs::read(&from_rasters).unwrap());
+        let (ma, mb) = (
+            std::fs::read(&from_samples).unwrap(),
+            std::fs::read(&from_rasters).unwrap(),
+        );
         assert!(ma == mb, "model files differ for --fit-rows {fit_rows}");
         let m: serde_json::Value = serde_json::from_slice(&ma).unwrap();
         let rows: u64 = m["sources"]
@@ -204,11 +248,23 @@ fn samples_fitted_together_equal_one_fit_on_the_rasters() {
         let want = rows.min(fit_rows.parse().unwrap());
         assert_eq!(m["fit_rows"].as_u64().unwrap(), want);
         assert_eq!(m["format_version"], 1);
-        assert_eq!(m["features"], serde_json::json!(["1", "2", "3", "4", "ndvi:3,4"]));
+        assert_eq!(
+            m["features"],
+            serde_json::json!(["1", "2", "3", "4", "ndvi:3,4"])
+        );
     }
     // A sample drawn with another seed is refused by the fit.
     refused(
-        &["landcover-fit", s(&samples[0]), "-k", "5", "--seed", "8", "-o", s(&d.join("x.json"))],
+        &[
+            "landcover-fit",
+            s(&samples[0]),
+            "-k",
+            "5",
+            "--seed",
+            "8",
+            "-o",
+            s(&d.join("x.json")),
+        ],
         &["t1.sample", "seed 7", "seed 8"],
     );
     // A damaged sample file is refused, naming it.
@@ -218,7 +274,16 @@ fn samples_fitted_together_equal_one_fit_on_the_rasters() {
     let broken = d.join("broken.sample");
     std::fs::write(&broken, bytes).unwrap();
     refused(
-        &["landcover-fit", s(&broken), "-k", "5", "--seed", "7", "-o", s(&d.join("y.json"))],
+        &[
+            "landcover-fit",
+            s(&broken),
+            "-k",
+            "5",
+            "--seed",
+            "7",
+            "-o",
+            s(&d.join("y.json")),
+        ],
         &["broken.sample", "checksum"],
     );
     assert!(!d.join("x.json").exists() && !d.join("y.json").exists());
@@ -228,17 +293,46 @@ fn samples_fitted_together_equal_one_fit_on_the_rasters() {
     let saved = d.join("saved.model.json");
     let fitted_dir = d.join("fitted");
     ok(
-        &["landcover", s(&whole), "-k", "5", "--save-model", s(&saved), "-o", s(&fitted_dir)],
+        &[
+            "landcover",
+            s(&whole),
+            "-k",
+            "5",
+            "--save-model",
+            s(&saved),
+            "-o",
+            s(&fitted_dir),
+        ],
         &[],
     );
     let fitted = d.join("fit.model.json");
-    ok(&["landcover-fit", s(&whole), "-k", "5", "-o", s(&fitted)], &[]);
+    ok(
+        &["landcover-fit", s(&whole), "-k", "5", "-o", s(&fitted)],
+        &[],
+    );
     assert!(std::fs::read(&saved).unwrap() == std::fs::read(&fitted).unwrap());
     let applied_dir = d.join("applied");
-    ok(&["landcover", s(&whole), "--model", s(&saved), "-o", s(&applied_dir)], &[]);
-    for f in ["valley.classes.tif", "valley.uncertainty.tif", "valley.classes.png"] {
+    ok(
+        &[
+            "landcover",
+            s(&whole),
+            "--model",
+            s(&saved),
+            "-o",
+            s(&applied_dir),
+        ],
+        &[],
+    );
+    for f in [
+        "valley.classes.tif",
+        "valley.uncertainty.tif",
+        "valley.classes.png",
+    ] {
         let (a, b) = (fitted_dir.join(f), applied_dir.join(f));
-        assert!(std::fs::read(&a).unwrap() == std::fs::read(&b).unwrap(), "{f} differs");
+        assert!(
+            std::fs::read(&a).unwrap() == std::fs::read(&b).unwrap(),
+            "{f} differs"
+        );
     }
     let unc = read_f32_tiff(&applied_dir.join("valley.uncertainty.tif"));
     assert_eq!(unc.len(), (W * H) as usize);
@@ -250,14 +344,18 @@ fn rasters_and_flags_that_do_not_match_the_model_are_refused() {
     let d = dir.path();
     let (_, whole, _) = tiles(d, &[]);
     let model = d.join("m.model.json");
-    ok(&["landcover-fit", s(&whole), "-k", "4", "-o", s(&model)], &[]);
+    ok(
+        &["landcover-fit", s(&whole), "-k", "4", "-o", s(&model)],
+        &[],
+    );
     let out = d.join("out");
     // Three bands instead of four.
     let rgb = d.join("rgb.tif");
     {
         use tiff::encoder::{colortype, TiffEncoder};
         let mut enc = TiffEncoder::new(std::fs::File::create(&rgb).unwrap()).unwrap();
-        enc.write_image::<colortype::RGB16>(8, 8, &vec![1000u16; 8 * 8 * 3]).unwrap();
+        enc.write_image::<colortype::RGB16>(8, 8, &vec![1000u16; 8 * 8 * 3])
+            .unwrap();
     }
     refused(
         &["landcover", s(&rgb), "--model", s(&model), "-o", s(&out)],
@@ -268,14 +366,20 @@ fn rasters_and_flags_that_do_not_match_the_model_are_refused() {
     {
         use tiff::encoder::{colortype, TiffEncoder};
         let mut enc = TiffEncoder::new(std::fs::File::create(&float).unwrap()).unwrap();
-        enc.write_image::<colortype::RGBA32Float>(8, 8, &vec![0.1f32; 8 * 8 * 4]).unwrap();
+        enc.write_image::<colortype::RGBA32Float>(8, 8, &vec![0.1f32; 8 * 8 * 4])
+            .unwrap();
     }
     refused(
         &["landcover", s(&float), "--model", s(&model), "-o", s(&out)],
         &["float.tif", "f32", "u16"],
     );
     // The model fixes K, the features and the engine.
-    for extra in [["-k", "6"], ["--bands", "1,2"], ["--seed", "3"], ["--mode", "soft"]] {
+    for extra in [
+        ["-k", "6"],
+        ["--bands", "1,2"],
+        ["--seed", "3"],
+        ["--mode", "soft"],
+    ] {
         let mut a = vec!["landcover", s(&whole), "--model", s(&model), "-o", s(&out)];
         a.extend_from_slice(&extra);
         refused(&a, &[extra[0]]);
@@ -283,10 +387,24 @@ fn rasters_and_flags_that_do_not_match_the_model_are_refused() {
     // Not a model: a sample file, JSON of another kind, another format version.
     let other = d.join("other.json");
     std::fs::write(&other, "{\"colors\": []}\n").unwrap();
-    refused(&["landcover", s(&whole), "--model", s(&other), "-o", s(&out)], &["other.json", "format"]);
+    refused(
+        &["landcover", s(&whole), "--model", s(&other), "-o", s(&out)],
+        &["other.json", "format"],
+    );
     let text = std::fs::read_to_string(&model).unwrap();
     let newer = d.join("newer.json");
-    std::fs::write(&newer, text.replace("\"format_version\": 1", "\"format_version\": 9")).unwrap();
-    refused(&["landcover", s(&whole), "--model", s(&newer), "-o", s(&out)], &["newer.json", "version 9"]);
-    assert!(common::files_in(&out).is_empty(), "{:?}", common::files_in(&out));
+    std::fs::write(
+        &newer,
+        text.replace("\"format_version\": 1", "\"format_version\": 9"),
+    )
+    .unwrap();
+    refused(
+        &["landcover", s(&whole), "--model", s(&newer), "-o", s(&out)],
+        &["newer.json", "version 9"],
+    );
+    assert!(
+        common::files_in(&out).is_empty(),
+        "{:?}",
+        common::files_in(&out)
+    );
 }

@@ -149,6 +149,11 @@ pub struct SceneFlags {
     /// smaller).
     #[arg(long, default_value_t = SceneOptions::default().sample, value_name = "N", value_parser = positive_count)]
     pub sample: usize,
+
+    /// A raster on the scene's grid (same size and georeferencing) whose non-zero pixels are
+    /// left out, e.g. a cloud mask with 1 = cloud.
+    #[arg(long, value_name = "MASK.tif")]
+    pub exclude: Option<std::path::PathBuf>,
 }
 
 impl SceneFlags {
@@ -160,6 +165,7 @@ impl SceneFlags {
             scale: self.scale,
             nodata: self.nodata,
             sample: self.sample,
+            exclude: self.exclude.clone(),
         }
     }
 }

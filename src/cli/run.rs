@@ -108,6 +108,8 @@ fn dispatch(argv: Vec<std::ffi::OsString>) -> ExitCode {
         Command::Landcover(args) => super::landcover::run_landcover(&args),
         Command::LandcoverSample(args) => super::landcover::run_sample(&args),
         Command::LandcoverFit(args) => super::landcover::run_fit(&args),
+        Command::LandcoverAssess(args) => super::landcover::run_assess(&args),
+        Command::LandcoverLabel(args) => super::landcover::run_label(&args),
         Command::Sweep(args) => run_sweep(&args),
         Command::Batch(args) => return run_batch(args),
         Command::Learn(args) => run_learn(&args),

@@ -111,6 +111,9 @@ pub struct SceneOptions {
     pub nodata: Option<f64>,
     /// Pixels in the fitting sample (seeded, one per grid cell). Default: 2 000 000.
     pub sample: usize,
+    /// A raster on the scene's grid whose non-zero pixels are left out (for example a cloud
+    /// mask); refused when it is not on the same grid. Default: none.
+    pub exclude: Option<std::path::PathBuf>,
 }
 
 impl Default for SceneOptions {
@@ -121,6 +124,7 @@ impl Default for SceneOptions {
             scale: Scale::Zscore,
             nodata: None,
             sample: 2_000_000,
+            exclude: None,
         }
     }
 }
@@ -134,13 +138,31 @@ pub(crate) struct Features {
     indices: Vec<(usize, usize)>,
     pub(crate) nodata: Option<f32>,
     pub(crate) names: Vec<String>,
+    /// Per raw band: physical value = stored × scale + offset (GDAL_METADATA).
+    scale_offset: Vec<(f64, f64)>,
 }
+
+/// The value an index takes where it is undefined (both bands 0 after scale and offset): the
+/// middle of its range, "no difference". The pixel stays valid and is classed on this value
+/// and its other features; such pixels are counted.
+pub const UNDEFINED_INDEX_VALUE: f32 = 0.0;
 
 impl Features {
     pub(crate) fn dim(&self) -> usize {
         self.bands.len() + self.indices.len()
     }
-    /// Features of one pixel into `out`; false when the pixel is nodata.
+    /// The physical value of raw band `b` (0-based) of a stored value.
+    #[inline]
+    fn physical(&self, b: usize, v: f32) -> f32 {
+        match self.scale_offset.get(b) {
+            Some(&(s, o)) if (s, o) != (1.0, 0.0) => (v as f64 * s + o) as f32,
+            _ => v,
+        }
+    }
+
+    /// Features of one pixel into `out` (bands after scale and offset, then indices of the
+    /// scaled bands; an undefined index takes [`UNDEFINED_INDEX_VALUE`]); false when the
+    /// pixel is nodata (a band used is not finite or equals the stored no-data value).
     #[inline]
     pub(crate) fn extract(&self, px: &[f32], out: &mut [f32]) -> bool {
         let bad = |v: f32| !v.is_finite() || self.nodata == Some(v);
@@ -149,20 +171,40 @@ impl Features {
             if bad(v) {
                 return false;
             }
-            *o = v;
+            *o = self.physical(b, v);
         }
         for (o, &(a, b)) in out[self.bands.len()..].iter_mut().zip(&self.indices) {
             let (va, vb) = (px[a], px[b]);
             if bad(va) || bad(vb) {
                 return false;
             }
-            let v = normalised_difference(va, vb);
-            if !v.is_finite() {
-                return false;
-            }
-            *o = v;
+            let v = normalised_difference(self.physical(a, va), self.physical(b, vb));
+            *o = if v.is_finite() {
+                v
+            } else {
+                UNDEFINED_INDEX_VALUE
+            };
         }
         true
+    }
+
+    /// The description of each feature (the band's GDAL description; `None` for indices).
+    pub(crate) fn descriptions(&self, info: &RasterInfo) -> Vec<Option<String>> {
+        let mut d: Vec<Option<String>> = self
+            .bands
+            .iter()
+            .map(|&b| info.descriptions.get(b).cloned().flatten())
+            .collect();
+        d.extend(self.indices.iter().map(|_| None));
+        d
+    }
+
+    /// True when some index of a valid pixel is undefined (its two bands sum to 0).
+    #[inline]
+    pub(crate) fn undefined_index(&self, px: &[f32]) -> bool {
+        self.indices.iter().any(|&(a, b)| {
+            !normalised_difference(self.physical(a, px[a]), self.physical(b, px[b])).is_finite()
+        })
     }
 }
 
@@ -365,12 +407,19 @@ pub(crate) fn check_options(
         &bands,
         &opts.indices,
         opts.nodata.or(info.nodata),
+        info.scale_offset.clone(),
     ))
 }
 
 impl Features {
-    /// Features of `bands` (1-based, checked) and `indices`, with `nodata` in effect.
-    pub(crate) fn new(bands: &[usize], indices: &[IndexSpec], nodata: Option<f64>) -> Features {
+    /// Features of `bands` (1-based, checked) and `indices`, with `nodata` in effect and the
+    /// raw bands' `scale_offset` (empty: none).
+    pub(crate) fn new(
+        bands: &[usize],
+        indices: &[IndexSpec],
+        nodata: Option<f64>,
+        scale_offset: Vec<(f64, f64)>,
+    ) -> Features {
         let mut names: Vec<String> = bands.iter().map(|b| b.to_string()).collect();
         names.extend(indices.iter().map(IndexSpec::name));
         Features {
@@ -378,6 +427,7 @@ impl Features {
             indices: indices.iter().map(|i| (i.a - 1, i.b - 1)).collect(),
             nodata: nodata.map(|v| v as f32),
             names,
+            scale_offset,
         }
     }
 }
@@ -395,6 +445,8 @@ pub struct SceneSample {
     /// Pixels that are not nodata.
     pub valid_pixels: u64,
     pub total_pixels: u64,
+    /// Valid pixels where an index is undefined (see [`UNDEFINED_INDEX_VALUE`]).
+    pub undefined_index_pixels: u64,
     /// The scaling applied to the sample, to be applied to every other row too.
     pub scaler: Scaler,
 }
@@ -421,6 +473,12 @@ impl SceneSample {
     pub fn feature_names(&self) -> &[String] {
         &self.feats.names
     }
+
+    /// The description of each feature: the band's GDAL description for bands, `None` for
+    /// indices.
+    pub fn feature_descriptions(&self) -> Vec<Option<String>> {
+        self.feats.descriptions(&self.info)
+    }
 }
 
 /// Pass 1 before scaling: the open raster, its features, the statistics of every feature
@@ -436,6 +494,7 @@ pub(crate) struct RawSample {
     pub(crate) moments: Vec<Moments>,
     pub(crate) valid_pixels: u64,
     pub(crate) total_pixels: u64,
+    pub(crate) undefined_index_pixels: u64,
 }
 
 /// Opens `input`, checks the band and index options, and reads pass 1 (see
@@ -447,7 +506,6 @@ pub fn scene_sample(
     limits: &Limits,
     k_needed: usize,
 ) -> Result<SceneSample> {
-    let raw = scene_pass1(input, opts, seed, limits)?;
     let RawSample {
         raster,
         info,
@@ -457,7 +515,8 @@ pub fn scene_sample(
         moments,
         valid_pixels,
         total_pixels,
-    } = raw;
+        undefined_index_pixels,
+    } = scene_pass1(input, opts, seed, limits)?;
     let sample_n = sample.len() / dim;
     if sample_n < k_needed {
         return Err(Error::InputData {
@@ -478,6 +537,7 @@ pub fn scene_sample(
         sample,
         valid_pixels,
         total_pixels,
+        undefined_index_pixels,
         scaler,
     })
 }
@@ -505,6 +565,9 @@ pub(crate) fn scene_pass1(
     limits: &Limits,
 ) -> Result<RawSample> {
     let mut raster = GeoRaster::open(input, limits)?;
+    if let Some(mask) = &opts.exclude {
+        raster.exclude_where(mask, limits)?;
+    }
     let info = raster.info().clone();
     let feats = check_options(opts, &info, input)?;
     let dim = feats.dim();
@@ -515,12 +578,13 @@ pub(crate) fn scene_pass1(
     let mut moments = vec![Moments::default(); dim];
     let mut sample: Vec<f32> = Vec::new();
     let mut valid_pixels = 0u64;
+    let mut undefined_index_pixels = 0u64;
     for bi in 0..raster.block_count() {
         let block = raster.read_block(bi)?;
         let rows = block.rows as usize;
         let stride = w as usize * info.bands;
         // Per row in parallel, merged in row order: deterministic.
-        let per_row: Vec<(Vec<Moments>, Vec<f32>, u64)> = (0..rows)
+        let per_row: Vec<(Vec<Moments>, Vec<f32>, u64, u64)> = (0..rows)
             .into_par_iter()
             .map(|r| {
                 let y = block.y0 + r as u32;
@@ -528,6 +592,7 @@ pub(crate) fn scene_pass1(
                 let mut s = Vec::new();
                 let mut f = vec![0.0f32; dim];
                 let mut n = 0u64;
+                let mut undefined = 0u64;
                 for x in 0..w as usize {
                     let px =
                         &block.data[r * stride + x * info.bands..r * stride + (x + 1) * info.bands];
@@ -535,6 +600,7 @@ pub(crate) fn scene_pass1(
                         continue;
                     }
                     n += 1;
+                    undefined += feats.undefined_index(px) as u64;
                     for (mm, &v) in m.iter_mut().zip(&f) {
                         mm.push(v as f64);
                     }
@@ -542,10 +608,11 @@ pub(crate) fn scene_pass1(
                         s.extend_from_slice(&f);
                     }
                 }
-                (m, s, n)
+                (m, s, n, undefined)
             })
             .collect();
-        for (m, s, n) in per_row {
+        for (m, s, n, undefined) in per_row {
+            undefined_index_pixels += undefined;
             for (a, b) in moments.iter_mut().zip(&m) {
                 a.merge(b);
             }
@@ -569,6 +636,7 @@ pub(crate) fn scene_pass1(
         moments,
         valid_pixels,
         total_pixels,
+        undefined_index_pixels,
     })
 }
 

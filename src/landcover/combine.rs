@@ -83,7 +83,8 @@ fn check_given(path: &Path, h: &SampleHeader, scene: &SceneOptions) -> Result<()
     if !indices.is_empty() && indices != h.indices {
         return refuse("index", format!("{:?}", h.indices), format!("{indices:?}"));
     }
-    if scene.nodata.is_some() && scene.nodata.map(f64::to_bits) != h.nodata_setting.map(f64::to_bits)
+    if scene.nodata.is_some()
+        && scene.nodata.map(f64::to_bits) != h.nodata_setting.map(f64::to_bits)
     {
         return refuse(
             "nodata",
@@ -119,7 +120,11 @@ fn check_same(path: &Path, first: &SampleHeader, h: &SampleHeader, seed: u64) ->
         );
     }
     if h.sample_type != first.sample_type {
-        return differ("sample type", first.sample_type.clone(), h.sample_type.clone());
+        return differ(
+            "sample type",
+            first.sample_type.clone(),
+            h.sample_type.clone(),
+        );
     }
     if h.features != first.features {
         return differ(
@@ -219,7 +224,7 @@ pub fn fit_model(inputs: &[PathBuf], opts: &FitModelOptions) -> Result<Landcover
     rows.par_chunks_mut(dim).for_each(|r| scaler.apply(r));
     let feats = features_of(&first);
     let (classes, summary) =
-        FittedClasses::fit(&rows, dim, feats, scaler, first.raster_bands, &params)?;
+        FittedClasses::fit(&rows, dim, feats, scaler, first.raster_bands, &params, None)?;
     Ok(LandcoverModel::build(
         &classes,
         &summary,
@@ -232,12 +237,8 @@ pub fn fit_model(inputs: &[PathBuf], opts: &FitModelOptions) -> Result<Landcover
 
 /// The features a sample header describes (nodata as set; each raster applies its own).
 fn features_of(h: &SampleHeader) -> Features {
-    let indices: Vec<IndexSpec> = h
-        .indices
-        .iter()
-        .filter_map(|s| s.parse().ok())
-        .collect();
-    Features::new(&h.bands, &indices, h.nodata_setting)
+    let indices: Vec<IndexSpec> = h.indices.iter().filter_map(|s| s.parse().ok()).collect();
+    Features::new(&h.bands, &indices, h.nodata_setting, Vec::new())
 }
 
 /// Keeps exactly `keep` of the rows (all when there are no more), chosen by a seeded hash

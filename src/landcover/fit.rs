@@ -3,12 +3,9 @@
 
 use super::UNCERTAINTY_NODATA;
 use crate::cluster::{fit, soft_assign, Dataset, ValidParams};
-use super::model::LandcoverModel;
 use crate::error::Result;
-use crate::limits::Limits;
-use std::path::Path;
 use crate::features::scene::{Features, Scaler, SceneSample};
-use crate::raster::geotiff::{GeoRaster, RasterInfo};
+use crate::raster::geotiff::{GeoRaster, PixelAreas, RasterInfo};
 use rayon::prelude::*;
 
 /// What pass 1 and the fit hand to pass 2: the raster still to be read, its counts and the
@@ -22,6 +19,14 @@ pub(super) struct FittedScene {
     pub(super) total_pixels: u64,
     /// Pixels in the sample the classes were fitted on.
     pub(super) sample_pixels: usize,
+    /// Valid pixels with an undefined index.
+    pub(super) undefined_index_pixels: u64,
+    /// Each feature's band description (`None` for indices and bands without one).
+    pub(super) descriptions: Vec<Option<String>>,
+    /// Ground area of every pixel.
+    pub(super) areas: PixelAreas,
+    /// The second start's comparison with the kept solution, when one was made.
+    pub(super) restart_check: Option<RestartCheck>,
     pub(super) classes: FittedClasses,
     /// What the fit said about the sample (none when the classes come from a saved model).
     pub(super) summary: Option<FitSummary>,
@@ -54,40 +59,59 @@ pub(super) struct Assigned {
     pub(super) features: Vec<f32>,
 }
 
-impl FittedScene {
-    /// Opens `input` for a saved model: its classes come from the model (refused when
-    /// the raster does not match it). Its valid pixels are counted in pass 2.
-    pub(super) fn from_model(
-        input: &Path,
-        model: &LandcoverModel,
-        limits: &Limits,
-    ) -> Result<FittedScene> {
-        let raster = GeoRaster::open(input, limits)?;
-        let info = raster.info().clone();
-        let classes = model.classes_for(input, &info)?;
-        Ok(FittedScene {
-            raster,
-            total_pixels: info.width as u64 * info.height as u64,
-            info,
-            valid_pixels: 0,
-            sample_pixels: 0,
-            classes,
-            summary: None,
-        })
-    }
+/// Below this adjusted Rand index between the kept solution and a second start (Hubert &
+/// Arabie 1985; 1 = the same partition), the two starts are said to disagree. Our own
+/// choice: 0.8 separates "the same classes with a few boundary pixels moved" from a
+/// different split.
+pub const RESTART_AGREEMENT_MIN: f64 = 0.8;
 
+/// A second start of the fit from another seed, compared with the kept solution on the
+/// sample.
+#[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
+pub struct RestartCheck {
+    /// Seed of the second start.
+    pub seed: u64,
+    /// Adjusted Rand index between the two partitions of the sample.
+    pub ari: f64,
+    /// SSE of the kept solution and of the second start, on the sample.
+    pub sse: f64,
+    pub sse_second: f64,
+    /// True when `ari` < [`RESTART_AGREEMENT_MIN`].
+    pub disagree: bool,
+}
+
+impl FittedScene {
     /// Fits k-means on the scene's sample and numbers the classes; the sample is dropped.
-    pub(super) fn fit(scene: SceneSample, params: &ValidParams) -> Result<FittedScene> {
+    /// With `second` (the same settings with another seed, one start), a second start is
+    /// fitted and compared with the kept solution.
+    pub(super) fn fit(
+        scene: SceneSample,
+        params: &ValidParams,
+        second: Option<(u64, &ValidParams)>,
+    ) -> Result<FittedScene> {
         let dim = scene.dim;
         let bands = scene.info.bands;
-        let (classes, summary) =
-            FittedClasses::fit(&scene.sample, dim, scene.feats, scene.scaler, bands, params)?;
+        let descriptions = scene.feature_descriptions();
+        let areas = PixelAreas::new(&scene.info.geo, scene.info.width, scene.info.height);
+        let (classes, summary) = FittedClasses::fit(
+            &scene.sample,
+            dim,
+            scene.feats,
+            scene.scaler,
+            bands,
+            params,
+            second,
+        )?;
         Ok(FittedScene {
             raster: scene.raster,
             info: scene.info,
             valid_pixels: scene.valid_pixels,
             total_pixels: scene.total_pixels,
             sample_pixels: scene.sample.len() / dim,
+            undefined_index_pixels: scene.undefined_index_pixels,
+            descriptions,
+            areas,
+            restart_check: summary.restart_check.clone(),
             classes,
             summary: Some(summary),
         })
@@ -100,11 +124,14 @@ pub(super) struct FitSummary {
     pub(super) counts: Vec<u64>,
     /// The fit's SSE on the (scaled) sample.
     pub(super) sse: f64,
+    /// The second start's comparison, when one was asked for.
+    pub(super) restart_check: Option<RestartCheck>,
 }
 
 impl FittedClasses {
     /// Fits k-means on scaled `rows` (`n × dim`) and numbers the classes by their share of
     /// the rows, largest first (ties: the fit's own order).
+    #[allow(clippy::too_many_arguments)]
     pub(super) fn fit(
         rows: &[f32],
         dim: usize,
@@ -112,9 +139,27 @@ impl FittedClasses {
         scaler: Scaler,
         bands: usize,
         params: &ValidParams,
+        second: Option<(u64, &ValidParams)>,
     ) -> Result<(FittedClasses, FitSummary)> {
         let data = Dataset::new(rows, dim, None)?;
         let model = fit(&data, params)?;
+        let restart_check = match second {
+            Some((seed, p)) if model.k() > 1 => {
+                let other = fit(&data, p)?;
+                let ari = crate::cluster::adjusted_rand_index(
+                    &model.predict(&data),
+                    &other.predict(&data),
+                );
+                Some(RestartCheck {
+                    seed,
+                    ari,
+                    sse: model.sse,
+                    sse_second: other.sse,
+                    disagree: ari < RESTART_AGREEMENT_MIN,
+                })
+            }
+            _ => None,
+        };
         let k = model.k();
         // Class numbers: largest share of the sample first.
         let mut counts = vec![0u64; k];
@@ -126,6 +171,7 @@ impl FittedClasses {
         let summary = FitSummary {
             counts: order.iter().map(|&j| counts[j]).collect(),
             sse: model.sse,
+            restart_check,
         };
         // The means are kept in class order, so a saved model applied later computes
         // exactly what this run computes.
@@ -196,13 +242,7 @@ impl FittedClasses {
         let ds = Dataset::new(&feat, dim, None).expect("finite features");
         let a = soft_assign(&ds, &self.means, self.beta);
         let classes = (0..n)
-            .map(|p| {
-                if ok[p] {
-                    (a.labels[p] + 1) as u8
-                } else {
-                    0
-                }
-            })
+            .map(|p| if ok[p] { (a.labels[p] + 1) as u8 } else { 0 })
             .collect();
         let uncertainty = (0..n)
             .map(|p| {

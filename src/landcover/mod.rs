@@ -16,29 +16,47 @@
 //!   `preview` grid;
 //! - `document`: the classes document and CSV; `preview`: the PNG with its legend.
 
+mod accuracy;
+mod assess;
 mod combine;
 mod document;
+mod finish;
 mod fit;
+mod labels;
 mod model;
 mod pass2;
+mod patch_out;
+mod polygons;
 mod preview;
 mod sample;
 mod stats;
+mod vector_out;
 
 pub use crate::features::scene::{
     normalised_difference, parse_bands, IndexSpec, Scale, SceneOptions,
 };
+pub use accuracy::{
+    adjusted_rand_index, hungarian_max, AreaEstimate, AreaEstimates, Confusion, LabelAccuracy,
+};
+pub use assess::{
+    assess, assess_file, assessment_names, AssessmentDocument, ClusterLabel, Matching, Reference,
+};
 pub use combine::{fit_model, read_list_file, FitModelOptions};
 pub use document::{classes_csv, ClassReport, ClassesDocument, FeatureStats};
+pub use finish::{label_file, label_names, LabelOptions, LabelReport, LabelsDocument, MinUnit};
+pub use fit::{RestartCheck, RESTART_AGREEMENT_MIN};
+pub use labels::{labelled_preview, read_labels, Label, LabelSet};
 pub use model::{
     LandcoverModel, ModelClass, ModelSource, ScalingRecord, MODEL_FORMAT, MODEL_FORMAT_VERSION,
 };
+pub use polygons::{patch_ids, ring_pixels, vectorise, Patch};
+pub use preview::{class_colours, preview_with_legend};
 pub use sample::source_name as source_file_name;
 pub use sample::{
     read_sample_file, sample_scene, write_sample_file, SampleHeader, SampleOptions,
     SceneSampleData, SAMPLE_FORMAT_VERSION,
 };
-pub use preview::{class_colours, preview_with_legend};
+pub use vector_out::{geojson, gpkg_geometry, write_geopackage, PatchAttributes, GPKG_TABLE};
 
 use crate::cluster::{EngineOptions, KMeansParams};
 use crate::error::{ParamsError, Result};
@@ -138,11 +156,21 @@ pub fn landcover_file(
 ) -> Result<LandcoverReport> {
     let params = opts.params().check()?;
     opts.check_k()?;
+    // A second start from another seed, compared with the kept solution (see
+    // `RestartCheck`).
+    let second_seed = opts.engine.seed ^ 0x5eed_0000_0000_0001;
+    let second = EngineOptions {
+        seed: second_seed,
+        restarts: 1,
+        ..opts.engine
+    }
+    .params(opts.k)
+    .check()?;
     let mut model = None;
     let load = |mark: &dyn Fn(&str)| -> Result<FittedScene> {
         let scene = scene_sample(input, &opts.scene, opts.engine.seed, &opts.limits, opts.k)?;
         mark("pass 1 (statistics, sample)");
-        let fitted = FittedScene::fit(scene, &params)?;
+        let fitted = FittedScene::fit(scene, &params, Some((second_seed, &second)))?;
         mark("fit");
         model = Some(model_of_scene(input, opts, &fitted));
         Ok(fitted)
@@ -169,7 +197,7 @@ pub fn landcover_with_model(
         limits: *limits,
     };
     let load = |mark: &dyn Fn(&str)| -> Result<FittedScene> {
-        let fitted = FittedScene::from_model(input, model, limits)?;
+        let fitted = model.open_for(input, limits)?;
         mark("pass 1 (statistics)");
         Ok(fitted)
     };

@@ -1,7 +1,7 @@
 //! The model file: everything a fit decided (features, scaling, class means, β, engine
 //! settings), so that other rasters with the same bands get the same class numbers.
 
-use super::fit::{FitSummary, FittedClasses};
+use super::fit::{FitSummary, FittedClasses, FittedScene};
 use super::sample::read_bounded;
 use super::CAUTION;
 use crate::cluster::EngineOptions;
@@ -9,6 +9,7 @@ use crate::error::{Error, Result};
 use crate::features::scene::{check_options, IndexSpec, Scale, Scaler, SceneOptions};
 use crate::limits::Limits;
 use crate::raster::geotiff::RasterInfo;
+use crate::raster::geotiff::{GeoRaster, PixelAreas};
 use serde::{Deserialize, Serialize};
 use std::path::Path;
 
@@ -69,7 +70,7 @@ pub struct LandcoverModel {
     /// Feature names: band numbers as text, then index names.
     pub features: Vec<String>,
     /// The nodata value asked for (`null`: each raster's own GDAL_NODATA tag).
-    #[serde(with = "nodata_serde")]
+    #[serde(with = "super::sample::nodata_serde")]
     pub nodata: Option<f64>,
     pub scale: Scale,
     pub scaling: ScalingRecord,
@@ -88,6 +89,29 @@ pub struct LandcoverModel {
 }
 
 impl LandcoverModel {
+    /// Opens `input` for a saved model: its classes come from the model (refused when
+    /// the raster does not match it). Its valid pixels are counted in pass 2.
+    pub(super) fn open_for(&self, input: &Path, limits: &Limits) -> Result<FittedScene> {
+        let raster = GeoRaster::open(input, limits)?;
+        let info = raster.info().clone();
+        let classes = self.classes_for(input, &info)?;
+        let descriptions = classes.features().descriptions(&info);
+        let areas = PixelAreas::new(&info.geo, info.width, info.height);
+        Ok(FittedScene {
+            raster,
+            total_pixels: info.width as u64 * info.height as u64,
+            info,
+            valid_pixels: 0,
+            sample_pixels: 0,
+            undefined_index_pixels: 0,
+            descriptions,
+            areas,
+            restart_check: None,
+            classes,
+            summary: None,
+        })
+    }
+
     /// The model of fitted `classes`; `like` describes the rasters (bands, features,
     /// nodata setting, sample size), `sources` each raster fitted on.
     pub(super) fn build(
@@ -185,7 +209,11 @@ impl LandcoverModel {
             return Err("`features` must list the bands, then the indices".into());
         }
         if self.k == 0 || self.k > super::MAX_CLASSES || self.classes.len() != self.k {
-            return Err(format!("`k` is {} but there are {} classes", self.k, self.classes.len()));
+            return Err(format!(
+                "`k` is {} but there are {} classes",
+                self.k,
+                self.classes.len()
+            ));
         }
         if self.scaling.offset.len() != dim || self.scaling.factor.len() != dim {
             return Err("`scaling` needs one offset and one factor per feature".into());
@@ -229,6 +257,7 @@ impl LandcoverModel {
             scale: self.scale,
             nodata: self.nodata,
             sample: self.sample,
+            ..SceneOptions::default()
         }
     }
 
@@ -253,6 +282,14 @@ impl LandcoverModel {
                 self.sample_type
             )));
         }
+        let described = super::sample::band_descriptions(info);
+        if let (Some(m), Some(r)) = (&self.band_descriptions, &described) {
+            if m != r {
+                return Err(refuse(format!(
+                    "its band descriptions are {r:?}, the model's are {m:?}"
+                )));
+            }
+        }
         let feats = check_options(&self.scene_options(), info, raster)?;
         let names: Vec<String> = feats.names.clone();
         if names != self.features {
@@ -273,37 +310,5 @@ impl LandcoverModel {
         Ok(FittedClasses::from_means(
             feats, scaler, info.bands, means, self.beta,
         ))
-    }
-
-}
-
-/// A nodata value in JSON: a number, or the string `"nan"` (JSON has no NaN).
-pub(super) mod nodata_serde {
-    use serde::{Deserialize, Deserializer, Serialize, Serializer};
-
-    #[derive(Serialize, Deserialize)]
-    #[serde(untagged)]
-    enum Repr {
-        Number(f64),
-        Text(String),
-    }
-
-    pub fn serialize<S: Serializer>(v: &Option<f64>, s: S) -> Result<S::Ok, S::Error> {
-        match v {
-            Some(x) if x.is_finite() => Some(Repr::Number(*x)).serialize(s),
-            Some(x) => Some(Repr::Text(format!("{x}").to_ascii_lowercase())).serialize(s),
-            None => None::<Repr>.serialize(s),
-        }
-    }
-
-    pub fn deserialize<'de, D: Deserializer<'de>>(d: D) -> Result<Option<f64>, D::Error> {
-        match Option::<Repr>::deserialize(d)? {
-            None => Ok(None),
-            Some(Repr::Number(x)) => Ok(Some(x)),
-            Some(Repr::Text(t)) => t
-                .parse::<f64>()
-                .map(Some)
-                .map_err(|_| serde::de::Error::custom(format!("'{t}' is not a nodata value"))),
-        }
     }
 }

@@ -36,20 +36,44 @@ pub(super) fn classify_scene(
     let fitted = &scene.classes;
     let mut stats = ClassStats::new(fitted.k, fitted.dim);
     let mut preview = PreviewGrid::for_scene(w, h);
+    let areas = &scene.areas;
+    let mut area_rows: Vec<f64> = Vec::new();
     let mut reader = RowReader::new(&mut scene.raster);
     // One strip: read, assign, sample the preview, add to the statistics.
     let mut strip = |y0: u32, rows: u32| -> Result<(Vec<u8>, Vec<f32>)> {
         let raw = reader.rows(y0, rows)?;
         let assigned = fitted.assign_rows(&raw);
         preview.take_rows(y0, rows, w, &assigned.classes);
-        stats.add_rows(fitted, &raw, &assigned, w as usize);
+        area_rows.clear();
+        if areas.is_known() {
+            area_rows.resize(rows as usize * w as usize, 0.0);
+            for (r, line) in area_rows.chunks_exact_mut(w as usize).enumerate() {
+                areas.row_into(y0 + r as u32, line);
+            }
+        }
+        stats.add_rows(fitted, &raw, &assigned, &area_rows, w as usize);
         Ok((assigned.classes, assigned.uncertainty))
+    };
+    // Both rasters DEFLATE-compressed; BigTIFF decided from the size before writing; the
+    // class raster carries the preview's colours (class 0, nodata, black).
+    let above = bigtiff_above();
+    let mut colours = vec![[0u8; 3]];
+    colours.extend(super::class_colours(fitted.k));
+    let class_opts = geotiff::WriteOptions {
+        big: geotiff::bigtiff_needed(w, h, 1, above),
+        deflate: true,
+        colour_map: Some(colours),
+    };
+    let unc_opts = geotiff::WriteOptions {
+        big: geotiff::bigtiff_needed(w, h, 4, above),
+        deflate: true,
+        colour_map: None,
     };
     let (tx, rx) = sync_channel::<Vec<f32>>(CHANNEL_STRIPS);
     let unc_out = set.begin(uncertainty_name)?;
     let mut cls_out = set.begin(class_name)?;
     let unc_out = std::thread::scope(|scope| -> Result<PendingOutput> {
-        let writer = scope.spawn(move || write_uncertainty(unc_out, rx, w, h, geo));
+        let writer = scope.spawn(move || write_uncertainty(unc_out, rx, (w, h), geo, &unc_opts));
         let mut send = |y0: u32, rows: u32| -> Result<Vec<u8>> {
             let (classes, unc) = strip(y0, rows)?;
             tx.send(unc)
@@ -57,7 +81,7 @@ pub(super) fn classify_scene(
             Ok(classes)
         };
         let classes_done = write_band(&mut cls_out, |wr| {
-            geotiff::write_u8_band(wr, w, h, geo, Some("0"), &mut send)
+            geotiff::write_u8_band_with(wr, w, h, geo, Some("0"), &class_opts, &mut send)
         });
         drop(tx);
         let unc_done = writer.join().expect("uncertainty writer thread");
@@ -72,9 +96,9 @@ pub(super) fn classify_scene(
 fn write_uncertainty(
     mut out: PendingOutput,
     rx: Receiver<Vec<f32>>,
-    w: u32,
-    h: u32,
+    (w, h): (u32, u32),
     geo: &geotiff::GeoTags,
+    opts: &geotiff::WriteOptions,
 ) -> Result<PendingOutput> {
     let mut buf: Vec<f32> = Vec::new();
     let mut pull = |_y0: u32, rows: u32| -> Result<Vec<f32>> {
@@ -89,9 +113,19 @@ fn write_uncertainty(
     };
     let nodata = format!("{UNCERTAINTY_NODATA}");
     write_band(&mut out, |wr| {
-        geotiff::write_f32_band(wr, w, h, geo, Some(&nodata), &mut pull)
+        geotiff::write_f32_band_with(wr, w, h, geo, Some(&nodata), opts, &mut pull)
     })?;
     Ok(out)
+}
+
+/// The size above which an output raster is written as BigTIFF: [`geotiff::BIGTIFF_ABOVE`],
+/// or `CHROMASIFT_BIGTIFF_ABOVE` bytes when that is set (a testing hook: the tests force
+/// BigTIFF on small scenes with it rather than writing 4 GiB).
+fn bigtiff_above() -> u64 {
+    std::env::var("CHROMASIFT_BIGTIFF_ABOVE")
+        .ok()
+        .and_then(|v| v.parse().ok())
+        .unwrap_or(geotiff::BIGTIFF_ABOVE)
 }
 
 /// Writes one raster into `out` and flushes it; a failed flush is reported before a

@@ -10,12 +10,10 @@
 //! - an FNV-1a 64 checksum of everything before it (u64).
 
 use crate::error::{Error, Result};
-use crate::features::scene::{
-    scene_pass1, Features, IndexSpec, Moments, RawSample, SceneOptions,
-};
-use crate::raster::geotiff::RasterInfo;
+use crate::features::scene::{scene_pass1, Features, IndexSpec, Moments, RawSample, SceneOptions};
 use crate::limits::Limits;
 use crate::output::fnv1a;
+use crate::raster::geotiff::RasterInfo;
 use serde::{Deserialize, Serialize};
 use std::path::Path;
 
@@ -43,10 +41,10 @@ pub struct SampleHeader {
     /// Feature names: band numbers as text, then index names.
     pub features: Vec<String>,
     /// The nodata value asked for (`None`: the raster's own tag).
-    #[serde(with = "super::model::nodata_serde")]
+    #[serde(with = "nodata_serde")]
     pub nodata_setting: Option<f64>,
     /// The nodata value in effect for this raster.
-    #[serde(with = "super::model::nodata_serde")]
+    #[serde(with = "nodata_serde")]
     pub nodata: Option<f64>,
     /// Seed of the grid sample.
     pub seed: u64,
@@ -97,7 +95,7 @@ impl SampleHeader {
             height: info.height,
             raster_bands: info.bands,
             sample_type: info.sample.name().to_string(),
-            band_descriptions: None,
+            band_descriptions: band_descriptions(info),
             bands: feats.bands.iter().map(|b| b + 1).collect(),
             indices: opts.indices.iter().map(IndexSpec::name).collect(),
             features: feats.names.clone(),
@@ -218,6 +216,16 @@ impl SceneSampleData {
     }
 }
 
+/// The raster's band descriptions (GDAL_METADATA), when it has any ("" for a band without).
+pub(super) fn band_descriptions(info: &RasterInfo) -> Option<Vec<String>> {
+    info.descriptions.iter().any(Option::is_some).then(|| {
+        info.descriptions
+            .iter()
+            .map(|d| d.clone().unwrap_or_default())
+            .collect()
+    })
+}
+
 /// True when `bytes` start like a sample file.
 pub fn is_sample_file(bytes: &[u8]) -> bool {
     bytes.starts_with(MAGIC)
@@ -234,7 +242,12 @@ pub fn source_name(input: &Path) -> String {
 /// Reads pass 1 of `input` as a sample (no scaling).
 pub fn sample_scene(input: &Path, opts: &SampleOptions) -> Result<SceneSampleData> {
     let raw = scene_pass1(input, &opts.scene, opts.seed, &opts.limits)?;
-    Ok(SceneSampleData::from_pass1(input, raw, &opts.scene, opts.seed))
+    Ok(SceneSampleData::from_pass1(
+        input,
+        raw,
+        &opts.scene,
+        opts.seed,
+    ))
 }
 
 /// Samples `input` and writes the sample file `out` (atomically; never over the input).
@@ -268,4 +281,35 @@ pub(super) fn read_bounded(path: &Path, limits: &Limits) -> Result<Vec<u8>> {
         });
     }
     std::fs::read(path).map_err(open_err)
+}
+
+/// A nodata value in JSON: a number, or the string `"nan"` (JSON has no NaN).
+pub(super) mod nodata_serde {
+    use serde::{Deserialize, Deserializer, Serialize, Serializer};
+
+    #[derive(Serialize, Deserialize)]
+    #[serde(untagged)]
+    enum Repr {
+        Number(f64),
+        Text(String),
+    }
+
+    pub fn serialize<S: Serializer>(v: &Option<f64>, s: S) -> Result<S::Ok, S::Error> {
+        match v {
+            Some(x) if x.is_finite() => Some(Repr::Number(*x)).serialize(s),
+            Some(x) => Some(Repr::Text(format!("{x}").to_ascii_lowercase())).serialize(s),
+            None => None::<Repr>.serialize(s),
+        }
+    }
+
+    pub fn deserialize<'de, D: Deserializer<'de>>(d: D) -> Result<Option<f64>, D::Error> {
+        match Option::<Repr>::deserialize(d)? {
+            None => Ok(None),
+            Some(Repr::Number(x)) => Ok(Some(x)),
+            Some(Repr::Text(t)) => t
+                .parse::<f64>()
+                .map(Some)
+                .map_err(|_| serde::de::Error::custom(format!("'{t}' is not a nodata value"))),
+        }
+    }
 }

@@ -12,6 +12,8 @@ pub(super) struct ClassTally {
     pub(super) pixels: u64,
     /// Σ of the pixels' uncertainty.
     pub(super) uncertainty: f64,
+    /// Σ of the pixels' ground areas, m² (0 when areas are unknown).
+    pub(super) area_m2: f64,
 }
 
 /// Statistics of classes 1..=k (index `class − 1`) and the SSE over all of them.
@@ -29,6 +31,7 @@ impl ClassStats {
             moments: vec![Moments::default(); dim],
             pixels: 0,
             uncertainty: 0.0,
+            area_m2: 0.0,
         };
         ClassStats {
             classes: vec![tally; k],
@@ -36,7 +39,8 @@ impl ClassStats {
         }
     }
 
-    /// Adds rows of `width` pixels: `raw` as read, `assigned` as the classes gave them.
+    /// Adds rows of `width` pixels: `raw` as read, `assigned` as the classes gave them,
+    /// `areas` each pixel's ground area (empty when unknown).
     /// Each row is counted in parallel and the rows are merged in order, so the result
     /// does not depend on the thread count.
     pub(super) fn add_rows(
@@ -44,6 +48,7 @@ impl ClassStats {
         fitted: &FittedClasses,
         raw: &[f32],
         assigned: &Assigned,
+        areas: &[f64],
         width: usize,
     ) {
         let rows = assigned.classes.len().checked_div(width).unwrap_or(0);
@@ -51,7 +56,7 @@ impl ClassStats {
             .into_par_iter()
             .map(|r| {
                 let mut row = ClassStats::new(fitted.k, fitted.dim);
-                row.add_row(fitted, raw, assigned, r * width..(r + 1) * width);
+                row.add_row(fitted, raw, assigned, areas, r * width..(r + 1) * width);
                 row
             })
             .collect();
@@ -66,6 +71,7 @@ impl ClassStats {
         fitted: &FittedClasses,
         raw: &[f32],
         assigned: &Assigned,
+        areas: &[f64],
         range: std::ops::Range<usize>,
     ) {
         let dim = fitted.dim;
@@ -78,6 +84,7 @@ impl ClassStats {
             let tally = &mut self.classes[c - 1];
             tally.pixels += 1;
             tally.uncertainty += assigned.uncertainty[p] as f64;
+            tally.area_m2 += areas.get(p).copied().unwrap_or(0.0);
             fitted.unscaled_features(raw, p, &mut f);
             for (m, &v) in tally.moments.iter_mut().zip(&f) {
                 m.push(v as f64);
@@ -91,6 +98,7 @@ impl ClassStats {
         for (a, b) in self.classes.iter_mut().zip(&other.classes) {
             a.pixels += b.pixels;
             a.uncertainty += b.uncertainty;
+            a.area_m2 += b.area_m2;
             for (ma, mb) in a.moments.iter_mut().zip(&b.moments) {
                 ma.merge(mb);
             }

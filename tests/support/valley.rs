@@ -23,10 +23,20 @@ pub fn write_scene_u16(
     geokeys: &[u16],
     nodata: Option<&str>,
 ) {
-    write_scene_u16_at(path, w, h, bands4, pixel_m, (500_000.0, 5_000_000.0), geokeys, nodata);
+    write_scene_u16_at(
+        path,
+        w,
+        h,
+        bands4,
+        pixel_m,
+        (500_000.0, 5_000_000.0),
+        geokeys,
+        nodata,
+    );
 }
 
 /// A 4-band scene whose top-left corner is at `origin` (easting, northing) in UTM 33N.
+#[allow(clippy::too_many_arguments)]
 pub fn write_scene_u16_at(
     path: &Path,
     w: u32,
@@ -147,12 +157,17 @@ pub fn adjusted_rand(a: &[u8], b: &[u8]) -> f64 {
     (index - expected) / (0.5 * (sa + sb) - expected)
 }
 
+/// A one-band 8-bit raster (a class raster may carry a colour table, which the `tiff`
+/// crate's decoder does not read; the samples are read through our reader).
 pub fn read_u8_tiff(path: &Path) -> (u32, u32, Vec<u8>) {
-    let mut d = tiff::decoder::Decoder::new(std::fs::File::open(path).unwrap()).unwrap();
-    let (w, h) = d.dimensions().unwrap();
-    let tiff::decoder::DecodingResult::U8(v) = d.read_image().unwrap() else {
-        panic!("8-bit class raster expected")
-    };
+    let mut r =
+        chromasift::geotiff::GeoRaster::open(path, &chromasift::limits::Limits::default()).unwrap();
+    let (w, h) = (r.info().width, r.info().height);
+    assert_eq!(r.info().bands, 1);
+    let mut v = Vec::new();
+    for i in 0..r.block_count() {
+        v.extend(r.read_block(i).unwrap().data.iter().map(|&x| x as u8));
+    }
     (w, h, v)
 }
 
@@ -163,4 +178,3 @@ pub fn read_f32_tiff(path: &Path) -> Vec<f32> {
     };
     v
 }
-

@@ -2,6 +2,7 @@
 //! `f32` samples in pixel-interleaved order, or the single block of a decoded image.
 
 use super::decoder::{decode, over_limit, tiff_error, PatchedReader};
+use super::mask::MaskSource;
 use super::types::{Block, RasterInfo, SampleKind};
 use crate::error::Result;
 use std::fs::File;
@@ -21,6 +22,15 @@ pub(super) struct TiffSource {
     pub(super) down: u32,
     /// Set after the decoder failed in a way that may leave it unusable.
     pub(super) poisoned: bool,
+    /// Byte offset and byte count of every strip or tile; a chunk with either 0 is left out
+    /// of the file (GDAL's sparse files) and reads as no data.
+    pub(super) chunks: Vec<(u64, u64)>,
+    /// Samples per pixel stored, alpha included.
+    pub(super) stored_bands: usize,
+    /// The stored sample (0-based) that is alpha: not a band, and 0 means no data.
+    pub(super) alpha: Option<usize>,
+    /// A GDAL mask, inside the file or beside it.
+    pub(super) mask: Option<Box<MaskSource>>,
 }
 
 pub(super) fn image_block(d: &crate::raster::Decoded) -> Block {
@@ -104,7 +114,7 @@ pub(super) fn read_tiff_block(
     let y0 = i * t.chunk_h;
     let rows = t.chunk_h.min(info.height - y0);
     let width = info.width as usize;
-    let bands = info.bands;
+    let bands = t.stored_bands;
     let len = rows as usize * width * bands;
     let mut data: Vec<f32> = Vec::new();
     data.try_reserve_exact(len)
@@ -119,6 +129,20 @@ pub(super) fn read_tiff_block(
             let chunk = plane as u32 * per_plane + i * t.across + c;
             let x0 = (c * t.chunk_w) as usize;
             let src_w = (t.chunk_w as usize).min(width - x0);
+            if matches!(t.chunks.get(chunk as usize), Some(&(0, _) | &(_, 0))) {
+                // Left out of the file: no data.
+                for r in 0..rows as usize {
+                    for x in x0..x0 + src_w {
+                        let px = &mut data[(r * width + x) * bands..(r * width + x + 1) * bands];
+                        if info.planar {
+                            px[plane] = f32::NAN;
+                        } else {
+                            px.fill(f32::NAN);
+                        }
+                    }
+                }
+                continue;
+            }
             let decoder = &mut t.decoder;
             let result = match std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| {
                 decoder.read_chunk(chunk)
@@ -172,6 +196,27 @@ pub(super) fn read_tiff_block(
                 }
             }
         }
+    }
+    if let Some(a) = t.alpha {
+        for px in data.chunks_exact_mut(bands) {
+            if px[a] == 0.0 {
+                px.fill(f32::NAN);
+            }
+        }
+    }
+    if let Some(mask) = t.mask.as_mut() {
+        mask.apply(y0, rows, info.width, bands, &mut data)?;
+    }
+    if let Some(a) = t.alpha {
+        // Drop the alpha sample: pixel-interleaved bands without it, in place.
+        let mut w = 0;
+        for i in 0..data.len() {
+            if i % bands != a {
+                data[w] = data[i];
+                w += 1;
+            }
+        }
+        data.truncate(w);
     }
     Ok(Block { y0, rows, data })
 }

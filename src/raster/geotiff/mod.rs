@@ -9,23 +9,46 @@
 //!
 //! The parts: `tags` (GeoTIFF tags and keys), `types` (raster description and blocks), `decoder`
 //! (shared `tiff` decoder plumbing), `open` (opening and checking a file), `blocks`
-//! (reading one block) and `write` (writing GeoTIFFs).
+//! (reading one block), `mask` (GDAL masks and the reading of their chunks), `metadata`
+//! (GDAL_METADATA: scale, offset, descriptions), `ellipsoid`, `crs`, `tm` and `area` (the CRS
+//! from the GeoKeys, pixel corners to longitude/latitude, ground areas), and `write`,
+//! `write_common` and `write_deflate` (writing GeoTIFFs).
 
+mod area;
 mod blocks;
+mod crs;
 mod decoder;
+mod ellipsoid;
+mod mask;
+mod metadata;
 mod open;
 mod tags;
+mod tm;
 mod types;
 mod write;
+mod write_common;
+mod write_deflate;
 
+pub use area::{footprint_area, AreaMethod, PixelAreas, LATTICE_STEP};
+pub use crs::{geo_key_double, is_equal_area_epsg, Crs, GridCrs, PixelToModel};
+pub use ellipsoid::{ellipsoid_by_code, ellipsoid_of_crs, Ellipsoid};
+pub use metadata::{parse_gdal_metadata, BandMetadata, TAG_GDAL_METADATA};
 pub use open::{GeoRaster, MAX_BANDS};
 pub use tags::{
     parse_nodata, read_geotags, GeoTagValue, GeoTags, TAG_GDAL_NODATA, TAG_GEO_ASCII_PARAMS,
     TAG_GEO_DOUBLE_PARAMS, TAG_GEO_KEY_DIRECTORY, TAG_MODEL_PIXEL_SCALE, TAG_MODEL_TIEPOINT,
     TAG_MODEL_TRANSFORMATION,
 };
+pub use tm::TransverseMercator;
 pub use types::{Block, RasterInfo, SampleKind};
-pub use write::{write_f32_band, write_u8_band};
+pub use write::{write_f32_band, write_f32_band_with, write_u8_band, write_u8_band_with};
+pub use write_common::{bigtiff_needed, WriteOptions, BIGTIFF_ABOVE};
 
 #[cfg(test)]
 mod tests;
+
+#[cfg(test)]
+mod crs_tests;
+
+#[cfg(test)]
+mod gdal_tests;

@@ -2,29 +2,33 @@
 //! sizes against the limits and the file), or another image format decoded whole.
 
 use super::blocks::{image_block, read_tiff_block, TiffSource};
+use super::crs::GridCrs;
 use super::decoder::{
     check_tag_fits, decode, file_len, guarded, is_tiff_magic, over_limit, read_up_to, tiff_decoder,
     tiff_error, unsupported,
 };
+use super::mask::{ifd_chain, one_bytes, MaskSource};
+use super::metadata::read_gdal_metadata;
 use super::tags::{read_geo, read_nodata, GeoTags};
 use super::types::{Block, RasterInfo, SampleKind};
 use crate::error::{Error, Result};
 use crate::limits::Limits;
-use std::fs::File;
-use std::io::{BufReader, Read, Seek, SeekFrom};
+use std::io::{Read, Seek};
 use std::path::{Path, PathBuf};
 use tiff::decoder::{ChunkType, Decoder};
 use tiff::tags::Tag;
 use tiff::ColorType;
 
 /// Largest number of bands accepted from a TIFF.
-pub const MAX_BANDS: usize = 16;
+pub const MAX_BANDS: usize = 256;
 
 /// An open raster, read one block at a time.
 pub struct GeoRaster {
     path: PathBuf,
     info: RasterInfo,
     source: Source,
+    /// A raster on the same grid whose non-zero pixels are left out, and its last block read.
+    exclusion: Option<Box<(GeoRaster, Option<Block>)>>,
 }
 
 impl std::fmt::Debug for GeoRaster {
@@ -103,94 +107,99 @@ impl GeoRaster {
                 format!("block {i} does not exist (the raster has {count} blocks)"),
             ));
         }
-        match &mut self.source {
-            Source::Image(d) => Ok(image_block(d)),
-            Source::Tiff(t) => read_tiff_block(&self.path, &self.info, t, i as u32),
+        let mut block = match &mut self.source {
+            Source::Image(d) => image_block(d),
+            Source::Tiff(t) => read_tiff_block(&self.path, &self.info, t, i as u32)?,
+        };
+        if let Some(ex) = self.exclusion.as_mut() {
+            let (mask, cache) = &mut **ex;
+            let (w, bands) = (self.info.width as usize, self.info.bands);
+            let mask_bands = mask.info.bands;
+            for y in block.y0..block.y0 + block.rows {
+                if !cache
+                    .as_ref()
+                    .is_some_and(|c| (c.y0..c.y0 + c.rows).contains(&y))
+                {
+                    let b = mask.read_block((y / mask.block_rows()) as usize)?;
+                    *cache = Some(b);
+                }
+                let c = cache.as_ref().expect("read above");
+                let line = &c.data[(y - c.y0) as usize * w * mask_bands..];
+                let out = &mut block.data[(y - block.y0) as usize * w * bands..];
+                for x in 0..w {
+                    // Left out where the first band is non-zero, NaN or the mask's nodata.
+                    let m = line[x * mask_bands];
+                    if m != 0.0 || mask.info.is_nodata(m) {
+                        out[x * bands..(x + 1) * bands].fill(f32::NAN);
+                    }
+                }
+            }
         }
+        Ok(block)
+    }
+
+    /// Leaves out (reads as no data) every pixel where the first band of the raster at `path`
+    /// is non-zero, not a number, or that raster's no-data value (for example a cloud mask
+    /// with 1 = cloud). The raster must be on the same grid: same size, and the same
+    /// georeferencing (pixel-to-map transform and CRS) when either has one; otherwise it is
+    /// refused with the difference named.
+    pub fn exclude_where(&mut self, path: &Path, limits: &Limits) -> Result<()> {
+        let mask = GeoRaster::open(path, limits)?;
+        let (a, b) = (&self.info, &mask.info);
+        let refuse = |what: String| {
+            Err(decode(
+                path,
+                format!(
+                    "this mask is not on the grid of {}: {what}",
+                    self.path.display()
+                ),
+            ))
+        };
+        if (a.width, a.height) != (b.width, b.height) {
+            return refuse(format!(
+                "it is {} x {} pixels, the scene {} x {}",
+                b.width, b.height, a.width, a.height
+            ));
+        }
+        let (ga, gb) = (GridCrs::from_tags(&a.geo), GridCrs::from_tags(&b.geo));
+        match (ga.transform, gb.transform) {
+            (Some(ta), Some(tb)) => {
+                let size = ta.pixel_model_area().sqrt();
+                if ta
+                    .0
+                    .iter()
+                    .zip(tb.0)
+                    .any(|(x, y)| (x - y).abs() > 1e-6 * size)
+                {
+                    return refuse(format!(
+                        "its pixel-to-map transform is {:?}, the scene's {:?}",
+                        tb.0, ta.0
+                    ));
+                }
+            }
+            (None, None) => {}
+            (Some(_), None) => return refuse("it has no georeferencing".into()),
+            (None, Some(_)) => return refuse("the scene has no georeferencing".into()),
+        }
+        if ga.crs.describe() != gb.crs.describe() {
+            return refuse(format!(
+                "its CRS is {}, the scene's {}",
+                gb.crs.describe(),
+                ga.crs.describe()
+            ));
+        }
+        self.info.excluded_by = Some(path.to_path_buf());
+        self.exclusion = Some(Box::new((mask, None)));
+        Ok(())
     }
 }
 
-/// Finds where the PhotometricInterpretation value of the first directory is stored, when it
-/// is one inline SHORT. Returns the file offset and the bytes of the value 1 (BlackIsZero) in
-/// the file's byte order.
+/// Where the PhotometricInterpretation value of the first directory is stored, when it is
+/// one inline SHORT: the file offset and the bytes of the value 1 (BlackIsZero) in the file's
+/// byte order.
 fn photometric_patch(path: &Path) -> Option<(u64, [u8; 2])> {
-    let mut f = BufReader::new(File::open(path).ok()?);
-    let mut head = [0u8; 16];
-    if read_up_to(&mut f, &mut head).ok()? < 8 {
-        return None;
-    }
-    let big_endian = match &head[..2] {
-        b"II" => false,
-        b"MM" => true,
-        _ => return None,
-    };
-    let u16_at = |b: &[u8]| {
-        let a = [b[0], b[1]];
-        if big_endian {
-            u16::from_be_bytes(a)
-        } else {
-            u16::from_le_bytes(a)
-        }
-    };
-    let u32_at = |b: &[u8]| {
-        let a = [b[0], b[1], b[2], b[3]];
-        if big_endian {
-            u32::from_be_bytes(a)
-        } else {
-            u32::from_le_bytes(a)
-        }
-    };
-    let u64_at = |b: &[u8]| {
-        let mut a = [0u8; 8];
-        a.copy_from_slice(&b[..8]);
-        if big_endian {
-            u64::from_be_bytes(a)
-        } else {
-            u64::from_le_bytes(a)
-        }
-    };
-    let bigtiff = match u16_at(&head[2..4]) {
-        42 => false,
-        43 => true,
-        _ => return None,
-    };
-    let ifd = if bigtiff {
-        u64_at(&head[8..16])
-    } else {
-        u32_at(&head[4..8]) as u64
-    };
-    f.seek(SeekFrom::Start(ifd)).ok()?;
-    let (entries, entry_len, value_at) = if bigtiff {
-        let mut c = [0u8; 8];
-        f.read_exact(&mut c).ok()?;
-        (u64_at(&c), 20u64, 12u64)
-    } else {
-        let mut c = [0u8; 2];
-        f.read_exact(&mut c).ok()?;
-        (u16_at(&c) as u64, 12u64, 8u64)
-    };
-    let first = ifd + if bigtiff { 8 } else { 2 };
-    let mut e = [0u8; 20];
-    for k in 0..entries.min(4096) {
-        f.read_exact(&mut e[..entry_len as usize]).ok()?;
-        let tag = u16_at(&e[0..2]);
-        if tag != 262 {
-            continue;
-        }
-        let ty = u16_at(&e[2..4]);
-        let count = if bigtiff {
-            u64_at(&e[4..12])
-        } else {
-            u32_at(&e[4..8]) as u64
-        };
-        if ty != 3 || count != 1 {
-            return None;
-        }
-        let at = first + k * entry_len + value_at;
-        let one = if big_endian { [0, 1] } else { [1, 0] };
-        return Some((at, one));
-    }
-    None
+    let at = ifd_chain(path)?.first()?.photometric?.0;
+    Some((at, one_bytes(path)?))
 }
 
 fn open_tiff(path: &Path, limits: &Limits) -> Result<GeoRaster> {
@@ -223,8 +232,9 @@ fn open_tiff(path: &Path, limits: &Limits) -> Result<GeoRaster> {
         let compression: Option<u16> = decoder
             .find_tag_unsigned(Tag::Compression)
             .map_err(|e| tiff_error(path, e))?;
-        // RGB with extra bands (and not JPEG, whose decoder depends on the colour space).
-        if photometric == Some(2) && !matches!(compression, Some(6 | 7)) {
+        // RGB with extra bands (and not JPEG, whose decoder depends on the colour space), or
+        // a palette image, read as its index values (a class raster with a colour table).
+        if matches!(photometric, Some(2 | 3)) && !matches!(compression, Some(6 | 7)) {
             if let Some(patch) = photometric_patch(path) {
                 let patched = tiff_decoder(path, Some(patch), limits)?;
                 decoder = patched;
@@ -345,17 +355,64 @@ fn open_tiff(path: &Path, limits: &Limits) -> Result<GeoRaster> {
 
     let geo = read_geo(&mut decoder, path)?;
     let nodata = read_nodata(&mut decoder, path)?;
+    let extra: Vec<u16> = decoder
+        .find_tag_unsigned_vec::<u16>(Tag::ExtraSamples)
+        .map_err(|e| tiff_error(path, e))?
+        .unwrap_or_default();
+    // ExtraSamples describes the last samples; 1 = associated, 2 = unassociated alpha.
+    let alpha = extra
+        .iter()
+        .position(|&v| v == 1 || v == 2)
+        .filter(|_| extra.len() <= bands)
+        .map(|k| bands - extra.len() + k);
+    if alpha.is_some() && bands == 1 {
+        return Err(unsupported(
+            path,
+            "the only band is alpha; there is nothing to classify",
+        ));
+    }
+    let offsets_tag = if tiled {
+        Tag::TileOffsets
+    } else {
+        Tag::StripOffsets
+    };
+    let counts_tag = if tiled {
+        Tag::TileByteCounts
+    } else {
+        Tag::StripByteCounts
+    };
+    let offsets = decoder
+        .get_tag_u64_vec(offsets_tag)
+        .map_err(|e| tiff_error(path, e))?;
+    let counts = decoder
+        .get_tag_u64_vec(counts_tag)
+        .map_err(|e| tiff_error(path, e))?;
+    let chunks: Vec<(u64, u64)> = offsets.into_iter().zip(counts).collect();
+    let sparse_chunks = chunks.iter().filter(|c| c.0 == 0 || c.1 == 0).count();
+    let mut meta = read_gdal_metadata(&mut decoder, path, bands)?;
+    if let Some(a) = alpha {
+        meta.scale_offset.remove(a);
+        meta.descriptions.remove(a);
+    }
+    let mask = MaskSource::find(path, width, height, limits)?;
+    let mask_origin = mask.as_ref().map(|m| m.origin.clone());
     Ok(GeoRaster {
         path: path.into(),
         info: RasterInfo {
             width,
             height,
-            bands,
+            bands: bands - alpha.is_some() as usize,
             sample,
             planar,
             tiled,
             geo,
             nodata,
+            alpha_band: alpha.map(|a| a + 1),
+            mask: mask_origin,
+            sparse_chunks,
+            excluded_by: None,
+            scale_offset: meta.scale_offset,
+            descriptions: meta.descriptions,
         },
         source: Source::Tiff(Box::new(TiffSource {
             decoder,
@@ -364,7 +421,12 @@ fn open_tiff(path: &Path, limits: &Limits) -> Result<GeoRaster> {
             across,
             down,
             poisoned: false,
+            chunks,
+            stored_bands: bands,
+            alpha,
+            mask: mask.map(Box::new),
         })),
+        exclusion: None,
     })
 }
 
@@ -406,8 +468,15 @@ fn open_image(path: &Path, limits: &Limits) -> Result<GeoRaster> {
             tiled: false,
             geo: GeoTags::default(),
             nodata: None,
+            alpha_band: None,
+            mask: None,
+            sparse_chunks: 0,
+            excluded_by: None,
+            scale_offset: vec![(1.0, 0.0); 3],
+            descriptions: vec![None; 3],
         },
         source: Source::Image(d),
+        exclusion: None,
     })
 }
 

@@ -717,6 +717,7 @@ fn writers_go_strip_by_strip() {
         &GeoTags::default(),
         None,
         Some(3),
+        &WriteOptions::default(),
         &mut |y0, rows| {
             calls.push((y0, rows));
             Ok(values[(y0 * w) as usize..((y0 + rows) * w) as usize].to_vec())

@@ -68,7 +68,7 @@ pub struct RasterInfo {
     pub width: u32,
     /// Height in pixels (rows).
     pub height: u32,
-    /// Number of bands (samples per pixel), 1–16.
+    /// Number of bands (samples per pixel, an alpha sample not counted), 1–256.
     pub bands: usize,
     /// Stored sample type (every block is converted to `f32`).
     pub sample: SampleKind,
@@ -80,6 +80,22 @@ pub struct RasterInfo {
     pub geo: GeoTags,
     /// No-data value from GDAL_NODATA (tag 42113), in sample units; may be NaN.
     pub nodata: Option<f64>,
+    /// The stored sample (1-based) that is alpha (TIFF ExtraSamples 1 or 2): it is not one of
+    /// the `bands`, and where it is 0 the pixel holds no data.
+    pub alpha_band: Option<usize>,
+    /// Where a GDAL mask was found (`"internal"`, or the name of the `.msk` file beside the
+    /// raster); pixels it marks 0 hold no data.
+    pub mask: Option<String>,
+    /// Strips or tiles left out of the file (offset or byte count 0), read as no data.
+    pub sparse_chunks: usize,
+    /// A raster on the same grid whose non-zero pixels are left out (see
+    /// `GeoRaster::exclude_where`).
+    pub excluded_by: Option<std::path::PathBuf>,
+    /// Per band (alpha left out): physical value = stored × scale + offset, from
+    /// GDAL_METADATA ((1, 0) when not given). No-data values compare with stored values.
+    pub scale_offset: Vec<(f64, f64)>,
+    /// Per band (alpha left out): the band's description from GDAL_METADATA.
+    pub descriptions: Vec<Option<String>>,
 }
 
 impl RasterInfo {

@@ -1,26 +1,19 @@
 //! Writing single-band GeoTIFFs strip by strip, with the source's GeoTIFF tags and an
-//! optional GDAL_NODATA value.
+//! optional GDAL_NODATA value; on request DEFLATE-compressed (with the horizontal predictor
+//! for integers), as BigTIFF, and with a colour table (PhotometricInterpretation palette).
 
-use super::tags::{geo_tag_name, parse_nodata, GeoTagValue, GeoTags, TAG_GDAL_NODATA};
+use super::tags::{geo_tag_name, parse_nodata, GeoTagValue, GeoTags};
+use super::write_common::{
+    colour_map, write_geo_tags, writer_error, NativeBytes, WriteOptions, OUTPUT_NAME,
+};
 use crate::error::{Error, Result};
 use std::io::{Seek, Write};
 use tiff::encoder::colortype;
-use tiff::encoder::TiffEncoder;
+use tiff::encoder::{TiffEncoder, TiffKind, TiffKindBig, TiffKindStandard};
 use tiff::tags::Tag;
-use tiff::TiffError;
 
 /// Target size of one written strip, in bytes (the writer holds one strip at a time).
 const STRIP_TARGET_BYTES: u64 = 256 * 1024;
-
-/// Name used in error messages about the output of the writers (which see only a stream).
-const OUTPUT_NAME: &str = "GeoTIFF output";
-
-fn writer_error(e: TiffError) -> Error {
-    match e {
-        TiffError::IoError(source) => Error::io(OUTPUT_NAME, source),
-        other => Error::output(OUTPUT_NAME, format!("cannot write GeoTIFF: {other}")),
-    }
-}
 
 /// Rows per strip for a row of `row_bytes` bytes: strips of about 256 KiB, at least one row.
 pub(super) fn rows_per_strip(row_bytes: u64, height: u32) -> u32 {
@@ -45,11 +38,44 @@ pub(super) fn write_band<W, C>(
     geo: &GeoTags,
     nodata: Option<&str>,
     strip_rows: Option<u32>,
+    opts: &WriteOptions,
     next_rows: &mut dyn FnMut(u32, u32) -> Result<Vec<C::Inner>>,
 ) -> Result<()>
 where
     W: Write + Seek,
     C: colortype::ColorType,
+    C::Inner: NativeBytes,
+    [C::Inner]: tiff::encoder::TiffValue,
+{
+    if opts.big {
+        let encoder = TiffEncoder::new_big(w).map_err(writer_error)?;
+        write_with::<W, C, TiffKindBig>(
+            encoder, width, height, geo, nodata, strip_rows, opts, next_rows,
+        )
+    } else {
+        let encoder = TiffEncoder::new(w).map_err(writer_error)?;
+        write_with::<W, C, TiffKindStandard>(
+            encoder, width, height, geo, nodata, strip_rows, opts, next_rows,
+        )
+    }
+}
+
+#[allow(clippy::too_many_arguments)]
+fn write_with<W, C, K>(
+    encoder: TiffEncoder<W, K>,
+    width: u32,
+    height: u32,
+    geo: &GeoTags,
+    nodata: Option<&str>,
+    strip_rows: Option<u32>,
+    opts: &WriteOptions,
+    next_rows: &mut dyn FnMut(u32, u32) -> Result<Vec<C::Inner>>,
+) -> Result<()>
+where
+    W: Write + Seek,
+    C: colortype::ColorType,
+    C::Inner: NativeBytes,
+    K: TiffKind,
     [C::Inner]: tiff::encoder::TiffValue,
 {
     if width == 0 || height == 0 {
@@ -77,28 +103,31 @@ where
         .unwrap_or_else(|| rows_per_strip(width as u64 * sample_bytes, height))
         .clamp(1, height);
 
-    let mut encoder = TiffEncoder::new(w).map_err(writer_error)?;
+    if opts.deflate {
+        return super::write_deflate::write_deflate::<W, C, K>(
+            encoder, width, height, geo, nodata, rps, opts, next_rows,
+        );
+    }
+    let mut encoder = encoder;
     let mut image = encoder
         .new_image::<C>(width, height)
         .map_err(writer_error)?;
     image.rows_per_strip(rps).map_err(writer_error)?;
     {
         let dir = image.encoder();
-        for (code, value) in geo.entries() {
-            let tag = Tag::from_u16_exhaustive(code);
-            match value {
-                GeoTagValue::Short(v) => dir.write_tag(tag, &v[..]),
-                GeoTagValue::Long(v) => dir.write_tag(tag, &v[..]),
-                GeoTagValue::Float(v) => dir.write_tag(tag, &v[..]),
-                GeoTagValue::Double(v) => dir.write_tag(tag, &v[..]),
-                GeoTagValue::Ascii(s) => dir.write_tag(tag, s.as_str()),
+        if let Some(colours) = &opts.colour_map {
+            if std::mem::size_of::<C::Inner>() != 1 {
+                return Err(Error::output(
+                    OUTPUT_NAME,
+                    "a colour table needs an 8-bit band",
+                ));
             }
-            .map_err(writer_error)?;
-        }
-        if let Some(text) = nodata {
-            dir.write_tag(Tag::from_u16_exhaustive(TAG_GDAL_NODATA), text)
+            dir.write_tag(Tag::PhotometricInterpretation, 3u16)
+                .map_err(writer_error)?;
+            dir.write_tag(Tag::ColorMap, &colour_map(colours)[..])
                 .map_err(writer_error)?;
         }
+        write_geo_tags(dir, geo, nodata)?;
     }
     let mut y0 = 0u32;
     while y0 < height {
@@ -134,7 +163,44 @@ pub fn write_u8_band<W: Write + Seek>(
     nodata: Option<&str>,
     next_rows: &mut dyn FnMut(u32, u32) -> Result<Vec<u8>>,
 ) -> Result<()> {
-    write_band::<W, colortype::Gray8>(w, width, height, geo, nodata, None, next_rows)
+    write_band::<W, colortype::Gray8>(
+        w,
+        width,
+        height,
+        geo,
+        nodata,
+        None,
+        &WriteOptions::default(),
+        next_rows,
+    )
+}
+
+/// Writes a single-band 8-bit GeoTIFF as [`write_u8_band`] does, with `opts` (compression,
+/// BigTIFF, colour table).
+pub fn write_u8_band_with<W: Write + Seek>(
+    w: W,
+    width: u32,
+    height: u32,
+    geo: &GeoTags,
+    nodata: Option<&str>,
+    opts: &WriteOptions,
+    next_rows: &mut dyn FnMut(u32, u32) -> Result<Vec<u8>>,
+) -> Result<()> {
+    write_band::<W, colortype::Gray8>(w, width, height, geo, nodata, None, opts, next_rows)
+}
+
+/// Writes a single-band 32-bit float GeoTIFF as [`write_f32_band`] does, with `opts`
+/// (compression without predictor, BigTIFF; no colour table).
+pub fn write_f32_band_with<W: Write + Seek>(
+    w: W,
+    width: u32,
+    height: u32,
+    geo: &GeoTags,
+    nodata: Option<&str>,
+    opts: &WriteOptions,
+    next_rows: &mut dyn FnMut(u32, u32) -> Result<Vec<f32>>,
+) -> Result<()> {
+    write_band::<W, colortype::Gray32Float>(w, width, height, geo, nodata, None, opts, next_rows)
 }
 
 /// Writes a single-band 32-bit float GeoTIFF strip by strip; otherwise as [`write_u8_band`].
@@ -146,5 +212,14 @@ pub fn write_f32_band<W: Write + Seek>(
     nodata: Option<&str>,
     next_rows: &mut dyn FnMut(u32, u32) -> Result<Vec<f32>>,
 ) -> Result<()> {
-    write_band::<W, colortype::Gray32Float>(w, width, height, geo, nodata, None, next_rows)
+    write_band::<W, colortype::Gray32Float>(
+        w,
+        width,
+        height,
+        geo,
+        nodata,
+        None,
+        &WriteOptions::default(),
+        next_rows,
+    )
 }
