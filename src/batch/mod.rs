@@ -587,7 +587,8 @@ fn csv_field(s: &str) -> String {
     }
 }
 
-/// `batch-report.csv`: one row per file, then a totals row.
+/// `batch-report.csv`: a header and one row per file, all of one shape (the totals are
+/// in `batch-report.json`, under `totals`).
 pub fn report_csv(r: &BatchReport) -> String {
     let mut s = String::from("input,status,error,colors,mean_delta_e2000,seconds\n");
     for f in &r.files {
@@ -603,11 +604,6 @@ pub fn report_csv(r: &BatchReport) -> String {
             f.seconds
         ));
     }
-    let t = &r.totals;
-    s.push_str(&format!(
-        "TOTAL,ok {} skipped {} failed {} interrupted {},,,,{:.3}\n",
-        t.ok, t.skipped, t.failed, t.interrupted, t.seconds
-    ));
     s
 }
 
