@@ -54,6 +54,22 @@ pub struct PaletteFlags {
     /// toward -k and never move.
     #[arg(long = "pin", value_name = "COLOUR", value_parser = crate::families::parse_colour, conflicts_with = "target_delta_e")]
     pub pin: Vec<[u8; 3]>,
+
+    /// Colours the palette must hold exactly, read from a file: a palette document, a list
+    /// of hex colours (one per line) or a CSV table with hex or L,a,b columns (as
+    /// `apply --palette` reads them). Repeat for more; taken with any --pin.
+    #[arg(long = "pin-file", value_name = "FILE", value_parser = parse_pin_file, conflicts_with = "target_delta_e")]
+    pub pin_file: Vec<PinFile>,
+}
+
+/// The colours of one `--pin-file`.
+#[derive(Debug, Clone, PartialEq)]
+pub struct PinFile(pub Vec<[u8; 3]>);
+
+fn parse_pin_file(s: &str) -> Result<PinFile, String> {
+    crate::learn::read_palette(std::path::Path::new(s))
+        .map(|p| PinFile(p.colours))
+        .map_err(|e| super::flag_wording(&e.to_string()))
 }
 
 /// How reduced images are written: shared by `reduce`, `batch` and `apply`.
@@ -87,7 +103,12 @@ fn reduce_options(
         uncertainty_raw: image.is_some_and(|i| i.uncertainty_raw),
         target: quality_target(palette.target_delta_e, palette.target_p95, palette.k_max),
         objective: palette.objective,
-        pinned: palette.pin.clone(),
+        pinned: palette
+            .pin
+            .iter()
+            .chain(palette.pin_file.iter().flat_map(|f| &f.0))
+            .copied()
+            .collect(),
     }
 }
 

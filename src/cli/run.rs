@@ -412,6 +412,7 @@ fn note_fitting_flags(command: &str, args: &BatchArgs) {
         (p.k != 8, "-k"),
         (p.target_delta_e.is_some(), "--target-delta-e"),
         (!p.pin.is_empty(), "--pin"),
+        (!p.pin_file.is_empty(), "--pin-file"),
     ]
     .into_iter()
     .filter(|&(set, _)| set)
