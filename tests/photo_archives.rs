@@ -1,6 +1,9 @@
 //! Photo archives: palettes from any table, colour-managed input, metadata carried, the
 //! loss map and the review page, checked against values computed outside the project.
 
+#[allow(dead_code)]
+#[path = "common/artwork.rs"]
+mod artwork;
 mod common;
 
 use chromasift::learn::read_palette;
@@ -183,4 +186,81 @@ fn apply_batch_and_pins_take_a_list_of_hex_colours() {
     assert_eq!(o.status.code(), Some(2));
     let e = stderr(&o);
     assert!(e.contains("brand.txt") && e.contains("line 2"), "{e}");
+}
+
+/// Reference CIELAB of the profile fixtures' patches, by colour-science 0.4.7
+/// (`fixtures/profiles/lab_reference.csv`, made by
+/// `tests/reference/make_profile_fixtures.py`): (space, RGB numbers, CIELAB D65).
+fn profile_reference() -> Vec<(String, [u8; 3], [f64; 3])> {
+    let (header, rows) = read_csv("profiles/lab_reference.csv");
+    let at = |n: &str| header.iter().position(|h| h == n).unwrap();
+    rows.iter()
+        .map(|r| {
+            (
+                r[at("space")].clone(),
+                [at("r"), at("g"), at("b")].map(|i| r[i].parse().unwrap()),
+                [at("L"), at("a"), at("b_")].map(|i| r[i].parse().unwrap()),
+            )
+        })
+        .collect()
+}
+
+/// CIELAB of each distinct colour of a decoded image, read through its embedded profile.
+fn labs_through_profile(file: &str) -> (String, Vec<([u16; 3], [f64; 3])>) {
+    use chromasift::colour::profile::{read_profile, ProfileUse};
+    let img = chromasift::raster::decode(&fixture(file), &chromasift::Limits::default()).unwrap();
+    let icc = img
+        .icc_profile
+        .as_deref()
+        .unwrap_or_else(|| panic!("{file}: no profile read"));
+    let ProfileUse::Convert(p) = read_profile(icc) else {
+        panic!("{file}: the profile is not applied");
+    };
+    let chromasift::raster::Pixels::Rgba8(px) = &img.pixels else {
+        panic!("8-bit fixture");
+    };
+    let h = chromasift::histogram::from_rgba8(px).histogram;
+    let (_, labs) = chromasift::features::rows::entry_features_in(
+        &h,
+        chromasift::colour::Space::Cielab,
+        Some(&p),
+    );
+    (
+        p.description.clone(),
+        h.colours.iter().copied().zip(labs).collect(),
+    )
+}
+
+#[test]
+fn tagged_images_are_read_through_their_profiles_as_colour_science_computes() {
+    let refs = profile_reference();
+    // Lossless files hold the patch numbers exactly: CIELAB within 0.05 ΔE2000 (the
+    // profile stores its colorants in s15Fixed16 and the curves are evaluated in single
+    // precision). The JPEG (quality 95) decodes within a step or two of them: 1.0.
+    for (file, space, tolerance) in [
+        ("profiles/p3.png", "display-p3", 0.05),
+        ("profiles/p3.tif", "display-p3", 0.05),
+        ("profiles/p3.webp", "display-p3", 0.05),
+        ("profiles/wide.png", "wide-gamut", 0.05),
+        ("profiles/p3.jpg", "display-p3", 1.0),
+    ] {
+        let (description, labs) = labs_through_profile(file);
+        assert!(description.starts_with("chromasift test"), "{description}");
+        for (_, rgb, want) in refs.iter().filter(|r| r.0 == space) {
+            // The decoded colour nearest to the patch's numbers (exact for lossless files).
+            let (_, got) = labs
+                .iter()
+                .min_by_key(|(c, _)| {
+                    (0..3)
+                        .map(|k| (c[k] as i32 - rgb[k] as i32).pow(2))
+                        .sum::<i32>()
+                })
+                .unwrap();
+            let de = artwork::ciede2000(*got, *want);
+            assert!(
+                de <= tolerance,
+                "{file} {rgb:?}: ours {got:?}, colour-science {want:?}, ΔE2000 {de:.3}"
+            );
+        }
+    }
 }

@@ -323,6 +323,13 @@ pub fn up_to_date(
     if !names[..needed].iter().all(|n| out_dir.join(n).is_file()) {
         return false;
     }
+    if opts.loss_map
+        && !reduce::loss_names(stem)
+            .iter()
+            .all(|n| out_dir.join(n).is_file())
+    {
+        return false;
+    }
     let Ok(bytes) = std::fs::read(out_dir.join(&names[1])) else {
         return false;
     };
@@ -351,7 +358,10 @@ fn reduce_one(
     opts: &BatchOptions,
     fixed: Option<&FixedPalette>,
 ) -> Result<reduce::ReduceReport> {
-    for name in reduce::output_names(stem) {
+    for name in reduce::output_names(stem)
+        .into_iter()
+        .chain(reduce::loss_names(stem))
+    {
         let target = out_dir.join(name);
         if std::fs::canonicalize(&target).is_ok_and(|c| inputs.contains(&c)) {
             return Err(Error::output(

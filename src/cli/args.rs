@@ -4,7 +4,7 @@ use super::engine::{BetaFlag, EngineFlags, FolderOutput, LimitFlag, SceneFlags};
 use crate::colour::Space;
 use crate::features::quality::{QualityTarget, TargetStatistic};
 use crate::limits::Limits;
-use crate::reduce::ReduceOptions;
+use crate::reduce::{OutputProfile, ReduceOptions};
 use crate::render::Dither;
 use clap::Args;
 use std::path::PathBuf;
@@ -83,6 +83,25 @@ pub struct ImageFlags {
     #[arg(long = "uncertainty-raw")]
     pub uncertainty_raw: bool,
 
+    /// Also write the per-pixel CIEDE2000 between source and reduced image:
+    /// STEM.loss.tif (32-bit float) and STEM.loss.png (a colour scale with its legend).
+    #[arg(long = "loss-map")]
+    pub loss_map: bool,
+
+    /// The numbers the reduced image is written in: `source` (the input's colour profile,
+    /// embedded again; sRGB for an untagged input) or `srgb`.
+    #[arg(
+        long = "output-profile",
+        default_value = "source",
+        value_name = "source|srgb"
+    )]
+    pub output_profile: crate::reduce::OutputProfile,
+
+    /// Do not carry the input's EXIF, colour profile and resolution into the reduced
+    /// image (the numbers are then sRGB).
+    #[arg(long = "strip-metadata")]
+    pub strip_metadata: bool,
+
     #[command(flatten)]
     pub limit: LimitFlag,
 }
@@ -101,6 +120,9 @@ fn reduce_options(
         dither: image.map_or(Dither::None, |i| i.dither),
         limits,
         uncertainty_raw: image.is_some_and(|i| i.uncertainty_raw),
+        loss_map: image.is_some_and(|i| i.loss_map),
+        output_profile: image.map_or(OutputProfile::Source, |i| i.output_profile),
+        keep_metadata: !image.is_some_and(|i| i.strip_metadata),
         target: quality_target(palette.target_delta_e, palette.target_p95, palette.k_max),
         objective: palette.objective,
         pinned: palette

@@ -217,7 +217,7 @@ fn reduce_stream(args: &ReduceArgs) -> Result<reduce::ReduceReport, Error> {
         }
         None => {
             let mut set = crate::output::OutputSet::prepare(&args.output.out, &[])?;
-            reduce::write_reduction(&red, "stdin", &mut set, opts.uncertainty_raw)?;
+            reduce::write_reduction(&red, "stdin", &mut set, opts.uncertainty_raw, opts.loss_map)?;
             set.commit()?
         }
     };

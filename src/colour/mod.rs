@@ -8,6 +8,7 @@
 pub mod adapt;
 pub mod delta_e;
 pub mod inks;
+pub mod profile;
 pub mod table;
 
 use palette::{FromColor, IntoColor, Lab, LinSrgb, Oklab, Srgb, Xyz};

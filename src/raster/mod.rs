@@ -5,7 +5,7 @@ pub mod walk;
 
 use crate::error::{Error, Result};
 use crate::limits::Limits;
-use image::{ColorType, DynamicImage, ImageReader};
+use image::{ColorType, DynamicImage, ImageDecoder, ImageReader};
 use std::io::{Cursor, Read, Seek, Write};
 use std::path::Path;
 
@@ -32,6 +32,10 @@ pub struct Decoded {
     /// True when the file holds more frames or pages than the first, which alone was
     /// decoded (an animated GIF, PNG or WebP, a multi-page TIFF).
     pub more_frames: bool,
+    /// The embedded ICC profile, as stored (`None`: untagged, read as sRGB).
+    pub icc_profile: Option<Vec<u8>>,
+    /// The EXIF block (TIFF-structured, without the JPEG `Exif\0\0` prefix), as stored.
+    pub exif: Option<Vec<u8>>,
 }
 
 impl Decoded {
@@ -66,6 +70,8 @@ impl Decoded {
             has_alpha,
             dpi: None,
             more_frames: false,
+            icc_profile: None,
+            exif: None,
         }
     }
 }
@@ -449,6 +455,8 @@ pub fn decode_bytes(bytes: &[u8], name: &Path, limits: &Limits) -> Result<Decode
     let stripped = png_without_profile(bytes);
     let dpi = sniff_dpi(bytes);
     let more_frames = has_more_frames(bytes);
+    // The PNG profile is read here, from the chunk the decoder will not see.
+    let png_icc = stripped.as_ref().and_then(|_| png_icc_profile(bytes));
     let bytes = stripped.as_deref().unwrap_or(bytes);
     let reader = ImageReader::new(Cursor::new(bytes))
         .with_guessed_format()
@@ -520,11 +528,66 @@ pub fn decode_bytes(bytes: &[u8], name: &Path, limits: &Limits) -> Result<Decode
     il.max_image_height = Some(height);
     il.max_alloc = Some(limits.max_alloc);
     reader.limits(il);
-    let img = reader.decode().map_err(|e| decode_error(name, e))?;
+    let mut decoder = reader.into_decoder().map_err(|e| decode_error(name, e))?;
+    // Metadata the reduced image carries on: the colour profile (PNG iCCP, read here with
+    // a bound on its inflated size; JPEG APP2, TIFF tag 34675 and WebP ICCP from the
+    // decoders) and EXIF. A profile or EXIF block that cannot be read is left out.
+    let icc_profile = match stripped {
+        Some(_) => png_icc,
+        // The reader's TIFF decoder does not pass the profile on: read tag 34675 here.
+        None if tiff => tiff_icc_profile(bytes),
+        None => decoder.icc_profile().ok().flatten(),
+    }
+    .filter(|p| !p.is_empty());
+    let exif = decoder
+        .exif_metadata()
+        .ok()
+        .flatten()
+        .filter(|e| !e.is_empty());
+    let img = DynamicImage::from_decoder(decoder).map_err(|e| decode_error(name, e))?;
     let mut d = from_dynamic(img);
     d.dpi = dpi;
     d.more_frames = more_frames;
+    d.icc_profile = icc_profile;
+    d.exif = exif;
     Ok(d)
+}
+
+/// The colour profile of a TIFF's first image (tag 34675, InterColorProfile).
+fn tiff_icc_profile(bytes: &[u8]) -> Option<Vec<u8>> {
+    let mut d = tiff::decoder::Decoder::new(Cursor::new(bytes)).ok()?;
+    d.get_tag_u8_vec(tiff::tags::Tag::IccProfile)
+        .ok()
+        .filter(|p| p.len() <= MAX_PROFILE_BYTES)
+}
+
+/// Largest embedded colour profile read, inflated (the largest profiles in use, with
+/// lookup tables, are a few hundred kilobytes).
+pub const MAX_PROFILE_BYTES: usize = 4 << 20;
+
+/// The first iCCP chunk's profile, inflated to at most [`MAX_PROFILE_BYTES`].
+pub fn png_icc_profile(bytes: &[u8]) -> Option<Vec<u8>> {
+    let mut pos = 8usize;
+    while pos + 12 <= bytes.len() {
+        let len = u32::from_be_bytes(bytes[pos..pos + 4].try_into().ok()?) as usize;
+        let data = bytes.get(pos + 8..pos.checked_add(8)?.checked_add(len)?)?;
+        match &bytes[pos + 4..pos + 8] {
+            b"iCCP" => {
+                // Name (1-79 bytes), NUL, compression method 0, zlib data.
+                let nul = data.iter().position(|&b| b == 0)?;
+                let z = data.get(nul + 2..)?;
+                return miniz_oxide::inflate::decompress_to_vec_zlib_with_limit(
+                    z,
+                    MAX_PROFILE_BYTES,
+                )
+                .ok();
+            }
+            b"IDAT" | b"IEND" => return None,
+            _ => {}
+        }
+        pos = pos.checked_add(12)?.checked_add(len)?;
+    }
+    None
 }
 
 fn from_dynamic(img: DynamicImage) -> Decoded {
@@ -552,6 +615,8 @@ fn from_dynamic(img: DynamicImage) -> Decoded {
         has_alpha,
         dpi: None,
         more_frames: false,
+        icc_profile: None,
+        exif: None,
     }
 }
 
@@ -560,6 +625,40 @@ fn png_error(e: png::EncodingError) -> std::io::Error {
         png::EncodingError::IoError(io) => io,
         other => std::io::Error::other(other.to_string()),
     }
+}
+
+/// Metadata a written PNG carries: colour profile (iCCP), EXIF (eXIf) and resolution
+/// (pHYs, in pixels per metre).
+#[derive(Debug, Clone, Copy, Default, PartialEq)]
+pub struct PngExtras<'a> {
+    pub icc_profile: Option<&'a [u8]>,
+    pub exif: Option<&'a [u8]>,
+    pub dpi: Option<f64>,
+}
+
+fn encoder_with<W: Write>(
+    w: W,
+    width: u32,
+    height: u32,
+    extras: &PngExtras<'_>,
+) -> png::Encoder<'static, W> {
+    let mut info = png::Info::with_size(width, height);
+    info.icc_profile = extras
+        .icc_profile
+        .map(|p| std::borrow::Cow::Owned(p.to_vec()));
+    // PNG's eXIf holds the TIFF structure alone, without JPEG's `Exif\0\0` prefix.
+    info.exif_metadata = extras
+        .exif
+        .map(|e| std::borrow::Cow::Owned(e.strip_prefix(b"Exif\0\0").unwrap_or(e).to_vec()));
+    info.pixel_dims = extras.dpi.filter(|d| d.is_finite() && *d > 0.0).map(|d| {
+        let ppm = (d / 0.0254).round().clamp(1.0, u32::MAX as f64) as u32;
+        png::PixelDimensions {
+            xppu: ppm,
+            yppu: ppm,
+            unit: png::Unit::Meter,
+        }
+    });
+    png::Encoder::with_info(w, info).expect("an Info of a fresh image is valid")
 }
 
 /// Writes an indexed (palette) PNG; `transparent` marks one palette index as fully
@@ -572,7 +671,28 @@ pub fn write_indexed_png<W: Write>(
     transparent: Option<u8>,
     indices: &[u8],
 ) -> std::io::Result<()> {
-    let mut enc = png::Encoder::new(w, width, height);
+    write_indexed_png_with(
+        w,
+        width,
+        height,
+        palette,
+        transparent,
+        indices,
+        &PngExtras::default(),
+    )
+}
+
+/// As [`write_indexed_png`], with metadata.
+pub fn write_indexed_png_with<W: Write>(
+    w: W,
+    width: u32,
+    height: u32,
+    palette: &[[u8; 3]],
+    transparent: Option<u8>,
+    indices: &[u8],
+    extras: &PngExtras<'_>,
+) -> std::io::Result<()> {
+    let mut enc = encoder_with(w, width, height, extras);
     enc.set_compression(png::Compression::Fast);
     enc.set_color(png::ColorType::Indexed);
     let bits = match palette.len() {
@@ -631,7 +751,18 @@ fn pack_indices<const PER: usize>(indices: &[u8], width: usize) -> Vec<u8> {
 
 /// Writes an 8-bit RGBA PNG.
 pub fn write_rgba_png<W: Write>(w: W, width: u32, height: u32, rgba: &[u8]) -> std::io::Result<()> {
-    let mut enc = png::Encoder::new(w, width, height);
+    write_rgba_png_with(w, width, height, rgba, &PngExtras::default())
+}
+
+/// As [`write_rgba_png`], with metadata.
+pub fn write_rgba_png_with<W: Write>(
+    w: W,
+    width: u32,
+    height: u32,
+    rgba: &[u8],
+    extras: &PngExtras<'_>,
+) -> std::io::Result<()> {
+    let mut enc = encoder_with(w, width, height, extras);
     enc.set_compression(png::Compression::Fast);
     enc.set_color(png::ColorType::Rgba);
     enc.set_depth(png::BitDepth::Eight);
