@@ -264,3 +264,222 @@ fn tagged_images_are_read_through_their_profiles_as_colour_science_computes() {
         }
     }
 }
+
+/// The EXIF block (TIFF structure) of a PNG (eXIf chunk) or JPEG (APP1 `Exif\0\0`), read
+/// by walking chunks and marker segments here (PNG spec 1.5 eXIf; JPEG ITU-T T.81 B.1.1).
+fn exif_block(bytes: &[u8]) -> Option<Vec<u8>> {
+    if bytes.starts_with(b"\x89PNG") {
+        let mut pos = 8;
+        while pos + 12 <= bytes.len() {
+            let len = u32::from_be_bytes(bytes[pos..pos + 4].try_into().unwrap()) as usize;
+            if &bytes[pos + 4..pos + 8] == b"eXIf" {
+                return Some(bytes[pos + 8..pos + 8 + len].to_vec());
+            }
+            pos += 12 + len;
+        }
+        return None;
+    }
+    let mut i = 2;
+    while i + 4 <= bytes.len() && bytes[i] == 0xFF {
+        let m = bytes[i + 1];
+        let len = u16::from_be_bytes([bytes[i + 2], bytes[i + 3]]) as usize;
+        let body = &bytes[i + 4..i + 2 + len];
+        if m == 0xE1 && body.starts_with(b"Exif\0\0") {
+            return Some(body[6..].to_vec());
+        }
+        if m == 0xDA {
+            break;
+        }
+        i += 2 + len;
+    }
+    None
+}
+
+/// Reads a written PNG's iCCP, eXIf, pHYs and palette with the `png` crate's decoder.
+struct Written {
+    icc: Option<Vec<u8>>,
+    exif: Option<Vec<u8>>,
+    ppm: Option<(u32, u32)>,
+    palette: Option<Vec<u8>>,
+}
+
+fn written(path: &std::path::Path) -> Written {
+    let bytes = std::fs::read(path).unwrap();
+    let r = png::Decoder::new(std::io::Cursor::new(&bytes))
+        .read_info()
+        .unwrap();
+    let info = r.info();
+    Written {
+        icc: info.icc_profile.as_ref().map(|c| c.to_vec()),
+        exif: info.exif_metadata.as_ref().map(|c| c.to_vec()),
+        ppm: info.pixel_dims.map(|d| (d.xppu, d.yppu)),
+        palette: info.palette.as_ref().map(|c| c.to_vec()),
+    }
+}
+
+fn reduce_fixture(file: &str, extra: &[&str], out: &std::path::Path) -> serde_json::Value {
+    let f = fixture(file);
+    let mut args = vec![
+        "reduce",
+        f.to_str().unwrap(),
+        "-k",
+        "12",
+        "-o",
+        out.to_str().unwrap(),
+    ];
+    args.extend_from_slice(extra);
+    let o = run(&args, &[]);
+    assert_eq!(o.status.code(), Some(0), "{}", stderr(&o));
+    let stem = std::path::Path::new(file)
+        .file_stem()
+        .unwrap()
+        .to_string_lossy()
+        .into_owned();
+    serde_json::from_slice(&std::fs::read(out.join(format!("{stem}.palette.json"))).unwrap())
+        .unwrap()
+}
+
+#[test]
+fn profile_exif_and_resolution_are_carried_into_the_reduced_image() {
+    let dir = tempfile::tempdir().unwrap();
+    let icc = std::fs::read(fixture("profiles/display-p3.icc")).unwrap();
+    for (file, stem) in [("profiles/p3.png", "p3"), ("profiles/p3.jpg", "p3")] {
+        let source_exif = exif_block(&std::fs::read(fixture(file)).unwrap()).unwrap();
+        // Orientation 6 as written by the fixture script (TIFF 6.0 tag 274, EXIF 2.32).
+        assert!(source_exif
+            .windows(2)
+            .any(|w| w == [0x01, 0x12] || w == [0x12, 0x01]));
+        let out = dir.path().join(file.replace('/', "-"));
+        let doc = reduce_fixture(file, &[], &out);
+        assert_eq!(doc["colour_profile"]["input"], "icc");
+        assert_eq!(doc["colour_profile"]["output"], "source");
+        assert_eq!(
+            doc["colour_profile"]["description"],
+            "chromasift test Display P3"
+        );
+        let w = written(&out.join(format!("{stem}.reduced.png")));
+        assert_eq!(w.icc.as_deref(), Some(&icc[..]), "{file}: profile");
+        assert_eq!(w.exif.as_deref(), Some(&source_exif[..]), "{file}: EXIF");
+        // 300 dpi = 11811 pixels per metre (PNG 1.2, pHYs; 1 inch = 0.0254 m).
+        assert_eq!(w.ppm, Some((11811, 11811)), "{file}: resolution");
+
+        // The palette written in the source's numbers reads back, through the profile, as
+        // the document's CIELAB (within an 8-bit step of Display P3).
+        use chromasift::colour::profile::{read_profile, ProfileUse};
+        let ProfileUse::Convert(p) = read_profile(&icc) else {
+            panic!()
+        };
+        let conv = p.to_linear();
+        let plte = w.palette.unwrap();
+        for (i, c) in doc["colors"].as_array().unwrap().iter().enumerate() {
+            let rgb = [0, 1, 2].map(|k| plte[i * 3 + k] as f64 / 255.0);
+            let lab = chromasift::colour::linear_to_lab(conv.linear(rgb));
+            let want = [0, 1, 2].map(|k| c["lab"][k].as_f64().unwrap());
+            let de = artwork::ciede2000(lab, want);
+            assert!(de < 0.6, "{file} colour {i}: {lab:?} vs {want:?} ({de})");
+        }
+
+        // sRGB asked for: no profile, the sRGB palette itself; EXIF still kept.
+        let out = dir.path().join(format!("{}-srgb", file.replace('/', "-")));
+        let doc = reduce_fixture(file, &["--output-profile", "srgb"], &out);
+        assert_eq!(doc["colour_profile"]["output"], "srgb");
+        let w = written(&out.join(format!("{stem}.reduced.png")));
+        assert!(w.icc.is_none() && w.exif.is_some());
+        let plte = w.palette.unwrap();
+        for (i, c) in doc["colors"].as_array().unwrap().iter().enumerate() {
+            let hex = format!(
+                "#{:02x}{:02x}{:02x}",
+                plte[i * 3],
+                plte[i * 3 + 1],
+                plte[i * 3 + 2]
+            );
+            assert_eq!(c["hex"], hex.as_str());
+        }
+
+        // Dropped for privacy: no EXIF, profile or resolution.
+        let out = dir.path().join(format!("{}-bare", file.replace('/', "-")));
+        let doc = reduce_fixture(file, &["--strip-metadata"], &out);
+        assert_eq!(doc["colour_profile"]["output"], "srgb");
+        let w = written(&out.join(format!("{stem}.reduced.png")));
+        assert!(w.icc.is_none() && w.exif.is_none() && w.ppm.is_none());
+    }
+    // An untagged image is read as sRGB and says so.
+    let out = dir.path().join("plain");
+    let doc = reduce_fixture("photos/coffee.png", &[], &out);
+    assert_eq!(doc["colour_profile"]["input"], "untagged");
+    assert!(written(&out.join("coffee.reduced.png")).icc.is_none());
+}
+
+/// The p-th percentile as numpy's `percentile(..., method="inverted_cdf")` defines it:
+/// the smallest value with at least p of the values at or below it.
+fn inverted_cdf(sorted: &[f64], p: f64) -> f64 {
+    let k = (p * sorted.len() as f64).ceil() as usize;
+    sorted[k.max(1) - 1]
+}
+
+#[test]
+fn the_loss_map_holds_each_pixels_ciede2000_and_the_document_its_percentiles() {
+    let dir = tempfile::tempdir().unwrap();
+    for (k, dither) in [("4", "none"), ("6", "floyd-steinberg")] {
+        let out = dir.path().join(dither);
+        let f = fixture("photos/coffee.png");
+        let o = run(
+            &[
+                "reduce",
+                f.to_str().unwrap(),
+                "-k",
+                k,
+                "--dither",
+                dither,
+                "--loss-map",
+                "-o",
+                out.to_str().unwrap(),
+            ],
+            &[],
+        );
+        assert_eq!(o.status.code(), Some(0), "{}", stderr(&o));
+        let src = image::open(&f).unwrap().to_rgb8();
+        let red = image::open(out.join("coffee.reduced.png"))
+            .unwrap()
+            .to_rgb8();
+        // Independent per-pixel CIEDE2000 (tests/common/artwork.rs, after Sharma, Wu &
+        // Dalal 2005), source pixel against the written pixel.
+        let mut want: Vec<f64> = src
+            .pixels()
+            .zip(red.pixels())
+            .map(|(a, b)| {
+                artwork::ciede2000(artwork::srgb8_to_lab(a.0), artwork::srgb8_to_lab(b.0))
+            })
+            .collect();
+        let mut t =
+            tiff::decoder::Decoder::new(std::fs::File::open(out.join("coffee.loss.tif")).unwrap())
+                .unwrap();
+        assert_eq!(t.dimensions().unwrap(), src.dimensions());
+        let tiff::decoder::DecodingResult::F32(map) = t.read_image().unwrap() else {
+            panic!("float TIFF expected")
+        };
+        // Within 0.02: the two sRGB → CIELAB paths agree to about that (see
+        // tests/colour_reference.rs), and the map is single precision.
+        for (i, (&got, &w)) in map.iter().zip(&want).enumerate() {
+            assert!(
+                (got as f64 - w).abs() < 0.02,
+                "{dither} pixel {i}: {got} vs {w}"
+            );
+        }
+        want.sort_by(f64::total_cmp);
+        let doc: serde_json::Value =
+            serde_json::from_slice(&std::fs::read(out.join("coffee.palette.json")).unwrap())
+                .unwrap();
+        for (key, p) in [("p95_delta_e2000", 0.95), ("p99_delta_e2000", 0.99)] {
+            let got = doc[key].as_f64().unwrap();
+            let w = inverted_cdf(&want, p);
+            assert!((got - w).abs() < 0.02, "{dither} {key}: {got} vs {w}");
+        }
+        // The picture: the image above a 48-pixel legend, at least 220 pixels wide.
+        let pic = image::open(out.join("coffee.loss.png")).unwrap();
+        assert_eq!(
+            (pic.width(), pic.height()),
+            (src.width().max(220), src.height() + 48)
+        );
+    }
+}
