@@ -452,7 +452,7 @@ fn images_sharing_a_stem_keep_their_own_outputs() {
             "3",
             "--jobs",
             jobs,
-            "--contact-sheet",
+            "--review-page",
             "-o",
             out.to_str().unwrap(),
         ];
@@ -473,8 +473,8 @@ fn images_sharing_a_stem_keep_their_own_outputs() {
         }
         assert!(out.join("other.palette.json").is_file());
         assert!(!out.join("scan.palette.json").exists());
-        let sheet = std::fs::read_to_string(out.join("contact-sheet.html")).unwrap();
-        assert!(sheet.contains("scan.bmp.reduced.png"), "{sheet}");
+        let sheet = std::fs::read_to_string(out.join("review.html")).unwrap();
+        assert!(sheet.contains("href=\"scan.bmp.reduced.png\""), "{sheet}");
         let again = run(&args, &[]);
         assert!(again.status.success(), "{}", stderr(&again));
         let r = report(&out);

@@ -483,3 +483,107 @@ fn the_loss_map_holds_each_pixels_ciede2000_and_the_document_its_percentiles() {
         );
     }
 }
+
+/// Every `src="…"` and `href="…"` of a page.
+fn links(html: &str) -> Vec<String> {
+    let mut out = Vec::new();
+    for key in ["src=\"", "href=\""] {
+        let mut rest = html;
+        while let Some(at) = rest.find(key) {
+            let after = &rest[at + key.len()..];
+            let end = after.find('"').unwrap();
+            out.push(after[..end].to_string());
+            rest = &after[end..];
+        }
+    }
+    out
+}
+
+#[test]
+fn the_review_page_travels_with_its_folder_and_loads_in_a_browser() {
+    let dir = tempfile::tempdir().unwrap();
+    let input = dir.path().join("in");
+    std::fs::create_dir_all(input.join("sub dir")).unwrap();
+    std::fs::copy(fixture("profiles/p3.png"), input.join("p3.png")).unwrap();
+    std::fs::copy(
+        fixture("photos/coffee.png"),
+        input.join("sub dir/coffee #1.png"),
+    )
+    .unwrap();
+    std::fs::copy(fixture("demo/harbour-poster.png"), input.join("poster.png")).unwrap();
+    std::fs::write(input.join("broken.jpg"), b"not a jpeg").unwrap();
+    let out = dir.path().join("out");
+    let o = run(
+        &[
+            "batch",
+            input.to_str().unwrap(),
+            "-k",
+            "6",
+            "--review-page",
+            "--quiet",
+            "-o",
+            out.to_str().unwrap(),
+        ],
+        &[],
+    );
+    assert_eq!(o.status.code(), Some(1), "one image fails: {}", stderr(&o));
+    // Moved away from where it was made (and from the inputs): every link still resolves.
+    let moved = dir.path().join("elsewhere");
+    std::fs::rename(&out, &moved).unwrap();
+    std::fs::rename(&input, dir.path().join("inputs-gone")).unwrap();
+    let html = std::fs::read_to_string(moved.join("review.html")).unwrap();
+    let found = links(&html);
+    assert_eq!(found.len(), 3 * 2 + 3, "{found:?}");
+    for l in &found {
+        assert!(!l.contains(':') && !l.starts_with('/'), "not relative: {l}");
+        // Percent-encoded names (RFC 3986): decode the two this test uses.
+        let path = l.replace("%20", " ").replace("%23", "#");
+        assert!(moved.join(&path).is_file(), "{l} does not resolve");
+        if l.starts_with("review/") {
+            let t = image::open(moved.join(&path)).unwrap();
+            assert!(t.width().max(t.height()) <= 240, "{l}: not a thumbnail");
+        }
+    }
+    // Worst mean ΔE2000 first, and the failed file named.
+    let order: Vec<f64> = html
+        .match_indices("data-de=\"")
+        .map(|(i, m)| {
+            let v = &html[i + m.len()..];
+            v[..v.find('"').unwrap()].parse().unwrap()
+        })
+        .collect();
+    assert_eq!(order.len(), 4);
+    assert!(
+        order.windows(2).all(|w| w[0] >= w[1] || w[1] < 0.0),
+        "{order:?}"
+    );
+    assert!(html.contains("broken.jpg"));
+    assert!(html.contains("lost"), "lost-colour warnings are shown");
+
+    // A real browser (Chromium from the Debian packages): loads with no missing picture
+    // and no script or console error. Skipped, with a notice, where it is not installed.
+    let chromium = ["chromium", "chromium-browser"].into_iter().find(|c| {
+        std::process::Command::new(c)
+            .arg("--version")
+            .output()
+            .is_ok()
+    });
+    let Some(browser) = chromium else {
+        eprintln!("NOTICE: chromium not found; the browser check of the review page was skipped");
+        return;
+    };
+    let script =
+        std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("scripts/check-review-page.sh");
+    let o = std::process::Command::new("sh")
+        .arg(&script)
+        .arg(&moved)
+        .env("CHROMIUM", browser)
+        .output()
+        .unwrap();
+    assert!(
+        o.status.success(),
+        "{}{}",
+        String::from_utf8_lossy(&o.stdout),
+        String::from_utf8_lossy(&o.stderr)
+    );
+}

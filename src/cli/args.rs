@@ -202,9 +202,11 @@ pub struct BatchArgs {
     #[arg(long, short = 'q')]
     pub quiet: bool,
 
-    /// Also write contact-sheet.html: before and after, palette strips and ΔE2000.
-    #[arg(long = "contact-sheet")]
-    pub contact_sheet: bool,
+    /// Also write review.html: before and after thumbnails (written into review/), each
+    /// image's palette, ΔE2000 figures and lost colours, worst first. Relative links only:
+    /// the output folder can be moved or shared and the page opens offline.
+    #[arg(long = "review-page", alias = "contact-sheet")]
+    pub review_page: bool,
 
     /// Output folder (must not be inside the input folder).
     #[arg(short = 'o', long = "out", value_name = "DIR")]

@@ -458,7 +458,7 @@ fn run_batch(args: BatchArgs) -> ExitCode {
             .map(usize::from)
             .unwrap_or_else(|| std::thread::available_parallelism().map_or(1, |n| n.get())),
         force: args.force,
-        contact_sheet: args.contact_sheet,
+        review_page: args.review_page,
         palette,
         palette_file: args.palette_file.clone(),
     };
