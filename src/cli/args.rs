@@ -293,6 +293,9 @@ impl ApplyArgs {
         o.engine.beta = self.beta.beta;
         o.dither = self.image.dither;
         o.uncertainty_raw = self.image.uncertainty_raw;
+        o.loss_map = self.image.loss_map;
+        o.output_profile = self.image.output_profile;
+        o.keep_metadata = !self.image.strip_metadata;
         o.limits = self.image.limit.limits();
         o
     }
