@@ -1,7 +1,6 @@
 //! Photo archives: palettes from any table, colour-managed input, metadata carried, the
 //! loss map and the review page, checked against values computed outside the project.
 
-#[allow(dead_code)]
 #[path = "common/artwork.rs"]
 mod artwork;
 mod common;
@@ -206,7 +205,10 @@ fn profile_reference() -> Vec<(String, [u8; 3], [f64; 3])> {
 }
 
 /// CIELAB of each distinct colour of a decoded image, read through its embedded profile.
-fn labs_through_profile(file: &str) -> (String, Vec<([u16; 3], [f64; 3])>) {
+/// Each decoded colour with its CIELAB.
+type ColourLabs = Vec<([u16; 3], [f64; 3])>;
+
+fn labs_through_profile(file: &str) -> (String, ColourLabs) {
     use chromasift::colour::profile::{read_profile, ProfileUse};
     let img = chromasift::raster::decode(&fixture(file), &chromasift::Limits::default()).unwrap();
     let icc = img
@@ -223,7 +225,7 @@ fn labs_through_profile(file: &str) -> (String, Vec<([u16; 3], [f64; 3])>) {
     let (_, labs) = chromasift::features::rows::entry_features_in(
         &h,
         chromasift::colour::Space::Cielab,
-        Some(&p),
+        Some(&*p),
     );
     (
         p.description.clone(),

@@ -62,7 +62,10 @@ fn thumbnail(img: &Decoded) -> std::io::Result<Vec<u8>> {
     let small = image::imageops::thumbnail(&buf, w, h);
     let mut out = Vec::new();
     let extras = raster::PngExtras {
-        icc_profile: img.icc_profile.as_deref(),
+        icc_profile: img
+            .icc_profile
+            .as_deref()
+            .filter(|p| crate::colour::profile::is_rgb_profile(p)),
         ..Default::default()
     };
     raster::write_rgba_png_with(&mut out, w, h, small.as_raw(), &extras)?;
@@ -203,9 +206,9 @@ fn card(s: &mut String, c: &Card) {
     );
     let name = html_escape(&c.input);
     if !matches!(c.status, Status::Ok | Status::Skipped) {
-        let _ = write!(
+        let _ = writeln!(
             s,
-            "<div class=\"failed\">{name}: {}</div></div>\n",
+            "<div class=\"failed\">{name}: {}</div></div>",
             html_escape(c.error.as_deref().unwrap_or("not run"))
         );
         return;
@@ -228,7 +231,7 @@ fn card(s: &mut String, c: &Card) {
         _ => {}
     }
     let Some(d) = &c.doc else {
-        let _ = write!(s, "<small>{name}</small></div>\n");
+        let _ = writeln!(s, "<small>{name}</small></div>");
         return;
     };
     let _ = write!(

@@ -33,7 +33,7 @@ pub enum ProfileUse {
     /// step along the curves): the fast sRGB path applies.
     Srgb(String),
     /// A profile the colours are converted through.
-    Convert(SourceProfile),
+    Convert(Box<SourceProfile>),
     /// A profile that cannot be applied (why); the image is read as sRGB.
     Unused(String),
 }
@@ -92,6 +92,12 @@ fn inverse(m: [[f64; 3]; 3]) -> Option<[[f64; 3]; 3]> {
 
 fn apply(m: &[[f64; 3]; 3], v: [f64; 3]) -> [f64; 3] {
     [0, 1, 2].map(|i| m[i][0] * v[0] + m[i][1] * v[1] + m[i][2] * v[2])
+}
+
+/// Is this ICC profile's data colour space RGB (header bytes 16..20, ICC.1 7.2.6)? Only
+/// such a profile may be embedded in an RGB or indexed PNG (PNG 1.2, iCCP).
+pub fn is_rgb_profile(icc: &[u8]) -> bool {
+    icc.get(16..20) == Some(b"RGB ")
 }
 
 /// Reads an embedded profile.
@@ -159,10 +165,10 @@ pub fn read_profile(icc: &[u8]) -> ProfileUse {
                 < 0.5 / 255.0
         })
     });
-    if id && curve_ok {
+    if id && curve_ok && p.color_space == DataColorSpace::Rgb {
         ProfileUse::Srgb(description)
     } else {
-        ProfileUse::Convert(sp)
+        ProfileUse::Convert(Box::new(sp))
     }
 }
 

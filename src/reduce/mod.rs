@@ -24,7 +24,7 @@ pub use crate::output::{fnv1a, stem_of, SourceStamp};
 pub use crate::raster::MORE_FRAMES_NOTE;
 
 use crate::cluster::{EngineOptions, KMeansParams};
-use crate::colour::profile::{read_profile, ProfileUse};
+use crate::colour::profile::{is_rgb_profile, read_profile, ProfileUse};
 use crate::colour::{self, Space};
 use crate::error::{Error, Result};
 use crate::families::Objective;
@@ -247,7 +247,7 @@ pub fn reduce_image_with(
     };
     let read = img.icc_profile.as_deref().map(read_profile);
     let convert = match &read {
-        Some(ProfileUse::Convert(p)) => Some(p),
+        Some(ProfileUse::Convert(p)) => Some(p.as_ref()),
         _ => None,
     };
     let px = pipeline::Pixels {
@@ -264,11 +264,14 @@ pub fn reduce_image_with(
     }
     // The profile the reduced image is written in: the input's (embedded again), unless
     // sRGB was asked for, metadata are dropped, or the profile could not be applied.
+    // A grey profile cannot go into the (colour) reduced PNG: such images are written in
+    // sRGB numbers.
+    let rgb = img.icc_profile.as_deref().is_some_and(is_rgb_profile);
     let keep_source = opts.output_profile == OutputProfile::Source && opts.keep_metadata;
     let (input, description, embed) = match &read {
         None => ("untagged", None, false),
-        Some(ProfileUse::Srgb(d)) => ("icc-srgb", Some(d.clone()), keep_source),
-        Some(ProfileUse::Convert(p)) => ("icc", Some(p.description.clone()), keep_source),
+        Some(ProfileUse::Srgb(d)) => ("icc-srgb", Some(d.clone()), keep_source && rgb),
+        Some(ProfileUse::Convert(p)) => ("icc", Some(p.description.clone()), keep_source && rgb),
         Some(ProfileUse::Unused(why)) => {
             red.notes.push(format!("{why}; the image is read as sRGB"));
             ("icc-unused", None, false)
