@@ -14,7 +14,7 @@ fn main() -> Result<(), chromasift::Error> {
         shared: true,
         jobs: 2,
         force: true,
-        contact_sheet: false,
+        review_page: false,
         palette: None,
         palette_file: None,
     };

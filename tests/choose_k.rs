@@ -128,9 +128,10 @@ fn target_delta_e_returns_the_smallest_qualifying_k_of_the_sweep() {
     let rows = doc["rows"].as_array().unwrap();
     assert_eq!(rows.len(), 12);
     let csv = std::fs::read_to_string(sw.join("sweep.csv")).unwrap();
-    // The first seven columns are as before; the mixture, stability and family columns follow.
+    // The first seven columns are as before; the mixture, stability and family columns
+    // follow, then the mark of the recommended K.
     assert!(csv.starts_with(
-        "k,sse,mean_delta_e2000,p95_delta_e2000,mean_uncertainty,silhouette,bic,bic_full,icl,stability,closest_delta_e2000,smallest_share,families\n"
+        "k,sse,mean_delta_e2000,p95_delta_e2000,mean_uncertainty,silhouette,bic,bic_full,icl,stability,closest_delta_e2000,smallest_share,families,recommended\n"
     ));
     let svg = std::fs::read_to_string(sw.join("sweep.svg")).unwrap();
     assert!(

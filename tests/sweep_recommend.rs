@@ -409,10 +409,16 @@ fn cli_reports_the_recommendation_the_same_on_any_thread_count() {
             }
         }
         let csv = std::fs::read_to_string(out.join("sweep.csv")).unwrap();
-        assert!(
-            csv.contains("# recommended: K = 5 (distinct colours)"),
-            "{csv}"
-        );
+        // Rows of one shape only: the recommended K is marked in the last column.
+        assert!(!csv.lines().any(|l| l.starts_with('#')), "{csv}");
+        let fields = csv.lines().next().unwrap().split(',').count();
+        assert!(csv.lines().all(|l| l.split(',').count() == fields), "{csv}");
+        let marked: Vec<&str> = csv
+            .lines()
+            .filter(|l| l.ends_with(",true"))
+            .map(|l| l.split(',').next().unwrap())
+            .collect();
+        assert_eq!(marked, ["5"], "{csv}");
         let svg = std::fs::read_to_string(out.join("sweep.svg")).unwrap();
         assert!(svg.contains("recommended K = 5"));
         outputs.push(

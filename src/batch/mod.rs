@@ -1,6 +1,10 @@
 //! Folders of images: `batch` (each image its own palette, or one shared palette),
 //! `learn` (a palette from many images or histogram files), the histogram file format
-//! that lets a large archive be summarised in shards, and the batch report.
+//! that lets a large archive be summarised in shards, the batch report and the review page.
+
+mod review;
+
+pub use review::{review_page, REVIEW_FOLDER, REVIEW_PAGE, THUMBNAIL_SIDE};
 
 use crate::error::{Error, Result};
 use crate::features::histogram::Histogram;
@@ -84,8 +88,8 @@ pub struct BatchOptions {
     pub jobs: usize,
     /// Redo images whose outputs are up to date.
     pub force: bool,
-    /// Also write `contact-sheet.html`.
-    pub contact_sheet: bool,
+    /// Also write the review page (`review.html` and its thumbnails in `review/`).
+    pub review_page: bool,
     /// Map every image onto this palette instead of fitting (`batch --palette`).
     pub palette: Option<FixedPalette>,
     /// The file `palette` was read from: no output may replace it.
@@ -323,6 +327,13 @@ pub fn up_to_date(
     if !names[..needed].iter().all(|n| out_dir.join(n).is_file()) {
         return false;
     }
+    if opts.loss_map
+        && !reduce::loss_names(stem)
+            .iter()
+            .all(|n| out_dir.join(n).is_file())
+    {
+        return false;
+    }
     let Ok(bytes) = std::fs::read(out_dir.join(&names[1])) else {
         return false;
     };
@@ -351,7 +362,10 @@ fn reduce_one(
     opts: &BatchOptions,
     fixed: Option<&FixedPalette>,
 ) -> Result<reduce::ReduceReport> {
-    for name in reduce::output_names(stem) {
+    for name in reduce::output_names(stem)
+        .into_iter()
+        .chain(reduce::loss_names(stem))
+    {
         let target = out_dir.join(name);
         if std::fs::canonicalize(&target).is_ok_and(|c| inputs.contains(&c)) {
             return Err(Error::output(
@@ -564,11 +578,11 @@ pub fn run_batch(
     let json = serde_json::to_string_pretty(&report).expect("report serialises");
     set.write_bytes("batch-report.json", format!("{json}\n").as_bytes())?;
     set.write_bytes("batch-report.csv", report_csv(&report).as_bytes())?;
-    if opts.contact_sheet {
-        set.write_bytes(
-            "contact-sheet.html",
-            contact_sheet(&report, &sheet_stems, input_dir, out).as_bytes(),
-        )?;
+    if opts.review_page {
+        let html = pool.install(|| {
+            review::review_page(&report, &sheet_stems, input_dir, out, &opts.reduce.limits)
+        })?;
+        set.write_bytes(review::REVIEW_PAGE, html.as_bytes())?;
     }
     set.commit()?;
     Ok(report)
@@ -587,7 +601,8 @@ fn csv_field(s: &str) -> String {
     }
 }
 
-/// `batch-report.csv`: one row per file, then a totals row.
+/// `batch-report.csv`: a header and one row per file, all of one shape (the totals are
+/// in `batch-report.json`, under `totals`).
 pub fn report_csv(r: &BatchReport) -> String {
     let mut s = String::from("input,status,error,colors,mean_delta_e2000,seconds\n");
     for f in &r.files {
@@ -603,84 +618,6 @@ pub fn report_csv(r: &BatchReport) -> String {
             f.seconds
         ));
     }
-    let t = &r.totals;
-    s.push_str(&format!(
-        "TOTAL,ok {} skipped {} failed {} interrupted {},,,,{:.3}\n",
-        t.ok, t.skipped, t.failed, t.interrupted, t.seconds
-    ));
-    s
-}
-
-fn html_escape(s: &str) -> String {
-    s.replace('&', "&amp;")
-        .replace('<', "&lt;")
-        .replace('>', "&gt;")
-        .replace('"', "&quot;")
-}
-
-/// `contact-sheet.html`: before and after side by side, each image's palette strip and ΔE2000.
-/// The contact sheet of a batch report; `stems` are the rows' output stems (`None` for a
-/// row without outputs, such as an unreadable folder).
-pub fn contact_sheet(
-    r: &BatchReport,
-    stems: &[Option<String>],
-    input_dir: &Path,
-    out: &Path,
-) -> String {
-    let src_root = resolved(input_dir);
-    let mut s = String::from(
-        "<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\"><title>chromasift batch</title>\n<style>\
-         body{font-family:sans-serif;margin:1em;background:#f6f6f4}.card{display:inline-block;vertical-align:top;margin:6px;padding:6px;background:#fff;border:1px solid #ddd}\
-         .card img{width:180px;height:auto;margin-right:4px}.strip{display:flex;height:14px;margin-top:4px}.strip span{flex-grow:1}\
-         .failed{color:#a00}small{color:#555}</style></head><body>\n",
-    );
-    s.push_str(&format!(
-        "<h1>{} images</h1><p>{} reduced, {} up to date, {} failed</p>\n",
-        r.totals.files, r.totals.ok, r.totals.skipped, r.totals.failed
-    ));
-    for (f, stem) in r.files.iter().zip(stems.iter().cloned()) {
-        let rel = Path::new(&f.input);
-        let sub = rel.parent().unwrap_or(Path::new(""));
-        let stem = stem.unwrap_or_default();
-        s.push_str("<div class=\"card\">");
-        if f.status == Status::Failed || f.status == Status::Interrupted {
-            s.push_str(&format!(
-                "<div class=\"failed\">{}: {}</div>",
-                html_escape(&f.input),
-                html_escape(f.error.as_deref().unwrap_or("not run"))
-            ));
-        } else {
-            let src = src_root.join(rel);
-            let reduced = sub.join(format!("{stem}.reduced.png"));
-            s.push_str(&format!(
-                "<img src=\"file://{}\" alt=\"before\"><img src=\"{}\" alt=\"after\"><br><small>{} &middot; {} colours &middot; mean &Delta;E2000 {:.2}</small>",
-                html_escape(&src.to_string_lossy()),
-                html_escape(&reduced.to_string_lossy()),
-                html_escape(&f.input),
-                f.colors.unwrap_or(0),
-                f.mean_delta_e2000.unwrap_or(0.0)
-            ));
-            let doc: Option<PaletteDocument> =
-                std::fs::read(out.join(sub).join(format!("{stem}.palette.json")))
-                    .ok()
-                    .and_then(|b| serde_json::from_slice(&b).ok());
-            if let Some(d) = doc {
-                s.push_str("<div class=\"strip\">");
-                for c in &d.colors {
-                    s.push_str(&format!(
-                        "<span style=\"background:{};flex-grow:{:.4}\" title=\"{} {:.1}%\"></span>",
-                        c.hex,
-                        c.share.max(0.002),
-                        c.hex,
-                        c.share * 100.0
-                    ));
-                }
-                s.push_str("</div>");
-            }
-        }
-        s.push_str("</div>\n");
-    }
-    s.push_str("</body></html>\n");
     s
 }
 

@@ -4,7 +4,7 @@ use super::engine::{BetaFlag, EngineFlags, FolderOutput, LimitFlag, SceneFlags};
 use crate::colour::Space;
 use crate::features::quality::{QualityTarget, TargetStatistic};
 use crate::limits::Limits;
-use crate::reduce::ReduceOptions;
+use crate::reduce::{OutputProfile, ReduceOptions};
 use crate::render::Dither;
 use clap::Args;
 use std::path::PathBuf;
@@ -54,6 +54,22 @@ pub struct PaletteFlags {
     /// toward -k and never move.
     #[arg(long = "pin", value_name = "COLOUR", value_parser = crate::families::parse_colour, conflicts_with = "target_delta_e")]
     pub pin: Vec<[u8; 3]>,
+
+    /// Colours the palette must hold exactly, read from a file: a palette document, a list
+    /// of hex colours (one per line) or a CSV table with hex or L,a,b columns (as
+    /// `apply --palette` reads them). Repeat for more; taken with any --pin.
+    #[arg(long = "pin-file", value_name = "FILE", value_parser = parse_pin_file, conflicts_with = "target_delta_e")]
+    pub pin_file: Vec<PinFile>,
+}
+
+/// The colours of one `--pin-file`.
+#[derive(Debug, Clone, PartialEq)]
+pub struct PinFile(pub Vec<[u8; 3]>);
+
+fn parse_pin_file(s: &str) -> Result<PinFile, String> {
+    crate::learn::read_palette(std::path::Path::new(s))
+        .map(|p| PinFile(p.colours))
+        .map_err(|e| super::flag_wording(&e.to_string()))
 }
 
 /// How reduced images are written: shared by `reduce`, `batch` and `apply`.
@@ -66,6 +82,25 @@ pub struct ImageFlags {
     /// Also write STEM.uncertainty.tif (32-bit float, 0..1).
     #[arg(long = "uncertainty-raw")]
     pub uncertainty_raw: bool,
+
+    /// Also write the per-pixel CIEDE2000 between source and reduced image:
+    /// STEM.loss.tif (32-bit float) and STEM.loss.png (a colour scale with its legend).
+    #[arg(long = "loss-map")]
+    pub loss_map: bool,
+
+    /// The numbers the reduced image is written in: `source` (the input's colour profile,
+    /// embedded again; sRGB for an untagged input) or `srgb`.
+    #[arg(
+        long = "output-profile",
+        default_value = "source",
+        value_name = "source|srgb"
+    )]
+    pub output_profile: crate::reduce::OutputProfile,
+
+    /// Do not carry the input's EXIF, colour profile and resolution into the reduced
+    /// image (the numbers are then sRGB).
+    #[arg(long = "strip-metadata")]
+    pub strip_metadata: bool,
 
     #[command(flatten)]
     pub limit: LimitFlag,
@@ -85,9 +120,17 @@ fn reduce_options(
         dither: image.map_or(Dither::None, |i| i.dither),
         limits,
         uncertainty_raw: image.is_some_and(|i| i.uncertainty_raw),
+        loss_map: image.is_some_and(|i| i.loss_map),
+        output_profile: image.map_or(OutputProfile::Source, |i| i.output_profile),
+        keep_metadata: !image.is_some_and(|i| i.strip_metadata),
         target: quality_target(palette.target_delta_e, palette.target_p95, palette.k_max),
         objective: palette.objective,
-        pinned: palette.pin.clone(),
+        pinned: palette
+            .pin
+            .iter()
+            .chain(palette.pin_file.iter().flat_map(|f| &f.0))
+            .copied()
+            .collect(),
     }
 }
 
@@ -159,9 +202,11 @@ pub struct BatchArgs {
     #[arg(long, short = 'q')]
     pub quiet: bool,
 
-    /// Also write contact-sheet.html: before and after, palette strips and ΔE2000.
-    #[arg(long = "contact-sheet")]
-    pub contact_sheet: bool,
+    /// Also write review.html: before and after thumbnails (written into review/), each
+    /// image's palette, ΔE2000 figures and lost colours, worst first. Relative links only:
+    /// the output folder can be moved or shared and the page opens offline.
+    #[arg(long = "review-page", alias = "contact-sheet")]
+    pub review_page: bool,
 
     /// Output folder (must not be inside the input folder).
     #[arg(short = 'o', long = "out", value_name = "DIR")]
@@ -248,6 +293,9 @@ impl ApplyArgs {
         o.engine.beta = self.beta.beta;
         o.dither = self.image.dither;
         o.uncertainty_raw = self.image.uncertainty_raw;
+        o.loss_map = self.image.loss_map;
+        o.output_profile = self.image.output_profile;
+        o.keep_metadata = !self.image.strip_metadata;
         o.limits = self.image.limit.limits();
         o
     }

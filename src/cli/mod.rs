@@ -91,7 +91,7 @@ Examples:
 
 Mirrors the folder under -o with the reduce outputs of each image, and writes
 batch-report.json and batch-report.csv there (plus shared.palette.json with --shared, and
-contact-sheet.html with --contact-sheet). A rerun skips images whose outputs are up to date.
+review.html with --review-page). A rerun skips images whose outputs are up to date.
 
 Exit status: 0 all images done, 1 some images failed, 2 usage error, 130 interrupted.";
 

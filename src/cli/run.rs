@@ -221,7 +221,7 @@ fn reduce_stream(args: &ReduceArgs) -> Result<reduce::ReduceReport, Error> {
         }
         None => {
             let mut set = crate::output::OutputSet::prepare(&args.output.out, &[])?;
-            reduce::write_reduction(&red, "stdin", &mut set, opts.uncertainty_raw)?;
+            reduce::write_reduction(&red, "stdin", &mut set, opts.uncertainty_raw, opts.loss_map)?;
             set.commit()?
         }
     };
@@ -397,6 +397,7 @@ fn note_fitting_flags(command: &str, args: &BatchArgs) {
         (p.k != 8, "-k"),
         (p.target_delta_e.is_some(), "--target-delta-e"),
         (!p.pin.is_empty(), "--pin"),
+        (!p.pin_file.is_empty(), "--pin-file"),
     ]
     .into_iter()
     .filter(|&(set, _)| set)
@@ -442,7 +443,7 @@ fn run_batch(args: BatchArgs) -> ExitCode {
             .map(usize::from)
             .unwrap_or_else(|| std::thread::available_parallelism().map_or(1, |n| n.get())),
         force: args.force,
-        contact_sheet: args.contact_sheet,
+        review_page: args.review_page,
         palette,
         palette_file: args.palette_file.clone(),
     };

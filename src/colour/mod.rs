@@ -8,6 +8,8 @@
 pub mod adapt;
 pub mod delta_e;
 pub mod inks;
+pub mod profile;
+pub mod table;
 
 use palette::{FromColor, IntoColor, Lab, LinSrgb, Oklab, Srgb, Xyz};
 use std::sync::OnceLock;

@@ -1,12 +1,19 @@
-//! Reading images through the decode limits, and writing PNG and TIFF outputs.
+//! Reading images through the decode limits (with their colour profile and EXIF), and
+//! writing PNG and TIFF outputs (`write.rs`).
 
 pub mod geotiff;
 pub mod walk;
+mod write;
+
+pub use write::{
+    write_f32_tiff, write_grey_png, write_indexed_png, write_indexed_png_with, write_rgb_png,
+    write_rgba_png, write_rgba_png_with, PngExtras,
+};
 
 use crate::error::{Error, Result};
 use crate::limits::Limits;
-use image::{ColorType, DynamicImage, ImageReader};
-use std::io::{Cursor, Read, Seek, Write};
+use image::{ColorType, DynamicImage, ImageDecoder, ImageReader};
+use std::io::{Cursor, Read};
 use std::path::Path;
 
 /// Decoded pixels, always RGBA.
@@ -32,6 +39,10 @@ pub struct Decoded {
     /// True when the file holds more frames or pages than the first, which alone was
     /// decoded (an animated GIF, PNG or WebP, a multi-page TIFF).
     pub more_frames: bool,
+    /// The embedded ICC profile, as stored (`None`: untagged, read as sRGB).
+    pub icc_profile: Option<Vec<u8>>,
+    /// The EXIF block (TIFF-structured, without the JPEG `Exif\0\0` prefix), as stored.
+    pub exif: Option<Vec<u8>>,
 }
 
 impl Decoded {
@@ -66,6 +77,8 @@ impl Decoded {
             has_alpha,
             dpi: None,
             more_frames: false,
+            icc_profile: None,
+            exif: None,
         }
     }
 }
@@ -449,6 +462,8 @@ pub fn decode_bytes(bytes: &[u8], name: &Path, limits: &Limits) -> Result<Decode
     let stripped = png_without_profile(bytes);
     let dpi = sniff_dpi(bytes);
     let more_frames = has_more_frames(bytes);
+    // The PNG profile is read here, from the chunk the decoder will not see.
+    let png_icc = stripped.as_ref().and_then(|_| png_icc_profile(bytes));
     let bytes = stripped.as_deref().unwrap_or(bytes);
     let reader = ImageReader::new(Cursor::new(bytes))
         .with_guessed_format()
@@ -520,11 +535,66 @@ pub fn decode_bytes(bytes: &[u8], name: &Path, limits: &Limits) -> Result<Decode
     il.max_image_height = Some(height);
     il.max_alloc = Some(limits.max_alloc);
     reader.limits(il);
-    let img = reader.decode().map_err(|e| decode_error(name, e))?;
+    let mut decoder = reader.into_decoder().map_err(|e| decode_error(name, e))?;
+    // Metadata the reduced image carries on: the colour profile (PNG iCCP, read here with
+    // a bound on its inflated size; JPEG APP2, TIFF tag 34675 and WebP ICCP from the
+    // decoders) and EXIF. A profile or EXIF block that cannot be read is left out.
+    let icc_profile = match stripped {
+        Some(_) => png_icc,
+        // The reader's TIFF decoder does not pass the profile on: read tag 34675 here.
+        None if tiff => tiff_icc_profile(bytes),
+        None => decoder.icc_profile().ok().flatten(),
+    }
+    .filter(|p| !p.is_empty());
+    let exif = decoder
+        .exif_metadata()
+        .ok()
+        .flatten()
+        .filter(|e| !e.is_empty());
+    let img = DynamicImage::from_decoder(decoder).map_err(|e| decode_error(name, e))?;
     let mut d = from_dynamic(img);
     d.dpi = dpi;
     d.more_frames = more_frames;
+    d.icc_profile = icc_profile;
+    d.exif = exif;
     Ok(d)
+}
+
+/// The colour profile of a TIFF's first image (tag 34675, InterColorProfile).
+fn tiff_icc_profile(bytes: &[u8]) -> Option<Vec<u8>> {
+    let mut d = tiff::decoder::Decoder::new(Cursor::new(bytes)).ok()?;
+    d.get_tag_u8_vec(tiff::tags::Tag::IccProfile)
+        .ok()
+        .filter(|p| p.len() <= MAX_PROFILE_BYTES)
+}
+
+/// Largest embedded colour profile read, inflated (the largest profiles in use, with
+/// lookup tables, are a few hundred kilobytes).
+pub const MAX_PROFILE_BYTES: usize = 4 << 20;
+
+/// The first iCCP chunk's profile, inflated to at most [`MAX_PROFILE_BYTES`].
+pub fn png_icc_profile(bytes: &[u8]) -> Option<Vec<u8>> {
+    let mut pos = 8usize;
+    while pos + 12 <= bytes.len() {
+        let len = u32::from_be_bytes(bytes[pos..pos + 4].try_into().ok()?) as usize;
+        let data = bytes.get(pos + 8..pos.checked_add(8)?.checked_add(len)?)?;
+        match &bytes[pos + 4..pos + 8] {
+            b"iCCP" => {
+                // Name (1-79 bytes), NUL, compression method 0, zlib data.
+                let nul = data.iter().position(|&b| b == 0)?;
+                let z = data.get(nul + 2..)?;
+                return miniz_oxide::inflate::decompress_to_vec_zlib_with_limit(
+                    z,
+                    MAX_PROFILE_BYTES,
+                )
+                .ok();
+            }
+            b"IDAT" | b"IEND" => return None,
+            _ => {}
+        }
+        pos = pos.checked_add(12)?.checked_add(len)?;
+    }
+    None
 }
 
 fn from_dynamic(img: DynamicImage) -> Decoded {
@@ -552,134 +622,8 @@ fn from_dynamic(img: DynamicImage) -> Decoded {
         has_alpha,
         dpi: None,
         more_frames: false,
-    }
-}
-
-fn png_error(e: png::EncodingError) -> std::io::Error {
-    match e {
-        png::EncodingError::IoError(io) => io,
-        other => std::io::Error::other(other.to_string()),
-    }
-}
-
-/// Writes an indexed (palette) PNG; `transparent` marks one palette index as fully
-/// transparent through a tRNS chunk.
-pub fn write_indexed_png<W: Write>(
-    w: W,
-    width: u32,
-    height: u32,
-    palette: &[[u8; 3]],
-    transparent: Option<u8>,
-    indices: &[u8],
-) -> std::io::Result<()> {
-    let mut enc = png::Encoder::new(w, width, height);
-    enc.set_compression(png::Compression::Fast);
-    enc.set_color(png::ColorType::Indexed);
-    let bits = match palette.len() {
-        0..=2 => png::BitDepth::One,
-        3..=4 => png::BitDepth::Two,
-        5..=16 => png::BitDepth::Four,
-        _ => png::BitDepth::Eight,
-    };
-    enc.set_depth(bits);
-    enc.set_palette(palette.iter().flatten().copied().collect::<Vec<u8>>());
-    if let Some(t) = transparent {
-        let mut trns = vec![255u8; t as usize + 1];
-        trns[t as usize] = 0;
-        enc.set_trns(trns);
-    }
-    let mut writer = enc.write_header().map_err(png_error)?;
-    let per = match bits {
-        png::BitDepth::One => 8,
-        png::BitDepth::Two => 4,
-        png::BitDepth::Four => 2,
-        _ => 1,
-    };
-    let packed = match per {
-        8 => pack_indices::<8>(indices, width as usize),
-        4 => pack_indices::<4>(indices, width as usize),
-        2 => pack_indices::<2>(indices, width as usize),
-        _ => pack_indices::<1>(indices, width as usize),
-    };
-    writer.write_image_data(&packed).map_err(png_error)?;
-    writer.finish().map_err(png_error)
-}
-
-/// Packs `PER` indices into each byte, the first in the highest bits, every row starting
-/// on a new byte (the PNG layout for bit depths below 8).
-fn pack_indices<const PER: usize>(indices: &[u8], width: usize) -> Vec<u8> {
-    let shift = 8 / PER;
-    let row_bytes = width.div_ceil(PER);
-    let mut packed = vec![0u8; row_bytes * (indices.len() / width.max(1))];
-    if width == 0 {
-        return packed;
-    }
-    for (out, row) in packed
-        .chunks_exact_mut(row_bytes)
-        .zip(indices.chunks_exact(width))
-    {
-        for (byte, px) in out.iter_mut().zip(row.chunks(PER)) {
-            let mut b = 0u8;
-            for (j, &v) in px.iter().enumerate() {
-                b |= v << ((PER - 1 - j) * shift);
-            }
-            *byte = b;
-        }
-    }
-    packed
-}
-
-/// Writes an 8-bit RGBA PNG.
-pub fn write_rgba_png<W: Write>(w: W, width: u32, height: u32, rgba: &[u8]) -> std::io::Result<()> {
-    let mut enc = png::Encoder::new(w, width, height);
-    enc.set_compression(png::Compression::Fast);
-    enc.set_color(png::ColorType::Rgba);
-    enc.set_depth(png::BitDepth::Eight);
-    let mut writer = enc.write_header().map_err(png_error)?;
-    writer.write_image_data(rgba).map_err(png_error)?;
-    writer.finish().map_err(png_error)
-}
-
-/// Writes an 8-bit RGB PNG.
-pub fn write_rgb_png<W: Write>(w: W, width: u32, height: u32, rgb: &[u8]) -> std::io::Result<()> {
-    let mut enc = png::Encoder::new(w, width, height);
-    enc.set_compression(png::Compression::Fast);
-    enc.set_color(png::ColorType::Rgb);
-    enc.set_depth(png::BitDepth::Eight);
-    let mut writer = enc.write_header().map_err(png_error)?;
-    writer.write_image_data(rgb).map_err(png_error)?;
-    writer.finish().map_err(png_error)
-}
-
-/// Writes an 8-bit greyscale PNG.
-pub fn write_grey_png<W: Write>(w: W, width: u32, height: u32, grey: &[u8]) -> std::io::Result<()> {
-    // Fast deflate: noisy uncertainty maps compress poorly at any level, and the default
-    // level takes about 20 times as long for a few per cent (measured on a 12 MP photo).
-    let mut enc = png::Encoder::new(w, width, height);
-    enc.set_compression(png::Compression::Fast);
-    enc.set_color(png::ColorType::Grayscale);
-    enc.set_depth(png::BitDepth::Eight);
-    let mut writer = enc.write_header().map_err(png_error)?;
-    writer.write_image_data(grey).map_err(png_error)?;
-    writer.finish().map_err(png_error)
-}
-
-/// Writes a single-band 32-bit float TIFF.
-pub fn write_f32_tiff<W: Write + Seek>(
-    w: W,
-    width: u32,
-    height: u32,
-    data: &[f32],
-) -> std::io::Result<()> {
-    let mut enc = tiff::encoder::TiffEncoder::new(w).map_err(tiff_error)?;
-    enc.write_image::<tiff::encoder::colortype::Gray32Float>(width, height, data)
-        .map_err(tiff_error)
-}
-
-fn tiff_error(e: tiff::TiffError) -> std::io::Error {
-    match e {
-        tiff::TiffError::IoError(io) => io,
-        other => std::io::Error::other(other.to_string()),
+        icc_profile: None,
+        exif: None,
     }
 }
 

@@ -99,6 +99,17 @@ pub struct PaletteDocument {
     pub mean_delta_e76: f64,
     /// Mean CIEDE2000 between each source pixel and its reduced pixel.
     pub mean_delta_e2000: f64,
+    /// 95th and 99th percentiles of the per-pixel CIEDE2000 (over the opaque pixels: the
+    /// smallest value at least that share of them is within). Absent for a palette learnt
+    /// from histograms, which has no pixels.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub p95_delta_e2000: Option<f64>,
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub p99_delta_e2000: Option<f64>,
+    /// How the input's colours were read and the reduced image's written (absent for a
+    /// palette learnt from histograms).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub colour_profile: Option<ColourProfileRecord>,
     pub colors: Vec<PaletteColour>,
     /// Areas of the image (at least 0.1 % of the opaque pixels or 400 pixels) whose every
     /// pixel is more than ΔE2000 10 from its palette colour: what the palette lost.
@@ -112,6 +123,21 @@ pub struct PaletteDocument {
     /// Fingerprint of every setting that shapes the outputs (batch runs use it to resume).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub settings_fingerprint: Option<String>,
+}
+
+/// How an image's colours were read and its reduced image written.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct ColourProfileRecord {
+    /// `icc` (converted through the embedded profile), `icc-srgb` (an embedded profile that
+    /// matches sRGB), `icc-unused` (a profile that cannot be applied: read as sRGB, see the
+    /// notes) or `untagged` (no profile: read as sRGB, as is common practice).
+    pub input: String,
+    /// The embedded profile's description, when there is one.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub description: Option<String>,
+    /// The numbers of the reduced image: `source` (in the input's profile, embedded) or
+    /// `srgb` (sRGB; the profile is not embedded).
+    pub output: String,
 }
 
 /// A palette given in advance (from a palette document): its colours and, optionally,

@@ -2,12 +2,18 @@
 //! with CIEDE2000 scores and an uncertainty map.
 
 mod document;
+mod loss;
 mod pipeline;
 mod write;
 
-pub use document::{AnnealSetting, FixedPalette, PaletteColour, PaletteDocument, ReduceSettings};
+pub use document::{
+    AnnealSetting, ColourProfileRecord, FixedPalette, PaletteColour, PaletteDocument,
+    ReduceSettings,
+};
+pub use loss::{loss_map_png, pixel_delta_e2000, LOSS_SCALE_MAX};
 pub use write::{
-    encode_one, encode_reduced, output_names, palette_csv, write_reduction, OneOutput, ReduceReport,
+    encode_one, encode_reduced, loss_names, output_names, palette_csv, write_reduction, OneOutput,
+    ReduceReport,
 };
 // Shared helpers that earlier releases offered here.
 pub use crate::features::quality::{
@@ -18,6 +24,7 @@ pub use crate::output::{fnv1a, stem_of, SourceStamp};
 pub use crate::raster::MORE_FRAMES_NOTE;
 
 use crate::cluster::{EngineOptions, KMeansParams};
+use crate::colour::profile::{is_rgb_profile, read_profile, ProfileUse};
 use crate::colour::{self, Space};
 use crate::error::{Error, Result};
 use crate::families::Objective;
@@ -52,6 +59,46 @@ pub struct ReduceOptions {
     /// Colours that must be in the palette exactly (sRGB8); they count toward `k` and
     /// never move. Default: none.
     pub pinned: Vec<[u8; 3]>,
+    /// The numbers the reduced image is written in. Default: the input's profile.
+    pub output_profile: OutputProfile,
+    /// Carry the input's EXIF, colour profile and resolution into the reduced image.
+    /// Default: true; false writes none of them (and sRGB numbers).
+    pub keep_metadata: bool,
+    /// Also write the per-pixel CIEDE2000 map (`STEM.loss.tif` and `STEM.loss.png`).
+    /// Default: false.
+    pub loss_map: bool,
+}
+
+/// The numbers a reduced image is written in.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
+pub enum OutputProfile {
+    /// The input's own colour profile, embedded in the reduced image (sRGB for an
+    /// untagged input).
+    #[default]
+    Source,
+    /// sRGB, with no profile embedded.
+    Srgb,
+}
+
+impl OutputProfile {
+    /// The name used in settings and documents.
+    pub fn name(self) -> &'static str {
+        match self {
+            OutputProfile::Source => "source",
+            OutputProfile::Srgb => "srgb",
+        }
+    }
+}
+
+impl std::str::FromStr for OutputProfile {
+    type Err = String;
+    fn from_str(s: &str) -> std::result::Result<Self, String> {
+        match s {
+            "source" => Ok(OutputProfile::Source),
+            "srgb" => Ok(OutputProfile::Srgb),
+            _ => Err(format!("`output_profile` takes source or srgb (got '{s}')")),
+        }
+    }
 }
 
 impl ReduceOptions {
@@ -67,6 +114,9 @@ impl ReduceOptions {
             target: None,
             objective: Objective::Families,
             pinned: Vec::new(),
+            output_profile: OutputProfile::Source,
+            keep_metadata: true,
+            loss_map: false,
         }
     }
 
@@ -114,6 +164,18 @@ impl ReduceOptions {
             self.pinned,
             self.engine.refine
         );
+        // Added only when not the default, so earlier fingerprints still hold.
+        let mut text = text;
+        if self.output_profile != OutputProfile::Source || !self.keep_metadata {
+            text = format!(
+                "{text}|output {} metadata {}",
+                self.output_profile.name(),
+                self.keep_metadata
+            );
+        }
+        if self.loss_map {
+            text = format!("{text}|loss map");
+        }
         format!("{:016x}", fnv1a(text.as_bytes()))
     }
 }
@@ -137,6 +199,24 @@ pub struct Reduction {
     pub notes: Vec<String>,
     /// Problems with the result the user should act on (e.g. colours lost).
     pub warnings: Vec<String>,
+    /// CIELAB (D65) of every histogram entry (for the per-pixel ΔE2000).
+    pub entry_lab: Vec<[f64; 3]>,
+    /// What the reduced image carries from the input.
+    pub metadata: OutputMetadata,
+}
+
+/// What a reduced image carries from its input.
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct OutputMetadata {
+    /// The colour profile to embed.
+    pub icc_profile: Option<Vec<u8>>,
+    /// The EXIF block.
+    pub exif: Option<Vec<u8>>,
+    /// Print resolution, dots per inch.
+    pub dpi: Option<f64>,
+    /// The palette as written in the reduced image (numbers of the input's profile), when
+    /// it differs from the sRGB `palette`.
+    pub written_palette: Option<Vec<[u8; 3]>>,
 }
 
 /// Reduces a decoded image. Fails only on parameters or an image with no opaque pixel.
@@ -165,17 +245,59 @@ pub fn reduce_image_with(
     } else {
         None
     };
+    let read = img.icc_profile.as_deref().map(read_profile);
+    let convert = match &read {
+        Some(ProfileUse::Convert(p)) => Some(p.as_ref()),
+        _ => None,
+    };
     let px = pipeline::Pixels {
         entry: pixel_entry,
         width: img.width,
         height: img.height,
         alpha,
         fixed,
+        profile: convert,
     };
     let mut red = pipeline::reduce_indexed(&hist, px, opts)?;
     if img.more_frames {
         red.notes.push(MORE_FRAMES_NOTE.into());
     }
+    // The profile the reduced image is written in: the input's (embedded again), unless
+    // sRGB was asked for, metadata are dropped, or the profile could not be applied.
+    // A grey profile cannot go into the (colour) reduced PNG: such images are written in
+    // sRGB numbers.
+    let rgb = img.icc_profile.as_deref().is_some_and(is_rgb_profile);
+    let keep_source = opts.output_profile == OutputProfile::Source && opts.keep_metadata;
+    let (input, description, embed) = match &read {
+        None => ("untagged", None, false),
+        Some(ProfileUse::Srgb(d)) => ("icc-srgb", Some(d.clone()), keep_source && rgb),
+        Some(ProfileUse::Convert(p)) => ("icc", Some(p.description.clone()), keep_source && rgb),
+        Some(ProfileUse::Unused(why)) => {
+            red.notes.push(format!("{why}; the image is read as sRGB"));
+            ("icc-unused", None, false)
+        }
+    };
+    if embed {
+        if let Some(p) = convert {
+            red.metadata.written_palette = p.encode_srgb8(&red.palette);
+        }
+        red.metadata.icc_profile = img.icc_profile.clone();
+    }
+    if opts.keep_metadata {
+        red.metadata.exif = img.exif.clone();
+        red.metadata.dpi = img.dpi;
+    }
+    red.document.colour_profile = Some(ColourProfileRecord {
+        input: input.into(),
+        description,
+        output: if embed || (input == "untagged" && keep_source) {
+            "source"
+        } else {
+            "srgb"
+        }
+        .into(),
+    });
+    loss::record_percentiles(&mut red);
     Ok(red)
 }
 
@@ -192,6 +314,7 @@ pub fn learn_palette(hist: &histogram::Histogram, opts: &ReduceOptions) -> Resul
         height: 0,
         alpha: None,
         fixed: None,
+        profile: None,
     };
     Ok(pipeline::reduce_indexed(hist, px, &opts)?.document)
 }
@@ -263,7 +386,10 @@ pub fn reduce_file_run(
         None => stem_of(input)?,
     };
     let (fixed, stamp) = (run.fixed, run.stamp);
-    let names = output_names(&stem);
+    let mut names = output_names(&stem).to_vec();
+    if opts.loss_map {
+        names.extend(loss_names(&stem));
+    }
     let (red, outputs) = crate::output::one_input(
         input,
         out_dir,
@@ -280,7 +406,7 @@ pub fn reduce_file_run(
                 red.document.settings_fingerprint = Some(opts.fingerprint(fixed));
             }
             ph.mark("reduce in memory");
-            write_reduction(&red, &stem, set, opts.uncertainty_raw)?;
+            write_reduction(&red, &stem, set, opts.uncertainty_raw, opts.loss_map)?;
             ph.mark("encode and write");
             Ok(red)
         },

@@ -19,6 +19,11 @@ pub fn output_names(stem: &str) -> [String; 5] {
     ]
 }
 
+/// The loss map's file names for a given stem: the float TIFF and the picture.
+pub fn loss_names(stem: &str) -> [String; 2] {
+    [format!("{stem}.loss.tif"), format!("{stem}.loss.png")]
+}
+
 /// The palette rows as CSV with a header.
 pub fn palette_csv(doc: &PaletteDocument) -> String {
     let mut s = String::from("index,hex,L,a,b,pixels,share,mean_uncertainty\n");
@@ -34,6 +39,14 @@ pub fn palette_csv(doc: &PaletteDocument) -> String {
 /// Encodes the reduced image: indexed PNG when the palette (plus one transparent entry
 /// if needed) fits in 256 entries and alpha is only 0 or 255; RGBA PNG otherwise.
 pub fn encode_reduced(red: &Reduction, w: &mut impl std::io::Write) -> std::io::Result<()> {
+    let m = &red.metadata;
+    let extras = raster::PngExtras {
+        icc_profile: m.icc_profile.as_deref(),
+        exif: m.exif.as_deref(),
+        dpi: m.dpi,
+    };
+    // The palette in the numbers of the profile the image is written in.
+    let palette = m.written_palette.as_ref().unwrap_or(&red.palette);
     let binary_alpha = red
         .alpha
         .as_ref()
@@ -41,8 +54,8 @@ pub fn encode_reduced(red: &Reduction, w: &mut impl std::io::Write) -> std::io::
     let has_transparent = red.pixel_index.contains(&NO_INDEX);
     let entries = red.palette.len() + has_transparent as usize;
     if binary_alpha && entries <= 256 {
-        let t = red.palette.len() as u16;
-        let mut pal = red.palette.clone();
+        let t = palette.len() as u16;
+        let mut pal = palette.clone();
         if has_transparent {
             pal.push([0, 0, 0]);
         }
@@ -51,25 +64,26 @@ pub fn encode_reduced(red: &Reduction, w: &mut impl std::io::Write) -> std::io::
             .iter()
             .map(|&i| if i == NO_INDEX { t as u8 } else { i as u8 })
             .collect();
-        raster::write_indexed_png(
+        raster::write_indexed_png_with(
             w,
             red.width,
             red.height,
             &pal,
             has_transparent.then_some(t as u8),
             &idx,
+            &extras,
         )
     } else {
         let mut rgba = vec![0u8; red.pixel_index.len() * 4];
         rgba.par_chunks_mut(4).enumerate().for_each(|(p, px)| {
             let i = red.pixel_index[p];
             if i != NO_INDEX {
-                let c = red.palette[i as usize];
+                let c = palette[i as usize];
                 px[..3].copy_from_slice(&c);
                 px[3] = red.alpha.as_ref().map_or(255, |a| a[p]);
             }
         });
-        raster::write_rgba_png(w, red.width, red.height, &rgba)
+        raster::write_rgba_png_with(w, red.width, red.height, &rgba, &extras)
     }
 }
 
@@ -123,6 +137,7 @@ pub fn write_reduction(
     stem: &str,
     set: &mut OutputSet,
     uncertainty_raw: bool,
+    loss_map: bool,
 ) -> Result<Vec<PathBuf>> {
     let names = output_names(stem);
     let mut written = Vec::new();
@@ -137,6 +152,14 @@ pub fn write_reduction(
         written.push(set.write(&names[4], |w| {
             raster::write_f32_tiff(w, red.width, red.height, &f)
         })?);
+    }
+    if loss_map {
+        let [tif, png] = loss_names(stem);
+        let loss = super::loss::pixel_delta_e2000(red);
+        written.push(set.write(&tif, |w| {
+            raster::write_f32_tiff(w, red.width, red.height, &loss)
+        })?);
+        written.push(set.write(&png, |w| super::loss::loss_map_png(red, &loss, w))?);
     }
     // The palette document goes last: files are renamed into place in the order they
     // were written, so a set whose palette.json carries the current settings fingerprint

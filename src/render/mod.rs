@@ -2,6 +2,7 @@
 //! dithering, and uncertainty maps. Per-pixel work is table look-ups.
 
 pub mod chart;
+pub mod loss_map;
 
 use crate::features::histogram::TRANSPARENT;
 use rayon::prelude::*;

@@ -370,15 +370,17 @@ fn opt(v: Option<f64>) -> String {
     v.map_or(String::new(), |v| format!("{v}"))
 }
 
-/// `sweep.csv`: one row per K with a header, then a `# suggested` comment line per
-/// criterion and a `# recommended` line.
+/// `sweep.csv`: a header and one row per K, every row of the same shape (plain CSV
+/// readers take it whole). The last column, `recommended`, is `true` on the recommended
+/// K's row; each criterion's own choice is in `sweep.json` (`suggested`).
 pub fn sweep_csv(doc: &SweepDocument) -> String {
     let mut s = String::from(
-        "k,sse,mean_delta_e2000,p95_delta_e2000,mean_uncertainty,silhouette,bic,bic_full,icl,stability,closest_delta_e2000,smallest_share,families\n",
+        "k,sse,mean_delta_e2000,p95_delta_e2000,mean_uncertainty,silhouette,bic,bic_full,icl,stability,closest_delta_e2000,smallest_share,families,recommended\n",
     );
+    let best = doc.recommended.as_ref().map(|r| r.k);
     for r in &doc.rows {
         s.push_str(&format!(
-            "{},{},{},{},{},{},{},{},{},{},{},{},{}\n",
+            "{},{},{},{},{},{},{},{},{},{},{},{},{},{}\n",
             r.k,
             r.sse,
             opt(r.mean_delta_e2000),
@@ -391,16 +393,8 @@ pub fn sweep_csv(doc: &SweepDocument) -> String {
             opt(r.stability),
             opt(r.closest_delta_e2000),
             r.smallest_share,
-            r.families.map_or(String::new(), |f| f.to_string())
-        ));
-    }
-    for (name, k) in &doc.suggested {
-        s.push_str(&format!("# suggested by {name}: K = {k}\n"));
-    }
-    if let Some(r) = &doc.recommended {
-        s.push_str(&format!(
-            "# recommended: K = {} ({}): {}\n",
-            r.k, r.rule, r.reason
+            r.families.map_or(String::new(), |f| f.to_string()),
+            best == Some(r.k)
         ));
     }
     s
