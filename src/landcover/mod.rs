@@ -18,6 +18,7 @@
 
 mod document;
 mod fit;
+mod legend;
 mod pass2;
 mod preview;
 mod stats;
@@ -151,7 +152,12 @@ pub fn landcover_file(
             mark("pass 2 (classes, statistics)");
             let colours = class_colours(scene.classes.k);
             let document = ClassesDocument::build(input, opts, &scene, &pass.stats, &colours);
-            set.write(&names[2], |wr| pass.preview.write_png(wr, &colours))?;
+            let legend = legend::entries(&document, &colours);
+            let (w, h) = (scene.info.width, scene.info.height);
+            let metres = scene.areas.at(w / 2, h / 2).map(f64::sqrt);
+            set.write(&names[2], |wr| {
+                pass.preview.write_png_legend(wr, &colours, &legend, metres)
+            })?;
             set.write_bytes(&names[3], document.to_json().as_bytes())?;
             set.write_bytes(&names[4], classes_csv(&document).as_bytes())?;
             Ok(document)
