@@ -502,3 +502,274 @@ fn films_are_the_same_on_any_thread_count() {
     }
     assert_eq!(sets[0], sets[1]);
 }
+
+/// sRGB transfer (IEC 61966-2-1) and its inverse, for building the tint wedge.
+fn to_linear(v: u8) -> f64 {
+    let c = v as f64 / 255.0;
+    if c <= 0.04045 {
+        c / 12.92
+    } else {
+        ((c + 0.055) / 1.055).powf(2.4)
+    }
+}
+
+fn to_srgb8(l: f64) -> u8 {
+    let c = if l <= 0.0031308 {
+        12.92 * l
+    } else {
+        1.055 * l.powf(1.0 / 2.4) - 0.055
+    };
+    (c * 255.0).round() as u8
+}
+
+#[test]
+fn tints_are_chosen_and_scored_as_they_print() {
+    // A wedge of one ink over white paper at dot areas 1/8 .. 8/8, mixed by the
+    // Murray–Davies relation (A. Murray, 1936: R = a·R_ink + (1 − a)·R_paper) in linear
+    // sRGB, the model the README states. With tints, one ink reproduces every step; solid,
+    // it cannot.
+    let dir = tempfile::tempdir().unwrap();
+    let ink = [0x1fu8, 0x4e, 0x9c];
+    let (w, h) = (80u32, 20u32);
+    let mut rgba = Vec::new();
+    let mut expected = Vec::new();
+    for _y in 0..h {
+        for x in 0..w {
+            let a = (x / 10 + 1) as f64 / 8.0;
+            let px = ink.map(|c| to_srgb8(a * to_linear(c) + (1.0 - a)));
+            rgba.extend_from_slice(&[px[0], px[1], px[2], 255]);
+            expected.push(px);
+        }
+    }
+    let art = dir.path().join("wedge.png");
+    write_rgba(&art, w, h, &rgba);
+    let lib = dir.path().join("inks.csv");
+    std::fs::write(
+        &lib,
+        "name,hex\nHarbour Blue,#1f4e9c\nSignal Red,#c8102e\nPale Sky,#a9c4e8\n",
+    )
+    .unwrap();
+    let sep = |out: &str, extra: &[&str]| -> Value {
+        let o = dir.path().join(out);
+        let mut args = vec![
+            "separate",
+            art.to_str().unwrap(),
+            "--inks",
+            lib.to_str().unwrap(),
+            "-k",
+            "1",
+            "--dpi",
+            "300",
+            "--films",
+            "png",
+            "-o",
+            o.to_str().unwrap(),
+        ];
+        args.extend_from_slice(extra);
+        let r = run(&args, &[]);
+        assert!(r.status.success(), "{}", stderr(&r));
+        json(&o.join("wedge.separation.json"))
+    };
+    let tinted = sep("tinted", &["--tints"]);
+    let solid = sep("solid", &[]);
+    assert_eq!(tinted["inks"][0]["name"], "Harbour Blue");
+    let de_tinted = tinted["mean_delta_e2000"].as_f64().unwrap();
+    let de_solid = solid["mean_delta_e2000"].as_f64().unwrap();
+    // 8-bit rounding of the wedge leaves well under one ΔE2000 unit.
+    assert!(de_tinted < 1.0, "tinted mean ΔE2000 {de_tinted}");
+    assert!(de_solid > 10.0, "solid mean ΔE2000 {de_solid}");
+    // The proof shows the tints as they print: each step within 2 levels of the wedge.
+    let proof = image::open(dir.path().join("tinted/wedge.proof.png"))
+        .unwrap()
+        .to_rgb8();
+    for (p, want) in proof.pixels().zip(&expected) {
+        for c in 0..3 {
+            assert!(
+                (p.0[c] as i32 - want[c] as i32).abs() <= 2,
+                "{:?} vs {want:?}",
+                p.0
+            );
+        }
+    }
+}
+
+/// Writes `art` (RGB per pixel from `f`) and a two-ink library into `dir`, runs `separate`
+/// with `extra`, and returns the output folder and the document.
+fn separate_art(
+    dir: &Path,
+    name: &str,
+    (w, h): (u32, u32),
+    f: impl Fn(u32, u32) -> [u8; 3],
+    extra: &[&str],
+) -> (std::path::PathBuf, Value) {
+    let mut rgba = Vec::new();
+    for y in 0..h {
+        for x in 0..w {
+            rgba.extend_from_slice(&f(x, y));
+            rgba.push(255);
+        }
+    }
+    let art = dir.join(format!("{name}.png"));
+    write_rgba(&art, w, h, &rgba);
+    let lib = dir.join("inks.csv");
+    std::fs::write(&lib, "name,hex\nInk Black,#000000\nInk Red,#c8102e\n").unwrap();
+    let out = dir.join(name);
+    let mut args = vec![
+        "separate",
+        art.to_str().unwrap(),
+        "--inks",
+        lib.to_str().unwrap(),
+        "--dpi",
+        "300",
+        "-o",
+        out.to_str().unwrap(),
+    ];
+    args.extend_from_slice(extra);
+    let o = run(&args, &[]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    let doc = json(&out.join(format!("{name}.separation.json")));
+    (out, doc)
+}
+
+/// Ink per pixel of a film preview (artwork size): pixels of the ink's colour.
+fn preview_ink(path: &Path, ink: [u8; 3]) -> (u32, Vec<bool>) {
+    let img = image::open(path).unwrap().to_rgb8();
+    (img.width(), img.pixels().map(|p| p.0 == ink).collect())
+}
+
+#[test]
+fn mirrored_films_are_the_plain_films_flipped_left_to_right() {
+    // Emulsion side down (common practice for screen films): the artwork, marks and strip
+    // read right to left; only the label's words (which name the reading side) differ.
+    // Checked on the TIFF read back by the `tiff` crate (TIFF 6.0), from the top of the
+    // artwork (the PDF's TrimBox, ISO 32000-1) down.
+    let dir = tempfile::tempdir().unwrap();
+    let art = |x: u32, y: u32| match (x < 30, y < 10) {
+        (true, true) => [0, 0, 0],
+        (false, false) => [0xc8, 0x10, 0x2e],
+        _ => [255, 255, 255],
+    };
+    let flags = ["-k", "2", "--films", "tiff,pdf", "--job", "flip check"];
+    let (plain, doc) = separate_art(dir.path(), "plain", (60, 24), art, &flags);
+    let mirror_flags = [&flags[..], &["--mirror"]].concat();
+    let (mirrored, mdoc) = separate_art(dir.path(), "mirrored", (60, 24), art, &mirror_flags);
+    assert_eq!(mdoc["films"]["mirror"], true);
+    assert_eq!(doc["films"]["mirror"], false);
+    let trim = pdf_boxes(&plain.join("plain.films.pdf"), 300.0)[0].0;
+    let (ax, ay) = (trim[0] as usize, trim[1] as usize);
+    let films = doc["films"]["films"].as_array().unwrap();
+    assert_eq!(films.len(), 2);
+    for (f, mf) in films.iter().zip(mdoc["films"]["films"].as_array().unwrap()) {
+        let (w, h, _, ink) = read_tiff(&plain.join(f["files"][0].as_str().unwrap()));
+        let (mw, mh, _, mink) = read_tiff(&mirrored.join(mf["files"][0].as_str().unwrap()));
+        assert_eq!((w, h), (mw, mh));
+        let (w, h) = (w as usize, h as usize);
+        for y in ay..h {
+            for x in 0..w {
+                assert_eq!(ink[y * w + x], mink[y * w + (w - 1 - x)], "({x}, {y})");
+            }
+        }
+        // The artwork is not symmetric, so the flip shows inside it.
+        assert!((0..60).any(|x| ink[(ay + 2) * w + ax + x] != mink[(ay + 2) * w + ax + x]));
+    }
+}
+
+#[test]
+fn the_highlight_white_prints_last_on_the_lightest_artwork() {
+    // CIE L* of sRGB greys (IEC 61966-2-1 transfer, CIE 15:2004 L* = 116 f(Y) − 16):
+    // #ffffff is 100, #e6e6e6 about 91.5, #d9d9d9 about 87.1 (computed here, not recalled).
+    let l_star = |v: u8| {
+        let y = to_linear(v);
+        let f = if y > (6.0f64 / 29.0).powi(3) {
+            y.cbrt()
+        } else {
+            y / (3.0 * (6.0f64 / 29.0).powi(2)) + 4.0 / 29.0
+        };
+        116.0 * f - 16.0
+    };
+    let greys = [255u8, 0xe6, 0xd9, 0x20];
+    let art = |x: u32, _y: u32| [greys[(x / 20) as usize]; 3];
+    let dir = tempfile::tempdir().unwrap();
+    for (limit, flag) in [(90.0, None), (95.0, Some("95"))] {
+        let name = format!("grey{}", limit as u32);
+        let mut flags = vec![
+            "-k",
+            "1",
+            "--substrate",
+            "#101010",
+            "--underbase",
+            "--films",
+            "png",
+            "--highlight-white",
+        ];
+        flags.extend(flag);
+        let (out, doc) = separate_art(dir.path(), &name, (80, 10), art, &flags);
+        let films = doc["films"]["films"].as_array().unwrap();
+        let last = films.last().unwrap();
+        assert_eq!(last["role"], "highlight white");
+        assert_eq!(last["print_order"].as_u64().unwrap() as usize, films.len());
+        let preview = out.join(format!(
+            "{name}.preview-{:02}-highlight-white.png",
+            films.len()
+        ));
+        let (w, ink) = preview_ink(&preview, [255, 255, 255]);
+        for (i, &on) in ink.iter().enumerate() {
+            let g = greys[(i as u32 % w / 20) as usize];
+            assert_eq!(on, l_star(g) >= limit, "grey {g:#x} (L* {:.1})", l_star(g));
+        }
+    }
+}
+
+#[test]
+fn the_minimum_feature_keeps_lines_and_text_strokes_and_drops_specks() {
+    // 4 px at 300 dpi is 0.34 mm; `1thread@75` is 25.4 / 75 = 0.339 mm (thread spacing =
+    // 25.4 mm / mesh count, common practice), also 4 px. A 1 px line 40 px long is thin but
+    // long (kept), a 2 × 2 speck goes, a 5 × 5 square holds the limit.
+    let art = |x: u32, y: u32| {
+        let line = y == 5 && (5..45).contains(&x);
+        let speck = (60..62).contains(&x) && (20..22).contains(&y);
+        let square = (70..75).contains(&x) && (20..25).contains(&y);
+        if line || speck || square {
+            [0, 0, 0]
+        } else {
+            [255, 255, 255]
+        }
+    };
+    let dir = tempfile::tempdir().unwrap();
+    for (i, limit) in ["4px", "0.34mm", "1threads@75"].iter().enumerate() {
+        let name = format!("marks{i}");
+        let flags = [
+            "-k",
+            "1",
+            "--substrate",
+            "#ffffff",
+            "--min-area",
+            "1",
+            "--films",
+            "png",
+            "--min-feature",
+            limit,
+        ];
+        let (out, doc) = separate_art(dir.path(), &name, (90, 30), art, &flags);
+        assert_eq!(doc["films"]["min_feature_px"], 4, "{limit}");
+        assert_eq!(doc["films"]["cleanup_removed"], 1, "{limit}");
+        let (w, ink) = preview_ink(
+            &out.join(format!("{name}.preview-01-ink-black.png")),
+            [0, 0, 0],
+        );
+        let at = |x: u32, y: u32| ink[(y * w + x) as usize];
+        assert!(at(5, 5) && at(44, 5), "{limit}: the thin long line stays");
+        assert!(
+            at(70, 20) && at(74, 24),
+            "{limit}: the square holds the limit"
+        );
+        assert!(!at(60, 20) && !at(61, 21), "{limit}: the speck goes");
+        let csv = std::fs::read_to_string(out.join(format!("{name}.cleanup.csv"))).unwrap();
+        assert_eq!(
+            csv.lines().count(),
+            2,
+            "{limit}: a header and the speck: {csv}"
+        );
+        assert!(csv.contains("removed,60,20,2,2"), "{csv}");
+    }
+}

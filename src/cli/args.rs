@@ -569,6 +569,16 @@ pub struct LandcoverArgs {
     #[arg(long = "max-pixels", default_value_t = crate::landcover::MAX_SCENE_PIXELS, value_name = "N")]
     pub max_pixels: u64,
 
+    /// Apply a saved model (from `landcover-fit` or --save-model) instead of fitting: the
+    /// same outputs with the model's class numbers. The model fixes K, the scene features
+    /// and the engine, so those flags are refused with it.
+    #[arg(long, value_name = "FILE", conflicts_with_all = super::landcover::MODEL_FIXES)]
+    pub model: Option<PathBuf>,
+
+    /// Also write the fitted model to FILE (JSON), for `landcover --model` on other rasters.
+    #[arg(long = "save-model", value_name = "FILE", conflicts_with = "model")]
+    pub save_model: Option<PathBuf>,
+
     #[command(flatten)]
     pub rest: SceneRunFlags,
 }

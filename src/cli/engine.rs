@@ -209,7 +209,7 @@ pub struct FolderOutput {
 }
 
 /// A count of at least 1 (`--sample`).
-pub(super) fn positive_count(s: &str) -> Result<usize, String> {
+pub(crate) fn positive_count(s: &str) -> Result<usize, String> {
     match s.parse::<usize>() {
         Ok(0) => Err("must be at least 1".into()),
         Ok(n) => Ok(n),

@@ -5,6 +5,7 @@
 mod args;
 mod engine;
 mod help;
+mod landcover;
 mod run;
 mod stdio;
 
@@ -14,6 +15,9 @@ pub use args::{
 };
 pub use engine::{BandList, BetaFlag, EngineFlags, FolderOutput, LimitFlag, SceneFlags};
 pub use help::{flag_wording, manual_pages, suggest};
+pub use landcover::{
+    LandcoverAssessArgs, LandcoverFitArgs, LandcoverLabelArgs, LandcoverSampleArgs,
+};
 pub use run::run;
 
 use clap::{Args, Parser, Subcommand};
@@ -51,6 +55,8 @@ const LANDCOVER_EXAMPLES: &str = "\
 Examples:
   chromasift landcover scene.tif -k 6 -o classes/
   chromasift landcover scene.tif -k 8 --bands 2,3,4,8 --index ndvi:3,4 --nodata 0 --mode soft -o classes/
+  chromasift landcover scene.tif -k 6 --save-model scene.model.json -o classes/
+  chromasift landcover other-tile.tif --model scene.model.json -o classes/
 
 Writes STEM.classes.tif (class 1..K, 0 = nodata) and STEM.uncertainty.tif (0..1, -1 =
 nodata), both with the input's georeferencing, plus STEM.classes.png (preview and legend),
@@ -121,6 +127,25 @@ pub enum Command {
     /// aligned to the map, with an uncertainty map. Not a validated classification.
     #[command(after_help = LANDCOVER_EXAMPLES)]
     Landcover(LandcoverArgs),
+
+    /// Draw one raster's seeded land-cover sample into a file, for `landcover-fit` (one
+    /// job per raster on a cluster).
+    #[command(name = "landcover-sample", after_help = landcover::SAMPLE_EXAMPLES)]
+    LandcoverSample(LandcoverSampleArgs),
+
+    /// Fit one land-cover model from sample files or rasters, for `landcover --model`.
+    #[command(name = "landcover-fit", after_help = landcover::FIT_EXAMPLES)]
+    LandcoverFit(LandcoverFitArgs),
+
+    /// Check a class raster against reference data (a raster on the same grid, or points):
+    /// confusion matrix, accuracies, kappa and error-adjusted areas.
+    #[command(name = "landcover-assess", after_help = landcover::ASSESS_EXAMPLES)]
+    LandcoverAssess(LandcoverAssessArgs),
+
+    /// Name and merge the classes of a class raster with a label file, and remove patches
+    /// below a minimum mapping unit.
+    #[command(name = "landcover-label", after_help = landcover::LABEL_EXAMPLES)]
+    LandcoverLabel(LandcoverLabelArgs),
 
     /// Reduce every image of a folder, each with its own palette or all with one shared palette.
     #[command(after_help = BATCH_EXAMPLES)]

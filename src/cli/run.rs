@@ -10,7 +10,7 @@ use super::{
     ApplyArgs, BatchArgs, Cli, Command, HistogramArgs, LearnArgs, ManpageArgs, ReduceArgs,
 };
 use crate::error::Error;
-use crate::{batch, features, landcover, learn, reduce, separate, sweep};
+use crate::{batch, features, learn, reduce, separate, sweep};
 use std::io::Write;
 use std::path::{Path, PathBuf};
 use std::process::ExitCode;
@@ -105,7 +105,11 @@ fn dispatch(argv: Vec<std::ffi::OsString>) -> ExitCode {
     let result = match cli.command {
         Command::Reduce(args) => run_reduce(&args),
         Command::Separate(args) => run_separate(&args),
-        Command::Landcover(args) => run_landcover(&args),
+        Command::Landcover(args) => super::landcover::run_landcover(&args),
+        Command::LandcoverSample(args) => super::landcover::run_sample(&args),
+        Command::LandcoverFit(args) => super::landcover::run_fit(&args),
+        Command::LandcoverAssess(args) => super::landcover::run_assess(&args),
+        Command::LandcoverLabel(args) => super::landcover::run_label(&args),
         Command::Sweep(args) => run_sweep(&args),
         Command::Batch(args) => return run_batch(args),
         Command::Learn(args) => run_learn(&args),
@@ -246,32 +250,6 @@ fn run_separate(args: &super::SeparateArgs) -> Result<ExitCode, Error> {
     );
     if args.output.json {
         emit_json(&report.document);
-    }
-    Ok(ExitCode::SUCCESS)
-}
-
-fn run_landcover(args: &super::LandcoverArgs) -> Result<ExitCode, Error> {
-    let report = landcover::landcover_file(&args.input, &args.rest.output.out, &args.options())?;
-    let d = &report.document;
-    eprintln!(
-        "chromasift: {}: {} classes over {} valid pixels ({} nodata), SSE {:.6e}, {:.2} s",
-        args.input.display(),
-        d.k,
-        d.valid_pixels,
-        d.nodata_pixels,
-        d.sse,
-        report.seconds
-    );
-    for w in &d.warnings {
-        eprintln!(
-            "chromasift: warning: {}: {}",
-            args.input.display(),
-            flag_wording(w)
-        );
-    }
-    eprintln!("chromasift: caution: {}", landcover::CAUTION);
-    if args.rest.output.json {
-        emit_json(d);
     }
     Ok(ExitCode::SUCCESS)
 }

@@ -5,42 +5,68 @@
 
 use super::hard::{assign_nearest, lloyd, LloydResult, Stop};
 use super::init::{kmeans_plus_plus, kmeans_plus_plus_from};
+use super::model::{refine_summary, REFINE_STREAM};
+use super::refine::{refine_means, Refine};
 use super::{dist2, Dataset};
 use crate::rng::Rng;
 use rayon::prelude::*;
 
+/// The settings of a [`k_path`].
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct KPath {
+    /// Smallest K handed to the step (the path itself always starts at K = 1).
+    pub k_min: usize,
+    pub k_max: usize,
+    pub seed: u64,
+    pub stop: Stop,
+    pub accelerate: bool,
+    /// The global refinement run after each K's k-means++ extension, as after each start
+    /// of a fit (see `refine.rs`).
+    pub refine: Refine,
+    /// Relative SSE tolerance of the refinement's trial runs.
+    pub tolerance: f64,
+}
+
 /// Fits K = 1, 2, … up to `k_max`: K = 1 from seeded k-means++, each next one from the
-/// previous solution plus one greedy k-means++ centre, each polished by Lloyd. `step`
-/// sees the fits with K ≥ `k_min` in turn and returns false to stop early. The path also
-/// stops when the data has no more distinct rows than the last K.
+/// previous solution plus one greedy k-means++ centre, then the global refinement (on a
+/// grid summary of the rows, as in a fit), each polished by Lloyd. `step` sees the fits
+/// with K ≥ `k_min` in turn and returns false to stop early. The path also stops when the
+/// data has no more distinct rows than the last K.
 ///
 /// The path always starts at K = 1, so the fit at each K depends only on the data, `seed`
-/// and `stop`, never on the range asked: a sweep over 2..16 and a search for the smallest
-/// K meeting a target see the same fit at every K.
-pub fn k_path(
-    data: &Dataset,
-    k_min: usize,
-    k_max: usize,
-    seed: u64,
-    stop: Stop,
-    accelerate: bool,
-    mut step: impl FnMut(usize, &LloydResult) -> bool,
-) {
+/// and the settings, never on the range asked: a sweep over 2..16 and a search for the
+/// smallest K meeting a target see the same fit at every K.
+pub fn k_path(data: &Dataset, path: &KPath, mut step: impl FnMut(usize, &LloydResult) -> bool) {
     let dim = data.dim();
     let mut prev: Option<Vec<f32>> = None;
-    for k in 1..=k_max {
+    for k in 1..=path.k_max {
         // One generator stream per K: reproducible whatever the range asked.
-        let mut rng = Rng::new(seed, k as u64);
-        let init = match &prev {
+        let mut rng = Rng::new(path.seed, k as u64);
+        let mut init = match &prev {
             None => kmeans_plus_plus(data, k, &mut rng),
             Some(p) => kmeans_plus_plus_from(data, p, k, &mut rng),
         };
         if init.len() / dim < k {
             return; // fewer distinct rows than K
         }
-        let res = lloyd(data, &init, stop, accelerate);
+        if k >= 2 && !path.refine.is_none() {
+            let summary = refine_summary(data, k);
+            let on = summary
+                .as_ref()
+                .and_then(|(rows, w)| Dataset::new(rows, dim, Some(w)).ok());
+            let mut rng = Rng::new(path.seed, REFINE_STREAM | k as u64);
+            init = refine_means(
+                on.as_ref().unwrap_or(data),
+                &init,
+                path.refine,
+                path.tolerance,
+                &mut rng,
+            )
+            .means;
+        }
+        let res = lloyd(data, &init, path.stop, path.accelerate);
         prev = Some(res.means.iter().map(|&v| v as f32).collect());
-        if k >= k_min && !step(k, &res) {
+        if k >= path.k_min && !step(k, &res) {
             return;
         }
     }
@@ -326,13 +352,22 @@ mod tests {
     fn path_fits_are_the_same_whatever_the_range() {
         let rows: Vec<f32> = (0..600).map(|i| ((i * 37) % 113) as f32 * 0.5).collect();
         let data = Dataset::new(&rows, 2, None).unwrap();
+        let path = |k_min| KPath {
+            k_min,
+            k_max: 6,
+            seed: 9,
+            stop: Stop::exact(100),
+            accelerate: true,
+            refine: Refine::default(),
+            tolerance: 1e-6,
+        };
         let mut long = Vec::new();
-        k_path(&data, 1, 6, 9, Stop::exact(100), true, |k, r| {
+        k_path(&data, &path(1), |k, r| {
             long.push((k, r.sse));
             true
         });
         let mut short = Vec::new();
-        k_path(&data, 3, 6, 9, Stop::exact(100), true, |k, r| {
+        k_path(&data, &path(3), |k, r| {
             short.push((k, r.sse));
             k < 4
         });

@@ -27,7 +27,7 @@ mod split_merge;
 pub use anneal::{anneal, Anneal, AnnealResult};
 pub use choose::{
     adjusted_rand_index, bic, calibration, k_path, silhouette, stability, weighted_sample,
-    CalibrationBin,
+    CalibrationBin, KPath,
 };
 pub use engine::EngineOptions;
 pub use hard::{assign_nearest, lloyd, lloyd_fixed, LloydResult, Stop};

@@ -13,7 +13,7 @@ use crate::rng::Rng;
 
 /// Generator streams of the refinement: this bit plus the restart number (k-means++ uses
 /// the restart number alone).
-const REFINE_STREAM: u64 = 1 << 32;
+pub(super) const REFINE_STREAM: u64 = 1 << 32;
 
 /// A fitted k-means model: results only (the parameters live in [`ValidParams`]).
 #[derive(Debug, Clone, PartialEq)]
@@ -147,10 +147,9 @@ pub fn fit_hard(data: &Dataset, params: &ValidParams) -> Result<(usize, super::L
     let refine = params.engine.anneal.is_none() && !params.engine.refine.is_none();
     let refine_grid = if refine {
         let mut ph = crate::trace::Phases::start("fit");
-        let cell = refine_cell(data, params.k);
-        let g = coarsen(data, cell);
+        let g = refine_summary(data, params.k);
         ph.mark("refinement summary");
-        Some(g).filter(|(rows, _)| rows.len() * 2 <= data.rows().len())
+        g
     } else {
         None
     };
@@ -217,6 +216,13 @@ pub fn fit_hard(data: &Dataset, params: &ValidParams) -> Result<(usize, super::L
         }
     }
     Ok(best.expect("at least one restart"))
+}
+
+/// The grid summary (rows, weights) the refinement of a K-means fit runs on, when it is
+/// at most half the rows.
+pub(super) fn refine_summary(data: &Dataset, k: usize) -> Option<(Vec<f32>, Vec<f64>)> {
+    Some(coarsen(data, refine_cell(data, k)))
+        .filter(|(rows, _)| rows.len() * 2 <= data.rows().len())
 }
 
 /// Side of the grid cells the refinement runs on: σ_max / (F · k^(1/dim)), σ_max² the

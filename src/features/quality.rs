@@ -167,26 +167,27 @@ pub fn search_k(
     let mut tried = Vec::new();
     let mut last: Option<(usize, crate::cluster::LloydResult)> = None;
     let mut met = false;
-    crate::cluster::k_path(
-        data,
-        1,
-        target.k_max,
-        params.engine.seed,
-        crate::cluster::stop_rule(params),
-        params.accelerate,
-        |k, res| {
-            let de = entry_delta_e2000(&res.means, &res.labels, labs, space);
-            let (mean, p95) = mean_and_p95(&de, &weights, total);
-            tried.push((k, mean, p95));
-            last = Some((k, res.clone()));
-            let value = match target.statistic {
-                TargetStatistic::Mean => mean,
-                TargetStatistic::P95 => p95,
-            };
-            met = value <= target.delta_e;
-            !met
-        },
-    );
+    let path = crate::cluster::KPath {
+        k_min: 1,
+        k_max: target.k_max,
+        seed: params.engine.seed,
+        stop: crate::cluster::stop_rule(params),
+        accelerate: params.accelerate,
+        refine: params.engine.refine,
+        tolerance: params.engine.tolerance,
+    };
+    crate::cluster::k_path(data, &path, |k, res| {
+        let de = entry_delta_e2000(&res.means, &res.labels, labs, space);
+        let (mean, p95) = mean_and_p95(&de, &weights, total);
+        tried.push((k, mean, p95));
+        last = Some((k, res.clone()));
+        let value = match target.statistic {
+            TargetStatistic::Mean => mean,
+            TargetStatistic::P95 => p95,
+        };
+        met = value <= target.delta_e;
+        !met
+    });
     let (k, hard) = last.ok_or_else(|| Error::Data("no colours to fit".into()))?;
     let p = KMeansParams {
         k,

@@ -211,9 +211,9 @@ impl Features {
 /// Running mean and variance (Welford; Chan et al. to merge), deterministic in order.
 #[derive(Debug, Clone, Copy, Default)]
 pub(crate) struct Moments {
-    n: f64,
+    pub(crate) n: f64,
     pub(crate) mean: f64,
-    m2: f64,
+    pub(crate) m2: f64,
 }
 
 impl Moments {
@@ -250,7 +250,7 @@ struct SampleGrid {
     seed: u64,
 }
 
-fn mix(mut z: u64) -> u64 {
+pub(crate) fn mix(mut z: u64) -> u64 {
     // SplitMix64 finaliser (Steele, Lea & Flood 2014).
     z = z.wrapping_add(0x9e37_79b9_7f4a_7c15);
     z = (z ^ (z >> 30)).wrapping_mul(0xbf58_476d_1ce4_e5b9);
@@ -403,15 +403,33 @@ pub(crate) fn check_options(
         path: path.into(),
         message: format!("inconsistent georeferencing: {m}"),
     })?;
-    let mut names: Vec<String> = bands.iter().map(|b| b.to_string()).collect();
-    names.extend(opts.indices.iter().map(IndexSpec::name));
-    Ok(Features {
-        bands: bands.iter().map(|b| b - 1).collect(),
-        indices: opts.indices.iter().map(|i| (i.a - 1, i.b - 1)).collect(),
-        nodata: opts.nodata.or(info.nodata).map(|v| v as f32),
-        names,
-        scale_offset: info.scale_offset.clone(),
-    })
+    Ok(Features::new(
+        &bands,
+        &opts.indices,
+        opts.nodata.or(info.nodata),
+        info.scale_offset.clone(),
+    ))
+}
+
+impl Features {
+    /// Features of `bands` (1-based, checked) and `indices`, with `nodata` in effect and the
+    /// raw bands' `scale_offset` (empty: none).
+    pub(crate) fn new(
+        bands: &[usize],
+        indices: &[IndexSpec],
+        nodata: Option<f64>,
+        scale_offset: Vec<(f64, f64)>,
+    ) -> Features {
+        let mut names: Vec<String> = bands.iter().map(|b| b.to_string()).collect();
+        names.extend(indices.iter().map(IndexSpec::name));
+        Features {
+            bands: bands.iter().map(|b| b - 1).collect(),
+            indices: indices.iter().map(|i| (i.a - 1, i.b - 1)).collect(),
+            nodata: nodata.map(|v| v as f32),
+            names,
+            scale_offset,
+        }
+    }
 }
 
 /// Pass 1 of a scene: feature statistics over every valid pixel, and the seeded grid
@@ -463,6 +481,22 @@ impl SceneSample {
     }
 }
 
+/// Pass 1 before scaling: the open raster, its features, the statistics of every feature
+/// over the valid pixels and the unscaled sample rows.
+pub(crate) struct RawSample {
+    pub(crate) raster: GeoRaster,
+    pub(crate) info: RasterInfo,
+    pub(crate) feats: Features,
+    pub(crate) dim: usize,
+    /// Unscaled feature rows of the sample, `n × dim`.
+    pub(crate) sample: Vec<f32>,
+    /// Statistics of each feature over every valid pixel.
+    pub(crate) moments: Vec<Moments>,
+    pub(crate) valid_pixels: u64,
+    pub(crate) total_pixels: u64,
+    pub(crate) undefined_index_pixels: u64,
+}
+
 /// Opens `input`, checks the band and index options, and reads pass 1 (see
 /// [`SceneSample`]). `k_needed`: the sample must hold at least this many valid pixels.
 pub fn scene_sample(
@@ -472,6 +506,64 @@ pub fn scene_sample(
     limits: &Limits,
     k_needed: usize,
 ) -> Result<SceneSample> {
+    let RawSample {
+        raster,
+        info,
+        feats,
+        dim,
+        mut sample,
+        moments,
+        valid_pixels,
+        total_pixels,
+        undefined_index_pixels,
+    } = scene_pass1(input, opts, seed, limits)?;
+    let sample_n = sample.len() / dim;
+    if sample_n < k_needed {
+        return Err(Error::InputData {
+            path: input.into(),
+            message: format!(
+                "K = {k_needed} is more than the {sample_n} valid pixels in the fitting \
+                 sample ({valid_pixels} valid in the scene; see `sample`)"
+            ),
+        });
+    }
+    let scaler = Scaler::from_moments(opts.scale, &moments);
+    sample.par_chunks_mut(dim).for_each(|row| scaler.apply(row));
+    Ok(SceneSample {
+        raster,
+        info,
+        feats,
+        dim,
+        sample,
+        valid_pixels,
+        total_pixels,
+        undefined_index_pixels,
+        scaler,
+    })
+}
+
+impl Scaler {
+    /// The scaling `scale` asks for, from the statistics of every feature.
+    pub(crate) fn from_moments(scale: Scale, moments: &[Moments]) -> Scaler {
+        let dim = moments.len();
+        let (offset, factor) = match scale {
+            Scale::None => (vec![0.0; dim], vec![1.0; dim]),
+            Scale::Zscore => moments
+                .iter()
+                .map(|m| (m.mean, if m.std() > 0.0 { 1.0 / m.std() } else { 1.0 }))
+                .unzip(),
+        };
+        Scaler { offset, factor }
+    }
+}
+
+/// Pass 1 without scaling (see [`RawSample`]); refuses a scene whose every pixel is nodata.
+pub(crate) fn scene_pass1(
+    input: &Path,
+    opts: &SceneOptions,
+    seed: u64,
+    limits: &Limits,
+) -> Result<RawSample> {
     let mut raster = GeoRaster::open(input, limits)?;
     if let Some(mask) = &opts.exclude {
         raster.exclude_where(mask, limits)?;
@@ -535,36 +627,16 @@ pub fn scene_sample(
             message: "every pixel is nodata; there is nothing to classify".into(),
         });
     }
-    let sample_n = sample.len() / dim;
-    if sample_n < k_needed {
-        return Err(Error::InputData {
-            path: input.into(),
-            message: format!(
-                "K = {k_needed} is more than the {sample_n} valid pixels in the fitting \
-                 sample ({valid_pixels} valid in the scene; see `sample`)"
-            ),
-        });
-    }
-    // Scaling.
-    let (offset, factor): (Vec<f64>, Vec<f64>) = match opts.scale {
-        Scale::None => (vec![0.0; dim], vec![1.0; dim]),
-        Scale::Zscore => moments
-            .iter()
-            .map(|m| (m.mean, if m.std() > 0.0 { 1.0 / m.std() } else { 1.0 }))
-            .unzip(),
-    };
-    let scaler = Scaler { offset, factor };
-    sample.par_chunks_mut(dim).for_each(|row| scaler.apply(row));
-    Ok(SceneSample {
+    Ok(RawSample {
         raster,
         info,
         feats,
         dim,
         sample,
+        moments,
         valid_pixels,
         total_pixels,
         undefined_index_pixels,
-        scaler,
     })
 }
 

@@ -289,13 +289,10 @@ fn clean_plate_into(
     out
 }
 
-/// The list as CSV: one line per shape, with a header.
+/// The list as CSV: a header, then one row per shape (the limit itself is in the
+/// separation document, so every row has one shape).
 pub fn cleanup_csv(report: &CleanupReport) -> String {
-    let mut s = format!(
-        "# minimum feature {} px ({:.3} mm), shapes shorter than {} x that and too narrow to \
-         hold it\nplate,ink,action,x,y,width,height,pixels,added\n",
-        report.limit_px, report.limit_mm, report.long_factor
-    );
+    let mut s = String::from("plate,ink,action,x,y,width,height,pixels,added\n");
     for f in &report.features {
         let ink = if f.ink.contains([',', '"', '\n']) {
             format!("\"{}\"", f.ink.replace('"', "\"\""))

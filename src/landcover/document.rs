@@ -85,6 +85,9 @@ pub struct ClassesDocument {
     /// Value of nodata pixels in the uncertainty raster.
     pub uncertainty_nodata: f32,
     pub classes: Vec<ClassReport>,
+    /// The saved model applied (its file name), when the classes came from one.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub model: Option<String>,
 }
 
 impl ClassesDocument {
@@ -162,6 +165,7 @@ impl ClassesDocument {
             warnings: warnings(scene),
             uncertainty_nodata: UNCERTAINTY_NODATA,
             classes,
+            model: None,
         }
     }
 

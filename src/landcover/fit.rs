@@ -28,6 +28,8 @@ pub(super) struct FittedScene {
     /// The second start's comparison with the kept solution, when one was made.
     pub(super) restart_check: Option<RestartCheck>,
     pub(super) classes: FittedClasses,
+    /// What the fit said about the sample (none when the classes come from a saved model).
+    pub(super) summary: Option<FitSummary>,
 }
 
 /// The fitted classes, numbered 1..=k by their share of the sample (largest first).
@@ -41,14 +43,10 @@ pub(super) struct FittedClasses {
     pub(super) dim: usize,
     /// Number of classes.
     pub(super) k: usize,
-    /// The fit's means, k × dim in the scaled feature space, in the fit's own order.
+    /// The means, k × dim in the scaled feature space, in class order (class 1 first).
     means: Vec<f64>,
     /// The soft assignment's β (None for hard k-means).
     pub(super) beta: Option<f64>,
-    /// Class number (1..=k) of each of the fit's means.
-    class_of: Vec<u8>,
-    /// The fit's mean of each class number − 1 (the inverse of `class_of`).
-    order: Vec<usize>,
 }
 
 /// Rows of pixels assigned to the classes.
@@ -92,7 +90,58 @@ impl FittedScene {
         second: Option<(u64, &ValidParams)>,
     ) -> Result<FittedScene> {
         let dim = scene.dim;
-        let data = Dataset::new(&scene.sample, dim, None)?;
+        let bands = scene.info.bands;
+        let descriptions = scene.feature_descriptions();
+        let areas = PixelAreas::new(&scene.info.geo, scene.info.width, scene.info.height);
+        let (classes, summary) = FittedClasses::fit(
+            &scene.sample,
+            dim,
+            scene.feats,
+            scene.scaler,
+            bands,
+            params,
+            second,
+        )?;
+        Ok(FittedScene {
+            raster: scene.raster,
+            info: scene.info,
+            valid_pixels: scene.valid_pixels,
+            total_pixels: scene.total_pixels,
+            sample_pixels: scene.sample.len() / dim,
+            undefined_index_pixels: scene.undefined_index_pixels,
+            descriptions,
+            areas,
+            restart_check: summary.restart_check.clone(),
+            classes,
+            summary: Some(summary),
+        })
+    }
+}
+
+/// What the fit says about its own sample besides the classes.
+pub(super) struct FitSummary {
+    /// Rows of the sample in each class (index `class − 1`).
+    pub(super) counts: Vec<u64>,
+    /// The fit's SSE on the (scaled) sample.
+    pub(super) sse: f64,
+    /// The second start's comparison, when one was asked for.
+    pub(super) restart_check: Option<RestartCheck>,
+}
+
+impl FittedClasses {
+    /// Fits k-means on scaled `rows` (`n × dim`) and numbers the classes by their share of
+    /// the rows, largest first (ties: the fit's own order).
+    #[allow(clippy::too_many_arguments)]
+    pub(super) fn fit(
+        rows: &[f32],
+        dim: usize,
+        feats: Features,
+        scaler: Scaler,
+        bands: usize,
+        params: &ValidParams,
+        second: Option<(u64, &ValidParams)>,
+    ) -> Result<(FittedClasses, FitSummary)> {
+        let data = Dataset::new(rows, dim, None)?;
         let model = fit(&data, params)?;
         let restart_check = match second {
             Some((seed, p)) if model.k() > 1 => {
@@ -119,35 +168,50 @@ impl FittedScene {
         }
         let mut order: Vec<usize> = (0..k).collect();
         order.sort_by(|&a, &b| counts[b].cmp(&counts[a]).then(a.cmp(&b)));
-        let mut class_of = vec![0u8; k];
-        for (c, &j) in order.iter().enumerate() {
-            class_of[j] = (c + 1) as u8;
-        }
-        let descriptions = scene.feature_descriptions();
-        let areas = PixelAreas::new(&scene.info.geo, scene.info.width, scene.info.height);
-        let classes = FittedClasses {
-            feats: scene.feats,
-            scaler: scene.scaler,
-            bands: scene.info.bands,
+        let summary = FitSummary {
+            counts: order.iter().map(|&j| counts[j]).collect(),
+            sse: model.sse,
+            restart_check,
+        };
+        // The means are kept in class order, so a saved model applied later computes
+        // exactly what this run computes.
+        let means = order
+            .iter()
+            .flat_map(|&j| model.means[j * dim..(j + 1) * dim].iter().copied())
+            .collect();
+        let classes = FittedClasses::from_means(feats, scaler, bands, means, model.beta);
+        Ok((classes, summary))
+    }
+
+    /// Classes given whole, already numbered (`means` in class order, `k × dim`).
+    pub(super) fn from_means(
+        feats: Features,
+        scaler: Scaler,
+        bands: usize,
+        means: Vec<f64>,
+        beta: Option<f64>,
+    ) -> FittedClasses {
+        let dim = feats.dim();
+        let k = means.len() / dim;
+        FittedClasses {
+            feats,
+            scaler,
+            bands,
             dim,
             k,
-            means: model.means,
-            beta: model.beta,
-            class_of,
-            order,
-        };
-        Ok(FittedScene {
-            restart_check,
-            undefined_index_pixels: scene.undefined_index_pixels,
-            descriptions,
-            areas,
-            raster: scene.raster,
-            info: scene.info,
-            valid_pixels: scene.valid_pixels,
-            total_pixels: scene.total_pixels,
-            sample_pixels: scene.sample.len() / dim,
-            classes,
-        })
+            means,
+            beta,
+        }
+    }
+
+    /// The means in class order (`k × dim`, scaled features).
+    pub(super) fn means_by_class(&self) -> &[f64] {
+        &self.means
+    }
+
+    /// The scaling applied to features before the means.
+    pub(super) fn scaler(&self) -> &Scaler {
+        &self.scaler
     }
 }
 
@@ -178,13 +242,7 @@ impl FittedClasses {
         let ds = Dataset::new(&feat, dim, None).expect("finite features");
         let a = soft_assign(&ds, &self.means, self.beta);
         let classes = (0..n)
-            .map(|p| {
-                if ok[p] {
-                    self.class_of[a.labels[p] as usize]
-                } else {
-                    0
-                }
-            })
+            .map(|p| if ok[p] { (a.labels[p] + 1) as u8 } else { 0 })
             .collect();
         let uncertainty = (0..n)
             .map(|p| {
@@ -210,7 +268,7 @@ impl FittedClasses {
 
     /// Squared distance of scaled features to the mean of class number `class` (1..=k).
     pub(super) fn squared_distance(&self, class: usize, scaled: &[f32]) -> f64 {
-        let j = self.order[class - 1];
+        let j = class - 1;
         (0..self.dim)
             .map(|d| (scaled[d] as f64 - self.means[j * self.dim + d]).powi(2))
             .sum::<f64>()

@@ -16,19 +16,48 @@
 //!   `preview` grid;
 //! - `document`: the classes document and CSV; `preview`: the PNG with its legend.
 
+mod accuracy;
+mod assess;
+mod combine;
 mod document;
+mod finish;
 mod fit;
+mod labels;
 mod legend;
+mod model;
 mod pass2;
+mod patch_out;
+mod polygons;
 mod preview;
+mod sample;
 mod stats;
+mod vector_out;
 
 pub use crate::features::scene::{
     normalised_difference, parse_bands, IndexSpec, Scale, SceneOptions,
 };
+pub use accuracy::{
+    adjusted_rand_index, hungarian_max, AreaEstimate, AreaEstimates, Confusion, LabelAccuracy,
+};
+pub use assess::{
+    assess, assess_file, assessment_names, AssessmentDocument, ClusterLabel, Matching, Reference,
+};
+pub use combine::{fit_model, read_list_file, FitModelOptions};
 pub use document::{classes_csv, ClassReport, ClassesDocument, FeatureStats};
+pub use finish::{label_file, label_names, LabelOptions, LabelReport, LabelsDocument, MinUnit};
 pub use fit::{RestartCheck, RESTART_AGREEMENT_MIN};
+pub use labels::{labelled_preview, read_labels, Label, LabelSet};
+pub use model::{
+    LandcoverModel, ModelClass, ModelSource, ScalingRecord, MODEL_FORMAT, MODEL_FORMAT_VERSION,
+};
+pub use polygons::{patch_ids, ring_pixels, vectorise, Patch};
 pub use preview::{class_colours, preview_with_legend};
+pub use sample::source_name as source_file_name;
+pub use sample::{
+    read_sample_file, sample_scene, write_sample_file, SampleHeader, SampleOptions,
+    SceneSampleData, SAMPLE_FORMAT_VERSION,
+};
+pub use vector_out::{geojson, gpkg_geometry, write_geopackage, PatchAttributes, GPKG_TABLE};
 
 use crate::cluster::{EngineOptions, KMeansParams};
 use crate::error::{ParamsError, Result};
@@ -102,6 +131,8 @@ pub const MAX_CLASSES: usize = 255;
 pub struct LandcoverReport {
     pub outputs: Vec<PathBuf>,
     pub document: ClassesDocument,
+    /// The model this run fitted or applied (the same bytes `landcover_fit` would write).
+    pub model: Option<LandcoverModel>,
     pub seconds: f64,
 }
 
@@ -117,15 +148,13 @@ pub fn output_names(stem: &str) -> [String; 5] {
 }
 
 /// Runs the whole workflow on a file and writes all outputs atomically: pass 1 and the fit
-/// before the output folder is prepared, then pass 2 and the other outputs.
+/// before the output folder is prepared, then pass 2 and the other outputs. The report
+/// carries the fitted model (see [`LandcoverModel`]).
 pub fn landcover_file(
     input: &Path,
     out_dir: &Path,
     opts: &LandcoverOptions,
 ) -> Result<LandcoverReport> {
-    let t0 = Instant::now();
-    let phases = RefCell::new(Phases::start("landcover"));
-    let mark = |name: &str| phases.borrow_mut().mark(name);
     let params = opts.params().check()?;
     opts.check_k()?;
     // A second start from another seed, compared with the kept solution (see
@@ -138,20 +167,107 @@ pub fn landcover_file(
     }
     .params(opts.k)
     .check()?;
-    let names = output_names(&crate::output::stem_of(input)?);
-    let load = || -> Result<FittedScene> {
+    let mut model = None;
+    let load = |mark: &dyn Fn(&str)| -> Result<FittedScene> {
         let scene = scene_sample(input, &opts.scene, opts.engine.seed, &opts.limits, opts.k)?;
         mark("pass 1 (statistics, sample)");
         let fitted = FittedScene::fit(scene, &params, Some((second_seed, &second)))?;
         mark("fit");
+        model = Some(model_of_scene(input, opts, &fitted));
         Ok(fitted)
     };
-    let (document, outputs) =
-        crate::output::one_input(input, out_dir, &[], &names, load, |mut scene, set| {
+    let mut report = run(input, out_dir, opts, None, load)?;
+    report.model = model;
+    Ok(report)
+}
+
+/// Applies a saved model to `input`: the same outputs as [`landcover_file`], with the
+/// model's class numbers. A raster whose bands or features differ from the model's is
+/// refused. `model_name` is recorded in the classes document.
+pub fn landcover_with_model(
+    input: &Path,
+    out_dir: &Path,
+    model: &LandcoverModel,
+    model_name: &str,
+    limits: &Limits,
+) -> Result<LandcoverReport> {
+    let opts = LandcoverOptions {
+        k: model.k,
+        scene: model.scene_options(),
+        engine: model.engine,
+        limits: *limits,
+    };
+    let load = |mark: &dyn Fn(&str)| -> Result<FittedScene> {
+        let fitted = model.open_for(input, limits)?;
+        mark("pass 1 (statistics)");
+        Ok(fitted)
+    };
+    let mut report = run(input, out_dir, &opts, Some(model_name), load)?;
+    report.model = Some(model.clone());
+    Ok(report)
+}
+
+/// The model a single-scene run fitted.
+fn model_of_scene(input: &Path, opts: &LandcoverOptions, fitted: &FittedScene) -> LandcoverModel {
+    let rows = fitted.sample_pixels;
+    let header = sample::SampleHeader::describe(
+        input,
+        &fitted.info,
+        fitted.classes.features(),
+        &opts.scene,
+        opts.engine.seed,
+        (fitted.valid_pixels, fitted.total_pixels),
+        rows,
+    );
+    let source = ModelSource {
+        name: header.source.clone(),
+        width: header.width,
+        height: header.height,
+        valid_pixels: header.valid_pixels,
+        sample_rows: rows,
+    };
+    LandcoverModel::build(
+        &fitted.classes,
+        fitted.summary.as_ref().expect("a fit has a summary"),
+        &header,
+        opts.scene.scale,
+        opts.engine,
+        vec![source],
+    )
+}
+
+/// The shared run: `load` makes the fitted scene (it gets a timing mark), then pass 2 and
+/// the documents.
+fn run(
+    input: &Path,
+    out_dir: &Path,
+    opts: &LandcoverOptions,
+    model_name: Option<&str>,
+    load: impl FnOnce(&dyn Fn(&str)) -> Result<FittedScene>,
+) -> Result<LandcoverReport> {
+    let t0 = Instant::now();
+    let phases = RefCell::new(Phases::start("landcover"));
+    let mark = |name: &str| phases.borrow_mut().mark(name);
+    let names = output_names(&crate::output::stem_of(input)?);
+    let (document, outputs) = crate::output::one_input(
+        input,
+        out_dir,
+        &[],
+        &names,
+        || load(&mark),
+        |mut scene, set| {
             let pass = pass2::classify_scene(&mut scene, set, &names[0], &names[1])?;
             mark("pass 2 (classes, statistics)");
+            // Valid pixels as pass 2 counted them (a saved model has no pass 1).
+            scene.valid_pixels = pass.stats.classes.iter().map(|c| c.pixels).sum();
+            if scene.valid_pixels == 0 {
+                return Err(crate::error::Error::Data(
+                    "every pixel is nodata; there is nothing to classify".into(),
+                ));
+            }
             let colours = class_colours(scene.classes.k);
-            let document = ClassesDocument::build(input, opts, &scene, &pass.stats, &colours);
+            let mut document = ClassesDocument::build(input, opts, &scene, &pass.stats, &colours);
+            document.model = model_name.map(String::from);
             let legend = legend::entries(&document, &colours);
             let (w, h) = (scene.info.width, scene.info.height);
             let metres = scene.areas.at(w / 2, h / 2).map(f64::sqrt);
@@ -161,10 +277,12 @@ pub fn landcover_file(
             set.write_bytes(&names[3], document.to_json().as_bytes())?;
             set.write_bytes(&names[4], classes_csv(&document).as_bytes())?;
             Ok(document)
-        })?;
+        },
+    )?;
     Ok(LandcoverReport {
         outputs,
         document,
+        model: None,
         seconds: t0.elapsed().as_secs_f64(),
     })
 }

@@ -159,7 +159,7 @@ impl FixedPalette {
 }
 
 /// The engine settings as the document records them: a ΔE2000 target follows the
-/// warm-started K path (no restarts, refinement, annealing or moves); a given palette is
+/// warm-started K path (refined, but no restarts, annealing or moves); a given palette is
 /// mapped, not fitted (only β, for the uncertainty map, applies).
 pub(super) fn engine_used(opts: &ReduceOptions, fixed: bool) -> EngineOptions {
     let e = opts.engine;
@@ -173,7 +173,6 @@ pub(super) fn engine_used(opts: &ReduceOptions, fixed: bool) -> EngineOptions {
     } else if opts.target.is_some() {
         EngineOptions {
             restarts: 1,
-            refine: Refine::None,
             anneal: None,
             split_merge: 0,
             ..e

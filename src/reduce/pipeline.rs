@@ -2,9 +2,7 @@
 //! (fitted, searched for a target, or given), quantised to sRGB, rendered and scored.
 
 use super::{FixedPalette, PaletteColour, PaletteDocument, ReduceOptions, Reduction};
-use crate::cluster::{
-    finish, fit_hard, stop_rule, Beta, Dataset, KMeansModel, Mode, Refine, ValidParams,
-};
+use crate::cluster::{finish, fit_hard, stop_rule, Beta, Dataset, KMeansModel, Mode, ValidParams};
 use crate::colour::{self, Space};
 use crate::error::{Error, ParamsError, Result};
 use crate::families::{self, Objective};
@@ -184,7 +182,6 @@ fn fit_to_target(
         (opts.engine.anneal.is_some(), "`anneal`"),
         (opts.engine.split_merge > 0, "`split_merge`"),
         (opts.engine.restarts > 1, "`restarts`"),
-        (opts.engine.refine != Refine::default(), "`refine`"),
     ]
     .into_iter()
     .filter_map(|(set, name)| set.then_some(name))

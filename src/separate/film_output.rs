@@ -28,7 +28,6 @@ pub(super) fn make(
     sep: &mut Separation,
     img: &Decoded,
     settings: &FilmSettings,
-    opts: &SeparateOptions,
     stem: &str,
 ) -> Result<Made> {
     let dpi = sep.document.dpi.ok_or_else(|| {
@@ -38,11 +37,7 @@ pub(super) fn make(
     })?;
     settings.check(dpi)?;
     let rgba = films::rgba8(img);
-    let rgb: Vec<u8> = rgba
-        .chunks_exact(4)
-        .flat_map(|p| [p[0], p[1], p[2]])
-        .collect();
-    let mut plates = films::plate_images(sep, &rgb, settings.tints, opts.substrate)?;
+    let mut plates = films::plate_images(sep)?;
     if let Some(l) = settings.highlight_white {
         let n = plates.len() + 1;
         plates.push(film::highlight_white(

@@ -1,11 +1,6 @@
 //! Films from a separation: the plates as [`film::PlateImage`]s (solid, or tinted when
-//! tints are on), the film set, the stacked proof and per-plate previews, and the check
-//! that a run's outputs never mix with an earlier run's.
-//!
-//! Tints follow the Murray–Davies relation (A. Murray, 1936): a halftone of dot area `a`
-//! reflects `a · R_ink + (1 − a) · R_paper`. We apply it per channel to linear sRGB values
-//! as stand-ins for reflectance (a simplification of ours), with the substrate as paper,
-//! and take the `a` that best matches the artwork pixel (least squares, clamped to 0..1).
+//! tints are on, by the model of `tint.rs`), the film set, the stacked proof and per-plate
+//! previews, and the check that a run's outputs never mix with an earlier run's.
 
 use super::regions::FIXED;
 use super::Separation;
@@ -24,11 +19,6 @@ pub const DARK_SUBSTRATE_LIGHTNESS: f64 = 50.0;
 
 /// Default lightness (CIE L*) from which the highlight white prints (our choice).
 pub const DEFAULT_HIGHLIGHT_LIGHTNESS: f64 = 90.0;
-
-/// Tints at or above this dot area print solid, and below [`MIN_TINT`] not at all (our
-/// choice: a 3 % dot or a 3 % hole does not hold on a screen, common practice).
-const MAX_TINT: f64 = 0.97;
-const MIN_TINT: f64 = 0.03;
 
 /// Film settings of a separation. Films are made only when `SeparateOptions::films` holds
 /// these.
@@ -146,66 +136,22 @@ impl FilmSettings {
     }
 }
 
-/// Linear sRGB of an 8-bit colour.
-fn linear(c: [u8; 3]) -> [f64; 3] {
-    c.map(|v| colour::srgb_to_linear(v as f64 / 255.0))
-}
-
-/// Dot area of `ink` over `paper` that best reproduces `pixel` by Murray–Davies (see the
-/// module notes), in 0..=1.
-pub fn murray_davies_area(pixel: [u8; 3], ink: [u8; 3], paper: [u8; 3]) -> f64 {
-    let (p, i, s) = (linear(pixel), linear(ink), linear(paper));
-    let mut num = 0.0;
-    let mut den = 0.0;
-    for c in 0..3 {
-        num += (p[c] - s[c]) * (i[c] - s[c]);
-        den += (i[c] - s[c]) * (i[c] - s[c]);
-    }
-    if den < 1e-12 {
-        return 1.0;
-    }
-    (num / den).clamp(0.0, 1.0)
-}
-
-/// The amount (0..=255) of a plate at one of its own pixels.
-fn tint_amount(area: f64) -> u8 {
-    if area >= MAX_TINT {
-        255
-    } else if area < MIN_TINT {
-        0
-    } else {
-        (area * 255.0).round() as u8
-    }
-}
-
 /// The colour plates of a separation, in plate order: solid where the plate's mask is set,
-/// or with `tints` the Murray–Davies amount on the plate's own pixels (a trapped spread
-/// stays solid). `rgb` holds the artwork's 8-bit RGB, 3 values per pixel.
-pub fn plate_images(
-    sep: &Separation,
-    rgb: &[u8],
-    tints: bool,
-    substrate: Option<[u8; 3]>,
-) -> Result<Vec<PlateImage>> {
-    let paper = substrate.unwrap_or([255, 255, 255]);
+/// or with tints the amount the separation chose on the plate's own pixels (a trapped
+/// spread stays solid).
+pub fn plate_images(sep: &Separation) -> Result<Vec<PlateImage>> {
     sep.inks
         .iter()
         .enumerate()
         .map(|(i, ink)| {
-            let ink_rgb = ink_colour(ink);
             let mask = &sep.masks[i];
             let amount: Vec<u8> = mask
                 .iter()
                 .enumerate()
-                .map(|(p, &m)| {
-                    if !m {
-                        0
-                    } else if tints && sep.labels[p] as usize == i {
-                        let px = [rgb[3 * p], rgb[3 * p + 1], rgb[3 * p + 2]];
-                        tint_amount(murray_davies_area(px, ink_rgb, paper))
-                    } else {
-                        255
-                    }
+                .map(|(p, &m)| match (&sep.tints, m) {
+                    (_, false) => 0,
+                    (Some(t), true) if sep.labels[p] as usize == i => t[p],
+                    _ => 255,
                 })
                 .collect();
             PlateImage::new(&ink.name, i + 1, i + 1, sep.width, sep.height, amount)
@@ -424,23 +370,6 @@ pub fn apply_alpha_threshold(labels: &mut [u16], alpha: &[u8], threshold: f64) -
 #[cfg(test)]
 mod tests {
     use super::*;
-
-    #[test]
-    fn murray_davies_inverts_its_own_mix() {
-        // A 40 % dot of the ink over the paper, mixed in linear light, gives back 40 %.
-        let (ink, paper) = ([200u8, 30, 40], [16u8, 16, 16]);
-        let (i, s) = (linear(ink), linear(paper));
-        let mix: Vec<u8> = (0..3)
-            .map(|c| {
-                let v = 0.4 * i[c] + 0.6 * s[c];
-                (colour::linear_to_srgb(v) * 255.0).round() as u8
-            })
-            .collect();
-        let a = murray_davies_area([mix[0], mix[1], mix[2]], ink, paper);
-        assert!((a - 0.4).abs() < 0.01, "{a}");
-        assert_eq!(murray_davies_area(ink, ink, paper), 1.0);
-        assert_eq!(murray_davies_area(paper, ink, paper), 0.0);
-    }
 
     #[test]
     fn earlier_runs_files_are_recognised() {

@@ -8,6 +8,7 @@ pub mod films;
 mod ink_choice;
 pub mod regions;
 pub mod select;
+pub mod tint;
 mod write;
 
 pub use crate::output::file_safe;
@@ -217,6 +218,9 @@ pub struct Separation {
     pub labels: Vec<u16>,
     /// Per plate, per pixel: prints here (after trapping).
     pub masks: Vec<Vec<bool>>,
+    /// With tints: per pixel, the amount (0..=255) its own plate prints there (see
+    /// `tint.rs`); a trapped spread onto a neighbour prints solid.
+    pub tints: Option<Vec<u8>>,
     pub document: SeparationDocument,
 }
 
@@ -265,7 +269,13 @@ pub fn separate_image(
     let weights = hist.weights();
     let substrate_lab = opts.substrate.map(adapt::srgb8_to_lab_d50);
     ph.mark("histogram and CIELAB D50");
-    let table = CostTable::new(&labs, &weights, library, substrate_lab);
+    let mut table = CostTable::new(&labs, &weights, library, substrate_lab);
+    let tints = opts.films.as_ref().is_some_and(|f| f.tints);
+    let amounts = tints.then(|| {
+        let lin: Vec<[f64; 3]> = hist.colours.iter().map(|c| hist.linear(c)).collect();
+        let paper = opts.substrate.unwrap_or([255, 255, 255]);
+        tint::tinted_costs(&mut table, &lin, &labs, library, paper)
+    });
     ph.mark("cost table");
     let mut notes = Vec::new();
     if img.more_frames {
@@ -347,8 +357,12 @@ pub fn separate_image(
                     best = (c, p as u16);
                 }
             }
+            let prints = amounts
+                .as_ref()
+                .is_none_or(|a| a[e * table.m + order[best.1 as usize]] > 0);
             match &table.substrate {
                 Some(s) if s[e] < best.0 => substrate_label,
+                _ if !prints => substrate_label,
                 _ => best.1,
             }
         })
@@ -485,12 +499,14 @@ pub fn separate_image(
         films: None,
         notes,
     };
+    let tints = amounts.map(|a| tint::pixel_amounts(&labels, &ih.pixel_entry, &a, table.m, &order));
     Ok(Separation {
         width: img.width,
         height: img.height,
         inks: chosen,
         labels,
         masks,
+        tints,
         document,
     })
 }
@@ -546,7 +562,7 @@ pub fn separate_file(
             let mut sep = separate_image(&img, &library, opts, library_path, &stem)?;
             sep.document.header.input = input.file_name().map(|n| n.to_string_lossy().into_owned());
             let made = match &opts.films {
-                Some(f) => Some(film_output::make(&mut sep, &img, f, opts, &stem)?),
+                Some(f) => Some(film_output::make(&mut sep, &img, f, &stem)?),
                 None => None,
             };
             drop(img);

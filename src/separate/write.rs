@@ -2,8 +2,9 @@
 //! summary table.
 
 use super::regions::FIXED;
+use super::tint;
 use super::{Separation, SeparationDocument};
-use crate::colour::{self};
+use crate::colour;
 use crate::output::file_safe;
 use rayon::prelude::*;
 
@@ -42,8 +43,9 @@ pub(super) fn write_plate<W: std::io::Write>(
     writer.finish().map_err(std::io::Error::other)
 }
 
-/// The proof: inks laid lightest first on the substrate (white when none is given);
-/// transparent artwork stays transparent.
+/// The proof: inks laid lightest first on the substrate (white when none is given), a
+/// tinted ink mixed with what lies under it by the model of `tint.rs`; transparent artwork
+/// stays transparent.
 pub fn proof_rgba(sep: &Separation, substrate: Option<[u8; 3]>) -> Vec<u8> {
     let paper = substrate.unwrap_or([255, 255, 255]);
     let ink_rgb: Vec<[u8; 3]> = sep
@@ -59,7 +61,13 @@ pub fn proof_rgba(sep: &Separation, substrate: Option<[u8; 3]>) -> Vec<u8> {
         let mut c = paper;
         for (i, m) in sep.masks.iter().enumerate() {
             if m[p] {
-                c = ink_rgb[i];
+                c = match &sep.tints {
+                    Some(t) if sep.labels[p] as usize == i && t[p] < 255 => {
+                        let mix = tint::printed(t[p], tint::linear(ink_rgb[i]), tint::linear(c));
+                        colour::linear_to_srgb8(mix)
+                    }
+                    _ => ink_rgb[i],
+                };
             }
         }
         px[..3].copy_from_slice(&c);

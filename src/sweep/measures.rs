@@ -4,7 +4,7 @@
 use super::{SweepOptions, SweepRow};
 use crate::cluster::{
     auto_beta, bic, fit_mixture, k_path, silhouette, soft_assign, stability, weighted_sample,
-    Dataset, MixtureSettings,
+    Dataset, KPath, MixtureSettings,
 };
 use crate::colour::{self, Space};
 use crate::features::quality::{entry_delta_e2000, mean_and_p95};
@@ -83,76 +83,77 @@ pub fn sweep_rows(
         spent[slot] += clock.elapsed().as_secs_f64();
         clock = std::time::Instant::now();
     };
-    k_path(
-        data,
-        opts.range.min,
-        opts.range.max,
-        opts.engine.seed,
+    let path = KPath {
+        k_min: opts.range.min,
+        k_max: opts.range.max,
+        seed: opts.engine.seed,
         stop,
-        true,
-        |k, res| {
-            lap(0, &mut spent);
-            let mut cluster_w = vec![0.0f64; k];
-            for (l, w) in res.labels.iter().zip(&weights) {
-                cluster_w[*l as usize] += w;
+        accelerate: true,
+        refine: opts.engine.refine,
+        tolerance: opts.engine.tolerance,
+    };
+    k_path(data, &path, |k, res| {
+        lap(0, &mut spent);
+        let mut cluster_w = vec![0.0f64; k];
+        for (l, w) in res.labels.iter().zip(&weights) {
+            cluster_w[*l as usize] += w;
+        }
+        let (mean_de, p95_de, closest, families) = match labs {
+            Some(labs) => {
+                let de = entry_delta_e2000(&res.means, &res.labels, labs, space);
+                let (m, p) = mean_and_p95(&de, &weights, total);
+                let (c, f) = colour_families(&res.means, &cluster_w, space);
+                (Some(m), Some(p), c, Some(f))
             }
-            let (mean_de, p95_de, closest, families) = match labs {
-                Some(labs) => {
-                    let de = entry_delta_e2000(&res.means, &res.labels, labs, space);
-                    let (m, p) = mean_and_p95(&de, &weights, total);
-                    let (c, f) = colour_families(&res.means, &cluster_w, space);
-                    (Some(m), Some(p), c, Some(f))
-                }
-                None => (None, None, None, None),
-            };
-            lap(1, &mut spent);
-            let beta = auto_beta(res.sse, total, dim);
-            let soft = soft_assign(data, &res.means, beta);
-            let mut unc = 0.0;
-            for (h, w) in soft.entropy.iter().zip(&weights) {
-                unc += w * *h as f64;
-            }
-            lap(2, &mut spent);
-            let sample_labels: Vec<u32> = picks.iter().map(|&i| res.labels[i]).collect();
-            let sil = silhouette(&sample_rows, dim, &sample_labels);
-            lap(3, &mut spent);
-            let mix = fit_mixture(
-                data,
-                &res.means,
-                &mixture,
-                opts.engine.seed ^ ((k as u64) << 32),
-            );
-            em_iterations += mix.iterations;
-            let finite = |v: f64| v.is_finite().then_some(v);
-            lap(4, &mut spent);
-            let stab = stability(
-                data,
-                k,
-                &sample_rows,
-                opts.silhouette_sample,
-                STABILITY_RUNS,
-                opts.engine.seed,
-                stop,
-            );
-            lap(5, &mut spent);
-            rows.push(SweepRow {
-                k,
-                sse: res.sse,
-                mean_delta_e2000: mean_de,
-                p95_delta_e2000: p95_de,
-                mean_uncertainty: unc / total,
-                silhouette: sil,
-                bic: bic(res.sse, &cluster_w, dim),
-                bic_full: finite(mix.bic()),
-                icl: finite(mix.icl()),
-                stability: stab,
-                closest_delta_e2000: closest,
-                families,
-                smallest_share: cluster_w.iter().copied().fold(f64::INFINITY, f64::min) / total,
-            });
-            true
-        },
-    );
+            None => (None, None, None, None),
+        };
+        lap(1, &mut spent);
+        let beta = auto_beta(res.sse, total, dim);
+        let soft = soft_assign(data, &res.means, beta);
+        let mut unc = 0.0;
+        for (h, w) in soft.entropy.iter().zip(&weights) {
+            unc += w * *h as f64;
+        }
+        lap(2, &mut spent);
+        let sample_labels: Vec<u32> = picks.iter().map(|&i| res.labels[i]).collect();
+        let sil = silhouette(&sample_rows, dim, &sample_labels);
+        lap(3, &mut spent);
+        let mix = fit_mixture(
+            data,
+            &res.means,
+            &mixture,
+            opts.engine.seed ^ ((k as u64) << 32),
+        );
+        em_iterations += mix.iterations;
+        let finite = |v: f64| v.is_finite().then_some(v);
+        lap(4, &mut spent);
+        let stab = stability(
+            data,
+            k,
+            &sample_rows,
+            opts.silhouette_sample,
+            STABILITY_RUNS,
+            opts.engine.seed,
+            stop,
+        );
+        lap(5, &mut spent);
+        rows.push(SweepRow {
+            k,
+            sse: res.sse,
+            mean_delta_e2000: mean_de,
+            p95_delta_e2000: p95_de,
+            mean_uncertainty: unc / total,
+            silhouette: sil,
+            bic: bic(res.sse, &cluster_w, dim),
+            bic_full: finite(mix.bic()),
+            icl: finite(mix.icl()),
+            stability: stab,
+            closest_delta_e2000: closest,
+            families,
+            smallest_share: cluster_w.iter().copied().fold(f64::INFINITY, f64::min) / total,
+        });
+        true
+    });
     if crate::trace::enabled() {
         eprintln!(
             "chromasift: timing: sweep over K: fits {:.3} s, ΔE2000 {:.3} s, soft entropy {:.3} s, silhouette {:.3} s, mixture {:.3} s ({em_iterations} EM iterations), stability {:.3} s",

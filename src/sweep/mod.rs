@@ -80,8 +80,9 @@ pub struct SweepOptions {
     /// Clustering space for colour images. Default: CIELAB.
     pub space: Space,
     /// The k-means engine's settings. A sweep fits every K along one warm-started path
-    /// (Lloyd from the previous K's means), so it uses the seed, iteration limit and
-    /// tolerances; the other settings are reported as ignored.
+    /// (the previous K's means plus one, refined, then Lloyd), so it uses the seed,
+    /// refinement, iteration limit and tolerances; the other settings are reported as
+    /// ignored.
     pub engine: EngineOptions,
     /// Pixels drawn (seeded, in proportion to their count) for the silhouette, which
     /// costs O(n²). Default: 2000.
@@ -256,8 +257,8 @@ pub fn sweep_file(input: &Path, out_dir: &Path, opts: &SweepOptions) -> Result<S
 }
 
 /// The engine settings a sweep uses, as its document records them: the warm-started K
-/// path runs Lloyd from the previous K's means, with no restarts, refinement, annealing or
-/// split-and-merge moves, in hard mode.
+/// path extends the previous K's means by one, refines them and runs Lloyd, with no
+/// restarts, annealing or split-and-merge moves, in hard mode.
 fn used_engine(e: &EngineOptions) -> EngineOptions {
     let d = EngineOptions::default();
     EngineOptions {
@@ -265,7 +266,7 @@ fn used_engine(e: &EngineOptions) -> EngineOptions {
         max_iter: e.max_iter,
         tolerance: e.tolerance,
         shift_tolerance: e.shift_tolerance,
-        refine: crate::cluster::Refine::None,
+        refine: e.refine,
         ..d
     }
 }
@@ -281,13 +282,17 @@ fn sweep_document(
         .engine
         .changed()
         .into_iter()
-        .filter(|n| !matches!(*n, "seed" | "max_iter" | "tolerance" | "shift_tolerance"))
+        .filter(|n| {
+            !matches!(
+                *n,
+                "seed" | "max_iter" | "tolerance" | "shift_tolerance" | "refine"
+            )
+        })
         .map(|n| format!("`{n}`"))
         .collect();
     if !ignored.is_empty() {
         notes.push(format!(
-            "a sweep fits every K along one warm-started path of Lloyd iterations, so {} \
-             have no effect here",
+            "a sweep fits every K along one warm-started path, so {} have no effect here",
             ignored.join(", ")
         ));
     }

@@ -1,5 +1,6 @@
 //! Regions of a label image, and the two clean-ups that ink separation for screen printing needs:
-//! merging regions too small to print into a neighbour ([`merge_small_regions`]), and trapping
+//! merging regions too small to print into a neighbour ([`merge_small_regions`], which lives in
+//! `features::merge` because land cover uses it too), and trapping
 //! (each ink spreading a few pixels under its darker neighbours, [`trap`]).
 //!
 //! A label image is `width × height` labels (`u16`) in raster order: row by row, top row first,
@@ -16,9 +17,8 @@
 //! parallel. Every result depends on the input alone, not on the thread count.
 
 mod envelope;
-mod merge;
 mod trap;
 
 pub use crate::features::components::{region_pixels, regions, FIXED};
-pub use merge::{merge_small_regions, MergeStats};
+pub use crate::features::merge::{merge_small_regions, MergeStats};
 pub use trap::trap;

@@ -1,6 +1,6 @@
 use super::*;
 use crate::features::components::testing::{blobs, grid, XorShift};
-use crate::separate::regions::merge_small_regions;
+use crate::features::merge::merge_small_regions;
 
 const ENVELOPE: Method = Method::Envelope { wide: false };
 const METHODS: [Method; 4] = [

@@ -1,6 +1,7 @@
-//! Merging regions too small to print into a neighbour.
+//! Merging regions below a size into a neighbour: plates too small to print (`separate`),
+//! patches below a minimum mapping unit (`landcover`).
 
-use crate::features::components::{components, label_band_rows, pixel_count, Flood, PixelIndex};
+use super::components::{components, label_band_rows, pixel_count, Flood, PixelIndex};
 
 /// What [`merge_small_regions`] did.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
