@@ -60,7 +60,7 @@ fn pixels_that_are_not_there_are_never_classified() {
     ] {
         let e = expected(name);
         let (doc, _) = landcover(name, &[]);
-        let total = (e["width"].as_u64().unwrap() * e["height"].as_u64().unwrap()) as u64;
+        let total = e["width"].as_u64().unwrap() * e["height"].as_u64().unwrap();
         assert_eq!(doc["valid_pixels"], e["valid"], "{name}");
         assert_eq!(
             doc["nodata_pixels"].as_u64().unwrap(),

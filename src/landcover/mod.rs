@@ -23,6 +23,7 @@ mod document;
 mod finish;
 mod fit;
 mod labels;
+mod legend;
 mod model;
 mod pass2;
 mod patch_out;
@@ -267,7 +268,12 @@ fn run(
             let colours = class_colours(scene.classes.k);
             let mut document = ClassesDocument::build(input, opts, &scene, &pass.stats, &colours);
             document.model = model_name.map(String::from);
-            set.write(&names[2], |wr| pass.preview.write_png(wr, &colours))?;
+            let legend = legend::entries(&document, &colours);
+            let (w, h) = (scene.info.width, scene.info.height);
+            let metres = scene.areas.at(w / 2, h / 2).map(f64::sqrt);
+            set.write(&names[2], |wr| {
+                pass.preview.write_png_legend(wr, &colours, &legend, metres)
+            })?;
             set.write_bytes(&names[3], document.to_json().as_bytes())?;
             set.write_bytes(&names[4], classes_csv(&document).as_bytes())?;
             Ok(document)

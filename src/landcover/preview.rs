@@ -78,12 +78,28 @@ impl PreviewGrid {
         }
     }
 
-    /// Writes the preview with its legend as an RGB PNG.
-    pub(super) fn write_png<W: Write>(&self, w: W, colours: &[[u8; 3]]) -> std::io::Result<()> {
-        let rgb = preview_with_legend(&self.classes, self.width, self.height, colours);
-        let width = self.width.max(LEGEND_MIN_WIDTH);
-        let height = self.height + legend_height(width as usize, colours.len()) as u32;
-        raster::write_rgb_png(w, width, height, &rgb)
+    /// Writes the preview with the readable legend (classes with share and hectares, the
+    /// nodata key, a scale bar when `metres_per_scene_px` is known) as an RGB PNG.
+    pub(super) fn write_png_legend<W: Write>(
+        &self,
+        w: W,
+        colours: &[[u8; 3]],
+        entries: &[super::legend::LegendEntry],
+        metres_per_scene_px: Option<f64>,
+    ) -> std::io::Result<()> {
+        let (mw, mh) = (self.width as usize, self.height as usize);
+        let mut map = vec![0u8; mw * mh * 3];
+        for (p, &c) in self.classes.iter().enumerate() {
+            let col = if c == 0 {
+                [0, 0, 0]
+            } else {
+                colours[c as usize - 1]
+            };
+            map[p * 3..p * 3 + 3].copy_from_slice(&col);
+        }
+        let per_px = metres_per_scene_px.map(|m| m * self.step as f64);
+        let (rgb, width, height) = super::legend::with_legend(&map, mw, mh, entries, per_px);
+        raster::write_rgb_png(w, width as u32, height as u32, &rgb)
     }
 }
 

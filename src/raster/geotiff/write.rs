@@ -31,6 +31,7 @@ fn check_ascii_value(what: &str, s: &str) -> Result<()> {
     Ok(())
 }
 
+#[allow(clippy::too_many_arguments)]
 pub(super) fn write_band<W, C>(
     w: W,
     width: u32,
