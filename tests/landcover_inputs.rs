@@ -339,3 +339,70 @@ fn disagreeing_starts_are_reported() {
     assert!(doc["restart_check"]["ari"].as_f64().unwrap() >= 0.99);
     assert!(!err.contains("warning"), "{err}");
 }
+
+#[test]
+fn one_file_per_band_reads_as_one_scene() {
+    // The four bands of `utm_u16_4band_strips.tif`, written by GDAL as four single-band
+    // files with four layouts (strips, Deflate tiles, LZW strips, ZSTD tiles;
+    // `tests/reference/make_band_files.py`), listed in `scene.stack`: the split must be the
+    // one of the stacked file, pixel for pixel, with each band named after its file.
+    let root = Path::new(env!("CARGO_MANIFEST_DIR")).join("fixtures/rasters");
+    let dir = tempfile::tempdir().unwrap();
+    let split = |input: &Path, out: &str| -> (Vec<f32>, Value, String) {
+        let o = dir.path().join(out);
+        let r = run(
+            &[
+                "landcover",
+                input.to_str().unwrap(),
+                "-k",
+                "3",
+                "-o",
+                o.to_str().unwrap(),
+            ],
+            &[],
+        );
+        assert!(r.status.success(), "{}", stderr(&r));
+        let stem = input.file_stem().unwrap().to_str().unwrap();
+        let doc: Value = serde_json::from_slice(
+            &std::fs::read(o.join(format!("{stem}.classes.json"))).unwrap(),
+        )
+        .unwrap();
+        let limits = chromasift::limits::Limits::default();
+        let mut raster =
+            chromasift::geotiff::GeoRaster::open(&o.join(format!("{stem}.classes.tif")), &limits)
+                .unwrap();
+        let mut classes = Vec::new();
+        for b in 0..raster.block_count() {
+            classes.extend(raster.read_block(b).unwrap().data);
+        }
+        let csv = std::fs::read_to_string(o.join(format!("{stem}.classes.csv"))).unwrap();
+        (classes, doc, csv)
+    };
+    let (one, one_doc, _) = split(&root.join("utm_u16_4band_strips.tif"), "one");
+    let (stack, stack_doc, csv) = split(&root.join("bands/scene.stack"), "stack");
+    assert_eq!(one, stack, "the same classes pixel for pixel");
+    assert_eq!(stack_doc["valid_pixels"], one_doc["valid_pixels"]);
+    assert_eq!(stack_doc["nodata_pixels"], one_doc["nodata_pixels"]);
+    assert_eq!(stack_doc["crs"], one_doc["crs"]);
+    let header = csv.lines().next().unwrap();
+    assert!(header.contains("mean_1_B1") && header.contains("mean_4_B4"), "{header}");
+
+    // A band on a grid shifted by one pixel is refused in one line naming it.
+    let out = dir.path().join("shifted");
+    let r = run(
+        &[
+            "landcover",
+            root.join("bands/shifted.stack").to_str().unwrap(),
+            "-k",
+            "3",
+            "-o",
+            out.to_str().unwrap(),
+        ],
+        &[],
+    );
+    assert_eq!(r.status.code(), Some(2));
+    let err = stderr(&r);
+    assert_eq!(err.lines().count(), 1, "{err}");
+    assert!(err.contains("B4_shifted.tif") && err.contains("not on the grid"), "{err}");
+    assert!(!out.exists(), "nothing written");
+}
