@@ -201,8 +201,10 @@ fn is_scene(input: &Path, opts: &SweepOptions) -> Result<bool> {
         .extension()
         .and_then(|e| e.to_str())
         .map(str::to_ascii_lowercase);
-    if !matches!(ext.as_deref(), Some("tif") | Some("tiff")) {
-        return Ok(false);
+    match ext.as_deref() {
+        Some("stack") => return Ok(true), // one file per band: always a scene
+        Some("tif") | Some("tiff") => {}
+        _ => return Ok(false),
     }
     let r = crate::raster::geotiff::GeoRaster::open(input, &opts.limits)?;
     let info = r.info();
