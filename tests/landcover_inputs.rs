@@ -363,10 +363,9 @@ fn one_file_per_band_reads_as_one_scene() {
         );
         assert!(r.status.success(), "{}", stderr(&r));
         let stem = input.file_stem().unwrap().to_str().unwrap();
-        let doc: Value = serde_json::from_slice(
-            &std::fs::read(o.join(format!("{stem}.classes.json"))).unwrap(),
-        )
-        .unwrap();
+        let doc: Value =
+            serde_json::from_slice(&std::fs::read(o.join(format!("{stem}.classes.json"))).unwrap())
+                .unwrap();
         let limits = chromasift::limits::Limits::default();
         let mut raster =
             chromasift::geotiff::GeoRaster::open(&o.join(format!("{stem}.classes.tif")), &limits)
@@ -385,7 +384,10 @@ fn one_file_per_band_reads_as_one_scene() {
     assert_eq!(stack_doc["nodata_pixels"], one_doc["nodata_pixels"]);
     assert_eq!(stack_doc["crs"], one_doc["crs"]);
     let header = csv.lines().next().unwrap();
-    assert!(header.contains("mean_1_B1") && header.contains("mean_4_B4"), "{header}");
+    assert!(
+        header.contains("mean_1_B1") && header.contains("mean_4_B4"),
+        "{header}"
+    );
 
     // A band on a grid shifted by one pixel is refused in one line naming it.
     let out = dir.path().join("shifted");
@@ -403,6 +405,9 @@ fn one_file_per_band_reads_as_one_scene() {
     assert_eq!(r.status.code(), Some(2));
     let err = stderr(&r);
     assert_eq!(err.lines().count(), 1, "{err}");
-    assert!(err.contains("B4_shifted.tif") && err.contains("not on the grid"), "{err}");
+    assert!(
+        err.contains("B4_shifted.tif") && err.contains("not on the grid"),
+        "{err}"
+    );
     assert!(!out.exists(), "nothing written");
 }

@@ -168,7 +168,10 @@ impl GeoRaster {
         let refuse = |why: String| {
             Err(decode(
                 &other.path,
-                format!("{what} is not on the grid of {}: {why}", self.path.display()),
+                format!(
+                    "{what} is not on the grid of {}: {why}",
+                    self.path.display()
+                ),
             ))
         };
         if (a.width, a.height) != (b.width, b.height) {
@@ -276,9 +279,17 @@ fn open_stack(path: &Path, limits: &Limits) -> Result<GeoRaster> {
     let mut text = String::new();
     file.take(MAX_STACK_BYTES + 1)
         .read_to_string(&mut text)
-        .map_err(|e| decode(path, format!("a band stack must be a UTF-8 text list of rasters ({e})")))?;
+        .map_err(|e| {
+            decode(
+                path,
+                format!("a band stack must be a UTF-8 text list of rasters ({e})"),
+            )
+        })?;
     if text.len() as u64 > MAX_STACK_BYTES {
-        return Err(decode(path, format!("a band stack list is at most {MAX_STACK_BYTES} bytes")));
+        return Err(decode(
+            path,
+            format!("a band stack list is at most {MAX_STACK_BYTES} bytes"),
+        ));
     }
     let dir = path.parent().unwrap_or(Path::new(""));
     let files: Vec<PathBuf> = text
@@ -292,7 +303,10 @@ fn open_stack(path: &Path, limits: &Limits) -> Result<GeoRaster> {
     };
     let open_one = |f: &Path| -> Result<GeoRaster> {
         if is_stack(f) {
-            return Err(decode(path, format!("{} is a band stack itself; list rasters", f.display())));
+            return Err(decode(
+                path,
+                format!("{} is a band stack itself; list rasters", f.display()),
+            ));
         }
         let mut r = GeoRaster::open(f, limits)?;
         if r.info.bands == 1 && r.info.descriptions.first().is_none_or(|d| d.is_none()) {
@@ -320,7 +334,10 @@ fn open_stack(path: &Path, limits: &Limits) -> Result<GeoRaster> {
         }
         let bands = stack.info.bands + r.info.bands;
         if bands > MAX_BANDS {
-            return Err(decode(path, format!("the stack has more than {MAX_BANDS} bands")));
+            return Err(decode(
+                path,
+                format!("the stack has more than {MAX_BANDS} bands"),
+            ));
         }
         let need = (stack.block_rows() as u64)
             .saturating_mul(stack.info.width as u64)
@@ -333,8 +350,14 @@ fn open_stack(path: &Path, limits: &Limits) -> Result<GeoRaster> {
         }
         any_nodata |= r.info.nodata.is_some();
         stack.info.bands = bands;
-        stack.info.scale_offset.extend_from_slice(&r.info.scale_offset);
-        stack.info.descriptions.extend(r.info.descriptions.iter().cloned());
+        stack
+            .info
+            .scale_offset
+            .extend_from_slice(&r.info.scale_offset);
+        stack
+            .info
+            .descriptions
+            .extend(r.info.descriptions.iter().cloned());
         stack.info.sparse_chunks += r.info.sparse_chunks;
         stack.extra.push((r, None));
     }
