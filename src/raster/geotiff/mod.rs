@@ -22,6 +22,7 @@ mod ellipsoid;
 mod mask;
 mod metadata;
 mod open;
+mod stack;
 mod tags;
 mod tm;
 mod types;
