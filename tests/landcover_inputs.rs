@@ -411,3 +411,78 @@ fn one_file_per_band_reads_as_one_scene() {
     );
     assert!(!out.exists(), "nothing written");
 }
+
+#[test]
+fn hyperspectral_scenes_of_256_bands_are_split_and_257_refused() {
+    // GDAL-written (`tests/reference/make_band_files.py`): 256 u16 bands, band-interleaved,
+    // Deflate; two halves with different invented spectra. Each class's mean of every band
+    // must be the half's mean as numpy computes it (`hyper_256.json`).
+    let root = Path::new(env!("CARGO_MANIFEST_DIR")).join("fixtures/rasters/bands");
+    let want: Value =
+        serde_json::from_slice(&std::fs::read(root.join("hyper_256.json")).unwrap()).unwrap();
+    let dir = tempfile::tempdir().unwrap();
+    let out = dir.path().join("out");
+    let o = run(
+        &[
+            "landcover",
+            root.join("hyper_256.tif").to_str().unwrap(),
+            "-k",
+            "2",
+            "-o",
+            out.to_str().unwrap(),
+        ],
+        &[],
+    );
+    assert!(o.status.success(), "{}", stderr(&o));
+    let doc: Value =
+        serde_json::from_slice(&std::fs::read(out.join("hyper_256.classes.json")).unwrap())
+            .unwrap();
+    assert_eq!(doc["bands"].as_array().unwrap().len(), 256);
+    let classes = doc["classes"].as_array().unwrap();
+    assert_eq!(classes.len(), 2);
+    let mut halves_seen = Vec::new();
+    for c in classes {
+        assert_eq!(c["pixels"], 24);
+        let bands = c["bands"].as_array().unwrap();
+        assert_eq!(bands.len(), 256);
+        // Left half: 1000 + 20 b; right half: 6000 − 15 b (plus a ripple below 7).
+        let half = if bands[0]["mean"].as_f64().unwrap() < 3000.0 {
+            "left"
+        } else {
+            "right"
+        };
+        halves_seen.push(half);
+        for (b, band) in bands.iter().enumerate() {
+            let (got, exp) = (
+                band["mean"].as_f64().unwrap(),
+                want[half][b].as_f64().unwrap(),
+            );
+            assert!(
+                (got - exp).abs() < 1e-9 * exp,
+                "{half} band {}: {got} vs {exp}",
+                b + 1
+            );
+        }
+    }
+    halves_seen.sort();
+    assert_eq!(halves_seen, ["left", "right"]);
+
+    let o = run(
+        &[
+            "landcover",
+            root.join("hyper_257.tif").to_str().unwrap(),
+            "-k",
+            "2",
+            "-o",
+            dir.path().join("over").to_str().unwrap(),
+        ],
+        &[],
+    );
+    assert_eq!(o.status.code(), Some(2));
+    let err = stderr(&o);
+    assert_eq!(err.lines().count(), 1, "{err}");
+    assert!(
+        err.contains("hyper_257.tif") && err.contains("257 bands"),
+        "{err}"
+    );
+}
