@@ -4,7 +4,7 @@
 
 use super::tags::{geo_tag_name, parse_nodata, GeoTagValue, GeoTags};
 use super::write_common::{
-    colour_map, write_geo_tags, writer_error, NativeBytes, WriteOptions, OUTPUT_NAME,
+    check_strip, colour_map, write_geo_tags, writer_error, NativeBytes, WriteOptions, OUTPUT_NAME,
 };
 use crate::error::{Error, Result};
 use std::io::{Seek, Write};
@@ -134,17 +134,7 @@ where
     while y0 < height {
         let rows = rps.min(height - y0);
         let values = next_rows(y0, rows)?;
-        let expected = rows as usize * width as usize;
-        if values.len() != expected {
-            return Err(Error::output(
-                OUTPUT_NAME,
-                format!(
-                    "rows {y0}..{} came with {} values; {expected} ({rows} rows x {width}) were expected",
-                    y0 + rows,
-                    values.len()
-                ),
-            ));
-        }
+        check_strip(y0, rows, width, values.len())?;
         image.write_strip(&values).map_err(writer_error)?;
         y0 += rows;
     }

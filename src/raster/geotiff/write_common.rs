@@ -11,6 +11,22 @@ use tiff::TiffError;
 /// Name used in error messages about the output of the writers (which see only a stream).
 pub(super) const OUTPUT_NAME: &str = "GeoTIFF output";
 
+/// Refuses a strip whose row source handed back `got` values for `rows` rows of `width`
+/// starting at `y0`.
+pub(super) fn check_strip(y0: u32, rows: u32, width: u32, got: usize) -> Result<()> {
+    let expected = rows as usize * width as usize;
+    if got == expected {
+        return Ok(());
+    }
+    Err(Error::output(
+        OUTPUT_NAME,
+        format!(
+            "rows {y0}..{} came with {got} values; {expected} ({rows} rows x {width}) were expected",
+            y0 + rows
+        ),
+    ))
+}
+
 pub(super) fn writer_error(e: TiffError) -> Error {
     match e {
         TiffError::IoError(source) => Error::io(OUTPUT_NAME, source),

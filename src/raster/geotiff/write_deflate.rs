@@ -5,7 +5,7 @@
 
 use super::tags::GeoTags;
 use super::write_common::{
-    colour_map, write_geo_tags, writer_error, NativeBytes, WriteOptions, OUTPUT_NAME,
+    check_strip, colour_map, write_geo_tags, writer_error, NativeBytes, WriteOptions, OUTPUT_NAME,
 };
 use crate::error::{Error, Result};
 use std::io::{Seek, Write};
@@ -41,17 +41,7 @@ where
     while y0 < height {
         let rows = rows_per_strip.min(height - y0);
         let values = next_rows(y0, rows)?;
-        let expected = rows as usize * width as usize;
-        if values.len() != expected {
-            return Err(Error::output(
-                OUTPUT_NAME,
-                format!(
-                    "rows {y0}..{} came with {} values; {expected} were expected",
-                    y0 + rows,
-                    values.len()
-                ),
-            ));
-        }
+        check_strip(y0, rows, width, values.len())?;
         raw.clear();
         for &v in &values {
             v.extend_bytes(&mut raw);
