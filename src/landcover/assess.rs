@@ -266,19 +266,10 @@ fn read_points(path: &Path, limits: &Limits) -> Result<Vec<(f64, f64, String)>> 
         line: Some(line),
         message,
     };
-    let mut lines = text
-        .lines()
-        .enumerate()
-        .filter(|(_, l)| !l.trim().is_empty());
-    let (_, head) = lines
-        .next()
+    let t = super::labels::SmallTable::parse(&text, false)
         .ok_or_else(|| table(1, "the table is empty".into()))?;
-    let cols: Vec<String> = head
-        .split(',')
-        .map(|c| c.trim().to_ascii_lowercase())
-        .collect();
     let find = |n: &str| {
-        cols.iter().position(|c| c == n).ok_or_else(|| {
+        t.col(n).ok_or_else(|| {
             table(
                 1,
                 format!("no `{n}` column (the header needs x, y and label)"),
@@ -287,19 +278,18 @@ fn read_points(path: &Path, limits: &Limits) -> Result<Vec<(f64, f64, String)>> 
     };
     let (ix, iy, il) = (find("x")?, find("y")?, find("label")?);
     let mut out = Vec::new();
-    for (i, line) in lines {
-        let f: Vec<&str> = line.split(',').map(str::trim).collect();
+    for (line, f) in &t.rows {
         let get = |k: usize| f.get(k).copied().unwrap_or("");
         let num = |k: usize, n: &str| {
             get(k)
                 .parse::<f64>()
                 .ok()
                 .filter(|v| v.is_finite())
-                .ok_or_else(|| table(i + 1, format!("`{n}` '{}' is not a number", get(k))))
+                .ok_or_else(|| table(*line, format!("`{n}` '{}' is not a number", get(k))))
         };
         let label = get(il);
         if label.is_empty() {
-            return Err(table(i + 1, "the label is empty".into()));
+            return Err(table(*line, "the label is empty".into()));
         }
         out.push((num(ix, "x")?, num(iy, "y")?, label.to_string()));
     }

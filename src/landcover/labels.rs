@@ -63,6 +63,38 @@ impl LabelSet {
     }
 }
 
+/// A small comma-separated table: its lower-cased header and its other non-blank lines
+/// (1-based line number, trimmed fields); with `comments`, lines starting with `#` are
+/// left out. Label files and reference point tables are read this way.
+pub(super) struct SmallTable<'t> {
+    pub cols: Vec<String>,
+    pub rows: Vec<(usize, Vec<&'t str>)>,
+}
+
+impl<'t> SmallTable<'t> {
+    /// `None` when the text has no header line.
+    pub(super) fn parse(text: &'t str, comments: bool) -> Option<SmallTable<'t>> {
+        let mut lines = text.lines().enumerate().filter(|(_, l)| {
+            !l.trim().is_empty() && !(comments && l.trim_start().starts_with('#'))
+        });
+        let (_, head) = lines.next()?;
+        Some(SmallTable {
+            cols: head
+                .split(',')
+                .map(|c| c.trim().to_ascii_lowercase())
+                .collect(),
+            rows: lines
+                .map(|(i, l)| (i + 1, l.split(',').map(str::trim).collect()))
+                .collect(),
+        })
+    }
+
+    /// Position of the column named `n` (lower case).
+    pub(super) fn col(&self, n: &str) -> Option<usize> {
+        self.cols.iter().position(|c| c == n)
+    }
+}
+
 /// Reads a label file (see the module documentation).
 pub fn read_labels(path: &Path, limits: &Limits) -> Result<LabelSet> {
     let text = limits.read_text(path, "label file")?;
@@ -71,18 +103,8 @@ pub fn read_labels(path: &Path, limits: &Limits) -> Result<LabelSet> {
         line: Some(line),
         message,
     };
-    let mut lines = text
-        .lines()
-        .enumerate()
-        .filter(|(_, l)| !l.trim().is_empty() && !l.trim_start().starts_with('#'));
-    let (_, head) = lines
-        .next()
-        .ok_or_else(|| err(1, "the file is empty".into()))?;
-    let cols: Vec<String> = head
-        .split(',')
-        .map(|c| c.trim().to_ascii_lowercase())
-        .collect();
-    let col = |n: &str| cols.iter().position(|c| c == n);
+    let table = SmallTable::parse(&text, true).ok_or_else(|| err(1, "the file is empty".into()))?;
+    let col = |n: &str| table.col(n);
     let (ic, il) = match (col("class"), col("label")) {
         (Some(c), Some(l)) => (c, l),
         _ => {
@@ -96,9 +118,8 @@ pub fn read_labels(path: &Path, limits: &Limits) -> Result<LabelSet> {
     let mut labels: Vec<Label> = Vec::new();
     let mut given: Vec<Option<[u8; 3]>> = Vec::new();
     let mut of_class = vec![0u8; 256];
-    for (i, line) in lines {
-        let n = i + 1;
-        let f: Vec<&str> = line.split(',').map(str::trim).collect();
+    for (n, f) in &table.rows {
+        let n = *n;
         let get = |k: usize| f.get(k).copied().unwrap_or("");
         let class: u8 = get(ic)
             .parse()

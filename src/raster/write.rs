@@ -145,36 +145,50 @@ pub fn write_rgba_png_with<W: Write>(
     rgba: &[u8],
     extras: &PngExtras<'_>,
 ) -> std::io::Result<()> {
-    let mut enc = encoder_with(w, width, height, extras);
-    enc.set_compression(png::Compression::Fast);
-    enc.set_color(png::ColorType::Rgba);
-    enc.set_depth(png::BitDepth::Eight);
-    let mut writer = enc.write_header().map_err(png_error)?;
-    writer.write_image_data(rgba).map_err(png_error)?;
-    writer.finish().map_err(png_error)
+    write_png8(w, width, height, png::ColorType::Rgba, rgba, extras)
 }
 
 /// Writes an 8-bit RGB PNG.
 pub fn write_rgb_png<W: Write>(w: W, width: u32, height: u32, rgb: &[u8]) -> std::io::Result<()> {
-    let mut enc = png::Encoder::new(w, width, height);
-    enc.set_compression(png::Compression::Fast);
-    enc.set_color(png::ColorType::Rgb);
-    enc.set_depth(png::BitDepth::Eight);
-    let mut writer = enc.write_header().map_err(png_error)?;
-    writer.write_image_data(rgb).map_err(png_error)?;
-    writer.finish().map_err(png_error)
+    write_png8(
+        w,
+        width,
+        height,
+        png::ColorType::Rgb,
+        rgb,
+        &PngExtras::default(),
+    )
 }
 
 /// Writes an 8-bit greyscale PNG.
 pub fn write_grey_png<W: Write>(w: W, width: u32, height: u32, grey: &[u8]) -> std::io::Result<()> {
-    // Fast deflate: noisy uncertainty maps compress poorly at any level, and the default
-    // level takes about 20 times as long for a few per cent (measured on a 12 MP photo).
-    let mut enc = png::Encoder::new(w, width, height);
+    write_png8(
+        w,
+        width,
+        height,
+        png::ColorType::Grayscale,
+        grey,
+        &PngExtras::default(),
+    )
+}
+
+/// The one 8-bit PNG writer behind the three above. Fast deflate: noisy uncertainty maps
+/// and photographs compress poorly at any level, and the default level takes about 20
+/// times as long for a few per cent (measured on a 12 MP photo).
+fn write_png8<W: Write>(
+    w: W,
+    width: u32,
+    height: u32,
+    colour: png::ColorType,
+    data: &[u8],
+    extras: &PngExtras<'_>,
+) -> std::io::Result<()> {
+    let mut enc = encoder_with(w, width, height, extras);
     enc.set_compression(png::Compression::Fast);
-    enc.set_color(png::ColorType::Grayscale);
+    enc.set_color(colour);
     enc.set_depth(png::BitDepth::Eight);
     let mut writer = enc.write_header().map_err(png_error)?;
-    writer.write_image_data(grey).map_err(png_error)?;
+    writer.write_image_data(data).map_err(png_error)?;
     writer.finish().map_err(png_error)
 }
 
