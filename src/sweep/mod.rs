@@ -17,13 +17,13 @@ mod recommend;
 use crate::cluster::{Dataset, EngineOptions};
 use crate::colour::Space;
 use crate::error::{Error, ParamsError, Result};
-use crate::features::histogram::{self, IndexedHistogram};
+use crate::features::image::image_colours;
 use crate::features::rows::entry_features;
 use crate::features::scene::{scene_sample, SceneOptions};
 use crate::limits::Limits;
 use crate::output::stem_of;
 use crate::output::DocumentHeader;
-use crate::raster::{self, Pixels};
+use crate::raster;
 pub use chart::sweep_svg;
 pub use measures::{
     covariance_floor, sweep_rows, FAMILY_DELTA_E2000, MIN_SHARE, MIN_STABILITY, STABILITY_RUNS,
@@ -316,10 +316,8 @@ fn sweep_document(
         )
     } else {
         let img = raster::decode(input, &opts.limits)?;
-        let IndexedHistogram { histogram: h, .. } = match &img.pixels {
-            Pixels::Rgba8(p) => histogram::from_rgba8(p),
-            Pixels::Rgba16(p) => histogram::from_rgba16(p),
-        };
+        // Read through the image's embedded profile, as `reduce` reads it.
+        let h = image_colours(&img).indexed.histogram;
         drop(img);
         if h.is_empty() {
             return Err(Error::InputData {
