@@ -652,8 +652,8 @@ mod tests {
         };
         check(b"PNG....", "first bytes");
         let mut v = good.clone();
-        v[7] = 2;
-        check(&v, "version 2");
+        v[7] = 3;
+        check(&v, "version 3");
         check(&good[..good.len() - 3], "size");
         let mut v = good.clone();
         v[30] ^= 1;

@@ -451,4 +451,86 @@ mod tests {
             .to_string();
         assert!(e.contains("bad-a.hist"), "{e}");
     }
+
+    /// A histogram of sRGB and Display P3 entries (profile from
+    /// `tests/reference/make_profile_fixtures.py`) and the grey profile's.
+    fn tagged() -> (Histogram, Arc<SourceProfile>, Arc<SourceProfile>) {
+        let read = |b: &[u8]| match read_profile(b) {
+            ProfileUse::Convert(p) => p,
+            other => panic!("{other:?}"),
+        };
+        let p3 = read(include_bytes!("../../fixtures/profiles/display-p3.icc"));
+        let grey = read(include_bytes!("../../fixtures/profiles/grey-gamma.icc"));
+        let part = |colours: Vec<[u16; 3]>, p: Option<Arc<SourceProfile>>| {
+            let counts = colours.iter().map(|c| 1 + c[0] as u64).collect();
+            Histogram {
+                depth: 8,
+                colours,
+                counts,
+                ..Histogram::default()
+            }
+            .read_through(p)
+        };
+        let h = Histogram::merge(&[
+            part(vec![[1, 2, 3], [200, 0, 0]], Some(p3.clone())),
+            part(vec![[1, 2, 3], [9, 9, 9]], None),
+        ])
+        .unwrap();
+        (h, p3, grey)
+    }
+
+    #[test]
+    fn tagged_histograms_round_trip_and_damage_is_refused() {
+        let (h, p3, grey) = tagged();
+        // sRGB entries first, then the P3 ones; the same colour in two profiles is two
+        // entries.
+        assert_eq!(h.colours, vec![[1, 2, 3], [9, 9, 9], [1, 2, 3], [200, 0, 0]]);
+        assert_eq!(h.entry_profile, vec![0, 0, 1, 1]);
+        let bytes = encode(&h);
+        assert!(bytes.starts_with(b"CSHIST\x00\x02"));
+        let p = Path::new("tagged.hist");
+        assert_eq!(decode(&bytes, p).unwrap(), h);
+        let with_sum = |mut v: Vec<u8>| {
+            let n = v.len() - 8;
+            let s = fnv1a(&v[..n]);
+            v[n..].copy_from_slice(&s.to_le_bytes());
+            v
+        };
+        let check = |v: Vec<u8>, m: &str| {
+            let e = decode(&with_sum(v), p).unwrap_err().to_string();
+            assert!(e.contains("tagged.hist") && e.contains(m), "{e}");
+        };
+        // An entry naming a second profile the file does not hold.
+        let entries = bytes.len() - 8 - 4 * 18;
+        let mut v = bytes.clone();
+        v[entries + 3 * 18] = 2;
+        check(v, "does not hold");
+        // Entries out of order (the last entry moved to profile 0 ahead of the others).
+        let mut v = bytes.clone();
+        v[entries + 3 * 18] = 0;
+        check(v, "increasing");
+        // A second profile no entry uses, or profiles out of byte order.
+        let two = |first: &SourceProfile, second: &SourceProfile| {
+            let mut v = bytes[..16].to_vec();
+            v.extend_from_slice(&2u64.to_le_bytes());
+            for q in [first, second] {
+                v.extend_from_slice(&(q.icc.len() as u64).to_le_bytes());
+                v.extend_from_slice(&q.icc);
+            }
+            v.extend_from_slice(&bytes[24 + 8 + p3.icc.len()..]);
+            v
+        };
+        let (lo, hi) = if grey.icc < p3.icc { (&grey, &p3) } else { (&p3, &grey) };
+        check(two(lo, hi), "used by no entry");
+        check(two(hi, lo), "byte order");
+        // An sRGB-matching or unreadable profile is never written, so it is refused.
+        let mut v = bytes[..24].to_vec();
+        v.extend_from_slice(&(p3.icc.len() as u64).to_le_bytes());
+        v.extend(std::iter::repeat_n(0u8, p3.icc.len()));
+        v.extend_from_slice(&bytes[32 + p3.icc.len()..]);
+        check(v, "cannot be applied");
+        // Cut inside the profile.
+        let e = decode(&bytes[..100], p).unwrap_err().to_string();
+        assert!(e.contains("truncated"), "{e}");
+    }
 }
