@@ -350,7 +350,10 @@ fn shared_palette_learn_apply_and_histogram_shards_agree() {
             .collect()
     };
     let (i1, i2) = (inputs(&mut l1), inputs(&mut l2));
-    assert!(!i1.is_empty() && i1.iter().all(|i| i == "untagged"), "{i1:?}");
+    assert!(
+        !i1.is_empty() && i1.iter().all(|i| i == "untagged"),
+        "{i1:?}"
+    );
     assert_eq!(i2, ["histogram-file", "histogram-file"]);
     assert_eq!(l1, l2);
     // apply with the learned palette equals the shared batch output, byte for byte.

@@ -224,7 +224,8 @@ fn labs_through_profile(file: &str) -> (String, ColourLabs) {
     let h = chromasift::histogram::from_rgba8(px)
         .histogram
         .read_through(Some(p.clone()));
-    let (_, labs) = chromasift::features::rows::entry_features(&h, chromasift::colour::Space::Cielab);
+    let (_, labs) =
+        chromasift::features::rows::entry_features(&h, chromasift::colour::Space::Cielab);
     (
         p.description.clone(),
         h.colours.iter().copied().zip(labs).collect(),

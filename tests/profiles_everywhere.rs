@@ -196,7 +196,11 @@ fn histogram_files_keep_each_colours_profile() {
     }
     let (f, i) = (json(&from_file), json(&from_images));
     assert_eq!(f["colors"], i["colors"]);
-    assert_palette_holds(&hexes(&f), &patches("display-p3"), "learn from a histogram file");
+    assert_palette_holds(
+        &hexes(&f),
+        &patches("display-p3"),
+        "learn from a histogram file",
+    );
     let rec = &f["input_profiles"][0];
     assert_eq!(rec["input"], "histogram-file");
     assert_eq!(rec["profiles"], serde_json::json!([P3]));
@@ -325,4 +329,67 @@ fn grey_tagged_images_give_the_lightness_of_their_grey_curve() {
             .fold(f64::INFINITY, f64::min);
         assert!(nearest < 0.5, "grey {:?}: L* off by {nearest:.3}", p.rgb);
     }
+}
+
+#[test]
+fn separate_and_sweep_read_artwork_through_its_profile() {
+    let dir = tempfile::tempdir().unwrap();
+    // A flat patch of Display P3 numbers (200, 120, 60), tagged with the fixture profile
+    // (written here by the `image` crate's PNG encoder).
+    let p3 = patches("display-p3")
+        .into_iter()
+        .find(|p| p.rgb == [200, 120, 60])
+        .unwrap();
+    let art = dir.path().join("flat.png");
+    {
+        use image::ImageEncoder;
+        let mut enc = image::codecs::png::PngEncoder::new(std::fs::File::create(&art).unwrap());
+        enc.set_icc_profile(std::fs::read(fixture("profiles/display-p3.icc")).unwrap())
+            .unwrap();
+        let px: Vec<u8> = (0..256).flat_map(|_| [200u8, 120, 60]).collect();
+        enc.write_image(&px, 16, 16, image::ExtendedColorType::Rgb8)
+            .unwrap();
+    }
+    // Two inks: colour-science's sRGB colour of the patch, and the patch's numbers taken
+    // as sRGB (#c8783c, ΔE2000 3.4 away by colour-science). Read through its profile, the artwork takes
+    // the first.
+    let lib = dir.path().join("inks.csv");
+    let h = |c: [u8; 3]| format!("#{:02x}{:02x}{:02x}", c[0], c[1], c[2]);
+    std::fs::write(
+        &lib,
+        format!(
+            "name,hex\nthrough-profile,{}\nnumbers-as-srgb,#c8783c\n",
+            h(p3.srgb)
+        ),
+    )
+    .unwrap();
+    let out = dir.path().join("sep");
+    ok(&[
+        "separate",
+        art.to_str().unwrap(),
+        "--inks",
+        lib.to_str().unwrap(),
+        "-k",
+        "1",
+        "-o",
+        out.to_str().unwrap(),
+    ]);
+    let doc = json(&out.join("flat.separation.json"));
+    assert_eq!(doc["inks"][0]["name"], "through-profile", "{doc}");
+    assert_eq!(doc["input_profile"]["input"], "icc");
+    assert_eq!(doc["input_profile"]["file"], "flat.png");
+    assert_eq!(doc["input_profile"]["description"], P3);
+
+    let sw = dir.path().join("sweep");
+    ok(&[
+        "sweep",
+        fixture("profiles/p3.png").to_str().unwrap(),
+        "--k",
+        "2..4",
+        "-o",
+        sw.to_str().unwrap(),
+    ]);
+    let doc = json(&sw.join("sweep.json"));
+    assert_eq!(doc["input_profile"]["input"], "icc");
+    assert_eq!(doc["input_profile"]["description"], P3);
 }

@@ -7,12 +7,12 @@ mod review;
 pub use review::{review_page, REVIEW_FOLDER, REVIEW_PAGE, THUMBNAIL_SIDE};
 
 use crate::error::{Error, Result};
-use crate::features::histogram_file::{
-    merge_as_they_arrive, pool as pool_histograms, read_input, Pooled,
-};
 pub use crate::features::histogram_file::{
     decode as decode_histogram, encode as encode_histogram, histogram_of_file, input_files,
     HIST_MAGIC,
+};
+use crate::features::histogram_file::{
+    merge_as_they_arrive, pool as pool_histograms, read_input, Pooled,
 };
 use crate::output::DocumentHeader;
 use crate::output::{stem_of, SourceStamp};

@@ -101,8 +101,10 @@ impl Histogram {
             return None;
         }
         // Every profile once, in the order of its ICC bytes.
-        let mut profiles: Vec<Arc<SourceProfile>> =
-            parts.iter().flat_map(|p| p.profiles.iter().cloned()).collect();
+        let mut profiles: Vec<Arc<SourceProfile>> = parts
+            .iter()
+            .flat_map(|p| p.profiles.iter().cloned())
+            .collect();
         profiles.sort_by(|a, b| a.icc.cmp(&b.icc));
         profiles.dedup_by(|a, b| a.icc == b.icc);
         let number = |p: &Histogram, i: usize| match p.profile_of(i) {
@@ -116,9 +118,7 @@ impl Histogram {
         };
         let mut all: Vec<((u32, [u16; 3]), u64)> = parts
             .iter()
-            .flat_map(|p| {
-                (0..p.len()).map(move |i| ((number(p, i), p.colours[i]), p.counts[i]))
-            })
+            .flat_map(|p| (0..p.len()).map(move |i| ((number(p, i), p.colours[i]), p.counts[i])))
             .collect();
         all.par_sort_unstable_by_key(|e| e.0);
         let mut keys: Vec<(u32, [u16; 3])> = Vec::new();

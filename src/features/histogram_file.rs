@@ -4,11 +4,11 @@
 use crate::colour::profile::{read_profile, ProfileUse, SourceProfile};
 use crate::error::{Error, Result};
 use crate::features::histogram::{self, Histogram};
+use crate::features::image::{image_colours_8bit, ImageColours, InputProfile};
 use crate::limits::Limits;
 use crate::output::fnv1a;
-use crate::raster::walk::collect_images;
-use crate::features::image::{image_colours_8bit, ImageColours, InputProfile};
 use crate::raster;
+use crate::raster::walk::collect_images;
 use rayon::prelude::*;
 use std::path::{Path, PathBuf};
 use std::sync::Arc;
@@ -246,7 +246,9 @@ pub fn decode(bytes: &[u8], path: &Path) -> Result<Histogram> {
         ];
         let count = u64::from_le_bytes(e[6..14].try_into().unwrap());
         if profile as usize > profiles.len() {
-            return Err(bad("an entry names a colour profile the file does not hold"));
+            return Err(bad(
+                "an entry names a colour profile the file does not hold",
+            ));
         }
         used[profile as usize] = true;
         if depth == 8 && c.iter().any(|&v| v > 255) {
@@ -354,7 +356,10 @@ pub(crate) fn pool(g: Gathered<InputProfile>, path: impl Fn(usize) -> PathBuf) -
         }
         return Err(Error::Data("no input could be read".into()));
     }
-    let total = g.parts.iter().fold(0u64, |a, p| a.saturating_add(p.total()));
+    let total = g
+        .parts
+        .iter()
+        .fold(0u64, |a, p| a.saturating_add(p.total()));
     if total > histogram::MAX_TOTAL {
         return Err(Error::Data(format!(
             "the inputs count {total} pixels in all, more than the 2^53 a histogram holds \
@@ -484,7 +489,10 @@ mod tests {
         let (h, p3, grey) = tagged();
         // sRGB entries first, then the P3 ones; the same colour in two profiles is two
         // entries.
-        assert_eq!(h.colours, vec![[1, 2, 3], [9, 9, 9], [1, 2, 3], [200, 0, 0]]);
+        assert_eq!(
+            h.colours,
+            vec![[1, 2, 3], [9, 9, 9], [1, 2, 3], [200, 0, 0]]
+        );
         assert_eq!(h.entry_profile, vec![0, 0, 1, 1]);
         let bytes = encode(&h);
         assert!(bytes.starts_with(b"CSHIST\x00\x02"));
@@ -520,7 +528,11 @@ mod tests {
             v.extend_from_slice(&bytes[24 + 8 + p3.icc.len()..]);
             v
         };
-        let (lo, hi) = if grey.icc < p3.icc { (&grey, &p3) } else { (&p3, &grey) };
+        let (lo, hi) = if grey.icc < p3.icc {
+            (&grey, &p3)
+        } else {
+            (&p3, &grey)
+        };
         check(two(lo, hi), "used by no entry");
         check(two(hi, lo), "byte order");
         // An sRGB-matching or unreadable profile is never written, so it is refused.

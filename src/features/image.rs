@@ -42,9 +42,11 @@ pub fn profile_kind(read: Option<&ProfileUse>) -> (&'static str, Option<String>,
         None => ("untagged", None, None),
         Some(ProfileUse::Srgb(d)) => ("icc-srgb", Some(d.clone()), None),
         Some(ProfileUse::Convert(p)) => ("icc", Some(p.description.clone()), None),
-        Some(ProfileUse::Unused(why)) => {
-            ("icc-unused", None, Some(format!("{why}; the image is read as sRGB")))
-        }
+        Some(ProfileUse::Unused(why)) => (
+            "icc-unused",
+            None,
+            Some(format!("{why}; the image is read as sRGB")),
+        ),
     }
 }
 

@@ -22,7 +22,7 @@ use crate::cluster::EngineOptions;
 use crate::colour::inks::{self, Ink};
 use crate::colour::{self, adapt, delta_e2000};
 use crate::error::{Error, Result};
-use crate::features::image::{image_colours, profile_kind, ImageColours};
+use crate::features::image::{image_colours, ImageColours, InputProfile};
 use crate::limits::Limits;
 use crate::output::DocumentHeader;
 use crate::raster::{self, Decoded};
@@ -201,6 +201,9 @@ pub struct SeparationDocument {
     /// How the number of inks was chosen, when a ΔE2000 target chose it.
     #[serde(default, skip_serializing_if = "Vec::is_empty")]
     pub notes: Vec<String>,
+    /// How the artwork's colours were read (its embedded colour profile).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub input_profile: Option<InputProfile>,
 }
 
 fn default_alpha_threshold() -> f64 {
@@ -286,7 +289,9 @@ pub fn separate_image(
     if img.more_frames {
         notes.push(crate::raster::MORE_FRAMES_NOTE.to_string());
     }
-    notes.extend(profile_kind(read.as_ref()).2);
+    // Named by the stem here; `separate_file` puts the file name in.
+    let input_profile = InputProfile::of_image(stem.to_string(), read.as_ref());
+    notes.extend(input_profile.note.clone());
     let selection = if opts.all {
         select::Selection {
             chosen: (0..library.len()).collect(),
@@ -504,6 +509,7 @@ pub fn separate_image(
         alpha_threshold: opts.alpha_threshold,
         films: None,
         notes,
+        input_profile: Some(input_profile),
     };
     let tints = amounts.map(|a| tint::pixel_amounts(&labels, &ih.pixel_entry, &a, table.m, &order));
     Ok(Separation {
@@ -567,6 +573,12 @@ pub fn separate_file(
         |img, set| {
             let mut sep = separate_image(&img, &library, opts, library_path, &stem)?;
             sep.document.header.input = input.file_name().map(|n| n.to_string_lossy().into_owned());
+            if let (Some(p), Some(name)) = (
+                sep.document.input_profile.as_mut(),
+                sep.document.header.input.as_ref(),
+            ) {
+                p.file = name.clone();
+            }
             let made = match &opts.films {
                 Some(f) => Some(film_output::make(&mut sep, &img, f, &stem)?),
                 None => None,

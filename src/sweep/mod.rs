@@ -17,7 +17,7 @@ mod recommend;
 use crate::cluster::{Dataset, EngineOptions};
 use crate::colour::Space;
 use crate::error::{Error, ParamsError, Result};
-use crate::features::image::image_colours;
+use crate::features::image::{image_colours, ImageColours, InputProfile};
 use crate::features::rows::entry_features;
 use crate::features::scene::{scene_sample, SceneOptions};
 use crate::limits::Limits;
@@ -177,6 +177,9 @@ pub struct SweepDocument {
     /// The recommended K.
     #[serde(default)]
     pub recommended: Option<Recommendation>,
+    /// How an image's colours were read (absent for a multi-band scene).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub input_profile: Option<InputProfile>,
 }
 
 /// What [`sweep_file`] did.
@@ -298,6 +301,7 @@ fn sweep_document(
             ignored.join(", ")
         ));
     }
+    let mut input_profile = None;
     let (rows, features, floor) = if is_scene(input, opts)? {
         let scene_opts = opts.scene.clone().unwrap_or_default();
         let s = scene_sample(
@@ -317,8 +321,12 @@ fn sweep_document(
     } else {
         let img = raster::decode(input, &opts.limits)?;
         // Read through the image's embedded profile, as `reduce` reads it.
-        let h = image_colours(&img).indexed.histogram;
+        let ImageColours { indexed, profile } = image_colours(&img);
         drop(img);
+        let h = indexed.histogram;
+        let record = InputProfile::of_image(file_name(input), profile.as_ref());
+        notes.extend(record.note.clone());
+        input_profile = Some(record);
         if h.is_empty() {
             return Err(Error::InputData {
                 path: input.into(),
@@ -362,8 +370,17 @@ fn sweep_document(
         recommended: recommend(&rows, &suggested),
         suggested,
         rows,
+        input_profile,
     };
     Ok(document)
+}
+
+/// The file name of `path` (the whole path when it has none).
+fn file_name(path: &Path) -> String {
+    path.file_name()
+        .unwrap_or(path.as_os_str())
+        .to_string_lossy()
+        .into_owned()
 }
 
 fn opt(v: Option<f64>) -> String {
