@@ -351,8 +351,8 @@ fn separate_and_sweep_read_artwork_through_its_profile() {
             .unwrap();
     }
     // Two inks: colour-science's sRGB colour of the patch, and the patch's numbers taken
-    // as sRGB (#c8783c, ΔE2000 3.4 away by colour-science). Read through its profile, the artwork takes
-    // the first.
+    // as sRGB (#c8783c, ΔE2000 3.4 away by colour-science). Read through its profile, the
+    // artwork takes the first.
     let lib = dir.path().join("inks.csv");
     let h = |c: [u8; 3]| format!("#{:02x}{:02x}{:02x}", c[0], c[1], c[2]);
     std::fs::write(
