@@ -137,6 +137,7 @@ fn histogram_counts_past_two_to_the_53_are_refused() {
         depth: 8,
         colours: vec![[c, c, c]],
         counts: vec![1 << 53],
+        ..Default::default()
     };
     let (a, b) = (dir.path().join("a.hist"), dir.path().join("b.hist"));
     std::fs::write(&a, encode_histogram(&one(10))).unwrap();

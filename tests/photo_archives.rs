@@ -221,12 +221,11 @@ fn labs_through_profile(file: &str) -> (String, ColourLabs) {
     let chromasift::raster::Pixels::Rgba8(px) = &img.pixels else {
         panic!("8-bit fixture");
     };
-    let h = chromasift::histogram::from_rgba8(px).histogram;
-    let (_, labs) = chromasift::features::rows::entry_features_in(
-        &h,
-        chromasift::colour::Space::Cielab,
-        Some(&*p),
-    );
+    let h = chromasift::histogram::from_rgba8(px)
+        .histogram
+        .read_through(Some(p.clone()));
+    let (_, labs) =
+        chromasift::features::rows::entry_features(&h, chromasift::colour::Space::Cielab);
     (
         p.description.clone(),
         h.colours.iter().copied().zip(labs).collect(),

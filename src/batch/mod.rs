@@ -7,11 +7,12 @@ mod review;
 pub use review::{review_page, REVIEW_FOLDER, REVIEW_PAGE, THUMBNAIL_SIDE};
 
 use crate::error::{Error, Result};
-use crate::features::histogram::Histogram;
-use crate::features::histogram_file::merge_as_they_arrive;
 pub use crate::features::histogram_file::{
     decode as decode_histogram, encode as encode_histogram, histogram_of_file, input_files,
     HIST_MAGIC,
+};
+use crate::features::histogram_file::{
+    merge_as_they_arrive, pool as pool_histograms, read_input, Pooled,
 };
 use crate::output::DocumentHeader;
 use crate::output::{stem_of, SourceStamp};
@@ -383,20 +384,11 @@ fn reduce_one(
     reduce::reduce_file_run(input, out_dir, &opts.reduce, &run)
 }
 
-/// Learns the shared palette from the merged histograms and writes `shared.palette.json`.
-fn shared_palette(
-    parts: &[Histogram],
-    input_dir: &Path,
-    out: &Path,
-    opts: &ReduceOptions,
-) -> Result<FixedPalette> {
-    let merged = Histogram::merge(parts).ok_or_else(|| {
-        Error::Data(format!(
-            "{}: no image could be read to learn a shared palette",
-            input_dir.display()
-        ))
-    })?;
-    let doc = reduce::learn_palette(&merged, opts)?;
+/// Learns the shared palette from the pooled histograms and writes `shared.palette.json`,
+/// which records how each image's colours were read.
+fn shared_palette(pooled: Pooled, out: &Path, opts: &ReduceOptions) -> Result<FixedPalette> {
+    let mut doc = reduce::learn_palette(&pooled.histogram, opts)?;
+    doc.input_profiles = pooled.inputs;
     let mut set = OutputSet::prepare(out, &[])?;
     let json = serde_json::to_string_pretty(&doc).expect("document serialises");
     set.write_bytes(SHARED_PALETTE, format!("{json}\n").as_bytes())?;
@@ -445,12 +437,12 @@ pub fn run_batch(
     } else if opts.shared {
         // Histograms are merged as they arrive (see `squash`), so memory stays bounded
         // however many images the folder holds.
-        let (pending, failures) = pool.install(|| {
+        let gathered = pool.install(|| {
             merge_as_they_arrive(&images, |p: &PathBuf| {
                 if stop.load(Ordering::Relaxed) {
                     Err(Error::Data("interrupted".into()))
                 } else {
-                    histogram_of_file(p, &opts.reduce.limits)
+                    read_input(p, &opts.reduce.limits, rel(p))
                 }
             })
         });
@@ -459,10 +451,17 @@ pub fn run_batch(
             // is reported as interrupted below.
             None
         } else {
-            for (i, e) in failures {
-                early_failures[i] = Some(one_line(&e.to_string()));
+            for (i, e) in &gathered.failures {
+                early_failures[*i] = Some(one_line(&e.to_string()));
             }
-            Some(shared_palette(&pending, input_dir, out, &opts.reduce)?)
+            if gathered.parts.is_empty() {
+                return Err(Error::Data(format!(
+                    "{}: no image could be read to learn a shared palette",
+                    input_dir.display()
+                )));
+            }
+            let pooled = pool_histograms(gathered, |i| images[i].clone())?;
+            Some(shared_palette(pooled, out, &opts.reduce)?)
         }
     } else {
         None
@@ -624,12 +623,14 @@ pub fn report_csv(r: &BatchReport) -> String {
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::features::histogram::Histogram;
 
     fn sample() -> Histogram {
         Histogram {
             depth: 8,
             colours: vec![[0, 0, 1], [3, 2, 1], [255, 0, 0]],
             counts: vec![5, 1, 9],
+            ..Histogram::default()
         }
     }
 
@@ -651,8 +652,8 @@ mod tests {
         };
         check(b"PNG....", "first bytes");
         let mut v = good.clone();
-        v[7] = 2;
-        check(&v, "version 2");
+        v[7] = 3;
+        check(&v, "version 3");
         check(&good[..good.len() - 3], "size");
         let mut v = good.clone();
         v[30] ^= 1;

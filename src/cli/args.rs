@@ -323,7 +323,8 @@ pub struct HistogramArgs {
 /// Flags of `separate`.
 #[derive(Debug, Args, Clone)]
 pub struct SeparateArgs {
-    /// Artwork to separate (sRGB; PNG, JPEG, TIFF, WebP, BMP, GIF), or `-` for standard input.
+    /// Artwork to separate (PNG, JPEG, TIFF, WebP, BMP, GIF; read through its colour
+    /// profile, sRGB when untagged), or `-` for standard input.
     pub input: PathBuf,
 
     /// Ink library: CSV (name,L,a,b in CIELAB D50, or name,hex) or JSON; `-` for standard input.

@@ -297,6 +297,7 @@ fn run_learn(args: &LearnArgs) -> Result<ExitCode, Error> {
     let opts = args.options();
     let learnt = learn::learn(&args.inputs, &opts)?;
     let failed = report_failures(&learnt.failures);
+    profile_notes(&learnt.document.input_profiles);
     let json = serde_json::to_string_pretty(&learnt.document).expect("document serialises");
     write_or_stdout(&args.out, format!("{json}\n").as_bytes(), &learnt.read)?;
     let doc = &learnt.document;
@@ -328,10 +329,12 @@ fn run_apply(args: &ApplyArgs) -> Result<ExitCode, Error> {
 
 fn run_histogram(args: &HistogramArgs) -> Result<ExitCode, Error> {
     let limits = args.limit.limits();
-    let (hist, failures) = features::histogram_file::gather_lenient(&args.inputs, &limits)?;
-    let failed = report_failures(&failures);
+    let pooled = features::histogram_file::gather_lenient(&args.inputs, &limits)?;
+    let failed = report_failures(&pooled.failures);
+    profile_notes(&pooled.inputs);
+    let hist = &pooled.histogram;
     let read = features::histogram_file::input_files(&args.inputs)?;
-    write_or_stdout(&args.out, &features::histogram_file::encode(&hist), &read)?;
+    write_or_stdout(&args.out, &features::histogram_file::encode(hist), &read)?;
     let (n, distinct) = (hist.total(), hist.len());
     eprintln!("chromasift: wrote {} ({n} pixels)", args.out.display());
     if args.json {
@@ -340,6 +343,7 @@ fn run_histogram(args: &HistogramArgs) -> Result<ExitCode, Error> {
                 "file": args.out.to_string_lossy(),
                 "pixels": n,
                 "distinct_colours": distinct,
+                "input_profiles": pooled.inputs,
             })
             .to_string(),
         );
@@ -511,6 +515,15 @@ fn run_batch(args: BatchArgs) -> ExitCode {
 }
 
 /// Prints one line per input that could not be read (the others were used); their count.
+/// A note per input whose embedded profile could not be applied.
+fn profile_notes(inputs: &[features::image::InputProfile]) {
+    for i in inputs {
+        if let Some(n) = &i.note {
+            note(Path::new(&i.file), n);
+        }
+    }
+}
+
 fn report_failures(failures: &[(PathBuf, Error)]) -> usize {
     for (_, e) in failures {
         eprintln!("chromasift: failed: {e}");

@@ -10,6 +10,7 @@
 //! are not applied: the image is read as sRGB, with a note.
 
 use moxcms::{ColorProfile, DataColorSpace, ProfileText, ToneReprCurve};
+use std::sync::Arc;
 
 /// How to read an image's RGB numbers.
 #[derive(Debug, Clone, PartialEq)]
@@ -33,7 +34,7 @@ pub enum ProfileUse {
     /// step along the curves): the fast sRGB path applies.
     Srgb(String),
     /// A profile the colours are converted through.
-    Convert(Box<SourceProfile>),
+    Convert(Arc<SourceProfile>),
     /// A profile that cannot be applied (why); the image is read as sRGB.
     Unused(String),
 }
@@ -168,7 +169,7 @@ pub fn read_profile(icc: &[u8]) -> ProfileUse {
     if id && curve_ok && p.color_space == DataColorSpace::Rgb {
         ProfileUse::Srgb(description)
     } else {
-        ProfileUse::Convert(Box::new(sp))
+        ProfileUse::Convert(Arc::new(sp))
     }
 }
 

@@ -1,6 +1,8 @@
 //! Exact weighted table of distinct colours, with the pixel → entry index used to render.
 
+use crate::colour::profile::{SourceProfile, ToLinear};
 use rayon::prelude::*;
+use std::sync::Arc;
 
 /// Entry index of a pixel that takes no part (alpha = 0).
 pub const TRANSPARENT: u32 = u32::MAX;
@@ -10,18 +12,28 @@ pub const TRANSPARENT: u32 = u32::MAX;
 /// merges that would go past it are refused.
 pub const MAX_TOTAL: u64 = 1 << 53;
 
-/// Distinct colours of an image with their pixel counts.
+/// Distinct colours of an image (or of many) with their pixel counts.
 ///
-/// Entries are sorted by colour value (R, then G, then B), so the table is the same
-/// whatever the pixel order or thread count.
-#[derive(Debug, Clone, PartialEq)]
+/// Each entry is a colour's numbers and, when they are not sRGB, the colour profile they
+/// are read through (an image's embedded ICC profile), so images of different profiles
+/// can share one table and every entry keeps its own colour. Entries are sorted by
+/// profile (sRGB first, then the profiles in the order of their ICC bytes) and then by
+/// colour value (R, then G, then B), so the table is the same whatever the pixel order,
+/// merge order or thread count.
+#[derive(Debug, Clone, PartialEq, Default)]
 pub struct Histogram {
     /// Sample depth of `colours`: 8 or 16 bits.
     pub depth: u8,
-    /// Distinct sRGB colours (at `depth` bits, stored as u16).
+    /// Distinct colours' numbers (at `depth` bits, stored as u16).
     pub colours: Vec<[u16; 3]>,
     /// Pixels of each colour.
     pub counts: Vec<u64>,
+    /// The profiles (other than sRGB) some entries are in, each once (by ICC bytes), in
+    /// the order of their ICC bytes, each used by at least one entry.
+    pub profiles: Vec<Arc<SourceProfile>>,
+    /// Per entry: 0 when its numbers are sRGB, otherwise 1 + the index of its profile in
+    /// `profiles`. Empty when `profiles` is (every entry sRGB).
+    pub entry_profile: Vec<u32>,
 }
 
 /// A histogram plus, for every pixel, the index of its entry (or [`TRANSPARENT`]).
@@ -45,13 +57,34 @@ impl Histogram {
     pub fn total(&self) -> u64 {
         self.counts.iter().fold(0u64, |a, &c| a.saturating_add(c))
     }
-    /// Linear sRGB (0..1) of an entry colour at this table's depth.
-    pub fn linear(&self, c: &[u16; 3]) -> [f64; 3] {
-        if self.depth == 8 {
-            crate::colour::srgb8_to_linear([c[0] as u8, c[1] as u8, c[2] as u8])
-        } else {
-            crate::colour::srgb16_to_linear(*c)
+    /// A reader of the entries' colours as linear sRGB (unbounded: a colour of a wider
+    /// profile outside sRGB keeps its values below 0 or above 1).
+    pub fn reader(&self) -> EntryReader<'_> {
+        EntryReader {
+            hist: self,
+            convert: self.profiles.iter().map(|p| p.to_linear()).collect(),
         }
+    }
+
+    /// Profile number of entry `i`: 0 for sRGB, 1 + its index in `profiles` otherwise.
+    pub fn profile_of(&self, i: usize) -> u32 {
+        self.entry_profile.get(i).copied().unwrap_or(0)
+    }
+
+    /// The same entries read through `profile` (an image's embedded profile; `None`:
+    /// sRGB). Meant for the histogram of one image, whose entries are all sRGB numbers.
+    pub fn read_through(mut self, profile: Option<Arc<SourceProfile>>) -> Histogram {
+        match profile {
+            Some(p) if !self.is_empty() => {
+                self.entry_profile = vec![1; self.len()];
+                self.profiles = vec![p];
+            }
+            _ => {
+                self.profiles.clear();
+                self.entry_profile.clear();
+            }
+        }
+        self
     }
 
     /// Counts as f64 weights for clustering.
@@ -59,35 +92,95 @@ impl Histogram {
         self.counts.iter().map(|&c| c as f64).collect()
     }
 
-    /// Merges histograms of the same depth (parts of one image, or several images).
-    /// Counts saturate at `u64::MAX`; callers merging histograms from files check the
-    /// sum against [`MAX_TOTAL`] first.
+    /// Merges histograms of the same depth (parts of one image, or several images, each
+    /// entry staying with its profile). Counts saturate at `u64::MAX`; callers merging
+    /// histograms from files check the sum against [`MAX_TOTAL`] first.
     pub fn merge(parts: &[Histogram]) -> Option<Histogram> {
         let depth = parts.first()?.depth;
         if parts.iter().any(|p| p.depth != depth) {
             return None;
         }
-        let mut all: Vec<([u16; 3], u64)> = parts
+        // Every profile once, in the order of its ICC bytes.
+        let mut profiles: Vec<Arc<SourceProfile>> = parts
             .iter()
-            .flat_map(|p| p.colours.iter().copied().zip(p.counts.iter().copied()))
+            .flat_map(|p| p.profiles.iter().cloned())
+            .collect();
+        profiles.sort_by(|a, b| a.icc.cmp(&b.icc));
+        profiles.dedup_by(|a, b| a.icc == b.icc);
+        let number = |p: &Histogram, i: usize| match p.profile_of(i) {
+            0 => 0,
+            n => {
+                let icc = &p.profiles[n as usize - 1].icc;
+                1 + profiles
+                    .binary_search_by(|q| q.icc.cmp(icc))
+                    .expect("every profile was gathered") as u32
+            }
+        };
+        let mut all: Vec<((u32, [u16; 3]), u64)> = parts
+            .iter()
+            .flat_map(|p| (0..p.len()).map(move |i| ((number(p, i), p.colours[i]), p.counts[i])))
             .collect();
         all.par_sort_unstable_by_key(|e| e.0);
-        let mut colours = Vec::new();
+        let mut keys: Vec<(u32, [u16; 3])> = Vec::new();
         let mut counts: Vec<u64> = Vec::new();
-        for (c, n) in all {
-            if colours.last() == Some(&c) {
+        for (k, n) in all {
+            if keys.last() == Some(&k) {
                 let last = counts.last_mut().unwrap();
                 *last = last.saturating_add(n);
             } else {
-                colours.push(c);
+                keys.push(k);
                 counts.push(n);
             }
         }
+        // Keep only the profiles some entry uses, renumbered in the same order.
+        let mut used = vec![false; profiles.len() + 1];
+        for k in &keys {
+            used[k.0 as usize] = true;
+        }
+        let mut renumber = vec![0u32; profiles.len() + 1];
+        let mut kept = Vec::new();
+        for (i, p) in profiles.into_iter().enumerate() {
+            if used[i + 1] {
+                kept.push(p);
+                renumber[i + 1] = kept.len() as u32;
+            }
+        }
+        let entry_profile = if kept.is_empty() {
+            Vec::new()
+        } else {
+            keys.iter().map(|k| renumber[k.0 as usize]).collect()
+        };
         Some(Histogram {
             depth,
-            colours,
+            colours: keys.into_iter().map(|k| k.1).collect(),
             counts,
+            profiles: kept,
+            entry_profile,
         })
+    }
+}
+
+/// Reads a histogram's entries as linear sRGB, each through its profile.
+pub struct EntryReader<'a> {
+    hist: &'a Histogram,
+    convert: Vec<ToLinear<'a>>,
+}
+
+impl EntryReader<'_> {
+    /// Linear sRGB of entry `i` (0..1 for sRGB entries; unbounded for others).
+    pub fn linear(&self, i: usize) -> [f64; 3] {
+        let h = self.hist;
+        let c = h.colours[i];
+        match h.profile_of(i) {
+            0 if h.depth == 8 => {
+                crate::colour::srgb8_to_linear([c[0] as u8, c[1] as u8, c[2] as u8])
+            }
+            0 => crate::colour::srgb16_to_linear(c),
+            n => {
+                let scale = if h.depth == 8 { 255.0 } else { 65535.0 };
+                self.convert[n as usize - 1].linear(c.map(|v| v as f64 / scale))
+            }
+        }
     }
 }
 
@@ -206,6 +299,7 @@ fn count_rgba8(rgba: &[u8], table: &mut [u32], present: &mut [u64]) -> IndexedHi
             depth: 8,
             colours,
             counts,
+            ..Histogram::default()
         },
         pixel_entry,
     }
@@ -256,6 +350,7 @@ pub fn from_rgba16(rgba: &[u16]) -> IndexedHistogram {
             depth: 16,
             colours,
             counts,
+            ..Histogram::default()
         },
         pixel_entry,
     }

@@ -1,24 +1,39 @@
 //! Histogram files, which let a large archive be summarised in shards, and the merged
 //! histogram of many inputs (folders, images and histogram files).
 
+use crate::colour::profile::{read_profile, ProfileUse, SourceProfile};
 use crate::error::{Error, Result};
 use crate::features::histogram::{self, Histogram};
+use crate::features::image::{image_colours_8bit, ImageColours, InputProfile};
 use crate::limits::Limits;
 use crate::output::fnv1a;
+use crate::raster;
 use crate::raster::walk::collect_images;
-use crate::raster::{self, Pixels};
 use rayon::prelude::*;
 use std::path::{Path, PathBuf};
+use std::sync::Arc;
 
-/// Histogram of one image file (8-bit images merge with 8-bit ones; 16-bit images are
-/// brought to 8 bits so that a whole folder shares one table).
+/// Histogram of one image file, read through its embedded profile (8-bit images merge
+/// with 8-bit ones; 16-bit images are brought to 8 bits so that a whole folder shares one
+/// table).
 pub fn histogram_of_file(path: &Path, limits: &Limits) -> Result<Histogram> {
+    Ok(read_input(path, limits, String::new())?.0)
+}
+
+/// The histogram of one input (a histogram file, or an image read through its embedded
+/// profile at 8 bits) and how its colours were read, recorded under `name`.
+pub fn read_input(path: &Path, limits: &Limits, name: String) -> Result<(Histogram, InputProfile)> {
+    if let Some(bytes) = read_histogram_file(path, limits.max_alloc)? {
+        let h = decode(&bytes, path)?;
+        let record = InputProfile::of_histogram_file(name, &h);
+        return Ok((h, record));
+    }
     let img = raster::decode(path, limits)?;
-    let rgba8: Vec<u8> = match img.pixels {
-        Pixels::Rgba8(p) => p,
-        Pixels::Rgba16(p) => p.iter().map(|&v| ((v as u32 + 128) / 257) as u8).collect(),
-    };
-    Ok(histogram::from_rgba8(&rgba8).histogram)
+    let ImageColours { indexed, profile } = image_colours_8bit(&img);
+    Ok((
+        indexed.histogram,
+        InputProfile::of_image(name, profile.as_ref()),
+    ))
 }
 
 /// Histograms waiting to be merged, per worker, before they are merged into one.
@@ -37,52 +52,86 @@ fn squash(pending: Vec<Histogram>) -> Vec<Histogram> {
     pending
 }
 
-/// Reads a histogram from each item in parallel and merges them as they arrive (see
-/// [`squash`]). Returns the unmerged remainder (one part per depth, at most a few) and
-/// the items that failed, by index.
-pub(crate) fn merge_as_they_arrive<T: Sync>(
-    items: &[T],
-    read: impl Fn(&T) -> Result<Histogram> + Sync,
-) -> (Vec<Histogram>, Vec<(usize, Error)>) {
-    items
-        .par_iter()
-        .enumerate()
-        .fold(
-            || (Vec::<Histogram>::new(), Vec::<(usize, Error)>::new()),
-            |(mut pending, mut fails), (i, item)| {
-                match read(item) {
-                    Ok(h) => {
-                        pending.push(h);
-                        pending = squash(pending);
-                    }
-                    Err(e) => fails.push((i, e)),
-                }
-                (pending, fails)
-            },
-        )
-        .reduce(
-            || (Vec::new(), Vec::new()),
-            |(mut a, mut fa), (b, fb)| {
-                a.extend(b);
-                fa.extend(fb);
-                (squash(a), fa)
-            },
-        )
+/// What [`merge_as_they_arrive`] gathered: the unmerged remainder (one part per depth, at
+/// most a few), what each item that was read says of itself and the items that failed,
+/// both by index in input order.
+pub(crate) struct Gathered<R> {
+    pub parts: Vec<Histogram>,
+    pub records: Vec<(usize, R)>,
+    pub failures: Vec<(usize, Error)>,
 }
 
-/// First bytes of a histogram file: "CSHIST", a NUL, and the format version (1).
+/// Reads a histogram (and a record) from each item in parallel and merges them as they
+/// arrive (see [`squash`]).
+pub(crate) fn merge_as_they_arrive<T: Sync, R: Send>(
+    items: &[T],
+    read: impl Fn(&T) -> Result<(Histogram, R)> + Sync,
+) -> Gathered<R> {
+    let empty = || Gathered {
+        parts: Vec::new(),
+        records: Vec::new(),
+        failures: Vec::new(),
+    };
+    let mut g = items
+        .par_iter()
+        .enumerate()
+        .fold(empty, |mut g, (i, item)| {
+            match read(item) {
+                Ok((h, r)) => {
+                    g.parts.push(h);
+                    g.parts = squash(std::mem::take(&mut g.parts));
+                    g.records.push((i, r));
+                }
+                Err(e) => g.failures.push((i, e)),
+            }
+            g
+        })
+        .reduce(empty, |mut a, b| {
+            a.parts.extend(b.parts);
+            a.parts = squash(a.parts);
+            a.records.extend(b.records);
+            a.failures.extend(b.failures);
+            a
+        });
+    g.records.sort_by_key(|(i, _)| *i);
+    g.failures.sort_by_key(|(i, _)| *i);
+    g
+}
+
+/// First bytes of a histogram file: "CSHIST", a NUL, and the format version (1: every
+/// entry sRGB; 2: some entries in other colour profiles, which the file holds).
 pub const HIST_MAGIC: &[u8; 8] = b"CSHIST\x00\x01";
 
-/// Encodes a histogram file (all integers little-endian):
+/// The first bytes of a version 2 file.
+const HIST_MAGIC_2: &[u8; 8] = b"CSHIST\x00\x02";
+
+/// Encodes a histogram file (all integers little-endian). Version 1, when every entry is
+/// sRGB:
 /// magic (8) | depth u8 | 7 zero bytes | entries u64 | entries × (r, g, b u16; count u64) |
 /// FNV-1a 64 checksum of everything before it (u64).
+/// Version 2, when some entries are in other profiles: after the 7 zero bytes, the
+/// profiles u64 | profiles × (length u64; the ICC profile) | entries u64 |
+/// entries × (profile u32; r, g, b u16; count u64) | checksum; an entry's profile is 0
+/// for sRGB or 1 + the index of its ICC profile.
 pub fn encode(h: &Histogram) -> Vec<u8> {
-    let mut v = Vec::with_capacity(32 + h.len() * 14);
-    v.extend_from_slice(HIST_MAGIC);
+    let v2 = !h.profiles.is_empty();
+    let icc_bytes: usize = h.profiles.iter().map(|p| 8 + p.icc.len()).sum();
+    let mut v = Vec::with_capacity(40 + icc_bytes + h.len() * 18);
+    v.extend_from_slice(if v2 { HIST_MAGIC_2 } else { HIST_MAGIC });
     v.push(h.depth);
     v.extend_from_slice(&[0u8; 7]);
+    if v2 {
+        v.extend_from_slice(&(h.profiles.len() as u64).to_le_bytes());
+        for p in &h.profiles {
+            v.extend_from_slice(&(p.icc.len() as u64).to_le_bytes());
+            v.extend_from_slice(&p.icc);
+        }
+    }
     v.extend_from_slice(&(h.len() as u64).to_le_bytes());
-    for (c, &n) in h.colours.iter().zip(&h.counts) {
+    for (i, (c, &n)) in h.colours.iter().zip(&h.counts).enumerate() {
+        if v2 {
+            v.extend_from_slice(&h.profile_of(i).to_le_bytes());
+        }
         for ch in c {
             v.extend_from_slice(&ch.to_le_bytes());
         }
@@ -93,7 +142,26 @@ pub fn encode(h: &Histogram) -> Vec<u8> {
     v
 }
 
-/// Decodes and checks a histogram file; `path` is used in messages.
+/// Reads little-endian fields one after the other.
+struct Fields<'a> {
+    bytes: &'a [u8],
+    at: usize,
+}
+
+impl<'a> Fields<'a> {
+    fn take(&mut self, n: u64) -> Option<&'a [u8]> {
+        let n = usize::try_from(n).ok()?;
+        let end = self.at.checked_add(n).filter(|&e| e <= self.bytes.len())?;
+        let s = &self.bytes[self.at..end];
+        self.at = end;
+        Some(s)
+    }
+    fn u64(&mut self) -> Option<u64> {
+        Some(u64::from_le_bytes(self.take(8)?.try_into().ok()?))
+    }
+}
+
+/// Decodes and checks a histogram file (version 1 or 2); `path` is used in messages.
 pub fn decode(bytes: &[u8], path: &Path) -> Result<Histogram> {
     let bad = |m: &str| Error::Decode {
         path: path.into(),
@@ -102,9 +170,10 @@ pub fn decode(bytes: &[u8], path: &Path) -> Result<Histogram> {
     if bytes.len() < 8 || &bytes[..6] != b"CSHIST" {
         return Err(bad("wrong first bytes"));
     }
-    if bytes[6..8] != HIST_MAGIC[6..8] {
+    let v2 = bytes[..8] == HIST_MAGIC_2[..];
+    if bytes[..8] != HIST_MAGIC[..] && !v2 {
         return Err(bad(&format!(
-            "format version {} is not supported (this tool reads version 1)",
+            "format version {} is not supported (this tool reads versions 1 and 2)",
             bytes[7]
         )));
     }
@@ -118,26 +187,70 @@ pub fn decode(bytes: &[u8], path: &Path) -> Result<Histogram> {
     if bytes[9..16].iter().any(|&b| b != 0) {
         return Err(bad("the 7 reserved header bytes are not zero"));
     }
-    let n = u64::from_le_bytes(bytes[16..24].try_into().unwrap());
-    let expected = n.checked_mul(14).and_then(|b| b.checked_add(32));
-    if expected != Some(bytes.len() as u64) {
-        return Err(bad("size does not match the entry count (truncated?)"));
-    }
     let body = &bytes[..bytes.len() - 8];
     let sum = u64::from_le_bytes(bytes[bytes.len() - 8..].try_into().unwrap());
+    let truncated = || bad("size does not match the entry count (truncated?)");
+    let mut f = Fields {
+        bytes: body,
+        at: 16,
+    };
+    let mut iccs: Vec<&[u8]> = Vec::new();
+    if v2 {
+        let count = f.u64().ok_or_else(truncated)?;
+        if count == 0 {
+            return Err(bad("a version 2 file holds at least one colour profile"));
+        }
+        for _ in 0..count {
+            let len = f.u64().ok_or_else(truncated)?;
+            iccs.push(f.take(len).ok_or_else(truncated)?);
+        }
+    }
+    let n = f.u64().ok_or_else(truncated)?;
+    let size = if v2 { 18 } else { 14 };
+    let expected = n.checked_mul(size).and_then(|b| b.checked_add(f.at as u64));
+    if expected != Some(body.len() as u64) {
+        return Err(truncated());
+    }
     if fnv1a(body) != sum {
         return Err(bad("checksum mismatch (damaged file)"));
     }
+    let mut profiles: Vec<Arc<SourceProfile>> = Vec::with_capacity(iccs.len());
+    for (i, icc) in iccs.iter().enumerate() {
+        let ProfileUse::Convert(p) = read_profile(icc) else {
+            return Err(bad(&format!(
+                "colour profile {} cannot be applied or is sRGB itself",
+                i + 1
+            )));
+        };
+        if i > 0 && iccs[i - 1] >= *icc {
+            return Err(bad("the colour profiles are not in increasing byte order"));
+        }
+        profiles.push(p);
+    }
     let mut colours = Vec::with_capacity(n as usize);
     let mut counts = Vec::with_capacity(n as usize);
+    let mut entry_profile = Vec::with_capacity(if v2 { n as usize } else { 0 });
+    let mut used = vec![false; profiles.len() + 1];
     let mut total = 0u64;
-    for e in body[24..].chunks_exact(14) {
+    let mut last: Option<(u32, [u16; 3])> = None;
+    for e in body[f.at..].chunks_exact(size as usize) {
+        let (profile, e) = if v2 {
+            (u32::from_le_bytes(e[..4].try_into().unwrap()), &e[4..])
+        } else {
+            (0, e)
+        };
         let c = [
             u16::from_le_bytes([e[0], e[1]]),
             u16::from_le_bytes([e[2], e[3]]),
             u16::from_le_bytes([e[4], e[5]]),
         ];
         let count = u64::from_le_bytes(e[6..14].try_into().unwrap());
+        if profile as usize > profiles.len() {
+            return Err(bad(
+                "an entry names a colour profile the file does not hold",
+            ));
+        }
+        used[profile as usize] = true;
         if depth == 8 && c.iter().any(|&v| v > 255) {
             return Err(bad("an 8-bit entry holds a value above 255"));
         }
@@ -150,16 +263,25 @@ pub fn decode(bytes: &[u8], path: &Path) -> Result<Histogram> {
                 "the counts add up to more than 2^53 pixels (damaged file?)",
             ));
         }
-        if colours.last().is_some_and(|l: &[u16; 3]| *l >= c) {
+        if last.is_some_and(|l| l >= (profile, c)) {
             return Err(bad("entries are not in strictly increasing colour order"));
         }
+        last = Some((profile, c));
         colours.push(c);
         counts.push(count);
+        if v2 {
+            entry_profile.push(profile);
+        }
+    }
+    if used[1..].iter().any(|u| !u) {
+        return Err(bad("a colour profile is used by no entry"));
     }
     Ok(Histogram {
         depth,
         colours,
         counts,
+        profiles,
+        entry_profile,
     })
 }
 
@@ -179,21 +301,28 @@ pub fn input_files(inputs: &[PathBuf]) -> Result<Vec<PathBuf>> {
 
 /// Merged histogram of every input: folders (their images), image files and histogram files.
 pub fn gather(inputs: &[PathBuf], limits: &Limits) -> Result<Histogram> {
-    let (hist, failures) = gather_lenient(inputs, limits)?;
-    match failures.into_iter().next() {
+    let g = gather_lenient(inputs, limits)?;
+    match g.failures.into_iter().next() {
         Some((_, e)) => Err(e),
-        None => Ok(hist),
+        None => Ok(g.histogram),
     }
 }
 
+/// The merged histogram of many inputs, how each input's colours were read, and the
+/// inputs that could not be read.
+#[derive(Debug)]
+pub struct Pooled {
+    pub histogram: Histogram,
+    /// Per input read, in input order.
+    pub inputs: Vec<InputProfile>,
+    /// Each input that could not be read (path and error), in input order.
+    pub failures: Vec<(PathBuf, Error)>,
+}
+
 /// As [`gather`], but a file that cannot be read does not stop the others: the
-/// histogram of the files that could be read, and each failure (path and error, in input
-/// order). Fails only when no file could be read (with the first error) or on a merge
-/// that cannot be made.
-pub fn gather_lenient(
-    inputs: &[PathBuf],
-    limits: &Limits,
-) -> Result<(Histogram, Vec<(PathBuf, Error)>)> {
+/// histogram of the files that could be read, and each failure. Fails only when no file
+/// could be read (with the first error) or on a merge that cannot be made.
+pub fn gather_lenient(inputs: &[PathBuf], limits: &Limits) -> Result<Pooled> {
     let files = input_files(inputs)?;
     if files.is_empty() {
         let given: Vec<String> = inputs.iter().map(|p| p.display().to_string()).collect();
@@ -209,31 +338,42 @@ pub fn gather_lenient(
     let _keep = (files.len() > 1).then(crate::features::histogram::KeepTables::new);
     // Merged as they arrive (see `squash`), so memory stays bounded however many files
     // there are; the first failing file in input order is the error reported.
-    let read = |f: &PathBuf| match read_histogram_file(f, limits.max_alloc)? {
-        Some(bytes) => decode(&bytes, f),
-        None => histogram_of_file(f, limits),
-    };
-    let (parts, mut failures) = merge_as_they_arrive(&files, read);
-    failures.sort_by_key(|(i, _)| *i);
-    let failures: Vec<(PathBuf, Error)> = failures
-        .into_iter()
-        .map(|(i, e)| (files[i].clone(), e))
-        .collect();
-    if parts.is_empty() && !failures.is_empty() {
-        let (_, e) = failures.into_iter().next().expect("a failure");
-        return Err(e);
+    let g = merge_as_they_arrive(&files, |f: &PathBuf| {
+        read_input(f, limits, f.display().to_string())
+    });
+    pool(g, |i| files[i].clone())
+}
+
+/// Merges what [`merge_as_they_arrive`] gathered into one histogram; `path` names item
+/// `i` in failures. Fails when nothing could be read (with the first error), past
+/// [`histogram::MAX_TOTAL`] pixels, or on depths that cannot merge.
+pub(crate) fn pool(g: Gathered<InputProfile>, path: impl Fn(usize) -> PathBuf) -> Result<Pooled> {
+    let failures: Vec<(PathBuf, Error)> =
+        g.failures.into_iter().map(|(i, e)| (path(i), e)).collect();
+    if g.parts.is_empty() {
+        if let Some((_, e)) = failures.into_iter().next() {
+            return Err(e);
+        }
+        return Err(Error::Data("no input could be read".into()));
     }
-    let total = parts.iter().fold(0u64, |a, p| a.saturating_add(p.total()));
+    let total = g
+        .parts
+        .iter()
+        .fold(0u64, |a, p| a.saturating_add(p.total()));
     if total > histogram::MAX_TOTAL {
         return Err(Error::Data(format!(
             "the inputs count {total} pixels in all, more than the 2^53 a histogram holds \
              exactly"
         )));
     }
-    let hist = Histogram::merge(&parts).ok_or_else(|| {
+    let histogram = Histogram::merge(&g.parts).ok_or_else(|| {
         Error::Data("the histograms mix 8- and 16-bit tables and cannot be merged".into())
     })?;
-    Ok((hist, failures))
+    Ok(Pooled {
+        histogram,
+        inputs: g.records.into_iter().map(|(_, r)| r).collect(),
+        failures,
+    })
 }
 
 /// The bytes of `path` when it is a histogram file (it starts with "CSHIST"), or `None`
@@ -289,6 +429,7 @@ mod tests {
                 depth: 8,
                 colours,
                 counts,
+                ..Histogram::default()
             };
             let path = dir.path().join(format!("part{f:03}.hist"));
             std::fs::write(&path, encode(&h)).unwrap();
@@ -314,5 +455,94 @@ mod tests {
             .unwrap_err()
             .to_string();
         assert!(e.contains("bad-a.hist"), "{e}");
+    }
+
+    /// A histogram of sRGB and Display P3 entries (profile from
+    /// `tests/reference/make_profile_fixtures.py`) and the grey profile's.
+    fn tagged() -> (Histogram, Arc<SourceProfile>, Arc<SourceProfile>) {
+        let read = |b: &[u8]| match read_profile(b) {
+            ProfileUse::Convert(p) => p,
+            other => panic!("{other:?}"),
+        };
+        let p3 = read(include_bytes!("../../fixtures/profiles/display-p3.icc"));
+        let grey = read(include_bytes!("../../fixtures/profiles/grey-gamma.icc"));
+        let part = |colours: Vec<[u16; 3]>, p: Option<Arc<SourceProfile>>| {
+            let counts = colours.iter().map(|c| 1 + c[0] as u64).collect();
+            Histogram {
+                depth: 8,
+                colours,
+                counts,
+                ..Histogram::default()
+            }
+            .read_through(p)
+        };
+        let h = Histogram::merge(&[
+            part(vec![[1, 2, 3], [200, 0, 0]], Some(p3.clone())),
+            part(vec![[1, 2, 3], [9, 9, 9]], None),
+        ])
+        .unwrap();
+        (h, p3, grey)
+    }
+
+    #[test]
+    fn tagged_histograms_round_trip_and_damage_is_refused() {
+        let (h, p3, grey) = tagged();
+        // sRGB entries first, then the P3 ones; the same colour in two profiles is two
+        // entries.
+        assert_eq!(
+            h.colours,
+            vec![[1, 2, 3], [9, 9, 9], [1, 2, 3], [200, 0, 0]]
+        );
+        assert_eq!(h.entry_profile, vec![0, 0, 1, 1]);
+        let bytes = encode(&h);
+        assert!(bytes.starts_with(b"CSHIST\x00\x02"));
+        let p = Path::new("tagged.hist");
+        assert_eq!(decode(&bytes, p).unwrap(), h);
+        let with_sum = |mut v: Vec<u8>| {
+            let n = v.len() - 8;
+            let s = fnv1a(&v[..n]);
+            v[n..].copy_from_slice(&s.to_le_bytes());
+            v
+        };
+        let check = |v: Vec<u8>, m: &str| {
+            let e = decode(&with_sum(v), p).unwrap_err().to_string();
+            assert!(e.contains("tagged.hist") && e.contains(m), "{e}");
+        };
+        // An entry naming a second profile the file does not hold.
+        let entries = bytes.len() - 8 - 4 * 18;
+        let mut v = bytes.clone();
+        v[entries + 3 * 18] = 2;
+        check(v, "does not hold");
+        // Entries out of order (the last entry moved to profile 0 ahead of the others).
+        let mut v = bytes.clone();
+        v[entries + 3 * 18] = 0;
+        check(v, "increasing");
+        // A second profile no entry uses, or profiles out of byte order.
+        let two = |first: &SourceProfile, second: &SourceProfile| {
+            let mut v = bytes[..16].to_vec();
+            v.extend_from_slice(&2u64.to_le_bytes());
+            for q in [first, second] {
+                v.extend_from_slice(&(q.icc.len() as u64).to_le_bytes());
+                v.extend_from_slice(&q.icc);
+            }
+            v.extend_from_slice(&bytes[24 + 8 + p3.icc.len()..]);
+            v
+        };
+        let (lo, hi) = if grey.icc < p3.icc {
+            (&grey, &p3)
+        } else {
+            (&p3, &grey)
+        };
+        check(two(lo, hi), "used by no entry");
+        check(two(hi, lo), "byte order");
+        // An sRGB-matching or unreadable profile is never written, so it is refused.
+        let mut v = bytes[..24].to_vec();
+        v.extend_from_slice(&(p3.icc.len() as u64).to_le_bytes());
+        v.extend(std::iter::repeat_n(0u8, p3.icc.len()));
+        v.extend_from_slice(&bytes[32 + p3.icc.len()..]);
+        check(v, "cannot be applied");
+        // Cut inside the profile.
+        let e = decode(&bytes[..100], p).unwrap_err().to_string();
+        assert!(e.contains("truncated"), "{e}");
     }
 }

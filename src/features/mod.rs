@@ -4,6 +4,7 @@
 pub mod components;
 pub mod histogram;
 pub mod histogram_file;
+pub mod image;
 pub mod merge;
 pub mod quality;
 pub mod rows;

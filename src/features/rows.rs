@@ -1,34 +1,19 @@
 //! Colour rows: the features of each histogram entry in the clustering space.
 
-use crate::colour::profile::SourceProfile;
 use crate::colour::{self, Space};
 use crate::features::histogram::Histogram;
 use rayon::prelude::*;
 
-/// Features of each histogram entry in `space` (f32 rows) and CIELAB (for ΔE), the
-/// entries read as sRGB.
+/// Features of each histogram entry in `space` (f32 rows) and CIELAB (for ΔE), each
+/// entry read through its profile (see [`Histogram`]), so colours outside sRGB keep their
+/// CIELAB.
 pub fn entry_features(h: &Histogram, space: Space) -> (Vec<f32>, Vec<[f64; 3]>) {
-    entry_features_in(h, space, None)
-}
-
-/// As [`entry_features`], the entries' numbers read through `profile` when given (an
-/// image's embedded ICC profile): colours outside sRGB keep their CIELAB.
-pub fn entry_features_in(
-    h: &Histogram,
-    space: Space,
-    profile: Option<&SourceProfile>,
-) -> (Vec<f32>, Vec<[f64; 3]>) {
-    let conv = profile.map(|p| p.to_linear());
-    let scale = if h.depth == 8 { 255.0 } else { 65535.0 };
-    let per: Vec<([f32; 3], [f64; 3])> = h
-        .colours
-        .par_iter()
+    let reader = h.reader();
+    let per: Vec<([f32; 3], [f64; 3])> = (0..h.len())
+        .into_par_iter()
         .with_min_len(4096)
-        .map(|c| {
-            let lin = match &conv {
-                Some(t) => t.linear(c.map(|v| v as f64 / scale)),
-                None => h.linear(c),
-            };
+        .map(|i| {
+            let lin = reader.linear(i);
             let lab = colour::linear_to_lab(lin);
             let f = match space {
                 Space::Cielab => lab,

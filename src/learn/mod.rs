@@ -27,12 +27,13 @@ pub struct Learnt {
 /// into one exact histogram. Inputs that cannot be read are left out and listed.
 pub fn learn(inputs: &[PathBuf], opts: &ReduceOptions) -> Result<Learnt> {
     opts.kmeans_params().check()?;
-    let (hist, failures) = histogram_file::gather_lenient(inputs, &opts.limits)?;
-    let document = learn_palette(&hist, opts)?;
+    let pooled = histogram_file::gather_lenient(inputs, &opts.limits)?;
+    let mut document = learn_palette(&pooled.histogram, opts)?;
+    document.input_profiles = pooled.inputs;
     let read = histogram_file::input_files(inputs)?;
     Ok(Learnt {
         document,
-        failures,
+        failures: pooled.failures,
         read,
     })
 }

@@ -4,6 +4,7 @@ use super::ReduceOptions;
 use crate::cluster::{Beta, EngineOptions, Mode, Refine};
 use crate::colour::{self, Space};
 use crate::families::{LostArea, Objective};
+use crate::features::image::InputProfile;
 use crate::features::quality::QualityTarget;
 use crate::output::DocumentHeader;
 use crate::output::SourceStamp;
@@ -110,6 +111,10 @@ pub struct PaletteDocument {
     /// palette learnt from histograms).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub colour_profile: Option<ColourProfileRecord>,
+    /// How each input's colours were read, for a palette learnt from many inputs (`learn`,
+    /// `batch --shared`), in input order.
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub input_profiles: Vec<InputProfile>,
     pub colors: Vec<PaletteColour>,
     /// Areas of the image (at least 0.1 % of the opaque pixels or 400 pixels) whose every
     /// pixel is more than ΔE2000 10 from its palette colour: what the palette lost.

@@ -24,13 +24,14 @@ pub use crate::output::{fnv1a, stem_of, SourceStamp};
 pub use crate::raster::MORE_FRAMES_NOTE;
 
 use crate::cluster::{EngineOptions, KMeansParams};
-use crate::colour::profile::{is_rgb_profile, read_profile, ProfileUse};
+use crate::colour::profile::{is_rgb_profile, ProfileUse};
 use crate::colour::{self, Space};
 use crate::error::{Error, Result};
 use crate::families::Objective;
 use crate::features::histogram::{self, IndexedHistogram};
+use crate::features::image::{image_colours, profile_kind, ImageColours};
 use crate::limits::Limits;
-use crate::raster::{self, Decoded, Pixels};
+use crate::raster::{self, Decoded};
 use crate::render::Dither;
 use std::path::Path;
 use std::time::Instant;
@@ -231,13 +232,14 @@ pub fn reduce_image_with(
     fixed: Option<&FixedPalette>,
 ) -> Result<Reduction> {
     let mut ph = crate::trace::Phases::start("reduce");
-    let IndexedHistogram {
-        histogram: hist,
-        pixel_entry,
-    } = match &img.pixels {
-        Pixels::Rgba8(p) => histogram::from_rgba8(p),
-        Pixels::Rgba16(p) => histogram::from_rgba16(p),
-    };
+    // The one reader of an image's colours: entries read through its embedded profile.
+    let ImageColours {
+        indexed: IndexedHistogram {
+            histogram: hist,
+            pixel_entry,
+        },
+        profile: read,
+    } = image_colours(img);
     ph.mark("histogram");
     let alpha = if img.has_alpha {
         let a = img.alpha8();
@@ -245,7 +247,6 @@ pub fn reduce_image_with(
     } else {
         None
     };
-    let read = img.icc_profile.as_deref().map(read_profile);
     let convert = match &read {
         Some(ProfileUse::Convert(p)) => Some(p.as_ref()),
         _ => None,
@@ -256,7 +257,6 @@ pub fn reduce_image_with(
         height: img.height,
         alpha,
         fixed,
-        profile: convert,
     };
     let mut red = pipeline::reduce_indexed(&hist, px, opts)?;
     if img.more_frames {
@@ -268,14 +268,11 @@ pub fn reduce_image_with(
     // sRGB numbers.
     let rgb = img.icc_profile.as_deref().is_some_and(is_rgb_profile);
     let keep_source = opts.output_profile == OutputProfile::Source && opts.keep_metadata;
-    let (input, description, embed) = match &read {
-        None => ("untagged", None, false),
-        Some(ProfileUse::Srgb(d)) => ("icc-srgb", Some(d.clone()), keep_source && rgb),
-        Some(ProfileUse::Convert(p)) => ("icc", Some(p.description.clone()), keep_source && rgb),
-        Some(ProfileUse::Unused(why)) => {
-            red.notes.push(format!("{why}; the image is read as sRGB"));
-            ("icc-unused", None, false)
-        }
+    let (input, description, note) = profile_kind(read.as_ref());
+    red.notes.extend(note);
+    let embed = match &read {
+        Some(ProfileUse::Srgb(_) | ProfileUse::Convert(_)) => keep_source && rgb,
+        _ => false,
     };
     if embed {
         if let Some(p) = convert {
@@ -314,7 +311,6 @@ pub fn learn_palette(hist: &histogram::Histogram, opts: &ReduceOptions) -> Resul
         height: 0,
         alpha: None,
         fixed: None,
-        profile: None,
     };
     Ok(pipeline::reduce_indexed(hist, px, &opts)?.document)
 }

@@ -3,13 +3,12 @@
 
 use super::{FixedPalette, PaletteColour, PaletteDocument, ReduceOptions, Reduction};
 use crate::cluster::{finish, fit_hard, stop_rule, Beta, Dataset, KMeansModel, Mode, ValidParams};
-use crate::colour::profile::SourceProfile;
 use crate::colour::{self, Space};
 use crate::error::{Error, ParamsError, Result};
 use crate::families::{self, Objective};
 use crate::features::histogram::Histogram;
 use crate::features::quality::{search_k, TargetStatistic};
-use crate::features::rows::entry_features_in;
+use crate::features::rows::entry_features;
 use crate::output::DocumentHeader;
 use crate::render::{self, Dither, NO_INDEX};
 use crate::trace::Phases;
@@ -23,8 +22,6 @@ pub(super) struct Pixels<'a> {
     pub height: u32,
     pub alpha: Option<Vec<u8>>,
     pub fixed: Option<&'a FixedPalette>,
-    /// How the entries' numbers are read (`None`: sRGB).
-    pub profile: Option<&'a SourceProfile>,
 }
 
 /// Means in the clustering space and what each entry took from them.
@@ -86,7 +83,7 @@ pub(super) fn reduce_indexed(
             "every pixel is fully transparent; there is nothing to reduce".into(),
         ));
     }
-    let (rows, labs) = entry_features_in(hist, opts.space, px.profile);
+    let (rows, labs) = entry_features(hist, opts.space);
     let en = Entries {
         hist,
         weights: hist.weights(),
@@ -557,6 +554,7 @@ fn render_and_score(
         source: None,
         settings_fingerprint: None,
         colour_profile: None,
+        input_profiles: Vec::new(),
         p95_delta_e2000: None,
         p99_delta_e2000: None,
     };

@@ -22,10 +22,10 @@ use crate::cluster::EngineOptions;
 use crate::colour::inks::{self, Ink};
 use crate::colour::{self, adapt, delta_e2000};
 use crate::error::{Error, Result};
-use crate::features::histogram;
+use crate::features::image::{image_colours, ImageColours, InputProfile};
 use crate::limits::Limits;
 use crate::output::DocumentHeader;
-use crate::raster::{self, Decoded, Pixels};
+use crate::raster::{self, Decoded};
 use rayon::prelude::*;
 use regions::FIXED;
 use select::{CostTable, Method};
@@ -201,6 +201,9 @@ pub struct SeparationDocument {
     /// How the number of inks was chosen, when a ΔE2000 target chose it.
     #[serde(default, skip_serializing_if = "Vec::is_empty")]
     pub notes: Vec<String>,
+    /// How the artwork's colours were read (its embedded colour profile).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub input_profile: Option<InputProfile>,
 }
 
 fn default_alpha_threshold() -> f64 {
@@ -234,10 +237,11 @@ pub fn separate_image(
 ) -> Result<Separation> {
     let (k, forced) = resolve_inks(library, opts, library_path)?;
     let mut ph = crate::trace::Phases::start("separate");
-    let ih = match &img.pixels {
-        Pixels::Rgba8(p) => histogram::from_rgba8(p),
-        Pixels::Rgba16(p) => histogram::from_rgba16(p),
-    };
+    // Read through the image's embedded profile, as `reduce` reads it.
+    let ImageColours {
+        indexed: ih,
+        profile: read,
+    } = image_colours(img);
     let hist = &ih.histogram;
     if hist.is_empty() {
         return Err(Error::Data(
@@ -260,11 +264,16 @@ pub fn separate_image(
             ),
         });
     }
-    let labs: Vec<[f64; 3]> = hist
-        .colours
+    let reader = hist.reader();
+    let lin: Vec<[f64; 3]> = (0..hist.len())
+        .into_par_iter()
+        .with_min_len(4096)
+        .map(|i| reader.linear(i))
+        .collect();
+    let labs: Vec<[f64; 3]> = lin
         .par_iter()
         .with_min_len(4096)
-        .map(|c| adapt::linear_to_lab_d50(hist.linear(c)))
+        .map(|&l| adapt::linear_to_lab_d50(l))
         .collect();
     let weights = hist.weights();
     let substrate_lab = opts.substrate.map(adapt::srgb8_to_lab_d50);
@@ -272,7 +281,6 @@ pub fn separate_image(
     let mut table = CostTable::new(&labs, &weights, library, substrate_lab);
     let tints = opts.films.as_ref().is_some_and(|f| f.tints);
     let amounts = tints.then(|| {
-        let lin: Vec<[f64; 3]> = hist.colours.iter().map(|c| hist.linear(c)).collect();
         let paper = opts.substrate.unwrap_or([255, 255, 255]);
         tint::tinted_costs(&mut table, &lin, &labs, library, paper)
     });
@@ -281,6 +289,9 @@ pub fn separate_image(
     if img.more_frames {
         notes.push(crate::raster::MORE_FRAMES_NOTE.to_string());
     }
+    // Named by the stem here; `separate_file` puts the file name in.
+    let input_profile = InputProfile::of_image(stem.to_string(), read.as_ref());
+    notes.extend(input_profile.note.clone());
     let selection = if opts.all {
         select::Selection {
             chosen: (0..library.len()).collect(),
@@ -498,6 +509,7 @@ pub fn separate_image(
         alpha_threshold: opts.alpha_threshold,
         films: None,
         notes,
+        input_profile: Some(input_profile),
     };
     let tints = amounts.map(|a| tint::pixel_amounts(&labels, &ih.pixel_entry, &a, table.m, &order));
     Ok(Separation {
@@ -561,6 +573,12 @@ pub fn separate_file(
         |img, set| {
             let mut sep = separate_image(&img, &library, opts, library_path, &stem)?;
             sep.document.header.input = input.file_name().map(|n| n.to_string_lossy().into_owned());
+            if let (Some(p), Some(name)) = (
+                sep.document.input_profile.as_mut(),
+                sep.document.header.input.as_ref(),
+            ) {
+                p.file = name.clone();
+            }
             let made = match &opts.films {
                 Some(f) => Some(film_output::make(&mut sep, &img, f, &stem)?),
                 None => None,

@@ -17,13 +17,13 @@ mod recommend;
 use crate::cluster::{Dataset, EngineOptions};
 use crate::colour::Space;
 use crate::error::{Error, ParamsError, Result};
-use crate::features::histogram::{self, IndexedHistogram};
+use crate::features::image::{image_colours, ImageColours, InputProfile};
 use crate::features::rows::entry_features;
 use crate::features::scene::{scene_sample, SceneOptions};
 use crate::limits::Limits;
 use crate::output::stem_of;
 use crate::output::DocumentHeader;
-use crate::raster::{self, Pixels};
+use crate::raster;
 pub use chart::sweep_svg;
 pub use measures::{
     covariance_floor, sweep_rows, FAMILY_DELTA_E2000, MIN_SHARE, MIN_STABILITY, STABILITY_RUNS,
@@ -177,6 +177,9 @@ pub struct SweepDocument {
     /// The recommended K.
     #[serde(default)]
     pub recommended: Option<Recommendation>,
+    /// How an image's colours were read (absent for a multi-band scene).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub input_profile: Option<InputProfile>,
 }
 
 /// What [`sweep_file`] did.
@@ -298,6 +301,7 @@ fn sweep_document(
             ignored.join(", ")
         ));
     }
+    let mut input_profile = None;
     let (rows, features, floor) = if is_scene(input, opts)? {
         let scene_opts = opts.scene.clone().unwrap_or_default();
         let s = scene_sample(
@@ -316,11 +320,13 @@ fn sweep_document(
         )
     } else {
         let img = raster::decode(input, &opts.limits)?;
-        let IndexedHistogram { histogram: h, .. } = match &img.pixels {
-            Pixels::Rgba8(p) => histogram::from_rgba8(p),
-            Pixels::Rgba16(p) => histogram::from_rgba16(p),
-        };
+        // Read through the image's embedded profile, as `reduce` reads it.
+        let ImageColours { indexed, profile } = image_colours(&img);
         drop(img);
+        let h = indexed.histogram;
+        let record = InputProfile::of_image(file_name(input), profile.as_ref());
+        notes.extend(record.note.clone());
+        input_profile = Some(record);
         if h.is_empty() {
             return Err(Error::InputData {
                 path: input.into(),
@@ -364,8 +370,17 @@ fn sweep_document(
         recommended: recommend(&rows, &suggested),
         suggested,
         rows,
+        input_profile,
     };
     Ok(document)
+}
+
+/// The file name of `path` (the whole path when it has none).
+fn file_name(path: &Path) -> String {
+    path.file_name()
+        .unwrap_or(path.as_os_str())
+        .to_string_lossy()
+        .into_owned()
 }
 
 fn opt(v: Option<f64>) -> String {

@@ -162,6 +162,7 @@ fn chart_labels_do_not_overlap_each_other_or_the_curves() {
             recommended: recommend(&rows, &suggested),
             suggested,
             rows,
+            input_profile: None,
         };
         let c = render_svg(&doc, Space::Cielab);
         let t = &c.layout.texts;

@@ -9,9 +9,17 @@ Writes into fixtures/profiles/:
 - p3.png, p3.tif, p3.webp (lossless) and p3.jpg (quality 95, no chroma subsampling): 12 flat
   8 x 8 patches tagged with display-p3.icc; wide.png tagged with wide-gamut.icc. The PNG
   and JPEG also carry EXIF (orientation 6, a make) and 300 dpi.
+- grey-gamma.icc, grey.png: an ICC v2 grey (GRAY colour space, grayTRC) display profile with
+  a gamma of 563/256 (2.2 as the u8Fixed8 a curv tag stores), and a greyscale PNG of 8
+  flat 8 x 8 grey patches tagged with it.
 - lab_reference.csv: per patch, the RGB numbers and the CIELAB (D65 white, CIE 1931 2°)
   that colour-science 0.4.7 computes for them from the same primaries: decoding curve,
-  RGB -> XYZ (Bradford to D65 for the D50-white space), XYZ -> Lab.
+  RGB -> XYZ (Bradford to D65 for the D50-white space), XYZ -> Lab. A grey patch is the
+  achromatic colour of luminance Y = decode(v), the white point scaled by Y (ICC.1 F.2:
+  the grey TRC gives the connection space's Y; the media white is D65 once adapted), so
+  a* = b* = 0. Column srgb_hex: the 8-bit sRGB colour colour-science gives for that CIELAB
+  (XYZ -> sRGB, each channel clipped to 0..1, rounded), what a palette holding the patch
+  should hold.
 
 Regenerate: python3 tests/reference/make_profile_fixtures.py
 """
@@ -61,6 +69,17 @@ def icc_profile(name, colorants_d50, trc):
             (b"rXYZ", xyz_tag(colorants_d50[:, 0])), (b"gXYZ", xyz_tag(colorants_d50[:, 1])),
             (b"bXYZ", xyz_tag(colorants_d50[:, 2])),
             (b"rTRC", trc), (b"gTRC", trc), (b"bTRC", trc)]
+    return icc_bytes(tags, b"RGB ")
+
+
+def icc_grey_profile(name, trc):
+    # ICC.1 8.3 (monochrome input) and 8.4 (display) profiles: grayTRC, signature 'kTRC'.
+    tags = [(b"desc", desc_tag(name)), (b"cprt", text_tag("No copyright, test data")),
+            (b"wtpt", xyz_tag(D50_ICC)), (b"kTRC", trc)]
+    return icc_bytes(tags, b"GRAY")
+
+
+def icc_bytes(tags, colour_space):
     offset = 128 + 4 + 12 * len(tags)
     table, data = b"", b""
     for sig, body in tags:
@@ -71,7 +90,7 @@ def icc_profile(name, colorants_d50, trc):
     while len(data) % 4:
         data += b"\0"
     size = offset + len(data)
-    header = (struct.pack(">I", size) + b"\0" * 4 + struct.pack(">I", 0x02100000) + b"mntrRGB XYZ "
+    header = (struct.pack(">I", size) + b"\0" * 4 + struct.pack(">I", 0x02100000) + b"mntr" + colour_space + b"XYZ "
               + struct.pack(">6H", 2026, 12, 3, 0, 0, 0) + b"acsp" + b"\0" * 4 + b"\0" * 4
               + b"\0" * 4 + b"\0" * 4 + b"\0" * 8 + b"\0" * 4
               + b"".join(s15f16(v) for v in D50_ICC) + b"\0" * 4 + b"\0" * 16 + b"\0" * 28)
@@ -98,6 +117,24 @@ def patch_image():
         y, x = divmod(i, 4)
         img[y * 8:(y + 1) * 8, x * 8:(x + 1) * 8] = c
     return Image.fromarray(img, "RGB")
+
+
+GREYS = [0, 20, 50, 90, 128, 170, 220, 255]
+
+
+def grey_image():
+    img = np.zeros((16, 32), np.uint8)
+    for i, v in enumerate(GREYS):
+        y, x = divmod(i, 4)
+        img[y * 8:(y + 1) * 8, x * 8:(x + 1) * 8] = v
+    return Image.fromarray(img, "L")
+
+
+def srgb_hex(lab):
+    d65 = colour.CCS_ILLUMINANTS["CIE 1931 2 Degree Standard Observer"]["D65"]
+    rgb = colour.XYZ_to_sRGB(colour.Lab_to_XYZ(lab, d65), d65)
+    c = np.round(np.clip(rgb, 0.0, 1.0) * 255).astype(int)
+    return "#%02x%02x%02x" % tuple(c)
 
 
 def reference_lab(space, rgb8, decode):
@@ -128,13 +165,25 @@ def main():
     img.save(OUT / "p3.tif", icc_profile=p3_icc)
     img.save(OUT / "p3.webp", lossless=True, icc_profile=p3_icc)
     img.save(OUT / "wide.png", icc_profile=wide_icc)
+    grey_gamma = 563 / 256
+    grey_icc = icc_grey_profile("chromasift test grey gamma 2.2", curv_gamma(grey_gamma))
+    (OUT / "grey-gamma.icc").write_bytes(grey_icc)
+    grey_image().save(OUT / "grey.png", icc_profile=grey_icc)
+    back = Image.open(OUT / "grey.png")
+    assert back.mode == "L" and back.info["icc_profile"] == grey_icc
 
-    rows = ["space,patch,r,g,b,L,a,b_"]
+    rows = ["space,patch,r,g,b,L,a,b_,srgb_hex"]
     for name, space, decode in [("display-p3", p3, colour.models.eotf_sRGB),
                                 ("wide-gamut", wide, lambda v: np.power(v, 563 / 256))]:
         for i, c in enumerate(PATCHES):
             lab = reference_lab(space, c, decode)
-            rows.append(f"{name},{i},{c[0]},{c[1]},{c[2]},{lab[0]!r},{lab[1]!r},{lab[2]!r}")
+            rows.append(f"{name},{i},{c[0]},{c[1]},{c[2]},{lab[0]!r},{lab[1]!r},{lab[2]!r},"
+                        f"{srgb_hex(lab)}")
+    d65 = colour.CCS_ILLUMINANTS["CIE 1931 2 Degree Standard Observer"]["D65"]
+    for i, v in enumerate(GREYS):
+        y = np.power(v / 255.0, grey_gamma)
+        lab = colour.XYZ_to_Lab(y * colour.xy_to_XYZ(d65), d65)
+        rows.append(f"grey-gamma,{i},{v},{v},{v},{lab[0]!r},{lab[1]!r},{lab[2]!r},{srgb_hex(lab)}")
     header = ("# CIELAB (D65, CIE 1931 2 degree) of each patch, by colour-science "
               f"{colour.__version__} from the published primaries (see the script)\n"
               "# regenerate: python3 tests/reference/make_profile_fixtures.py\n")
