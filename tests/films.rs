@@ -15,6 +15,8 @@
 //!   on a 1-bit film that is the share of ink pixels.
 //! - 1 inch = 25.4 mm exactly (international inch).
 
+mod common;
+
 use chromasift::film::{
     self, auto_angles, make_films, pdf_bytes, png_bytes, squared_distance_to_background,
     tiff_bytes, write_films, AlphaRule, CleanupAction, DotShape, FilmFormats, FilmOptions,
@@ -162,15 +164,7 @@ fn pdf_has_one_true_size_page_per_film() {
     assert_eq!(pages.len(), 4);
     for ((_, &id), film) in pages.iter().zip(&films.pages) {
         let page = doc.get_dictionary(id).unwrap();
-        let boxed = |key: &[u8]| -> Vec<f64> {
-            page.get(key)
-                .unwrap()
-                .as_array()
-                .unwrap()
-                .iter()
-                .map(|v| v.as_float().unwrap() as f64)
-                .collect()
-        };
+        let boxed = |key: &[u8]| common::pdf_box(&doc, id, key);
         // ISO 32000-1: 72 points per inch.
         let media = boxed(b"MediaBox");
         let w_pt = film.bitmap.width() as f64 / 300.0 * 72.0;

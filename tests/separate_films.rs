@@ -89,16 +89,7 @@ fn pdf_boxes(path: &Path, dpi: f64) -> Vec<([f64; 4], [f64; 2])> {
     doc.get_pages()
         .values()
         .map(|&id| {
-            let page = doc.get_dictionary(id).unwrap();
-            let get = |key: &[u8]| -> Vec<f64> {
-                page.get(key)
-                    .unwrap()
-                    .as_array()
-                    .unwrap()
-                    .iter()
-                    .map(|v| v.as_float().unwrap() as f64)
-                    .collect()
-            };
+            let get = |key: &[u8]| common::pdf_box(&doc, id, key);
             let media = get(b"MediaBox");
             let trim = get(b"TrimBox");
             // ISO 32000-1 §8.3.2.3: 72 points per inch; y points up.

@@ -192,3 +192,17 @@ pub fn png_chunk(kind: &[u8; 4], data: &[u8]) -> Vec<u8> {
     v.extend_from_slice(&crc32(&v[4..]).to_be_bytes());
     v
 }
+
+/// A page box (`MediaBox`, `TrimBox`, …) of a PDF page as numbers, in points
+/// (ISO 32000-1 §14.11.2: llx, lly, urx, ury).
+pub fn pdf_box(doc: &lopdf::Document, page: lopdf::ObjectId, key: &[u8]) -> Vec<f64> {
+    doc.get_dictionary(page)
+        .unwrap()
+        .get(key)
+        .unwrap()
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|v| v.as_float().unwrap() as f64)
+        .collect()
+}
