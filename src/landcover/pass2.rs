@@ -168,7 +168,8 @@ fn bigtiff_above() -> u64 {
 }
 
 /// Writes one raster into `out` and flushes it; a failed flush is reported before a
-/// failed write.
+/// failed write, and a failure of the writer (in the file or one of its scratch files)
+/// names the output file.
 fn write_band(
     out: &mut PendingOutput,
     write: impl FnOnce(&mut BufWriter<&mut File>) -> Result<()>,
@@ -178,7 +179,13 @@ fn write_band(
         result = write(wr);
         Ok(())
     })?;
-    result
+    let target = out.target().to_path_buf();
+    let writer = std::path::Path::new(geotiff::OUTPUT_NAME);
+    result.map_err(|e| match e {
+        Error::Io { path, source } if path == writer => Error::io(target, source),
+        Error::Output { path, message } if path == writer => Error::output(target, message),
+        other => other,
+    })
 }
 
 /// The outcome of the two writers. When one side fails the other only sees the channel

@@ -53,7 +53,7 @@ pub use tiles::TILE;
 pub use tm::TransverseMercator;
 pub use types::{Block, RasterInfo, SampleKind};
 pub use write::{write_f32_band, write_f32_band_with, write_u8_band, write_u8_band_with};
-pub use write_common::{bigtiff_needed, WriteOptions, BIGTIFF_ABOVE};
+pub use write_common::{bigtiff_needed, WriteOptions, BIGTIFF_ABOVE, OUTPUT_NAME};
 
 #[cfg(test)]
 mod tests;
