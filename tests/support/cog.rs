@@ -81,10 +81,8 @@ pub fn images(path: &Path) -> Vec<Image> {
         let u16tag = |d: &mut Decoder<std::fs::File>, t: Tag, default: u16| {
             d.find_tag_unsigned::<u16>(t).unwrap().unwrap_or(default)
         };
-        let tile = match d.find_tag_unsigned::<u32>(Tag::TileWidth).unwrap() {
-            Some(tw) => Some((tw, d.get_tag_unsigned::<u32>(Tag::TileLength).unwrap())),
-            None => None,
-        };
+        let tile_w = d.find_tag_unsigned::<u32>(Tag::TileWidth).unwrap();
+        let tile = tile_w.map(|tw| (tw, d.get_tag_unsigned::<u32>(Tag::TileLength).unwrap()));
         let (off_tag, count_tag) = if tile.is_some() {
             (Tag::TileOffsets, Tag::TileByteCounts)
         } else {
