@@ -126,10 +126,12 @@ pub(super) fn tile_bound(sample_bytes: usize) -> u64 {
 fn predict<T: TileSample>(line: &mut [u8]) {
     if T::BYTES > 1 {
         let n = line.len() / T::BYTES;
-        let planes: Vec<u8> = (0..T::BYTES)
-            .flat_map(|b| (0..n).map(move |i| (i, b)))
-            .map(|(i, b)| line[i * T::BYTES + b])
-            .collect();
+        let mut planes = vec![0u8; line.len()];
+        for (i, sample) in line.chunks_exact(T::BYTES).enumerate() {
+            for (b, &byte) in sample.iter().enumerate() {
+                planes[b * n + i] = byte;
+            }
+        }
         line.copy_from_slice(&planes);
     }
     for x in (1..line.len()).rev() {
@@ -142,15 +144,17 @@ fn predict<T: TileSample>(line: &mut [u8]) {
 pub(super) fn reduce_rows<T: TileSample>(a: &[T], b: Option<&[T]>, nodata: Option<T>) -> Vec<T> {
     let width = a.len();
     let mut out = Vec::with_capacity(width.div_ceil(2));
-    let mut block: Vec<T> = Vec::with_capacity(4);
+    let mut block = [T::PAD; 4];
     for x in (0..width).step_by(2) {
-        block.clear();
         let x1 = (x + 2).min(width);
-        block.extend_from_slice(&a[x..x1]);
-        if let Some(b) = b {
-            block.extend_from_slice(&b[x..x1]);
+        let mut n = 0;
+        for row in std::iter::once(a).chain(b) {
+            for &v in &row[x..x1] {
+                block[n] = v;
+                n += 1;
+            }
         }
-        out.push(T::reduce(&block, nodata));
+        out.push(T::reduce(&block[..n], nodata));
     }
     out
 }
