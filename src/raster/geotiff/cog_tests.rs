@@ -318,3 +318,36 @@ fn size_bound_covers_every_level_and_picks_bigtiff_past_the_limit() {
     assert!(cog_size_bound(10_000, 10_000, 4) > tiles * 256 * 256 * 4);
     assert_eq!(cog_levels(10_000, 10_000).len(), 7);
 }
+
+#[test]
+fn thin_and_odd_sizes_round_trip_on_every_level() {
+    let dir = tempfile::tempdir().unwrap();
+    for (w, h) in [
+        (1u32, 700u32),
+        (700, 1),
+        (257, 257),
+        (513, 2),
+        (256, 256),
+        (300, 1000),
+    ] {
+        let v = class_pattern(w, h)
+            .iter()
+            .map(|&c| c.max((w % 7) as u8))
+            .collect::<Vec<u8>>();
+        let path = dir.path().join(format!("{w}x{h}.tif"));
+        write_classes(&path, w, h, &v, false, colours());
+        let ims = images(&path);
+        assert_eq!(ims.len(), cog_levels(w, h).len(), "{w} x {h}");
+        check_cog_layout(&ims, w, h, TILE, false);
+        assert_eq!(
+            ims[0].pixels.iter().map(|&x| x as u8).collect::<Vec<_>>(),
+            v,
+            "{w} x {h}"
+        );
+        for i in 1..ims.len() {
+            let up = &ims[i - 1];
+            let want = reduce(&up.pixels, up.width as usize, up.height as usize, true, 0.0);
+            assert_eq!(ims[i].pixels, want, "{w} x {h} level {i}");
+        }
+    }
+}
