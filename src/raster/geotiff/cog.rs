@@ -311,7 +311,13 @@ fn assemble<T: TileSample, W: Write>(
         };
         let e = entries::<T>(band, i, l.width, l.height, &offsets, &counts);
         let bytes = ifd::ifd_bytes(&e, ifd_at[i], next, big);
-        debug_assert_eq!(bytes.len() as u64, ifd_at[i + 1] - ifd_at[i]);
+        if bytes.len() as u64 != ifd_at[i + 1] - ifd_at[i] {
+            // Would shift every offset after it: never write such a file.
+            return Err(Error::output(
+                OUTPUT_NAME,
+                "a directory changed size while being laid out",
+            ));
+        }
         out.write_all(&bytes).map_err(io)?;
     }
     for l in levels.iter_mut().rev() {
