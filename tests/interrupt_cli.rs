@@ -366,3 +366,76 @@ fn reduce_stopped_while_writing_leaves_no_temporary_files() {
         }
     }
 }
+
+/// `landcover` stopped by a signal during pass 2, while its rasters' tiles wait in scratch
+/// files beside the outputs: the scratch files and the outputs' temporary files are all
+/// removed, and either the whole set landed or nothing did.
+#[test]
+fn landcover_stopped_while_tiling_leaves_no_scratch_files() {
+    use tiff::encoder::{colortype, TiffEncoder};
+    let root = tempfile::tempdir().unwrap();
+    // A 4-band 16-bit scene of seeded noise over gradients, larger than a tile.
+    let (w, h) = (1500u32, 1200u32);
+    let mut rng = Noise(2026);
+    let data: Vec<u16> = (0..w as u64 * h as u64 * 4)
+        .map(|i| ((i / 4 % w as u64) * 20 + (i % 4) * 3000 + rng.next() % 900) as u16)
+        .collect();
+    let scene = root.path().join("scene.tif");
+    TiffEncoder::new(std::fs::File::create(&scene).unwrap())
+        .unwrap()
+        .write_image::<colortype::RGBA16>(w, h, &data)
+        .unwrap();
+    let mut stopped = 0;
+    for (trial, (signal, delay_ms)) in [("-INT", 0u64), ("-TERM", 40), ("-INT", 120)]
+        .into_iter()
+        .enumerate()
+    {
+        let out = root.path().join(format!("lc{trial}"));
+        let child = spawn(&[
+            "landcover",
+            scene.to_str().unwrap(),
+            "-k",
+            "4",
+            "-o",
+            out.to_str().unwrap(),
+        ]);
+        let t = Instant::now();
+        // Pass 2 has begun once the scratch files exist.
+        while temp_names(&out).len() < 2 && t.elapsed() < Duration::from_secs(60) {
+            std::thread::sleep(Duration::from_micros(500));
+        }
+        std::thread::sleep(Duration::from_millis(delay_ms));
+        let _ = Command::new("kill")
+            .args([signal, &child.id().to_string()])
+            .status();
+        let o = child.wait_with_output().unwrap();
+        let err = String::from_utf8_lossy(&o.stderr);
+        assert!(
+            matches!(o.status.code(), Some(130) | Some(0)),
+            "trial {trial}: {:?} {err}",
+            o.status.code()
+        );
+        stopped += (o.status.code() == Some(130)) as usize;
+        assert!(
+            temp_names(&out).is_empty(),
+            "trial {trial} ({signal}): temporary files left: {:?}",
+            temp_names(&out)
+        );
+        if out.is_dir() {
+            let mut files = common::files_in(&out);
+            files.sort();
+            assert_eq!(
+                files,
+                [
+                    "scene.classes.csv",
+                    "scene.classes.json",
+                    "scene.classes.png",
+                    "scene.classes.tif",
+                    "scene.uncertainty.tif"
+                ],
+                "trial {trial}: a partial set"
+            );
+        }
+    }
+    assert!(stopped > 0, "at least one signal landed during the run");
+}

@@ -1,6 +1,8 @@
 //! `chromasift landcover` on an invented river-valley scene (recovery, georeferencing,
 //! areas, uncertainty), Iris through the generic path against scikit-learn, bad input.
 
+#[path = "support/cog.rs"]
+mod cog;
 mod common;
 #[path = "support/valley.rs"]
 mod valley;
@@ -181,6 +183,117 @@ fn same_outputs_on_one_and_two_threads() {
         );
     }
     assert_eq!(outs[0], outs[1]);
+}
+
+/// A scene larger than a tile: both rasters are 256-pixel tiles with overviews in the
+/// Cloud-Optimized layout (read back with the `tiff` crate, tests/support/cog.rs), the full
+/// resolution holds the classes the document counted, each overview is the 2 × 2 reduction
+/// of the level above, and one and two threads write the same bytes.
+#[test]
+fn large_scene_rasters_are_cloud_optimized_with_overviews() {
+    let dir = tempfile::tempdir().unwrap();
+    let scene = dir.path().join("valley.tif");
+    let (w, h) = (600u32, 520u32);
+    let (_, data) = river_valley(w, h);
+    write_scene_u16(&scene, w, h, &data, 10.0, &GEOKEYS, Some("0"));
+    let mut outs = Vec::new();
+    for threads in ["1", "2"] {
+        let out = dir.path().join(format!("t{threads}"));
+        let o = run(
+            &[
+                "landcover",
+                scene.to_str().unwrap(),
+                "-k",
+                "5",
+                "-o",
+                out.to_str().unwrap(),
+            ],
+            &[("RAYON_NUM_THREADS", threads)],
+        );
+        assert!(o.status.success(), "{}", stderr(&o));
+        outs.push(out);
+    }
+    for name in ["valley.classes.tif", "valley.uncertainty.tif"] {
+        assert_eq!(
+            std::fs::read(outs[0].join(name)).unwrap(),
+            std::fs::read(outs[1].join(name)).unwrap(),
+            "{name}: same bytes on one and two threads"
+        );
+    }
+    let out = &outs[0];
+    assert_eq!(
+        common::files_in(out).len(),
+        5,
+        "no scratch file is left beside the outputs"
+    );
+    let doc: Value =
+        serde_json::from_slice(&std::fs::read(out.join("valley.classes.json")).unwrap()).unwrap();
+    let classes = cog::images(&out.join("valley.classes.tif"));
+    let unc = cog::images(&out.join("valley.uncertainty.tif"));
+    // 600 × 520 → 300 × 260 → 150 × 130.
+    assert_eq!(classes.len(), 3);
+    cog::check_cog_layout(&classes, w, h, 256, false);
+    cog::check_cog_layout(&unc, w, h, 256, false);
+    // The project's reader and the tiff crate agree on the full resolution.
+    let (_, _, mine) = read_u8_tiff(&out.join("valley.classes.tif"));
+    assert!(mine
+        .iter()
+        .zip(&classes[0].pixels)
+        .all(|(&a, &b)| a as f64 == b));
+    for cl in doc["classes"].as_array().unwrap() {
+        let k = cl["class"].as_u64().unwrap() as u8;
+        let n = mine.iter().filter(|&&v| v == k).count() as u64;
+        assert_eq!(n, cl["pixels"].as_u64().unwrap(), "class {k}");
+        let hex = cl["hex"].as_str().unwrap().trim_start_matches('#');
+        let rgb: Vec<u16> = (0..3)
+            .map(|i| u16::from_str_radix(&hex[2 * i..2 * i + 2], 16).unwrap() * 257)
+            .collect();
+        for im in &classes {
+            let map = im
+                .colour_map
+                .as_ref()
+                .expect("a colour table on every level");
+            let i = k as usize;
+            assert_eq!(vec![map[i], map[256 + i], map[512 + i]], rgb);
+        }
+    }
+    for (images, is_classes, nodata) in [(&classes, true, 0.0), (&unc, false, -1.0)] {
+        for (i, im) in images.iter().enumerate() {
+            // TIFF 6.0: Deflate 8; predictor 2 (horizontal) or 3 (floating point, Adobe TN3).
+            let predictor = if is_classes { 2 } else { 3 };
+            assert_eq!((im.compression, im.predictor), (8, predictor), "level {i}");
+            assert_eq!(
+                im.nodata.as_deref(),
+                Some(if is_classes { "0" } else { "-1" })
+            );
+            if i > 0 {
+                let up = &images[i - 1];
+                let want = cog::reduce(
+                    &up.pixels,
+                    up.width as usize,
+                    up.height as usize,
+                    is_classes,
+                    nodata,
+                );
+                assert!(
+                    im.pixels
+                        .iter()
+                        .zip(&want)
+                        .all(|(a, b)| (a - b).abs() <= 1e-6 * b.abs().max(1.0)),
+                    "level {i} is the reduction of level {}",
+                    i - 1
+                );
+            }
+        }
+    }
+    // Uncertainty nodata exactly where the classes are nodata, on every level.
+    for (c, u) in classes.iter().zip(&unc) {
+        assert!(c
+            .pixels
+            .iter()
+            .zip(&u.pixels)
+            .all(|(&c, &u)| (c == 0.0) == (u == -1.0)));
+    }
 }
 
 /// Iris (Fisher 1936) as a 150 × 1 four-band float raster through the generic path,

@@ -4,6 +4,8 @@
 //! and geographic CRSs against pyproj's geodesic areas, scale/offset and band descriptions,
 //! undefined indices.
 
+#[path = "support/cog.rs"]
+mod cog;
 mod common;
 
 use common::{run, stderr};
@@ -267,7 +269,16 @@ fn output_rasters_are_compressed_with_a_colour_table_and_bigtiff_when_large() {
         let (b, compression, photometric, predictor, _) =
             tags(&out.join("scale_offset.uncertainty.tif"));
         assert_eq!((b, compression, photometric), (big, 8, 1));
-        assert!(matches!(predictor, None | Some(1)));
+        assert_eq!(predictor, Some(3), "floating-point predictor (Adobe TN3)");
+        // Both tiled (TIFF 6.0 §15: TileWidth/TileLength 256), one tile and no overview at
+        // 64 × 48, the directory right after the header (8 bytes, or 16 in BigTIFF).
+        for name in ["scale_offset.classes.tif", "scale_offset.uncertainty.tif"] {
+            let path = out.join(name);
+            assert_eq!(cog::is_bigtiff(&path), big);
+            let images = cog::images(&path);
+            assert_eq!(images.len(), 1);
+            cog::check_cog_layout(&images, 64, 48, 256, big);
+        }
         // Both read back through the project's reader with the input's valid pixel count.
         let mut r = chromasift::geotiff::GeoRaster::open(
             &out.join("scale_offset.classes.tif"),

@@ -3,6 +3,8 @@
 //! class raster whose specks and expected result are known (patches checked with a flood
 //! fill written here, independent of the library's labelling).
 
+#[path = "support/cog.rs"]
+mod cog;
 mod common;
 #[path = "support/valley.rs"]
 mod valley;
@@ -141,6 +143,10 @@ fn labels_name_and_merge_the_classes_of_the_valley() {
     let a = chromasift::geotiff::read_geotags(&classes_tif).unwrap();
     let b = chromasift::geotiff::read_geotags(&map.join("valley.labelled.tif")).unwrap();
     assert_eq!(a, b);
+    // Tiled like the class raster: one 256-pixel tile at 160 × 120, Deflate, predictor 2.
+    let tiled = cog::images(&map.join("valley.labelled.tif"));
+    cog::check_cog_layout(&tiled, w, h, 256, false);
+    assert_eq!((tiled[0].compression, tiled[0].predictor), (8, 2));
     assert!(map.join("valley.labelled.png").exists() && map.join("valley.labels.csv").exists());
     // A class the file does not name is refused, naming both files.
     let short = d.join("short.csv");

@@ -319,17 +319,23 @@ pub fn label_file(classes: &Path, out_dir: &Path, opts: &LabelOptions) -> Result
             let mut colours = vec![[0u8; 3]];
             colours.extend(set.colours());
             let wopts = geotiff::WriteOptions {
-                big: geotiff::bigtiff_needed(w, h, 1, geotiff::BIGTIFF_ABOVE),
+                big: geotiff::cog_size_bound(w, h, 1) > geotiff::BIGTIFF_ABOVE,
                 deflate: true,
                 colour_map: Some(colours),
             };
-            geotiff::write_u8_band_with(
+            let band = geotiff::CogBand {
+                width: w,
+                height: h,
+                geo: &raster.geo,
+                nodata: Some("0"),
+                opts: &wopts,
+            };
+            // The labels are in memory already, and so are the tiles until the file is
+            // assembled (compressed, they take less than the labels).
+            geotiff::write_u8_cog(
                 &mut cursor,
-                w,
-                h,
-                &raster.geo,
-                Some("0"),
-                &wopts,
+                &band,
+                &mut geotiff::memory_scratch,
                 &mut |_y0, rows| {
                     let n = rows as usize * raster.width;
                     let part = labelled[next..next + n].to_vec();

@@ -1,6 +1,8 @@
 //! Pass 2: every pixel is assigned strip by strip while the class raster is written; the
 //! uncertainty rows go over a bounded channel to a second thread that writes the
-//! uncertainty raster, so the scene is read and assigned once.
+//! uncertainty raster, so the scene is read and assigned once. Both rasters are written as
+//! Cloud-Optimized GeoTIFFs (`raster::geotiff::write_u8_cog`), their tiles waiting in
+//! scratch files next to the outputs until each file is assembled.
 
 use super::fit::FittedScene;
 use super::preview::PreviewGrid;
@@ -8,7 +10,7 @@ use super::stats::ClassStats;
 use super::UNCERTAINTY_NODATA;
 use crate::error::{Error, Result};
 use crate::features::scene::RowReader;
-use crate::output::{OutputSet, PendingOutput};
+use crate::output::{OutputSet, PendingOutput, ScratchFile};
 use crate::raster::geotiff;
 use std::fs::File;
 use std::io::BufWriter;
@@ -54,34 +56,51 @@ pub(super) fn classify_scene(
         stats.add_rows(fitted, &raw, &assigned, &area_rows, w as usize);
         Ok((assigned.classes, assigned.uncertainty))
     };
-    // Both rasters DEFLATE-compressed; BigTIFF decided from the size before writing; the
-    // class raster carries the preview's colours (class 0, nodata, black).
+    // Both rasters tiled, DEFLATE-compressed with a predictor and overviews, laid out as
+    // Cloud-Optimized GeoTIFF; BigTIFF decided from the largest size the files could take,
+    // before writing; the class raster carries the preview's colours (class 0, nodata, black).
     let above = bigtiff_above();
     let mut colours = vec![[0u8; 3]];
     colours.extend(super::class_colours(fitted.k));
     let class_opts = geotiff::WriteOptions {
-        big: geotiff::bigtiff_needed(w, h, 1, above),
+        big: geotiff::cog_size_bound(w, h, 1) > above,
         deflate: true,
         colour_map: Some(colours),
     };
     let unc_opts = geotiff::WriteOptions {
-        big: geotiff::bigtiff_needed(w, h, 4, above),
+        big: geotiff::cog_size_bound(w, h, 4) > above,
         deflate: true,
         colour_map: None,
     };
+    // Each level of each raster keeps its tiles in a scratch file next to the outputs
+    // until the file is assembled; the files go on every path (see `OutputSet::scratch`).
+    let levels = geotiff::cog_levels(w, h).len();
+    let scratch = |name: &str| -> Result<Vec<ScratchFile>> {
+        (0..levels).map(|_| set.scratch(name)).collect()
+    };
+    let unc_scratch = scratch(uncertainty_name)?;
+    let mut cls_scratch = scratch(class_name)?;
     let (tx, rx) = sync_channel::<Vec<f32>>(CHANNEL_STRIPS);
     let unc_out = set.begin(uncertainty_name)?;
     let mut cls_out = set.begin(class_name)?;
     let unc_out = std::thread::scope(|scope| -> Result<PendingOutput> {
-        let writer = scope.spawn(move || write_uncertainty(unc_out, rx, (w, h), geo, &unc_opts));
+        let writer = scope
+            .spawn(move || write_uncertainty(unc_out, unc_scratch, rx, (w, h), geo, &unc_opts));
         let mut send = |y0: u32, rows: u32| -> Result<Vec<u8>> {
             let (classes, unc) = strip(y0, rows)?;
             tx.send(unc)
                 .map_err(|_| Error::Data("the uncertainty writer stopped early".into()))?;
             Ok(classes)
         };
+        let band = geotiff::CogBand {
+            width: w,
+            height: h,
+            geo,
+            nodata: Some("0"),
+            opts: &class_opts,
+        };
         let classes_done = write_band(&mut cls_out, |wr| {
-            geotiff::write_u8_band_with(wr, w, h, geo, Some("0"), &class_opts, &mut send)
+            geotiff::write_u8_cog(wr, &band, &mut from(&mut cls_scratch), &mut send)
         });
         drop(tx);
         let unc_done = writer.join().expect("uncertainty writer thread");
@@ -95,6 +114,7 @@ pub(super) fn classify_scene(
 /// The second thread: writes the uncertainty raster from the rows received.
 fn write_uncertainty(
     mut out: PendingOutput,
+    mut scratch: Vec<ScratchFile>,
     rx: Receiver<Vec<f32>>,
     (w, h): (u32, u32),
     geo: &geotiff::GeoTags,
@@ -112,10 +132,29 @@ fn write_uncertainty(
         Ok(buf.drain(..need).collect())
     };
     let nodata = format!("{UNCERTAINTY_NODATA}");
+    let band = geotiff::CogBand {
+        width: w,
+        height: h,
+        geo,
+        nodata: Some(&nodata),
+        opts,
+    };
     write_band(&mut out, |wr| {
-        geotiff::write_f32_band_with(wr, w, h, geo, Some(&nodata), opts, &mut pull)
+        geotiff::write_f32_cog(wr, &band, &mut from(&mut scratch), &mut pull)
     })?;
     Ok(out)
+}
+
+/// A scratch source handing out the files made for the levels, one per call.
+fn from(files: &mut Vec<ScratchFile>) -> impl FnMut() -> Result<Box<dyn geotiff::Scratch>> + '_ {
+    move || {
+        files
+            .pop()
+            .map(|f| Box::new(f) as Box<dyn geotiff::Scratch>)
+            .ok_or_else(|| {
+                Error::Data("a raster asked for more scratch files than it has levels".into())
+            })
+    }
 }
 
 /// The size above which an output raster is written as BigTIFF: [`geotiff::BIGTIFF_ABOVE`],
@@ -129,7 +168,8 @@ fn bigtiff_above() -> u64 {
 }
 
 /// Writes one raster into `out` and flushes it; a failed flush is reported before a
-/// failed write.
+/// failed write, and a failure of the writer (in the file or one of its scratch files)
+/// names the output file.
 fn write_band(
     out: &mut PendingOutput,
     write: impl FnOnce(&mut BufWriter<&mut File>) -> Result<()>,
@@ -139,7 +179,13 @@ fn write_band(
         result = write(wr);
         Ok(())
     })?;
-    result
+    let target = out.target().to_path_buf();
+    let writer = std::path::Path::new(geotiff::OUTPUT_NAME);
+    result.map_err(|e| match e {
+        Error::Io { path, source } if path == writer => Error::io(target, source),
+        Error::Output { path, message } if path == writer => Error::output(target, message),
+        other => other,
+    })
 }
 
 /// The outcome of the two writers. When one side fails the other only sees the channel

@@ -276,6 +276,45 @@ pub fn write_file_sparing(path: &Path, bytes: &[u8], inputs: &[&Path]) -> Result
     Ok(set.commit()?.remove(0))
 }
 
+/// A temporary file next to the outputs that is never committed: it holds intermediate
+/// data (the tiles of a raster being assembled, say) and is removed when dropped, on
+/// every path, or by [`abandon_and_exit`] on an interruption.
+#[derive(Debug)]
+pub struct ScratchFile {
+    tmp: NamedTempFile,
+    _live: Live,
+}
+
+impl OutputSet {
+    /// A new [`ScratchFile`] in the output folder, for the output `name` (named in errors).
+    pub fn scratch(&self, name: &str) -> Result<ScratchFile> {
+        let target = self.path_of(name);
+        let (tmp, live) = live_temp(&self.dir).map_err(|e| Error::io(&target, e))?;
+        Ok(ScratchFile { tmp, _live: live })
+    }
+}
+
+impl std::io::Read for ScratchFile {
+    fn read(&mut self, buf: &mut [u8]) -> std::io::Result<usize> {
+        self.tmp.as_file_mut().read(buf)
+    }
+}
+
+impl Write for ScratchFile {
+    fn write(&mut self, buf: &[u8]) -> std::io::Result<usize> {
+        self.tmp.as_file_mut().write(buf)
+    }
+    fn flush(&mut self) -> std::io::Result<()> {
+        self.tmp.as_file_mut().flush()
+    }
+}
+
+impl std::io::Seek for ScratchFile {
+    fn seek(&mut self, pos: std::io::SeekFrom) -> std::io::Result<u64> {
+        self.tmp.as_file_mut().seek(pos)
+    }
+}
+
 /// One output being written (see [`OutputSet::begin`]).
 #[derive(Debug)]
 pub struct PendingOutput {

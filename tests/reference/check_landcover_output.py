@@ -1,8 +1,11 @@
 """Reads chromasift's land-cover outputs with tifffile (an independent TIFF reader) and
 checks that they line up with the input on the map.
 
-    cargo build --release
+    cargo build --release  # CHROMASIFT_BIN=path picks another binary
     python3 tests/reference/check_landcover_output.py
+
+The uncertainty raster uses the floating-point predictor (3), which tifffile decodes through
+the `imagecodecs` package (`pip install imagecodecs`).
 
 It runs `chromasift landcover` on fixtures/rasters/utm_u16_4band_strips.tif and checks:
 - the GeoTIFF tags (ModelPixelScale 33550, ModelTiepoint 33922, ModelTransformation 34264,
@@ -23,7 +26,7 @@ import numpy as np
 import tifffile
 
 ROOT = os.path.dirname(os.path.dirname(os.path.dirname(os.path.abspath(__file__))))
-BIN = os.path.join(ROOT, "target", "release", "chromasift")
+BIN = os.environ.get("CHROMASIFT_BIN", os.path.join(ROOT, "target", "release", "chromasift"))
 SCENE = os.path.join(ROOT, "fixtures", "rasters", "utm_u16_4band_strips.tif")
 GEO_TAGS = [33550, 33922, 34264, 34735, 34736, 34737]
 

@@ -8,8 +8,9 @@ use tiff::encoder::TiffKind;
 use tiff::tags::Tag;
 use tiff::TiffError;
 
-/// Name used in error messages about the output of the writers (which see only a stream).
-pub(super) const OUTPUT_NAME: &str = "GeoTIFF output";
+/// Name used in error messages about the output of the writers (which see only a stream);
+/// a caller that knows the file may put its path in place of this name.
+pub const OUTPUT_NAME: &str = "GeoTIFF output";
 
 /// Refuses a strip whose row source handed back `got` values for `rows` rows of `width`
 /// starting at `y0`.
