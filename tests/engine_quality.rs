@@ -335,6 +335,9 @@ fn reduce_sse_against_scikit_learn_on_photographs() {
     );
     assert!(one <= 0.99, "reduce / one scikit-learn run: {one}");
     assert!(ten <= 1.005, "reduce / scikit-learn n_init=10: {ten}");
-    assert!(floor <= 1.0075, "reduce / best of 300 scikit-learn starts: {floor}");
+    assert!(
+        floor <= 1.0075,
+        "reduce / best of 300 scikit-learn starts: {floor}"
+    );
     assert!(textbook > one, "textbook {textbook} vs default {one}");
 }

@@ -23,6 +23,8 @@ struct Patch {
     lab: [f64; 3],
     /// The 8-bit sRGB colour colour-science gives for `lab` (clipped to 0..1, rounded).
     srgb: [u8; 3],
+    /// `srgb` as 8-bit numbers of the patch's own space (colour-science; `None` for grey).
+    written: Option<[u8; 3]>,
 }
 
 fn patches(space: &str) -> Vec<Patch> {
@@ -34,6 +36,7 @@ fn patches(space: &str) -> Vec<Patch> {
             rgb: [at("r"), at("g"), at("b")].map(|i| r[i].parse().unwrap()),
             lab: [at("L"), at("a"), at("b_")].map(|i| r[i].parse().unwrap()),
             srgb: chromasift::colour::parse_hex(&r[at("srgb_hex")]).unwrap(),
+            written: chromasift::colour::parse_hex(&r[at("written_hex")]).ok(),
         })
         .filter(|p| p.space == space)
         .collect()
@@ -392,4 +395,43 @@ fn separate_and_sweep_read_artwork_through_its_profile() {
     let doc = json(&sw.join("sweep.json"));
     assert_eq!(doc["input_profile"]["input"], "icc");
     assert_eq!(doc["input_profile"]["description"], P3);
+}
+
+/// A reduced image written in its source profile holds, for each patch, the palette
+/// colour encoded in that profile as colour-science encodes it
+/// (`lab_reference.csv`'s `written_hex`): within one level a channel. Both fixtures: the
+/// Display P3 profile (parametric sRGB curve) and the wide-gamut one, whose curve is a
+/// single gamma value (a one-entry `curv`), which once came out white.
+#[test]
+fn reduced_images_are_written_in_their_source_profile_as_colour_science_encodes() {
+    let dir = tempfile::tempdir().unwrap();
+    for (file, space, stem) in [
+        ("profiles/p3.png", "display-p3", "p3"),
+        ("profiles/wide.png", "wide-gamut", "wide"),
+    ] {
+        let out = dir.path().join(space);
+        ok(&[
+            "reduce",
+            fixture(file).to_str().unwrap(),
+            "-k",
+            "12",
+            "-o",
+            out.to_str().unwrap(),
+        ]);
+        let doc = json(&out.join(format!("{stem}.palette.json")));
+        assert_eq!(doc["colour_profile"]["output"], "source", "{file}");
+        let img = image::open(out.join(format!("{stem}.reduced.png")))
+            .unwrap()
+            .to_rgb8();
+        for (i, p) in patches(space).iter().enumerate() {
+            let want = p.written.unwrap();
+            // Patch i is the 8 × 8 block at row i / 4, column i % 4 (the script's layout).
+            let (x, y) = ((i % 4) as u32 * 8 + 4, (i / 4) as u32 * 8 + 4);
+            let got = img.get_pixel(x, y).0;
+            assert!(
+                (0..3).all(|k| (got[k] as i32 - want[k] as i32).abs() <= 1),
+                "{file} patch {i}: written {got:?}, colour-science {want:?}"
+            );
+        }
+    }
 }

@@ -198,7 +198,7 @@ impl SourceProfile {
         let inv: Vec<Evaluator> = self
             .curves
             .iter()
-            .map(|c| c.inverse().ok()?.make_linear_evaluator().ok())
+            .map(|c| inverse_curve(c)?.make_linear_evaluator().ok())
             .collect::<Option<_>>()?;
         Some(
             colours
@@ -212,6 +212,21 @@ impl SourceProfile {
                 })
                 .collect(),
         )
+    }
+}
+
+/// The inverse of a tone curve. A `curv` tag with no entry is the identity and one with a
+/// single entry is a pure gamma in u8Fixed8Number (ICC.1:2010 §10.6); moxcms inverts
+/// every table by resampling it, which turns those two into nonsense, so they are
+/// inverted here (type-0 parametric curve Y = X^(1/γ)). Other curves go to moxcms.
+fn inverse_curve(c: &ToneReprCurve) -> Option<ToneReprCurve> {
+    match c {
+        ToneReprCurve::Lut(t) if t.is_empty() => Some(ToneReprCurve::Lut(Vec::new())),
+        ToneReprCurve::Lut(t) if t.len() == 1 => {
+            let gamma = t[0] as f32 / 256.0;
+            (gamma > 0.0).then(|| ToneReprCurve::Parametric(vec![1.0 / gamma]))
+        }
+        other => other.inverse().ok(),
     }
 }
 

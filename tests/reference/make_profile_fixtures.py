@@ -19,7 +19,10 @@ Writes into fixtures/profiles/:
   the grey TRC gives the connection space's Y; the media white is D65 once adapted), so
   a* = b* = 0. Column srgb_hex: the 8-bit sRGB colour colour-science gives for that CIELAB
   (XYZ -> sRGB, each channel clipped to 0..1, rounded), what a palette holding the patch
-  should hold.
+  should hold. Column written_hex: that sRGB colour as 8-bit numbers of the patch's own
+  space (sRGB decoding, XYZ, Bradford to the space's white, the space's RGB clipped to 0..1,
+  its encoding curve, rounded), what a reduced image written in the source profile holds
+  for the patch; '-' for the grey patches.
 
 Regenerate: python3 tests/reference/make_profile_fixtures.py
 """
@@ -137,6 +140,15 @@ def srgb_hex(lab):
     return "#%02x%02x%02x" % tuple(c)
 
 
+def written_hex(srgb, space, encode):
+    d65 = colour.CCS_ILLUMINANTS["CIE 1931 2 Degree Standard Observer"]["D65"]
+    xyz = colour.sRGB_to_XYZ(np.asarray(srgb, float) / 255.0, d65)
+    lin = colour.XYZ_to_RGB(xyz, space, illuminant=d65, chromatic_adaptation_transform="Bradford",
+                            apply_cctf_encoding=False)
+    c = np.round(encode(np.clip(lin, 0.0, 1.0)) * 255).astype(int)
+    return "#%02x%02x%02x" % tuple(c)
+
+
 def reference_lab(space, rgb8, decode):
     rgb = np.asarray(rgb8, float) / 255.0
     lin = decode(rgb)
@@ -172,18 +184,21 @@ def main():
     back = Image.open(OUT / "grey.png")
     assert back.mode == "L" and back.info["icc_profile"] == grey_icc
 
-    rows = ["space,patch,r,g,b,L,a,b_,srgb_hex"]
-    for name, space, decode in [("display-p3", p3, colour.models.eotf_sRGB),
-                                ("wide-gamut", wide, lambda v: np.power(v, 563 / 256))]:
+    rows = ["space,patch,r,g,b,L,a,b_,srgb_hex,written_hex"]
+    for name, space, decode, encode in [
+            ("display-p3", p3, colour.models.eotf_sRGB, colour.models.eotf_inverse_sRGB),
+            ("wide-gamut", wide, lambda v: np.power(v, 563 / 256), lambda v: np.power(v, 256 / 563))]:
         for i, c in enumerate(PATCHES):
             lab = reference_lab(space, c, decode)
+            hex_ = srgb_hex(lab)
+            srgb = [int(hex_[k:k + 2], 16) for k in (1, 3, 5)]
             rows.append(f"{name},{i},{c[0]},{c[1]},{c[2]},{lab[0]!r},{lab[1]!r},{lab[2]!r},"
-                        f"{srgb_hex(lab)}")
+                        f"{hex_},{written_hex(srgb, space, encode)}")
     d65 = colour.CCS_ILLUMINANTS["CIE 1931 2 Degree Standard Observer"]["D65"]
     for i, v in enumerate(GREYS):
         y = np.power(v / 255.0, grey_gamma)
         lab = colour.XYZ_to_Lab(y * colour.xy_to_XYZ(d65), d65)
-        rows.append(f"grey-gamma,{i},{v},{v},{v},{lab[0]!r},{lab[1]!r},{lab[2]!r},{srgb_hex(lab)}")
+        rows.append(f"grey-gamma,{i},{v},{v},{v},{lab[0]!r},{lab[1]!r},{lab[2]!r},{srgb_hex(lab)},-")
     header = ("# CIELAB (D65, CIE 1931 2 degree) of each patch, by colour-science "
               f"{colour.__version__} from the published primaries (see the script)\n"
               "# regenerate: python3 tests/reference/make_profile_fixtures.py\n")
