@@ -363,3 +363,66 @@ fn learnt_palette_keeps_families_too() {
     }
     assert!(kept_all > plain_all, "{kept_all} vs {plain_all}");
 }
+
+/// Two touching blocks, red and blue, mapped onto black and white (`apply`): both are far
+/// from what they became (CIELAB of sRGB red, blue, black and white by IEC 61966-2-1 and
+/// CIE 15: red is nearer white, blue nearer black), and they are two lost areas, each
+/// named by its own colour and the palette colour it took, not one area of their mean.
+#[test]
+fn touching_lost_areas_of_different_colours_are_reported_apart() {
+    let dir = tempfile::tempdir().unwrap();
+    let (w, h) = (60u32, 40u32);
+    let mut rgb = Vec::new();
+    for y in 0..h {
+        for x in 0..w {
+            let c = match (x, y) {
+                (10..30, 10..30) => [255u8, 0, 0],
+                (30..50, 10..30) => [0, 0, 255],
+                _ => [255, 255, 255],
+            };
+            rgb.extend_from_slice(&c);
+        }
+    }
+    let img = dir.path().join("blocks.png");
+    common::write_rgb(&img, w, h, &rgb);
+    let pal = dir.path().join("bw.txt");
+    std::fs::write(&pal, "#000000\n#ffffff\n").unwrap();
+    let out = dir.path().join("out");
+    let o = run(
+        &[
+            "apply",
+            img.to_str().unwrap(),
+            "--palette",
+            pal.to_str().unwrap(),
+            "-o",
+            out.to_str().unwrap(),
+        ],
+        &[],
+    );
+    assert!(o.status.success(), "{}", stderr(&o));
+    let doc: Value =
+        serde_json::from_slice(&std::fs::read(out.join("blocks.palette.json")).unwrap()).unwrap();
+    let mut areas: Vec<(String, String, u64, u64)> = doc["lost_areas"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|a| {
+            (
+                a["source"].as_str().unwrap().to_string(),
+                a["rendered"].as_str().unwrap().to_string(),
+                a["pixels"].as_u64().unwrap(),
+                a["x"].as_u64().unwrap(),
+            )
+        })
+        .collect();
+    areas.sort();
+    assert_eq!(
+        areas,
+        vec![
+            ("#0000ff".to_string(), "#000000".to_string(), 400, 30),
+            ("#ff0000".to_string(), "#ffffff".to_string(), 400, 10),
+        ],
+        "{}",
+        doc["lost_areas"]
+    );
+}

@@ -18,7 +18,8 @@ pub struct LostArea {
     pub y: u32,
     pub width: u32,
     pub height: u32,
-    /// Mean source colour of the area (`#rrggbb`) and its CIELAB (D65).
+    /// Source colour of the area (`#rrggbb`): the mean of its most common shade, see
+    /// [`lost_areas`]; and its CIELAB (D65).
     pub source: String,
     pub source_lab: [f64; 3],
     /// The palette colour most of the area took.
@@ -31,6 +32,12 @@ pub struct LostArea {
 /// [`REPORT_DELTA_E`] from its palette colour, largest first (ties: raster order).
 /// `entry_error` is each histogram entry's CIEDE2000 to its palette colour;
 /// `pixel_index` is each pixel's index into `palette` as written (after any dithering).
+///
+/// An area is 8-connected and its pixels' colours are all nearest (CIELAB) to one palette
+/// colour, so touching areas of different colours that went to different palette colours
+/// are reported apart. Its source colour is the mean of its most common shade (its pixels
+/// binned into CIELAB cubes [`SHADE`] wide), a colour the area holds, not the mean of all
+/// its pixels, which for a mixed area can be a colour it does not hold.
 pub fn lost_areas(
     width: u32,
     height: u32,
@@ -50,14 +57,29 @@ pub fn lost_areas(
         .filter(|&&e| e != crate::features::histogram::TRANSPARENT)
         .count();
     let min_pixels = min_family_pixels(opaque as f64) as usize;
+    let palette_lab: Vec<[f64; 3]> = palette.iter().map(|&c| colour::srgb8_to_lab(c)).collect();
+    // Each lost entry's nearest palette colour (CIELAB), the area label of its pixels.
+    let nearest: Vec<u16> = labs
+        .par_iter()
+        .zip(entry_error.par_iter())
+        .with_min_len(4096)
+        .map(|(lab, &err)| {
+            if err <= REPORT_DELTA_E {
+                return components::FIXED;
+            }
+            (0..palette_lab.len())
+                .min_by(|&a, &b| {
+                    dist2(lab, &palette_lab[a]).total_cmp(&dist2(lab, &palette_lab[b]))
+                })
+                .map_or(0, |j| j as u16)
+        })
+        .collect();
     let marks: Vec<u16> = pixel_entry
         .par_iter()
         .with_min_len(1 << 16)
         .map(|&e| {
-            if e != crate::features::histogram::TRANSPARENT
-                && entry_error[e as usize] > REPORT_DELTA_E
-            {
-                0
+            if e != crate::features::histogram::TRANSPARENT {
+                nearest[e as usize]
             } else {
                 components::FIXED
             }
@@ -70,7 +92,9 @@ pub fn lost_areas(
         }
         let pixels = components::region_pixels(&marks, w, h, first);
         let (mut x0, mut y0, mut x1, mut y1) = (usize::MAX, usize::MAX, 0, 0);
-        let (mut lab, mut err) = ([0.0f64; 3], 0.0f64);
+        let mut err = 0.0f64;
+        // Shade cube → (pixels, summed CIELAB, first pixel in fill order).
+        let mut shades: HashMap<[i32; 3], (usize, [f64; 3], usize)> = HashMap::new();
         let mut took: HashMap<u16, usize> = HashMap::new();
         for &p in &pixels {
             let (x, y) = (p % w, p / w);
@@ -79,8 +103,12 @@ pub fn lost_areas(
             x1 = x1.max(x);
             y1 = y1.max(y);
             let e = pixel_entry[p] as usize;
+            let key = labs[e].map(|v| (v / SHADE).floor() as i32);
+            let order = shades.len();
+            let shade = shades.entry(key).or_insert((0, [0.0; 3], order));
+            shade.0 += 1;
             for d in 0..3 {
-                lab[d] += labs[e][d];
+                shade.1[d] += labs[e][d];
             }
             err += entry_error[e];
             if let Some(&s) = pixel_index
@@ -91,7 +119,12 @@ pub fn lost_areas(
             }
         }
         let n = pixels.len() as f64;
-        let lab = [lab[0] / n, lab[1] / n, lab[2] / n];
+        let (count, sum, _) = shades
+            .values()
+            .max_by(|a, b| a.0.cmp(&b.0).then(b.2.cmp(&a.2)))
+            .copied()
+            .unwrap_or((1, [0.0; 3], 0));
+        let lab = sum.map(|v| v / count as f64);
         let slot = took
             .iter()
             .max_by(|a, b| a.1.cmp(b.1).then(b.0.cmp(a.0)))
@@ -113,6 +146,14 @@ pub fn lost_areas(
     }
     out.sort_by_key(|a| std::cmp::Reverse(a.pixels));
     out
+}
+
+/// Width of the CIELAB cubes an area's pixels are binned into to find its most common
+/// shade (ΔE*ab units): half the report limit, so a shade holds colours that look alike.
+const SHADE: f64 = REPORT_DELTA_E / 2.0;
+
+fn dist2(a: &[f64; 3], b: &[f64; 3]) -> f64 {
+    (0..3).map(|d| (a[d] - b[d]).powi(2)).sum()
 }
 
 /// One warning line for lost areas (empty when there are none).
