@@ -22,7 +22,8 @@ writes with GDAL (larger than a tile, so the rasters get overviews). Checks with
   IFD_OFFSET, BLOCK_OFFSET_x_y): the first directory right after the header (8, or 16 for
   BigTIFF), the overviews' directories after it in order, every directory before the first
   tile, tiles of the smallest overview first and of the full resolution last, row-major
-  within a level. GDAL's own validator (osgeo_utils) is used as well when it is installed.
+  within a level. GDAL's own validator (osgeo_utils) is used as well when it is installed,
+  and rio-cogeo's cog_validate (pip install rio-cogeo) on the large scene's rasters.
 Prints one line per check and exits non-zero on any failure.
 """
 import json
@@ -30,6 +31,11 @@ import os
 import subprocess
 import sys
 import tempfile
+
+try:  # rio-cogeo (PyPI): a port of GDAL's validate_cloud_optimized_geotiff, optional
+    from rio_cogeo.cogeo import cog_validate
+except ImportError:
+    cog_validate = None
 
 import numpy as np
 import rasterio
@@ -196,6 +202,11 @@ def main():
                           f"reduction of the level above, tiled, nodata {o.nodata}{extra}")
                     above = level
             layout(path, check, f"large {stem}")
+            if cog_validate is not None:
+                valid, errors, warnings = cog_validate(path, quiet=True)
+                check(valid and not errors,
+                      f"large {stem}: rio-cogeo's cog_validate (GDAL's COG rules): "
+                      f"valid {valid}, errors {errors}, warnings {warnings}")
     sys.exit(1 if failures else 0)
 
 
