@@ -52,6 +52,12 @@ pub struct FileReport {
     pub error: Option<String>,
     pub colors: Option<usize>,
     pub mean_delta_e2000: Option<f64>,
+    /// 95th and 99th percentiles of the image's per-pixel CIEDE2000 (as in its palette
+    /// document); absent in reports written before they were recorded.
+    #[serde(default)]
+    pub p95_delta_e2000: Option<f64>,
+    #[serde(default)]
+    pub p99_delta_e2000: Option<f64>,
     pub seconds: f64,
 }
 
@@ -73,7 +79,15 @@ pub struct BatchReport {
     /// Tool version, input, seed and every engine setting.
     #[serde(flatten)]
     pub header: DocumentHeader,
+    /// The one palette every image was mapped onto: `shared.palette.json` (`--shared`) or
+    /// the `--palette` file as named; null when each image has its own.
     pub shared_palette: Option<String>,
+    /// That palette's file, SHA-256 and size.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub given_palette: Option<reduce::GivenPalette>,
+    /// Settings that were given but a given palette makes meaningless (`--palette`).
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub not_applied: Vec<String>,
     pub files: Vec<FileReport>,
     pub skipped_not_images: Vec<String>,
     pub totals: Totals,
@@ -391,9 +405,17 @@ fn shared_palette(pooled: Pooled, out: &Path, opts: &ReduceOptions) -> Result<Fi
     doc.input_profiles = pooled.inputs;
     let mut set = OutputSet::prepare(out, &[])?;
     let json = serde_json::to_string_pretty(&doc).expect("document serialises");
-    set.write_bytes(SHARED_PALETTE, format!("{json}\n").as_bytes())?;
+    let bytes = format!("{json}\n");
+    set.write_bytes(SHARED_PALETTE, bytes.as_bytes())?;
     set.commit()?;
-    FixedPalette::from_document(&doc).map_err(Error::Data)
+    let mut fixed = FixedPalette::from_document(&doc).map_err(Error::Data)?;
+    fixed.origin = Some(reduce::GivenPalette::of_bytes(
+        SHARED_PALETTE,
+        bytes.as_bytes(),
+        fixed.colours.len(),
+    ));
+    fixed.learnt_in_run = true;
+    Ok(fixed)
 }
 
 /// Runs a batch over `input_dir` into `out` (see the `batch` command).
@@ -484,18 +506,20 @@ pub fn run_batch(
             .map(|(i, p)| {
                 let t = Instant::now();
                 let input = rel(p);
-                let row = |status, error, colors, de| FileReport {
+                let row = |status, error, doc: Option<&PaletteDocument>| FileReport {
                     input: input.clone(),
                     status,
                     error,
-                    colors,
-                    mean_delta_e2000: de,
+                    colors: doc.map(|d| d.k),
+                    mean_delta_e2000: doc.map(|d| d.mean_delta_e2000),
+                    p95_delta_e2000: doc.and_then(|d| d.p95_delta_e2000),
+                    p99_delta_e2000: doc.and_then(|d| d.p99_delta_e2000),
                     seconds: t.elapsed().as_secs_f64(),
                 };
                 let r = if let Some(e) = &early_failures[i] {
-                    row(Status::Failed, Some(e.clone()), None, None)
+                    row(Status::Failed, Some(e.clone()), None)
                 } else if stop.load(Ordering::Relaxed) {
-                    row(Status::Interrupted, None, None, None)
+                    row(Status::Interrupted, None, None)
                 } else {
                     let sub = p
                         .parent()
@@ -513,12 +537,7 @@ pub fn run_batch(
                                 std::fs::read(out_dir.join(format!("{s}.palette.json"))).ok()
                             })
                             .and_then(|b| serde_json::from_slice(&b).ok());
-                        row(
-                            Status::Skipped,
-                            None,
-                            doc.as_ref().map(|d| d.k),
-                            doc.as_ref().map(|d| d.mean_delta_e2000),
-                        )
+                        row(Status::Skipped, None, doc.as_ref())
                     } else {
                         let reduced = match stem {
                             Some(s) => reduce_one(p, s, &out_dir, &inputs, opts, fixed.as_ref()),
@@ -528,15 +547,8 @@ pub fn run_batch(
                             )),
                         };
                         match reduced {
-                            Ok(rep) => row(
-                                Status::Ok,
-                                None,
-                                Some(rep.document.k),
-                                Some(rep.document.mean_delta_e2000),
-                            ),
-                            Err(e) => {
-                                row(Status::Failed, Some(one_line(&e.to_string())), None, None)
-                            }
+                            Ok(rep) => row(Status::Ok, None, Some(&rep.document)),
+                            Err(e) => row(Status::Failed, Some(one_line(&e.to_string())), None),
                         }
                     }
                 };
@@ -554,12 +566,24 @@ pub fn run_batch(
         error: Some(one_line(&e.to_string())),
         colors: None,
         mean_delta_e2000: None,
+        p95_delta_e2000: None,
+        p99_delta_e2000: None,
         seconds: 0.0,
     }));
     let count = |s: Status| rows.iter().filter(|r| r.status == s).count();
+    // With `--palette` the engine only maps: record what applied, and what did not.
+    let given = opts.palette.as_ref();
     let report = BatchReport {
-        header: DocumentHeader::new(None, opts.reduce.engine),
-        shared_palette: opts.shared.then(|| SHARED_PALETTE.to_string()),
+        header: DocumentHeader::new(None, reduce::engine_used(&opts.reduce, given.is_some())),
+        shared_palette: match (&opts.palette_file, opts.shared) {
+            (Some(f), _) => Some(f.to_string_lossy().into_owned()),
+            (None, true) => Some(SHARED_PALETTE.to_string()),
+            (None, false) => None,
+        },
+        given_palette: fixed.as_ref().and_then(|f| f.origin.clone()),
+        not_applied: given
+            .map(|p| reduce::not_applied(&opts.reduce, p))
+            .unwrap_or_default(),
         skipped_not_images: others.iter().map(|p| rel(p)).collect(),
         totals: Totals {
             files: rows.len(),
@@ -603,17 +627,20 @@ fn csv_field(s: &str) -> String {
 /// `batch-report.csv`: a header and one row per file, all of one shape (the totals are
 /// in `batch-report.json`, under `totals`).
 pub fn report_csv(r: &BatchReport) -> String {
-    let mut s = String::from("input,status,error,colors,mean_delta_e2000,seconds\n");
+    let mut s = String::from(
+        "input,status,error,colors,mean_delta_e2000,p95_delta_e2000,p99_delta_e2000,seconds\n",
+    );
+    let de = |d: Option<f64>| d.map(|d| format!("{d:.4}")).unwrap_or_default();
     for f in &r.files {
         s.push_str(&format!(
-            "{},{},{},{},{},{:.3}\n",
+            "{},{},{},{},{},{},{},{:.3}\n",
             csv_field(&f.input),
             serde_json::to_value(f.status).unwrap().as_str().unwrap(),
             csv_field(f.error.as_deref().unwrap_or("")),
             f.colors.map(|c| c.to_string()).unwrap_or_default(),
-            f.mean_delta_e2000
-                .map(|d| format!("{d:.4}"))
-                .unwrap_or_default(),
+            de(f.mean_delta_e2000),
+            de(f.p95_delta_e2000),
+            de(f.p99_delta_e2000),
             f.seconds
         ));
     }

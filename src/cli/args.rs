@@ -289,7 +289,7 @@ pub struct ApplyArgs {
 impl ApplyArgs {
     /// The library options these flags ask for (the palette's colours come from its file).
     pub fn options(&self) -> ReduceOptions {
-        let mut o = ReduceOptions::new(1);
+        let mut o = ReduceOptions::new(crate::reduce::DEFAULT_K);
         o.engine.beta = self.beta.beta;
         o.dither = self.image.dither;
         o.uncertainty_raw = self.image.uncertainty_raw;

@@ -9,7 +9,7 @@ use crate::colour::{
 use crate::error::{Error, Result};
 use crate::features::histogram_file;
 use crate::limits::Limits;
-use crate::reduce::{learn_palette, FixedPalette, PaletteDocument, ReduceOptions};
+use crate::reduce::{learn_palette, FixedPalette, GivenPalette, PaletteDocument, ReduceOptions};
 use std::path::{Path, PathBuf};
 
 /// What [`learn`] made.
@@ -55,7 +55,9 @@ const PALETTE_TABLE: TableRules = TableRules {
 /// `reduce` or `batch --shared`; every colour's `lab` must agree with its `hex`), a plain
 /// list of hex colours (one per line; comments start with `# ` or `//`), or a colour table
 /// (CSV or a JSON array, read as ink libraries are) with `hex` and/or CIELAB D65 `L,a,b`
-/// columns; a row giving both must agree within [`TABLE_HEX_LAB_TOLERANCE`].
+/// columns; a row giving both must agree within [`TABLE_HEX_LAB_TOLERANCE`]. Names (a
+/// table's `name` column, a name after a list's hex code, a document's `name` fields) are
+/// kept, and the palette records the file (as named) and its SHA-256.
 pub fn read_palette(path: &Path) -> Result<FixedPalette> {
     let limits = Limits::default();
     let text = limits.read_text(path, "palette").map_err(|e| match e {
@@ -66,10 +68,17 @@ pub fn read_palette(path: &Path) -> Result<FixedPalette> {
         e => e,
     })?;
     let body = text.strip_prefix('\u{feff}').unwrap_or(&text);
-    if !body.trim_start().starts_with('{') {
-        return palette_from_table(body, path, &limits);
-    }
-    read_document(body, path, &limits)
+    let mut palette = if body.trim_start().starts_with('{') {
+        read_document(body, path, &limits)?
+    } else {
+        palette_from_table(body, path, &limits)?
+    };
+    palette.origin = Some(GivenPalette::of_bytes(
+        &path.to_string_lossy(),
+        text.as_bytes(),
+        palette.colours.len(),
+    ));
+    Ok(palette)
 }
 
 /// The colours of a palette table, each as its 8-bit sRGB colour.
@@ -105,6 +114,11 @@ fn palette_from_table(text: &str, path: &Path, limits: &Limits) -> Result<FixedP
     };
     let fmt = |l: [f64; 3]| format!("{:.2},{:.2},{:.2}", l[0], l[1], l[2]);
     let mut colours: Vec<[u8; 3]> = Vec::with_capacity(rows.len());
+    let names: Vec<Option<String>> = if rows.iter().any(|r| r.name.is_some()) {
+        rows.iter().map(|r| r.name.clone()).collect()
+    } else {
+        Vec::new()
+    };
     let mut first_line: std::collections::HashMap<[u8; 3], usize> = Default::default();
     for r in &rows {
         let c = match (r.hex, r.lab) {
@@ -159,6 +173,9 @@ fn palette_from_table(text: &str, path: &Path, limits: &Limits) -> Result<FixedP
         colours,
         beta: None,
         space: Space::Cielab,
+        names,
+        origin: None,
+        learnt_in_run: false,
     })
 }
 

@@ -17,6 +17,10 @@ pub struct PaletteColour {
     pub index: usize,
     /// `#rrggbb`, the sRGB colour written to the reduced image.
     pub hex: String,
+    /// The colour's name, when a given palette names it (a `name` column, a name after a
+    /// hex code, or a palette document's names).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub name: Option<String>,
     /// CIELAB (D65) of that sRGB colour.
     pub lab: [f64; 3],
     /// Pixels that took this colour.
@@ -57,6 +61,10 @@ pub struct ReduceSettings {
     /// Pinned colours (`#rrggbb`), when any.
     #[serde(default, skip_serializing_if = "Vec::is_empty")]
     pub pinned: Vec<String>,
+    /// Settings that were given but a given palette makes meaningless (they shape only how
+    /// a palette is fitted), by their option names; absent when none.
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub not_applied: Vec<String>,
 }
 
 fn objective_plain() -> Objective {
@@ -128,6 +136,35 @@ pub struct PaletteDocument {
     /// Fingerprint of every setting that shapes the outputs (batch runs use it to resume).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub settings_fingerprint: Option<String>,
+    /// The palette the image was mapped onto, when one was given (`apply`, `batch
+    /// --palette`, `batch --shared`); `colors` then lists its colours in its own order.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub given_palette: Option<GivenPalette>,
+}
+
+/// Where a given palette came from, as recorded in the documents.
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize)]
+pub struct GivenPalette {
+    /// The file as it was named on the command line (`shared.palette.json` for a batch's
+    /// shared palette).
+    pub file: String,
+    /// SHA-256 of the file's bytes, as lowercase hex (what `sha256sum` prints).
+    pub sha256: String,
+    /// Colours in the palette.
+    pub colours: usize,
+}
+
+impl GivenPalette {
+    /// The record of a palette read from `file` (named as given) holding `bytes`.
+    pub fn of_bytes(file: &str, bytes: &[u8], colours: usize) -> GivenPalette {
+        use sha2::Digest;
+        let digest = sha2::Sha256::digest(bytes);
+        GivenPalette {
+            file: file.to_string(),
+            sha256: digest.iter().map(|b| format!("{b:02x}")).collect(),
+            colours,
+        }
+    }
 }
 
 /// How an image's colours were read and its reduced image written.
@@ -147,12 +184,33 @@ pub struct ColourProfileRecord {
 
 /// A palette given in advance (from a palette document): its colours and, optionally,
 /// the β to use for the uncertainty map (default: automatic for the image at hand).
+/// Every output lists its colours in this order, and pixel value i of the indexed PNG is
+/// colour i.
 #[derive(Debug, Clone, PartialEq)]
 pub struct FixedPalette {
     pub colours: Vec<[u8; 3]>,
     pub beta: Option<f64>,
     /// The space the palette was chosen in: pixels are mapped to it there.
     pub space: Space,
+    /// Each colour's name, when the palette names any (else empty).
+    pub names: Vec<Option<String>>,
+    /// The file it was read from, when known (recorded in each document).
+    pub origin: Option<GivenPalette>,
+    /// Learnt in the same run with the same settings (`batch --shared`): the fitting
+    /// settings acted there, so they are recorded as asked, not as unused.
+    pub learnt_in_run: bool,
+}
+
+impl FixedPalette {
+    /// The name of colour `i`, if any.
+    pub fn name(&self, i: usize) -> Option<&str> {
+        self.names.get(i).and_then(|n| n.as_deref())
+    }
+
+    /// Whether any colour has a name.
+    pub fn has_names(&self) -> bool {
+        self.names.iter().any(Option::is_some)
+    }
 }
 
 impl FixedPalette {
@@ -181,10 +239,18 @@ impl FixedPalette {
         if colours.is_empty() {
             return Err("the palette has no colours".into());
         }
+        let names: Vec<Option<String>> = doc.colors.iter().map(|c| c.name.clone()).collect();
         Ok(FixedPalette {
             colours,
             beta: doc.beta,
             space: doc.space,
+            names: if names.iter().any(Option::is_some) {
+                names
+            } else {
+                Vec::new()
+            },
+            origin: None,
+            learnt_in_run: false,
         })
     }
 }
@@ -192,7 +258,7 @@ impl FixedPalette {
 /// The engine settings as the document records them: a ΔE2000 target follows the
 /// warm-started K path (refined, but no restarts, annealing or moves); a given palette is
 /// mapped, not fitted (only β, for the uncertainty map, applies).
-pub(super) fn engine_used(opts: &ReduceOptions, fixed: bool) -> EngineOptions {
+pub fn engine_used(opts: &ReduceOptions, fixed: bool) -> EngineOptions {
     let e = opts.engine;
     if fixed {
         EngineOptions {
@@ -213,39 +279,84 @@ pub(super) fn engine_used(opts: &ReduceOptions, fixed: bool) -> EngineOptions {
     }
 }
 
-/// The settings as recorded in the palette document.
-pub(super) fn settings(opts: &ReduceOptions, fixed: bool, family_moves: usize) -> ReduceSettings {
+/// The settings as recorded in the palette document. With a given palette, `k_requested`
+/// is the palette's size and the engine settings are those that applied (see
+/// [`engine_used`]); settings it makes meaningless are listed in `not_applied`.
+pub(super) fn settings(
+    opts: &ReduceOptions,
+    fixed: Option<&FixedPalette>,
+    family_moves: usize,
+) -> ReduceSettings {
+    let used = engine_used(opts, fixed.is_some());
     ReduceSettings {
-        k_requested: opts.k,
+        k_requested: match fixed {
+            Some(f) if !f.learnt_in_run => f.colours.len(),
+            _ => opts.k,
+        },
         beta_setting: match opts.engine.beta {
             Beta::Auto => "auto".into(),
             Beta::Fixed(b) => b.to_string(),
         },
-        restarts: opts.engine.restarts,
-        max_iter: opts.engine.max_iter,
-        tolerance: opts.engine.tolerance,
-        shift_tolerance: opts.engine.shift_tolerance,
+        restarts: used.restarts,
+        max_iter: used.max_iter,
+        tolerance: used.tolerance,
+        shift_tolerance: used.shift_tolerance,
         dither: opts.dither.name().into(),
-        anneal: opts.engine.anneal.map(|a| AnnealSetting {
+        anneal: used.anneal.map(|a| AnnealSetting {
             start: a.start,
             end: a.end,
             factor: a.factor,
             max_moves: a.split_merge,
         }),
-        target: opts.target,
+        target: if fixed.is_some() { None } else { opts.target },
         // Recorded only where it acted: after k-means++ starts, not with annealing (which
         // records its own), a ΔE2000 target's K path, or a fixed palette.
-        split_merge: if opts.engine.anneal.is_none() && opts.target.is_none() && !fixed {
+        split_merge: if opts.engine.anneal.is_none() && opts.target.is_none() && fixed.is_none() {
             opts.engine.split_merge
         } else {
             0
         },
         objective: opts.objective,
         family_moves,
-        pinned: if fixed {
+        pinned: if fixed.is_some() {
             Vec::new()
         } else {
             opts.pinned.iter().map(|&c| colour::hex(c)).collect()
         },
+        not_applied: match fixed {
+            Some(f) if !f.learnt_in_run => not_applied(opts, f),
+            _ => Vec::new(),
+        },
     }
+}
+
+/// Colours a reduction fits when none is asked for (`k`'s default).
+pub const DEFAULT_K: usize = 8;
+
+/// The settings, set away from their defaults, that a given palette makes meaningless:
+/// they shape only how a palette is fitted. Named as the documents name them (`k`,
+/// `restarts`, `mode`, ...); β is not among them (it sets the uncertainty map's sharpness).
+pub fn not_applied(opts: &ReduceOptions, palette: &FixedPalette) -> Vec<String> {
+    let mut out: Vec<String> = [
+        (opts.k != DEFAULT_K, "k"),
+        (
+            opts.space != Space::Cielab && opts.space != palette.space,
+            "space",
+        ),
+        (opts.target.is_some(), "target"),
+        (opts.objective != Objective::Families, "objective"),
+        (!opts.pinned.is_empty(), "pinned"),
+    ]
+    .into_iter()
+    .filter(|&(set, _)| set)
+    .map(|(_, name)| name.to_string())
+    .collect();
+    out.extend(
+        opts.engine
+            .changed()
+            .into_iter()
+            .filter(|n| *n != "beta")
+            .map(str::to_string),
+    );
+    out
 }

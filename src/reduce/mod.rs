@@ -7,8 +7,8 @@ mod pipeline;
 mod write;
 
 pub use document::{
-    AnnealSetting, ColourProfileRecord, FixedPalette, PaletteColour, PaletteDocument,
-    ReduceSettings,
+    engine_used, not_applied, AnnealSetting, ColourProfileRecord, FixedPalette, GivenPalette,
+    PaletteColour, PaletteDocument, ReduceSettings, DEFAULT_K,
 };
 pub use loss::{loss_map_png, pixel_delta_e2000, LOSS_SCALE_MAX};
 pub use write::{
@@ -39,7 +39,7 @@ use std::time::Instant;
 /// Settings of a reduction; defaults as documented on each field.
 #[derive(Debug, Clone, PartialEq)]
 pub struct ReduceOptions {
-    /// Colours wanted (at least 1). Default: 8.
+    /// Colours wanted (at least 1). Default: 8 ([`DEFAULT_K`]).
     pub k: usize,
     /// Clustering space. Default: CIELAB.
     pub space: Space,
@@ -177,6 +177,13 @@ impl ReduceOptions {
         if self.loss_map {
             text = format!("{text}|loss map");
         }
+        // A given palette: its order, names and file are in every output.
+        if let Some(f) = fixed {
+            text = format!(
+                "{text}|given order, names {:?}, from {:?}",
+                f.names, f.origin
+            );
+        }
         format!("{:016x}", fnv1a(text.as_bytes()))
     }
 }
@@ -186,7 +193,8 @@ impl ReduceOptions {
 pub struct Reduction {
     pub width: u32,
     pub height: u32,
-    /// Palette colours, most used first.
+    /// Palette colours: most used first for a fitted palette, in its own order (all of
+    /// them) for a given one.
     pub palette: Vec<[u8; 3]>,
     /// Palette index of every pixel ([`NO_INDEX`] where alpha = 0).
     pub pixel_index: Vec<u16>,

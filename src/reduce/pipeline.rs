@@ -311,19 +311,26 @@ struct Slots {
     entry_slot: Vec<u16>,
 }
 
-fn quantise(means: &[f64], labels: &[u32], space: Space) -> Slots {
+/// A given palette keeps its own colours, one slot each, in its order (slot i = colour i).
+fn quantise(means: &[f64], labels: &[u32], space: Space, given: Option<&[[u8; 3]]>) -> Slots {
     let mut slot_of_colour: HashMap<[u8; 3], u16> = HashMap::new();
     let mut colours: Vec<[u8; 3]> = Vec::new();
-    let cluster_slot: Vec<u16> = means
-        .chunks_exact(3)
-        .map(|m| {
-            let c = colour::space_to_srgb8([m[0], m[1], m[2]], space);
-            *slot_of_colour.entry(c).or_insert_with(|| {
-                colours.push(c);
-                (colours.len() - 1) as u16
+    let cluster_slot: Vec<u16> = match given {
+        Some(g) => {
+            colours = g.to_vec();
+            (0..g.len() as u16).collect()
+        }
+        None => means
+            .chunks_exact(3)
+            .map(|m| {
+                let c = colour::space_to_srgb8([m[0], m[1], m[2]], space);
+                *slot_of_colour.entry(c).or_insert_with(|| {
+                    colours.push(c);
+                    (colours.len() - 1) as u16
+                })
             })
-        })
-        .collect();
+            .collect(),
+    };
     let lab = colours.iter().map(|&c| colour::srgb8_to_lab(c)).collect();
     let features = colours
         .iter()
@@ -442,7 +449,12 @@ fn render_and_score(
     mut notes: Vec<String>,
 ) -> Reduction {
     let fixed = px.fixed;
-    let slots = quantise(&fitted.means, &fitted.labels, opts.space);
+    let slots = quantise(
+        &fitted.means,
+        &fitted.labels,
+        opts.space,
+        fixed.map(|f| f.colours.as_slice()),
+    );
     let pixel_slot = match opts.dither {
         Dither::None => render::remap(&px.entry, &slots.entry_slot),
         Dither::FloydSteinberg => render::dither_floyd_steinberg(
@@ -460,7 +472,9 @@ fn render_and_score(
     let total = en.hist.total() as f64;
 
     // Order: most pixels first (ties: earlier slot); unused slots are dropped, except the
-    // pinned colours (the first clusters of a fit), which are always in the palette.
+    // pinned colours (the first clusters of a fit), which are always in the palette. A
+    // given palette keeps its own order and every colour, so that one colour has one
+    // index in every image mapped onto it.
     let n_slots = slots.colours.len();
     let pinned_slots: Vec<usize> = if fixed.is_none() && opts.target.is_none() {
         slots
@@ -472,10 +486,15 @@ fn render_and_score(
     } else {
         Vec::new()
     };
-    let mut order: Vec<usize> = (0..n_slots)
-        .filter(|&s| sc.pixels[s] > 0 || pinned_slots.contains(&s))
-        .collect();
-    order.sort_by(|&a, &b| sc.pixels[b].cmp(&sc.pixels[a]).then(a.cmp(&b)));
+    let order: Vec<usize> = if fixed.is_some() {
+        (0..n_slots).collect()
+    } else {
+        let mut order: Vec<usize> = (0..n_slots)
+            .filter(|&s| sc.pixels[s] > 0 || pinned_slots.contains(&s))
+            .collect();
+        order.sort_by(|&a, &b| sc.pixels[b].cmp(&sc.pixels[a]).then(a.cmp(&b)));
+        order
+    };
     let mut new_index = vec![NO_INDEX; n_slots];
     for (i, &s) in order.iter().enumerate() {
         new_index[s] = i as u16;
@@ -498,6 +517,7 @@ fn render_and_score(
         .map(|(i, &s)| PaletteColour {
             index: i,
             hex: colour::hex(slots.colours[s]),
+            name: fixed.and_then(|f| f.name(s)).map(str::to_string),
             lab: slots.lab[s],
             pixels: sc.pixels[s],
             share: sc.pixels[s] as f64 / total,
@@ -541,7 +561,12 @@ fn render_and_score(
     let document = PaletteDocument {
         header: DocumentHeader::new(None, super::document::engine_used(opts, fixed.is_some())),
         space: opts.space,
-        mode: opts.engine.mode,
+        // A given palette is mapped by nearest colour: no soft fit.
+        mode: if fixed.is_some() {
+            Mode::Hard
+        } else {
+            opts.engine.mode
+        },
         k: palette.len(),
         beta: fitted.beta,
         iterations: fitted.iterations,
@@ -550,13 +575,14 @@ fn render_and_score(
         mean_delta_e2000: sc.de2000 / total,
         colors,
         lost_areas,
-        settings: super::document::settings(opts, fixed.is_some(), fitted.family_moves),
+        settings: super::document::settings(opts, fixed, fitted.family_moves),
         source: None,
         settings_fingerprint: None,
         colour_profile: None,
         input_profiles: Vec::new(),
         p95_delta_e2000: None,
         p99_delta_e2000: None,
+        given_palette: fixed.and_then(|f| f.origin.clone()),
     };
     Reduction {
         width: px.width,

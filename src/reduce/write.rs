@@ -24,16 +24,34 @@ pub fn loss_names(stem: &str) -> [String; 2] {
     [format!("{stem}.loss.tif"), format!("{stem}.loss.png")]
 }
 
-/// The palette rows as CSV with a header.
+/// The palette rows as CSV with a header. A `name` column is added at the end when a
+/// given palette names any of its colours (empty for the unnamed ones), so one file has
+/// one shape and files of unnamed palettes keep the columns they always had.
 pub fn palette_csv(doc: &PaletteDocument) -> String {
-    let mut s = String::from("index,hex,L,a,b,pixels,share,mean_uncertainty\n");
+    let named = doc.colors.iter().any(|c| c.name.is_some());
+    let mut s = String::from("index,hex,L,a,b,pixels,share,mean_uncertainty");
+    s.push_str(if named { ",name\n" } else { "\n" });
     for c in &doc.colors {
         s.push_str(&format!(
-            "{},{},{:.4},{:.4},{:.4},{},{:.6},{:.6}\n",
+            "{},{},{:.4},{:.4},{:.4},{},{:.6},{:.6}",
             c.index, c.hex, c.lab[0], c.lab[1], c.lab[2], c.pixels, c.share, c.mean_uncertainty
         ));
+        if named {
+            s.push(',');
+            s.push_str(&csv_field(c.name.as_deref().unwrap_or("")));
+        }
+        s.push('\n');
     }
     s
+}
+
+/// A CSV field, quoted when it holds a comma, a quote or a line break.
+fn csv_field(s: &str) -> String {
+    if s.contains([',', '"', '\n', '\r']) {
+        format!("\"{}\"", s.replace('"', "\"\""))
+    } else {
+        s.to_string()
+    }
 }
 
 /// Encodes the reduced image: indexed PNG when the palette (plus one transparent entry
