@@ -115,8 +115,10 @@ pub fn lost_areas(
     out
 }
 
-/// One warning line for lost areas (empty when there are none).
-pub fn lost_areas_warning(areas: &[LostArea]) -> Option<String> {
+/// One warning line for lost areas (empty when there are none). `given_palette`: the
+/// palette was given (`apply`, `batch --palette`), so the remedy is to add the colour to
+/// it rather than to raise `k` or pin the colour.
+pub fn lost_areas_warning(areas: &[LostArea], given_palette: bool) -> Option<String> {
     let a = areas.first()?;
     let more = match areas.len() {
         1 => String::new(),
@@ -124,7 +126,7 @@ pub fn lost_areas_warning(areas: &[LostArea]) -> Option<String> {
     };
     Some(format!(
         "{} area{} rendered more than ΔE2000 {} from {} colour (largest: {} px at x {}..{}, \
-         y {}..{}, {} shown as {}, ΔE2000 {:.1}{more}); raise k or pin the colour",
+         y {}..{}, {} shown as {}, ΔE2000 {:.1}{more}); {}",
         areas.len(),
         if areas.len() == 1 { "" } else { "s" },
         REPORT_DELTA_E,
@@ -137,6 +139,11 @@ pub fn lost_areas_warning(areas: &[LostArea]) -> Option<String> {
         a.source,
         a.rendered,
         a.delta_e2000,
+        if given_palette {
+            "add the colour to the palette"
+        } else {
+            "raise k or pin the colour"
+        },
     ))
 }
 
