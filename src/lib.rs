@@ -28,7 +28,7 @@
 //!         rgba.extend_from_slice(&[mix(200.0, 20.0), mix(40.0, 90.0), mix(30.0, 160.0), 255]);
 //!     }
 //! }
-//! let img = Decoded { width: w, height: h, pixels: Pixels::Rgba8(rgba), has_alpha: false, dpi: None, more_frames: false, icc_profile: None, exif: None };
+//! let img = Decoded { width: w, height: h, pixels: Pixels::Rgba8(rgba), has_alpha: false, dpi: None, more_frames: false, icc_profile: None, exif: None, icc_unreadable: None };
 //! let red = reduce_image(&img, &ReduceOptions::new(3)).unwrap();
 //! assert_eq!(red.document.k, 3);
 //! assert!(red.document.mean_delta_e2000 < 10.0);

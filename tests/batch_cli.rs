@@ -85,8 +85,10 @@ fn batch_mirrors_reports_survives_a_bad_file_and_resumes() {
     assert_eq!(r["totals"]["failed"], 1);
     assert_eq!(r["skipped_not_images"], serde_json::json!(["notes.txt"]));
     let csv = std::fs::read_to_string(out.join("batch-report.csv")).unwrap();
-    assert!(csv.starts_with("input,status,error,colors,mean_delta_e2000,seconds\n"));
-    // One header and one row per file, every row with the header's six fields (a plain
+    assert!(csv.starts_with(
+        "input,status,error,colors,mean_delta_e2000,p95_delta_e2000,p99_delta_e2000,seconds\n"
+    ));
+    // One header and one row per file, every row with the header's eight fields (a plain
     // CSV reader takes the file whole; RFC 4180 section 2, item 4).
     assert_eq!(csv.lines().count(), 1 + 4);
     let fields = |l: &str| {
@@ -101,7 +103,7 @@ fn batch_mirrors_reports_survives_a_bad_file_and_resumes() {
             })
             .count()
     };
-    assert!(csv.lines().all(|l| fields(l) == 6), "{csv}");
+    assert!(csv.lines().all(|l| fields(l) == 8), "{csv}");
     assert!(!csv.contains("TOTAL"));
     assert!(!tree(&out)
         .keys()

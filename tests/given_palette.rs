@@ -56,8 +56,15 @@ fn plte_and_indices(path: &Path) -> (Vec<[u8; 3]>, Vec<u8>) {
     let dec = png::Decoder::new(std::io::BufReader::new(std::fs::File::open(path).unwrap()));
     let mut reader = dec.read_info().unwrap();
     let info = reader.info();
-    assert_eq!(info.color_type, png::ColorType::Indexed, "{}", path.display());
-    assert_eq!(info.bit_depth, png::BitDepth::Eight, "{}", path.display());
+    assert_eq!(
+        info.color_type,
+        png::ColorType::Indexed,
+        "{}",
+        path.display()
+    );
+    // 1, 2, 4 or 8 bits per index, as PNG allows (ISO/IEC 15948 table 11.1).
+    let bits = info.bit_depth as usize;
+    let width = info.width as usize;
     let plte: Vec<[u8; 3]> = info
         .palette
         .as_ref()
@@ -67,8 +74,17 @@ fn plte_and_indices(path: &Path) -> (Vec<[u8; 3]>, Vec<u8>) {
         .collect();
     let mut buf = vec![0u8; reader.output_buffer_size().unwrap()];
     let frame = reader.next_frame(&mut buf).unwrap();
-    buf.truncate(frame.buffer_size());
-    (plte, buf)
+    // Rows are packed most significant bits first; unpack every index to a byte.
+    let mut out = Vec::new();
+    for row in buf[..frame.buffer_size()].chunks_exact(frame.line_size) {
+        for x in 0..width {
+            let bit = x * bits;
+            let byte = row[bit / 8];
+            let shift = 8 - bits - bit % 8;
+            out.push((byte >> shift) & ((1u16 << bits) - 1) as u8);
+        }
+    }
+    (plte, out)
 }
 
 fn json(path: &Path) -> Value {
@@ -193,7 +209,10 @@ fn batch_palette_keeps_the_palettes_order_names_and_numbers_in_every_file() {
         // No K claimed that was not asked for: the palette's size; the unused settings
         // are listed.
         assert_eq!(doc["settings"]["k_requested"], 6);
-        assert_eq!(doc["settings"]["not_applied"], serde_json::json!(["k", "restarts"]));
+        assert_eq!(
+            doc["settings"]["not_applied"],
+            serde_json::json!(["k", "restarts"])
+        );
         assert_eq!(doc["settings"]["restarts"], 1);
         assert_eq!(doc["mode"], doc["engine"]["mode"]);
         // Pixels are exactly palette colours: no loss.
@@ -214,7 +233,10 @@ fn batch_palette_keeps_the_palettes_order_names_and_numbers_in_every_file() {
     assert!(csv.starts_with(
         "input,status,error,colors,mean_delta_e2000,p95_delta_e2000,p99_delta_e2000,seconds\n"
     ));
-    assert!(csv.lines().skip(1).all(|l| l.split(',').count() == 8), "{csv}");
+    assert!(
+        csv.lines().skip(1).all(|l| l.split(',').count() == 8),
+        "{csv}"
+    );
 
     // A document written by the batch is itself a palette: `apply` with it keeps the
     // order and the names.

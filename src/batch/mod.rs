@@ -430,6 +430,13 @@ pub fn run_batch(
     opts.reduce.kmeans_params().check()?;
     check_out_not_inside(input_dir, out)?;
     let (images, others, unreadable) = walk_images(input_dir)?;
+    if images.is_empty() && unreadable.is_empty() {
+        return Err(Error::Data(format!(
+            "{}: no images found (looked for .{} files, in sub-folders too); nothing written",
+            input_dir.display(),
+            IMAGE_EXTENSIONS.join(", .")
+        )));
+    }
     check_outputs_outside_input(input_dir, out, &images)?;
     std::fs::create_dir_all(out)
         .map_err(|e| Error::output(out, format!("cannot create output folder: {e}")))?;

@@ -42,7 +42,7 @@ fn url_path(p: &Path) -> String {
     out
 }
 
-/// A thumbnail of a decoded image as PNG bytes, keeping its colour profile.
+/// A thumbnail of a decoded image as PNG bytes, keeping its colour profile, upright.
 fn thumbnail(img: &Decoded) -> std::io::Result<Vec<u8>> {
     let rgba = match &img.pixels {
         Pixels::Rgba8(p) => p.clone(),
@@ -59,7 +59,18 @@ fn thumbnail(img: &Decoded) -> std::io::Result<Vec<u8>> {
     } else {
         (img.width, img.height)
     };
-    let small = image::imageops::thumbnail(&buf, w, h);
+    let mut small = image::DynamicImage::ImageRgba8(image::imageops::thumbnail(&buf, w, h));
+    // Shown the way browsers show the image itself: turned and flipped as its EXIF
+    // orientation (tag 274) says.
+    if let Some(o) = img
+        .exif
+        .as_deref()
+        .and_then(image::metadata::Orientation::from_exif_chunk)
+    {
+        small.apply_orientation(o);
+    }
+    let (w, h) = (small.width(), small.height());
+    let small = small.into_rgba8();
     let mut out = Vec::new();
     let extras = raster::PngExtras {
         icc_profile: img
@@ -236,8 +247,10 @@ fn card(s: &mut String, c: &Card) {
     };
     let _ = write!(
         s,
-        "<small>{name} &middot; {} colours &middot; mean &Delta;E2000 {:.2}",
-        d.k, d.mean_delta_e2000
+        "<small>{name} &middot; {} colour{} &middot; mean &Delta;E2000 {:.2}",
+        d.k,
+        if d.k == 1 { "" } else { "s" },
+        d.mean_delta_e2000
     );
     if let (Some(p95), Some(p99)) = (d.p95_delta_e2000, d.p99_delta_e2000) {
         let _ = write!(s, " &middot; 95th {p95:.1} &middot; 99th {p99:.1}");

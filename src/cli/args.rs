@@ -1,6 +1,6 @@
 //! The flags of each command, as typed, and their resolution into library options.
 
-use super::engine::{BetaFlag, EngineFlags, FolderOutput, LimitFlag, SceneFlags};
+use super::engine::{EngineFlags, FolderOutput, LimitFlag, SceneFlags};
 use crate::colour::Space;
 use crate::features::quality::{QualityTarget, TargetStatistic};
 use crate::limits::Limits;
@@ -186,11 +186,14 @@ pub struct BatchArgs {
     #[arg(long, conflicts_with = "palette_file")]
     pub shared: bool,
 
-    /// Map every image onto this palette document instead of fitting one per image.
+    /// Map every image onto this palette instead of fitting one per image: a palette
+    /// document (from `learn`, `reduce` or `batch --shared`), a list of hex colours (one per
+    /// line) or a CSV table with a name and hex or L,a,b columns (as --pin-file reads them).
     #[arg(long = "palette", id = "palette_file", value_name = "FILE")]
     pub palette_file: Option<PathBuf>,
 
-    /// Images processed at once, 1 to 256 (default: the number of cores).
+    /// Images processed at once, 1 to 256 (default: the number of cores). Whatever is
+    /// asked, at most twice the cores run, and one per 256 MB of available memory.
     #[arg(long, value_name = "N", value_parser = clap::value_parser!(u16).range(1..=256))]
     pub jobs: Option<u16>,
 
@@ -270,17 +273,25 @@ pub struct ApplyArgs {
     /// Image to map onto the palette, or `-` for standard input.
     pub input: PathBuf,
 
-    /// Palette document (from `learn`, `reduce` or `batch --shared`).
+    /// The palette to map onto: a palette document (from `learn`, `reduce` or `batch
+    /// --shared`), a list of hex colours (one per line) or a CSV table with a name and hex or
+    /// L,a,b columns (as --pin-file reads them).
     #[arg(long, value_name = "FILE")]
     pub palette: PathBuf,
 
     #[command(flatten)]
     pub image: ImageFlags,
 
-    /// Sharpness of the uncertainty map (default: the palette document's β, else
-    /// automatic for the image at hand).
-    #[command(flatten)]
-    pub beta: BetaFlag,
+    /// Sharpness of the uncertainty map, in 1/ΔE*ab² (1/OKLab-unit² for a palette chosen
+    /// in OKLab); `auto`: the palette document's β when it records one, else 1/σ², σ² the
+    /// pooled variance of this photo's pixels around the palette colours they are mapped to.
+    #[arg(
+        long,
+        default_value = "auto",
+        value_name = "NUMBER|auto",
+        allow_hyphen_values = true
+    )]
+    pub beta: crate::cluster::Beta,
 
     #[command(flatten)]
     pub output: FolderOutput,
@@ -290,7 +301,7 @@ impl ApplyArgs {
     /// The library options these flags ask for (the palette's colours come from its file).
     pub fn options(&self) -> ReduceOptions {
         let mut o = ReduceOptions::new(crate::reduce::DEFAULT_K);
-        o.engine.beta = self.beta.beta;
+        o.engine.beta = self.beta;
         o.dither = self.image.dither;
         o.uncertainty_raw = self.image.uncertainty_raw;
         o.loss_map = self.image.loss_map;

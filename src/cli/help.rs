@@ -186,6 +186,17 @@ pub(super) fn usage_error_line(text: &str) -> String {
 /// The usage error of a parse, with the nearest command or flag when the user mistyped one.
 pub(super) fn usage_error(e: &clap::Error, argv: &[String]) -> String {
     use clap::error::{ContextKind, ContextValue, ErrorKind};
+    // A file read while parsing (`--pin-file`) says itself what is wrong with it, naming
+    // the file, as the same file given to `apply --palette` would.
+    if e.kind() == ErrorKind::ValueValidation {
+        if let (Some(ContextValue::String(arg)), Some(source)) =
+            (e.get(ContextKind::InvalidArg), std::error::Error::source(e))
+        {
+            if arg.starts_with("--pin-file") {
+                return source.to_string();
+            }
+        }
+    }
     let line = usage_error_line(&e.to_string());
     let invalid = match e
         .get(ContextKind::InvalidSubcommand)

@@ -32,7 +32,8 @@ Examples:
   cat photo.png | chromasift reduce - -k 8 --stdout reduced > photo.k8.png
 
 Writes STEM.reduced.png, STEM.palette.json, STEM.palette.csv and STEM.uncertainty.png
-(plus STEM.uncertainty.tif with --uncertainty-raw) into the output folder.
+(plus STEM.uncertainty.tif with --uncertainty-raw, and STEM.loss.tif and STEM.loss.png
+with --loss-map) into the output folder.
 
 Exit status: 0 success, 2 bad parameters or unreadable input (nothing is written).";
 

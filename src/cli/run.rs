@@ -33,6 +33,12 @@ fn fail(message: impl std::fmt::Display) -> ExitCode {
     ExitCode::from(EXIT_USAGE)
 }
 
+/// `n` and the word, the word with an `s` unless `n` is 1 ("1 colour", "12 colours").
+fn counted(n: impl Into<u64>, word: &str) -> String {
+    let n = n.into();
+    format!("{n} {word}{}", if n == 1 { "" } else { "s" })
+}
+
 fn note(input: &Path, n: &str) {
     eprintln!("chromasift: note: {}: {}", input.display(), flag_wording(n));
 }
@@ -166,10 +172,10 @@ fn print_reduce_summary(input: &Path, report: &reduce::ReduceReport, json: bool)
     }
     let d = &report.document;
     eprintln!(
-        "chromasift: {}: {} colours, {} iterations, SSE {:.6e}, mean ΔE2000 {:.3}, {:.2} s",
+        "chromasift: {}: {}, {}, SSE {:.6e}, mean ΔE2000 {:.3}, {:.2} s",
         input.display(),
-        d.k,
-        d.iterations,
+        counted(d.k as u64, "colour"),
+        counted(d.iterations as u64, "iteration"),
         d.sse,
         d.mean_delta_e2000,
         report.seconds
@@ -302,9 +308,9 @@ fn run_learn(args: &LearnArgs) -> Result<ExitCode, Error> {
     write_or_stdout(&args.out, format!("{json}\n").as_bytes(), &learnt.read)?;
     let doc = &learnt.document;
     eprintln!(
-        "chromasift: learned {} colours from {} pixels, mean ΔE2000 {:.3}; wrote {}",
-        doc.k,
-        doc.colors.iter().map(|c| c.pixels).sum::<u64>(),
+        "chromasift: learned {} from {}, mean ΔE2000 {:.3}; wrote {}",
+        counted(doc.k as u64, "colour"),
+        counted(doc.colors.iter().map(|c| c.pixels).sum::<u64>(), "pixel"),
         doc.mean_delta_e2000,
         args.out.display()
     );
@@ -493,13 +499,17 @@ fn run_batch(args: BatchArgs) -> ExitCode {
     }
     let t = &r.totals;
     eprintln!(
-        "chromasift: batch: {} images: {} reduced, {} up to date, {} failed{}; {} other files skipped; {:.1} s",
-        t.files,
+        "chromasift: batch: {}: {} reduced, {} up to date, {} failed{}; {} skipped; {:.1} s",
+        counted(t.files as u64, "image"),
         t.ok,
         t.skipped,
         t.failed,
-        if t.interrupted > 0 { format!(", {} not started (interrupted)", t.interrupted) } else { String::new() },
-        t.not_images,
+        if t.interrupted > 0 {
+            format!(", {} not started (interrupted)", t.interrupted)
+        } else {
+            String::new()
+        },
+        counted(t.not_images as u64, "other file"),
         t.seconds
     );
     if args.json {

@@ -125,6 +125,22 @@ pub fn parse_table(text: &str, path: &Path, rules: TableRules) -> Result<Vec<Col
         .map(str::trim)
         .find(|l| !l.is_empty() && !is_list_comment(l));
     match first {
+        // A table saved with another separator (spreadsheets set to a comma decimal mark
+        // write `;`): say what is expected instead of failing on the first colour.
+        Some(l)
+            if !l.contains(',')
+                && l.split(char::is_whitespace)
+                    .next()
+                    .is_some_and(|t| t.contains(';')) =>
+        {
+            let line = text.lines().position(|x| x.trim() == l).map(|i| i + 1);
+            Err(table_error(
+                path,
+                line,
+                "columns must be separated by commas, but this line uses semicolons (save the \
+                 table as comma-separated CSV)",
+            ))
+        }
         Some(l) if rules.hex_list && !l.contains(',') => parse_hex_list(text, path),
         _ => parse_csv(text, path, rules),
     }

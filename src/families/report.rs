@@ -156,8 +156,10 @@ fn dist2(a: &[f64; 3], b: &[f64; 3]) -> f64 {
     (0..3).map(|d| (a[d] - b[d]).powi(2)).sum()
 }
 
-/// One warning line for lost areas (empty when there are none).
-pub fn lost_areas_warning(areas: &[LostArea]) -> Option<String> {
+/// One warning line for lost areas (empty when there are none). `given_palette`: the
+/// palette was given (`apply`, `batch --palette`), so the remedy is to add the colour to
+/// it rather than to raise `k` or pin the colour.
+pub fn lost_areas_warning(areas: &[LostArea], given_palette: bool) -> Option<String> {
     let a = areas.first()?;
     let more = match areas.len() {
         1 => String::new(),
@@ -165,7 +167,7 @@ pub fn lost_areas_warning(areas: &[LostArea]) -> Option<String> {
     };
     Some(format!(
         "{} area{} rendered more than ΔE2000 {} from {} colour (largest: {} px at x {}..{}, \
-         y {}..{}, {} shown as {}, ΔE2000 {:.1}{more}); raise k or pin the colour",
+         y {}..{}, {} shown as {}, ΔE2000 {:.1}{more}); {}",
         areas.len(),
         if areas.len() == 1 { "" } else { "s" },
         REPORT_DELTA_E,
@@ -178,6 +180,11 @@ pub fn lost_areas_warning(areas: &[LostArea]) -> Option<String> {
         a.source,
         a.rendered,
         a.delta_e2000,
+        if given_palette {
+            "add the colour to the palette"
+        } else {
+            "raise k or pin the colour"
+        },
     ))
 }
 

@@ -98,7 +98,10 @@ pub fn image_colours_8bit(img: &Decoded) -> ImageColours {
 }
 
 fn with_profile(indexed: IndexedHistogram, img: &Decoded) -> ImageColours {
-    let profile = img.icc_profile.as_deref().map(read_profile);
+    let profile = img.icc_profile.as_deref().map(read_profile).or_else(|| {
+        // A profile present but not readable from the file is recorded as one not applied.
+        img.icc_unreadable.clone().map(ProfileUse::Unused)
+    });
     let convert = match &profile {
         Some(ProfileUse::Convert(p)) => Some(p.clone()),
         _ => None,

@@ -48,7 +48,21 @@ impl Drop for Live {
 /// A new temporary file in `dir`, listed in [`LIVE`] from the moment it exists.
 fn live_temp(dir: &Path) -> std::io::Result<(NamedTempFile, Live)> {
     let mut l = lock(&LIVE);
-    let tmp = NamedTempFile::with_prefix_in(TEMP_PREFIX, dir)?;
+    // The error names the folder or the final file where it is reported, not the
+    // temporary file's internal name (which the error of `tempfile` ends with).
+    let tmp = NamedTempFile::with_prefix_in(TEMP_PREFIX, dir).map_err(|e| {
+        // `tempfile` wraps the system's error in one that adds the path.
+        let code = e.raw_os_error().or_else(|| {
+            e.get_ref()
+                .and_then(|inner| inner.source())
+                .and_then(|s| s.downcast_ref::<std::io::Error>())
+                .and_then(std::io::Error::raw_os_error)
+        });
+        match code {
+            Some(code) => std::io::Error::from_raw_os_error(code),
+            None => std::io::Error::from(e.kind()),
+        }
+    })?;
     l.push((tmp.path().to_path_buf(), false));
     let live = Live(tmp.path().to_path_buf());
     Ok((tmp, live))

@@ -2,6 +2,7 @@
 //! writing PNG and TIFF outputs (`write.rs`).
 
 pub mod geotiff;
+mod tiff_meta;
 pub mod walk;
 mod write;
 
@@ -43,6 +44,9 @@ pub struct Decoded {
     pub icc_profile: Option<Vec<u8>>,
     /// The EXIF block (TIFF-structured, without the JPEG `Exif\0\0` prefix), as stored.
     pub exif: Option<Vec<u8>>,
+    /// Why an embedded profile that is present could not be taken out of the file (a PNG
+    /// iCCP chunk whose data does not inflate); the image is then read as sRGB, with a note.
+    pub icc_unreadable: Option<String>,
 }
 
 impl Decoded {
@@ -79,6 +83,7 @@ impl Decoded {
             more_frames: false,
             icc_profile: None,
             exif: None,
+            icc_unreadable: None,
         }
     }
 }
@@ -463,7 +468,12 @@ pub fn decode_bytes(bytes: &[u8], name: &Path, limits: &Limits) -> Result<Decode
     let dpi = sniff_dpi(bytes);
     let more_frames = has_more_frames(bytes);
     // The PNG profile is read here, from the chunk the decoder will not see.
-    let png_icc = stripped.as_ref().and_then(|_| png_icc_profile(bytes));
+    let png_icc = stripped.as_ref().map(|_| png_icc_profile(bytes));
+    let icc_unreadable = match &png_icc {
+        Some(Err(why)) => Some(format!("the embedded ICC profile (PNG iCCP chunk) {why}")),
+        _ => None,
+    };
+    let png_icc = png_icc.and_then(|r| r.ok());
     let bytes = stripped.as_deref().unwrap_or(bytes);
     let reader = ImageReader::new(Cursor::new(bytes))
         .with_guessed_format()
@@ -557,6 +567,13 @@ pub fn decode_bytes(bytes: &[u8], name: &Path, limits: &Limits) -> Result<Decode
     d.more_frames = more_frames;
     d.icc_profile = icc_profile;
     d.exif = exif;
+    d.icc_unreadable = icc_unreadable;
+    if tiff {
+        // The TIFF reader passes on neither: read the resolution and orientation tags here.
+        let (tiff_dpi, tiff_exif) = tiff_meta::tiff_metadata(bytes);
+        d.dpi = d.dpi.or(tiff_dpi);
+        d.exif = d.exif.take().or(tiff_exif);
+    }
     Ok(d)
 }
 
@@ -572,29 +589,47 @@ fn tiff_icc_profile(bytes: &[u8]) -> Option<Vec<u8>> {
 /// lookup tables, are a few hundred kilobytes).
 pub const MAX_PROFILE_BYTES: usize = 4 << 20;
 
-/// The first iCCP chunk's profile, inflated to at most [`MAX_PROFILE_BYTES`].
-pub fn png_icc_profile(bytes: &[u8]) -> Option<Vec<u8>> {
+/// The first iCCP chunk's profile, inflated to at most [`MAX_PROFILE_BYTES`]; or, for a
+/// file with an iCCP chunk (PNG 3rd edition, 11.3.2.3: name, NUL, compression method 0,
+/// zlib data) that cannot be read, why not.
+pub fn png_icc_profile(bytes: &[u8]) -> std::result::Result<Vec<u8>, String> {
+    let missing = || "is missing or comes after the image data".to_string();
     let mut pos = 8usize;
     while pos + 12 <= bytes.len() {
-        let len = u32::from_be_bytes(bytes[pos..pos + 4].try_into().ok()?) as usize;
-        let data = bytes.get(pos + 8..pos.checked_add(8)?.checked_add(len)?)?;
+        let len = u32::from_be_bytes([bytes[pos], bytes[pos + 1], bytes[pos + 2], bytes[pos + 3]])
+            as usize;
+        let Some(data) = pos
+            .checked_add(8 + len)
+            .and_then(|end| bytes.get(pos + 8..end))
+        else {
+            return Err("is cut short".into());
+        };
         match &bytes[pos + 4..pos + 8] {
             b"iCCP" => {
-                // Name (1-79 bytes), NUL, compression method 0, zlib data.
-                let nul = data.iter().position(|&b| b == 0)?;
-                let z = data.get(nul + 2..)?;
+                let Some(z) = data
+                    .iter()
+                    .position(|&b| b == 0)
+                    .and_then(|nul| data.get(nul + 2..))
+                else {
+                    return Err("has no profile name or compression method".into());
+                };
                 return miniz_oxide::inflate::decompress_to_vec_zlib_with_limit(
                     z,
                     MAX_PROFILE_BYTES,
                 )
-                .ok();
+                .map_err(|e| match e.status {
+                    miniz_oxide::inflate::TINFLStatus::HasMoreOutput => {
+                        format!("inflates to more than {} MiB", MAX_PROFILE_BYTES >> 20)
+                    }
+                    _ => "cannot be inflated (damaged compressed data)".into(),
+                });
             }
-            b"IDAT" | b"IEND" => return None,
+            b"IDAT" | b"IEND" => return Err(missing()),
             _ => {}
         }
-        pos = pos.checked_add(12)?.checked_add(len)?;
+        pos += 12 + len;
     }
-    None
+    Err(missing())
 }
 
 fn from_dynamic(img: DynamicImage) -> Decoded {
@@ -624,6 +659,7 @@ fn from_dynamic(img: DynamicImage) -> Decoded {
         more_frames: false,
         icc_profile: None,
         exif: None,
+        icc_unreadable: None,
     }
 }
 

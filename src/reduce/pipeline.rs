@@ -550,7 +550,7 @@ fn render_and_score(
             &palette,
         )
     };
-    let warnings = families::lost_areas_warning(&lost_areas);
+    let warnings = families::lost_areas_warning(&lost_areas, fixed.is_some());
     notes.extend(palette_notes(
         opts,
         fixed.is_some(),
