@@ -339,7 +339,7 @@ fn ink_library_messages_name_the_cause() {
     )
     .unwrap();
     for (lib, says) in [
-        (&semi, "this header uses semicolons"),
+        (&semi, "uses semicolons"),
         (&long, "100000 characters long"),
     ] {
         let o = run(

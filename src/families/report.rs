@@ -107,8 +107,8 @@ pub fn lost_areas(
             let order = shades.len();
             let shade = shades.entry(key).or_insert((0, [0.0; 3], order));
             shade.0 += 1;
-            for d in 0..3 {
-                shade.1[d] += labs[e][d];
+            for (sum, v) in shade.1.iter_mut().zip(labs[e]) {
+                *sum += v;
             }
             err += entry_error[e];
             if let Some(&s) = pixel_index

@@ -75,7 +75,9 @@ impl<'t> SmallTable<'t> {
     /// `None` when the text has no header line.
     pub(super) fn parse(text: &'t str, comments: bool) -> Option<SmallTable<'t>> {
         let mut lines = text.lines().enumerate().filter(|(_, l)| {
-            !l.trim().is_empty() && !(comments && l.trim_start().starts_with('#'))
+            let blank = l.trim().is_empty();
+            let comment = comments && l.trim_start().starts_with('#');
+            !(blank || comment)
         });
         let (_, head) = lines.next()?;
         Some(SmallTable {
