@@ -90,7 +90,10 @@ fn percentile(sorted: &[(f64, u64)], total: u64, q: f64) -> f64 {
 pub(super) fn record_percentiles(red: &mut Reduction) {
     let (idx, uniform) = entry_indices(red);
     let mut pairs: Vec<(f64, u64)> = if uniform {
-        let pal = palette_lab(red);
+        // Without dithering a pixel's error is its entry's, which the scoring computed
+        // with the same palette colours (`entry_error`); computed here when it did not.
+        let known = red.entry_error.len() == idx.len();
+        let pal = if known { Vec::new() } else { palette_lab(red) };
         let mut counts = vec![0u64; idx.len()];
         for &e in &red.pixel_entry {
             if e != TRANSPARENT {
@@ -100,8 +103,16 @@ pub(super) fn record_percentiles(red: &mut Reduction) {
         idx.par_iter()
             .zip(red.entry_lab.par_iter())
             .zip(counts.par_iter())
-            .filter(|((&i, _), &n)| i != NO_INDEX && n > 0)
-            .map(|((&i, lab), &n)| (colour::delta_e2000(*lab, pal[i as usize]), n))
+            .enumerate()
+            .filter(|(_, ((&i, _), &n))| i != NO_INDEX && n > 0)
+            .map(|(e, ((&i, lab), &n))| {
+                let d = if known {
+                    red.entry_error[e]
+                } else {
+                    colour::delta_e2000(*lab, pal[i as usize])
+                };
+                (d, n)
+            })
             .collect()
     } else {
         pixel_delta_e2000(red)

@@ -210,6 +210,9 @@ pub struct Reduction {
     pub warnings: Vec<String>,
     /// CIELAB (D65) of every histogram entry (for the per-pixel ΔE2000).
     pub entry_lab: Vec<[f64; 3]>,
+    /// Each histogram entry's ΔE2000 to the palette colour it was mapped to, before any
+    /// dithering, where the scoring computed it (empty otherwise).
+    pub entry_error: Vec<f64>,
     /// What the reduced image carries from the input.
     pub metadata: OutputMetadata,
 }

@@ -596,6 +596,7 @@ fn render_and_score(
         notes,
         warnings: warnings.into_iter().collect(),
         entry_lab: en.labs.clone(),
+        entry_error: sc.entry_error,
         metadata: Default::default(),
     }
 }
