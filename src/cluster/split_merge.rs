@@ -13,7 +13,7 @@
 //! worse than the Lloyd optimum it started from. No random numbers: same input, same
 //! result.
 
-use super::hard::{lloyd, Stop};
+use super::hard::{lloyd, lloyd_trial, Stop};
 use super::{nearest_two, Dataset, CHUNK};
 use rayon::prelude::*;
 
@@ -278,7 +278,9 @@ pub fn split_merge(data: &Dataset, init: &[f32], max_moves: usize, stop: Stop) -
                     max_iter: stop.max_iter.min(TRIAL_ITERATIONS),
                     ..stop
                 };
-                let r = lloyd(data, &trial, cut, true);
+                let Some(r) = lloyd_trial(data, &trial, cut, sse * margin) else {
+                    continue;
+                };
                 if r.sse < sse * margin {
                     // Kept: run on to the fixed point.
                     let head: Vec<f32> = r.means.iter().map(|&v| v as f32).collect();
