@@ -181,8 +181,8 @@ fn scene() -> Scene {
     v[40] ^= 0x10;
     s.write("damaged.hist", &v);
     let mut v = hist.clone();
-    v[7] = 3;
-    s.write("v3.hist", &v);
+    v[7] = 4;
+    s.write("v4.hist", &v);
     s.write("cut.hist", &hist[..hist.len() - 5]);
     s.write("foreign.hist", b"%PDF-1.4\n% not a histogram\n");
     s.write("words.hist", b"CSHISTOGRAM, but in words\n");
@@ -812,7 +812,7 @@ fn rows(s: &Scene) -> Vec<Row> {
     let learned = s.p("learned.palette.json");
     for (name, file, problem) in [
         ("learn damaged histogram", "damaged.hist", "checksum"),
-        ("learn histogram of a later version", "v3.hist", "version 3"),
+        ("learn histogram of a later version", "v4.hist", "version 4"),
         ("learn truncated histogram", "cut.hist", "truncated"),
         (
             "learn histogram with a foreign header",

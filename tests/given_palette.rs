@@ -202,8 +202,12 @@ fn batch_palette_keeps_the_palettes_order_names_and_numbers_in_every_file() {
     for (stem, counts) in &images {
         check_outputs(&out, stem, &colours, &names, counts);
         let doc = json(&out.join(format!("{stem}.palette.json")));
-        // The palette applied, named as given, with the checksum of its bytes.
-        assert_eq!(doc["given_palette"]["file"], pal.to_str().unwrap());
+        // The palette applied, by its file name (not its folder: the same palette used
+        // from two places gives the same documents), with the checksum of its bytes.
+        assert_eq!(
+            doc["given_palette"]["file"],
+            pal.file_name().unwrap().to_str().unwrap()
+        );
         assert_eq!(doc["given_palette"]["sha256"], sha256(text.as_bytes()));
         assert_eq!(doc["given_palette"]["colours"], 6);
         // No K claimed that was not asked for: the palette's size; the unused settings

@@ -438,3 +438,59 @@ fn a_tiffs_resolution_orientation_and_camera_tags_reach_the_reduced_png() {
     let bytes = std::fs::read(bare.join("scan.reduced.png")).unwrap();
     assert!(!bytes.windows(4).any(|w| w == b"eXIf" || w == b"pHYs"));
 }
+
+#[test]
+fn outputs_an_earlier_run_left_behind_are_pointed_out() {
+    let dir = tempfile::tempdir().unwrap();
+    let img = dir.path().join("img.png");
+    common::write_rgb(&img, 64, 32, &corner_picture());
+    let out = dir.path().join("out");
+    let (i, o) = (img.to_str().unwrap(), out.to_str().unwrap());
+    let first = run(
+        &[
+            "reduce",
+            i,
+            "-k",
+            "3",
+            "--loss-map",
+            "--uncertainty-raw",
+            "-o",
+            o,
+        ],
+        &[],
+    );
+    assert_eq!(first.status.code(), Some(0), "{}", stderr(&first));
+    assert!(!stderr(&first).contains("earlier run"));
+    // Without the loss map: the old loss files stay (nothing of the user's is deleted)
+    // and each is named in a note.
+    let second = run(&["reduce", i, "-k", "4", "-o", o], &[]);
+    assert_eq!(second.status.code(), Some(0));
+    let err = stderr(&second);
+    for name in ["img.loss.tif", "img.loss.png", "img.uncertainty.tif"] {
+        assert!(out.join(name).is_file(), "{name}");
+        let line = err
+            .lines()
+            .find(|l| l.contains(name))
+            .unwrap_or_else(|| panic!("{name}: {err}"));
+        assert!(line.contains("earlier run"), "{line}");
+    }
+    // Asked for again, they are rewritten and nothing is said.
+    let third = run(
+        &[
+            "reduce",
+            i,
+            "-k",
+            "4",
+            "--loss-map",
+            "--uncertainty-raw",
+            "-o",
+            o,
+        ],
+        &[],
+    );
+    assert!(
+        !stderr(&third).contains("earlier run"),
+        "{}",
+        stderr(&third)
+    );
+}

@@ -170,19 +170,38 @@ fn histogram_files_keep_each_colours_profile() {
         "--json",
     ]);
     let summary: Value = serde_json::from_slice(&o.stdout).unwrap();
+    // Listed in file-name order.
     let inputs = summary["input_profiles"].as_array().unwrap();
-    assert_eq!(inputs[0]["input"], "icc");
-    assert_eq!(inputs[0]["description"], P3);
-    assert_eq!(inputs[1]["input"], "untagged");
+    let of = |file: &Path| {
+        inputs
+            .iter()
+            .find(|r| r["file"] == file.to_str().unwrap())
+            .unwrap_or_else(|| panic!("{}: {summary}", file.display()))
+    };
+    assert_eq!(of(&p3)["input"], "icc");
+    assert_eq!(of(&p3)["description"], P3);
+    assert_eq!(of(&plain)["input"], "untagged");
+    assert!(inputs[0]["file"].as_str() < inputs[1]["file"].as_str());
     assert_eq!(summary["distinct_colours"], 15);
 
-    // The file holds the profile (format version 2), and its entries read back through it
-    // as colour-science computes (lossless PNG: within 0.05 ΔE2000, the tolerance of
-    // tests/photo_archives.rs).
+    // The file holds the profile and the records of its images (format version 3), and
+    // its entries read back through the profile as colour-science computes (lossless
+    // PNG: within 0.05 ΔE2000, the tolerance of tests/photo_archives.rs).
     let bytes = std::fs::read(&hist).unwrap();
-    assert!(bytes.starts_with(b"CSHIST\x00\x02"));
-    let h = chromasift::batch::decode_histogram(&bytes, &hist).unwrap();
-    assert_eq!(chromasift::batch::encode_histogram(&h), bytes);
+    assert!(bytes.starts_with(b"CSHIST\x00\x03"));
+    let (h, listed) =
+        chromasift::features::histogram_file::decode_with_inputs(&bytes, &hist).unwrap();
+    assert_eq!(
+        serde_json::to_value(listed.unwrap()).unwrap(),
+        summary["input_profiles"]
+    );
+    assert_eq!(
+        chromasift::features::histogram_file::encode_with_inputs(
+            &h,
+            &serde_json::from_value::<Vec<_>>(summary["input_profiles"].clone()).unwrap()
+        ),
+        bytes
+    );
     assert_eq!(h.profiles.len(), 1);
     assert_entries_match(&h, P3, &patches("display-p3"), 0.05);
 
@@ -204,11 +223,28 @@ fn histogram_files_keep_each_colours_profile() {
         &patches("display-p3"),
         "learn from a histogram file",
     );
-    let rec = &f["input_profiles"][0];
+    // The file stands for its images: the same records as `learn` on the images.
+    assert_eq!(f["input_profiles"], i["input_profiles"]);
+
+    // Version 1 and 2 files are still what the library's `encode` writes, and they read
+    // as before, recorded as histogram files.
+    let v2 = dir.path().join("v2.hist");
+    std::fs::write(&v2, chromasift::batch::encode_histogram(&h)).unwrap();
+    assert!(std::fs::read(&v2).unwrap().starts_with(b"CSHIST\x00\x02"));
+    let from_v2 = dir.path().join("v2.json");
+    ok(&[
+        "learn",
+        v2.to_str().unwrap(),
+        "-k",
+        "15",
+        "-o",
+        from_v2.to_str().unwrap(),
+    ]);
+    let old = json(&from_v2);
+    assert_eq!(old["colors"], i["colors"]);
+    let rec = &old["input_profiles"][0];
     assert_eq!(rec["input"], "histogram-file");
     assert_eq!(rec["profiles"], serde_json::json!([P3]));
-
-    // A version 1 file (every entry sRGB) is still what an sRGB-only set writes.
     let plain_hist = dir.path().join("plain.hist");
     ok(&[
         "histogram",
@@ -218,7 +254,12 @@ fn histogram_files_keep_each_colours_profile() {
     ]);
     assert!(std::fs::read(&plain_hist)
         .unwrap()
-        .starts_with(b"CSHIST\x00\x01"));
+        .starts_with(b"CSHIST\x00\x03"));
+    let v1 = chromasift::batch::encode_histogram(
+        &chromasift::batch::decode_histogram(&std::fs::read(&plain_hist).unwrap(), &plain_hist)
+            .unwrap(),
+    );
+    assert!(v1.starts_with(b"CSHIST\x00\x01"));
 }
 
 /// A folder of an untagged sRGB image, a Display P3 image and a wide-gamut image.

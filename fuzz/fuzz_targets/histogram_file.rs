@@ -9,20 +9,21 @@
 //! finite scores and shares that sum to about 1.
 #![no_main]
 
-use chromasift::batch::{decode_histogram, encode_histogram};
+use chromasift::batch::encode_histogram;
+use chromasift::features::histogram_file::{decode_with_inputs, encode_with_inputs};
 use chromasift::reduce::{fnv1a, learn_palette, ReduceOptions};
 use libfuzzer_sys::fuzz_target;
 use std::path::Path;
 
 fn check(bytes: &[u8]) {
-    let Ok(h) = decode_histogram(bytes, Path::new("fuzz.hist")) else {
+    let Ok((h, inputs)) = decode_with_inputs(bytes, Path::new("fuzz.hist")) else {
         return;
     };
-    assert_eq!(
-        encode_histogram(&h),
-        bytes,
-        "decode then encode is the identity"
-    );
+    let again = match &inputs {
+        Some(list) => encode_with_inputs(&h, list),
+        None => encode_histogram(&h),
+    };
+    assert_eq!(again, bytes, "decode then encode is the identity");
     if h.len() > 64 {
         return;
     }

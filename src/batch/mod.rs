@@ -686,8 +686,8 @@ mod tests {
         };
         check(b"PNG....", "first bytes");
         let mut v = good.clone();
-        v[7] = 3;
-        check(&v, "version 3");
+        v[7] = 4;
+        check(&v, "version 4");
         check(&good[..good.len() - 3], "size");
         let mut v = good.clone();
         v[30] ^= 1;

@@ -340,7 +340,8 @@ fn run_histogram(args: &HistogramArgs) -> Result<ExitCode, Error> {
     profile_notes(&pooled.inputs);
     let hist = &pooled.histogram;
     let read = features::histogram_file::input_files(&args.inputs)?;
-    write_or_stdout(&args.out, &features::histogram_file::encode(hist), &read)?;
+    let bytes = features::histogram_file::encode_with_inputs(hist, &pooled.inputs);
+    write_or_stdout(&args.out, &bytes, &read)?;
     let (n, distinct) = (hist.total(), hist.len());
     eprintln!("chromasift: wrote {} ({n} pixels)", args.out.display());
     if args.json {

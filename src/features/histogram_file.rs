@@ -22,17 +22,26 @@ pub fn histogram_of_file(path: &Path, limits: &Limits) -> Result<Histogram> {
 
 /// The histogram of one input (a histogram file, or an image read through its embedded
 /// profile at 8 bits) and how its colours were read, recorded under `name`.
-pub fn read_input(path: &Path, limits: &Limits, name: String) -> Result<(Histogram, InputProfile)> {
+pub fn read_input(
+    path: &Path,
+    limits: &Limits,
+    name: String,
+) -> Result<(Histogram, Vec<InputProfile>)> {
     if let Some(bytes) = read_histogram_file(path, limits.max_alloc)? {
-        let h = decode(&bytes, path)?;
-        let record = InputProfile::of_histogram_file(name, &h);
-        return Ok((h, record));
+        let (h, inputs) = decode_with_inputs(&bytes, path)?;
+        // A file that lists the images it was made from stands for them, so a palette
+        // learned from shards records the same inputs as one learned from the images.
+        let records = match inputs {
+            Some(inputs) => inputs,
+            None => vec![InputProfile::of_histogram_file(name, &h)],
+        };
+        return Ok((h, records));
     }
     let img = raster::decode(path, limits)?;
     let ImageColours { indexed, profile } = image_colours_8bit(&img);
     Ok((
         indexed.histogram,
-        InputProfile::of_image(name, profile.as_ref()),
+        vec![InputProfile::of_image(name, profile.as_ref())],
     ))
 }
 
@@ -105,6 +114,9 @@ pub const HIST_MAGIC: &[u8; 8] = b"CSHIST\x00\x01";
 /// The first bytes of a version 2 file.
 const HIST_MAGIC_2: &[u8; 8] = b"CSHIST\x00\x02";
 
+/// The first bytes of a version 3 file.
+const HIST_MAGIC_3: &[u8; 8] = b"CSHIST\x00\x03";
+
 /// Encodes a histogram file (all integers little-endian). Version 1, when every entry is
 /// sRGB:
 /// magic (8) | depth u8 | 7 zero bytes | entries u64 | entries × (r, g, b u16; count u64) |
@@ -114,10 +126,29 @@ const HIST_MAGIC_2: &[u8; 8] = b"CSHIST\x00\x02";
 /// entries × (profile u32; r, g, b u16; count u64) | checksum; an entry's profile is 0
 /// for sRGB or 1 + the index of its ICC profile.
 pub fn encode(h: &Histogram) -> Vec<u8> {
-    let v2 = !h.profiles.is_empty();
+    encode_as(h, None)
+}
+
+/// Version 3, the file `histogram` writes: the layout of version 2 (with possibly no
+/// profile: profiles u64 = 0) and, after the entries, how each image in it was read:
+/// length u64 | a JSON array of `input_profiles` records, as the palette documents list
+/// them | checksum.
+pub fn encode_with_inputs(h: &Histogram, inputs: &[InputProfile]) -> Vec<u8> {
+    encode_as(h, Some(inputs))
+}
+
+fn encode_as(h: &Histogram, inputs: Option<&[InputProfile]>) -> Vec<u8> {
+    let v3 = inputs.is_some();
+    let v2 = v3 || !h.profiles.is_empty();
     let icc_bytes: usize = h.profiles.iter().map(|p| 8 + p.icc.len()).sum();
     let mut v = Vec::with_capacity(40 + icc_bytes + h.len() * 18);
-    v.extend_from_slice(if v2 { HIST_MAGIC_2 } else { HIST_MAGIC });
+    v.extend_from_slice(if v3 {
+        HIST_MAGIC_3
+    } else if v2 {
+        HIST_MAGIC_2
+    } else {
+        HIST_MAGIC
+    });
     v.push(h.depth);
     v.extend_from_slice(&[0u8; 7]);
     if v2 {
@@ -136,6 +167,11 @@ pub fn encode(h: &Histogram) -> Vec<u8> {
             v.extend_from_slice(&ch.to_le_bytes());
         }
         v.extend_from_slice(&n.to_le_bytes());
+    }
+    if let Some(inputs) = inputs {
+        let json = serde_json::to_vec(inputs).expect("input records serialise");
+        v.extend_from_slice(&(json.len() as u64).to_le_bytes());
+        v.extend_from_slice(&json);
     }
     let sum = fnv1a(&v);
     v.extend_from_slice(&sum.to_le_bytes());
@@ -161,8 +197,16 @@ impl<'a> Fields<'a> {
     }
 }
 
-/// Decodes and checks a histogram file (version 1 or 2); `path` is used in messages.
+/// Decodes and checks a histogram file (version 1, 2 or 3); `path` is used in messages.
 pub fn decode(bytes: &[u8], path: &Path) -> Result<Histogram> {
+    Ok(decode_with_inputs(bytes, path)?.0)
+}
+
+/// As [`decode`], with the records of the images a version 3 file was made from.
+pub fn decode_with_inputs(
+    bytes: &[u8],
+    path: &Path,
+) -> Result<(Histogram, Option<Vec<InputProfile>>)> {
     let bad = |m: &str| Error::Decode {
         path: path.into(),
         message: format!("not a valid chromasift histogram file: {m}"),
@@ -170,10 +214,11 @@ pub fn decode(bytes: &[u8], path: &Path) -> Result<Histogram> {
     if bytes.len() < 8 || &bytes[..6] != b"CSHIST" {
         return Err(bad("wrong first bytes"));
     }
-    let v2 = bytes[..8] == HIST_MAGIC_2[..];
+    let v3 = bytes[..8] == HIST_MAGIC_3[..];
+    let v2 = v3 || bytes[..8] == HIST_MAGIC_2[..];
     if bytes[..8] != HIST_MAGIC[..] && !v2 {
         return Err(bad(&format!(
-            "format version {} is not supported (this tool reads versions 1 and 2)",
+            "format version {} is not supported (this tool reads versions 1 to 3)",
             bytes[7]
         )));
     }
@@ -197,7 +242,7 @@ pub fn decode(bytes: &[u8], path: &Path) -> Result<Histogram> {
     let mut iccs: Vec<&[u8]> = Vec::new();
     if v2 {
         let count = f.u64().ok_or_else(truncated)?;
-        if count == 0 {
+        if count == 0 && !v3 {
             return Err(bad("a version 2 file holds at least one colour profile"));
         }
         for _ in 0..count {
@@ -207,10 +252,19 @@ pub fn decode(bytes: &[u8], path: &Path) -> Result<Histogram> {
     }
     let n = f.u64().ok_or_else(truncated)?;
     let size = if v2 { 18 } else { 14 };
-    let expected = n.checked_mul(size).and_then(|b| b.checked_add(f.at as u64));
-    if expected != Some(body.len() as u64) {
+    let entries = f
+        .take(n.checked_mul(size).ok_or_else(truncated)?)
+        .ok_or_else(truncated)?;
+    let inputs = if v3 {
+        let len = f.u64().ok_or_else(truncated)?;
+        Some(f.take(len).ok_or_else(truncated)?)
+    } else {
+        None
+    };
+    if f.at != body.len() {
         return Err(truncated());
     }
+
     if fnv1a(body) != sum {
         return Err(bad("checksum mismatch (damaged file)"));
     }
@@ -233,7 +287,7 @@ pub fn decode(bytes: &[u8], path: &Path) -> Result<Histogram> {
     let mut used = vec![false; profiles.len() + 1];
     let mut total = 0u64;
     let mut last: Option<(u32, [u16; 3])> = None;
-    for e in body[f.at..].chunks_exact(size as usize) {
+    for e in entries.chunks_exact(size as usize) {
         let (profile, e) = if v2 {
             (u32::from_le_bytes(e[..4].try_into().unwrap()), &e[4..])
         } else {
@@ -276,13 +330,32 @@ pub fn decode(bytes: &[u8], path: &Path) -> Result<Histogram> {
     if used[1..].iter().any(|u| !u) {
         return Err(bad("a colour profile is used by no entry"));
     }
-    Ok(Histogram {
+    let inputs = match inputs {
+        Some(json) => {
+            let list = serde_json::from_slice::<Vec<InputProfile>>(json)
+                .map_err(|e| bad(&format!("the list of images it was made from: {e}")))?;
+            // Written compactly, as `encode_with_inputs` writes it: one encoding per file.
+            if serde_json::to_vec(&list).ok().as_deref() != Some(json) {
+                return Err(bad(
+                    "the list of images it was made from is not written as this tool writes it",
+                ));
+            }
+            Some(list)
+        }
+        None => None,
+    };
+    if profiles.is_empty() {
+        // Every entry sRGB (a version 3 file may say so entry by entry): as version 1.
+        entry_profile.clear();
+    }
+    let h = Histogram {
         depth,
         colours,
         counts,
         profiles,
         entry_profile,
-    })
+    };
+    Ok((h, inputs))
 }
 
 /// The files `learn` and `histogram` read for `inputs`: each folder's images, and
@@ -313,7 +386,8 @@ pub fn gather(inputs: &[PathBuf], limits: &Limits) -> Result<Histogram> {
 #[derive(Debug)]
 pub struct Pooled {
     pub histogram: Histogram,
-    /// Per input read, in input order.
+    /// How each image was read (a histogram file that lists its images stands for them),
+    /// in file-name order.
     pub inputs: Vec<InputProfile>,
     /// Each input that could not be read (path and error), in input order.
     pub failures: Vec<(PathBuf, Error)>,
@@ -347,7 +421,10 @@ pub fn gather_lenient(inputs: &[PathBuf], limits: &Limits) -> Result<Pooled> {
 /// Merges what [`merge_as_they_arrive`] gathered into one histogram; `path` names item
 /// `i` in failures. Fails when nothing could be read (with the first error), past
 /// [`histogram::MAX_TOTAL`] pixels, or on depths that cannot merge.
-pub(crate) fn pool(g: Gathered<InputProfile>, path: impl Fn(usize) -> PathBuf) -> Result<Pooled> {
+pub(crate) fn pool(
+    g: Gathered<Vec<InputProfile>>,
+    path: impl Fn(usize) -> PathBuf,
+) -> Result<Pooled> {
     let failures: Vec<(PathBuf, Error)> =
         g.failures.into_iter().map(|(i, e)| (path(i), e)).collect();
     if g.parts.is_empty() {
@@ -369,9 +446,14 @@ pub(crate) fn pool(g: Gathered<InputProfile>, path: impl Fn(usize) -> PathBuf) -
     let histogram = Histogram::merge(&g.parts).ok_or_else(|| {
         Error::Data("the histograms mix 8- and 16-bit tables and cannot be merged".into())
     })?;
+    // Listed by file name, so the record, like the merged histogram, does not depend on
+    // the order the inputs were given or gathered in (a folder learned whole and the same
+    // images summarised in shards list the same inputs).
+    let mut inputs: Vec<InputProfile> = g.records.into_iter().flat_map(|(_, r)| r).collect();
+    inputs.sort_by(|a, b| a.file.cmp(&b.file));
     Ok(Pooled {
         histogram,
-        inputs: g.records.into_iter().map(|(_, r)| r).collect(),
+        inputs,
         failures,
     })
 }
@@ -482,6 +564,54 @@ mod tests {
         ])
         .unwrap();
         (h, p3, grey)
+    }
+
+    #[test]
+    fn version_3_files_carry_the_records_of_their_images() {
+        let (tagged_h, _, _) = tagged();
+        let plain = Histogram {
+            depth: 8,
+            colours: vec![[1, 2, 3], [9, 9, 9]],
+            counts: vec![4, 1],
+            ..Histogram::default()
+        };
+        let p = Path::new("shard.hist");
+        for h in [plain, tagged_h] {
+            let inputs = vec![
+                InputProfile::of_image("a/one.png".into(), None),
+                InputProfile::of_image("b/two.jpg".into(), None),
+            ];
+            let bytes = encode_with_inputs(&h, &inputs);
+            assert!(bytes.starts_with(b"CSHIST\x00\x03"));
+            let (back, listed) = decode_with_inputs(&bytes, p).unwrap();
+            assert_eq!(back, h);
+            assert_eq!(listed.as_ref(), Some(&inputs));
+            // The records are written one way only (compact JSON): spaced out, refused.
+            let json = serde_json::to_vec(&inputs).unwrap();
+            let spaced = serde_json::to_vec_pretty(&inputs).unwrap();
+            let head = bytes.len() - 8 - json.len() - 8;
+            let mut v = bytes[..head].to_vec();
+            v.extend_from_slice(&(spaced.len() as u64).to_le_bytes());
+            v.extend_from_slice(&spaced);
+            let sum = fnv1a(&v);
+            v.extend_from_slice(&sum.to_le_bytes());
+            assert!(decode(&v, p)
+                .unwrap_err()
+                .to_string()
+                .contains("as this tool writes"));
+            // The records are under the checksum, and cut short is refused.
+            let mut v = bytes.clone();
+            let at = v.len() - 10;
+            v[at] ^= 1;
+            assert!(decode(&v, p).unwrap_err().to_string().contains("checksum"));
+            let mut v = bytes[..bytes.len() - 20].to_vec();
+            let sum = fnv1a(&v);
+            v.extend_from_slice(&sum.to_le_bytes());
+            assert!(decode(&v, p).unwrap_err().to_string().contains("truncated"));
+        }
+        // Versions 1 and 2 list no images.
+        let (h, _, _) = tagged();
+        assert_eq!(decode_with_inputs(&encode(&h), p).unwrap().1, None);
     }
 
     #[test]

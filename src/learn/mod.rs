@@ -73,8 +73,14 @@ pub fn read_palette(path: &Path) -> Result<FixedPalette> {
     } else {
         palette_from_table(body, path, &limits)?
     };
+    // Named without its folder, as a document names its input image: the same palette
+    // used from two places gives the same documents (the SHA-256 identifies it).
+    let name = path
+        .file_name()
+        .unwrap_or(path.as_os_str())
+        .to_string_lossy();
     palette.origin = Some(GivenPalette::of_bytes(
-        &path.to_string_lossy(),
+        &name,
         text.as_bytes(),
         palette.colours.len(),
     ));

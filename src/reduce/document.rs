@@ -145,8 +145,8 @@ pub struct PaletteDocument {
 /// Where a given palette came from, as recorded in the documents.
 #[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize)]
 pub struct GivenPalette {
-    /// The file as it was named on the command line (`shared.palette.json` for a batch's
-    /// shared palette).
+    /// The file's name without its folder, as the document names its input image
+    /// (`shared.palette.json` for a batch's shared palette); `sha256` identifies it.
     pub file: String,
     /// SHA-256 of the file's bytes, as lowercase hex (what `sha256sum` prints).
     pub sha256: String,

@@ -419,14 +419,39 @@ pub fn reduce_file_run(
         },
     )?;
     ph.mark("rename into place");
+    let mut notes = red.notes;
+    notes.extend(stale_outputs(out_dir, &stem, opts));
     Ok(ReduceReport {
         input: input.into(),
         outputs,
         document: red.document,
-        notes: red.notes,
+        notes,
         warnings: red.warnings,
         seconds: t0.elapsed().as_secs_f64(),
     })
+}
+
+/// Notes on optional outputs of this stem that this run did not write but an earlier run
+/// left in the folder (they no longer match the reduced image beside them).
+fn stale_outputs(out_dir: &Path, stem: &str, opts: &ReduceOptions) -> Vec<String> {
+    let mut optional: Vec<String> = Vec::new();
+    if !opts.uncertainty_raw {
+        optional.push(output_names(stem)[4].clone());
+    }
+    if !opts.loss_map {
+        optional.extend(loss_names(stem));
+    }
+    optional
+        .into_iter()
+        .filter(|name| out_dir.join(name).is_file())
+        .map(|name| {
+            format!(
+                "{} is left from an earlier run and was not rewritten by this one: it does \
+                 not describe the new reduced image",
+                out_dir.join(name).display()
+            )
+        })
+        .collect()
 }
 
 #[cfg(test)]

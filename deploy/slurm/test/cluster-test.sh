@@ -226,7 +226,9 @@ one="$work/one-machine"
 # --- archive: one machine ------------------------------------------------------------
 
 t0=$SECONDS
-"$bin" learn fixtures/photos -k $k -o "$one/archive/palette.json" 2>/dev/null
+# The folder by its absolute path, as the run's manifest holds the images: the palette
+# lists each image it was learned from by the path it was given.
+"$bin" learn "$repo/fixtures/photos" -k $k -o "$one/archive/palette.json" 2>/dev/null
 "$bin" batch fixtures/photos --palette "$one/archive/palette.json" --quiet -o "$one/archive/out" 2>/dev/null
 say "archive on one machine: ${#photos[@]} images in $((SECONDS - t0)) s"
 
@@ -347,7 +349,15 @@ cp fixtures/photos/{immunohistochemistry,retina,rocket}.png "$nested/"
 printf '%s\n' "$nested/harbour" "$nested/survey" "$nested"/*.png >"$work/nested.txt"
 "$bin" learn "$nested" -k $k -o "$one/nested/palette.json" 2>/dev/null
 "$bin" batch "$nested" --palette "$one/nested/palette.json" --quiet -o "$one/nested/out" 2>/dev/null
-cmp "$one/nested/palette.json" "$one/archive/palette.json" || fail "moving the photos into sub-folders changed the palette"
+# The same colours; the documents differ only in the paths of the images they list.
+same_colours() {
+  python3 -c 'import json, sys
+a, b = (json.load(open(p)) for p in sys.argv[1:])
+for d in (a, b):
+    d.pop("input_profiles")
+sys.exit(a != b)' "$1" "$2"
+}
+same_colours "$one/nested/palette.json" "$one/archive/palette.json" || fail "moving the photos into sub-folders changed the palette"
 run="$work/parallel-archive"
 deploy/parallel/archive.sh "$work/nested.txt" "$run" --jobs 2 --per-shard 2 --root "$nested" \
   --bin "$bin" -k $k 2>"$work/parallel.err" || {
