@@ -53,6 +53,14 @@ fn corner_picture() -> Vec<u8> {
     v
 }
 
+/// `reduce FILE -k K [EXTRA...] -o OUT`.
+fn reduce(file: &Path, k: &str, extra: &[&str], out: &Path) -> std::process::Output {
+    let mut args = vec!["reduce", file.to_str().unwrap(), "-k", k];
+    args.extend_from_slice(extra);
+    args.extend(["-o", out.to_str().unwrap()]);
+    run(&args, &[])
+}
+
 fn near(p: &image::Rgba<u8>, c: [u8; 3]) -> bool {
     (0..3).all(|i| (p.0[i] as i32 - c[i] as i32).abs() <= 40)
 }
@@ -144,17 +152,7 @@ fn a_damaged_iccp_chunk_is_reported_like_an_unusable_profile() {
         )
         .unwrap();
         let out = dir.path().join(name);
-        let o = run(
-            &[
-                "reduce",
-                file.to_str().unwrap(),
-                "-k",
-                "2",
-                "-o",
-                out.to_str().unwrap(),
-            ],
-            &[],
-        );
+        let o = reduce(&file, "2", &[], &out);
         assert_eq!(o.status.code(), Some(0), "{}", stderr(&o));
         let note = stderr(&o)
             .lines()
@@ -308,17 +306,7 @@ fn counts_agree_with_their_nouns() {
     let dir = tempfile::tempdir().unwrap();
     let img = dir.path().join("flat.png");
     common::write_rgb(&img, 8, 8, &GREY.repeat(64));
-    let o = run(
-        &[
-            "reduce",
-            img.to_str().unwrap(),
-            "-k",
-            "1",
-            "-o",
-            dir.path().join("out").to_str().unwrap(),
-        ],
-        &[],
-    );
+    let o = reduce(&img, "1", &[], &dir.path().join("out"));
     assert_eq!(o.status.code(), Some(0), "{}", stderr(&o));
     let err = stderr(&o);
     assert!(err.contains(": 1 colour,"), "{err}");
@@ -387,17 +375,7 @@ fn a_tiffs_resolution_orientation_and_camera_tags_reach_the_reduced_png() {
         img.write_data(&corner_picture()).unwrap();
     }
     let out = dir.path().join("out");
-    let o = run(
-        &[
-            "reduce",
-            file.to_str().unwrap(),
-            "-k",
-            "2",
-            "-o",
-            out.to_str().unwrap(),
-        ],
-        &[],
-    );
+    let o = reduce(&file, "2", &[], &out);
     assert_eq!(o.status.code(), Some(0), "{}", stderr(&o));
     let bytes = std::fs::read(out.join("scan.reduced.png")).unwrap();
     let r = png::Decoder::new(std::io::Cursor::new(&bytes))
@@ -422,18 +400,7 @@ fn a_tiffs_resolution_orientation_and_camera_tags_reach_the_reduced_png() {
     }
     // Dropped for privacy.
     let bare = dir.path().join("bare");
-    let o = run(
-        &[
-            "reduce",
-            file.to_str().unwrap(),
-            "-k",
-            "2",
-            "--strip-metadata",
-            "-o",
-            bare.to_str().unwrap(),
-        ],
-        &[],
-    );
+    let o = reduce(&file, "2", &["--strip-metadata"], &bare);
     assert_eq!(o.status.code(), Some(0));
     let bytes = std::fs::read(bare.join("scan.reduced.png")).unwrap();
     assert!(!bytes.windows(4).any(|w| w == b"eXIf" || w == b"pHYs"));
@@ -445,25 +412,13 @@ fn outputs_an_earlier_run_left_behind_are_pointed_out() {
     let img = dir.path().join("img.png");
     common::write_rgb(&img, 64, 32, &corner_picture());
     let out = dir.path().join("out");
-    let (i, o) = (img.to_str().unwrap(), out.to_str().unwrap());
-    let first = run(
-        &[
-            "reduce",
-            i,
-            "-k",
-            "3",
-            "--loss-map",
-            "--uncertainty-raw",
-            "-o",
-            o,
-        ],
-        &[],
-    );
+    let both = ["--loss-map", "--uncertainty-raw"];
+    let first = reduce(&img, "3", &both, &out);
     assert_eq!(first.status.code(), Some(0), "{}", stderr(&first));
     assert!(!stderr(&first).contains("earlier run"));
     // Without the loss map: the old loss files stay (nothing of the user's is deleted)
     // and each is named in a note.
-    let second = run(&["reduce", i, "-k", "4", "-o", o], &[]);
+    let second = reduce(&img, "4", &[], &out);
     assert_eq!(second.status.code(), Some(0));
     let err = stderr(&second);
     for name in ["img.loss.tif", "img.loss.png", "img.uncertainty.tif"] {
@@ -475,19 +430,7 @@ fn outputs_an_earlier_run_left_behind_are_pointed_out() {
         assert!(line.contains("earlier run"), "{line}");
     }
     // Asked for again, they are rewritten and nothing is said.
-    let third = run(
-        &[
-            "reduce",
-            i,
-            "-k",
-            "4",
-            "--loss-map",
-            "--uncertainty-raw",
-            "-o",
-            o,
-        ],
-        &[],
-    );
+    let third = reduce(&img, "4", &both, &out);
     assert!(
         !stderr(&third).contains("earlier run"),
         "{}",
