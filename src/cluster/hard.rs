@@ -1,6 +1,7 @@
 //! Hard k-means: weighted Lloyd iterations, optionally accelerated with Hamerly (2010)
 //! distance bounds. Both paths make the same decisions and give the same result.
 
+use super::bounds::Moves;
 use super::{dist2, nearest_two, nearest_two_by_dim, Dataset, MeansByDim, CHUNK};
 use rayon::prelude::*;
 use std::sync::atomic::{AtomicUsize, Ordering::Relaxed};
@@ -191,78 +192,6 @@ fn full_pass_dim(
         })
         .collect();
     combine(parts, k, dim)
-}
-
-/// How far the means moved in the last update, for the bound test of [`bounded_pass`].
-struct Moves {
-    /// Distance each mean moved.
-    shift: Vec<f64>,
-    /// The mean that moved most, and the largest and second-largest moves.
-    most: usize,
-    p1: f64,
-    p2: f64,
-    /// Half the distance from each mean to its nearest other mean.
-    half_gap: Vec<f64>,
-    /// Since the last full pass, per cluster: the summed moves of its mean (the upper
-    /// bound of a row in it grows by this) and the summed largest move of any other mean
-    /// (its lower bound shrinks by this). Rows store bounds net of these sums, so a row
-    /// the bounds settle is only read, never written.
-    up: Vec<f64>,
-    down: Vec<f64>,
-}
-
-impl Moves {
-    fn new(old: &[f64], means: &[f64], means32: &[f32], dim: usize) -> Moves {
-        let k = means.len() / dim;
-        let shift: Vec<f64> = (0..k)
-            .map(|j| {
-                (0..dim)
-                    .map(|d| (means[j * dim + d] - old[j * dim + d]).powi(2))
-                    .sum::<f64>()
-                    .sqrt()
-            })
-            .collect();
-        let (mut p1, mut most, mut p2) = (0.0f64, usize::MAX, 0.0f64);
-        for (j, &p) in shift.iter().enumerate() {
-            if p > p1 {
-                p2 = p1;
-                p1 = p;
-                most = j;
-            } else if p > p2 {
-                p2 = p;
-            }
-        }
-        let half_gap: Vec<f64> = (0..k)
-            .map(|j| {
-                let mj = &means32[j * dim..(j + 1) * dim];
-                (0..k)
-                    .filter(|&o| o != j)
-                    .map(|o| (dist2(mj, &means32[o * dim..(o + 1) * dim]) as f64).sqrt())
-                    .fold(f64::INFINITY, f64::min)
-                    * 0.5
-            })
-            .collect();
-        Moves {
-            shift,
-            most,
-            p1,
-            p2,
-            half_gap,
-            up: vec![0.0; k],
-            down: vec![0.0; k],
-        }
-    }
-
-    /// Adds this update's moves to the sums `up` and `down` carried since the last full
-    /// pass, and keeps the new sums.
-    fn accumulate(&mut self, up: &mut [f64], down: &mut [f64]) {
-        for j in 0..up.len() {
-            up[j] += self.shift[j];
-            down[j] += if j == self.most { self.p2 } else { self.p1 };
-        }
-        self.up = up.to_vec();
-        self.down = down.to_vec();
-    }
 }
 
 /// One pass that widens each row's bounds by the moves of the means since the last full
@@ -507,6 +436,7 @@ pub(crate) const ABANDON_FACTOR: f64 = 3.0;
 /// A trial of the global refinement: Lloyd as [`lloyd`] (accelerated), given up as soon
 /// as its SSE cannot fall below `mark` by the rule of [`ABANDON_FACTOR`] (`None`). A trial
 /// that is not given up returns its result whatever its SSE.
+#[cfg(test)]
 pub(crate) fn lloyd_trial(
     data: &Dataset,
     init: &[f32],
@@ -514,6 +444,88 @@ pub(crate) fn lloyd_trial(
     mark: f64,
 ) -> Option<LloydResult> {
     lloyd_run(data, init, 0, stop, true, Some(mark))
+}
+
+/// The shift limit of [`Stop::shift_tolerance`] on `data`: what every run with `stop`
+/// computes first (one pass over the rows), computed once for many trials.
+pub(crate) fn shift_limit(data: &Dataset, stop: Stop) -> f64 {
+    if stop.shift_tolerance > 0.0 {
+        stop.shift_tolerance * mean_variance(data)
+    } else {
+        -1.0
+    }
+}
+
+/// As [`lloyd_trial`], when the caller already knows each row's nearest mean under
+/// `init`: `nearest(i, row)` gives what a full search over `init` would (the index, the
+/// lowest on ties, and the squared distance), and a squared distance no greater than the
+/// second-nearest's. The labels and statistics are then those of a full first pass, so
+/// the result is bit for bit [`lloyd_trial`]'s; only the first pass's search is saved.
+/// `shift_limit` is [`shift_limit`] of `data` and `stop`.
+pub(crate) fn lloyd_trial_from<F>(
+    data: &Dataset,
+    init: &[f32],
+    stop: Stop,
+    mark: f64,
+    shift_limit: f64,
+    nearest: F,
+) -> Option<LloydResult>
+where
+    F: Fn(usize, &[f32]) -> (usize, f32, f32) + Sync,
+{
+    let k = init.len() / data.dim();
+    let n = data.len();
+    let mut first = First {
+        labels: vec![0u32; n],
+        upper: vec![0.0f64; n],
+        lower: vec![0.0f64; n],
+        stats: Stats {
+            k,
+            dim: data.dim(),
+            v: Vec::new(),
+        },
+    };
+    first.stats = seeded_pass(data, k, &mut first, nearest);
+    lloyd_core(data, init, 0, stop, true, Some(mark), shift_limit, first)
+}
+
+/// The state after a first pass: labels, bounds and the clusters' statistics.
+struct First {
+    labels: Vec<u32>,
+    upper: Vec<f64>,
+    lower: Vec<f64>,
+    stats: Stats,
+}
+
+/// A first pass whose nearest means come from `nearest`: the same chunks, order of
+/// additions and bounds as [`full_pass`] from no labels.
+fn seeded_pass<F>(data: &Dataset, k: usize, first: &mut First, nearest: F) -> Stats
+where
+    F: Fn(usize, &[f32]) -> (usize, f32, f32) + Sync,
+{
+    let dim = data.dim();
+    let stride = dim + 3;
+    let parts: Vec<(usize, Vec<f64>)> = first
+        .labels
+        .par_chunks_mut(CHUNK)
+        .zip(first.upper.par_chunks_mut(CHUNK))
+        .zip(first.lower.par_chunks_mut(CHUNK))
+        .enumerate()
+        .map(|(c, ((ls, us), lo))| {
+            let mut v = vec![0.0f64; k * stride];
+            for o in 0..ls.len() {
+                let i = c * CHUNK + o;
+                let x = data.row(i);
+                let (b, d1, d2) = nearest(i, x);
+                add_row(&mut v, stride, b, x, data.weight(i));
+                ls[o] = b as u32;
+                us[o] = (d1 as f64).sqrt();
+                lo[o] = (d2 as f64).sqrt();
+            }
+            (ls.len(), v)
+        })
+        .collect();
+    combine(parts, k, dim).1
 }
 
 fn lloyd_run(
@@ -524,22 +536,54 @@ fn lloyd_run(
     accelerate: bool,
     mark: Option<f64>,
 ) -> Option<LloydResult> {
-    let dim = data.dim();
     let n = data.len();
-    let k = init.len() / dim;
-    let shift_limit = if stop.shift_tolerance > 0.0 {
-        stop.shift_tolerance * mean_variance(data)
-    } else {
-        -1.0
-    };
-    let mut means: Vec<f64> = init.iter().map(|&v| v as f64).collect();
-    let mut means32 = init.to_vec();
+    let shift_limit = shift_limit(data, stop);
     let mut labels = vec![u32::MAX; n];
     let mut upper = vec![0.0f64; n];
     let mut lower = vec![0.0f64; n];
     // The statistics are kept from pass to pass: each pass returns only the changes made
     // by rows that moved to another cluster (the first pass adds every row).
-    let (_, mut stats) = full_pass(data, &means32, &mut labels, &mut upper, &mut lower);
+    let (_, stats) = full_pass(data, init, &mut labels, &mut upper, &mut lower);
+    let first = First {
+        labels,
+        upper,
+        lower,
+        stats,
+    };
+    lloyd_core(
+        data,
+        init,
+        fixed,
+        stop,
+        accelerate,
+        mark,
+        shift_limit,
+        first,
+    )
+}
+
+#[allow(clippy::too_many_arguments)]
+fn lloyd_core(
+    data: &Dataset,
+    init: &[f32],
+    fixed: usize,
+    stop: Stop,
+    accelerate: bool,
+    mark: Option<f64>,
+    shift_limit: f64,
+    first: First,
+) -> Option<LloydResult> {
+    let dim = data.dim();
+    let n = data.len();
+    let k = init.len() / dim;
+    let mut means: Vec<f64> = init.iter().map(|&v| v as f64).collect();
+    let mut means32: Vec<f32>;
+    let First {
+        mut labels,
+        mut upper,
+        mut lower,
+        mut stats,
+    } = first;
 
     let mut prev_sse = f64::INFINITY;
     let (mut up, mut down) = (vec![0.0f64; k], vec![0.0f64; k]);

@@ -10,6 +10,7 @@
 //! and per-chunk partial sums are reduced in chunk order.
 
 mod anneal;
+mod bounds;
 mod choose;
 mod dataset;
 mod engine;

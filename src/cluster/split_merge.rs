@@ -13,8 +13,8 @@
 //! worse than the Lloyd optimum it started from. No random numbers: same input, same
 //! result.
 
-use super::hard::{lloyd, lloyd_trial, Stop};
-use super::{nearest_two, Dataset, CHUNK};
+use super::hard::{lloyd, lloyd_trial_from, shift_limit, Stop};
+use super::{dist2, nearest_two, Dataset, CHUNK};
 use rayon::prelude::*;
 
 /// Candidate clusters tried per move on each side (to split, to give up): up to
@@ -28,6 +28,12 @@ const TRIES: usize = 3;
 /// faster at 0.03 % higher SSE on the photos of `tests/engine_quality.rs` and the same
 /// Centroid Index 0 on the generated sets (DEVELOPERS.md, "Global refinement").
 const TRIAL_ITERATIONS: usize = 8;
+
+/// A cluster's best split: (SSE decrease, first half's mean, second half's mean).
+type Split = (f64, Vec<f64>, Vec<f64>);
+
+/// A row's nearest mean and squared distances to its nearest two means.
+type Near = (u32, f32, f32);
 
 /// What the reallocation did.
 #[derive(Debug, Clone, PartialEq)]
@@ -86,7 +92,7 @@ fn principal(cov: &[f64], dim: usize) -> (f64, Vec<f64>) {
 /// The best split of one cluster in two: 2-means over its rows, from its mean ± 0.8 σ
 /// along its principal axis (the halves' centroids of a normal distribution sit at
 /// ±√(2/π) σ ≈ 0.8 σ). Returns (SSE decrease, first half's mean, second half's mean).
-fn split_two(data: &Dataset, members: &[u32]) -> (f64, Vec<f64>, Vec<f64>) {
+fn split_two(data: &Dataset, members: &[u32]) -> Split {
     let dim = data.dim();
     let mut mass = 0.0;
     let mut sum = vec![0.0f64; dim];
@@ -160,6 +166,28 @@ fn split_two(data: &Dataset, members: &[u32]) -> (f64, Vec<f64>, Vec<f64>) {
     ((whole - split_sse).max(0.0), a, b)
 }
 
+/// The nearest of a row's old nearest mean `a` (squared distance `d1`, `d2` to the second
+/// nearest) and two moved means `p`, `q`, all others unmoved, with the lowest index on
+/// ties as a full search gives; and a squared distance no greater than the second
+/// nearest's (every unmoved mean but `a` is at least `d2` away).
+fn seeded_nearest(
+    (a, d1, d2): (usize, f32, f32),
+    p: (usize, f32),
+    q: (usize, f32),
+) -> (usize, f32, f32) {
+    let mut best = (a, d1);
+    let mut rest = d2;
+    for (m, d) in [p, q] {
+        if d < best.1 {
+            rest = rest.min(best.1);
+            best = (m, d);
+        } else {
+            rest = rest.min(d);
+        }
+    }
+    (best.0, best.1, rest)
+}
+
 /// The Lloyd stopping rule of the moves' trials: at most 50 iterations, the caller's
 /// relative SSE tolerance, and the centre-shift rule at its default.
 pub(crate) fn trial_stop(tolerance: f64) -> Stop {
@@ -228,35 +256,48 @@ pub fn split_merge(data: &Dataset, init: &[f32], max_moves: usize, stop: Stop) -
     } = TrialStart::new(data, init, stop);
     let start_sse = sse;
     let mut moves = 0;
+    let limit = shift_limit(data, stop);
+    let mut last_round: Vec<(Vec<u32>, Split)> = Vec::new();
     while moves < max_moves && k >= 2 {
-        // Each row's nearest mean, and what giving that mean up would cost it.
-        let parts: Vec<(Vec<u32>, Vec<f64>)> = data
+        // Each row's nearest mean and distances to its nearest two, and what giving that
+        // mean up would cost it.
+        let parts: Vec<(Vec<Near>, Vec<f64>)> = data
             .rows()
             .par_chunks(CHUNK * dim)
             .enumerate()
             .map(|(c, rows)| {
-                let mut labels = Vec::with_capacity(rows.len() / dim);
+                let mut near = Vec::with_capacity(rows.len() / dim);
                 let mut cost = vec![0.0f64; k];
                 for (o, x) in rows.chunks_exact(dim).enumerate() {
                     let (j, d1, d2) = nearest_two(x, &means, dim);
                     cost[j] += data.weight(c * CHUNK + o) * (d2 - d1) as f64;
-                    labels.push(j as u32);
+                    near.push((j as u32, d1, d2));
                 }
-                (labels, cost)
+                (near, cost)
             })
             .collect();
         let mut removal = vec![0.0f64; k];
         let mut members: Vec<Vec<u32>> = vec![Vec::new(); k];
+        let mut near: Vec<Near> = Vec::with_capacity(data.len());
         let mut i = 0u32;
-        for (labels, cost) in &parts {
-            removal.iter_mut().zip(cost).for_each(|(r, c)| *r += c);
-            for &j in labels {
+        for (part, cost) in parts {
+            removal.iter_mut().zip(&cost).for_each(|(r, c)| *r += c);
+            for &(j, _, _) in &part {
                 members[j as usize].push(i);
                 i += 1;
             }
+            near.extend(part);
         }
-        let splits: Vec<(f64, Vec<f64>, Vec<f64>)> =
-            members.par_iter().map(|m| split_two(data, m)).collect();
+        // A cluster's split depends only on its rows: one whose rows are those of the
+        // last round keeps its split.
+        let splits: Vec<Split> = members
+            .par_iter()
+            .enumerate()
+            .map(|(c, m)| match last_round.get(c) {
+                Some((rows, split)) if rows == m => split.clone(),
+                _ => split_two(data, m),
+            })
+            .collect();
         let mut give_up: Vec<usize> = (0..k).collect();
         give_up.sort_by(|&a, &b| removal[a].total_cmp(&removal[b]).then(a.cmp(&b)));
         let mut to_split: Vec<usize> = (0..k).filter(|&c| splits[c].0 > 0.0).collect();
@@ -278,7 +319,20 @@ pub fn split_merge(data: &Dataset, init: &[f32], max_moves: usize, stop: Stop) -
                     max_iter: stop.max_iter.min(TRIAL_ITERATIONS),
                     ..stop
                 };
-                let Some(r) = lloyd_trial(data, &trial, cut, sse * margin) else {
+                // Only means c and j moved: a row's nearest mean is its old one or one
+                // of those two, unless its old one was c or j.
+                let seeded = |i: usize, x: &[f32]| {
+                    let (a, d1, d2) = near[i];
+                    let a = a as usize;
+                    if a == c || a == j {
+                        return nearest_two(x, &trial, dim);
+                    }
+                    let dc = dist2(x, &trial[c * dim..(c + 1) * dim]);
+                    let dj = dist2(x, &trial[j * dim..(j + 1) * dim]);
+                    seeded_nearest((a, d1, d2), (c, dc), (j, dj))
+                };
+                let Some(r) = lloyd_trial_from(data, &trial, cut, sse * margin, limit, seeded)
+                else {
                     continue;
                 };
                 if r.sse < sse * margin {
@@ -295,6 +349,7 @@ pub fn split_merge(data: &Dataset, init: &[f32], max_moves: usize, stop: Stop) -
         if !kept {
             break;
         }
+        last_round = members.into_iter().zip(splits).collect();
         moves += 1;
     }
     SplitMerge {
@@ -353,6 +408,77 @@ mod tests {
         assert!((r.start_sse - 200.0).abs() < 1e-6);
         // Tight groups merged at 0.5 (cost 200 × 0.25 = 50), wide ones served exactly.
         assert!((r.sse - 50.0).abs() < 1e-6, "{}", r.sse);
+    }
+
+    #[test]
+    fn a_trial_seeded_from_the_old_assignment_is_the_plain_trial() {
+        // Rows on a coarse lattice (many exact distance ties) and means on the same
+        // lattice; moving two means and seeding the first pass from the old nearest means
+        // must give the plain trial bit for bit, given up or not.
+        let mut rows = Vec::new();
+        for a in 0..40 {
+            for b in 0..30 {
+                rows.extend([(a % 13) as f32, ((a * 7 + b) % 11) as f32]);
+            }
+        }
+        let data = Dataset::new(&rows, 2, None).unwrap();
+        let means = [
+            0.0f32, 0.0, 4.0, 4.0, 8.0, 2.0, 12.0, 10.0, 2.0, 9.0, 6.0, 6.0,
+        ];
+        let dim = 2;
+        let near: Vec<Near> = rows
+            .chunks_exact(dim)
+            .map(|x| {
+                let (j, d1, d2) = nearest_two(x, &means, dim);
+                (j as u32, d1, d2)
+            })
+            .collect();
+        let stop = trial_stop(1e-4);
+        let limit = shift_limit(&data, stop);
+        for (c, j, to_c, to_j) in [
+            (1, 4, [5.0f32, 5.0], [1.0f32, 1.0]),
+            (0, 5, [4.0, 4.0], [8.0, 2.0]),
+            (3, 2, [0.5, 7.5], [11.0, 3.0]),
+        ] {
+            let mut trial = means.to_vec();
+            trial[c * dim..(c + 1) * dim].copy_from_slice(&to_c);
+            trial[j * dim..(j + 1) * dim].copy_from_slice(&to_j);
+            let plain = lloyd(&data, &means, stop, true).sse;
+            for mark in [f64::MAX, plain, plain * 0.5] {
+                let seeded = |i: usize, x: &[f32]| {
+                    let (a, d1, d2) = near[i];
+                    if a as usize == c || a as usize == j {
+                        return nearest_two(x, &trial, dim);
+                    }
+                    let dc = dist2(x, &trial[c * dim..(c + 1) * dim]);
+                    let dj = dist2(x, &trial[j * dim..(j + 1) * dim]);
+                    seeded_nearest((a as usize, d1, d2), (c, dc), (j, dj))
+                };
+                let a = super::super::hard::lloyd_trial(&data, &trial, stop, mark);
+                let b = lloyd_trial_from(&data, &trial, stop, mark, limit, seeded);
+                assert_eq!(a, b, "move ({c}, {j}), mark {mark}");
+            }
+        }
+    }
+
+    #[test]
+    fn seeded_nearest_breaks_ties_by_the_lowest_index() {
+        // Old nearest 3 at 4.0 (second at 9.0); mean 1 moved to the same distance wins
+        // the tie, and the old one's distance becomes the second's bound.
+        assert_eq!(
+            seeded_nearest((3, 4.0, 9.0), (1, 4.0), (5, 6.0)),
+            (1, 4.0, 4.0)
+        );
+        // Mean 5 at the same distance does not beat index 3.
+        assert_eq!(
+            seeded_nearest((3, 4.0, 9.0), (1, 7.0), (5, 4.0)),
+            (3, 4.0, 4.0)
+        );
+        // Both moved means far: the old nearest stays, bound by the old second.
+        assert_eq!(
+            seeded_nearest((3, 4.0, 9.0), (1, 20.0), (5, 30.0)),
+            (3, 4.0, 9.0)
+        );
     }
 
     #[test]

@@ -254,19 +254,25 @@ fn image_families(image: ImageEntries, cells: &Cells, labs: &[[f64; 3]]) -> Vec<
     }
     let transparent = crate::features::histogram::TRANSPARENT;
     let limit = (SOLID_DELTA_E * SOLID_DELTA_E) as f32;
-    // CIELAB of each entry in single precision: a small table for the many look-ups.
-    let lab32: Vec<[f32; 3]> = labs
+    // CIELAB of each entry in single precision with its cell, read once per pixel; NaN
+    // for transparent pixels: every comparison with NaN is false, so a transparent pixel
+    // is near nothing.
+    let entry_px: Vec<([f32; 3], u32)> = labs
         .iter()
-        .map(|l| [l[0] as f32, l[1] as f32, l[2] as f32])
+        .zip(&cells.of_entry)
+        .map(|(l, &cell)| ([l[0] as f32, l[1] as f32, l[2] as f32], cell))
         .collect();
-    let near = |a: u32, b: u32| {
-        if a == b {
-            return true;
+    let px_of = |e: u32| {
+        if e == transparent {
+            ([f32::NAN; 3], u32::MAX)
+        } else {
+            entry_px[e as usize]
         }
-        if b == transparent {
-            return false;
-        }
-        let (x, y) = (lab32[a as usize], lab32[b as usize]);
+    };
+    // Two neighbouring pixels are of one surface when within SOLID_DELTA_E of each other
+    // (symmetric, so each pair is tested once: across with the pixel to its right, down
+    // with the pixel below).
+    let near = |(x, _): &([f32; 3], u32), (y, _): &([f32; 3], u32)| {
         (x[0] - y[0]).powi(2) + (x[1] - y[1]).powi(2) + (x[2] - y[2]).powi(2) <= limit
     };
     // Solid pixels per cell, counted over fixed bands of rows and added in band order.
@@ -277,30 +283,52 @@ fn image_families(image: ImageEntries, cells: &Cells, labs: &[[f64; 3]]) -> Vec<
         .map(|band| {
             let mut counts = vec![0u32; n_cells];
             let mut opaque = 0usize;
-            for y in band * BAND..((band + 1) * BAND).min(h) {
+            let y0 = band * BAND;
+            let px_row = |y: usize, out: &mut Vec<([f32; 3], u32)>| {
+                out.clear();
+                out.extend(pixel_entry[y * w..(y + 1) * w].iter().map(|&e| px_of(e)));
+            };
+            // The CIELAB and cell of this row's pixels and the next's; right[x]: pixel x is near pixel x + 1
+            // of its row; down[x]: near the pixel below; up: the row above's down.
+            let (mut cur, mut next) = (Vec::with_capacity(w), Vec::with_capacity(w));
+            let mut right = vec![false; w];
+            let mut up = vec![false; w];
+            let mut down = vec![false; w];
+            px_row(y0, &mut cur);
+            if y0 > 0 {
+                px_row(y0 - 1, &mut next);
+                for ((u, a), b) in up.iter_mut().zip(&next).zip(&cur) {
+                    *u = near(a, b);
+                }
+            }
+            for y in y0..(y0 + BAND).min(h) {
+                for (r, p) in right.iter_mut().zip(cur.windows(2)) {
+                    *r = near(&p[0], &p[1]);
+                }
+                if y + 1 < h {
+                    px_row(y + 1, &mut next);
+                    for ((d, a), b) in down.iter_mut().zip(&cur).zip(&next) {
+                        *d = near(a, b);
+                    }
+                } else {
+                    down.iter_mut().for_each(|d| *d = false);
+                }
                 let row = &pixel_entry[y * w..(y + 1) * w];
-                let above = (y > 0).then(|| &pixel_entry[(y - 1) * w..y * w]);
-                let below = (y + 1 < h).then(|| &pixel_entry[(y + 1) * w..(y + 2) * w]);
                 for x in 0..w {
-                    let e = row[x];
-                    if e == transparent {
+                    if row[x] == transparent {
                         continue;
                     }
                     opaque += 1;
-                    let across =
-                        (x > 0 && near(e, row[x - 1])) || (x + 1 < w && near(e, row[x + 1]));
-                    if !across {
-                        continue;
-                    }
-                    let down = above.is_some_and(|r| near(e, r[x]))
-                        || below.is_some_and(|r| near(e, r[x]));
-                    if down {
-                        let cell = cells.of_entry[e as usize];
+                    let across = (x > 0 && right[x - 1]) || right[x];
+                    if across && (up[x] || down[x]) {
+                        let cell = cur[x].1;
                         if cell != u32::MAX {
                             counts[cell as usize] += 1;
                         }
                     }
                 }
+                std::mem::swap(&mut up, &mut down);
+                std::mem::swap(&mut cur, &mut next);
             }
             (counts, opaque)
         })
