@@ -692,3 +692,59 @@ fn outputs_never_replace_an_input_image_of_the_batch() {
     assert_eq!(std::fs::read(input.join("x.reduced.png")).unwrap(), kept);
     assert!(!top.join("batch-report.json").exists());
 }
+
+#[test]
+fn each_images_notes_and_warnings_reach_the_report_and_the_terminal() {
+    let dir = tempfile::tempdir().unwrap();
+    let input = dir.path().join("in");
+    std::fs::create_dir_all(&input).unwrap();
+    std::fs::copy(fixture("demo/harbour-poster.png"), input.join("poster.png")).unwrap();
+    std::fs::copy(fixture("demo/valley-aerial.png"), input.join("aerial.png")).unwrap();
+    let out = dir.path().join("out");
+    let (i, o) = (input.to_str().unwrap(), out.to_str().unwrap());
+    let first = run(&["batch", i, "-o", o, "-k", "3", "--loss-map"], &[]);
+    assert_eq!(first.status.code(), Some(0), "{}", stderr(&first));
+    // Rerun without the loss map: each image's old loss files are left, and said so.
+    let second = run(&["batch", i, "-o", o, "-k", "3", "--force"], &[]);
+    assert_eq!(second.status.code(), Some(0), "{}", stderr(&second));
+    let r = report(&out);
+    for f in r["files"].as_array().unwrap() {
+        let notes: Vec<&str> = f["notes"]
+            .as_array()
+            .unwrap_or_else(|| panic!("no notes: {f}"))
+            .iter()
+            .map(|n| n.as_str().unwrap())
+            .collect();
+        assert!(
+            notes
+                .iter()
+                .any(|n| n.contains(".loss.tif") && n.contains("earlier run")),
+            "{notes:?}"
+        );
+        // Three colours cannot hold either picture: lost areas are warned of, as
+        // `reduce` warns of them, and listed in the image's palette document.
+        let warnings = f["warnings"].as_array().unwrap();
+        assert!(!warnings.is_empty(), "{f}");
+        assert!(warnings[0].as_str().unwrap().contains("ΔE2000"), "{f}");
+        let input = f["input"].as_str().unwrap();
+        let stem = input.trim_end_matches(".png");
+        let doc: Value = serde_json::from_slice(
+            &std::fs::read(out.join(format!("{stem}.palette.json"))).unwrap(),
+        )
+        .unwrap();
+        assert!(!doc["lost_areas"].as_array().unwrap().is_empty(), "{stem}");
+        assert!(
+            stderr(&second).contains(&format!("chromasift: warning: {input}: ")),
+            "{}",
+            stderr(&second)
+        );
+    }
+    assert!(
+        stderr(&second).contains("2 images have notes"),
+        "{}",
+        stderr(&second)
+    );
+    // The table keeps its one shape: eight columns on every row.
+    let csv = std::fs::read_to_string(out.join("batch-report.csv")).unwrap();
+    assert!(csv.lines().all(|l| l.split(',').count() == 8), "{csv}");
+}

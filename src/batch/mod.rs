@@ -59,6 +59,12 @@ pub struct FileReport {
     #[serde(default)]
     pub p99_delta_e2000: Option<f64>,
     pub seconds: f64,
+    /// What `reduce` would have said about this image: remarks, then problems to act on
+    /// (colours lost); absent when there are none.
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub notes: Vec<String>,
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub warnings: Vec<String>,
 }
 
 /// Totals of a batch.
@@ -522,6 +528,8 @@ pub fn run_batch(
                     p95_delta_e2000: doc.and_then(|d| d.p95_delta_e2000),
                     p99_delta_e2000: doc.and_then(|d| d.p99_delta_e2000),
                     seconds: t.elapsed().as_secs_f64(),
+                    notes: Vec::new(),
+                    warnings: Vec::new(),
                 };
                 let r = if let Some(e) = &early_failures[i] {
                     row(Status::Failed, Some(e.clone()), None)
@@ -554,7 +562,11 @@ pub fn run_batch(
                             )),
                         };
                         match reduced {
-                            Ok(rep) => row(Status::Ok, None, Some(&rep.document)),
+                            Ok(rep) => FileReport {
+                                notes: rep.notes,
+                                warnings: rep.warnings,
+                                ..row(Status::Ok, None, Some(&rep.document))
+                            },
                             Err(e) => row(Status::Failed, Some(one_line(&e.to_string())), None),
                         }
                     }
@@ -576,6 +588,8 @@ pub fn run_batch(
         p95_delta_e2000: None,
         p99_delta_e2000: None,
         seconds: 0.0,
+        notes: Vec::new(),
+        warnings: Vec::new(),
     }));
     let count = |s: Status| rows.iter().filter(|r| r.status == s).count();
     // With `--palette` the engine only maps: record what applied, and what did not.

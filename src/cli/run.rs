@@ -498,6 +498,7 @@ fn run_batch(args: BatchArgs) -> ExitCode {
             f.error.as_deref().unwrap_or(&f.input)
         );
     }
+    batch_remarks(&r);
     let t = &r.totals;
     eprintln!(
         "chromasift: batch: {}: {} reduced, {} up to date, {} failed{}; {} skipped; {:.1} s",
@@ -522,6 +523,40 @@ fn run_batch(args: BatchArgs) -> ExitCode {
         ExitCode::from(EXIT_SOME_FAILED)
     } else {
         ExitCode::SUCCESS
+    }
+}
+
+/// Most per-image warnings a batch prints; the rest are counted (all are in the report).
+const BATCH_WARNINGS_SHOWN: usize = 10;
+
+/// A batch's per-image warnings (lost colours: things to act on), up to
+/// [`BATCH_WARNINGS_SHOWN`], and how many images have notes; both are in full in
+/// `batch-report.json`.
+fn batch_remarks(r: &batch::BatchReport) {
+    let warned: Vec<(&str, &String)> = r
+        .files
+        .iter()
+        .flat_map(|f| f.warnings.iter().map(move |w| (f.input.as_str(), w)))
+        .collect();
+    for (input, w) in warned.iter().take(BATCH_WARNINGS_SHOWN) {
+        eprintln!("chromasift: warning: {input}: {}", flag_wording(w));
+    }
+    if warned.len() > BATCH_WARNINGS_SHOWN {
+        eprintln!(
+            "chromasift: warning: {} more in batch-report.json",
+            warned.len() - BATCH_WARNINGS_SHOWN
+        );
+    }
+    let noted = r.files.iter().filter(|f| !f.notes.is_empty()).count();
+    if noted > 0 {
+        eprintln!(
+            "chromasift: note: {} notes (\"notes\" in batch-report.json)",
+            if noted == 1 {
+                "1 image has".to_string()
+            } else {
+                format!("{noted} images have")
+            }
+        );
     }
 }
 
