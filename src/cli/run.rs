@@ -527,7 +527,7 @@ fn run_batch(args: BatchArgs) -> ExitCode {
 }
 
 /// Most per-image warnings a batch prints; the rest are counted (all are in the report).
-const BATCH_WARNINGS_SHOWN: usize = 10;
+const BATCH_WARNINGS_SHOWN: usize = 5;
 
 /// A batch's per-image warnings (lost colours: things to act on), up to
 /// [`BATCH_WARNINGS_SHOWN`], and how many images have notes; both are in full in
@@ -542,9 +542,10 @@ fn batch_remarks(r: &batch::BatchReport) {
         eprintln!("chromasift: warning: {input}: {}", flag_wording(w));
     }
     if warned.len() > BATCH_WARNINGS_SHOWN {
+        let more = warned.len() - BATCH_WARNINGS_SHOWN;
         eprintln!(
-            "chromasift: warning: {} more in batch-report.json",
-            warned.len() - BATCH_WARNINGS_SHOWN
+            "chromasift: warning: {more} more warning{} (\"warnings\" in batch-report.json)",
+            if more == 1 { "" } else { "s" }
         );
     }
     let noted = r.files.iter().filter(|f| !f.notes.is_empty()).count();

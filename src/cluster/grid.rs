@@ -42,6 +42,8 @@ pub(crate) fn coarsen(data: &Dataset, cell: f64) -> (Vec<f32>, Vec<f64>) {
         .zip(&hi)
         .map(|(&l, &h)| 64 - ((h as i128 - l as i128).max(0) as u64).leading_zeros())
         .collect();
+    // Each cell's rows: `order[starts[c]..starts[c + 1]]`.
+    let mut starts: Vec<u32> = Vec::new();
     if !order.is_empty() && bits.iter().sum::<u32>() <= 64 {
         let packed: Vec<(u64, u32)> = order
             .iter()
@@ -53,39 +55,49 @@ pub(crate) fn coarsen(data: &Dataset, cell: f64) -> (Vec<f32>, Vec<f64>) {
                 (p, i)
             })
             .collect();
-        order = radix_order(packed, bits.iter().sum());
+        // The per-dimension keys are no longer needed: freed before the sort's buffer.
+        drop(keys);
+        let sorted = radix_sort(packed, bits.iter().sum());
+        order.clear();
+        for (at, &(p, i)) in sorted.iter().enumerate() {
+            if at == 0 || sorted[at - 1].0 != p {
+                starts.push(at as u32);
+            }
+            order.push(i);
+        }
     } else {
         order.sort_unstable_by(|&a, &b| key(a).cmp(key(b)).then(a.cmp(&b)));
+        for at in 0..order.len() {
+            if at == 0 || key(order[at - 1]) != key(order[at]) {
+                starts.push(at as u32);
+            }
+        }
     }
-    let mut rows = Vec::new();
-    let mut weights = Vec::new();
+    starts.push(order.len() as u32);
+    let mut rows = Vec::with_capacity((starts.len() - 1) * dim);
+    let mut weights = Vec::with_capacity(starts.len() - 1);
     let mut sum = vec![0.0f64; dim];
-    let mut start = 0;
-    while start < order.len() {
-        let mut end = start;
+    for run in starts.windows(2) {
         let mut w = 0.0;
         sum.iter_mut().for_each(|s| *s = 0.0);
-        while end < order.len() && key(order[end]) == key(order[start]) {
-            let i = order[end] as usize;
+        for &i in &order[run[0] as usize..run[1] as usize] {
+            let i = i as usize;
             let wi = data.weight(i);
             w += wi;
             for (s, &v) in sum.iter_mut().zip(data.row(i)) {
                 *s += wi * v as f64;
             }
-            end += 1;
         }
         rows.extend(sum.iter().map(|v| (v / w) as f32));
         weights.push(w);
-        start = end;
     }
     (rows, weights)
 }
 
-/// The row numbers of `packed` (key, row) sorted by key then row, for keys of at most
-/// `bits` bits and rows given in increasing order: a stable least-significant-digit radix
-/// sort, 11 bits a pass (the order `sort_unstable` gives on the pairs, in a few linear
-/// passes).
-fn radix_order(mut packed: Vec<(u64, u32)>, bits: u32) -> Vec<u32> {
+/// `packed` (key, row) sorted by key then row, for keys of at most `bits` bits and rows
+/// given in increasing order: a stable least-significant-digit radix sort, 11 bits a pass
+/// (the order `sort_unstable` gives on the pairs, in a few linear passes).
+fn radix_sort(mut packed: Vec<(u64, u32)>, bits: u32) -> Vec<(u64, u32)> {
     const DIGIT: u32 = 11;
     let mut spare = vec![(0u64, 0u32); packed.len()];
     let mut shift = 0;
@@ -109,15 +121,15 @@ fn radix_order(mut packed: Vec<(u64, u32)>, bits: u32) -> Vec<u32> {
         std::mem::swap(&mut packed, &mut spare);
         shift += DIGIT;
     }
-    packed.into_iter().map(|(_, i)| i).collect()
+    packed
 }
 
 #[cfg(test)]
 mod tests {
-    use super::radix_order;
+    use super::radix_sort;
 
     #[test]
-    fn radix_order_is_the_sorted_order() {
+    fn radix_sort_is_the_sorted_order() {
         let mut state = 12345u64;
         let mut packed = Vec::new();
         for i in 0..5000u32 {
@@ -129,7 +141,6 @@ mod tests {
         }
         let mut sorted = packed.clone();
         sorted.sort_unstable();
-        let want: Vec<u32> = sorted.into_iter().map(|(_, i)| i).collect();
-        assert_eq!(radix_order(packed, 40), want);
+        assert_eq!(radix_sort(packed, 40), sorted);
     }
 }

@@ -178,7 +178,7 @@ fn seeded_nearest(
     let mut best = (a, d1);
     let mut rest = d2;
     for (m, d) in [p, q] {
-        if d < best.1 {
+        if d < best.1 || (d == best.1 && m < best.0) {
             rest = rest.min(best.1);
             best = (m, d);
         } else {
