@@ -94,13 +94,20 @@ fn principal(cov: &[f64], dim: usize) -> (f64, Vec<f64>) {
 /// ±√(2/π) σ ≈ 0.8 σ). Returns (SSE decrease, first half's mean, second half's mean).
 fn split_two(data: &Dataset, members: &[u32]) -> Split {
     let dim = data.dim();
+    // The cluster's rows side by side (read many times below) and their weights.
+    let mut xs = Vec::with_capacity(members.len() * dim);
+    let mut ws = Vec::with_capacity(members.len());
+    for &i in members {
+        xs.extend(data.row(i as usize).iter().map(|&v| v as f64));
+        ws.push(data.weight(i as usize));
+    }
+    let rows = || xs.chunks_exact(dim.max(1)).zip(&ws);
     let mut mass = 0.0;
     let mut sum = vec![0.0f64; dim];
-    for &i in members {
-        let w = data.weight(i as usize);
+    for (x, &w) in rows() {
         mass += w;
-        for (s, &x) in sum.iter_mut().zip(data.row(i as usize)) {
-            *s += w * x as f64;
+        for (s, &v) in sum.iter_mut().zip(x) {
+            *s += w * v;
         }
     }
     if mass <= 0.0 || members.len() < 2 {
@@ -108,13 +115,11 @@ fn split_two(data: &Dataset, members: &[u32]) -> Split {
     }
     let mu: Vec<f64> = sum.iter().map(|s| s / mass).collect();
     let mut cov = vec![0.0f64; dim * dim];
-    for &i in members {
-        let w = data.weight(i as usize);
-        let x = data.row(i as usize);
+    for (x, &w) in rows() {
         for a in 0..dim {
-            let da = x[a] as f64 - mu[a];
+            let da = x[a] - mu[a];
             for b in a..dim {
-                cov[a * dim + b] += w * da * (x[b] as f64 - mu[b]);
+                cov[a * dim + b] += w * da * (x[b] - mu[b]);
             }
         }
     }
@@ -136,30 +141,32 @@ fn split_two(data: &Dataset, members: &[u32]) -> Split {
             .collect::<Vec<f64>>(),
     ];
     let mut split_sse = whole;
+    // Each row's half in the last iteration: once no row changes half, every further
+    // iteration would repeat this one exactly (same sums, same halves), so it stops.
+    let mut side = vec![u8::MAX; ws.len()];
     for _ in 0..8 {
         let mut acc = [(0.0f64, vec![0.0f64; dim]), (0.0f64, vec![0.0f64; dim])];
         split_sse = 0.0;
-        for &i in members {
-            let x = data.row(i as usize);
-            let d = |c: &[f64]| {
-                x.iter()
-                    .zip(c)
-                    .map(|(&v, &m)| (v as f64 - m).powi(2))
-                    .sum::<f64>()
-            };
+        let mut changed = false;
+        for ((x, &w), s) in rows().zip(side.iter_mut()) {
+            let d = |c: &[f64]| x.iter().zip(c).map(|(&v, &m)| (v - m).powi(2)).sum::<f64>();
             let (d0, d1) = (d(&halves[0]), d(&halves[1]));
             let h = (d1 < d0) as usize;
-            let w = data.weight(i as usize);
+            changed |= *s != h as u8;
+            *s = h as u8;
             split_sse += w * d0.min(d1);
             acc[h].0 += w;
             for (s, &v) in acc[h].1.iter_mut().zip(x) {
-                *s += w * v as f64;
+                *s += w * v;
             }
         }
         for (half, (m, s)) in halves.iter_mut().zip(&acc) {
             if *m > 0.0 {
                 half.iter_mut().zip(s).for_each(|(h, s)| *h = s / m);
             }
+        }
+        if !changed {
+            break;
         }
     }
     let [a, b] = halves;
@@ -458,6 +465,102 @@ mod tests {
                 let b = lloyd_trial_from(&data, &trial, stop, mark, limit, seeded);
                 assert_eq!(a, b, "move ({c}, {j}), mark {mark}");
             }
+        }
+    }
+
+    /// The split as first written: rows read through the dataset, always 8 iterations.
+    fn split_two_reference(data: &Dataset, members: &[u32]) -> Split {
+        let dim = data.dim();
+        let (mut mass, mut sum) = (0.0, vec![0.0f64; dim]);
+        for &i in members {
+            let w = data.weight(i as usize);
+            mass += w;
+            for (s, &x) in sum.iter_mut().zip(data.row(i as usize)) {
+                *s += w * x as f64;
+            }
+        }
+        let mu: Vec<f64> = sum.iter().map(|s| s / mass).collect();
+        let mut cov = vec![0.0f64; dim * dim];
+        for &i in members {
+            let (w, x) = (data.weight(i as usize), data.row(i as usize));
+            for a in 0..dim {
+                for b in a..dim {
+                    cov[a * dim + b] += w * (x[a] as f64 - mu[a]) * (x[b] as f64 - mu[b]);
+                }
+            }
+        }
+        for a in 0..dim {
+            for b in a..dim {
+                cov[a * dim + b] /= mass;
+                cov[b * dim + a] = cov[a * dim + b];
+            }
+        }
+        let whole: f64 = (0..dim).map(|a| cov[a * dim + a]).sum::<f64>() * mass;
+        let (lambda, axis) = principal(&cov, dim);
+        let step = 0.8 * lambda.max(0.0).sqrt();
+        let mut halves = [
+            (0..dim)
+                .map(|a| mu[a] + step * axis[a])
+                .collect::<Vec<f64>>(),
+            (0..dim)
+                .map(|a| mu[a] - step * axis[a])
+                .collect::<Vec<f64>>(),
+        ];
+        let mut split_sse = whole;
+        for _ in 0..8 {
+            let mut acc = [(0.0f64, vec![0.0f64; dim]), (0.0f64, vec![0.0f64; dim])];
+            split_sse = 0.0;
+            for &i in members {
+                let x = data.row(i as usize);
+                let d = |c: &[f64]| {
+                    x.iter()
+                        .zip(c)
+                        .map(|(&v, &m)| (v as f64 - m).powi(2))
+                        .sum::<f64>()
+                };
+                let (d0, d1) = (d(&halves[0]), d(&halves[1]));
+                let h = (d1 < d0) as usize;
+                let w = data.weight(i as usize);
+                split_sse += w * d0.min(d1);
+                acc[h].0 += w;
+                for (s, &v) in acc[h].1.iter_mut().zip(x) {
+                    *s += w * v as f64;
+                }
+            }
+            for (half, (m, s)) in halves.iter_mut().zip(&acc) {
+                if *m > 0.0 {
+                    half.iter_mut().zip(s).for_each(|(h, s)| *h = s / m);
+                }
+            }
+        }
+        let [a, b] = halves;
+        ((whole - split_sse).max(0.0), a, b)
+    }
+
+    #[test]
+    fn a_split_that_stops_when_no_row_changes_half_is_the_eight_iteration_split() {
+        let mut r = crate::rng::Rng::new(11, 0);
+        let mut rows = Vec::new();
+        let mut weights = Vec::new();
+        for _ in 0..3000 {
+            // Three dimensions, two overlapping groups, uneven weights.
+            let g = (r.uniform() < 0.3) as u8 as f32;
+            for d in 0..3 {
+                rows.push(g * (4.0 + d as f32) + 3.0 * r.uniform() as f32);
+            }
+            weights.push(1.0 + (r.uniform() * 9.0).floor());
+        }
+        let data = Dataset::new(&rows, 3, Some(&weights)).unwrap();
+        for members in [
+            (0..3000).collect::<Vec<u32>>(),
+            (0..3000).step_by(7).collect(),
+            (100..160).collect(),
+            vec![5, 9],
+        ] {
+            assert_eq!(
+                split_two(&data, &members),
+                split_two_reference(&data, &members)
+            );
         }
     }
 
