@@ -747,4 +747,18 @@ fn each_images_notes_and_warnings_reach_the_report_and_the_terminal() {
     // The table keeps its one shape: eight columns on every row.
     let csv = std::fs::read_to_string(out.join("batch-report.csv")).unwrap();
     assert!(csv.lines().all(|l| l.split(',').count() == 8), "{csv}");
+    // A rerun finds both images up to date: the lost colours their documents list are
+    // warned of again, word for word.
+    let third = run(&["batch", i, "-o", o, "-k", "3"], &[]);
+    assert_eq!(third.status.code(), Some(0), "{}", stderr(&third));
+    let again = report(&out);
+    for (f, g) in r["files"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .zip(again["files"].as_array().unwrap())
+    {
+        assert_eq!(g["status"], "skipped", "{g}");
+        assert_eq!(f["warnings"], g["warnings"], "{g}");
+    }
 }

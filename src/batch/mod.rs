@@ -552,7 +552,21 @@ pub fn run_batch(
                                 std::fs::read(out_dir.join(format!("{s}.palette.json"))).ok()
                             })
                             .and_then(|b| serde_json::from_slice(&b).ok());
-                        row(Status::Skipped, None, doc.as_ref())
+                        // The lost colours its document lists are still worth a warning.
+                        let warnings = doc
+                            .as_ref()
+                            .and_then(|d| {
+                                crate::families::lost_areas_warning(
+                                    &d.lost_areas,
+                                    d.given_palette.is_some(),
+                                )
+                            })
+                            .into_iter()
+                            .collect();
+                        FileReport {
+                            warnings,
+                            ..row(Status::Skipped, None, doc.as_ref())
+                        }
                     } else {
                         let reduced = match stem {
                             Some(s) => reduce_one(p, s, &out_dir, &inputs, opts, fixed.as_ref()),
