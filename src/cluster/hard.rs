@@ -474,18 +474,7 @@ where
     F: Fn(usize, &[f32]) -> (usize, f32, f32) + Sync,
 {
     let k = init.len() / data.dim();
-    let n = data.len();
-    let mut first = First {
-        labels: vec![0u32; n],
-        upper: vec![0.0f64; n],
-        lower: vec![0.0f64; n],
-        stats: Stats {
-            k,
-            dim: data.dim(),
-            v: Vec::new(),
-        },
-    };
-    first.stats = seeded_pass(data, k, &mut first, nearest);
+    let first = seeded_pass(data, k, nearest);
     lloyd_core(data, init, 0, stop, true, Some(mark), shift_limit, first)
 }
 
@@ -499,17 +488,20 @@ struct First {
 
 /// A first pass whose nearest means come from `nearest`: the same chunks, order of
 /// additions and bounds as [`full_pass`] from no labels.
-fn seeded_pass<F>(data: &Dataset, k: usize, first: &mut First, nearest: F) -> Stats
+fn seeded_pass<F>(data: &Dataset, k: usize, nearest: F) -> First
 where
     F: Fn(usize, &[f32]) -> (usize, f32, f32) + Sync,
 {
     let dim = data.dim();
     let stride = dim + 3;
-    let parts: Vec<(usize, Vec<f64>)> = first
-        .labels
+    let n = data.len();
+    let mut labels = vec![0u32; n];
+    let mut upper = vec![0.0f64; n];
+    let mut lower = vec![0.0f64; n];
+    let parts: Vec<(usize, Vec<f64>)> = labels
         .par_chunks_mut(CHUNK)
-        .zip(first.upper.par_chunks_mut(CHUNK))
-        .zip(first.lower.par_chunks_mut(CHUNK))
+        .zip(upper.par_chunks_mut(CHUNK))
+        .zip(lower.par_chunks_mut(CHUNK))
         .enumerate()
         .map(|(c, ((ls, us), lo))| {
             let mut v = vec![0.0f64; k * stride];
@@ -525,7 +517,12 @@ where
             (ls.len(), v)
         })
         .collect();
-    combine(parts, k, dim).1
+    First {
+        labels,
+        upper,
+        lower,
+        stats: combine(parts, k, dim).1,
+    }
 }
 
 fn lloyd_run(
