@@ -12,7 +12,8 @@ mod valley;
 use common::{run, stderr};
 use std::path::{Path, PathBuf};
 use valley::{
-    adjusted_rand, read_f32_tiff, read_u8_tiff, river_valley, write_scene_u16_at, GEOKEYS,
+    adjusted_rand, read_f32_tiff, read_u8_tiff, river_valley, write_scene_u16_at,
+    write_scene_u16_with, GEOKEYS,
 };
 
 const W: u32 = 160;
@@ -407,4 +408,164 @@ fn rasters_and_flags_that_do_not_match_the_model_are_refused() {
         "{:?}",
         common::files_in(&out)
     );
+}
+
+/// GDAL_METADATA as GDAL writes it (the form of `fixtures/rasters/gdal/scale_offset.tif`):
+/// every band's stored numbers times 0.0001 are reflectances.
+const REFLECTANCE_SCALE: &str = r#"<GDALMetadata>
+  <Item name="SCALE" sample="0" role="scale">0.0001</Item>
+  <Item name="SCALE" sample="1" role="scale">0.0001</Item>
+  <Item name="SCALE" sample="2" role="scale">0.0001</Item>
+  <Item name="SCALE" sample="3" role="scale">0.0001</Item>
+</GDALMetadata>"#;
+
+#[test]
+fn a_raster_whose_numbers_are_on_another_scale_is_refused_by_the_model() {
+    // The same stored numbers, once tagged as reflectance × 10 000 and once untagged: the
+    // model fitted on reflectances would put the untagged numbers (10 000 times larger)
+    // in whichever class lies farthest out, so it refuses them.
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    let (_, data) = river_valley(W, H);
+    let tagged = d.join("tagged.tif");
+    let plain = d.join("plain.tif");
+    let origin = (500_000.0, 5_000_000.0);
+    write_scene_u16_with(
+        &tagged,
+        W,
+        H,
+        &data,
+        PIXEL_M,
+        origin,
+        &GEOKEYS,
+        Some("0"),
+        Some(REFLECTANCE_SCALE),
+    );
+    write_scene_u16_at(&plain, W, H, &data, PIXEL_M, origin, &GEOKEYS, Some("0"));
+    let model = d.join("m.model.json");
+    ok(
+        &["landcover-fit", s(&tagged), "-k", "4", "-o", s(&model)],
+        &[],
+    );
+    let m: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(&model).unwrap()).unwrap();
+    assert_eq!(m["band_scale_offset"][3], serde_json::json!([0.0001, 0.0]));
+    let out = d.join("out");
+    refused(
+        &["landcover", s(&plain), "--model", s(&model), "-o", s(&out)],
+        &["plain.tif", "scale 1 offset 0", "scale 0.0001 offset 0"],
+    );
+    assert!(!out.exists());
+    ok(
+        &["landcover", s(&tagged), "--model", s(&model), "-o", s(&out)],
+        &[],
+    );
+    // Samples of differently scaled rasters are not fitted together either.
+    let (sa, sb) = (d.join("a.sample"), d.join("b.sample"));
+    ok(&["landcover-sample", s(&tagged), "-o", s(&sa)], &[]);
+    ok(&["landcover-sample", s(&plain), "-o", s(&sb)], &[]);
+    refused(
+        &[
+            "landcover-fit",
+            s(&sa),
+            s(&sb),
+            "-k",
+            "4",
+            "-o",
+            s(&d.join("ab.json")),
+        ],
+        &["scale and offset"],
+    );
+}
+
+#[test]
+fn a_cloud_mask_is_applied_with_a_saved_model() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    let (_, whole, _) = tiles(d, &[]);
+    let model = d.join("m.model.json");
+    ok(
+        &["landcover-fit", s(&whole), "-k", "4", "-o", s(&model)],
+        &[],
+    );
+    // A mask on the scene's grid: 1 over a 20 × 10 block at column 30, row 40.
+    let mask = d.join("clouds.tif");
+    {
+        use tiff::encoder::{colortype, TiffEncoder};
+        use tiff::tags::Tag;
+        let mut px = vec![0u8; (W * H) as usize];
+        for y in 40..50 {
+            for x in 30..50 {
+                px[(y * W + x) as usize] = 1;
+            }
+        }
+        let mut enc = TiffEncoder::new(std::fs::File::create(&mask).unwrap()).unwrap();
+        let mut img = enc.new_image::<colortype::Gray8>(W, H).unwrap();
+        img.encoder()
+            .write_tag(Tag::Unknown(33550), &[PIXEL_M, PIXEL_M, 0.0][..])
+            .unwrap();
+        img.encoder()
+            .write_tag(
+                Tag::Unknown(33922),
+                &[0.0, 0.0, 0.0, 500_000.0, 5_000_000.0, 0.0][..],
+            )
+            .unwrap();
+        img.encoder()
+            .write_tag(Tag::Unknown(34735), &GEOKEYS[..])
+            .unwrap();
+        img.write_data(&px).unwrap();
+    }
+    let (plain, masked) = (d.join("plain"), d.join("masked"));
+    ok(
+        &[
+            "landcover",
+            s(&whole),
+            "--model",
+            s(&model),
+            "-o",
+            s(&plain),
+        ],
+        &[],
+    );
+    ok(
+        &[
+            "landcover",
+            s(&whole),
+            "--model",
+            s(&model),
+            "--exclude",
+            s(&mask),
+            "-o",
+            s(&masked),
+        ],
+        &[],
+    );
+    let doc = |dir: &Path| -> serde_json::Value {
+        serde_json::from_str(&std::fs::read_to_string(dir.join("valley.classes.json")).unwrap())
+            .unwrap()
+    };
+    let (a, b) = (doc(&plain), doc(&masked));
+    let (_, _, before) = read_u8_tiff(&plain.join("valley.classes.tif"));
+    let (_, _, after) = read_u8_tiff(&masked.join("valley.classes.tif"));
+    // The block's pixels that had a class lose it; nothing else changes.
+    let mut dropped = 0u64;
+    for y in 0..H {
+        for x in 0..W {
+            let i = (y * W + x) as usize;
+            let inside = (40..50).contains(&y) && (30..50).contains(&x);
+            if inside {
+                assert_eq!(after[i], 0, "masked pixel ({x}, {y}) has a class");
+                dropped += u64::from(before[i] != 0);
+            } else {
+                assert_eq!(after[i], before[i], "pixel ({x}, {y}) changed");
+            }
+        }
+    }
+    assert!(dropped > 100, "{dropped}");
+    assert_eq!(
+        a["valid_pixels"].as_u64().unwrap() - b["valid_pixels"].as_u64().unwrap(),
+        dropped
+    );
+    assert!(b["excluded_by"].as_str().unwrap().ends_with("clouds.tif"));
+    assert!(a["excluded_by"].is_null());
 }

@@ -172,7 +172,14 @@ pub(super) fn run_landcover(args: &super::LandcoverArgs) -> Result<ExitCode, Err
             let limits = Limits::with_max_pixels(args.max_pixels);
             let model = landcover::LandcoverModel::read(path, &limits)?;
             let name = landcover::source_file_name(path);
-            landcover::landcover_with_model(&args.input, out, &model, &name, &limits)?
+            landcover::landcover_with_model(
+                &args.input,
+                out,
+                &model,
+                &name,
+                args.rest.scene.exclude.as_deref(),
+                &limits,
+            )?
         }
         None => landcover::landcover_file(&args.input, out, &args.options())?,
     };

@@ -140,6 +140,13 @@ fn check_same(path: &Path, first: &SampleHeader, h: &SampleHeader, seed: u64) ->
             format!("{:?}", h.band_descriptions),
         );
     }
+    if h.band_scale_offset != first.band_scale_offset {
+        return differ(
+            "band scale and offset",
+            format!("{:?}", first.band_scale_offset),
+            format!("{:?}", h.band_scale_offset),
+        );
+    }
     if h.nodata_setting.map(f64::to_bits) != first.nodata_setting.map(f64::to_bits) {
         return differ(
             "`nodata` setting",

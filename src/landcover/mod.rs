@@ -183,22 +183,26 @@ pub fn landcover_file(
 
 /// Applies a saved model to `input`: the same outputs as [`landcover_file`], with the
 /// model's class numbers. A raster whose bands or features differ from the model's is
-/// refused. `model_name` is recorded in the classes document.
+/// refused. `model_name` is recorded in the classes document; `exclude` is a mask of
+/// pixels to leave out, on `input`'s grid (as `--exclude` when fitting).
 pub fn landcover_with_model(
     input: &Path,
     out_dir: &Path,
     model: &LandcoverModel,
     model_name: &str,
+    exclude: Option<&Path>,
     limits: &Limits,
 ) -> Result<LandcoverReport> {
+    let mut scene = model.scene_options();
+    scene.exclude = exclude.map(Path::to_path_buf);
     let opts = LandcoverOptions {
         k: model.k,
-        scene: model.scene_options(),
+        scene,
         engine: model.engine,
         limits: *limits,
     };
     let load = |mark: &dyn Fn(&str)| -> Result<FittedScene> {
-        let fitted = model.open_for(input, limits)?;
+        let fitted = model.open_for(input, exclude, limits)?;
         mark("pass 1 (statistics)");
         Ok(fitted)
     };

@@ -64,6 +64,11 @@ pub struct LandcoverModel {
     pub sample_type: String,
     /// Band descriptions, when the rasters have them.
     pub band_descriptions: Option<Vec<String>>,
+    /// Each band's scale and offset in the rasters fitted on (1 and 0 for a band without
+    /// GDAL's `SCALE`/`OFFSET`): a raster whose numbers are on another scale is refused.
+    /// Empty in models written before it was recorded (not checked then).
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub band_scale_offset: Vec<(f64, f64)>,
     /// Bands used (1-based).
     pub bands: Vec<usize>,
     pub indices: Vec<String>,
@@ -90,9 +95,19 @@ pub struct LandcoverModel {
 
 impl LandcoverModel {
     /// Opens `input` for a saved model: its classes come from the model (refused when
-    /// the raster does not match it). Its valid pixels are counted in pass 2.
-    pub(super) fn open_for(&self, input: &Path, limits: &Limits) -> Result<FittedScene> {
-        let raster = GeoRaster::open(input, limits)?;
+    /// the raster does not match it). Its valid pixels are counted in pass 2. `exclude`: a
+    /// mask on the raster's grid whose non-zero pixels are left out (this raster's clouds,
+    /// not part of the model).
+    pub(super) fn open_for(
+        &self,
+        input: &Path,
+        exclude: Option<&Path>,
+        limits: &Limits,
+    ) -> Result<FittedScene> {
+        let mut raster = GeoRaster::open(input, limits)?;
+        if let Some(mask) = exclude {
+            raster.exclude_where(mask, limits)?;
+        }
         let info = raster.info().clone();
         let classes = self.classes_for(input, &info)?;
         let descriptions = classes.features().descriptions(&info);
@@ -150,6 +165,7 @@ impl LandcoverModel {
             raster_bands: like.raster_bands,
             sample_type: like.sample_type.clone(),
             band_descriptions: like.band_descriptions.clone(),
+            band_scale_offset: like.band_scale_offset.clone(),
             bands: like.bands.clone(),
             indices: like.indices.clone(),
             features: like.features.clone(),
@@ -289,6 +305,21 @@ impl LandcoverModel {
                     "its band descriptions are {r:?}, the model's are {m:?}"
                 )));
             }
+        }
+        if !self.band_scale_offset.is_empty() && self.band_scale_offset != info.scale_offset {
+            let show = |v: &[(f64, f64)]| {
+                v.iter()
+                    .map(|(s, o)| format!("scale {s} offset {o}"))
+                    .collect::<Vec<_>>()
+                    .join("; ")
+            };
+            return Err(refuse(format!(
+                "its bands have {}, the model's rasters had {} (the \
+                 same numbers would mean other values; rewrite the raster with the model's \
+                 scale tags, or fit a model on it)",
+                show(&info.scale_offset),
+                show(&self.band_scale_offset)
+            )));
         }
         let feats = check_options(&self.scene_options(), info, raster)?;
         let names: Vec<String> = feats.names.clone();

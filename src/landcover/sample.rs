@@ -34,6 +34,11 @@ pub struct SampleHeader {
     pub sample_type: String,
     /// Band descriptions, when the raster has them.
     pub band_descriptions: Option<Vec<String>>,
+    /// Each band's scale and offset (GDAL_METADATA `SCALE`, `OFFSET`; 1 and 0 without),
+    /// which turn its stored numbers into the values the features are made of. Empty in
+    /// files written before it was recorded.
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub band_scale_offset: Vec<(f64, f64)>,
     /// Bands used (1-based).
     pub bands: Vec<usize>,
     /// Indices added (`ndvi:3,4`, ...).
@@ -96,6 +101,7 @@ impl SampleHeader {
             raster_bands: info.bands,
             sample_type: info.sample.name().to_string(),
             band_descriptions: band_descriptions(info),
+            band_scale_offset: info.scale_offset.clone(),
             bands: feats.bands.iter().map(|b| b + 1).collect(),
             indices: opts.indices.iter().map(IndexSpec::name).collect(),
             features: feats.names.clone(),

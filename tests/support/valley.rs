@@ -47,6 +47,22 @@ pub fn write_scene_u16_at(
     geokeys: &[u16],
     nodata: Option<&str>,
 ) {
+    write_scene_u16_with(path, w, h, bands4, pixel_m, origin, geokeys, nodata, None);
+}
+
+/// As [`write_scene_u16_at`], with a GDAL_METADATA text (tag 42112) when given.
+#[allow(clippy::too_many_arguments)]
+pub fn write_scene_u16_with(
+    path: &Path,
+    w: u32,
+    h: u32,
+    bands4: &[u16],
+    pixel_m: f64,
+    origin: (f64, f64),
+    geokeys: &[u16],
+    nodata: Option<&str>,
+    gdal_metadata: Option<&str>,
+) {
     let file = std::fs::File::create(path).unwrap();
     let mut enc = TiffEncoder::new(file).unwrap();
     let mut img = enc.new_image::<colortype::RGBA16>(w, h).unwrap();
@@ -64,6 +80,9 @@ pub fn write_scene_u16_at(
         .unwrap();
     if let Some(n) = nodata {
         img.encoder().write_tag(Tag::Unknown(42113), n).unwrap();
+    }
+    if let Some(m) = gdal_metadata {
+        img.encoder().write_tag(Tag::Unknown(42112), m).unwrap();
     }
     img.write_data(bands4).unwrap();
 }
