@@ -354,7 +354,8 @@ pub struct SeparateArgs {
     #[arg(long, conflicts_with = "k")]
     pub all: bool,
 
-    /// Paper or garment colour (#rrggbb): pixels nearer to it than to any ink get no ink.
+    /// Paper or garment colour (#rrggbb): pixels as near to it as to any ink, or nearer, get
+    /// no ink; it counts as a colour that needs no screen.
     #[arg(long, value_name = "COLOUR", value_parser = parse_colour)]
     pub substrate: Option<[u8; 3]>,
 

@@ -50,7 +50,8 @@ pub struct SeparateOptions {
     pub use_inks: Vec<String>,
     /// Use every ink in the library as given.
     pub all: bool,
-    /// Paper or garment colour: pixels nearer to it than to any chosen ink get no ink.
+    /// Paper or garment colour: pixels as near or nearer to it than to any chosen ink get no
+    /// ink.
     pub substrate: Option<[u8; 3]>,
     /// Smallest 8-connected region of any plate, in pixels. Default: [`DEFAULT_MIN_AREA`].
     pub min_area: usize,
@@ -323,9 +324,14 @@ pub fn separate_image(
                 &labs,
                 &weights,
             );
-            if let Some(kept) =
-                select::keep_families(&table, library, &families, &selection.chosen, &forced)
-            {
+            if let Some(kept) = select::keep_families(
+                &table,
+                library,
+                substrate_lab,
+                &families,
+                &selection.chosen,
+                &forced,
+            ) {
                 notes.push(format!(
                     "swapped {} ink{} so that distinct colour families of the artwork keep a \
                      matching ink (families lost: {} before, {} after)",
@@ -356,7 +362,8 @@ pub fn separate_image(
     let n_inks = chosen.len();
     let substrate_label = n_inks as u16;
 
-    // Each entry to its nearest ink; the substrate only where strictly nearer.
+    // Each entry to its nearest ink; the substrate (free: it costs no screen) where it is
+    // as near or nearer.
     let entry_label: Vec<u16> = (0..hist.len())
         .into_par_iter()
         .with_min_len(4096)
@@ -372,7 +379,7 @@ pub fn separate_image(
                 .as_ref()
                 .is_none_or(|a| a[e * table.m + order[best.1 as usize]] > 0);
             match &table.substrate {
-                Some(s) if s[e] < best.0 => substrate_label,
+                Some(s) if s[e] <= best.0 => substrate_label,
                 _ if !prints => substrate_label,
                 _ => best.1,
             }

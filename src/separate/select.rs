@@ -73,6 +73,26 @@ impl CostTable {
         self.substrate.as_ref().map_or(f32::INFINITY, |s| s[e])
     }
 
+    /// Pixels farther than `limit` (ΔE2000) from their nearest choice of `set` and the
+    /// substrate.
+    pub fn far_pixels(&self, set: &[usize], limit: f32) -> f64 {
+        let parts: Vec<f64> = (0..self.n.div_ceil(CHUNK))
+            .into_par_iter()
+            .map(|c| {
+                let mut s = 0.0f64;
+                for e in c * CHUNK..((c + 1) * CHUNK).min(self.n) {
+                    let row = self.row(e);
+                    let best = set.iter().map(|&i| row[i]).fold(self.floor(e), f32::min);
+                    if best > limit {
+                        s += self.weights[e];
+                    }
+                }
+                s
+            })
+            .collect();
+        parts.iter().sum()
+    }
+
     /// Total weighted ΔE2000 of a set of inks (each entry to its nearest choice).
     pub fn objective(&self, set: &[usize]) -> f64 {
         let parts: Vec<f64> = (0..self.n.div_ceil(CHUNK))
@@ -475,40 +495,48 @@ pub struct KeptInks {
 }
 
 /// Brings back colour families that the ink choice lost: a family (see
-/// [`crate::families`]; CIELAB D50 here, like the inks) is lost when no chosen ink is
-/// within ΔE2000 6 of it although a library ink is. A swap gives up chosen inks that no
-/// family needs (none is the only chosen ink within 6 of a family), cheapest first by
+/// [`crate::families`]; CIELAB D50 here, like the inks) is lost when neither a chosen ink
+/// nor the substrate (`substrate_lab`, which costs no screen) is within ΔE2000 6 of it
+/// although a library ink is. A swap gives up chosen inks that no family needs (none is
+/// the only chosen ink within 6 of a family), cheapest first by
 /// Σ w·(second-nearest − nearest ΔE2000) of their pixels, and takes each lost family's
 /// nearest library ink instead: first all lost families at once, then the worst alone.
 /// A swap is kept only if the lost families weigh less: 3 for each clearly lost (2 past
-/// the limit), 1 for each just lost. Forced inks are never given up, and the number of
-/// inks never changes.
+/// the limit), 1 for each just lost; and if it leaves no more pixels rendered farther than
+/// [`crate::families::REPORT_DELTA_E`] from their colour than before (a gradient or a
+/// large area that is no family of its own is not given up for a small one). Forced inks
+/// are never given up, and the number of inks never changes.
 /// Returns `None` when nothing was lost or no swap helped.
 pub fn keep_families(
     t: &CostTable,
     inks: &[Ink],
+    substrate_lab: Option<[f64; 3]>,
     families: &[crate::families::Family],
     chosen: &[usize],
     forced: &[usize],
 ) -> Option<KeptInks> {
     const LOST: f64 = crate::families::LOST_DELTA_E;
-    // Each family's nearest library ink and how close it is.
-    let best: Vec<(usize, f64)> = families
-        .iter()
-        .map(|fam| {
-            inks.iter()
+    let paper = |f: usize| substrate_lab.map_or(f64::INFINITY, |s| delta_e2000(families[f].lab, s));
+    // Each family's nearest library ink and how close it is (the substrate counts as
+    // reaching it, with no ink).
+    let best: Vec<(usize, f64)> = (0..families.len())
+        .map(|f| {
+            let fam = &families[f];
+            let ink = inks
+                .iter()
                 .enumerate()
                 .map(|(i, ink)| (i, delta_e2000(fam.lab, ink.lab_d50)))
                 .fold(
                     (usize::MAX, f64::INFINITY),
                     |a, b| if b.1 < a.1 { b } else { a },
-                )
+                );
+            (ink.0, ink.1.min(paper(f)))
         })
         .collect();
     let error = |f: usize, set: &[usize]| {
         set.iter()
             .map(|&i| delta_e2000(families[f].lab, inks[i].lab_d50))
-            .fold(f64::INFINITY, f64::min)
+            .fold(paper(f), f64::min)
     };
     // A family is lost when its nearest chosen ink is more than ΔE2000 6 away and more
     // than 1 farther than the library's nearest; clearly lost 2 farther still. Lost
@@ -536,8 +564,8 @@ pub fn keep_families(
     };
     let mut set = chosen.to_vec();
     let mut lost = lost_of(&set);
+    let mut far = t.far_pixels(&set, crate::families::REPORT_DELTA_E as f32);
     let lost_before = lost.len();
-    let mut swaps = 0;
     'rounds: for _ in 0..set.len() {
         if lost.is_empty() {
             break;
@@ -600,15 +628,21 @@ pub fn keep_families(
                 continue;
             }
             let lf = lost_of(&next);
-            if score(&lf) < score(&lost) {
+            if score(&lf) >= score(&lost) {
+                continue;
+            }
+            let next_far = t.far_pixels(&next, crate::families::REPORT_DELTA_E as f32);
+            if next_far <= far {
                 set = next;
                 lost = lf;
-                swaps += trial.len();
+                far = next_far;
                 continue 'rounds;
             }
         }
         break;
     }
+    // Inks given up for others (an ink taken in one round may be given up in the next).
+    let swaps = set.iter().filter(|i| !chosen.contains(i)).count();
     (swaps > 0).then_some(KeptInks {
         chosen: set,
         swaps,
