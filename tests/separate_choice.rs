@@ -205,3 +205,61 @@ fn keeping_a_family_never_gives_up_a_larger_area() {
         }
     }
 }
+
+/// No screen for nothing: an ink the choice would take although no colour is nearer to it
+/// is left out with a note; a plate emptied by the `min_area` clean-up is named in a note.
+#[test]
+fn no_blank_plate_goes_unsaid() {
+    let lib_path = Path::new("shop-inks.csv");
+    let library = parse_library(SHOP_INKS, lib_path).unwrap();
+    // A photo of warm browns: of the shop's inks only four are ever nearest.
+    let path = fixture("photos/coffee.png");
+    let bytes = std::fs::read(&path).unwrap();
+    let img = decode_bytes(&bytes, &path, &Limits::default()).unwrap();
+    let opts = SeparateOptions {
+        k: 5,
+        substrate: Some([255, 255, 255]),
+        min_area: 1,
+        ..Default::default()
+    };
+    let s = separate_image(&img, &library, &opts, lib_path, "coffee").unwrap();
+    assert_eq!(s.inks.len(), 4, "{:?}", names(&s));
+    assert!(
+        s.document.notes.iter().any(|n| n.contains("left out")),
+        "{:?}",
+        s.document.notes
+    );
+    for (p, ink) in s.inks.iter().enumerate() {
+        assert!(
+            s.labels.iter().any(|&l| l as usize == p),
+            "{} prints nothing",
+            ink.name
+        );
+    }
+    // The black of the label's dotted type is chosen, then its dots are merged away.
+    let path = fixture("families/orchard-label.png");
+    let lib_path = fixture("families/sky-inks.csv");
+    let library = chromasift::inks::read_library(&lib_path).unwrap();
+    let bytes = std::fs::read(&path).unwrap();
+    let img = decode_bytes(&bytes, &path, &Limits::default()).unwrap();
+    let opts = SeparateOptions {
+        k: 4,
+        substrate: Some([255, 255, 255]),
+        ..Default::default()
+    };
+    let s = separate_image(&img, &library, &opts, &lib_path, "orchard").unwrap();
+    assert!(s.document.inks.iter().any(|r| r.pixels == 0));
+    for (ink, report) in s.inks.iter().zip(&s.document.inks) {
+        if report.pixels == 0 {
+            assert!(
+                s.document
+                    .notes
+                    .iter()
+                    .any(|n| n.starts_with("blank plate") && n.contains(&ink.name)),
+                "{} is blank without a note: {:?}",
+                ink.name,
+                s.document.notes
+            );
+        }
+    }
+}

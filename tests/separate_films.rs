@@ -365,6 +365,68 @@ fn films_without_a_resolution_are_refused_before_anything_is_written() {
     assert!(stderr(&o).contains("--films"), "{}", stderr(&o));
 }
 
+/// Web-resolution artwork (72 dpi) still gives solid films and stochastic tints: only a
+/// halftone grid needs two film pixels per cell (the step strip's screen follows the
+/// resolution). Settings larger than the artwork are refused in one line, before anything
+/// is written.
+#[test]
+fn low_resolution_films_and_outsized_settings() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    for (name, extra) in [
+        ("solid", vec!["--films", "tiff", "--dpi", "72"]),
+        (
+            "fm",
+            vec![
+                "--films",
+                "tiff",
+                "--dpi",
+                "72",
+                "--tints",
+                "--halftone",
+                "stochastic",
+            ],
+        ),
+    ] {
+        let out = d.join(name);
+        let mut args = vec!["-k", "4"];
+        args.extend(extra);
+        let o = separate_poster(&out, &args);
+        assert!(o.status.success(), "{name}: {}", stderr(&o));
+        assert!(files_in(&out).iter().any(|f| f.ends_with(".tif")), "{name}");
+    }
+    for (extra, words) in [
+        (vec!["--trap", "100000"], vec!["--trap", "320 × 240"]),
+        (vec!["--min-area", "76801"], vec!["--min-area", "76800 px"]),
+        (
+            vec![
+                "--films",
+                "tiff",
+                "--dpi",
+                "300",
+                "--tints",
+                "--halftone",
+                "round",
+                "--screen-angles",
+                "45,400",
+            ],
+            vec!["400", "180"],
+        ),
+    ] {
+        let out = d.join("refused");
+        let mut args = vec!["-k", "4"];
+        args.extend(extra);
+        let o = separate_poster(&out, &args);
+        let err = stderr(&o);
+        assert_eq!(o.status.code(), Some(2), "{args:?}: {err}");
+        assert_eq!(err.trim_end().lines().count(), 1, "{err}");
+        for w in words {
+            assert!(err.contains(w), "{w:?} in {err}");
+        }
+        assert!(!out.exists());
+    }
+}
+
 /// Plate pixels of a 40 × 30 artwork: the left half opaque red, the right half red with
 /// alpha `a`.
 fn alpha_run(a: u8, extra: &[&str]) -> u64 {

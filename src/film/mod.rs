@@ -473,7 +473,12 @@ pub fn make_films(
     };
     let strip_screen = match &opts.halftone {
         Some(ht) => Screener::new(ht, ht.angles.first().copied().unwrap_or(45.0), opts.dpi)?,
-        None => Screener::new(&Halftone::default(), 45.0, opts.dpi)?,
+        // Solid films: the strip alone is screened, as finely as the resolution holds.
+        None => {
+            let ht = Halftone::default();
+            let lpi = ht.lpi.min(opts.dpi / 2.0);
+            Screener::new(&Halftone { lpi, ..ht }, 45.0, opts.dpi)?
+        }
     };
     let count = plates.len();
     let labels: Vec<String> = plates

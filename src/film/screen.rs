@@ -103,7 +103,8 @@ impl Halftone {
                 self.lpi
             )));
         }
-        if self.lpi > dpi / 2.0 {
+        // Stochastic dots have no grid: their size is checked below.
+        if self.kind != ScreenKind::Stochastic && self.lpi > dpi / 2.0 {
             return Err(bad(format!(
                 "{} lines per inch is more than half the print resolution ({dpi} dpi): a \
                  halftone cell needs at least 2 × 2 film pixels; use at most {} lpi or a \
@@ -113,8 +114,11 @@ impl Halftone {
             )));
         }
         for &a in &self.angles {
-            if !a.is_finite() {
-                return Err(bad(format!("screen angles must be finite (got {a})")));
+            if !(a.is_finite() && (0.0..180.0).contains(&a)) {
+                return Err(bad(format!(
+                    "screen angles must be at least 0 and below 180 degrees (a screen repeats \
+                     every 180°; got {a})"
+                )));
             }
         }
         let dot = self.fm_dot.to_px(dpi, "stochastic dot size")?;

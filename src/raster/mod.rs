@@ -249,6 +249,19 @@ pub fn png_without_profile(bytes: &[u8]) -> Option<Vec<u8>> {
     Some(out)
 }
 
+/// Dots per inch of a PNG's whole pixels per metre: the whole number of dots per inch that
+/// a writer would have stored as `ppm` when there is one (5906 px/m is 150 dpi, not
+/// 150.0124), otherwise the exact conversion.
+fn dpi_of_pixels_per_metre(ppm: f64) -> f64 {
+    let exact = ppm * 0.0254;
+    let whole = exact.round();
+    if whole > 0.0 && (whole / 0.0254).round() == ppm {
+        whole
+    } else {
+        exact
+    }
+}
+
 /// Reads the print resolution from a PNG pHYs chunk (unit: metre) or a JPEG JFIF header,
 /// in dots per inch. Returns `None` when the file records none.
 pub fn sniff_dpi(bytes: &[u8]) -> Option<f64> {
@@ -261,7 +274,7 @@ pub fn sniff_dpi(bytes: &[u8]) -> Option<f64> {
             let data = bytes.get(pos + 8..pos.checked_add(8)?.checked_add(len)?)?;
             if kind == b"pHYs" && len == 9 {
                 let x = u32::from_be_bytes(data[0..4].try_into().ok()?) as f64;
-                return (data[8] == 1 && x > 0.0).then_some(x * 0.0254);
+                return (data[8] == 1 && x > 0.0).then(|| dpi_of_pixels_per_metre(x));
             }
             if kind == b"IDAT" || kind == b"IEND" {
                 return None;
@@ -680,6 +693,17 @@ mod tests {
             .write_to(&mut v, image::ImageFormat::Jpeg)
             .unwrap();
         v.into_inner()
+    }
+
+    #[test]
+    fn whole_dpi_are_read_back_from_pixels_per_metre() {
+        // PNG 1.2 (ISO/IEC 15948) stores pixels per metre as an integer: 72 dpi is written
+        // 2835, 150 dpi 5906, 300 dpi 11811 (1 inch = 0.0254 m exactly).
+        assert_eq!(dpi_of_pixels_per_metre(2835.0), 72.0);
+        assert_eq!(dpi_of_pixels_per_metre(5906.0), 150.0);
+        assert_eq!(dpi_of_pixels_per_metre(11811.0), 300.0);
+        // A resolution set in metres stays as it is: 4000 px/m is 101.6 dpi.
+        assert!((dpi_of_pixels_per_metre(4000.0) - 101.6).abs() < 1e-9);
     }
 
     #[test]

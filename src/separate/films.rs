@@ -88,7 +88,9 @@ impl FilmSettings {
             )));
         }
         if let Some(h) = &self.halftone {
-            if !(h.lpi.is_finite() && h.lpi > 0.0 && h.lpi <= dpi / 2.0) {
+            // Stochastic dots have no grid, so no lines per inch to check.
+            let grid = h.kind != film::ScreenKind::Stochastic;
+            if !(h.lpi.is_finite() && h.lpi > 0.0 && (!grid || h.lpi <= dpi / 2.0)) {
                 return Err(bad(format!(
                     "`lpi` must be a positive number of lines per inch, at most half the \
                      print resolution ({} at {dpi} dpi; got {})",
@@ -96,9 +98,14 @@ impl FilmSettings {
                     h.lpi
                 )));
             }
-            if let Some(a) = h.angles.iter().find(|a| !a.is_finite()) {
+            if let Some(a) = h
+                .angles
+                .iter()
+                .find(|a| !(a.is_finite() && (0.0..180.0).contains(*a)))
+            {
                 return Err(bad(format!(
-                    "`screen_angles` must be finite degrees (got {a})"
+                    "`screen_angles` must be at least 0 and below 180 degrees (a screen \
+                     repeats every 180°; got {a})"
                 )));
             }
         }

@@ -228,6 +228,26 @@ pub struct Separation {
     pub document: SeparationDocument,
 }
 
+/// Refuses a `min_area` larger than the artwork and a `trap` wider than it: either would
+/// print the whole sheet in one ink.
+fn check_sizes(opts: &SeparateOptions, width: u32, height: u32) -> Result<()> {
+    let pixels = width as u64 * height as u64;
+    let bad = |m: String| Err(Error::Params(crate::error::ParamsError::Other(m)));
+    if opts.min_area as u64 > pixels {
+        return bad(format!(
+            "`min_area` of {} px is more than the artwork's {width} × {height} = {pixels} px",
+            opts.min_area
+        ));
+    }
+    if opts.trap >= width.max(height) {
+        return bad(format!(
+            "`trap` of {} px is as wide as the artwork ({width} × {height} px) or wider",
+            opts.trap
+        ));
+    }
+    Ok(())
+}
+
 /// Separates decoded artwork with a library (in memory).
 pub fn separate_image(
     img: &Decoded,
@@ -237,6 +257,7 @@ pub fn separate_image(
     stem: &str,
 ) -> Result<Separation> {
     let (k, forced) = resolve_inks(library, opts, library_path)?;
+    check_sizes(opts, img.width, img.height)?;
     let mut ph = crate::trace::Phases::start("separate");
     // Read through the image's embedded profile, as `reduce` reads it.
     let ImageColours {
@@ -358,33 +379,76 @@ pub fn separate_image(
             .total_cmp(&library[a].lab_d50[0])
             .then(library[a].name.cmp(&library[b].name))
     });
-    let chosen: Vec<Ink> = order.iter().map(|&i| library[i].clone()).collect();
-    let n_inks = chosen.len();
-    let substrate_label = n_inks as u16;
-
     // Each entry to its nearest ink; the substrate (free: it costs no screen) where it is
     // as near or nearer.
-    let entry_label: Vec<u16> = (0..hist.len())
-        .into_par_iter()
-        .with_min_len(4096)
-        .map(|e| {
-            let mut best = (f32::INFINITY, 0u16);
-            for (p, &i) in order.iter().enumerate() {
-                let c = table.cost[e * table.m + i];
-                if c < best.0 {
-                    best = (c, p as u16);
+    let label_entries = |order: &[usize]| -> Vec<u16> {
+        let substrate_label = order.len() as u16;
+        (0..hist.len())
+            .into_par_iter()
+            .with_min_len(4096)
+            .map(|e| {
+                let mut best = (f32::INFINITY, 0u16);
+                for (p, &i) in order.iter().enumerate() {
+                    let c = table.cost[e * table.m + i];
+                    if c < best.0 {
+                        best = (c, p as u16);
+                    }
                 }
+                let prints = amounts
+                    .as_ref()
+                    .is_none_or(|a| a[e * table.m + order[best.1 as usize]] > 0);
+                match &table.substrate {
+                    Some(s) if s[e] <= best.0 => substrate_label,
+                    _ if !prints => substrate_label,
+                    _ => best.1,
+                }
+            })
+            .collect()
+    };
+    let mut entry_label = label_entries(&order);
+    // A chosen ink that no pixel takes would burn a screen for a blank plate: it is left
+    // out (unless `use` asked for it). The other inks' pixels do not change.
+    let idle: Vec<usize> = {
+        let mut weight = vec![0.0f64; order.len()];
+        for (&l, &w) in entry_label.iter().zip(&weights) {
+            if let Some(v) = weight.get_mut(l as usize) {
+                *v += w;
             }
-            let prints = amounts
-                .as_ref()
-                .is_none_or(|a| a[e * table.m + order[best.1 as usize]] > 0);
-            match &table.substrate {
-                Some(s) if s[e] <= best.0 => substrate_label,
-                _ if !prints => substrate_label,
-                _ => best.1,
-            }
-        })
-        .collect();
+        }
+        order
+            .iter()
+            .zip(&weight)
+            .filter(|&(i, &w)| w == 0.0 && !forced.contains(i))
+            .map(|(&i, _)| i)
+            .collect()
+    };
+    if !opts.all && !idle.is_empty() && idle.len() < order.len() {
+        order.retain(|i| !idle.contains(i));
+        entry_label = label_entries(&order);
+        let names: Vec<&str> = idle.iter().map(|&i| library[i].name.as_str()).collect();
+        notes.push(format!(
+            "{} ink{} left out: no colour of the artwork is nearer to {} than to the other \
+             chosen inks{}, so {} print nothing; {} plate{} instead of {}",
+            names.join(", "),
+            if names.len() == 1 { "" } else { "s" },
+            if names.len() == 1 { "it" } else { "them" },
+            if table.substrate.is_some() {
+                " and the substrate"
+            } else {
+                ""
+            },
+            if names.len() == 1 {
+                "it would"
+            } else {
+                "they would"
+            },
+            order.len(),
+            if order.len() == 1 { "" } else { "s" },
+            order.len() + idle.len(),
+        ));
+    }
+    let chosen: Vec<Ink> = order.iter().map(|&i| library[i].clone()).collect();
+    let n_inks = chosen.len();
     // Transparent pixels map to `render::NO_INDEX`, which is `FIXED`.
     const _: () = assert!(crate::render::NO_INDEX == FIXED);
     let mut labels: Vec<u16> = crate::render::remap(&ih.pixel_entry, &entry_label);
@@ -493,6 +557,34 @@ pub fn separate_image(
             film_coverage: None,
         })
         .collect();
+    let blank: Vec<&str> = chosen
+        .iter()
+        .zip(&px)
+        .filter(|&(_, &n)| n == 0)
+        .map(|(ink, _)| ink.name.as_str())
+        .collect();
+    if !blank.is_empty() {
+        notes.push(format!(
+            "blank plate{}: {} print{} no pixel{}; check before burning a screen{}",
+            if blank.len() == 1 { "" } else { "s" },
+            blank.join(", "),
+            if blank.len() == 1 { "s" } else { "" },
+            if merge.merged > 0 {
+                format!(
+                    " once `min_area` ({} px) merged the small regions (a lower `min_area` \
+                     keeps them)",
+                    opts.min_area
+                )
+            } else {
+                String::new()
+            },
+            if opts.all || !opts.use_inks.is_empty() {
+                " or leave the ink out"
+            } else {
+                ""
+            },
+        ));
+    }
     ph.mark("statistics");
     let document = SeparationDocument {
         header: DocumentHeader::new(None, opts.engine),
