@@ -196,7 +196,12 @@ fn reference_raster_figures_equal_scikit_learn() {
     for matching in ["hungarian", "majority"] {
         let doc = s.assess(&["--reference", survey.as_str(), "--match", matching]);
         check_against_sklearn(&doc, want, matching);
-        // Map areas: every classified pixel × 900 m², whether or not it has a reference.
+        // Map areas: every classified pixel's ground area, whether or not it has a
+        // reference, as `landcover` measures it. On UTM a 30 m grid pixel covers 900 / k²
+        // m² of ground, k the projection's scale, k = k0 (1 + x² / 2R²) to first order
+        // (Snyder 1987, "Map Projections: A Working Manual", USGS PP 1395, §8), x the
+        // distance from the central meridian (the scene's centre: 100 360 m), k0 0.9996,
+        // R 6371 km.
         let pixels: u64 = s.scene["class_pixels"]
             .as_object()
             .unwrap()
@@ -204,8 +209,15 @@ fn reference_raster_figures_equal_scikit_learn() {
             .map(|v| v.as_u64().unwrap())
             .sum();
         assert_eq!(doc["area_unit"], "m2");
+        assert_eq!(doc["area_method"], "ellipsoid-geodesic-lattice");
+        let (x, r) = (100_360.0f64, 6_371_000.0f64);
+        let k = 0.9996 * (1.0 + x * x / (2.0 * r * r));
+        let expected = pixels as f64 * 900.0 / (k * k);
         let total = doc["areas"]["total_area"].as_f64().unwrap();
-        assert!((total - pixels as f64 * 900.0).abs() < 1e-6, "{total}");
+        assert!(
+            ((total - expected) / expected).abs() < 1e-5,
+            "{total} against {expected}"
+        );
     }
     let csv = std::fs::read_to_string(s.dir.path().join("out/valley.confusion.csv")).unwrap();
     assert!(

@@ -497,3 +497,81 @@ fn hyperspectral_scenes_of_256_bands_are_split_and_257_refused() {
         "{err}"
     );
 }
+
+/// The later steps measure ground as `landcover` does: on a Web Mercator scene the label
+/// table, the minimum mapping unit and the assessment's areas all use each pixel's ground
+/// area (pyproj's geodesic footprint of the whole scene, `footprint_area_m2`, written by
+/// `tests/reference/make_gdal_fixtures.py`), not the projected pixel size.
+#[test]
+fn labels_and_assessment_measure_web_mercator_ground() {
+    let want = expected("webmercator_scene.tif")["footprint_area_m2"]
+        .as_f64()
+        .unwrap();
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    let input = gdal("webmercator_scene.tif");
+    let ok = |args: &[&str]| {
+        let o = run(args, &[]);
+        assert!(o.status.success(), "{args:?}: {}", stderr(&o));
+    };
+    let classes_dir = d.join("classes");
+    ok(&[
+        "landcover",
+        input.to_str().unwrap(),
+        "-k",
+        "3",
+        "-o",
+        classes_dir.to_str().unwrap(),
+    ]);
+    let classes = classes_dir.join("webmercator_scene.classes.tif");
+    let labels = d.join("labels.csv");
+    std::fs::write(&labels, "class,label\n1,a\n2,b\n3,c\n").unwrap();
+    let map = d.join("map");
+    ok(&[
+        "landcover-label",
+        classes.to_str().unwrap(),
+        "--labels",
+        labels.to_str().unwrap(),
+        "--min-unit",
+        "0.1ha",
+        "-o",
+        map.to_str().unwrap(),
+    ]);
+    let doc: Value =
+        serde_json::from_slice(&std::fs::read(map.join("webmercator_scene.labels.json")).unwrap())
+            .unwrap();
+    let total: f64 = doc["labels"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|l| l["area_m2"].as_f64().unwrap())
+        .sum();
+    assert!((total - want).abs() < 1e-6 * want, "{total} against {want}");
+    // 0.1 ha in pixels of the scene's mean ground area (all 3072 pixels are valid).
+    let per_pixel = want / 3072.0;
+    assert!((doc["pixel_area_m2"].as_f64().unwrap() - per_pixel).abs() < 1e-6 * per_pixel);
+    assert_eq!(
+        doc["min_unit_pixels"].as_u64().unwrap(),
+        (1000.0 / per_pixel).ceil() as u64
+    );
+    // The map checked against a copy of itself: every pixel agrees, every area counts.
+    let survey = d.join("survey.tif");
+    std::fs::copy(&classes, &survey).unwrap();
+    let check = d.join("check");
+    ok(&[
+        "landcover-assess",
+        classes.to_str().unwrap(),
+        "--reference",
+        survey.to_str().unwrap(),
+        "-o",
+        check.to_str().unwrap(),
+    ]);
+    let a: Value = serde_json::from_slice(
+        &std::fs::read(check.join("webmercator_scene.assessment.json")).unwrap(),
+    )
+    .unwrap();
+    assert_eq!(a["area_unit"], "m2");
+    assert_eq!(a["area_method"], "ellipsoid-geodesic-per-row");
+    let total = a["areas"]["total_area"].as_f64().unwrap();
+    assert!((total - want).abs() < 1e-6 * want, "{total} against {want}");
+}

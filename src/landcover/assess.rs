@@ -10,7 +10,7 @@ use super::accuracy::{
 use super::CAUTION;
 use crate::error::{Error, ParamsError, Result};
 use crate::limits::Limits;
-use crate::raster::geotiff::{GeoRaster, GeoTagValue, GeoTags};
+use crate::raster::geotiff::{GeoRaster, GeoTagValue, GeoTags, PixelAreas};
 use serde::{Deserialize, Serialize};
 use std::collections::HashMap;
 use std::path::{Path, PathBuf};
@@ -83,8 +83,12 @@ pub struct AssessmentDocument {
     pub overall_accuracy: Option<f64>,
     pub kappa: Option<f64>,
     pub per_label: Vec<LabelAccuracy>,
-    /// Unit of the areas: `m2` for a projected CRS in metres, else `pixels`.
+    /// Unit of the areas: `m2` when the class raster's pixels have a ground area (as
+    /// `landcover` measures it), else `pixels`.
     pub area_unit: String,
+    /// How the ground areas were measured (`landcover`'s `area_method` names).
+    #[serde(default)]
+    pub area_method: String,
     /// Error-adjusted areas (Olofsson et al. 2014), map labels as strata.
     pub areas: Option<AreaEstimates>,
 }
@@ -95,8 +99,10 @@ struct Tally {
     table: Vec<Vec<u64>>,
     labels: Vec<String>,
     index: HashMap<String, usize>,
-    /// Pixels of each class in the whole class raster.
+    /// Pixels of each class in the whole class raster, and their ground area (m², when
+    /// the grid has one).
     class_pixels: Vec<u64>,
+    class_area: Vec<f64>,
     outside: u64,
     on_nodata: u64,
 }
@@ -108,9 +114,16 @@ impl Tally {
             labels: Vec::new(),
             index: HashMap::new(),
             class_pixels: vec![0; 256],
+            class_area: vec![0.0; 256],
             outside: 0,
             on_nodata: 0,
         }
+    }
+
+    /// Counts a mapped pixel of `class` at (col, row).
+    fn map_pixel(&mut self, class: u8, areas: &PixelAreas, col: u32, row: u32) {
+        self.class_pixels[class as usize] += 1;
+        self.class_area[class as usize] += areas.at(col, row).unwrap_or(0.0);
     }
 
     fn add(&mut self, class: u8, label: &str) {
@@ -227,6 +240,7 @@ fn tally_raster(classes: &Path, reference: &Path, limits: &Limits, t: &mut Tally
             message: "its georeferencing differs from the class raster's: not the same grid".into(),
         });
     }
+    let areas = PixelAreas::new(&ci.geo, ci.width, ci.height);
     let mut c_rows = crate::features::scene::RowReader::new(&mut cr);
     let mut r_rows = crate::features::scene::RowReader::new(&mut rr);
     let step = 64u32;
@@ -240,7 +254,7 @@ fn tally_raster(classes: &Path, reference: &Path, limits: &Limits, t: &mut Tally
             if class == 0 {
                 continue;
             }
-            t.class_pixels[class as usize] += 1;
+            t.map_pixel(class, &areas, p as u32 % ci.width, y + p as u32 / ci.width);
             let r = rv[p * ri.bands];
             if r == 0.0 || ri.is_nodata(r) || !r.is_finite() {
                 continue;
@@ -309,6 +323,7 @@ fn tally_points(classes: &Path, points: &Path, limits: &Limits, t: &mut Tally) -
         path: classes.into(),
         message: "has no usable georeferencing, so map coordinates cannot be placed".into(),
     })?;
+    let areas = PixelAreas::new(&ci.geo, ci.width, ci.height);
     // Points by pixel row, looked up while the class raster is read block by block.
     let mut by_row: Vec<(u32, u32, usize)> = Vec::new();
     for (k, (x, y, _)) in pts.iter().enumerate() {
@@ -321,10 +336,11 @@ fn tally_points(classes: &Path, points: &Path, limits: &Limits, t: &mut Tally) -
     let mut next = 0;
     for b in 0..cr.block_count() {
         let block = cr.read_block(b)?;
-        for &c in &block.data {
+        for (i, &c) in block.data.iter().enumerate() {
             let class = class_of(classes, c)?;
             if class > 0 {
-                t.class_pixels[class as usize] += 1;
+                let (col, row) = (i as u32 % ci.width, block.y0 + i as u32 / ci.width);
+                t.map_pixel(class, &areas, col, row);
             }
         }
         while next < by_row.len() && by_row[next].0 < block.y0 + block.rows {
@@ -425,23 +441,21 @@ pub fn assess(
     }
     let q = labels.len();
     let mut counts = vec![vec![0u64; q]; q];
-    let mut mapped_pixels = vec![0u64; q];
+    let info = GeoRaster::open(classes, limits)?.info().clone();
+    let areas = PixelAreas::new(&info.geo, info.width, info.height);
+    let area_unit = if areas.is_known() { "m2" } else { "pixels" };
+    let mut mapped_area = vec![0.0f64; q];
     for (k, &c) in present.iter().enumerate() {
         for (j, &n) in table[k].iter().enumerate() {
             counts[row_of[k]][j] += n;
         }
-        mapped_pixels[row_of[k]] += t.class_pixels[c];
+        mapped_area[row_of[k]] += if areas.is_known() {
+            t.class_area[c]
+        } else {
+            t.class_pixels[c] as f64
+        };
     }
     let confusion = Confusion { labels, counts };
-    let geo = GeoRaster::open(classes, limits)?.info().geo.clone();
-    let (area_unit, per_pixel) = match geo.pixel_area_m2() {
-        Some(a) => ("m2", a),
-        None => ("pixels", 1.0),
-    };
-    let mapped_area: Vec<f64> = mapped_pixels
-        .iter()
-        .map(|&n| n as f64 * per_pixel)
-        .collect();
     let name = |p: &Path| super::sample::source_name(p);
     Ok(AssessmentDocument {
         tool_version: crate::TOOL_VERSION.into(),
@@ -459,6 +473,7 @@ pub fn assess(
         kappa: confusion.kappa(),
         per_label: confusion.per_label(),
         area_unit: area_unit.into(),
+        area_method: areas.method.name().into(),
         areas: confusion.area_estimates(&mapped_area),
         confusion,
     })

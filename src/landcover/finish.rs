@@ -10,7 +10,7 @@ use crate::error::{Error, ParamsError, Result};
 use crate::features::components::FIXED;
 use crate::features::merge::merge_small_regions;
 use crate::limits::Limits;
-use crate::raster::geotiff::{self, GeoRaster, GeoTags};
+use crate::raster::geotiff::{self, GeoRaster, GeoTags, PixelAreas};
 use serde::{Deserialize, Serialize};
 use std::path::{Path, PathBuf};
 
@@ -75,7 +75,13 @@ pub struct LabelsDocument {
     pub min_unit: Option<MinUnit>,
     /// The minimum mapping unit in pixels (patches smaller than this were merged).
     pub min_unit_pixels: Option<usize>,
+    /// Ground area of a pixel, m² (the mean over the grid where it varies, as on Web
+    /// Mercator or geographic grids): what the unit in m² or ha was divided by.
     pub pixel_area_m2: Option<f64>,
+    /// How the ground areas were measured (`landcover`'s `area_method` names); each
+    /// label's area is the sum of its pixels' areas.
+    #[serde(default)]
+    pub area_method: String,
     /// Patches merged into a neighbour, pixels that changed label, and patches below the
     /// unit kept because they touch only nodata and the edge.
     pub patches_merged: usize,
@@ -152,6 +158,39 @@ pub(super) fn read_class_raster(path: &Path, limits: &Limits) -> Result<ClassRas
     })
 }
 
+/// The mean ground area of the grid's pixels, m² (none when they have none).
+fn mean_area(areas: &PixelAreas, width: usize, height: usize) -> Option<f64> {
+    if let Some(a) = areas.uniform() {
+        return Some(a);
+    }
+    if !areas.is_known() || width == 0 || height == 0 {
+        return None;
+    }
+    let mut row = vec![0.0f64; width];
+    let mut sum = 0.0;
+    for y in 0..height {
+        areas.row_into(y as u32, &mut row);
+        sum += row.iter().sum::<f64>();
+    }
+    Some(sum / (width * height) as f64)
+}
+
+/// The ground area of each label value's pixels, m² (none when the pixels have none).
+fn label_areas(areas: &PixelAreas, labels: &[u8], width: usize) -> Option<Vec<f64>> {
+    if !areas.is_known() || width == 0 {
+        return None;
+    }
+    let mut sum = vec![0.0f64; 256];
+    let mut row = vec![0.0f64; width];
+    for (y, ls) in labels.chunks(width).enumerate() {
+        areas.row_into(y as u32, &mut row);
+        for (&l, &a) in ls.iter().zip(&row) {
+            sum[l as usize] += a;
+        }
+    }
+    Some(sum)
+}
+
 /// Labels and minimum mapping unit applied in memory: the final labels per pixel and the
 /// document.
 pub(super) fn apply(
@@ -182,7 +221,8 @@ pub(super) fn apply(
         n
     };
     let before = count(&out);
-    let pixel_area = raster.geo.pixel_area_m2();
+    let areas = PixelAreas::new(&raster.geo, raster.width as u32, raster.height as u32);
+    let pixel_area = mean_area(&areas, raster.width, raster.height);
     let min_pixels = match opts.min_unit {
         None => None,
         Some(MinUnit::Pixels(n)) => Some(n),
@@ -191,9 +231,11 @@ pub(super) fn apply(
             None => {
                 return Err(Error::InputData {
                     path: classes.into(),
-                    message: "a minimum mapping unit in m² or ha needs a projected CRS in metres; \
-                              this raster has none (give it in pixels, e.g. 12px)"
-                        .into(),
+                    message: format!(
+                        "a minimum mapping unit in m² or ha needs pixels with a ground area; \
+                         this raster has none ({}; give it in pixels, e.g. 12px)",
+                        areas.note
+                    ),
                 })
             }
         },
@@ -214,17 +256,19 @@ pub(super) fn apply(
         }
     }
     let after = count(&out);
+    let ground = label_areas(&areas, &out, raster.width);
     let labels = set
         .labels
         .iter()
         .map(|l| {
             let px = after[l.number as usize];
+            let area = ground.as_ref().map(|g| g[l.number as usize]);
             LabelReport {
                 label: l.clone(),
                 pixels_labelled: before[l.number as usize],
                 pixels: px,
-                area_m2: pixel_area.map(|a| a * px as f64),
-                hectares: pixel_area.map(|a| a * px as f64 / 10_000.0),
+                area_m2: area,
+                hectares: area.map(|a| a / 10_000.0),
             }
         })
         .collect();
@@ -236,6 +280,7 @@ pub(super) fn apply(
         min_unit: opts.min_unit,
         min_unit_pixels: min_pixels,
         pixel_area_m2: pixel_area,
+        area_method: areas.method.name().into(),
         patches_merged: merged,
         pixels_changed: changed,
         patches_kept_isolated: isolated,
