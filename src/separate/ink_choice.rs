@@ -146,3 +146,78 @@ pub(super) fn choose_for_target(
         ),
     )
 }
+
+/// Refuses a `min_area` larger than the artwork and a `trap` wider than it: either would
+/// print the whole sheet in one ink.
+pub(super) fn check_sizes(opts: &SeparateOptions, width: u32, height: u32) -> Result<()> {
+    let pixels = width as u64 * height as u64;
+    let bad = |m: String| Err(Error::Params(crate::error::ParamsError::Other(m)));
+    if opts.min_area as u64 > pixels {
+        return bad(format!(
+            "`min_area` of {} px is more than the artwork's {width} × {height} = {pixels} px",
+            opts.min_area
+        ));
+    }
+    if opts.trap >= width.max(height) {
+        return bad(format!(
+            "`trap` of {} px is as wide as the artwork ({width} × {height} px) or wider",
+            opts.trap
+        ));
+    }
+    Ok(())
+}
+
+/// The note for inks left out because no colour is nearer to them (`kept` inks remain).
+pub(super) fn idle_note(names: &[&str], kept: usize, substrate: bool) -> String {
+    let one = names.len() == 1;
+    format!(
+        "{} ink{} left out: no colour of the artwork is nearer to {} than to the other \
+         chosen inks{}, so {} print nothing; {kept} plate{} instead of {}",
+        names.join(", "),
+        if one { "" } else { "s" },
+        if one { "it" } else { "them" },
+        if substrate { " and the substrate" } else { "" },
+        if one { "it would" } else { "they would" },
+        if kept == 1 { "" } else { "s" },
+        kept + names.len(),
+    )
+}
+
+/// The note naming plates that print no pixel (`px`: pixels per plate after the
+/// `min_area` merge, which merged `merged` regions), if any.
+pub(super) fn blank_plate_note(
+    chosen: &[Ink],
+    px: &[u64],
+    merged: usize,
+    opts: &SeparateOptions,
+) -> Option<String> {
+    let blank: Vec<&str> = chosen
+        .iter()
+        .zip(px)
+        .filter(|&(_, &n)| n == 0)
+        .map(|(ink, _)| ink.name.as_str())
+        .collect();
+    if blank.is_empty() {
+        return None;
+    }
+    Some(format!(
+        "blank plate{}: {} print{} no pixel{}; check before burning a screen{}",
+        if blank.len() == 1 { "" } else { "s" },
+        blank.join(", "),
+        if blank.len() == 1 { "s" } else { "" },
+        if merged > 0 {
+            format!(
+                " once `min_area` ({} px) merged the small regions (a lower `min_area` \
+                     keeps them)",
+                opts.min_area
+            )
+        } else {
+            String::new()
+        },
+        if opts.all || !opts.use_inks.is_empty() {
+            " or leave the ink out"
+        } else {
+            ""
+        },
+    ))
+}

@@ -228,26 +228,6 @@ pub struct Separation {
     pub document: SeparationDocument,
 }
 
-/// Refuses a `min_area` larger than the artwork and a `trap` wider than it: either would
-/// print the whole sheet in one ink.
-fn check_sizes(opts: &SeparateOptions, width: u32, height: u32) -> Result<()> {
-    let pixels = width as u64 * height as u64;
-    let bad = |m: String| Err(Error::Params(crate::error::ParamsError::Other(m)));
-    if opts.min_area as u64 > pixels {
-        return bad(format!(
-            "`min_area` of {} px is more than the artwork's {width} × {height} = {pixels} px",
-            opts.min_area
-        ));
-    }
-    if opts.trap >= width.max(height) {
-        return bad(format!(
-            "`trap` of {} px is as wide as the artwork ({width} × {height} px) or wider",
-            opts.trap
-        ));
-    }
-    Ok(())
-}
-
 /// Separates decoded artwork with a library (in memory).
 pub fn separate_image(
     img: &Decoded,
@@ -257,7 +237,7 @@ pub fn separate_image(
     stem: &str,
 ) -> Result<Separation> {
     let (k, forced) = resolve_inks(library, opts, library_path)?;
-    check_sizes(opts, img.width, img.height)?;
+    ink_choice::check_sizes(opts, img.width, img.height)?;
     let mut ph = crate::trace::Phases::start("separate");
     // Read through the image's embedded profile, as `reduce` reads it.
     let ImageColours {
@@ -426,25 +406,10 @@ pub fn separate_image(
         order.retain(|i| !idle.contains(i));
         entry_label = label_entries(&order);
         let names: Vec<&str> = idle.iter().map(|&i| library[i].name.as_str()).collect();
-        notes.push(format!(
-            "{} ink{} left out: no colour of the artwork is nearer to {} than to the other \
-             chosen inks{}, so {} print nothing; {} plate{} instead of {}",
-            names.join(", "),
-            if names.len() == 1 { "" } else { "s" },
-            if names.len() == 1 { "it" } else { "them" },
-            if table.substrate.is_some() {
-                " and the substrate"
-            } else {
-                ""
-            },
-            if names.len() == 1 {
-                "it would"
-            } else {
-                "they would"
-            },
+        notes.push(ink_choice::idle_note(
+            &names,
             order.len(),
-            if order.len() == 1 { "" } else { "s" },
-            order.len() + idle.len(),
+            table.substrate.is_some(),
         ));
     }
     let chosen: Vec<Ink> = order.iter().map(|&i| library[i].clone()).collect();
@@ -557,34 +522,12 @@ pub fn separate_image(
             film_coverage: None,
         })
         .collect();
-    let blank: Vec<&str> = chosen
-        .iter()
-        .zip(&px)
-        .filter(|&(_, &n)| n == 0)
-        .map(|(ink, _)| ink.name.as_str())
-        .collect();
-    if !blank.is_empty() {
-        notes.push(format!(
-            "blank plate{}: {} print{} no pixel{}; check before burning a screen{}",
-            if blank.len() == 1 { "" } else { "s" },
-            blank.join(", "),
-            if blank.len() == 1 { "s" } else { "" },
-            if merge.merged > 0 {
-                format!(
-                    " once `min_area` ({} px) merged the small regions (a lower `min_area` \
-                     keeps them)",
-                    opts.min_area
-                )
-            } else {
-                String::new()
-            },
-            if opts.all || !opts.use_inks.is_empty() {
-                " or leave the ink out"
-            } else {
-                ""
-            },
-        ));
-    }
+    notes.extend(ink_choice::blank_plate_note(
+        &chosen,
+        &px,
+        merge.merged,
+        opts,
+    ));
     ph.mark("statistics");
     let document = SeparationDocument {
         header: DocumentHeader::new(None, opts.engine),
