@@ -575,3 +575,47 @@ fn labels_and_assessment_measure_web_mercator_ground() {
     let total = a["areas"]["total_area"].as_f64().unwrap();
     assert!((total - want).abs() < 1e-6 * want, "{total} against {want}");
 }
+
+/// A PNG's fully transparent pixels are no data, as alpha 0 is in a TIFF: the demo aerial
+/// photo's transparent corner (alpha 0 where `fixtures/tiles`, cut from it, hold nodata).
+#[test]
+fn transparent_png_pixels_are_not_classified() {
+    let input = Path::new(env!("CARGO_MANIFEST_DIR")).join("fixtures/demo/valley-aerial.png");
+    let rgba = image::open(&input).unwrap().to_rgba8();
+    let clear = rgba.pixels().filter(|p| p[3] == 0).count() as u64;
+    assert!(clear > 0);
+    let dir = tempfile::tempdir().unwrap();
+    let out = dir.path().join("out");
+    let o = run(
+        &[
+            "landcover",
+            input.to_str().unwrap(),
+            "-k",
+            "5",
+            "-o",
+            out.to_str().unwrap(),
+        ],
+        &[],
+    );
+    assert!(o.status.success(), "{}", stderr(&o));
+    let doc: Value =
+        serde_json::from_slice(&std::fs::read(out.join("valley-aerial.classes.json")).unwrap())
+            .unwrap();
+    assert_eq!(doc["nodata_pixels"].as_u64().unwrap(), clear);
+    assert_eq!(doc["alpha_band"], 4);
+    // The class raster carries a colour table, which the `tiff` crate's decoder does not
+    // read: its samples are read through our reader.
+    let mut r = chromasift::geotiff::GeoRaster::open(
+        &out.join("valley-aerial.classes.tif"),
+        &chromasift::limits::Limits::default(),
+    )
+    .unwrap();
+    let mut classes = Vec::new();
+    for i in 0..r.block_count() {
+        classes.extend(r.read_block(i).unwrap().data);
+    }
+    assert_eq!(classes.len() as u32, rgba.width() * rgba.height());
+    for (p, &c) in rgba.pixels().zip(&classes) {
+        assert_eq!(p[3] == 0, c == 0.0);
+    }
+}

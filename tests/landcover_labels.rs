@@ -342,4 +342,58 @@ fn minimum_mapping_unit_merges_specks_into_their_surroundings() {
         e.contains("plain.classes.tif") && e.contains("ground area"),
         "{e}"
     );
+    // A unit larger than the whole map is refused; a label naming a class the map does
+    // not hold, and a label the unit empties, are warned of.
+    let too_big = dir.path().join("too-big");
+    let o = run(
+        &[
+            "landcover-label",
+            s(&classes),
+            "--min-unit",
+            "100ha",
+            "-o",
+            s(&too_big),
+        ],
+        &[],
+    );
+    let e = stderr(&o);
+    assert_eq!(o.status.code(), Some(2), "{e}");
+    assert!(
+        e.contains("--min-unit") && e.contains("mapped pixels"),
+        "{e}"
+    );
+    assert!(!too_big.exists());
+    let file = dir.path().join("labels.csv");
+    std::fs::write(&file, "class,label\n1,field\n2,speck\n3,wood\n9,ghost\n").unwrap();
+    let warned = dir.path().join("warned");
+    let o = run(
+        &[
+            "landcover-label",
+            s(&classes),
+            "--labels",
+            s(&file),
+            "--min-unit",
+            "0.05ha",
+            "-o",
+            s(&warned),
+        ],
+        &[],
+    );
+    let e = stderr(&o);
+    assert!(o.status.success(), "{e}");
+    assert!(
+        e.contains("warning") && e.contains("'ghost'") && e.contains("9"),
+        "{e}"
+    );
+    let doc = json(&warned.join("specks.labels.json"));
+    let warnings: Vec<&str> = doc["warnings"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|w| w.as_str().unwrap())
+        .collect();
+    assert!(
+        warnings.iter().any(|w| w.contains("'ghost'")),
+        "{warnings:?}"
+    );
 }

@@ -617,8 +617,9 @@ fn min_feature(s: &str) -> Result<crate::film::Length, String> {
 /// Flags of `landcover`.
 #[derive(Debug, Args, Clone)]
 pub struct LandcoverArgs {
-    /// Raster: TIFF/GeoTIFF with 1-16 bands (8/16-bit, 16-bit signed, 32-bit float), or
-    /// PNG/JPEG (R, G, B); `-` for standard input.
+    /// Raster: TIFF/GeoTIFF with 1-256 bands (8/16/32-bit integers, 32/64-bit float), a
+    /// `.stack` list of one-band files, or PNG/JPEG (R, G, B; transparent pixels are
+    /// nodata); `-` for standard input.
     pub input: PathBuf,
 
     /// Number of classes (at most 255).

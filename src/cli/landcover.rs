@@ -366,6 +366,13 @@ pub(super) fn run_label(args: &LandcoverLabelArgs) -> Result<ExitCode, Error> {
             doc.patches_merged, doc.pixels_changed, doc.patches_kept_isolated
         );
     }
+    for w in &doc.warnings {
+        eprintln!(
+            "chromasift: warning: {}: {}",
+            args.classes.display(),
+            super::help::flag_wording(w)
+        );
+    }
     if args.output.json {
         emit_json(&doc);
     }

@@ -286,7 +286,7 @@ fn read_points(path: &Path, limits: &Limits) -> Result<Vec<(f64, f64, String)>> 
         t.col(n).ok_or_else(|| {
             table(
                 1,
-                format!("no `{n}` column (the header needs x, y and label)"),
+                format!("no \"{n}\" column (the header needs x, y and label)"),
             )
         })
     };
@@ -299,7 +299,12 @@ fn read_points(path: &Path, limits: &Limits) -> Result<Vec<(f64, f64, String)>> 
                 .parse::<f64>()
                 .ok()
                 .filter(|v| v.is_finite())
-                .ok_or_else(|| table(*line, format!("`{n}` '{}' is not a number", get(k))))
+                .ok_or_else(|| {
+                    table(
+                        *line,
+                        format!("column \"{n}\": '{}' is not a number", get(k)),
+                    )
+                })
         };
         let label = get(il);
         if label.is_empty() {

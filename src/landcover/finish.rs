@@ -88,6 +88,10 @@ pub struct LabelsDocument {
     pub pixels_changed: u64,
     pub patches_kept_isolated: usize,
     pub labels: Vec<LabelReport>,
+    /// Labels that name classes the map does not hold, and labels the minimum mapping
+    /// unit emptied.
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub warnings: Vec<String>,
 }
 
 /// Settings of [`label_file`].
@@ -240,6 +244,14 @@ pub(super) fn apply(
             }
         },
     };
+    let mapped: u64 = before[1..].iter().sum();
+    if let Some(min) = min_pixels.filter(|&m| m as u64 > mapped) {
+        return Err(ParamsError::Other(format!(
+            "`min_unit` is {min} pixels, more than the map's {mapped} mapped pixels: every \
+             patch would merge into one label"
+        ))
+        .into());
+    }
     let (mut merged, mut isolated, mut changed) = (0, 0, 0u64);
     if let Some(min) = min_pixels {
         let mut wide: Vec<u16> = out
@@ -256,6 +268,28 @@ pub(super) fn apply(
         }
     }
     let after = count(&out);
+    let mut warnings = Vec::new();
+    for l in &set.labels {
+        let (b, a) = (before[l.number as usize], after[l.number as usize]);
+        if b == 0 {
+            warnings.push(format!(
+                "label '{}' names class{} {} that the map does not hold",
+                l.name,
+                if l.classes.len() == 1 { "" } else { "es" },
+                l.classes
+                    .iter()
+                    .map(u8::to_string)
+                    .collect::<Vec<_>>()
+                    .join(", ")
+            ));
+        } else if a == 0 {
+            warnings.push(format!(
+                "label '{}' lost all its {b} pixels to the minimum mapping unit: every patch \
+                 of it was smaller",
+                l.name
+            ));
+        }
+    }
     let ground = label_areas(&areas, &out, raster.width);
     let labels = set
         .labels
@@ -285,6 +319,7 @@ pub(super) fn apply(
         pixels_changed: changed,
         patches_kept_isolated: isolated,
         labels,
+        warnings,
     };
     Ok((out, doc))
 }

@@ -112,7 +112,7 @@ pub fn read_labels(path: &Path, limits: &Limits) -> Result<LabelSet> {
         _ => {
             return Err(err(
                 1,
-                "the header needs `class` and `label` columns".into(),
+                "the header needs \"class\" and \"label\" columns".into(),
             ))
         }
     };

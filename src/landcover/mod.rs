@@ -155,8 +155,9 @@ pub fn landcover_file(
     out_dir: &Path,
     opts: &LandcoverOptions,
 ) -> Result<LandcoverReport> {
-    let params = opts.params().check()?;
+    // The class raster's bound first: it is the tighter one.
     opts.check_k()?;
+    let params = opts.params().check()?;
     // A second start from another seed, compared with the kept solution (see
     // `RestartCheck`).
     let second_seed = opts.engine.seed ^ 0x5eed_0000_0000_0001;

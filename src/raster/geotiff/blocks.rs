@@ -34,14 +34,22 @@ pub(super) struct TiffSource {
 }
 
 pub(super) fn image_block(d: &crate::raster::Decoded) -> Block {
+    // A fully transparent pixel is not there: no data, as alpha 0 in a TIFF.
+    let rgb = |r: u16, g: u16, b: u16, a: u16| {
+        if a == 0 {
+            [f32::NAN; 3]
+        } else {
+            [r as f32, g as f32, b as f32]
+        }
+    };
     let data: Vec<f32> = match &d.pixels {
         crate::raster::Pixels::Rgba8(p) => p
             .chunks_exact(4)
-            .flat_map(|c| [c[0] as f32, c[1] as f32, c[2] as f32])
+            .flat_map(|c| rgb(c[0].into(), c[1].into(), c[2].into(), c[3].into()))
             .collect(),
         crate::raster::Pixels::Rgba16(p) => p
             .chunks_exact(4)
-            .flat_map(|c| [c[0] as f32, c[1] as f32, c[2] as f32])
+            .flat_map(|c| rgb(c[0], c[1], c[2], c[3]))
             .collect(),
     };
     Block {

@@ -485,7 +485,8 @@ fn open_image(path: &Path, limits: &Limits) -> Result<GeoRaster> {
             tiled: false,
             geo: GeoTags::default(),
             nodata: None,
-            alpha_band: None,
+            // The decoded image's alpha, when the file has one (band 4 of RGBA).
+            alpha_band: d.has_alpha.then_some(4),
             mask: None,
             sparse_chunks: 0,
             excluded_by: None,
