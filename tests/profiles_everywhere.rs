@@ -346,7 +346,7 @@ fn grey_tagged_images_give_the_lightness_of_their_grey_curve() {
     // records the profile.
     let dir = tempfile::tempdir().unwrap();
     let out = dir.path().join("r");
-    ok(&[
+    let o = ok(&[
         "reduce",
         file.to_str().unwrap(),
         "-k",
@@ -357,6 +357,13 @@ fn grey_tagged_images_give_the_lightness_of_their_grey_curve() {
     let doc = json(&out.join("grey.palette.json"));
     assert_eq!(doc["colour_profile"]["input"], "icc");
     assert_eq!(doc["colour_profile"]["description"], GREY);
+    // An RGB PNG cannot carry the grey profile: sRGB numbers, and a note says so.
+    assert_eq!(doc["colour_profile"]["output"], "srgb");
+    let e = stderr(&o);
+    assert!(
+        e.contains("note") && e.contains("grey colour profile"),
+        "{e}"
+    );
     assert_palette_holds(&hexes(&doc), &refs, "reduce (grey)");
     for c in doc["colors"].as_array().unwrap() {
         let (a, b) = (c["lab"][1].as_f64().unwrap(), c["lab"][2].as_f64().unwrap());

@@ -285,6 +285,16 @@ pub fn reduce_image_with(
         Some(ProfileUse::Srgb(_) | ProfileUse::Convert(_)) => keep_source && rgb,
         _ => false,
     };
+    if keep_source && !rgb && matches!(read, Some(ProfileUse::Srgb(_) | ProfileUse::Convert(_))) {
+        red.notes.push(format!(
+            "the source's grey colour profile{} is not embedded: the reduced image is an RGB \
+             PNG, so it is written in sRGB numbers (the colours are the same)",
+            description
+                .as_deref()
+                .map(|d| format!(" ({d})"))
+                .unwrap_or_default()
+        ));
+    }
     if embed {
         if let Some(p) = convert {
             red.metadata.written_palette = p.encode_srgb8(&red.palette);
