@@ -394,6 +394,13 @@ fn low_resolution_films_and_outsized_settings() {
         let o = separate_poster(&out, &args);
         assert!(o.status.success(), "{name}: {}", stderr(&o));
         assert!(files_in(&out).iter().any(|f| f.ends_with(".tif")), "{name}");
+        // The plates carry the print resolution too (PNG pHYs: 2835 px/m is 72 dpi).
+        let plate = files_in(&out)
+            .into_iter()
+            .find(|f| f.contains(".plate-01-") && f.ends_with(".png"))
+            .unwrap();
+        let bytes = std::fs::read(out.join(&plate)).unwrap();
+        assert_eq!(chromasift::raster::sniff_dpi(&bytes), Some(72.0), "{plate}");
     }
     for (extra, words) in [
         (vec!["--trap", "100000"], vec!["--trap", "320 × 240"]),

@@ -642,7 +642,9 @@ pub fn separate_file(
             )?;
             for (i, ink) in sep.document.inks.iter().enumerate() {
                 let mask = &sep.masks[i];
-                set.write(&ink.plate, |w| write_plate(w, sep.width, sep.height, mask))?;
+                set.write(&ink.plate, |w| {
+                    write_plate(w, sep.width, sep.height, mask, sep.document.dpi)
+                })?;
             }
             let proof = proof_rgba(&sep, opts.substrate);
             set.write(&format!("{stem}.proof.png"), |w| {
