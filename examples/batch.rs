@@ -12,6 +12,7 @@ fn main() -> Result<(), chromasift::Error> {
     let opts = BatchOptions {
         reduce: ReduceOptions::new(8),
         shared: true,
+        equal_weight: false,
         jobs: 2,
         force: true,
         review_page: false,

@@ -762,3 +762,71 @@ fn each_images_notes_and_warnings_reach_the_report_and_the_terminal() {
         assert_eq!(f["warnings"], g["warnings"], "{g}");
     }
 }
+
+/// `--shared --equal-weight`: a small image counts as much as a large one in the shared
+/// palette. A grey photograph beside a poster of sixteen times its pixels: by pixels the
+/// poster's colours take the palette and the photograph's greys go to them; weighed
+/// equally, the photograph keeps greys of its own.
+#[test]
+fn equal_weight_gives_a_small_image_its_share_of_the_palette() {
+    let root = tempfile::tempdir().unwrap();
+    let input = root.path().join("mixed");
+    std::fs::create_dir_all(&input).unwrap();
+    let poster = image::open(fixture("demo/harbour-poster.png")).unwrap();
+    poster
+        .resize_exact(1280, 960, image::imageops::FilterType::Nearest)
+        .save(input.join("poster.png"))
+        .unwrap();
+    let grey = image::open(fixture("photos/chelsea.png"))
+        .unwrap()
+        .to_luma8();
+    let (gw, gh) = grey.dimensions();
+    assert!(u64::from(gw * gh) * 16 < 1280 * 960);
+    grey.save(input.join("cat.png")).unwrap();
+    let run_batch = |out: &Path, extra: &[&str]| -> Value {
+        let mut args = vec![
+            "batch",
+            input.to_str().unwrap(),
+            "--shared",
+            "-k",
+            "8",
+            "-o",
+            out.to_str().unwrap(),
+        ];
+        args.extend_from_slice(extra);
+        let o = run(&args, &[]);
+        assert!(o.status.success(), "{}", stderr(&o));
+        report(out)
+    };
+    let error_of = |r: &Value, name: &str| {
+        r["files"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .find(|f| f["input"] == name)
+            .unwrap()["mean_delta_e2000"]
+            .as_f64()
+            .unwrap()
+    };
+    let by_pixels = run_batch(&root.path().join("pixels"), &[]);
+    let equal = run_batch(&root.path().join("equal"), &["--equal-weight"]);
+    assert!(by_pixels.get("equal_weight").is_none());
+    assert_eq!(equal["equal_weight"], true);
+    let (a, b) = (error_of(&by_pixels, "cat.png"), error_of(&equal, "cat.png"));
+    assert!(
+        b < 0.8 * a,
+        "grey photo: mean ΔE2000 {a} by pixels, {b} weighed equally"
+    );
+    // Without --shared the flag means nothing: refused.
+    let o = run(
+        &[
+            "batch",
+            input.to_str().unwrap(),
+            "--equal-weight",
+            "-o",
+            root.path().join("x").to_str().unwrap(),
+        ],
+        &[],
+    );
+    assert_eq!(o.status.code(), Some(2));
+}

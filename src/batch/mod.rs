@@ -25,6 +25,10 @@ use std::path::{Path, PathBuf};
 use std::sync::atomic::{AtomicBool, AtomicUsize, Ordering};
 use std::time::Instant;
 
+/// The pixels every image stands for in a shared palette with `equal_weight`: more than
+/// most photographs hold, so counts are scaled up, not rounded away.
+pub const EQUAL_WEIGHT_PIXELS: u64 = 1 << 24;
+
 /// Name of the shared palette written by `batch --shared`.
 pub const SHARED_PALETTE: &str = "shared.palette.json";
 
@@ -88,6 +92,9 @@ pub struct BatchReport {
     /// The one palette every image was mapped onto: `shared.palette.json` (`--shared`) or
     /// the `--palette` file as named; null when each image has its own.
     pub shared_palette: Option<String>,
+    /// True when every image weighed the same in the shared palette (`equal_weight`).
+    #[serde(default, skip_serializing_if = "std::ops::Not::not")]
+    pub equal_weight: bool,
     /// That palette's file, SHA-256 and size.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub given_palette: Option<reduce::GivenPalette>,
@@ -105,6 +112,9 @@ pub struct BatchOptions {
     pub reduce: ReduceOptions,
     /// One palette for all images, fitted on their merged histograms.
     pub shared: bool,
+    /// With `shared`: every image weighs the same in the shared palette (its histogram
+    /// scaled to [`EQUAL_WEIGHT_PIXELS`]), not in proportion to its pixels.
+    pub equal_weight: bool,
     /// Images processed at once (worker threads). Default: the number of cores.
     pub jobs: usize,
     /// Redo images whose outputs are up to date.
@@ -477,7 +487,11 @@ pub fn run_batch(
                 if stop.load(Ordering::Relaxed) {
                     Err(Error::Data("interrupted".into()))
                 } else {
-                    read_input(p, &opts.reduce.limits, rel(p))
+                    let (mut h, records) = read_input(p, &opts.reduce.limits, rel(p))?;
+                    if opts.equal_weight {
+                        h.rescale_total(EQUAL_WEIGHT_PIXELS);
+                    }
+                    Ok((h, records))
                 }
             })
         });
@@ -615,6 +629,7 @@ pub fn run_batch(
             (None, true) => Some(SHARED_PALETTE.to_string()),
             (None, false) => None,
         },
+        equal_weight: opts.shared && opts.equal_weight,
         given_palette: fixed.as_ref().and_then(|f| f.origin.clone()),
         not_applied: given
             .map(|p| reduce::not_applied(&opts.reduce, p))

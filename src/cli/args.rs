@@ -186,6 +186,11 @@ pub struct BatchArgs {
     #[arg(long, conflicts_with = "palette_file")]
     pub shared: bool,
 
+    /// With --shared: every image counts the same in the shared palette, whatever its size
+    /// (by default every pixel counts the same, so large images weigh more).
+    #[arg(long = "equal-weight", requires = "shared")]
+    pub equal_weight: bool,
+
     /// Map every image onto this palette instead of fitting one per image: a palette
     /// document (from `learn`, `reduce` or `batch --shared`), a list of hex colours (one per
     /// line) or a CSV table with a name and hex or L,a,b columns (as --pin-file reads them).

@@ -449,6 +449,7 @@ fn run_batch(args: BatchArgs) -> ExitCode {
     let opts = batch::BatchOptions {
         reduce: args.options(),
         shared: args.shared,
+        equal_weight: args.equal_weight,
         jobs: args
             .jobs
             .map(usize::from)

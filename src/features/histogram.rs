@@ -87,6 +87,19 @@ impl Histogram {
         self
     }
 
+    /// Scales the counts to sum to about `total`, each colour present keeping at least 1:
+    /// the histogram then weighs as an image of `total` pixels, whatever its size.
+    pub fn rescale_total(&mut self, total: u64) {
+        let sum: u128 = self.counts.iter().map(|&c| c as u128).sum();
+        if sum == 0 {
+            return;
+        }
+        for c in self.counts.iter_mut().filter(|c| **c > 0) {
+            let scaled = (*c as u128 * total as u128 + sum / 2) / sum;
+            *c = scaled.clamp(1, u64::MAX as u128) as u64;
+        }
+    }
+
     /// Counts as f64 weights for clustering.
     pub fn weights(&self) -> Vec<f64> {
         self.counts.iter().map(|&c| c as f64).collect()
@@ -378,6 +391,24 @@ mod tests {
         assert_eq!(h.histogram.colours, vec![[1, 2, 3]]);
         assert_eq!(h.histogram.counts, vec![2]);
         assert_eq!(h.pixel_entry, vec![0, 0, TRANSPARENT]);
+    }
+
+    #[test]
+    fn rescaled_counts_keep_their_proportions_and_every_colour() {
+        let rgba = |n: usize, c: [u8; 3]| -> Vec<u8> {
+            (0..n).flat_map(|_| [c[0], c[1], c[2], 255]).collect()
+        };
+        let mut px = rgba(3, [1, 2, 3]);
+        px.extend(rgba(1, [9, 9, 9]));
+        let mut h = from_rgba8(&px).histogram;
+        h.rescale_total(1000);
+        assert_eq!(h.counts, vec![750, 250]);
+        let mut px = rgba(999, [1, 2, 3]);
+        px.extend(rgba(1, [5, 5, 5]));
+        let mut h = from_rgba8(&px).histogram;
+        h.rescale_total(10);
+        // 1 of 1000 pixels scales to 0.01: kept at 1, not dropped.
+        assert_eq!(h.counts, vec![10, 1]);
     }
 
     #[test]
