@@ -430,3 +430,38 @@ fn separate_target_uses_the_fewest_inks_within_the_target() {
     assert!(mean <= target);
     assert!(err.contains(&format!("chose {want} inks")), "{err}");
 }
+
+/// On a photograph the criteria disagree and the recommendation says it is not to be
+/// leaned on; where they agree (the demo poster), it does not.
+#[test]
+fn a_recommendation_no_criterion_backs_says_so() {
+    let dir = tempfile::tempdir().unwrap();
+    for (art, k) in [
+        ("photos/coffee.png", "2..12"),
+        ("demo/harbour-poster.png", "2..10"),
+    ] {
+        let out = dir.path().join(art.replace('/', "-"));
+        let input = fixture(art);
+        let o = run(
+            &[
+                "sweep",
+                input.to_str().unwrap(),
+                "--k",
+                k,
+                "-o",
+                out.to_str().unwrap(),
+            ],
+            &[],
+        );
+        assert!(o.status.success(), "{}", stderr(&o));
+        let doc: Value =
+            serde_json::from_slice(&std::fs::read(out.join("sweep.json")).unwrap()).unwrap();
+        let r = &doc["recommended"];
+        let none = r["agreeing"].as_array().unwrap().is_empty();
+        let text = r["agreement"].as_str().unwrap();
+        assert_eq!(text.contains("low confidence"), none, "{art}: {text}");
+        assert_eq!(stderr(&o).contains("low confidence"), none, "{art}");
+        // The photograph is the case this is for.
+        assert_eq!(none, art.starts_with("photos/"), "{art}: {text}");
+    }
+}

@@ -198,6 +198,14 @@ pub fn recommend(rows: &[SweepRow], suggested: &BTreeMap<String, usize>) -> Opti
     if !others.is_empty() {
         agreement.push_str(&format!("; the others suggest {}", others.join(", ")));
     }
+    if agreeing.is_empty() {
+        // Typical of photographs, whose colours run into each other: no count is right.
+        agreement.push_str(
+            "; low confidence: with no criterion agreeing, the image may have no natural \
+             number of colours (a photograph): `reduce --target-delta-e` chooses K by the \
+             error you accept",
+        );
+    }
     Some(Recommendation {
         k,
         rule: rule.to_string(),
