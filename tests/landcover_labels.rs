@@ -117,6 +117,51 @@ fn labels_name_and_merge_the_classes_of_the_valley() {
         }
     }
     assert!(hit as f64 >= 0.95 * valid as f64, "{hit} of {valid}");
+    // Field points named as the analyst names the surfaces: `--match same` scores the
+    // labelled map by its labels' names (read from valley.labels.json beside it), and the
+    // unlabelled class raster, whose numbers no name equals, with a warning.
+    let mut points = String::from("x,y,label\n");
+    for p in (0..truth.len()).step_by(7).filter(|&p| truth[p] != 0) {
+        let (col, row) = ((p % w as usize) as f64, (p / w as usize) as f64);
+        points.push_str(&format!(
+            "{},{},{}\n",
+            500_000.0 + (col + 0.5) * 10.0,
+            5_000_000.0 - (row + 0.5) * 10.0,
+            surface_label(truth[p])
+        ));
+    }
+    let points_csv = d.join("field.csv");
+    std::fs::write(&points_csv, points).unwrap();
+    let assess = |raster: &Path, out: &Path| -> Value {
+        let o = run(
+            &[
+                "landcover-assess",
+                s(raster),
+                "--points",
+                s(&points_csv),
+                "--match",
+                "same",
+                "-o",
+                s(out),
+            ],
+            &[],
+        );
+        assert!(o.status.success(), "{}", stderr(&o));
+        let name = raster.file_name().unwrap().to_str().unwrap();
+        let stem = name.trim_end_matches(".tif").trim_end_matches(".classes");
+        json(&out.join(format!("{stem}.assessment.json")))
+    };
+    let named = assess(&map.join("valley.labelled.tif"), &d.join("check-named"));
+    assert_eq!(named["map_label_names"], "valley.labels.json");
+    let oa = named["overall_accuracy"].as_f64().unwrap();
+    assert!(oa >= 0.9, "{oa}");
+    assert!(named.get("warnings").is_none(), "{named}");
+    let numbers = assess(&classes_tif, &d.join("check-numbers"));
+    assert_eq!(numbers["overall_accuracy"].as_f64().unwrap(), 0.0);
+    assert!(numbers["warnings"][0]
+        .as_str()
+        .unwrap()
+        .contains("no map label"));
     // Counts and ground areas per label; the file's colour is kept. A 10 m pixel of UTM
     // covers 100 / k² m² of ground, k the projection's scale: k0 = 0.9996 on the central
     // meridian, where the valley lies (it reaches 1.6 km east of it, where k is larger by

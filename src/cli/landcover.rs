@@ -285,6 +285,13 @@ pub(super) fn run_assess(args: &LandcoverAssessArgs) -> Result<ExitCode, Error> 
             doc.points_outside, doc.points_on_nodata
         );
     }
+    for w in &doc.warnings {
+        eprintln!(
+            "chromasift: warning: {}: {}",
+            args.classes.display(),
+            super::help::flag_wording(w)
+        );
+    }
     if args.output.json {
         emit_json(&doc);
     }

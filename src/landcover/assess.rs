@@ -91,6 +91,14 @@ pub struct AssessmentDocument {
     pub area_method: String,
     /// Error-adjusted areas (Olofsson et al. 2014), map labels as strata.
     pub areas: Option<AreaEstimates>,
+    /// With `same` matching on a labelled map (`STEM.labelled.tif`): the labels document
+    /// beside it (`STEM.labels.json`) whose names the map's numbers were compared by.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub map_label_names: Option<String>,
+    /// What the figures may not show (with `same` matching: no map label equals any
+    /// reference label).
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub warnings: Vec<String>,
 }
 
 /// Counts gathered from the class raster and the reference.
@@ -407,6 +415,18 @@ pub fn assess(
         .map(|&c| order.iter().map(|&j| t.table[c][j]).collect())
         .collect();
     let ari = adjusted_rand_index(&table);
+    // A labelled map is compared by its labels' names when its labels document is beside
+    // it; a class raster by its numbers.
+    let names = match matching {
+        Matching::Same => super::finish::label_names_beside(classes, limits)?,
+        _ => None,
+    };
+    let name_of = |c: usize| -> String {
+        names
+            .as_ref()
+            .and_then(|(_, n)| n.get(&c).cloned())
+            .unwrap_or_else(|| c.to_string())
+    };
     // Cluster → label.
     let majority = |r: &[u64]| {
         let best = (0..r.len()).max_by_key(|&j| (r[j], std::cmp::Reverse(j)))?;
@@ -421,9 +441,23 @@ pub fn assess(
         Matching::Majority => table.iter().map(|r| majority(r)).collect(),
         Matching::Same => present
             .iter()
-            .map(|c| ref_labels.iter().position(|l| *l == c.to_string()))
+            .map(|&c| ref_labels.iter().position(|l| *l == name_of(c)))
             .collect(),
     };
+    let mut warnings = Vec::new();
+    if matching == Matching::Same && chosen.iter().all(Option::is_none) {
+        warnings.push(format!(
+            "no map label ({}) equals any reference label ({}): every unit counts as an \
+             error; name the map's classes (`landcover-label`) as the reference names them, \
+             or match by agreement",
+            present
+                .iter()
+                .map(|&c| name_of(c))
+                .collect::<Vec<_>>()
+                .join(", "),
+            ref_labels.join(", ")
+        ));
+    }
     // Labels of the confusion matrix: the reference labels, then a row for each cluster
     // that got none (it has no reference unit, or no label equal to its number).
     let mut labels = ref_labels.clone();
@@ -433,7 +467,10 @@ pub fn assess(
         let i = match chosen[k] {
             Some(j) => j,
             None => {
-                labels.push(format!("class {c}"));
+                labels.push(match &names {
+                    Some(_) => format!("map {}", name_of(c)),
+                    None => format!("class {c}"),
+                });
                 labels.len() - 1
             }
         };
@@ -480,6 +517,8 @@ pub fn assess(
         area_unit: area_unit.into(),
         area_method: areas.method.name().into(),
         areas: confusion.area_estimates(&mapped_area),
+        map_label_names: names.map(|(file, _)| file),
+        warnings,
         confusion,
     })
 }

@@ -162,6 +162,37 @@ pub(super) fn read_class_raster(path: &Path, limits: &Limits) -> Result<ClassRas
     })
 }
 
+/// The label names of a labelled map (`STEM.labelled.tif`) from the labels document
+/// written beside it (`STEM.labels.json`): its file name and number → name. None for
+/// another raster, or when there is no such document.
+pub(super) fn label_names_beside(
+    classes: &Path,
+    limits: &Limits,
+) -> Result<Option<(String, std::collections::HashMap<usize, String>)>> {
+    let Some(stem) = classes
+        .file_name()
+        .and_then(|n| n.to_str())
+        .and_then(|n| n.strip_suffix(".labelled.tif"))
+    else {
+        return Ok(None);
+    };
+    let path = classes.with_file_name(format!("{stem}.labels.json"));
+    if !path.is_file() {
+        return Ok(None);
+    }
+    let bytes = super::sample::read_bounded(&path, limits)?;
+    let doc: LabelsDocument = serde_json::from_slice(&bytes).map_err(|e| Error::InputData {
+        path: path.clone(),
+        message: format!("is not a labels document: {e}"),
+    })?;
+    let names = doc
+        .labels
+        .iter()
+        .map(|l| (l.label.number as usize, l.label.name.clone()))
+        .collect();
+    Ok(Some((super::sample::source_name(&path), names)))
+}
+
 /// The mean ground area of the grid's pixels, m² (none when they have none).
 fn mean_area(areas: &PixelAreas, width: usize, height: usize) -> Option<f64> {
     if let Some(a) = areas.uniform() {
