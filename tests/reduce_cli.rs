@@ -833,3 +833,30 @@ fn a_failed_write_to_standard_output_is_an_error() {
         stderr(&o)
     );
 }
+
+/// Two inputs of one name stem into one folder: the second run says it replaced the
+/// first's outputs; running the same input again says nothing of the kind.
+#[test]
+fn outputs_of_another_input_with_the_same_stem_are_named_when_replaced() {
+    let dir = tempfile::tempdir().unwrap();
+    let out = dir.path().join("out");
+    let (png, jpg) = (fixture("profiles/p3.png"), fixture("profiles/p3.jpg"));
+    let go = |input: &Path| {
+        stderr(&reduce_ok(&[
+            "reduce",
+            input.to_str().unwrap(),
+            "-k",
+            "4",
+            "-o",
+            out.to_str().unwrap(),
+        ]))
+    };
+    assert!(!go(&png).contains("same name stem"));
+    let e = go(&jpg);
+    assert!(
+        e.contains("made from p3.png") && e.contains("p3.jpg"),
+        "{e}"
+    );
+    assert_eq!(palette_doc(&out, "p3")["input"], "p3.jpg");
+    assert!(!go(&jpg).contains("same name stem"));
+}

@@ -407,6 +407,7 @@ pub fn reduce_file_run(
     if opts.loss_map {
         names.extend(loss_names(&stem));
     }
+    let replaced = outputs_of_another_input(out_dir, &stem, input);
     let (red, outputs) = crate::output::one_input(
         input,
         out_dir,
@@ -430,6 +431,7 @@ pub fn reduce_file_run(
     )?;
     ph.mark("rename into place");
     let mut notes = red.notes;
+    notes.extend(replaced);
     notes.extend(stale_outputs(out_dir, &stem, opts));
     Ok(ReduceReport {
         input: input.into(),
@@ -438,6 +440,26 @@ pub fn reduce_file_run(
         notes,
         warnings: red.warnings,
         seconds: t0.elapsed().as_secs_f64(),
+    })
+}
+
+/// A note when the folder holds outputs of this stem made from another input (`p3.png`
+/// then `p3.jpg`): they are replaced, and only the last input's set stays.
+fn outputs_of_another_input(out_dir: &Path, stem: &str, input: &Path) -> Option<String> {
+    let doc = out_dir.join(format!("{stem}.palette.json"));
+    let meta = std::fs::metadata(&doc).ok()?;
+    if !meta.is_file() || meta.len() > 1 << 24 {
+        return None;
+    }
+    let value: serde_json::Value = serde_json::from_slice(&std::fs::read(&doc).ok()?).ok()?;
+    let before = value.get("input")?.as_str()?.to_string();
+    let now = input.file_name()?.to_string_lossy();
+    (before != now).then(|| {
+        format!(
+            "the outputs {stem}.* in {} were made from {before}, which has the same name \
+             stem; they are replaced by those of {now}",
+            out_dir.display()
+        )
     })
 }
 
