@@ -833,3 +833,24 @@ fn a_failed_write_to_standard_output_is_an_error() {
         stderr(&o)
     );
 }
+
+#[test]
+fn one_colour_is_named_in_the_singular() {
+    let dir = tempfile::tempdir().unwrap();
+    let input = dir.path().join("one.png");
+    write_rgb(&input, 4, 3, &[200u8, 30, 30].repeat(12));
+    let out = dir.path().join("out");
+    let o = reduce_ok(&[
+        "reduce",
+        input.to_str().unwrap(),
+        "-k",
+        "4",
+        "-o",
+        out.to_str().unwrap(),
+    ]);
+    assert!(
+        stderr(&o).contains("only 1 distinct colour; returning it instead of 4"),
+        "{}",
+        stderr(&o)
+    );
+}
