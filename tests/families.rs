@@ -426,3 +426,108 @@ fn touching_lost_areas_of_different_colours_are_reported_apart() {
         doc["lost_areas"]
     );
 }
+
+/// A smooth 800 × 600 gradient from blue to beige with one solid red dot (#dc141e) 14
+/// pixels across, written as PNG in `dir`: the file and the dot's pixel count (about 150,
+/// under 0.1 % of the image and so under the size asked of larger areas and families).
+fn gradient_with_dot(dir: &Path) -> (std::path::PathBuf, u64) {
+    let (w, h) = (800u32, 600u32);
+    let (cx, cy) = (607.0f64, 307.0f64);
+    let mut rgb = Vec::new();
+    let mut dot_pixels = 0u64;
+    for y in 0..h {
+        for x in 0..w {
+            let (fx, fy) = (x as f64 + 0.5, y as f64 + 0.5);
+            if (fx - cx).powi(2) + (fy - cy).powi(2) <= 49.0 {
+                dot_pixels += 1;
+                rgb.extend_from_slice(&DOT);
+                continue;
+            }
+            let t = (0.7 * x as f64 / (w - 1) as f64 + 0.3 * y as f64 / (h - 1) as f64).min(1.0);
+            let mix = |a: f64, b: f64| (a + (b - a) * t).round() as u8;
+            rgb.extend_from_slice(&[mix(40.0, 232.0), mix(70.0, 214.0), mix(170.0, 176.0)]);
+        }
+    }
+    assert!(dot_pixels < 200, "{dot_pixels}");
+    let img = dir.join("dot.png");
+    common::write_rgb(&img, w, h, &rgb);
+    (img, dot_pixels)
+}
+
+const DOT: [u8; 3] = [0xdc, 0x14, 0x1e];
+
+/// `reduce -k 8` of [`gradient_with_dot`] with extra arguments: the palette document and
+/// the standard error.
+fn reduce_dot(dir: &Path, img: &Path, extra: &[&str]) -> (Value, String) {
+    let out = dir.join("out");
+    let mut args = vec![
+        "reduce",
+        img.to_str().unwrap(),
+        "-k",
+        "8",
+        "-o",
+        out.to_str().unwrap(),
+    ];
+    args.extend_from_slice(extra);
+    let o = run(&args, &[]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    let doc: Value =
+        serde_json::from_slice(&std::fs::read(out.join("dot.palette.json")).unwrap()).unwrap();
+    (doc, stderr(&o))
+}
+
+/// On [`gradient_with_dot`], plain k-means at 8 colours spends them on the gradient and
+/// paints the dot in a gradient colour; the report must still name it, with its own colour,
+/// its pixels and box as drawn, and the CIEDE2000 (checked against Sharma, Wu & Dalal 2005
+/// in `tests/colour_reference.rs`) between the dot and the colour it took, and warn once.
+#[test]
+fn a_small_dot_far_from_its_colour_is_reported_in_a_large_image() {
+    let dir = tempfile::tempdir().unwrap();
+    let (img, dot_pixels) = gradient_with_dot(dir.path());
+    let (doc, err) = reduce_dot(dir.path(), &img, &["--objective", "plain"]);
+    let areas = doc["lost_areas"].as_array().unwrap();
+    assert_eq!(areas.len(), 1, "{}", doc["lost_areas"]);
+    let a = &areas[0];
+    assert_eq!(a["source"].as_str().unwrap(), "#dc141e");
+    assert_eq!(a["pixels"].as_u64().unwrap(), dot_pixels);
+    let bx: Vec<u64> = ["x", "y", "width", "height"]
+        .iter()
+        .map(|k| a[k].as_u64().unwrap())
+        .collect();
+    assert_eq!(bx, vec![600, 300, 14, 14]);
+    let rendered = chromasift::colour::parse_hex(a["rendered"].as_str().unwrap()).unwrap();
+    let d = delta_e2000(srgb8_to_lab(DOT), srgb8_to_lab(rendered));
+    assert!(d >= 20.0, "{d}");
+    assert!(
+        (a["delta_e2000"].as_f64().unwrap() - d).abs() < 1e-6,
+        "{a} vs {d}"
+    );
+    let warnings: Vec<&str> = err.lines().filter(|l| l.contains("warning")).collect();
+    assert_eq!(warnings.len(), 1, "{err}");
+    assert!(
+        warnings[0].contains("1 area rendered") && warnings[0].contains("#dc141e"),
+        "{err}"
+    );
+}
+
+/// The default objective brings the dot of [`gradient_with_dot`] back: a palette colour
+/// within ΔE2000 6 of it (CIEDE2000 checked against Sharma, Wu & Dalal 2005), a note of
+/// the move, and nothing lost.
+#[test]
+fn the_default_objective_keeps_a_small_dot_unlike_anything_else() {
+    let dir = tempfile::tempdir().unwrap();
+    let (img, _) = gradient_with_dot(dir.path());
+    let (doc, err) = reduce_dot(dir.path(), &img, &[]);
+    let nearest = doc["colors"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|c| {
+            let p = chromasift::colour::parse_hex(c["hex"].as_str().unwrap()).unwrap();
+            delta_e2000(srgb8_to_lab(DOT), srgb8_to_lab(p))
+        })
+        .fold(f64::INFINITY, f64::min);
+    assert!(nearest <= 6.0, "{nearest}: {}", doc["colors"]);
+    assert!(doc["lost_areas"].as_array().unwrap().is_empty(), "{err}");
+    assert!(err.contains("moved 1 palette colour"), "{err}");
+}

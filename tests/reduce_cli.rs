@@ -860,3 +860,24 @@ fn outputs_of_another_input_with_the_same_stem_are_named_when_replaced() {
     assert_eq!(palette_doc(&out, "p3")["input"], "p3.jpg");
     assert!(!go(&jpg).contains("same name stem"));
 }
+
+#[test]
+fn one_colour_is_named_in_the_singular() {
+    let dir = tempfile::tempdir().unwrap();
+    let input = dir.path().join("one.png");
+    write_rgb(&input, 4, 3, &[200u8, 30, 30].repeat(12));
+    let out = dir.path().join("out");
+    let o = reduce_ok(&[
+        "reduce",
+        input.to_str().unwrap(),
+        "-k",
+        "4",
+        "-o",
+        out.to_str().unwrap(),
+    ]);
+    assert!(
+        stderr(&o).contains("only 1 distinct colour; returning it instead of 4"),
+        "{}",
+        stderr(&o)
+    );
+}

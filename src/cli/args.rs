@@ -43,9 +43,10 @@ pub struct PaletteFlags {
 
     /// How colours are chosen. `families` (default): k-means, then every distinct colour
     /// family the palette would lose (a small shape in a colour unlike its surroundings,
-    /// at least 0.1 % of the pixels or 400 pixels) is brought back in place of the least
-    /// needed colour, such as one of two near-duplicates in a smooth area. `plain`: plain
-    /// k-means, the pixel-weighted squared error alone (the textbook objective; `sse` is accepted too).
+    /// at least 0.05 % of the pixels, clamped to 8–200 pixels, or down to 8 pixels when
+    /// ΔE2000 20 from every other colour) is brought back in place of the least needed
+    /// colour, such as one of two near-duplicates in a smooth area.
+    /// `plain`: plain k-means, the pixel-weighted squared error alone (the textbook objective; `sse` is accepted too).
     #[arg(long, default_value = "families", value_name = "families|plain")]
     pub objective: crate::families::Objective,
 

@@ -40,6 +40,16 @@ use std::collections::HashMap;
 pub const LOST_DELTA_E: f64 = 6.0;
 /// Areas of the image farther than this CIEDE2000 from their palette colour are reported.
 pub const REPORT_DELTA_E: f64 = 10.0;
+/// Smallest area reported (pixels), however large the image: a 4 × 4 patch.
+pub const SMALL_AREA_PIXELS: usize = 16;
+/// Areas smaller than [`min_family_pixels`] (down to [`SMALL_AREA_PIXELS`]) are reported
+/// when rendered on average at least this CIEDE2000 from their colour: twice
+/// [`REPORT_DELTA_E`], a different colour rather than a coarse shade of it. On the
+/// photographs of the fixtures enlarged past 400 000 pixels (K = 8 and 16), a limit of 15
+/// would report about three times as many areas as before, 20 (with the solid rule of
+/// [`lost_areas`]) a tenth more, none at K = 16 (figures in DEVELOPERS.md). Smaller
+/// groups of colours this far from every other are families too (see [`image_families`]).
+pub const STRONG_DELTA_E: f64 = 20.0;
 /// Palette colours closer than this CIEDE2000 count as near duplicates.
 pub const NEAR_DUPLICATE_DELTA_E: f64 = 3.0;
 /// Radius, in ΔE*ab, of a lost family's core around its heaviest cell.
@@ -245,6 +255,10 @@ pub struct ImageEntries<'a> {
 ///    a group near a heavier one shades into it. In a photograph most colours shade into
 ///    their neighbours, while a small shape in a colour unlike its surroundings stands
 ///    alone. Distinct families are returned, largest first.
+/// 4. A smaller group, down to half of [`SMALL_AREA_PIXELS`] solid pixels, is a family
+///    too when it is at least [`STRONG_DELTA_E`] from every group of step 3 and every
+///    heavier such small family: a dot in a colour unlike anything else in the image,
+///    too small to count in step 3 on a large image. These come last, largest first.
 fn image_families(image: ImageEntries, cells: &Cells, labs: &[[f64; 3]]) -> Vec<Family> {
     let mut ph = crate::trace::Phases::start("image families");
     let (w, h) = (image.width as usize, image.height as usize);
@@ -351,6 +365,7 @@ fn image_families(image: ImageEntries, cells: &Cells, labs: &[[f64; 3]]) -> Vec<
     // Cells are 2 units of the clustering space wide (about 2 ΔE*ab in either space).
     let reach = (GROUP_RADIUS / 2.0).ceil() as i32 + 1;
     let mut groups: Vec<Family> = Vec::new();
+    let mut small: Vec<Family> = Vec::new();
     for &seed in &order {
         if taken[seed] {
             continue;
@@ -383,12 +398,15 @@ fn image_families(image: ImageEntries, cells: &Cells, labs: &[[f64; 3]]) -> Vec<
                 }
             }
         }
+        let group = Family {
+            pixels: n,
+            lab: [l[0] / n, l[1] / n, l[2] / n],
+            feat: [(f[0] / n) as f32, (f[1] / n) as f32, (f[2] / n) as f32],
+        };
         if n >= min_pixels {
-            groups.push(Family {
-                pixels: n,
-                lab: [l[0] / n, l[1] / n, l[2] / n],
-                feat: [(f[0] / n) as f32, (f[1] / n) as f32, (f[2] / n) as f32],
-            });
+            groups.push(group);
+        } else if n >= SMALL_AREA_PIXELS as f64 / 2.0 {
+            small.push(group);
         }
     }
     // Heaviest first (stable). Groups closer than DISTINCT_DELTA_E are linked, and a chain
@@ -412,11 +430,23 @@ fn image_families(image: ImageEntries, cells: &Cells, labs: &[[f64; 3]]) -> Vec<
         }
     }
     let distinct: Vec<bool> = (0..groups.len()).map(|i| root(&mut head, i) == i).collect();
-    let families: Vec<Family> = groups
-        .into_iter()
+    let mut families: Vec<Family> = groups
+        .iter()
         .zip(distinct)
-        .filter_map(|(g, d)| d.then_some(g))
+        .filter_map(|(g, d)| d.then_some(g.clone()))
         .collect();
+    // A smaller group (down to half of SMALL_AREA_PIXELS) is a family when it is at least
+    // STRONG_DELTA_E from every group above and every heavier small family: a small shape
+    // in a colour unlike anything else in the image.
+    small.sort_by(|a, b| b.pixels.total_cmp(&a.pixels));
+    let mut strong: Vec<Family> = Vec::new();
+    for g in small {
+        let far = |o: &Family| colour::delta_e2000(g.lab, o.lab) >= STRONG_DELTA_E;
+        if groups.iter().chain(&strong).all(far) {
+            strong.push(g);
+        }
+    }
+    families.extend(strong);
     ph.mark("groups");
     families
 }
@@ -736,6 +766,49 @@ mod tests {
         assert_eq!(min_family_pixels(1000.0), 16.0);
         assert_eq!(min_family_pixels(100_000.0), 100.0);
         assert_eq!(min_family_pixels(12e6), 400.0);
+    }
+
+    /// On an image of 500 000 pixels (floor 400 pixels): of the small areas far from their
+    /// palette colour, only the solid one of at least 16 pixels rendered ΔE2000 20 or more
+    /// off is reported; a one-pixel line, a patch 15 off and a 9-pixel speck are not.
+    #[test]
+    fn small_areas_reported_when_far_and_solid() {
+        let (w, h) = (1000usize, 500usize);
+        // Entries: background, line, patch, faint patch, speck.
+        let errors = [0.0, 25.0, 25.0, 15.0, 25.0];
+        let labs = [[50.0, 0.0, 0.0]; 5];
+        let mut entry = vec![0u32; w * h];
+        for x in 100..200 {
+            entry[50 * w + x] = 1;
+        }
+        for y in 100..106 {
+            for x in 300..306 {
+                entry[y * w + x] = 2;
+                entry[y * w + x + 200] = 3;
+            }
+        }
+        for y in 300..303 {
+            for x in 700..703 {
+                entry[y * w + x] = 4;
+            }
+        }
+        let index = vec![0u16; w * h];
+        let areas = lost_areas(
+            w as u32,
+            h as u32,
+            &entry,
+            &errors,
+            &index,
+            &labs,
+            &[[119, 119, 119]],
+        );
+        assert_eq!(areas.len(), 1, "{areas:?}");
+        let a = &areas[0];
+        assert_eq!(
+            (a.pixels, a.x, a.y, a.width, a.height),
+            (36, 300, 100, 6, 6)
+        );
+        assert_eq!(a.delta_e2000, 25.0);
     }
 
     #[test]

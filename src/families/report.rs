@@ -1,7 +1,7 @@
 //! What a reduction reports and reads about colours: the areas it rendered far from their
 //! colour (the lost-area report) and the colours a user pins, as text.
 
-use super::{min_family_pixels, REPORT_DELTA_E};
+use super::{min_family_pixels, REPORT_DELTA_E, SMALL_AREA_PIXELS, STRONG_DELTA_E};
 use crate::colour::{self, Space};
 use crate::features::components;
 use rayon::prelude::*;
@@ -28,8 +28,13 @@ pub struct LostArea {
     pub delta_e2000: f64,
 }
 
-/// Areas of at least [`min_family_pixels`] pixels whose every pixel is more than
-/// [`REPORT_DELTA_E`] from its palette colour, largest first (ties: raster order).
+/// Areas whose every pixel is more than [`REPORT_DELTA_E`] from its palette colour, largest
+/// first (ties: raster order): those of at least [`min_family_pixels`] pixels, and the
+/// smaller ones of at least [`SMALL_AREA_PIXELS`] that are rendered on average at least
+/// [`STRONG_DELTA_E`] from their colour and are solid (at least half of their
+/// pixels have a horizontal and a vertical neighbour in the area, so a one-pixel line,
+/// such as the mixed colours of an anti-aliased border, is not one). A small dot in a
+/// colour unlike anything else is reported in an image of any size.
 /// `entry_error` is each histogram entry's CIEDE2000 to its palette colour;
 /// `pixel_index` is each pixel's index into `palette` as written (after any dithering).
 ///
@@ -86,67 +91,122 @@ pub fn lost_areas(
         })
         .collect();
     let mut out = Vec::new();
+    let mut flood = components::Flood::new(marks.len());
     for (_, size, first) in components::regions(&marks, w, h) {
-        if size < min_pixels {
+        if size < SMALL_AREA_PIXELS {
             continue;
         }
-        let pixels = components::region_pixels(&marks, w, h, first);
-        let (mut x0, mut y0, mut x1, mut y1) = (usize::MAX, usize::MAX, 0, 0);
-        let mut err = 0.0f64;
-        // Shade cube → (pixels, summed CIELAB, first pixel in fill order).
-        let mut shades: HashMap<[i32; 3], (usize, [f64; 3], usize)> = HashMap::new();
-        let mut took: HashMap<u16, usize> = HashMap::new();
-        for &p in &pixels {
-            let (x, y) = (p % w, p / w);
-            x0 = x0.min(x);
-            y0 = y0.min(y);
-            x1 = x1.max(x);
-            y1 = y1.max(y);
-            let e = pixel_entry[p] as usize;
-            let key = labs[e].map(|v| (v / SHADE).floor() as i32);
-            let order = shades.len();
-            let shade = shades.entry(key).or_insert((0, [0.0; 3], order));
-            shade.0 += 1;
-            for (sum, v) in shade.1.iter_mut().zip(labs[e]) {
-                *sum += v;
-            }
-            err += entry_error[e];
-            if let Some(&s) = pixel_index
-                .get(p)
-                .filter(|&&s| (s as usize) < palette.len())
+        flood.small_region(&marks, w, h, first, usize::MAX);
+        let pixels = &flood.pixels;
+        if size < min_pixels {
+            let error: f64 = pixels
+                .iter()
+                .map(|&p| entry_error[pixel_entry[p] as usize])
+                .sum();
+            if error / (size as f64) < STRONG_DELTA_E
+                || solid_share(pixels, &marks, w, h) < SOLID_SHARE
             {
-                *took.entry(s).or_insert(0) += 1;
+                continue;
             }
         }
-        let n = pixels.len() as f64;
-        let (count, sum, _) = shades
-            .values()
-            .max_by(|a, b| a.0.cmp(&b.0).then(b.2.cmp(&a.2)))
-            .copied()
-            .unwrap_or((1, [0.0; 3], 0));
-        let lab = sum.map(|v| v / count as f64);
-        let slot = took
-            .iter()
-            .max_by(|a, b| a.1.cmp(b.1).then(b.0.cmp(a.0)))
-            .map(|(&s, _)| s)
-            .unwrap_or(0);
-        out.push(LostArea {
-            pixels: pixels.len() as u64,
-            x: x0 as u32,
-            y: y0 as u32,
-            width: (x1 - x0 + 1) as u32,
-            height: (y1 - y0 + 1) as u32,
-            source: colour::hex(colour::space_to_srgb8(lab, Space::Cielab)),
-            source_lab: lab,
-            rendered: palette
-                .get(slot as usize)
-                .map_or_else(|| "none".into(), |&c| colour::hex(c)),
-            delta_e2000: err / n,
-        });
+        out.push(describe(
+            pixels,
+            w,
+            pixel_entry,
+            entry_error,
+            pixel_index,
+            labs,
+            palette,
+        ));
     }
     out.sort_by_key(|a| std::cmp::Reverse(a.pixels));
     out
 }
+
+/// The report of one area: `pixels` are its pixel indices.
+fn describe(
+    pixels: &[usize],
+    w: usize,
+    pixel_entry: &[u32],
+    entry_error: &[f64],
+    pixel_index: &[u16],
+    labs: &[[f64; 3]],
+    palette: &[[u8; 3]],
+) -> LostArea {
+    let (mut x0, mut y0, mut x1, mut y1) = (usize::MAX, usize::MAX, 0, 0);
+    let mut err = 0.0f64;
+    // Shade cube → (pixels, summed CIELAB, first pixel in fill order).
+    let mut shades: HashMap<[i32; 3], (usize, [f64; 3], usize)> = HashMap::new();
+    let mut took: HashMap<u16, usize> = HashMap::new();
+    for &p in pixels {
+        let (x, y) = (p % w, p / w);
+        x0 = x0.min(x);
+        y0 = y0.min(y);
+        x1 = x1.max(x);
+        y1 = y1.max(y);
+        let e = pixel_entry[p] as usize;
+        let key = labs[e].map(|v| (v / SHADE).floor() as i32);
+        let order = shades.len();
+        let shade = shades.entry(key).or_insert((0, [0.0; 3], order));
+        shade.0 += 1;
+        for (sum, v) in shade.1.iter_mut().zip(labs[e]) {
+            *sum += v;
+        }
+        err += entry_error[e];
+        if let Some(&s) = pixel_index
+            .get(p)
+            .filter(|&&s| (s as usize) < palette.len())
+        {
+            *took.entry(s).or_insert(0) += 1;
+        }
+    }
+    let n = pixels.len() as f64;
+    let (count, sum, _) = shades
+        .values()
+        .max_by(|a, b| a.0.cmp(&b.0).then(b.2.cmp(&a.2)))
+        .copied()
+        .unwrap_or((1, [0.0; 3], 0));
+    let lab = sum.map(|v| v / count as f64);
+    let slot = took
+        .iter()
+        .max_by(|a, b| a.1.cmp(b.1).then(b.0.cmp(a.0)))
+        .map(|(&s, _)| s)
+        .unwrap_or(0);
+    LostArea {
+        pixels: pixels.len() as u64,
+        x: x0 as u32,
+        y: y0 as u32,
+        width: (x1 - x0 + 1) as u32,
+        height: (y1 - y0 + 1) as u32,
+        source: colour::hex(colour::space_to_srgb8(lab, Space::Cielab)),
+        source_lab: lab,
+        rendered: palette
+            .get(slot as usize)
+            .map_or_else(|| "none".into(), |&c| colour::hex(c)),
+        delta_e2000: err / n,
+    }
+}
+
+/// Share of an area's pixels that have a horizontal and a vertical 4-neighbour in the
+/// area (the area's label in `marks`): inside a dot or a patch two or more pixels wide,
+/// not on a one-pixel line or a scatter of specks.
+fn solid_share(pixels: &[usize], marks: &[u16], w: usize, h: usize) -> f64 {
+    let solid = pixels
+        .iter()
+        .filter(|&&p| {
+            let (x, y, l) = (p % w, p / w, marks[p]);
+            let across = (x > 0 && marks[p - 1] == l) || (x + 1 < w && marks[p + 1] == l);
+            let down = (y > 0 && marks[p - w] == l) || (y + 1 < h && marks[p + w] == l);
+            across && down
+        })
+        .count();
+    solid as f64 / pixels.len().max(1) as f64
+}
+
+/// Share of a small area's pixels that must be solid (see [`lost_areas`]): on the enlarged
+/// photographs and posters of the fixtures, the small areas more than ΔE2000 20 off that
+/// are mostly one pixel wide are the mixed colours of soft borders.
+const SOLID_SHARE: f64 = 0.5;
 
 /// Width of the CIELAB cubes an area's pixels are binned into to find its most common
 /// shade (ΔE*ab units): half the report limit, so a shade holds colours that look alike.

@@ -124,8 +124,10 @@ pub struct PaletteDocument {
     #[serde(default, skip_serializing_if = "Vec::is_empty")]
     pub input_profiles: Vec<InputProfile>,
     pub colors: Vec<PaletteColour>,
-    /// Areas of the image (at least 0.1 % of the opaque pixels or 400 pixels) whose every
-    /// pixel is more than ΔE2000 10 from its palette colour: what the palette lost.
+    /// Areas of the image whose every pixel is more than ΔE2000 10 from its palette colour:
+    /// what the palette lost. Those of at least 0.1 % of the opaque pixels or 400 pixels,
+    /// and smaller solid ones, down to 16 pixels, rendered on average at least ΔE2000 20
+    /// from their colour (see `families::lost_areas`).
     /// Empty for a palette learnt from histograms alone, which has no image.
     #[serde(default)]
     pub lost_areas: Vec<LostArea>,

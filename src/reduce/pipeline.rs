@@ -235,8 +235,13 @@ fn fit_to_target(
 fn every_colour(en: &Entries<'_>, opts: &ReduceOptions, notes: &mut Vec<String>) -> Fitted {
     let n = en.hist.len();
     if n < opts.k {
+        let (colours, them) = if n == 1 {
+            ("colour", "it")
+        } else {
+            ("colours", "them all")
+        };
         notes.push(format!(
-            "the image has only {n} distinct colours; returning them all instead of {}",
+            "the image has only {n} distinct {colours}; returning {them} instead of {}",
             opts.k
         ));
     }

@@ -345,8 +345,9 @@ fn sweep_document(
     };
     let last = rows.last().map_or(0, |r| r.k);
     if last < opts.range.max {
+        let values = if last == 1 { "value" } else { "values" };
         notes.push(format!(
-            "the data has only {last} distinct values to cluster; the sweep stops at K = {last}"
+            "the data has only {last} distinct {values} to cluster; the sweep stops at K = {last}"
         ));
     }
     if rows.is_empty() {
