@@ -340,3 +340,50 @@ fn k_bounds_read_the_same_in_every_command() {
         assert!(!out.exists(), "{args:?} wrote outputs");
     }
 }
+
+/// Standard input is named as such in every message, never by the temporary file that
+/// holds it for the run: a summary, a note, and an error.
+#[test]
+fn messages_name_standard_input_not_its_temporary_copy() {
+    let dir = tempfile::tempdir().unwrap();
+    let out = dir.path().join("plates");
+    let poster = std::fs::read(fixture("demo/harbour-poster.png")).unwrap();
+    let inks = fixture("demo/quayside-inks.csv");
+    let (code, _, err) = piped(
+        &[
+            "separate",
+            "-",
+            "--inks",
+            inks.to_str().unwrap(),
+            "-k",
+            "4",
+            "--substrate",
+            "#101010",
+            "-o",
+            out.to_str().unwrap(),
+        ],
+        &poster,
+        &[],
+    );
+    assert_eq!(code, Some(0), "{err}");
+    assert!(err.contains("note: standard input:"), "{err}");
+    assert!(err.contains("standard input: 4 plates written"), "{err}");
+    let first = err;
+    let (code, _, err) = piped(
+        &[
+            "landcover",
+            "-",
+            "-k",
+            "3",
+            "-o",
+            dir.path().join("lc").to_str().unwrap(),
+        ],
+        b"not an image at all",
+        &[],
+    );
+    assert_eq!(code, Some(2), "{err}");
+    assert!(err.contains("standard input"), "{err}");
+    for e in [&first, &err] {
+        assert!(!e.contains("stdin.img") && !e.contains(".tmp"), "{e}");
+    }
+}

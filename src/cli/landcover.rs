@@ -124,7 +124,7 @@ pub(super) fn run_sample(args: &LandcoverSampleArgs) -> Result<ExitCode, Error> 
     let h = landcover::write_sample_file(&args.input, &args.out, &opts)?;
     eprintln!(
         "chromasift: {}: {} sample rows of {} features from {} valid pixels -> {}",
-        args.input.display(),
+        super::stdio::shown_path(&args.input),
         h.rows,
         h.dim,
         h.valid_pixels,
@@ -189,7 +189,7 @@ pub(super) fn run_landcover(args: &super::LandcoverArgs) -> Result<ExitCode, Err
     let d = &report.document;
     eprintln!(
         "chromasift: {}: {} classes over {} valid pixels ({} nodata), SSE {:.6e}, {:.2} s",
-        args.input.display(),
+        super::stdio::shown_path(&args.input),
         d.k,
         d.valid_pixels,
         d.nodata_pixels,
@@ -199,7 +199,7 @@ pub(super) fn run_landcover(args: &super::LandcoverArgs) -> Result<ExitCode, Err
     for w in &d.warnings {
         eprintln!(
             "chromasift: warning: {}: {}",
-            args.input.display(),
+            super::stdio::shown_path(&args.input),
             super::help::flag_wording(w)
         );
     }

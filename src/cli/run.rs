@@ -3,8 +3,8 @@
 
 use super::help::{flag_wording, manual_pages, parse, usage_error};
 use super::stdio::{
-    emit, emit_json, read_stdin, set_stdout_closed_at_start, stdin_to_file, stdout_result,
-    write_or_stdout, write_stdout, STDOUT_FAILED,
+    emit, emit_json, read_stdin, set_stdout_closed_at_start, shown, shown_path, stdin_to_file,
+    stdout_result, write_or_stdout, write_stdout, STDOUT_FAILED,
 };
 use super::{
     ApplyArgs, BatchArgs, Cli, Command, HistogramArgs, LearnArgs, ManpageArgs, ReduceArgs,
@@ -28,7 +28,7 @@ static STOP: AtomicBool = AtomicBool::new(false);
 fn fail(message: impl std::fmt::Display) -> ExitCode {
     eprintln!(
         "chromasift: error: {}",
-        flag_wording(&batch::one_line(&message.to_string()))
+        flag_wording(&shown(&batch::one_line(&message.to_string())))
     );
     ExitCode::from(EXIT_USAGE)
 }
@@ -40,7 +40,11 @@ fn counted(n: impl Into<u64>, word: &str) -> String {
 }
 
 fn note(input: &Path, n: &str) {
-    eprintln!("chromasift: note: {}: {}", input.display(), flag_wording(n));
+    eprintln!(
+        "chromasift: note: {}: {}",
+        shown_path(input),
+        flag_wording(&shown(n))
+    );
 }
 
 /// Runs the tool on its command line. `stdout_closed_at_start`: standard output was closed
@@ -250,7 +254,7 @@ fn run_separate(args: &super::SeparateArgs) -> Result<ExitCode, Error> {
     eprintln!("{}", separate::summary_table(&report.document));
     eprintln!(
         "chromasift: {}: {} plates written in {:.2} s",
-        args.input.display(),
+        shown_path(&args.input),
         report.document.inks.len(),
         report.seconds
     );
@@ -273,7 +277,7 @@ fn run_sweep(args: &super::SweepArgs) -> Result<ExitCode, Error> {
         .collect();
     eprintln!(
         "chromasift: {}: swept K {}..{}; suggested: {}; {:.2} s",
-        args.input.display(),
+        shown_path(&args.input),
         d.rows.first().map_or(0, |r| r.k),
         d.rows.last().map_or(0, |r| r.k),
         if suggested.is_empty() {
@@ -286,7 +290,7 @@ fn run_sweep(args: &super::SweepArgs) -> Result<ExitCode, Error> {
     if let Some(r) = &d.recommended {
         eprintln!(
             "chromasift: {}: recommended K = {} (rule: {}); {}. {}",
-            args.input.display(),
+            shown_path(&args.input),
             r.k,
             r.rule,
             r.agreement,

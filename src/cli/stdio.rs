@@ -90,6 +90,22 @@ pub(super) fn read_stdin(limit: u64) -> Result<Vec<u8>, Error> {
     Ok(bytes)
 }
 
+/// Where standard input was copied for this run (see [`stdin_to_file`]).
+static STDIN_COPY: std::sync::OnceLock<PathBuf> = std::sync::OnceLock::new();
+
+/// `text` with the temporary copy of standard input named as what it is.
+pub(super) fn shown(text: &str) -> String {
+    match STDIN_COPY.get() {
+        Some(p) => text.replace(&p.display().to_string(), "standard input"),
+        None => text.to_string(),
+    }
+}
+
+/// A path as messages name it: "standard input" for the copy of standard input.
+pub(super) fn shown_path(path: &Path) -> String {
+    shown(&path.display().to_string())
+}
+
 /// Standard input copied into `stdin.tif` (TIFF bytes) or `stdin.img` in a new temporary
 /// folder, at most the default allocation limit.
 pub(super) fn stdin_to_file() -> Result<(tempfile::TempDir, PathBuf), Error> {
@@ -104,5 +120,6 @@ pub(super) fn stdin_to_file() -> Result<(tempfile::TempDir, PathBuf), Error> {
         .path()
         .join(if tiff { "stdin.tif" } else { "stdin.img" });
     std::fs::write(&path, &bytes).map_err(|e| Error::io(&path, e))?;
+    let _ = STDIN_COPY.set(path.clone());
     Ok((dir, path))
 }
