@@ -123,11 +123,23 @@ pub fn recommend(rows: &[SweepRow], suggested: &BTreeMap<String, usize>) -> Opti
                     more.truncate(4);
                     more.push("…".into());
                 }
+                // The sweep's own fit at K = f may not show the f families (it spent a colour
+                // inside one and merged two others): the table says so, and the reason too.
+                let short = rows
+                    .iter()
+                    .find(|o| o.k == f)
+                    .and_then(|o| o.families)
+                    .filter(|&n| n < f)
+                    .map_or(String::new(), |n| {
+                        format!(
+                            " At K = {f} itself this sweep's plain k-means fit shows {n}: it spent a colour inside a family and merged two others; `reduce` with its default objective moves colours to bring lost families back, and its lost-area report names any it could not."
+                        )
+                    });
                 (
                     f,
                     "distinct colours",
                     format!(
-                        "{f} colour families: {how}, and no K {bound} shows more{}. Colours closer than ΔE2000 {FAMILY_DELTA_E2000} count as one family; families under {:.1} % of the pixels are not counted.",
+                        "{f} colour families: {how}, and no K {bound} shows more{}.{short} Colours closer than ΔE2000 {FAMILY_DELTA_E2000} count as one family; families under {:.1} % of the pixels are not counted.",
                         if more.is_empty() {
                             String::new()
                         } else {

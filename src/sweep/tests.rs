@@ -90,7 +90,19 @@ fn recommendation_counts_colour_families_and_stable_classes() {
     // A K where one more family shows (k-means separated two close ones there).
     let mut more = rows.clone();
     more[6].families = Some(6);
-    assert_eq!(recommend(&more, &s).unwrap().k, 6);
+    let r = recommend(&more, &s).unwrap();
+    assert_eq!(r.k, 6);
+    // Its own row shows five: the reason says so, where the table would contradict it.
+    assert!(
+        r.reason
+            .contains("At K = 6 itself this sweep's plain k-means fit shows 5"),
+        "{}",
+        r.reason
+    );
+    assert!(!recommend(&rows, &s)
+        .unwrap()
+        .reason
+        .contains("itself this sweep"));
     // Never above the mixture criteria's choice.
     let mut s2 = s.clone();
     s2.insert("bic_full".into(), 3);
