@@ -610,6 +610,19 @@ fn transparent_png_pixels_are_not_classified() {
         &chromasift::limits::Limits::default(),
     )
     .unwrap();
+    // The band is named as GDAL names bands (GDAL_METADATA DESCRIPTION), for a GIS.
+    assert_eq!(
+        r.info().descriptions,
+        vec![Some("class (0 = nodata)".to_string())]
+    );
+    let u = chromasift::geotiff::GeoRaster::open(
+        &out.join("valley-aerial.uncertainty.tif"),
+        &chromasift::limits::Limits::default(),
+    )
+    .unwrap();
+    assert!(u.info().descriptions[0]
+        .as_deref()
+        .is_some_and(|d| d.starts_with("uncertainty")));
     let mut classes = Vec::new();
     for i in 0..r.block_count() {
         classes.extend(r.read_block(i).unwrap().data);

@@ -440,6 +440,7 @@ pub fn label_file(classes: &Path, out_dir: &Path, opts: &LabelOptions) -> Result
                 geo: &raster.geo,
                 nodata: Some("0"),
                 opts: &wopts,
+                description: Some("label (0 = nodata; names in the labels document beside it)"),
             };
             // The labels are in memory already, and so are the tiles until the file is
             // assembled (compressed, they take less than the labels).

@@ -98,6 +98,7 @@ pub(super) fn classify_scene(
             geo,
             nodata: Some("0"),
             opts: &class_opts,
+            description: Some("class (0 = nodata)"),
         };
         let classes_done = write_band(&mut cls_out, |wr| {
             geotiff::write_u8_cog(wr, &band, &mut from(&mut cls_scratch), &mut send)
@@ -138,6 +139,7 @@ fn write_uncertainty(
         geo,
         nodata: Some(&nodata),
         opts,
+        description: Some("uncertainty (normalised entropy, 0 = sure, 1 = even)"),
     };
     write_band(&mut out, |wr| {
         geotiff::write_f32_cog(wr, &band, &mut from(&mut scratch), &mut pull)

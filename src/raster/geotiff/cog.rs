@@ -67,6 +67,9 @@ pub struct CogBand<'a> {
     pub nodata: Option<&'a str>,
     /// BigTIFF and the colour table (compression is always DEFLATE with a predictor).
     pub opts: &'a WriteOptions,
+    /// The band's description, written as GDAL writes one (GDAL_METADATA, an item
+    /// `DESCRIPTION` of sample 0), so a GIS names the layer.
+    pub description: Option<&'a str>,
 }
 
 /// One level being written.
@@ -263,6 +266,12 @@ fn entries<T: TileSample>(
     }
     if level == 0 {
         e.extend(ifd::geo_entries(band.geo, band.nodata));
+        if let Some(d) = band.description {
+            e.push(Entry::ascii(
+                super::TAG_GDAL_METADATA,
+                &super::metadata::description_text(d),
+            ));
+        }
     } else if let Some(text) = band.nodata {
         e.push(Entry::ascii(super::tags::TAG_GDAL_NODATA, text));
     }

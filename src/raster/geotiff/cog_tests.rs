@@ -42,6 +42,7 @@ fn write_classes(path: &Path, w: u32, h: u32, v: &[u8], big: bool, colours: Vec<
         geo: &geo,
         nodata: Some("0"),
         opts: &opts,
+        description: None,
     };
     let mut out = std::io::BufWriter::new(std::fs::File::create(path).unwrap());
     write_u8_cog(&mut out, &band, &mut memory_scratch, &mut |y0, rows| {
@@ -169,6 +170,7 @@ fn uncertainty_raster_keeps_every_float_and_averages_its_overviews() {
             geo: &geo,
             nodata: Some("-1"),
             opts: &opts,
+            description: None,
         };
         write_f32_cog(
             std::fs::File::create(&path).unwrap(),
@@ -267,6 +269,7 @@ fn bad_bands_are_refused_in_one_line() {
         geo: &geo,
         nodata,
         opts: &opts,
+        description: None,
     };
     let mut sink = Vec::new();
     let mut rows = |_: u32, r: u32| Ok(vec![0u8; r as usize * 4]);

@@ -69,6 +69,18 @@ pub fn parse_gdal_metadata(text: &str, samples: usize) -> BandMetadata {
     m
 }
 
+/// GDAL_METADATA text naming band 1 `description`, in the form GDAL writes (XML, with
+/// `&`, `<` and `>` escaped).
+pub(super) fn description_text(description: &str) -> String {
+    let escaped = description
+        .replace('&', "&amp;")
+        .replace('<', "&lt;")
+        .replace('>', "&gt;");
+    format!(
+        "<GDALMetadata>\n  <Item name=\"DESCRIPTION\" sample=\"0\" role=\"description\">{escaped}</Item>\n</GDALMetadata>"
+    )
+}
+
 pub(super) fn read_gdal_metadata<R: Read + Seek>(
     decoder: &mut Decoder<R>,
     path: &Path,
