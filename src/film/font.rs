@@ -5,8 +5,23 @@ use font8x8::{UnicodeFonts, BASIC_FONTS, LATIN_FONTS};
 
 use super::Bitmap;
 
+/// Typographic punctuation the font lacks, as the plain character it stands for (a job
+/// name typed as "Spring – 2027" keeps its dash).
+pub(super) fn plain(c: char) -> char {
+    match c {
+        '\u{2010}'..='\u{2015}' | '\u{2212}' => '-',
+        '\u{2018}' | '\u{2019}' | '\u{201A}' | '\u{2032}' => '\'',
+        '\u{201C}' | '\u{201D}' | '\u{201E}' | '\u{2033}' => '"',
+        '\u{2026}' => '.',
+        '\u{2022}' | '\u{00B7}' => '*',
+        '\u{00A0}' | '\u{2009}' | '\u{202F}' => ' ',
+        other => other,
+    }
+}
+
 /// Glyph rows, top first; bit 0 of a row is its leftmost pixel.
 fn glyph(c: char) -> [u8; 8] {
+    let c = plain(c);
     BASIC_FONTS
         .get(c)
         .or_else(|| LATIN_FONTS.get(c))
@@ -51,5 +66,20 @@ mod tests {
         assert!(left > right, "left {left} right {right}");
         assert!(b.count_ink(0, 0, 8, 3) < b.count_ink(0, 5, 8, 3) + 3);
         assert_eq!(text_width("abc", 2), 48);
+    }
+
+    #[test]
+    fn typographic_dashes_and_quotes_print_as_their_plain_forms() {
+        let draw = |t: &str| {
+            let mut b = Bitmap::new(24, 8).unwrap();
+            draw_text(&mut b, 0, 0, 1, t);
+            (0..3)
+                .map(|k| b.count_ink(k * 8, 0, 8, 8))
+                .collect::<Vec<_>>()
+        };
+        // U+2013 and U+2014 (dashes) as '-', U+201C/U+201D (quotes) as '"': not '?'.
+        assert_eq!(draw("a\u{2013}b"), draw("a-b"));
+        assert_eq!(draw("\u{2014}\u{201C}\u{201D}"), draw("-\"\""));
+        assert_ne!(draw("a\u{2013}b"), draw("a?b"));
     }
 }

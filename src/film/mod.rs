@@ -337,6 +337,32 @@ impl FilmOptions {
     }
 }
 
+/// A note when tinted plates' screens share an angle (the same modulo 90°, a dot screen's
+/// symmetry): moiré between them is possible.
+fn shared_angles_note(angles: &[f64]) -> Option<String> {
+    let mut pairs = 0;
+    for (i, a) in angles.iter().enumerate() {
+        for b in &angles[i + 1..] {
+            let d = (a - b).rem_euclid(90.0);
+            pairs += usize::from(d.min(90.0 - d) < 0.5);
+        }
+    }
+    (pairs > 0).then(|| {
+        format!(
+            "{} tinted plates, screened at {}°: {pairs} pair{} of them share an angle, so \
+             moiré between them is possible (at most 4 angles are 15° or more apart; give \
+             `screen_angles` one per tinted plate)",
+            angles.len(),
+            angles
+                .iter()
+                .map(|a| format!("{a}"))
+                .collect::<Vec<_>>()
+                .join(", "),
+            if pairs == 1 { "" } else { "s" },
+        )
+    })
+}
+
 /// Checks a print resolution.
 pub fn check_dpi(dpi: f64) -> Result<()> {
     if !(dpi.is_finite() && dpi > 0.0) {
@@ -437,11 +463,8 @@ pub fn make_films(
         Some(ht) => {
             let n = screened.iter().filter(|&&s| s).count();
             let angles = ht.angles_for(n);
-            if n > 4 && ht.angles.is_empty() && ht.kind != ScreenKind::Stochastic {
-                notes.push(format!(
-                    "{n} plates carry tints; only 4 screen angles are 15° or more apart, so \
-                     some plates share an angle (moiré between them is possible)"
-                ));
+            if ht.kind != ScreenKind::Stochastic {
+                notes.extend(shared_angles_note(&angles));
             }
             let mut k = 0;
             screened
@@ -520,4 +543,20 @@ pub fn make_films(
         plates_in: plates,
         notes,
     })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn screens_sharing_an_angle_are_noted() {
+        assert_eq!(shared_angles_note(&[45.0, 75.0, 15.0, 0.0]), None);
+        let n = shared_angles_note(&[22.5, 22.5]).unwrap();
+        assert!(n.contains("1 pair") && n.contains("22.5, 22.5"), "{n}");
+        // 0° and 90° are the same screen for a dot with 90° symmetry.
+        assert!(shared_angles_note(&[0.0, 90.0]).is_some());
+        // Five tinted plates on the common sequence: the fifth repeats the first.
+        assert!(shared_angles_note(&auto_angles(5)).is_some());
+    }
 }

@@ -131,9 +131,11 @@ pub fn write_tiff<W: Write + Seek>(w: W, page: &FilmPage, job: &str) -> std::io:
     Ok(())
 }
 
-/// TIFF ASCII fields hold 7-bit text: other characters become '?'.
+/// TIFF ASCII fields hold 7-bit text: typographic punctuation becomes its plain form
+/// (see `font::plain`), other characters '?'.
 fn ascii(s: &str) -> String {
     s.chars()
+        .map(super::font::plain)
         .map(|c| {
             if c.is_ascii() && !c.is_ascii_control() {
                 c
