@@ -5,6 +5,7 @@ pub mod geotiff;
 mod tiff_meta;
 pub mod walk;
 mod write;
+pub(crate) use write::png_pixel_dims;
 
 pub use write::{
     write_f32_tiff, write_grey_png, write_indexed_png, write_indexed_png_with, write_rgb_png,

@@ -33,14 +33,7 @@ fn encoder_with<W: Write>(
     info.exif_metadata = extras
         .exif
         .map(|e| std::borrow::Cow::Owned(e.strip_prefix(b"Exif\0\0").unwrap_or(e).to_vec()));
-    info.pixel_dims = extras.dpi.filter(|d| d.is_finite() && *d > 0.0).map(|d| {
-        let ppm = (d / 0.0254).round().clamp(1.0, u32::MAX as f64) as u32;
-        png::PixelDimensions {
-            xppu: ppm,
-            yppu: ppm,
-            unit: png::Unit::Meter,
-        }
-    });
+    info.pixel_dims = png_pixel_dims(extras.dpi);
     png::Encoder::with_info(w, info).expect("an Info of a fresh image is valid")
 }
 
@@ -209,4 +202,17 @@ fn tiff_error(e: tiff::TiffError) -> std::io::Error {
         tiff::TiffError::IoError(io) => io,
         other => std::io::Error::other(other.to_string()),
     }
+}
+
+/// A print resolution as PNG records it (pHYs: whole pixels per metre); none for a missing
+/// or meaningless one.
+pub(crate) fn png_pixel_dims(dpi: Option<f64>) -> Option<png::PixelDimensions> {
+    dpi.filter(|d| d.is_finite() && *d > 0.0).map(|d| {
+        let ppm = (d / 0.0254).round().clamp(1.0, u32::MAX as f64) as u32;
+        png::PixelDimensions {
+            xppu: ppm,
+            yppu: ppm,
+            unit: png::Unit::Meter,
+        }
+    })
 }

@@ -76,25 +76,17 @@ impl CostTable {
     /// Pixels farther than `limit` (ΔE2000) from their nearest choice of `set` and the
     /// substrate.
     pub fn far_pixels(&self, set: &[usize], limit: f32) -> f64 {
-        let parts: Vec<f64> = (0..self.n.div_ceil(CHUNK))
-            .into_par_iter()
-            .map(|c| {
-                let mut s = 0.0f64;
-                for e in c * CHUNK..((c + 1) * CHUNK).min(self.n) {
-                    let row = self.row(e);
-                    let best = set.iter().map(|&i| row[i]).fold(self.floor(e), f32::min);
-                    if best > limit {
-                        s += self.weights[e];
-                    }
-                }
-                s
-            })
-            .collect();
-        parts.iter().sum()
+        self.sum_nearest(set, |w, best| if best > limit { w } else { 0.0 })
     }
 
     /// Total weighted ΔE2000 of a set of inks (each entry to its nearest choice).
     pub fn objective(&self, set: &[usize]) -> f64 {
+        self.sum_nearest(set, |w, best| w * best as f64)
+    }
+
+    /// Σ `term(weight, ΔE2000 to the nearest of set and substrate)` over the entries, in
+    /// chunks summed in order (deterministic on any thread count).
+    fn sum_nearest(&self, set: &[usize], term: impl Fn(f64, f32) -> f64 + Sync) -> f64 {
         let parts: Vec<f64> = (0..self.n.div_ceil(CHUNK))
             .into_par_iter()
             .map(|c| {
@@ -102,7 +94,7 @@ impl CostTable {
                 for e in c * CHUNK..((c + 1) * CHUNK).min(self.n) {
                     let row = self.row(e);
                     let best = set.iter().map(|&i| row[i]).fold(self.floor(e), f32::min);
-                    s += self.weights[e] * best as f64;
+                    s += term(self.weights[e], best);
                 }
                 s
             })

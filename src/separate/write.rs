@@ -25,14 +25,7 @@ pub(super) fn write_plate<W: std::io::Write>(
     enc.set_color(png::ColorType::Grayscale);
     enc.set_depth(png::BitDepth::One);
     // The artwork's resolution (pHYs, pixels per metre), so a plate opens at print size.
-    if let Some(d) = dpi.filter(|d| d.is_finite() && *d > 0.0) {
-        let ppm = (d / 0.0254).round().clamp(1.0, u32::MAX as f64) as u32;
-        enc.set_pixel_dims(Some(png::PixelDimensions {
-            xppu: ppm,
-            yppu: ppm,
-            unit: png::Unit::Meter,
-        }));
-    }
+    enc.set_pixel_dims(crate::raster::png_pixel_dims(dpi));
     let mut writer = enc.write_header().map_err(std::io::Error::other)?;
     let row_bytes = (width as usize).div_ceil(8);
     let mut packed = vec![0u8; row_bytes * height as usize];
